@@ -1,15 +1,319 @@
-"""Reading meshes with meshio (Gmsh 2.2/4.1, VTU, ...) and writing them back (placeholder)."""
+"""Reading 2D meshes with meshio (Gmsh 2.2/4.1 ASCII or binary, VTU, ...) and writing them back.
+
+Cells: linear triangles, quads and general polygons, in any mix. Higher-order and 3D cells
+are refused with a message saying what to export instead.
+
+Boundary patches come from line elements:
+
+* Gmsh physical groups: the per-element tag ``cell_data["gmsh:physical"]`` named through
+  ``field_data = {name: [tag, dim]}`` (only groups of dimension 1 name patches);
+* meshio ``cell_sets`` (``name -> one index array per cell block``), restricted to line blocks;
+* indicator arrays ``cell_data["patch:<name>"]`` (non-zero on the line elements of the patch),
+  which is how :func:`write_mesh` stores patch names in VTU files, whose meshio writer keeps
+  neither field data nor cell sets.
+
+Vertex (dimension 0) and surface (dimension 2) groups are ignored. Line elements without any
+group are ignored too, so a boundary edge that ends up in no patch is reported by
+:func:`fvrans.mesh.mesh.build_mesh`, with the file name in the message.
+"""
 
 from __future__ import annotations
 
+import io
+import logging
+import warnings
+from contextlib import redirect_stderr, redirect_stdout
 from pathlib import Path
 
-from fvrans.mesh.mesh import Mesh
+import meshio
+import numpy as np
+
+from fvrans.errors import MeshError
+from fvrans.mesh.mesh import Mesh, build_mesh
+
+log = logging.getLogger(__name__)
+
+#: meshio cell types read as 2D cells.
+LINEAR_2D_TYPES = ("triangle", "quad", "polygon")
+#: prefix of the VTU/VTK cell-data arrays that mark the line elements of a patch.
+PATCH_ARRAY_PREFIX = "patch:"
+
+#: ``file_format`` values accepted by :func:`write_mesh`, and the format used for each suffix.
+WRITE_FORMATS = {
+    "gmsh": "Gmsh 4.1",
+    "gmsh41": "Gmsh 4.1",
+    "gmsh22": "Gmsh 2.2",
+    "vtu": "VTK XML unstructured grid",
+}
+_SUFFIX_FORMAT = {".msh": "gmsh", ".vtu": "vtu"}
 
 
-def read_mesh(path: str | Path) -> Mesh:
-    raise NotImplementedError
+# ----------------------------------------------------------------------------------------
+# reading
+# ----------------------------------------------------------------------------------------
+def read_mesh(path: str | Path, file_format: str | None = None) -> Mesh:
+    """Read a planar 2D mesh file and build a :class:`Mesh` with named boundary patches.
+
+    ``file_format`` is a meshio format name (e.g. ``"gmsh"``, ``"vtu"``); by default the file
+    suffix decides. Every problem is raised as :class:`MeshError` naming the file.
+    """
+    p = Path(path)
+    src = str(p)
+    if not p.exists():
+        raise MeshError(f"{src}: file not found; check the path (working directory {Path.cwd()})")
+    if p.is_dir():
+        raise MeshError(f"{src}: is a directory, not a mesh file")
+    if file_format is None and p.suffix.lower() == ".msh":
+        file_format = "gmsh"  # meshio would try another format first and print its failure
+    out = io.StringIO()
+    try:
+        # meshio prints read failures and may call sys.exit: keep both away from the caller
+        with warnings.catch_warnings(), redirect_stdout(out), redirect_stderr(out):
+            warnings.simplefilter("ignore")
+            mm = meshio.read(p, file_format=file_format)
+    except (Exception, SystemExit) as exc:  # meshio raises many kinds (ReadError, ValueError, ...)
+        printed = " ".join(out.getvalue().split())
+        if isinstance(exc, SystemExit):
+            detail = printed or "the reader gave up"
+        else:
+            detail = f"{type(exc).__name__}: {' '.join(str(exc).split()) or printed or 'no detail'}"
+        raise MeshError(
+            f"{src}: could not read the mesh file ({detail}); "
+            "write it as a Gmsh .msh (version 2.2 or 4.1, ASCII or binary) or a .vtu file, "
+            "or pass file_format= if the suffix does not say the format"
+        ) from exc
+    return from_meshio(mm, source=src)
 
 
-def write_mesh(mesh: Mesh, path: str | Path) -> None:
-    raise NotImplementedError
+def from_meshio(mm: meshio.Mesh, source: str = "<meshio mesh>") -> Mesh:
+    """Turn a ``meshio.Mesh`` into a :class:`Mesh` (see the module docstring for the rules)."""
+    pts = np.asarray(mm.points, dtype=np.float64)
+    if pts.ndim != 2 or pts.shape[1] not in (2, 3) or len(pts) == 0:
+        raise MeshError(f"{source}: the file holds no usable points (array of shape {pts.shape})")
+    if pts.shape[1] == 3:
+        _check_planar(pts, source)
+
+    cells: list[np.ndarray] = []
+    line_blocks: list[tuple[int, np.ndarray]] = []  # (block index, (n, 2) point pairs)
+    found_types: list[str] = []
+    for k, block in enumerate(mm.cells):
+        t = block.type
+        found_types.append(t)
+        dim = getattr(block, "dim", None)
+        if t in LINEAR_2D_TYPES:
+            cells.extend(np.asarray(c, dtype=np.int64) for c in block.data)
+        elif t == "line":
+            line_blocks.append((k, np.asarray(block.data, dtype=np.int64).reshape(-1, 2)))
+        elif t == "vertex" or dim == 0:
+            continue
+        elif dim == 3 or t.startswith("polyhedron"):
+            raise MeshError(
+                f"{source}: the file holds 3D cells of type '{t}'; fvrans solves on 2D meshes — "
+                "export a planar surface mesh (triangles, quads or polygons) instead"
+            )
+        elif dim in (1, 2):
+            raise MeshError(
+                f"{source}: cells of type '{t}' are higher-order (curved) elements, which fvrans "
+                "does not read; export the mesh with first-order (linear) elements: "
+                "lines, triangles, quads or polygons"
+            )
+        else:
+            raise MeshError(f"{source}: cells of unknown type '{t}'; export linear 2D elements instead")
+    if not cells:
+        kinds = ", ".join(sorted(set(found_types))) or "no elements at all"
+        raise MeshError(
+            f"{source}: the mesh has no 2D cells (found: {kinds}); export the surface elements "
+            "(triangles, quads or polygons) together with the boundary lines"
+        )
+
+    boundary = _patches_from_meshio(mm, line_blocks, source)
+    sizes = {len(c) for c in cells}
+    cell_arg = np.stack(cells) if len(sizes) == 1 else cells
+    return build_mesh(pts, cell_arg, boundary, source=source)
+
+
+def _check_planar(pts: np.ndarray, source: str) -> None:
+    z = pts[:, 2]
+    zmin, zmax = float(z.min()), float(z.max())
+    span = float(np.ptp(pts[:, :2], axis=0).max()) or 1.0
+    if zmax - zmin > 1e-9 * span:
+        i = int(np.argmax(np.abs(z - np.median(z))))
+        raise MeshError(
+            f"{source}: the mesh is not planar: point {i} at ({pts[i, 0]:.6g}, {pts[i, 1]:.6g}) has "
+            f"z = {z[i]:.6g} while z ranges over [{zmin:.6g}, {zmax:.6g}]; fvrans needs a 2D mesh in "
+            "a plane z = constant (x-y coordinates)"
+        )
+
+
+def _as_int_tags(values) -> np.ndarray:
+    return np.asarray(values).astype(np.int64).ravel()
+
+
+def _patches_from_meshio(
+    mm: meshio.Mesh, line_blocks: list[tuple[int, np.ndarray]], source: str
+) -> dict[str, np.ndarray]:
+    """Named edge lists ``{patch: (m, 2) point pairs}`` from physical tags, cell sets and patch arrays."""
+    parts: dict[str, list[np.ndarray]] = {}
+
+    def add(name: str, edges: np.ndarray) -> None:
+        if len(edges):
+            parts.setdefault(str(name), []).append(edges)
+
+    field = {str(k): _as_int_tags(v) for k, v in (mm.field_data or {}).items()}
+    line_names: dict[int, str] = {}
+    for name, v in field.items():
+        if len(v) >= 2 and v[1] == 1:
+            line_names[int(v[0])] = name
+
+    # -- physical tags per element, in tag order --
+    phys = (mm.cell_data or {}).get("gmsh:physical")
+    if phys is not None:
+        tagged: dict[int, list[np.ndarray]] = {}
+        for k, edges in line_blocks:
+            tags = _as_int_tags(phys[k])
+            for tag in np.unique(tags):
+                if tag <= 0:  # 0: the element is in no physical group
+                    continue
+                tagged.setdefault(int(tag), []).append(edges[tags == tag])
+        for tag in sorted(tagged):
+            if tag not in line_names:
+                n = sum(len(e) for e in tagged[tag])
+                known = ", ".join(f"{t} = {nm!r}" for t, nm in sorted(line_names.items())) or "none"
+                raise MeshError(
+                    f"{source}: {n} line element(s) carry physical tag {tag}, which has no name "
+                    f"(named line groups: {known}); give physical line group {tag} a name in the "
+                    "mesh file so it can serve as a boundary patch"
+                )
+            for e in tagged[tag]:
+                add(line_names[tag], e)
+
+    # -- cell sets (index arrays per block) --
+    line_of_block = dict(line_blocks)
+    for name, per_block in (mm.cell_sets or {}).items():
+        name = str(name)
+        if name.startswith("gmsh:"):
+            continue
+        if name in field and len(field[name]) >= 2 and field[name][1] != 1:
+            continue  # a vertex or surface group
+        for k, idx in enumerate(per_block):
+            if idx is None or k not in line_of_block:
+                continue
+            idx = np.asarray(idx, dtype=np.int64).ravel()
+            if idx.size:
+                add(name, line_of_block[k][idx])
+
+    # -- indicator arrays written by write_mesh for formats without field data --
+    for key, per_block in (mm.cell_data or {}).items():
+        if not str(key).startswith(PATCH_ARRAY_PREFIX):
+            continue
+        name = str(key)[len(PATCH_ARRAY_PREFIX) :]
+        for k, edges in line_blocks:
+            flag = np.asarray(per_block[k]).ravel() != 0
+            add(name, edges[flag])
+
+    return {name: np.unique(np.sort(np.concatenate(e), axis=1), axis=0) for name, e in parts.items()}
+
+
+# ----------------------------------------------------------------------------------------
+# writing
+# ----------------------------------------------------------------------------------------
+def to_meshio(mesh: Mesh, file_format: str = "gmsh") -> meshio.Mesh:
+    """A ``meshio.Mesh`` holding the cells and the patches as named line groups.
+
+    For Gmsh formats the patches are physical line groups (``gmsh:physical`` + ``field_data``)
+    and the cells one physical surface group; for other formats each patch gets an indicator
+    array ``patch:<name>``. Cells go in blocks by number of sides (triangles, quads, then
+    polygons, which Gmsh cannot hold), keeping their order within a block, so a mesh of one
+    kind of cell keeps its cell numbering through a write/read cycle, and so do the points.
+    """
+    gmsh = file_format.startswith("gmsh")
+    sizes = mesh.cell_sizes()
+    pts3 = np.zeros((mesh.n_points, 3))
+    pts3[:, :2] = mesh.points
+    blocks: list[meshio.CellBlock] = []
+    for k in np.unique(sizes):
+        ids = np.nonzero(sizes == k)[0]
+        if gmsh and k > 4:
+            raise MeshError(
+                f"{mesh.source}: {len(ids)} cell(s) have {k} sides (e.g. cell {int(ids[0])}); the Gmsh "
+                "format holds only triangles and quads — write a .vtu file instead"
+            )
+        conn = mesh.cell_points[mesh.cell_offsets[ids][:, None] + np.arange(k)]
+        ctype = {3: "triangle", 4: "quad"}.get(int(k), "polygon")
+        blocks.append(meshio.CellBlock(ctype, conn))
+    n2d = len(blocks)
+    for p in mesh.patches:
+        blocks.append(meshio.CellBlock("line", mesh.face_points[p.start : p.stop].copy()))
+
+    if not gmsh:
+        cell_data = {}
+        for i, p in enumerate(mesh.patches):
+            cell_data[PATCH_ARRAY_PREFIX + p.name] = [
+                np.full(len(b.data), 1 if j == n2d + i else 0, dtype=np.int32) for j, b in enumerate(blocks)
+            ]
+        return meshio.Mesh(pts3, blocks, cell_data=cell_data)
+
+    domain = "domain"
+    while domain in mesh.patch_names:
+        domain += "_cells"
+    field_data = {p.name: np.array([i + 1, 1]) for i, p in enumerate(mesh.patches)}
+    field_data[domain] = np.array([1, 2])
+    # entity tags: surfaces 1..n2d, curves 1..n_patches; physical: surfaces 1, curve i+1
+    phys = [np.full(len(b.data), 1, dtype=np.int32) for b in blocks[:n2d]]
+    geo = [np.full(len(b.data), j + 1, dtype=np.int32) for j, b in enumerate(blocks[:n2d])]
+    for i, p in enumerate(mesh.patches):
+        phys.append(np.full(p.size, i + 1, dtype=np.int32))
+        geo.append(np.full(p.size, i + 1, dtype=np.int32))
+    point_data = {} if file_format == "gmsh22" else {"gmsh:dim_tags": _node_entities(mesh, n2d)}
+    return meshio.Mesh(
+        pts3,
+        blocks,
+        cell_data={"gmsh:physical": phys, "gmsh:geometrical": geo},
+        field_data=field_data,
+        point_data=point_data,
+    )
+
+
+def _node_entities(mesh: Mesh, n2d: int) -> np.ndarray:
+    """(dim, entity tag) of every node for Gmsh 4.1, in non-decreasing order of point index.
+
+    Gmsh 4.1 lists nodes entity by entity and each entity must own a node to be listed. Giving
+    entity k (curves 1..n_patches, then surfaces 1..n2d) the point k and the last one all the
+    remaining points keeps the point order through a write/read cycle. The files carry no
+    geometry, so which entity a node sits on has no further meaning.
+    """
+    ents = [(1, i + 1) for i in range(len(mesh.patches))] + [(2, j + 1) for j in range(n2d)]
+    if mesh.n_points < len(ents):
+        raise MeshError(
+            f"{mesh.source}: {mesh.n_points} points are too few for the {len(ents)} Gmsh 4.1 entities "
+            "(one per patch and cell kind); write Gmsh 2.2 (file_format='gmsh22') or .vtu instead"
+        )
+    idx = np.minimum(np.arange(mesh.n_points), len(ents) - 1)
+    return np.asarray(ents, dtype=np.int64)[idx]
+
+
+def write_mesh(mesh: Mesh, path: str | Path, file_format: str | None = None, binary: bool = False) -> None:
+    """Write ``mesh`` with its patches as named line groups, so :func:`read_mesh` gets them back.
+
+    ``file_format``: ``"gmsh"``/``"gmsh41"`` (Gmsh 4.1), ``"gmsh22"`` (Gmsh 2.2) or ``"vtu"``;
+    by default ``.msh`` gives Gmsh 4.1 and ``.vtu`` VTU. ``binary`` selects binary Gmsh files.
+    """
+    p = Path(path)
+    fmt = file_format or _SUFFIX_FORMAT.get(p.suffix.lower())
+    if fmt not in WRITE_FORMATS:
+        choices = ", ".join(f"{k!r} ({v})" for k, v in WRITE_FORMATS.items())
+        what = f"file_format {file_format!r}" if file_format else f"the suffix {p.suffix!r}"
+        raise MeshError(f"{p}: cannot write {what}; use .msh or .vtu, or file_format one of {choices}")
+    mm = to_meshio(mesh, fmt)
+    kwargs: dict = {}
+    if fmt.startswith("gmsh"):
+        kwargs["binary"] = binary
+    meshio_fmt = "gmsh" if fmt == "gmsh41" else fmt
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            meshio.write(p, mm, file_format=meshio_fmt, **kwargs)
+    except OSError as exc:
+        raise MeshError(
+            f"{p}: could not write the mesh file ({exc}); check the folder exists and is writable"
+        ) from exc

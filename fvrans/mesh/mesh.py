@@ -238,7 +238,8 @@ def build_mesh(
     # -- merge duplicate points (exact, after rounding to a tolerance of the bounding box) --
     span = float(np.ptp(pts, axis=0).max()) or 1.0
     tol = 1e-12 * span
-    keys = np.round(pts / tol).astype(np.int64) if tol > 0 else pts
+    # relative to the lower-left corner, so far-from-origin coordinates cannot overflow int64
+    keys = np.round((pts - pts.min(axis=0)) / tol).astype(np.int64)
     _, first, inverse = np.unique(keys, axis=0, return_index=True, return_inverse=True)
     inverse = inverse.ravel()
     if len(first) < len(pts):
