@@ -90,8 +90,6 @@ def from_meshio(mm: meshio.Mesh, source: str = "<meshio mesh>") -> Mesh:
     pts = np.asarray(mm.points, dtype=np.float64)
     if pts.ndim != 2 or pts.shape[1] not in (2, 3) or len(pts) == 0:
         raise MeshError(f"{source}: the file holds no usable points (array of shape {pts.shape})")
-    if pts.shape[1] == 3:
-        _check_planar(pts, source)
 
     cells: list[np.ndarray] = []
     line_blocks: list[tuple[int, np.ndarray]] = []  # (block index, (n, 2) point pairs)
@@ -126,21 +124,28 @@ def from_meshio(mm: meshio.Mesh, source: str = "<meshio mesh>") -> Mesh:
             "(triangles, quads or polygons) together with the boundary lines"
         )
 
+    if pts.shape[1] == 3:
+        used = np.unique(np.concatenate(cells + [e.ravel() for _, e in line_blocks]))
+        _check_planar(pts, used, source)
     boundary = _patches_from_meshio(mm, line_blocks, source)
     sizes = {len(c) for c in cells}
     cell_arg = np.stack(cells) if len(sizes) == 1 else cells
     return build_mesh(pts, cell_arg, boundary, source=source)
 
 
-def _check_planar(pts: np.ndarray, source: str) -> None:
-    z = pts[:, 2]
+def _check_planar(pts: np.ndarray, used: np.ndarray, source: str) -> None:
+    """The points used by cells and lines must share one z (to 1e-9 of the x-y extent)."""
+    used = used[(used >= 0) & (used < len(pts))]  # bad indices are reported by build_mesh
+    if not len(used):
+        return
+    z = pts[used, 2]
     zmin, zmax = float(z.min()), float(z.max())
-    span = float(np.ptp(pts[:, :2], axis=0).max()) or 1.0
+    span = float(np.ptp(pts[used, :2], axis=0).max()) or 1.0
     if zmax - zmin > 1e-9 * span:
-        i = int(np.argmax(np.abs(z - np.median(z))))
+        i = int(used[np.argmax(np.abs(z - np.median(z)))])
         raise MeshError(
             f"{source}: the mesh is not planar: point {i} at ({pts[i, 0]:.6g}, {pts[i, 1]:.6g}) has "
-            f"z = {z[i]:.6g} while z ranges over [{zmin:.6g}, {zmax:.6g}]; fvrans needs a 2D mesh in "
+            f"z = {pts[i, 2]:.6g} while z ranges over [{zmin:.6g}, {zmax:.6g}]; fvrans needs a 2D mesh in "
             "a plane z = constant (x-y coordinates)"
         )
 
@@ -313,7 +318,7 @@ def write_mesh(mesh: Mesh, path: str | Path, file_format: str | None = None, bin
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
             meshio.write(p, mm, file_format=meshio_fmt, **kwargs)
-    except OSError as exc:
+    except (OSError, meshio.WriteError, ValueError) as exc:
         raise MeshError(
             f"{p}: could not write the mesh file ({exc}); check the folder exists and is writable"
         ) from exc

@@ -385,3 +385,19 @@ def test_write_gmsh41_with_few_points(tmp_path: Path) -> None:
         write_mesh(m2, tmp_path / "tiny2.msh")
     write_mesh(m2, tmp_path / "tiny2.msh", "gmsh22")
     assert _patch_edges(read_mesh(tmp_path / "tiny2.msh")) == _patch_edges(m2)
+
+
+@pytest.mark.parametrize("fmt", ["gmsh22", "gmsh41"])
+def test_patch_called_domain_survives(tmp_path: Path, fmt: str) -> None:
+    # the writer names the surface group "domain" unless a patch already has that name
+    pts = np.array([[0, 0], [1, 0], [1, 1], [0, 1]], float)
+    m0 = Mesh.from_arrays(pts, [[0, 1, 2], [0, 2, 3]], {"domain": [[0, 1], [1, 2]], "x": [[2, 3], [3, 0]]})
+    f = tmp_path / "d.msh"
+    write_mesh(m0, f, fmt)
+    assert {p.name: p.size for p in read_mesh(f).patches} == {"domain": 2, "x": 2}
+
+
+def test_explicit_file_format(tmp_path: Path) -> None:
+    f = tmp_path / "rect.txt"
+    f.write_text(GMSH22_ASCII)
+    _check_rectangle(read_mesh(f, file_format="gmsh"))
