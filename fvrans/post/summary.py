@@ -1,0 +1,81 @@
+"""The run summary (``summary.json``): outcome, cost, wall forces and zero-shear points."""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from typing import Any
+
+import numpy as np
+
+from fvrans.post.residuals import HistoryLike
+from fvrans.post.wall import WallData, patch_forces, zero_shear_points
+from fvrans.post.writers import to_jsonable
+
+
+def wall_summary(
+    wall: WallData, l_ref: float = 1.0, flow_direction: tuple[float, float] = (1.0, 0.0)
+) -> dict[str, Any]:
+    """Forces, coefficients, zero-shear points and y+ range of one wall patch (plain types)."""
+    zs = zero_shear_points(wall)
+    yp = wall.y_plus
+    return {
+        "forces": patch_forces(wall, l_ref, flow_direction).as_dict(),
+        "shear_sign_change_x": [p.x for p in zs],
+        "shear_sign_change_s": [p.s for p in zs],
+        "shear_sign_change_kind": [p.kind for p in zs],
+        "faces": len(wall),
+        "y_plus_max": float(np.max(yp)) if len(yp) else None,
+        "y_plus_mean": float(np.mean(yp)) if len(yp) else None,
+    }
+
+
+def build_summary(
+    title: str,
+    converged: bool,
+    iterations: int,
+    wall_seconds: float,
+    n_cells: int,
+    history: HistoryLike | None = None,
+    walls: Mapping[str, WallData] | None = None,
+    l_ref: float = 1.0,
+    flow_direction: tuple[float, float] = (1.0, 0.0),
+    extra: Mapping[str, Any] | None = None,
+) -> dict[str, Any]:
+    """The summary as a JSON-ready dict (plain floats, ints, strings, lists; NaN/inf as None).
+
+    Keys: ``title``, ``converged``, ``iterations``, ``wall_seconds``, ``n_cells``,
+    ``final_residuals`` (name -> last value), ``reference`` (rho, mu, u_ref, p_ref, l_ref,
+    flow_direction; when walls are given), ``walls`` (patch -> :func:`wall_summary`), plus the
+    items of ``extra``.
+
+    >>> build_summary("demo", True, 12, 0.5, 100)["final_residuals"]
+    {}
+    """
+    out: dict[str, Any] = {
+        "title": str(title),
+        "converged": bool(converged),
+        "iterations": int(iterations),
+        "wall_seconds": float(wall_seconds),
+        "n_cells": int(n_cells),
+        "final_residuals": {},
+    }
+    if history is not None and len(history.rows):
+        last = history.rows[-1]
+        out["final_residuals"] = {str(n): float(v) for n, v in zip(history.names, last)}
+    if walls:
+        any_wall = next(iter(walls.values()))
+        out["reference"] = {
+            "rho": any_wall.rho,
+            "mu": any_wall.mu,
+            "u_ref": any_wall.u_ref,
+            "p_ref": any_wall.p_ref,
+            "l_ref": float(l_ref),
+            "flow_direction": [float(flow_direction[0]), float(flow_direction[1])],
+        }
+        out["walls"] = {name: wall_summary(w, l_ref, flow_direction) for name, w in walls.items()}
+    if extra:
+        clash = set(extra) & set(out)
+        if clash:
+            raise ValueError(f"extra summary key {sorted(clash)[0]!r} would overwrite a standard key")
+        out.update(extra)
+    return to_jsonable(out)
