@@ -1,0 +1,168 @@
+"""Building the mesh a case names, and checking the case against the mesh's patches."""
+
+from __future__ import annotations
+
+import importlib
+import inspect
+from collections.abc import Sequence
+from typing import TYPE_CHECKING
+
+import numpy as np
+
+from fvrans.case.schema import Case
+from fvrans.case.validate import did_you_mean, format_key
+from fvrans.errors import CaseError
+
+if TYPE_CHECKING:
+    from fvrans.mesh.mesh import Mesh
+
+GENERATOR_MODULE = "fvrans.mesh.generate"
+#: a moving wall's velocity may have a normal component up to this fraction of its magnitude
+WALL_NORMAL_TOLERANCE = 1e-4
+
+
+def check_case_against_mesh(case: Case, mesh: Mesh | Sequence[str]) -> None:
+    """Check that every mesh patch has a condition and every condition names a mesh patch.
+
+    With a :class:`~fvrans.mesh.mesh.Mesh` (rather than a list of patch names) it also checks
+    that moving walls move along themselves, that inlet profiles cover their patches and that
+    Python inlet functions give finite values there. Raises CaseError listing all problems.
+    """
+    is_mesh = hasattr(mesh, "patches")
+    names = [p.name for p in mesh.patches] if is_mesh else [str(n) for n in mesh]
+    where = f"the mesh {getattr(mesh, 'source', '')!s}".rstrip() if is_mesh else "the mesh"
+    missing = [n for n in names if n not in case.boundaries]
+    extra = [n for n in case.boundaries if n not in names]
+    problems: list[str] = []
+    if missing:
+        snippet = "\n".join(_suggest_condition(n) for n in missing)
+        problems.append(f"{where} has patch(es) with no boundary condition: "
+                        f"{', '.join(repr(n) for n in missing)}; add a table for each, for example:\n"
+                        f"{snippet}")
+    for n in extra:
+        problems.append(f"{format_key(('boundary', n))} names a patch {where} does not have"
+                        f"{did_you_mean(n, missing or names)}; its patches are: "
+                        f"{', '.join(repr(x) for x in names) or 'none'}")
+    if problems:
+        raise CaseError(f"{case.label}: " + "\n".join(problems).rstrip())
+    if is_mesh:
+        _check_values_on_mesh(case, mesh)
+
+
+def _suggest_condition(name: str) -> str:
+    """A table for patch ``name`` (kind guessed from the name), indented, for error messages."""
+    low = name.lower()
+    if "inlet" in low or "inflow" in low:
+        body = 'kind = "velocity-inlet"\nvelocity = [1.0, 0.0]   # the inflow velocity'
+    elif "outlet" in low or "outflow" in low or "exit" in low:
+        body = 'kind = "pressure-outlet"\npressure = 0.0'
+    elif "sym" in low:
+        body = 'kind = "symmetry"'
+    elif "far" in low or "free" in low:
+        body = 'kind = "freestream"\nvelocity = [1.0, 0.0]   # the free-stream velocity'
+    else:
+        body = 'kind = "wall"   # or: velocity-inlet, pressure-outlet, symmetry, freestream'
+    lines = [f"[{format_key(('boundary', name))}]", *body.splitlines()]
+    return "".join(f"  {line}\n" for line in lines)
+
+
+def _check_values_on_mesh(case: Case, mesh: Mesh) -> None:
+    for p in mesh.patches:
+        spec = case.boundaries[p.name]
+        label = f"{case.label}: {format_key(('boundary', p.name))}"
+        fp = mesh.face_points[p.start : p.stop]
+        a, b = mesh.points[fp[:, 0]], mesh.points[fp[:, 1]]
+        if spec.kind == "wall" and spec.velocity is not None and not callable(spec.velocity):
+            u = np.asarray(spec.velocity, dtype=np.float64)
+            speed = float(np.hypot(*u))
+            if speed > 0:
+                d = b - a
+                length = np.hypot(d[:, 0], d[:, 1])
+                un = (u[0] * d[:, 1] - u[1] * d[:, 0]) / length  # u . n with n = (dy, -dx) / |d|
+                bad = np.abs(un) > WALL_NORMAL_TOLERANCE * speed
+                if np.any(bad):
+                    i = int(np.argmax(np.abs(un)))
+                    c = 0.5 * (a[i] + b[i])
+                    raise CaseError(
+                        f"{label}.velocity: the wall velocity {list(map(float, u))} crosses the wall: "
+                        f"{int(bad.sum())} of {len(un)} faces have a normal component (up to {abs(un[i]):.4g}"
+                        f" at ({c[0]:.6g}, {c[1]:.6g})); a wall can only move along itself — give a "
+                        "velocity tangential to the wall, or use kind = \"velocity-inlet\" for flow "
+                        "through it"
+                    )
+        if spec.kind == "velocity-inlet":
+            # the profile range must cover the face end points; functions are tried on face centres
+            if spec.profile is not None:
+                pts = np.concatenate([a, b])
+                spec.velocity_at(pts[:, 0], pts[:, 1], label)
+                spec.nut_ratio_at(pts[:, 0], pts[:, 1], label)
+            elif callable(spec.velocity):
+                c = 0.5 * (a + b)
+                spec.velocity_at(c[:, 0], c[:, 1], label)
+
+
+def generator_names() -> list[str]:
+    """Names of the mesh generators: public functions of ``fvrans.mesh.generate`` whose return
+    annotation is ``Mesh`` (all public functions if none is annotated)."""
+    mod = importlib.import_module(GENERATOR_MODULE)
+    names = getattr(mod, "__all__", None) or [n for n in vars(mod) if not n.startswith("_")]
+    funcs = {n: getattr(mod, n, None) for n in names}
+    funcs = {n: f for n, f in funcs.items() if inspect.isfunction(f)}
+    gens = [n for n, f in funcs.items() if _returns_mesh(f)]
+    return sorted(gens or funcs)
+
+
+def _returns_mesh(func) -> bool:
+    ann = getattr(func, "__annotations__", {}).get("return")
+    name = ann if isinstance(ann, str) else getattr(ann, "__name__", "")
+    return name.rsplit(".", 1)[-1] == "Mesh"
+
+
+def _generate(case: Case) -> Mesh:
+    name = case.mesh.generator
+    assert name is not None
+    key = f"{case.label}: mesh.generator"
+    try:
+        mod = importlib.import_module(GENERATOR_MODULE)
+    except ImportError as exc:
+        raise CaseError(f"{key}: mesh generators are not available ({GENERATOR_MODULE} could not be "
+                        f"imported: {exc}); use mesh.file instead") from exc
+    names = generator_names()
+    func = getattr(mod, name, None) if name in names else None
+    if func is None:
+        raise CaseError(f"{key}: no mesh generator named {name!r}{did_you_mean(name, names)}; "
+                        f"available: {', '.join(repr(n) for n in names) or 'none'}")
+    params = dict(case.mesh.parameters)
+    try:
+        sig = inspect.signature(func)
+        sig.bind(**params)
+    except TypeError as exc:
+        accepted = [p.name for p in sig.parameters.values()
+                    if p.kind in (p.POSITIONAL_OR_KEYWORD, p.KEYWORD_ONLY)]
+        raise CaseError(f"{case.label}: mesh.parameters: {exc} (generator {name!r} takes: "
+                        f"{', '.join(accepted) or 'no parameters'})") from None
+    except ValueError:  # no signature available
+        pass
+    mesh = func(**params)
+    if not hasattr(mesh, "patches"):
+        raise CaseError(f"{key}: generator {name!r} returned {type(mesh).__name__}, not a Mesh")
+    return mesh
+
+
+def build_case_mesh(case: Case, check: bool = True) -> Mesh:
+    """Read or generate the case's mesh, renumber its cells if asked (reverse Cuthill-McKee,
+    :func:`fvrans.mesh.renumber.renumber_cells`) and, by default, check the case against it with
+    :func:`check_case_against_mesh`."""
+    if case.mesh.file is not None:
+        from fvrans.mesh.io import read_mesh
+
+        mesh = read_mesh(case.mesh.file)
+    else:
+        mesh = _generate(case)
+    if case.mesh.renumber:
+        from fvrans.mesh.renumber import renumber_cells
+
+        mesh, _ = renumber_cells(mesh)
+    if check:
+        check_case_against_mesh(case, mesh)
+    return mesh

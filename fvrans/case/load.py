@@ -1,0 +1,122 @@
+"""Reading case files (TOML) and applying ``key=value`` overrides."""
+
+from __future__ import annotations
+
+import re
+import sys
+from collections.abc import Sequence
+from pathlib import Path
+from typing import Any
+
+from fvrans.case.schema import Case
+from fvrans.case.validate import case_from_dict, format_key, parse_dotted_key
+from fvrans.errors import CaseError
+
+if sys.version_info >= (3, 11):
+    import tomllib
+else:  # pragma: no cover
+    import tomli as tomllib
+
+_POSITION = re.compile(r"line (\d+), column (\d+)")
+
+
+def read_toml(path: str | Path) -> dict[str, Any]:
+    """Parse a TOML file; syntax errors become CaseError with the file, line and column."""
+    p = Path(path)
+    if not p.exists():
+        raise CaseError(f"{p}: case file not found (looked for {p.absolute()}); check the path")
+    if p.is_dir():
+        raise CaseError(f"{p}: is a directory; give the case file (.toml) itself")
+    try:
+        text = p.read_text(encoding="utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise CaseError(f"{p}: not UTF-8 text (byte {exc.start}); save the case file as UTF-8") from None
+    except OSError as exc:
+        raise CaseError(f"{p}: cannot read the case file ({exc.strerror or exc})") from None
+    try:
+        return tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        msg = str(exc)
+        detail = ""
+        m = _POSITION.search(msg)
+        if m:
+            lineno, col = int(m.group(1)), int(m.group(2))
+            lines = text.splitlines()
+            if 1 <= lineno <= len(lines):
+                detail = f"\n  {lineno:>4} | {lines[lineno - 1]}\n         {' ' * (col - 1)}^"
+        hint = ""
+        if msg.startswith("Invalid value"):
+            hint = ('\n(strings need quotes, e.g. kind = "wall"; lists are written [1.0, 0.0]; '
+                    "true/false are lower case)")
+        elif "overwrite" in msg or "declare" in msg.lower():
+            hint = "\n(a key or table is given twice; keep one of them)"
+        raise CaseError(f"{p}: not valid TOML: {msg}{detail}{hint}") from None
+
+
+def load_case(path: str | Path) -> Case:
+    """Read and validate a case file; relative paths in it start from its directory.
+
+    Raises CaseError naming the file, the dotted key and what would fix it.
+    """
+    return case_from_dict(read_toml(path), source=Path(path))
+
+
+def parse_override(item: str, label: str = "<in memory>") -> tuple[str, Any]:
+    """Split ``"dotted.key=value"``; the value is read as TOML, and a bare word that is not
+    valid TOML is taken as a string.
+
+    >>> parse_override("solver.max_iterations=100")
+    ('solver.max_iterations', 100)
+    >>> parse_override("boundary.lid.velocity=[2.0, 0.0]")
+    ('boundary.lid.velocity', [2.0, 0.0])
+    >>> parse_override("model.turbulence=spalart-allmaras")
+    ('model.turbulence', 'spalart-allmaras')
+    """
+    if not isinstance(item, str) or "=" not in item:
+        raise CaseError(f"{label}: override {item!r} must look like key=value, "
+                        "e.g. solver.max_iterations=100")
+    # the first '=' that ends a valid key (a quoted key may itself contain '=')
+    for i, ch in enumerate(item):
+        if ch != "=":
+            continue
+        try:
+            path = parse_dotted_key(item[:i], label)
+        except CaseError:
+            continue
+        break
+    else:
+        raise CaseError(f"{label}: override {item!r}: {item.split('=', 1)[0].strip()!r} is not a valid "
+                        'dotted key; write e.g. solver.relax_velocity=0.5 or boundary."patch name".kind=wall')
+    text = item[i + 1 :].strip()
+    key = format_key(path)
+    if not text:
+        raise CaseError(f"{label}: override {item!r} has no value after '='; write {key}=<value>")
+    try:
+        value = tomllib.loads(f"v = {text}")["v"]
+    except tomllib.TOMLDecodeError as exc:
+        if text[0] in "[{\"'":
+            raise CaseError(f"{label}: override {item!r}: the value is not valid TOML ({exc}); "
+                            'write lists as [2.0, 0.0], tables as { n = 64 }, strings as "text"') from None
+        value = text
+    return key, value
+
+
+def apply_overrides(case: Case, overrides: Sequence[str]) -> Case:
+    """A new case with ``key=value`` overrides applied (and validated) together.
+
+    >>> from fvrans.case import case_from_dict
+    >>> c = case_from_dict({"mesh": {"generator": "cavity"},
+    ...                     "fluid": {"density": 1.0, "viscosity": 0.01},
+    ...                     "boundary": {"walls": {"kind": "wall"}}})
+    >>> c2 = apply_overrides(c, ["solver.max_iterations=100", "model.turbulence=spalart-allmaras"])
+    >>> c2.solver.max_iterations, c2.model.turbulence
+    (100, 'spalart-allmaras')
+    """
+    if isinstance(overrides, str):
+        overrides = [overrides]
+    changes = dict(parse_override(o, case.label) for o in overrides)
+    try:
+        return case.replace(changes)
+    except CaseError as exc:
+        given = ", ".join(repr(o) for o in overrides)
+        raise CaseError(f"{exc}\n(after applying the override(s) {given})") from None

@@ -1,0 +1,329 @@
+"""The resolved case settings: frozen dataclasses with every default filled in.
+
+Build them with :func:`fvrans.case.load_case` or :func:`fvrans.case.case_from_dict`, which
+validate the input; constructing the dataclasses directly skips validation. Change a setting
+with :meth:`Case.set` / :meth:`Case.replace`, which return a new, validated case.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+# -- allowed values ------------------------------------------------------------------------
+TURBULENCE_MODELS = ("none", "spalart-allmaras")
+SA_VARIANTS = ("standard", "no-ft2")
+BOUNDARY_KINDS = ("wall", "velocity-inlet", "pressure-outlet", "symmetry", "freestream")
+COUPLINGS = ("simple", "simplec")
+CONVECTION_SCHEMES = ("upwind", "linear-upwind")
+GRADIENT_METHODS = ("least-squares", "green-gauss")
+LIMITERS = ("none", "venkatakrishnan", "barth-jespersen")
+
+#: keys each boundary kind takes (besides none else)
+BOUNDARY_KEYS: dict[str, tuple[str, ...]] = {
+    "wall": ("kind", "velocity"),
+    "velocity-inlet": ("kind", "velocity", "profile", "profile_columns", "nut_ratio"),
+    "pressure-outlet": ("kind", "pressure"),
+    "symmetry": ("kind",),
+    "freestream": ("kind", "velocity", "pressure", "nut_ratio"),
+}
+PROFILE_COLUMN_KEYS = ("coordinate", "u", "v", "nut_ratio")
+#: column names used when ``profile_columns`` does not name them
+DEFAULT_PROFILE_COLUMNS = {"coordinate": "y", "u": "u", "v": "v", "nut_ratio": "nut_ratio"}
+#: default under-relaxation of the pressure correction for each coupling
+DEFAULT_RELAX_PRESSURE = {"simple": 0.3, "simplec": 1.0}
+#: text standing for a Python function in :meth:`Case.to_dict`
+CALLABLE_TEXT = "<python callable>"
+
+VelocityFunction = Callable[[np.ndarray, np.ndarray], Any]
+Velocity = tuple[float, float] | VelocityFunction
+
+
+@dataclass(frozen=True)
+class MeshSettings:
+    """Where the mesh comes from: a file (absolute path) or a generator in ``fvrans.mesh.generate``."""
+
+    file: Path | None = None
+    generator: str | None = None
+    parameters: dict[str, Any] = field(default_factory=dict)
+    renumber: bool = False
+
+
+@dataclass(frozen=True)
+class Fluid:
+    """Constant fluid properties: density rho and dynamic viscosity mu."""
+
+    density: float
+    viscosity: float
+
+    @property
+    def kinematic_viscosity(self) -> float:
+        """nu = mu / rho."""
+        return self.viscosity / self.density
+
+
+@dataclass(frozen=True)
+class ModelSettings:
+    turbulence: str = "none"
+    sa_variant: str = "standard"
+
+
+@dataclass(frozen=True)
+class InitialState:
+    velocity: tuple[float, float] = (0.0, 0.0)
+    pressure: float = 0.0
+    nut_ratio: float = 3.0
+
+
+@dataclass(frozen=True)
+class BoundarySpec:
+    """The condition on one patch. Keys a kind does not use are ``None``.
+
+    ``velocity`` is ``(u, v)`` or, for a velocity inlet built in Python, a function
+    ``f(x, y) -> (u, v)`` of face-centre coordinates. ``profile`` is the absolute path of a CSV
+    inlet profile and ``profile_columns`` maps ``coordinate``, ``u``, ``v`` (and ``nut_ratio``
+    when the file has that column) to column names. ``nut_ratio`` is None when the profile
+    supplies it.
+    """
+
+    kind: str
+    velocity: Velocity | None = None
+    pressure: float | None = None
+    nut_ratio: float | None = None
+    profile: Path | None = None
+    profile_columns: dict[str, str] | None = None
+
+    def velocity_at(self, x, y, label: str = "<in memory>: boundary") -> tuple[np.ndarray, np.ndarray]:
+        """Velocity components at points ``(x, y)`` (face centres), as float arrays of x's shape.
+
+        Profiles are interpolated linearly along their coordinate; a point beyond the table by
+        more than :data:`fvrans.case.profile.RANGE_TOLERANCE` of its span raises CaseError.
+        """
+        from fvrans.case.profile import evaluate_velocity
+
+        return evaluate_velocity(self, np.asarray(x, float), np.asarray(y, float), label)
+
+    def nut_ratio_at(self, x, y, label: str = "<in memory>: boundary") -> np.ndarray:
+        """Inflow ratio nu_tilde / nu at points ``(x, y)`` (constant, or from the profile file)."""
+        from fvrans.case.profile import evaluate_nut_ratio
+
+        return evaluate_nut_ratio(self, np.asarray(x, float), np.asarray(y, float), label)
+
+
+@dataclass(frozen=True)
+class SolverSettings:
+    """Pressure-velocity coupling, discretisation and linear-solver settings.
+
+    ``relax_pressure=None`` takes the default of the coupling (:data:`DEFAULT_RELAX_PRESSURE`).
+    """
+
+    coupling: str = "simplec"
+    max_iterations: int = 5000
+    tolerance: float = 1e-6
+    relax_velocity: float = 0.7
+    relax_pressure: float | None = None
+    relax_turbulence: float = 0.8
+    convection: str = "linear-upwind"
+    turbulence_convection: str = "upwind"
+    gradient: str = "least-squares"
+    limiter: str = "none"
+    pressure_tolerance: float = 0.01
+    momentum_tolerance: float = 0.1
+    momentum_sweeps: int = 5
+    amg_rebuild_every: int = 20
+    divergence_factor: float = 1e5
+    checkpoint_every: int = 0
+
+    def __post_init__(self) -> None:
+        if self.relax_pressure is None:
+            object.__setattr__(self, "relax_pressure", DEFAULT_RELAX_PRESSURE.get(self.coupling, 1.0))
+
+
+@dataclass(frozen=True)
+class OutputSettings:
+    """Reference values for coefficients and which patches get wall quantities."""
+
+    wall_patches: tuple[str, ...] = ()
+    reference_velocity: float = 1.0
+    reference_pressure: float = 0.0
+    reference_length: float = 1.0
+    write_fields: bool = True
+
+
+@dataclass(frozen=True)
+class Case:
+    """A complete, validated case. ``source`` is the case file (None for one built in memory).
+
+    Two cases are equal when their settings are equal, wherever they came from. ``raw`` keeps
+    the settings as given (before defaults), so that :meth:`set` re-derives defaults that
+    depend on the changed value (e.g. ``solver.relax_pressure`` on ``solver.coupling``).
+    """
+
+    source: Path | None = field(compare=False)
+    title: str
+    description: str
+    mesh: MeshSettings
+    fluid: Fluid
+    model: ModelSettings
+    initial: InitialState
+    boundaries: dict[str, BoundarySpec]
+    solver: SolverSettings
+    output: OutputSettings
+    raw: dict[str, Any] | None = field(default=None, compare=False, repr=False)
+
+    @property
+    def label(self) -> str:
+        """The case file name for messages, or ``"<in memory>"``."""
+        return str(self.source) if self.source is not None else "<in memory>"
+
+    @property
+    def turbulent(self) -> bool:
+        return self.model.turbulence != "none"
+
+    # -- export ----------------------------------------------------------------------------
+    def to_dict(self) -> dict[str, Any]:
+        """All settings with defaults filled in, as plain TOML-serialisable data.
+
+        Paths are absolute; a Python velocity function appears as ``"<python callable>"``.
+        """
+        return _case_data(self, keep_callables=False)
+
+    def to_toml(self) -> str:
+        """:meth:`to_dict` written as TOML text (a case file that loads back to this case)."""
+        from fvrans.case.tomlwrite import dumps
+
+        return dumps(self.to_dict())
+
+    # -- changes ---------------------------------------------------------------------------
+    def set(self, key: str, value: Any) -> Case:
+        """A new validated case with the dotted ``key`` set to ``value`` (``None`` removes it).
+
+        >>> from fvrans.case import case_from_dict
+        >>> c = case_from_dict({"mesh": {"generator": "cavity"},
+        ...                     "fluid": {"density": 1.0, "viscosity": 0.01},
+        ...                     "boundary": {"walls": {"kind": "wall"}}})
+        >>> c.set("solver.relax_velocity", 0.5).solver.relax_velocity
+        0.5
+        """
+        return self.replace({key: value})
+
+    def replace(self, changes: Mapping[str, Any]) -> Case:
+        """A new validated case with several dotted keys changed at once (validated together).
+
+        A value ``None`` removes the key (its default applies again); a table value replaces
+        the whole table, e.g. ``{"boundary.inlet": {"kind": "pressure-outlet"}}``. Inlet
+        velocities may be Python functions ``f(x, y) -> (u, v)``.
+        """
+        from fvrans.case.validate import apply_changes, case_from_dict
+
+        data = copy_data(self.raw) if self.raw is not None else _case_data(self, keep_callables=True)
+        apply_changes(data, changes, self.label)
+        return case_from_dict(data, self.source)
+
+    # -- boundary values -------------------------------------------------------------------
+    def boundary_velocity(self, patch: str, x, y) -> tuple[np.ndarray, np.ndarray]:
+        """Velocity prescribed on ``patch`` at points ``(x, y)`` (see :meth:`BoundarySpec.velocity_at`)."""
+        return self._boundary(patch).velocity_at(x, y, self._boundary_label(patch))
+
+    def boundary_nut_ratio(self, patch: str, x, y) -> np.ndarray:
+        """Inflow nu_tilde / nu on ``patch`` at points ``(x, y)``."""
+        return self._boundary(patch).nut_ratio_at(x, y, self._boundary_label(patch))
+
+    def _boundary(self, patch: str) -> BoundarySpec:
+        from fvrans.case.validate import unknown_patch_error
+
+        if patch not in self.boundaries:
+            raise unknown_patch_error(self, patch)
+        return self.boundaries[patch]
+
+    def _boundary_label(self, patch: str) -> str:
+        from fvrans.case.validate import format_key
+
+        return f"{self.label}: {format_key(('boundary', patch))}"
+
+
+# ------------------------------------------------------------------------------------------
+def copy_data(x: Any) -> Any:
+    """Copy nested tables and lists; leave other objects (numbers, functions, arrays) shared."""
+    if isinstance(x, Mapping):
+        return {k: copy_data(v) for k, v in x.items()}
+    if isinstance(x, list):
+        return [copy_data(v) for v in x]
+    return x
+
+
+def _vec(v) -> list[float]:
+    return [float(v[0]), float(v[1])]
+
+
+def boundary_data(b: BoundarySpec, keep_callables: bool = False) -> dict[str, Any]:
+    """One boundary condition as plain data (None fields left out)."""
+    out: dict[str, Any] = {"kind": b.kind}
+    if b.velocity is not None:
+        if callable(b.velocity):
+            out["velocity"] = b.velocity if keep_callables else CALLABLE_TEXT
+        else:
+            out["velocity"] = _vec(b.velocity)
+    if b.profile is not None:
+        out["profile"] = str(b.profile)
+    if b.profile_columns is not None:
+        out["profile_columns"] = dict(b.profile_columns)
+    if b.pressure is not None:
+        out["pressure"] = float(b.pressure)
+    if b.nut_ratio is not None:
+        out["nut_ratio"] = float(b.nut_ratio)
+    return out
+
+
+def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
+    m = case.mesh
+    mesh: dict[str, Any] = {}
+    if m.file is not None:
+        mesh["file"] = str(m.file)
+    if m.generator is not None:
+        mesh["generator"] = m.generator
+        mesh["parameters"] = copy_data(m.parameters)
+    mesh["renumber"] = bool(m.renumber)
+    s = case.solver
+    return {
+        "title": case.title,
+        "description": case.description,
+        "mesh": mesh,
+        "fluid": {"density": case.fluid.density, "viscosity": case.fluid.viscosity},
+        "model": {"turbulence": case.model.turbulence, "sa_variant": case.model.sa_variant},
+        "initial": {
+            "velocity": _vec(case.initial.velocity),
+            "pressure": case.initial.pressure,
+            "nut_ratio": case.initial.nut_ratio,
+        },
+        "boundary": {name: boundary_data(b, keep_callables) for name, b in case.boundaries.items()},
+        "solver": {
+            "coupling": s.coupling,
+            "max_iterations": s.max_iterations,
+            "tolerance": s.tolerance,
+            "relax_velocity": s.relax_velocity,
+            "relax_pressure": s.relax_pressure,
+            "relax_turbulence": s.relax_turbulence,
+            "convection": s.convection,
+            "turbulence_convection": s.turbulence_convection,
+            "gradient": s.gradient,
+            "limiter": s.limiter,
+            "pressure_tolerance": s.pressure_tolerance,
+            "momentum_tolerance": s.momentum_tolerance,
+            "momentum_sweeps": s.momentum_sweeps,
+            "amg_rebuild_every": s.amg_rebuild_every,
+            "divergence_factor": s.divergence_factor,
+            "checkpoint_every": s.checkpoint_every,
+        },
+        "output": {
+            "wall_patches": list(case.output.wall_patches),
+            "reference_velocity": case.output.reference_velocity,
+            "reference_pressure": case.output.reference_pressure,
+            "reference_length": case.output.reference_length,
+            "write_fields": case.output.write_fields,
+        },
+    }

@@ -1,0 +1,562 @@
+"""Validation of case settings given as nested data (parsed TOML or Python dicts).
+
+Every problem raises :class:`fvrans.errors.CaseError` whose message starts with the case file
+(or ``<in memory>``) and the full dotted key, says what is wrong and what would fix it.
+"""
+
+from __future__ import annotations
+
+import difflib
+import json
+import math
+import numbers
+import os
+import re
+import sys
+from collections.abc import Callable, Mapping, Sequence
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from fvrans.case import schema as S
+from fvrans.errors import CaseError
+
+if sys.version_info >= (3, 11):
+    import tomllib
+else:  # pragma: no cover
+    import tomli as tomllib
+
+_REQUIRED = object()
+_BARE_KEY = re.compile(r"^[A-Za-z0-9_-]+$")
+
+#: keys of each table; ``None`` marks the table of boundary tables
+TABLE_KEYS: dict[str, tuple[str, ...]] = {
+    "mesh": ("file", "generator", "parameters", "renumber"),
+    "fluid": ("density", "viscosity"),
+    "model": ("turbulence", "sa_variant"),
+    "initial": ("velocity", "pressure", "nut_ratio"),
+    "solver": (
+        "coupling", "max_iterations", "tolerance", "relax_velocity", "relax_pressure",
+        "relax_turbulence", "convection", "turbulence_convection", "gradient", "limiter",
+        "pressure_tolerance", "momentum_tolerance", "momentum_sweeps", "amg_rebuild_every",
+        "divergence_factor", "checkpoint_every",
+    ),
+    "output": (
+        "wall_patches", "reference_velocity", "reference_pressure", "reference_length", "write_fields",
+    ),
+}
+TOP_KEYS = ("title", "description", "mesh", "fluid", "model", "initial", "boundary", "solver", "output")
+
+Rule = tuple[Callable[[float], bool], str]
+POSITIVE: Rule = (lambda v: v > 0, "> 0")
+NON_NEGATIVE: Rule = (lambda v: v >= 0, ">= 0")
+UNIT: Rule = (lambda v: 0 < v <= 1, "in (0, 1]")
+OPEN_UNIT: Rule = (lambda v: 0 < v < 1, "in (0, 1)")
+ABOVE_ONE: Rule = (lambda v: v > 1, "> 1")
+AT_LEAST_ONE: Rule = (lambda v: v >= 1, ">= 1")
+
+
+# ------------------------------------------------------------------------------------------
+# message helpers
+# ------------------------------------------------------------------------------------------
+def format_key(path: Sequence[str]) -> str:
+    """Dotted key as written in TOML, quoting parts that are not bare keys.
+
+    >>> format_key(("boundary", "inlet", "velocity"))
+    'boundary.inlet.velocity'
+    >>> format_key(("boundary", "outer wall", "kind"))
+    'boundary."outer wall".kind'
+    """
+    return ".".join(p if _BARE_KEY.match(p) else json.dumps(p, ensure_ascii=False) for p in path)
+
+
+def _short(text: str, n: int = 60) -> str:
+    return text if len(text) <= n else text[: n - 3] + "..."
+
+
+def describe(value: Any) -> str:
+    """Type and value for 'got ...' messages.
+
+    >>> describe("abc"), describe(True), describe(3), describe([1, 2, 3])
+    ("str 'abc'", 'bool true', 'int 3', 'list [1, 2, 3]')
+    """
+    if isinstance(value, bool) or isinstance(value, np.bool_):
+        return f"bool {'true' if value else 'false'}"
+    if isinstance(value, str):
+        return f"str {_short(repr(value))}"
+    if isinstance(value, numbers.Integral):
+        return f"int {int(value)}"
+    if isinstance(value, numbers.Real):
+        return f"float {float(value)!r}"
+    if isinstance(value, Mapping):
+        return f"table {_short(repr(dict(value)))}"
+    if isinstance(value, np.ndarray):
+        return f"array {_short(repr(value.tolist()))}"
+    if isinstance(value, (list, tuple)):
+        return f"list {_short(repr(list(value)))}"
+    if callable(value):
+        return "a Python callable"
+    return f"{type(value).__name__} {_short(repr(value))}"
+
+
+def did_you_mean(word: str, choices: Sequence[str]) -> str:
+    """`` (did you mean 'x'?)`` for the closest choice, or ``""``."""
+    close = difflib.get_close_matches(word, list(choices), n=1, cutoff=0.6)
+    if not close:
+        close = difflib.get_close_matches(word.lower().replace("_", "-"), list(choices), n=1, cutoff=0.6)
+    return f" (did you mean {close[0]!r}?)" if close else ""
+
+
+def _quoted_list(items: Sequence[str]) -> str:
+    return ", ".join(repr(i) for i in items)
+
+
+class _Ctx:
+    """Error factory for one case: the label of the file and the base directory of relative paths."""
+
+    def __init__(self, label: str, base: Path):
+        self.label = label
+        self.base = base
+
+    def error(self, path: Sequence[str], msg: str) -> CaseError:
+        where = f"{format_key(path)}: " if path else ""
+        return CaseError(f"{self.label}: {where}{msg}")
+
+
+# ------------------------------------------------------------------------------------------
+# a table reader
+# ------------------------------------------------------------------------------------------
+class _Table:
+    """Reads the keys of one table, checking names, types and ranges."""
+
+    def __init__(self, ctx: _Ctx, path: tuple[str, ...], data: Any, allowed: Sequence[str], takes: str):
+        self.ctx = ctx
+        self.path = path
+        if not isinstance(data, Mapping):
+            what = f"[{format_key(path)}]" if path else "the case"
+            raise ctx.error(path, f"must be a table ({what} with keys such as {', '.join(allowed[:3])}), "
+                            f"got {describe(data)}")
+        for k in data:
+            if not isinstance(k, str):
+                raise ctx.error(path, f"keys must be strings, got {describe(k)}")
+        self.data = data
+        for k in data:
+            if k not in allowed:
+                raise ctx.error(
+                    path + (k,),
+                    f"unknown key{did_you_mean(k, allowed)}; {takes} takes: {', '.join(allowed)}",
+                )
+
+    def has(self, key: str) -> bool:
+        return key in self.data
+
+    def fail(self, key: str, msg: str) -> CaseError:
+        return self.ctx.error(self.path + (key,), msg)
+
+    def _get(self, key: str, default: Any, hint: str, what: str = "key") -> Any:
+        if key in self.data:
+            return self.data[key]
+        if default is _REQUIRED:
+            raise self.fail(key, f"missing required {what}; {hint}")
+        return default
+
+    def number(self, key: str, default: Any = _REQUIRED, rule: Rule | None = None, meaning: str = "",
+               hint: str = "") -> float:
+        v = self._get(key, default, hint)
+        return check_number(v, lambda m: self.fail(key, m), rule, meaning)
+
+    def integer(self, key: str, default: Any = _REQUIRED, rule: Rule | None = None, meaning: str = "") -> int:
+        v = self._get(key, default, "")
+        return check_integer(v, lambda m: self.fail(key, m), rule, meaning)
+
+    def boolean(self, key: str, default: Any = _REQUIRED) -> bool:
+        v = self._get(key, default, "")
+        if isinstance(v, (bool, np.bool_)):
+            return bool(v)
+        if isinstance(v, str) and v.lower() in ("true", "false"):
+            raise self.fail(key, f"must be true or false without quotes, got {describe(v)}")
+        raise self.fail(key, f"must be true or false, got {describe(v)}")
+
+    def string(self, key: str, default: Any = _REQUIRED, hint: str = "") -> str:
+        v = self._get(key, default, hint)
+        if not isinstance(v, str):
+            raise self.fail(key, f"must be a string (in quotes), got {describe(v)}")
+        return v
+
+    def choice(self, key: str, allowed: Sequence[str], default: Any = _REQUIRED) -> str:
+        v = self._get(key, default, f"add {key} = one of {_quoted_list(allowed)}")
+        fail = self.fail
+        if not isinstance(v, str):
+            raise fail(key, f"must be one of {_quoted_list(allowed)} (a quoted string), got {describe(v)}")
+        if v not in allowed:
+            raise fail(key, f"{v!r} is not allowed{did_you_mean(v, allowed)}; "
+                       f"use one of {_quoted_list(allowed)}")
+        return v
+
+    def vector(self, key: str, default: Any = _REQUIRED, hint: str = "") -> tuple[float, float]:
+        v = self._get(key, default, hint)
+        return check_vector(v, lambda m: self.fail(key, m))
+
+    def table(self, key: str, default: Any = _REQUIRED, hint: str = "") -> Any:
+        v = self._get(key, default, hint, "table")
+        if not isinstance(v, Mapping):
+            raise self.fail(key, f"must be a table, got {describe(v)}")
+        return v
+
+
+def check_number(
+    v: Any, fail: Callable[[str], CaseError], rule: Rule | None = None, meaning: str = ""
+) -> float:
+    """A finite float (int accepted, bool refused), optionally satisfying ``rule``."""
+    need = f"a number {rule[1]}" if rule else "a number"
+    if isinstance(v, (bool, np.bool_)):
+        raise fail(f"must be {need}, got {describe(v)} (true/false is not a number)")
+    if not isinstance(v, numbers.Real):
+        extra = ""
+        if isinstance(v, str):
+            try:
+                float(v)
+                extra = " (remove the quotes)"
+            except ValueError:
+                pass
+        raise fail(f"must be {need}, got {describe(v)}{extra}")
+    x = float(v)
+    if not math.isfinite(x):
+        raise fail(f"must be a finite number, got {x!r}")
+    if rule and not rule[0](x):
+        what = f" ({meaning})" if meaning else ""
+        raise fail(f"must be {rule[1]}{what}, got {x!r}; give a value {rule[1]}")
+    return x
+
+
+def check_integer(
+    v: Any, fail: Callable[[str], CaseError], rule: Rule | None = None, meaning: str = ""
+) -> int:
+    """An int (a float with an integral value accepted), optionally satisfying ``rule``."""
+    need = f"an integer {rule[1]}" if rule else "an integer"
+    if isinstance(v, (bool, np.bool_)):
+        raise fail(f"must be {need}, got {describe(v)} (true/false is not a number)")
+    if isinstance(v, numbers.Integral):
+        n = int(v)
+    elif isinstance(v, numbers.Real) and math.isfinite(float(v)) and float(v).is_integer():
+        n = int(float(v))
+    else:
+        raise fail(f"must be {need}, got {describe(v)}")
+    if rule and not rule[0](n):
+        what = f" ({meaning})" if meaning else ""
+        raise fail(f"must be {rule[1]}{what}, got {n}; give an integer {rule[1]}")
+    return n
+
+
+def check_vector(v: Any, fail: Callable[[str], CaseError]) -> tuple[float, float]:
+    """Two finite numbers ``[u, v]``."""
+    if isinstance(v, np.ndarray):
+        v = v.tolist()
+    need = "must be a list of 2 numbers [x component, y component]"
+    if not isinstance(v, (list, tuple)):
+        extra = " (Python functions are accepted for velocity-inlet velocities only)" if callable(v) else ""
+        raise fail(f"{need}, got {describe(v)}{extra}")
+    if len(v) != 2:
+        raise fail(f"{need}, got {len(v)} item(s): {describe(v)}")
+    out = []
+    for i, c in enumerate(v):
+        out.append(check_number(c, lambda m, i=i: fail(f"item {i + 1} {m}")))
+    return (out[0], out[1])
+
+
+def _check_path(ctx: _Ctx, path: tuple[str, ...], v: Any, what: str) -> Path:
+    if isinstance(v, os.PathLike):
+        v = os.fspath(v)
+    if not isinstance(v, str) or not v.strip():
+        raise ctx.error(path, f"must be a file path (a quoted string), got {describe(v)}")
+    p = Path(v).expanduser()
+    full = (p if p.is_absolute() else ctx.base / p).resolve()
+    if not full.exists():
+        rel = "" if p.is_absolute() else f" (relative paths start from {ctx.base})"
+        raise ctx.error(path, f"the {what} {full} does not exist{rel}; correct the path")
+    if full.is_dir():
+        raise ctx.error(path, f"{full} is a directory; give the {what} itself")
+    return full
+
+
+# ------------------------------------------------------------------------------------------
+# the case
+# ------------------------------------------------------------------------------------------
+def case_from_dict(data: Mapping[str, Any], source: str | Path | None = None) -> S.Case:
+    """Validate nested settings (as parsed from a case file) and build a :class:`Case`.
+
+    Relative paths start from the directory of ``source`` (the case file), or from the
+    current directory when ``source`` is None. Inlet velocities may be Python functions
+    ``f(x, y) -> (u, v)``. Raises CaseError naming the file, the dotted key and the fix.
+    """
+    src = Path(source) if source is not None else None
+    ctx = _Ctx(str(src) if src is not None else "<in memory>",
+               src.absolute().parent if src is not None else Path.cwd())
+    top = _Table(ctx, (), data, TOP_KEYS, "the top level of a case")
+    title = top.string("title", "")
+    description = top.string("description", "")
+
+    mesh = _mesh(ctx, top.table("mesh", hint=(
+        'add a [mesh] table with file = "path/to/mesh.msh" (relative to the case file) '
+        'or generator = "<name>" and parameters = { ... }')))
+    fluid_t = _Table(ctx, ("fluid",), top.table("fluid", hint=(
+        "add a [fluid] table with density = ... and viscosity = ... (dynamic viscosity)")),
+        TABLE_KEYS["fluid"], "[fluid]")
+    fluid = S.Fluid(
+        density=fluid_t.number("density", rule=POSITIVE, meaning="the fluid density",
+                               hint="add density = <rho>, e.g. density = 1.0"),
+        viscosity=fluid_t.number("viscosity", rule=POSITIVE, meaning="the dynamic viscosity mu = rho nu",
+                                 hint="add viscosity = <dynamic viscosity mu>, e.g. viscosity = 0.01"),
+    )
+    model_t = _Table(ctx, ("model",), top.table("model", {}), TABLE_KEYS["model"], "[model]")
+    model = S.ModelSettings(
+        turbulence=model_t.choice("turbulence", S.TURBULENCE_MODELS, "none"),
+        sa_variant=model_t.choice("sa_variant", S.SA_VARIANTS, "standard"),
+    )
+    init_t = _Table(ctx, ("initial",), top.table("initial", {}), TABLE_KEYS["initial"], "[initial]")
+    initial = S.InitialState(
+        velocity=init_t.vector("velocity", (0.0, 0.0)),
+        pressure=init_t.number("pressure", 0.0),
+        nut_ratio=init_t.number("nut_ratio", 3.0, NON_NEGATIVE, "the initial ratio nu_tilde / nu"),
+    )
+    boundaries = _boundaries(ctx, top.table("boundary", hint=(
+        'add one table per mesh patch, e.g. [boundary.walls] with kind = "wall"')))
+    solver = _solver(ctx, top.table("solver", {}))
+    output = _output(ctx, top.table("output", {}), boundaries)
+    return S.Case(
+        source=src,
+        title=title,
+        description=description,
+        mesh=mesh,
+        fluid=fluid,
+        model=model,
+        initial=initial,
+        boundaries=boundaries,
+        solver=solver,
+        output=output,
+        raw=S.copy_data(data),
+    )
+
+
+def _mesh(ctx: _Ctx, data: Any) -> S.MeshSettings:
+    t = _Table(ctx, ("mesh",), data, TABLE_KEYS["mesh"], "[mesh]")
+    if t.has("file") and t.has("generator"):
+        raise ctx.error(("mesh",), "give either file or generator, not both; remove one of them")
+    if not t.has("file") and not t.has("generator"):
+        raise ctx.error(("mesh",), 'needs file = "path/to/mesh.msh" (relative to the case file) '
+                        'or generator = "<name of a function in fvrans.mesh.generate>"')
+    renumber = t.boolean("renumber", False)
+    if t.has("file"):
+        if t.has("parameters"):
+            raise t.fail("parameters", "only used with mesh.generator; remove it (or use a generator "
+                         "instead of mesh.file)")
+        return S.MeshSettings(file=_check_path(ctx, ("mesh", "file"), t.data["file"], "mesh file"),
+                              renumber=renumber)
+    gen = t.string("generator")
+    if not gen.isidentifier():
+        raise t.fail("generator", f"{gen!r} is not a generator name; give the name of a function in "
+                     "fvrans.mesh.generate, e.g. generator = \"cavity\"")
+    params = t.table("parameters", {})
+    for k in params:
+        if not isinstance(k, str):
+            raise t.fail("parameters", f"keys must be strings, got {describe(k)}")
+    return S.MeshSettings(generator=gen, parameters=S.copy_data(params), renumber=renumber)
+
+
+def _boundaries(ctx: _Ctx, data: Mapping[str, Any]) -> dict[str, S.BoundarySpec]:
+    if not data:
+        raise ctx.error(("boundary",), 'is empty; add one table per mesh patch, e.g. [boundary.walls] '
+                        'with kind = "wall"')
+    out: dict[str, S.BoundarySpec] = {}
+    for name, spec in data.items():
+        if not isinstance(name, str):
+            raise ctx.error(("boundary",), f"patch names must be strings, got {describe(name)}")
+        out[name] = _boundary(ctx, name, spec)
+    return out
+
+
+def _boundary(ctx: _Ctx, name: str, data: Any) -> S.BoundarySpec:
+    path = ("boundary", name)
+    if not isinstance(data, Mapping):
+        raise ctx.error(path, f"must be a table [{format_key(path)}] with kind = one of "
+                        f"{_quoted_list(S.BOUNDARY_KINDS)}, got {describe(data)}; each patch gets its "
+                        "own table [boundary.<patch name>]")
+    if "kind" not in data:
+        raise ctx.error(path + ("kind",),
+                        f"missing required key; add kind = one of {_quoted_list(S.BOUNDARY_KINDS)}")
+    kind_t = _Table(ctx, path, {"kind": data["kind"]}, ("kind",), "")
+    kind = kind_t.choice("kind", S.BOUNDARY_KINDS)
+    allowed = S.BOUNDARY_KEYS[kind]
+    for k in data:
+        if k not in allowed:
+            users = [kd for kd, keys in S.BOUNDARY_KEYS.items() if k in keys]
+            why = (f"; {k} is used by kind(s) {_quoted_list(users)} only" if users
+                   else did_you_mean(str(k), allowed))
+            raise ctx.error(path + (str(k),), f"not a key of kind {kind!r}{why}; a {kind} patch takes: "
+                            f"{', '.join(allowed)} — remove the key or change the kind")
+    t = _Table(ctx, path, data, allowed, f"a {kind} patch")
+    if kind == "wall":
+        return S.BoundarySpec(kind, velocity=t.vector("velocity", (0.0, 0.0)))
+    if kind == "pressure-outlet":
+        return S.BoundarySpec(kind, pressure=t.number("pressure", 0.0))
+    if kind == "symmetry":
+        return S.BoundarySpec(kind)
+    if kind == "freestream":
+        return S.BoundarySpec(
+            kind,
+            velocity=t.vector("velocity", hint="add velocity = [u, v], the free-stream velocity"),
+            pressure=t.number("pressure", 0.0),
+            nut_ratio=t.number("nut_ratio", 3.0, NON_NEGATIVE, "the free-stream nu_tilde / nu"),
+        )
+    return _inlet(ctx, t)
+
+
+def _inlet(ctx: _Ctx, t: _Table) -> S.BoundarySpec:
+    from fvrans.case.profile import resolve_profile
+
+    has_v, has_p = t.has("velocity"), t.has("profile")
+    if has_v and has_p:
+        raise ctx.error(t.path, "give either velocity or profile, not both; remove one of them")
+    if not has_v and not has_p:
+        raise ctx.error(t.path, 'needs velocity = [u, v] or profile = "file.csv" (a CSV table with '
+                        "a header line; see profile_columns)")
+    if t.has("profile_columns") and not has_p:
+        raise t.fail("profile_columns", "only used with profile; remove it or give profile = \"file.csv\"")
+    if has_v:
+        v = t.data["velocity"]
+        if isinstance(v, str) and v == S.CALLABLE_TEXT:
+            raise t.fail("velocity", f"{S.CALLABLE_TEXT!r} stands for a Python function, which cannot be "
+                         "restored from text; set the function again with case.set(...)")
+        if callable(v) and not isinstance(v, (list, tuple, np.ndarray)):
+            velocity: S.Velocity = v
+        else:
+            velocity = t.vector("velocity")
+        return S.BoundarySpec("velocity-inlet", velocity=velocity,
+                              nut_ratio=t.number("nut_ratio", 3.0, NON_NEGATIVE, "the inflow nu_tilde / nu"))
+    profile = _check_path(ctx, t.path + ("profile",), t.data["profile"], "inlet profile file")
+    given = t.table("profile_columns", {})
+    _Table(ctx, t.path + ("profile_columns",), given, S.PROFILE_COLUMN_KEYS, "profile_columns")
+    columns = resolve_profile(profile, given, lambda key, m: ctx.error(t.path + key, m))
+    if "nut_ratio" in columns:
+        if t.has("nut_ratio"):
+            raise t.fail("nut_ratio", f"the profile {profile} already gives nut_ratio in column "
+                         f"{columns['nut_ratio']!r}; remove this key (or the column)")
+        nut = None
+    else:
+        nut = t.number("nut_ratio", 3.0, NON_NEGATIVE, "the inflow nu_tilde / nu")
+    return S.BoundarySpec("velocity-inlet", profile=profile, profile_columns=columns, nut_ratio=nut)
+
+
+def _solver(ctx: _Ctx, data: Any) -> S.SolverSettings:
+    t = _Table(ctx, ("solver",), data, TABLE_KEYS["solver"], "[solver]")
+    coupling = t.choice("coupling", S.COUPLINGS, "simplec")
+    return S.SolverSettings(
+        coupling=coupling,
+        max_iterations=t.integer("max_iterations", 5000, AT_LEAST_ONE, "the number of outer iterations"),
+        tolerance=t.number("tolerance", 1e-6, POSITIVE, "the scaled-residual tolerance"),
+        relax_velocity=t.number("relax_velocity", 0.7, UNIT, "an under-relaxation factor"),
+        relax_pressure=t.number("relax_pressure", S.DEFAULT_RELAX_PRESSURE[coupling], UNIT,
+                                "an under-relaxation factor"),
+        relax_turbulence=t.number("relax_turbulence", 0.8, UNIT, "an under-relaxation factor"),
+        convection=t.choice("convection", S.CONVECTION_SCHEMES, "linear-upwind"),
+        turbulence_convection=t.choice("turbulence_convection", S.CONVECTION_SCHEMES, "upwind"),
+        gradient=t.choice("gradient", S.GRADIENT_METHODS, "least-squares"),
+        limiter=t.choice("limiter", S.LIMITERS, "none"),
+        pressure_tolerance=t.number("pressure_tolerance", 0.01, OPEN_UNIT, "a relative tolerance"),
+        momentum_tolerance=t.number("momentum_tolerance", 0.1, OPEN_UNIT, "a relative tolerance"),
+        momentum_sweeps=t.integer("momentum_sweeps", 5, AT_LEAST_ONE, "sweeps per solve"),
+        amg_rebuild_every=t.integer("amg_rebuild_every", 20, AT_LEAST_ONE, "outer iterations"),
+        divergence_factor=t.number("divergence_factor", 1e5, ABOVE_ONE,
+                                   "growth of a residual above its minimum"),
+        checkpoint_every=t.integer("checkpoint_every", 0, NON_NEGATIVE,
+                                   "outer iterations; 0 turns checkpoints off"),
+    )
+
+
+def _output(ctx: _Ctx, data: Any, boundaries: Mapping[str, S.BoundarySpec]) -> S.OutputSettings:
+    t = _Table(ctx, ("output",), data, TABLE_KEYS["output"], "[output]")
+    walls = [n for n, b in boundaries.items() if b.kind == "wall"]
+    given = t._get("wall_patches", [], "")
+    if isinstance(given, np.ndarray):
+        given = given.tolist()
+    if not isinstance(given, (list, tuple)) or not all(isinstance(n, str) for n in given):
+        raise t.fail("wall_patches", f"must be a list of patch names (quoted strings), got {describe(given)}")
+    names: list[str] = []
+    for n in given:
+        if n not in boundaries:
+            raise t.fail("wall_patches", f"{n!r} has no [{format_key(('boundary', n))}] table"
+                         f"{did_you_mean(n, list(boundaries))}; wall patches of this case: "
+                         f"{_quoted_list(walls)}")
+        if boundaries[n].kind != "wall":
+            raise t.fail("wall_patches", f"{n!r} is of kind {boundaries[n].kind!r}; wall quantities "
+                         f"(shear stress, forces) need kind = \"wall\" — wall patches: {_quoted_list(walls)}")
+        if n not in names:
+            names.append(n)
+    return S.OutputSettings(
+        wall_patches=tuple(names or walls),
+        reference_velocity=t.number("reference_velocity", 1.0, POSITIVE, "the velocity U in 1/2 rho U^2"),
+        reference_pressure=t.number("reference_pressure", 0.0),
+        reference_length=t.number("reference_length", 1.0, POSITIVE, "the length of force coefficients"),
+        write_fields=t.boolean("write_fields", True),
+    )
+
+
+# ------------------------------------------------------------------------------------------
+# dotted keys and changes
+# ------------------------------------------------------------------------------------------
+def parse_dotted_key(key: str, label: str = "<in memory>") -> tuple[str, ...]:
+    """Split a dotted key with TOML rules (quote parts holding dots or spaces).
+
+    >>> parse_dotted_key('boundary."outer wall".velocity')
+    ('boundary', 'outer wall', 'velocity')
+    """
+    bad = CaseError(f"{label}: {key!r} is not a valid dotted key; write e.g. solver.relax_velocity "
+                    'or boundary."patch name".velocity')
+    if not isinstance(key, str) or not key.strip() or "\n" in key or "\r" in key:
+        raise bad
+    try:
+        d: Any = tomllib.loads(f"{key} = 0")
+    except tomllib.TOMLDecodeError:
+        raise bad from None
+    path: list[str] = []
+    while isinstance(d, dict):
+        if len(d) != 1:
+            raise bad
+        k = next(iter(d))
+        path.append(k)
+        d = d[k]
+    if d != 0 or isinstance(d, bool):
+        raise bad
+    return tuple(path)
+
+
+def apply_changes(data: dict[str, Any], changes: Mapping[str, Any], label: str) -> None:
+    """Set dotted keys in nested ``data`` in place; a value None deletes the key."""
+    for key, value in changes.items():
+        path = parse_dotted_key(key, label)
+        node = data
+        for i, part in enumerate(path[:-1]):
+            nxt = node.get(part)
+            if nxt is None:
+                if value is None:
+                    break
+                nxt = node[part] = {}
+            elif not isinstance(nxt, dict):
+                if isinstance(nxt, Mapping):
+                    nxt = node[part] = dict(nxt)
+                else:
+                    raise CaseError(f"{label}: cannot set {key!r}: {format_key(path[: i + 1])} is "
+                                    f"{describe(nxt)}, not a table")
+            node = nxt
+        else:
+            if value is None:
+                node.pop(path[-1], None)
+            else:
+                node[path[-1]] = S.copy_data(value)
+
+
+def unknown_patch_error(case: S.Case, patch: str) -> CaseError:
+    names = list(case.boundaries)
+    return CaseError(f"{case.label}: no boundary condition for patch {patch!r}{did_you_mean(patch, names)}; "
+                     f"the case has: {_quoted_list(names)}")
