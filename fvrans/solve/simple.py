@@ -145,6 +145,8 @@ class SimpleSolver:
         self.asm_u = CsrAssembler(mesh)
         self.asm_v = CsrAssembler(mesh)
         self.grad = gradient_operator(mesh, geom, method=self.ctl.gradient.replace("-", "_"))
+        # the pressure force in conservative face-sum form (second order on irregular meshes)
+        self.grad_pressure = gradient_operator(mesh, geom, method="gauss_least_squares")
         self.psolver = PressureSolver(
             CsrAssembler(mesh), rtol=self.ctl.pressure_tolerance, rebuild_every=self.ctl.amg_rebuild_every,
             singular=not boundary.has_fixed_pressure,
@@ -170,7 +172,7 @@ class SimpleSolver:
         self.fields = fields.copy() if fields is not None else Fields.uniform(nc, nf)
         if fields is None or not np.any(fields.face_flux):
             self.fields.face_flux = self._interpolated_fluxes(self.fields.velocity)
-        self.grad_p = self.grad(self.fields.pressure, self._pressure_on_boundary(np.zeros((nc, 2))))
+        self.grad_p = self.grad_pressure(self.fields.pressure, self._pressure_on_boundary(np.zeros((nc, 2))))
         self.u_scale = self._velocity_scale()
         # sum over cells of half their perimeter: the continuity residual's scale
         self.perimeter_sum = float(np.sum(geom.face_length[:ni]) + 0.5 * np.sum(geom.face_length[ni:]))
@@ -209,14 +211,13 @@ class SimpleSolver:
         return ub
 
     def _pressure_on_boundary(self, gp: np.ndarray) -> np.ndarray:
-        """Fixed p on outlets and freestream; zero normal gradient elsewhere:
-        p_b = p_P + grad p_P . (d - (d.n) n) with the latest gradient."""
+        """Fixed p on outlets and freestream; elsewhere linear extrapolation from the owner,
+        p_b = p_P + grad p_P . (x_f - x_P), with the latest gradient (at convergence the boundary
+        faces add nothing to the least-squares fit: a one-sided, second-order gradient)."""
         ni = self.ni
         P = self.owner[ni:]
         d = self.geom.face_delta[ni:]
-        n = self.geom.face_normal[ni:]
-        dt = d - np.einsum("ij,ij->i", d, n)[:, None] * n
-        pb = self.fields.pressure[P] + np.einsum("ij,ij->i", gp[P], dt)
+        pb = self.fields.pressure[P] + np.einsum("ij,ij->i", gp[P], d)
         fixed = (self.bc.kind == OUTLET) | (self.bc.kind == FREESTREAM)
         pb[fixed] = self.bc.pressure[fixed]
         return pb
@@ -294,8 +295,9 @@ class SimpleSolver:
         pb = self._pressure_on_boundary(gp)
         F = np.empty(self.nf)
         K.rhie_chow_fluxes(
-            self.owner, self.neigh, ni, self.S, self.dcoef, self.kvec, self.geom.face_weight, rho,
-            hbya, rau, fl.pressure, gp, pb, self.bc.kind, self.bc.velocity, alpha, F_old, u_old, F,
+            self.owner, self.neigh, ni, self.S, self.dcoef, self.kvec, self.geom.face_weight,
+            self.geom.face_skew, gu, rho, hbya, rau, fl.pressure, gp, pb, self.bc.kind, self.bc.velocity,
+            alpha, F_old, F,
         )
         # pressure correction
         if ctl.coupling == "simplec":
@@ -322,7 +324,7 @@ class SimpleSolver:
         fl.velocity = u_new
         fl.pressure = p
         fl.face_flux = F
-        self.grad_p = self.grad(p, self._pressure_on_boundary(gp))
+        self.grad_p = self.grad_pressure(p, self._pressure_on_boundary(gp))
         res = [res_u, res_v, res_c]
         if self.model.names:
             ub2 = self._velocity_on_boundary(u_new, F[ni:])
