@@ -1,0 +1,119 @@
+"""Steady Navier-Stokes with a manufactured solution (method of manufactured solutions:
+Roache 2002, J. Fluids Eng. 124, 4-10; Salari & Knupp 2000, Sandia report SAND2000-1444).
+
+u = -cos(pi x) sin(pi y), v = sin(pi x) cos(pi y) (divergence-free), p = sin(pi x) sin(pi y);
+the body force f = rho (u . grad) u + grad p - mu lap u makes it an exact steady solution:
+(u . grad) u = (-pi sin(pi x) cos(pi x), -pi sin(pi y) cos(pi y)), lap u = -2 pi^2 u.
+Velocity is prescribed on the whole boundary, so p is compared after removing its mean.
+
+Grid families are systematically refined (Roache 1998, Verification and Validation in
+Computational Science and Engineering, ch. 5): quads on a smooth sinusoidal mapping of the unit
+square, and squares split into triangles along parallel diagonals.
+
+Known limitation, measured and kept visible as a strict xfail: on triangles the pressure carries
+an O(h) oscillation between the two triangles of each square (the face-sum pressure gradient does
+not see that mode and the Rhie-Chow term damps it only with a weight ~ V/a_P ~ h^2/mu), so its
+L2 order falls towards 1 (1.34, 1.16, 1.08 from 12 to 96 cells across); the smooth part (pair
+averages) converges at ~1.8.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from flows import split_same_diagonal
+from meshes_for_tests import quad_mesh
+
+from fvrans.mesh import (
+    Mesh,
+    compute_geometry,  # noqa: E402
+)
+from fvrans.physics.boundary import build_flow_boundary
+from fvrans.solve.simple import SimpleSolver, SolverControls
+
+RHO, MU = 1.0, 0.05
+PI = np.pi
+
+
+def exact_velocity(x, y):
+    return -np.cos(PI * x) * np.sin(PI * y), np.sin(PI * x) * np.cos(PI * y)
+
+
+def exact_pressure(x, y):
+    return np.sin(PI * x) * np.sin(PI * y)
+
+
+def body_force(xc):
+    x, y = xc[:, 0], xc[:, 1]
+    u, v = exact_velocity(x, y)
+    fx = RHO * (-PI * np.sin(PI * x) * np.cos(PI * x)) + PI * np.cos(PI * x) * np.sin(PI * y) + 2 * PI**2 * MU * u
+    fy = RHO * (-PI * np.sin(PI * y) * np.cos(PI * y)) + PI * np.sin(PI * x) * np.cos(PI * y) + 2 * PI**2 * MU * v
+    return np.stack([fx, fy], axis=1)
+
+
+def solve_errors(mesh):
+    geom = compute_geometry(mesh)
+    spec = {"kind": "velocity-inlet", "velocity": exact_velocity}
+    bc = build_flow_boundary(mesh, geom, {p: spec for p in mesh.patch_names})
+    ctl = SolverControls(max_iterations=4000, tolerance=1e-9, relax_velocity=0.8)
+    solver = SimpleSolver(mesh, geom, bc, rho=RHO, mu=MU, controls=ctl, body_force=body_force)
+    assert solver.run(), "the manufactured case did not converge"
+    xc, area = geom.cell_centre, geom.cell_area
+    ue, ve = exact_velocity(xc[:, 0], xc[:, 1])
+    du = solver.fields.velocity - np.stack([ue, ve], axis=1)
+    pe = exact_pressure(xc[:, 0], xc[:, 1])
+    pn = solver.fields.pressure
+    dp = (pn - np.average(pn, weights=area)) - (pe - np.average(pe, weights=area))
+    l2 = lambda e: float(np.sqrt(np.sum(area * e**2) / np.sum(area)))  # noqa: E731
+    return l2(np.hypot(du[:, 0], du[:, 1])), l2(dp)
+
+
+def observed_orders(errors):
+    e = np.asarray(errors)
+    return np.log2(e[:-1] / e[1:])
+
+
+def mapped_quads(n: int, amplitude: float = 0.04) -> Mesh:
+    """n x n quads on the smooth mapping x' = x + a sin(2 pi x) sin(2 pi y),
+    y' = y + a sin(pi x) sin(2 pi y) (boundary points stay on the boundary)."""
+    m = quad_mesh(n)
+    x, y = m.points[:, 0], m.points[:, 1]
+    pts = np.stack(
+        [x + amplitude * np.sin(2 * PI * x) * np.sin(2 * PI * y), y + amplitude * np.sin(PI * x) * np.sin(2 * PI * y)],
+        axis=1,
+    )
+    cells = [m.cell(c) for c in range(m.n_cells)]
+    return Mesh.from_arrays(pts, cells, {p.name: m.face_points[p.start : p.stop] for p in m.patches})
+
+
+MESHES = {
+    "mapped_quads": mapped_quads,
+    "triangles": lambda n: split_same_diagonal(quad_mesh(n)),
+}
+_ERRORS: dict = {}
+
+
+def errors_on(kind: str):
+    if kind not in _ERRORS:
+        _ERRORS[kind] = [solve_errors(MESHES[kind](n)) for n in (12, 24, 48)]
+    return _ERRORS[kind]
+
+
+@pytest.mark.parametrize("kind", sorted(MESHES))
+def test_manufactured_velocity_second_order(kind):
+    eu = [e[0] for e in errors_on(kind)]
+    ou = observed_orders(eu)
+    assert ou[-1] >= 1.8, f"{kind}: velocity errors {eu}, observed orders {ou}"
+
+
+@pytest.mark.parametrize(
+    "kind",
+    [
+        "mapped_quads",
+        pytest.param("triangles", marks=pytest.mark.xfail(strict=True, reason="O(h) pressure mode on triangles")),
+    ],
+)
+def test_manufactured_pressure_order(kind):
+    ep = [e[1] for e in errors_on(kind)]
+    op = observed_orders(ep)
+    assert op[-1] >= 1.5, f"{kind}: pressure errors {ep}, observed orders {op}"
