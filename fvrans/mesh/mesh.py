@@ -9,8 +9,8 @@ normal of the owner is ``(dy, -dx) / length``.
 from __future__ import annotations
 
 import logging
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
-from typing import Mapping, Sequence
 
 import numpy as np
 
@@ -127,7 +127,7 @@ class Mesh:
         cells: Sequence[Sequence[int]] | np.ndarray,
         boundary: Mapping[str, np.ndarray | Sequence[Sequence[int]]],
         source: str = "<in memory>",
-    ) -> "Mesh":
+    ) -> Mesh:
         """Build a mesh from points (n, 2), polygon cells and named boundary edges.
 
         ``cells`` is a list of point-index sequences (any mix of triangles, quads and polygons)
@@ -144,7 +144,7 @@ class Mesh:
         """
         return build_mesh(points, cells, boundary, source=source)
 
-    def permuted(self, order: np.ndarray) -> "Mesh":
+    def permuted(self, order: np.ndarray) -> Mesh:
         """A copy whose new cell ``i`` is old cell ``order[i]`` (topology rebuilt)."""
         order = np.asarray(order, dtype=np.int64)
         if sorted(order.tolist()) != list(range(self.n_cells)):

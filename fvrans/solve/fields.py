@@ -17,7 +17,7 @@ class Fields:
     face_flux: np.ndarray
     nu_tilde: np.ndarray | None = None
 
-    def copy(self) -> "Fields":
+    def copy(self) -> Fields:
         return Fields(
             self.velocity.copy(),
             self.pressure.copy(),
@@ -36,7 +36,7 @@ class Fields:
         return ok
 
     @classmethod
-    def uniform(cls, n_cells: int, n_faces: int, velocity=(0.0, 0.0), pressure: float = 0.0) -> "Fields":
+    def uniform(cls, n_cells: int, n_faces: int, velocity=(0.0, 0.0), pressure: float = 0.0) -> Fields:
         """A uniform start with zero face fluxes (fluxes are rebuilt on the first iteration)."""
         u = np.empty((n_cells, 2))
         u[:] = np.asarray(velocity, dtype=float)

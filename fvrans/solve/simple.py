@@ -23,8 +23,9 @@ from __future__ import annotations
 
 import logging
 import time
+from collections.abc import Callable
 from dataclasses import dataclass, field
-from typing import Any, Callable
+from typing import Any
 
 import numpy as np
 
@@ -66,7 +67,7 @@ class SolverControls:
         return 1.0 if self.coupling == "simplec" else 0.3
 
     @classmethod
-    def from_settings(cls, s: Any) -> "SolverControls":
+    def from_settings(cls, s: Any) -> SolverControls:
         """Take the matching attributes of any settings object (e.g. the case's solver table)."""
         kw = {}
         for name in cls.__dataclass_fields__:
