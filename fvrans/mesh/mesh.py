@@ -282,9 +282,10 @@ def build_mesh(
     nxt_idx = offsets[cell_of] + (pos + 1) % sizes[cell_of]
     rep_pt = flat == flat[nxt_idx]
     if rep_pt.any():
-        c = int(cell_of[np.nonzero(rep_pt)[0][0]])
+        k = int(np.nonzero(rep_pt)[0][0])
+        c = int(cell_of[k])
         raise MeshError(
-            f"{source}: cell {c} has a repeated (or coincident) vertex {_fmt_pt(pts, int(flat[np.nonzero(rep_pt)[0][0]]))}; "
+            f"{source}: cell {c} has a repeated (or coincident) vertex {_fmt_pt(pts, int(flat[k]))}; "
             "it has zero-length edges — remove or repair the cell"
         )
 
@@ -309,7 +310,9 @@ def build_mesh(
         area = _signed_areas(pts, offsets, flat)
         if np.any(area <= 0):
             c = int(np.nonzero(area <= 0)[0][0])
-            raise MeshError(f"{source}: cell {c} has non-positive area after orientation fixing; it is self-intersecting")
+            raise MeshError(
+                f"{source}: cell {c} has non-positive area after orientation fixing; it is self-intersecting"
+            )
 
     # -- edges --
     a = flat
