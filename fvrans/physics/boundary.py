@@ -49,7 +49,11 @@ def _get(spec: Any, key: str, default=None):
 
 
 def _profile_velocity(spec: Any, patch: str, xf: np.ndarray) -> np.ndarray:
-    """Velocity of an inlet from a callable f(x, y) -> (u, v) or a table along one coordinate."""
+    """Velocity of an inlet: a case BoundarySpec evaluates itself (uniform, CSV profile or
+    callable); plain mappings may give a callable f(x, y) -> (u, v), a table or a vector."""
+    if hasattr(spec, "velocity_at"):
+        u, v = spec.velocity_at(xf[:, 0], xf[:, 1], f"boundary.{patch}")
+        return np.stack([u, v], axis=1)
     vel = _get(spec, "velocity")
     if callable(vel):
         try:
@@ -71,6 +75,16 @@ def _profile_velocity(spec: Any, patch: str, xf: np.ndarray) -> np.ndarray:
     if vel is None:
         raise CaseError(f"boundary.{patch}: a velocity inlet needs 'velocity' (or 'profile')")
     return np.broadcast_to(np.asarray(vel, dtype=float), (len(xf), 2)).copy()
+
+
+def _nut_ratio(spec: Any, patch: str, xf: np.ndarray) -> np.ndarray:
+    if hasattr(spec, "nut_ratio_at") and (spec.nut_ratio is not None or spec.profile is not None):
+        try:
+            return np.asarray(spec.nut_ratio_at(xf[:, 0], xf[:, 1], f"boundary.{patch}"), dtype=float)
+        except CaseError:
+            return np.full(len(xf), 3.0)
+    value = _get(spec, "nut_ratio", 3.0)
+    return np.full(len(xf), 3.0 if value is None else float(value))
 
 
 def build_flow_boundary(
@@ -112,7 +126,7 @@ def build_flow_boundary(
                 vel[sl] = uw - un[:, None] * n  # tangential motion only
         elif code == INLET:
             vel[sl] = _profile_velocity(spec, patch.name, xf)
-            nut[sl] = float(_get(spec, "nut_ratio", 3.0) or 0.0)
+            nut[sl] = _nut_ratio(spec, patch.name, xf)
         elif code == OUTLET:
             pres[sl] = float(_get(spec, "pressure", 0.0) or 0.0)
         elif code == FREESTREAM:
@@ -121,7 +135,7 @@ def build_flow_boundary(
                 raise CaseError(f"boundary.{patch.name}: a freestream boundary needs 'velocity'")
             vel[sl] = np.asarray(v, dtype=float)
             pres[sl] = float(_get(spec, "pressure", 0.0) or 0.0)
-            nut[sl] = float(_get(spec, "nut_ratio", 3.0) or 0.0)
+            nut[sl] = _nut_ratio(spec, patch.name, xf)
     return FlowBoundary(kind=kind, velocity=vel, pressure=pres, nut_ratio=nut, patch_kind=patch_kind)
 
 

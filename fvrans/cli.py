@@ -1,0 +1,168 @@
+"""The command line: parses, calls the API, prints. Exit status 0 = done/converged,
+1 = ran but did not converge (or diverged; outputs of the last good state are written),
+2 = bad input (case, mesh or option)."""
+
+from __future__ import annotations
+
+import argparse
+import logging
+import sys
+import time
+from pathlib import Path
+
+from fvrans.errors import FvransError
+
+log = logging.getLogger("fvrans")
+
+
+class Progress:
+    """A live progress line: iteration, residuals, seconds per iteration."""
+
+    def __init__(self, names: list[str], quiet: bool, stream=sys.stderr, every_s: float = 0.5):
+        self.names = names
+        self.quiet = quiet
+        self.stream = stream
+        self.tty = hasattr(stream, "isatty") and stream.isatty()
+        self.every_s = every_s if self.tty else 10.0
+        self.t_start = time.perf_counter()
+        self.t_last = -1e9
+        self.last_it = 0
+
+    def __call__(self, it: int, res: list[float]) -> None:
+        if self.quiet:
+            return
+        now = time.perf_counter()
+        if now - self.t_last < self.every_s and it > 1:
+            return
+        rate = (now - self.t_start) / max(it, 1)
+        text = f"iteration {it:6d}  " + "  ".join(
+            f"{n} {r:8.2e}" for n, r in zip(self.names, res)
+        ) + f"  {rate:7.4f} s/iteration"
+        if self.tty:
+            self.stream.write("\r" + text)
+        else:
+            self.stream.write(text + "\n")
+        self.stream.flush()
+        self.t_last = now
+
+    def close(self) -> None:
+        if self.tty and not self.quiet:
+            self.stream.write("\n")
+            self.stream.flush()
+
+
+def _cmd_run(args: argparse.Namespace) -> int:
+    from fvrans import api
+
+    case = api.load_case(args.case)
+    if args.set:
+        case = api.apply_overrides(case, args.set)
+    problem = api.prepare(case)
+    if not args.quiet:
+        print(
+            f"{case.label}: {problem.mesh.n_cells} cells, {problem.mesh.n_faces} faces, "
+            f"patches {', '.join(problem.mesh.patch_names)}",
+            file=sys.stderr,
+        )
+    progress = Progress(["u", "v", "continuity"], args.quiet)
+
+    def callback(it, res):
+        progress(it, res)
+
+    result = api.solve(problem, callback=callback)
+    progress.close()
+    out = result.write(args.out)
+    state = "converged" if result.converged else ("DIVERGED" if result.diverged else "not converged")
+    print(
+        f"{state} after {result.iterations} iterations in {result.wall_seconds:.1f} s; results in {out}",
+        file=sys.stderr,
+    )
+    if result.message:
+        print(result.message, file=sys.stderr)
+    return 0 if result.converged else 1
+
+
+def _cmd_info(args: argparse.Namespace) -> int:
+    from fvrans.mesh import compute_geometry, read_mesh
+    from fvrans.mesh.quality import format_report, mesh_quality
+
+    path = Path(args.path)
+    if path.suffix == ".toml":
+        from fvrans.case import load_case
+        from fvrans.case.build import build_case_mesh
+
+        case = load_case(path)
+        print(f"# {case.label}: resolved settings (every default filled in)")
+        print(case.to_toml())
+        mesh = build_case_mesh(case)
+    else:
+        mesh = read_mesh(path)
+    geom = compute_geometry(mesh)
+    print(format_report(mesh_quality(mesh, geom), mesh.source))
+    return 0
+
+
+def _cmd_cases(args: argparse.Namespace) -> int:
+    from fvrans.case import load_case
+
+    folder = Path(args.dir)
+    files = sorted(folder.glob("*.toml"))
+    if not files:
+        print(f"no case files (*.toml) in {folder.resolve()}; pass the folder with --dir", file=sys.stderr)
+        return 2
+    width = max(len(f.name) for f in files)
+    for f in files:
+        try:
+            c = load_case(f)
+            text = c.description or c.title
+        except FvransError as exc:
+            text = f"(cannot be loaded: {exc})"
+        print(f"{f.name:<{width}}  {text}")
+    return 0
+
+
+def build_parser() -> argparse.ArgumentParser:
+    p = argparse.ArgumentParser(
+        prog="fvrans",
+        description="Steady incompressible RANS on unstructured 2D meshes (cell-centred finite volumes).",
+    )
+    p.add_argument("-v", "--verbose", action="store_true", help="log debugging detail")
+    sub = p.add_subparsers(dest="command", required=True)
+
+    r = sub.add_parser("run", help="solve a case file and write the results into a folder")
+    r.add_argument("case", help="case file (TOML)")
+    r.add_argument("--out", required=True, help="output folder (created if missing)")
+    r.add_argument(
+        "--set", action="append", default=[], metavar="KEY=VALUE",
+        help="override a setting, value in TOML syntax, e.g. --set solver.max_iterations=200 (repeatable)",
+    )
+    r.add_argument("--quiet", action="store_true", help="no progress line")
+    r.set_defaults(func=_cmd_run)
+
+    i = sub.add_parser("info", help="mesh report of a mesh file, or resolved settings and mesh report of a case")
+    i.add_argument("path", help="mesh file (any format meshio reads) or case file (.toml)")
+    i.set_defaults(func=_cmd_info)
+
+    c = sub.add_parser("cases", help="list the case files of a folder with their descriptions")
+    c.add_argument("--dir", default="cases", help="folder of case files (default: ./cases)")
+    c.set_defaults(func=_cmd_cases)
+    return p
+
+
+def main(argv: list[str] | None = None) -> int:
+    args = build_parser().parse_args(argv)
+    logging.basicConfig(
+        level=logging.DEBUG if args.verbose else logging.WARNING, format="%(levelname)s %(name)s: %(message)s"
+    )
+    try:
+        return int(args.func(args))
+    except FvransError as exc:
+        print(f"error: {exc}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print("interrupted", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())
