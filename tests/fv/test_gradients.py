@@ -86,10 +86,12 @@ def observed_order(h, err):
 
 @pytest.mark.parametrize("kind", list(MESH_KINDS))
 def test_least_squares_first_order_for_smooth_field(kind):
-    """Expected order 1 (Syrakos et al. 2017). The observed L2 order approaches 1 from below on
-    these meshes (0.97-0.99 at n = 16..64), so the check is >= 0.95 rather than >= 1."""
+    """Expected order 1 (Syrakos et al. 2017). The observed L2 order tends to 1 from below on the
+    triangle and mixed meshes (measured between successive n = 16..256: tri 0.997, 0.998, 0.999,
+    0.999; mixed 0.983 ... 0.997; perturbed mixed 0.971 ... 0.996), so the fitted slope over
+    n = 32, 64, 128 is checked against 0.98: first order to within the asymptotic approach."""
     hs, errs = [], []
-    for n in (16, 32, 64):
+    for n in (32, 64, 128):
         m, g = mesh_and_geometry(kind, n)
         x, y = g.cell_centre.T
         phi = smooth(x, y)
@@ -98,7 +100,7 @@ def test_least_squares_first_order_for_smooth_field(kind):
         hs.append(1.0 / n)
         errs.append(np.sqrt(np.sum(g.cell_area * err**2) / np.sum(g.cell_area)))
     assert errs[-1] < errs[0]
-    assert observed_order(hs, errs) >= 0.95
+    assert observed_order(hs, errs) >= 0.98
 
 
 def test_multi_component_field_matches_scalar_calls():
