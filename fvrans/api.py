@@ -33,6 +33,8 @@ from fvrans.errors import CaseError, DivergenceError
 from fvrans.mesh.geometry import Geometry, compute_geometry
 from fvrans.mesh.mesh import Mesh
 from fvrans.physics.boundary import FlowBoundary, build_flow_boundary
+from fvrans.physics.spalart_allmaras import eddy_viscosity as sa_eddy_viscosity
+from fvrans.physics.spalart_allmaras import model_for_case
 from fvrans.post import (
     WallData,
     all_wall_data,
@@ -63,11 +65,6 @@ class Problem:
 
 def prepare(case: Case, mesh: Mesh | None = None) -> Problem:
     """Build (or reuse) the mesh of ``case``, its geometry and boundary arrays."""
-    if case.turbulent:
-        raise CaseError(
-            f"{case.label}: model.turbulence = {case.model.turbulence!r} is not available in this "
-            "version; use 'none'"
-        )
     mesh = build_case_mesh(case) if mesh is None else mesh
     geom = compute_geometry(mesh)
     boundary = build_flow_boundary(mesh, geom, case.boundaries)
@@ -197,9 +194,10 @@ def solve(
     c = problem.case
     controls = SolverControls.from_settings(c.solver)
     fields = _initial_fields(problem, initial)
+    model = model_for_case(c, problem.mesh, problem.geom, problem.boundary)
     solver = SimpleSolver(
         problem.mesh, problem.geom, problem.boundary, rho=c.fluid.density, mu=c.fluid.viscosity,
-        controls=controls, fields=fields,
+        controls=controls, fields=fields, model=model,
     )
     t0 = time.perf_counter()
     message = ""
@@ -220,8 +218,17 @@ def solve(
             f"not converged after {solver.iteration} iterations (tolerance {controls.tolerance:g}); "
             "raise solver.max_iterations or restart from this result"
         )
+    extra: dict[str, Any] = {}
+    if model is not None and solver.fields.nu_tilde is not None:
+        nt = solver.fields.nu_tilde
+        nu = c.fluid.kinematic_viscosity
+        extra["cell_data"] = {
+            "nu_tilde": nt,
+            "nut_ratio": sa_eddy_viscosity(nt, nu) / nu,
+            "wall_distance": model.wall_distance,
+        }
     return Result(
         problem=problem, fields=solver.fields, history=solver.history, converged=bool(converged),
         iterations=solver.iteration, wall_seconds=seconds, grad_p=grad_p, message=message,
-        diverged=diverged,
+        diverged=diverged, extra=extra,
     )

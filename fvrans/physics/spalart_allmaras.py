@@ -1,0 +1,247 @@
+"""The Spalart-Allmaras one-equation eddy-viscosity model (segregated, one sweep per outer iteration).
+
+Model: Spalart & Allmaras 1994, La Recherche Aerospatiale 1, 5-21, in the form without trip term
+given by Allmaras, Johnson & Spalart 2012, ICCFD7-1902 (AJS 2012), for nu_tilde >= 0::
+
+    div(u nt) = cb1 (1 - f_t2) S_tilde nt - (cw1 f_w - cb1 f_t2 / kappa^2) (nt / d)^2
+                + (1/sigma) [div((nu + nt) grad nt) + cb2 |grad nt|^2]
+
+    nu_t = nt f_v1,  f_v1 = chi^3 / (chi^3 + cv1^3),  chi = nt / nu,
+    S_tilde = Omega + S_bar (S_bar = nt f_v2 / (kappa d)^2) with the AJS 2012 safeguard that keeps
+    S_tilde >= 0.3 Omega, r = min(nt / (S_tilde kappa^2 d^2), 10).
+
+Variant ``"no-ft2"`` sets f_t2 = 0. Negative nu_tilde (AJS 2012): production cb1 (1 - ct3) Omega nt,
+destruction -cw1 (nt/d)^2 (so the source is +cw1 (nt/d)^2), diffusivity nu + nt f_n,
+f_n = (cn1 + chi^3)/(cn1 - chi^3); nu_t = 0. Constants and scalar functions: ``_sa_kernels``.
+
+Discretisation: first-order upwind convection (``"linear-upwind"`` by deferred correction
+selectable) with the mass-imbalance term removed from the diagonal; diffusion with face
+diffusivity rho (nu + nt f_n)_f / sigma (linear interpolation) and over-relaxed non-orthogonal
+correction; the cb2 term explicit; the cell source P - D linearised by Newton's rule with its
+derivative on the diagonal where negative (destruction implicit, production explicit where it
+dominates; see ``_sa_kernels.assemble_sources``); Patankar's implicit under-relaxation (``relax``);
+symmetric Gauss-Seidel sweeps.
+
+Boundary values: nt = 0 on walls; nt = nut_ratio nu on velocity inlets and on freestream faces
+where the mass flux enters; zero normal gradient elsewhere (outlets, symmetry, freestream outflow).
+
+Scaled residual: sum_c |b - A nt|_c / (nt_scale sum_c a_P,c) of the unrelaxed linearised system at
+the current nt, with nt_scale = max(max_c |nt|, max inflow nt): the same form as the momentum
+residuals (sum |r| / (U sum a_P)).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from fvrans.errors import CaseError
+from fvrans.fv.assembly import Coefficients, CsrAssembler, under_relax
+from fvrans.fv.boundary import DIRICHLET, NEUMANN, BoundaryScalar, boundary_face_values
+from fvrans.fv.convection import convection_coefficients
+from fvrans.fv.diffusion import diffusion_coefficients
+from fvrans.fv.gradient import gradient_operator, limit_gradient
+from fvrans.mesh.geometry import Geometry
+from fvrans.mesh.mesh import Mesh
+from fvrans.physics import _sa_kernels as K
+from fvrans.physics.boundary import FREESTREAM, INLET, WALL, FlowBoundary
+from fvrans.solve._kernels import gauss_seidel
+from fvrans.solve.fields import Fields
+from fvrans.solve.simple import EddyViscosityModel
+
+#: the model constants (see ``_sa_kernels``; SA 1994 and AJS 2012)
+CONSTANTS = {
+    "cb1": K.CB1, "sigma": K.SIGMA, "cb2": K.CB2, "kappa": K.KAPPA, "cw1": K.CW1, "cw2": K.CW2,
+    "cw3": K.CW3, "cv1": K.CV1, "ct3": K.CT3, "ct4": K.CT4, "cv2": K.CV2, "cv3": K.CV3, "cn1": K.CN1,
+}
+VARIANTS = ("standard", "no-ft2")
+CONVECTION = ("upwind", "linear-upwind")
+
+
+def eddy_viscosity(nu_tilde: np.ndarray, nu: float, rho: float = 1.0) -> np.ndarray:
+    """mu_t = rho nu_tilde f_v1(nu_tilde / nu) per cell, 0 where nu_tilde < 0."""
+    nt = np.ascontiguousarray(nu_tilde, dtype=np.float64)
+    out = np.empty_like(nt)
+    K.eddy_viscosity(nt, float(nu), float(rho), out)
+    return out
+
+
+def source_terms(
+    nu_tilde: np.ndarray, nu: float, omega: np.ndarray, d: np.ndarray, variant: str = "standard"
+) -> tuple[np.ndarray, np.ndarray]:
+    """Production P and destruction D per point (source = P - D), by the published formulas."""
+    nt, om, dd = np.broadcast_arrays(*(np.asarray(a, dtype=float) for a in (nu_tilde, omega, d)))
+    P = np.empty(nt.shape)
+    D = np.empty(nt.shape)
+    use_ft2 = variant == "standard"
+    for i in np.ndindex(nt.shape):
+        p, dc = K.cell_source(float(nt[i]), float(nu), float(om[i]), float(dd[i]), use_ft2)
+        P[i] = p
+        D[i] = dc * nt[i]
+    return P, D
+
+
+class SpalartAllmaras(EddyViscosityModel):
+    """The SA model as seen by :class:`fvrans.solve.simple.SimpleSolver`.
+
+    ``mu`` is the molecular dynamic viscosity (nu = mu / rho); ``wall_distance`` (n_cells,) is
+    computed from the wall patches when not given. ``initial_nut_ratio`` sets nu_tilde = ratio nu
+    in a start without nu_tilde.
+    """
+
+    names = ("nu_tilde",)
+
+    def __init__(
+        self,
+        mesh: Mesh,
+        geom: Geometry,
+        boundary: FlowBoundary,
+        rho: float,
+        mu: float,
+        variant: str = "standard",
+        relax: float = 0.8,
+        convection: str = "upwind",
+        initial_nut_ratio: float = 3.0,
+        wall_distance: np.ndarray | None = None,
+        gradient: str = "least-squares",
+        limiter: str = "none",
+        sweeps: int = 10,
+        sweep_tolerance: float = 0.05,
+    ):
+        if variant not in VARIANTS:
+            raise CaseError(f"model.sa_variant = {variant!r} is not known; use one of {VARIANTS}")
+        if convection not in CONVECTION:
+            raise CaseError(f"solver.turbulence_convection = {convection!r} is not known; use one of {CONVECTION}")
+        if not 0.0 < relax <= 1.0:
+            raise CaseError(f"solver.relax_turbulence = {relax!r} must be in (0, 1]")
+        self.mesh = mesh
+        self.geom = geom
+        self.bc_flow = boundary
+        self.rho = float(rho)
+        self.nu = float(mu) / float(rho)
+        self.use_ft2 = variant == "standard"
+        self.variant = variant
+        self.relax = float(relax)
+        self.scheme = "linear_upwind" if convection == "linear-upwind" else "upwind"
+        self.limiter = None if limiter in ("none", None) else limiter.replace("-", "_")
+        self.initial_nut_ratio = float(initial_nut_ratio)
+        self.sweeps = int(sweeps)
+        self.sweep_tolerance = float(sweep_tolerance)
+        nc, ni = mesh.n_cells, mesh.n_internal_faces
+        if wall_distance is None:
+            walls = [name for name, kind in boundary.patch_kind.items() if kind == "wall"]
+            if not walls:
+                raise CaseError(
+                    f"{mesh.source}: the Spalart-Allmaras model needs at least one wall patch (kind = 'wall') "
+                    "to measure the wall distance; add one or use model.turbulence = 'none'"
+                )
+            from fvrans.physics.wall_distance import cell_wall_distance
+
+            wall_distance = cell_wall_distance(mesh, geom, walls)
+        d = np.ascontiguousarray(wall_distance, dtype=np.float64)
+        if d.shape != (nc,) or not np.all(d > 0.0):
+            raise ValueError(f"wall distance must be positive with shape ({nc},), got shape {d.shape}")
+        self.wall_distance = d
+        kind = boundary.kind
+        self.kind = kind
+        self.inflow_value = self.nu * boundary.nut_ratio
+        bkind = np.full(len(kind), NEUMANN, dtype=np.int8)
+        bval = np.zeros(len(kind))
+        bkind[kind == WALL] = DIRICHLET
+        bkind[kind == INLET] = DIRICHLET
+        bval[kind == INLET] = self.inflow_value[kind == INLET]
+        self.bc = BoundaryScalar(bkind, bval)
+        self.freestream = np.flatnonzero(kind == FREESTREAM)
+        self.grad = gradient_operator(mesh, geom, method=gradient.replace("-", "_"))
+        self.asm = CsrAssembler(mesh)
+        self.coeffs = Coefficients.zeros(mesh)
+        self.grad_nt = np.zeros((nc, 2))
+        self.nt_b = np.zeros(mesh.n_boundary_faces)
+        self.gamma_cell = np.zeros(nc)
+        self.gamma_b = np.zeros(mesh.n_boundary_faces)
+        self.gamma_f = np.zeros(mesh.n_faces)
+        self.mu_t = np.zeros(nc)
+        self.ni = ni
+        self.own_i = mesh.face_owner[:ni]
+        self.nei_i = mesh.face_neighbour[:ni]
+        self.w_i = geom.face_weight[:ni]
+        self.last_sweeps = 0
+
+    # -- interface of the solver -----------------------------------------------------------
+    def initial_nu_tilde(self) -> np.ndarray:
+        return np.full(self.mesh.n_cells, self.initial_nut_ratio * self.nu)
+
+    def _ensure(self, fields: Fields) -> np.ndarray:
+        if fields.nu_tilde is None or fields.nu_tilde.shape != (self.mesh.n_cells,):
+            fields.nu_tilde = self.initial_nu_tilde()
+        return fields.nu_tilde
+
+    def eddy_viscosity(self, fields: Fields) -> np.ndarray:
+        """mu_t = rho nu_tilde f_v1 per cell (0 where nu_tilde < 0)."""
+        nt = np.ascontiguousarray(self._ensure(fields), dtype=np.float64)
+        K.eddy_viscosity(nt, self.nu, self.rho, self.mu_t)
+        return self.mu_t
+
+    def wall_eddy_viscosity(self) -> float:
+        return 0.0  # nu_tilde = 0 on the wall
+
+    def update(self, fields: Fields, grad_u: np.ndarray) -> list[float]:
+        """Assemble and solve the nu_tilde equation once with the new velocity gradient and the
+        corrected face fluxes; returns [scaled residual]."""
+        nt = np.ascontiguousarray(self._ensure(fields), dtype=np.float64)
+        F = np.ascontiguousarray(fields.face_flux, dtype=np.float64)
+        ni = self.ni
+        bc = self.bc
+        # freestream faces: inflow value where the flux enters, zero gradient where it leaves
+        fs = self.freestream
+        if len(fs):
+            inflow = F[ni + fs] < 0.0
+            bc.kind[fs] = np.where(inflow, DIRICHLET, NEUMANN)
+            bc.value[fs] = np.where(inflow, self.inflow_value[fs], 0.0)
+        nt_b = boundary_face_values(self.mesh, self.geom, bc, nt, self.grad_nt, out=self.nt_b)
+        g = self.grad(nt, nt_b, out=self.grad_nt)
+        # face diffusivity rho (nu + nt f_n) / sigma
+        K.cell_diffusivity(nt, self.nu, self.gamma_cell)
+        K.cell_diffusivity(nt_b, self.nu, self.gamma_b)
+        s = self.rho / K.SIGMA
+        gf = self.gamma_f
+        gf[:ni] = s * (self.w_i * self.gamma_cell[self.own_i] + (1.0 - self.w_i) * self.gamma_cell[self.nei_i])
+        gf[ni:] = s * self.gamma_b
+        co = self.coeffs.clear()
+        diffusion_coefficients(self.mesh, self.geom, gf, bc, g, out=co)
+        if self.scheme == "linear_upwind" and self.limiter is not None:
+            gc, _ = limit_gradient(self.mesh, self.geom, nt, nt_b, g, self.limiter)
+        else:
+            gc = g
+        convection_coefficients(self.mesh, self.geom, F, nt_b, self.scheme, gc, out=co)
+        K.continuity_correction(self.mesh.face_owner, self.mesh.face_neighbour, ni, F, co.diag)
+        gu = np.ascontiguousarray(grad_u, dtype=np.float64)
+        K.assemble_sources(nt, self.nu, self.rho, self.geom.cell_area, self.wall_distance, gu, g,
+                           self.use_ft2, co.diag, co.source)
+        A = self.asm.matrix(co.diag, co.off_owner, co.off_neighbour)
+        r, a_sum = K.residual_sums(A.indptr, A.indices, A.data, self.asm.diag_pos, co.source, nt)
+        scale = max(float(np.max(np.abs(nt), initial=0.0)), float(np.max(self.inflow_value, initial=0.0)))
+        res = r / (scale * a_sum + 1e-300)
+        under_relax(co, nt, self.relax)
+        A = self.asm.matrix(co.diag, co.off_owner, co.off_neighbour)
+        x = nt.copy()
+        self.last_sweeps, _, _ = gauss_seidel(A.indptr, A.indices, A.data, self.asm.diag_pos, co.source, x,
+                                              self.sweeps, self.sweep_tolerance)
+        fields.nu_tilde = x
+        return [res]
+
+
+def model_for_case(case, mesh: Mesh, geom: Geometry, boundary: FlowBoundary,
+                   wall_distance: np.ndarray | None = None) -> SpalartAllmaras | None:
+    """The model a case asks for (None for laminar flow)."""
+    if case.model.turbulence == "none":
+        return None
+    s = case.solver
+    return SpalartAllmaras(
+        mesh, geom, boundary, rho=case.fluid.density, mu=case.fluid.viscosity, variant=case.model.sa_variant,
+        relax=s.relax_turbulence, convection=s.turbulence_convection, initial_nut_ratio=case.initial.nut_ratio,
+        wall_distance=wall_distance, gradient=s.gradient, limiter=s.limiter,
+    )
+
+
+__all__ = ["CONSTANTS", "SpalartAllmaras", "eddy_viscosity", "model_for_case", "source_terms"]
+
