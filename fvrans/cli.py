@@ -121,6 +121,20 @@ def _cmd_cases(args: argparse.Namespace) -> int:
     return 0
 
 
+def _cmd_compare(args: argparse.Namespace) -> int:
+    from fvrans.verify import compare_command
+
+    return compare_command(args.result_dir, args.spec, args.report)
+
+
+def _cmd_grid_study(args: argparse.Namespace) -> int:
+    from fvrans.verify import grid_study_command
+
+    return grid_study_command(
+        args.result_dirs, args.quantity, args.report, area=args.area, safety_factor=args.safety_factor
+    )
+
+
 def build_parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(
         prog="fvrans",
@@ -146,6 +160,22 @@ def build_parser() -> argparse.ArgumentParser:
     c = sub.add_parser("cases", help="list the case files of a folder with their descriptions")
     c.add_argument("--dir", default="cases", help="folder of case files (default: ./cases)")
     c.set_defaults(func=_cmd_cases)
+    k = sub.add_parser("compare", help="compare a result folder with reference data as a TOML spec describes")
+    k.add_argument("result_dir", help="folder written by 'fvrans run'")
+    k.add_argument("spec", help="comparison spec (TOML)")
+    k.add_argument("--report", required=True, help="folder for report.json, junit.xml, summary.md and plots")
+    k.set_defaults(func=_cmd_compare)
+
+    g = sub.add_parser("grid-study", help="observed order, Richardson extrapolation and GCI from 3+ result folders")
+    g.add_argument("result_dirs", nargs="+", help="result folders of one case on systematically refined grids")
+    g.add_argument(
+        "--quantity", action="append", required=True, metavar="DOTTED.KEY",
+        help="a scalar of summary.json, e.g. walls.plate.forces.Cd (repeatable)",
+    )
+    g.add_argument("--report", required=True, help="output folder")
+    g.add_argument("--area", type=float, default=None, help="domain area for h = sqrt(area / N)")
+    g.add_argument("--safety-factor", type=float, default=1.25, help="GCI safety factor (default 1.25)")
+    g.set_defaults(func=_cmd_grid_study)
     return p
 
 
