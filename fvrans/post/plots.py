@@ -1,0 +1,633 @@
+"""Plots of a result directory as PNG files (matplotlib, Agg canvas; pyplot is never imported).
+
+Every ``*_figure`` function returns a :class:`matplotlib.figure.Figure` attached to its own Agg
+canvas, so the global matplotlib state (backend, open figures) of a caller is left alone;
+:func:`make_plots` draws all plots of a run and saves them atomically into ``DIR/plots/``.
+
+Non-dimensional groups used in labels (reference values from ``summary.json``):
+``Cf = tau_w / (1/2 rho U_ref^2)``, ``Cp = (p - p_ref) / (1/2 rho U_ref^2)``, lengths over
+``L_ref``, velocities over ``U_ref``. Law of the wall in wall units: viscous sublayer
+``u+ = y+`` and log law ``u+ = ln(y+) / kappa + B`` with kappa = 0.41, B = 5.0 (Coles 1956;
+common practice).
+"""
+
+from __future__ import annotations
+
+import os
+import textwrap
+from collections.abc import Callable, Iterator, Mapping, Sequence
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.collections import PolyCollection
+from matplotlib.colors import Normalize, TwoSlopeNorm
+from matplotlib.figure import Figure
+
+from fvrans.errors import CaseError
+from fvrans.post._plot_data import FieldData, read_csv_columns, read_fields, read_summary
+from fvrans.post.writers import atomic_path
+
+__all__ = [
+    "DPI",
+    "FIGSIZE",
+    "FieldData",
+    "field_figure",
+    "make_plots",
+    "new_figure",
+    "plot_wall_profile",
+    "read_fields",
+    "residual_figure",
+    "result_figures",
+    "save_figure",
+    "wall_figure",
+    "wall_profile_figure",
+]
+
+FIGSIZE = (7.0, 4.0)  # inches
+DPI = 120
+KAPPA = 0.41  # von Karman constant (Coles 1956; common practice)
+B_LOG = 5.0  # log-law intercept (Coles 1956; common practice)
+
+#: a reference curve: ``(label, x, y)`` arrays or ``(label, f)`` with ``y = f(x)``
+Reference = tuple[str, Any, Any] | tuple[str, Callable[[np.ndarray], Any]]
+
+_WALL_LABELS = {
+    "cf": ("Cf", "Cf = τ_w / (½ ρ U_ref²) [-]"),
+    "cp": ("Cp", "Cp = (p − p_ref) / (½ ρ U_ref²) [-]"),
+    "y_plus": ("y+", "y+ of the wall cell [-]"),
+    "tau_w": ("τ_w", "τ_w (units of the case)"),
+    "p_wall": ("p", "wall pressure p (units of the case)"),
+    "u_tau": ("u_τ", "u_τ (units of the case)"),
+}
+_ZERO_SHEAR_LABEL = "zero shear (τ_w = 0)"
+
+
+# ---------------------------------------------------------------------------------------------
+def new_figure(size: tuple[float, float] = FIGSIZE) -> Figure:
+    """A figure with constrained layout on its own Agg canvas (no pyplot, no global state)."""
+    fig = Figure(figsize=size, dpi=DPI, layout="constrained")
+    FigureCanvasAgg(fig)
+    return fig
+
+
+def save_figure(fig: Figure, path: str | os.PathLike) -> Path:
+    """Save ``fig`` as PNG atomically (temporary file in the same directory, then os.replace)."""
+    target = Path(path)
+    with atomic_path(target, suffix=".png") as tmp:
+        fig.savefig(tmp, format="png", dpi=DPI)
+    return target
+
+
+def _title(case_title: str | None, what: str) -> str:
+    text = f"{case_title}: {what}" if case_title else what[:1].upper() + what[1:]
+    return "\n".join(textwrap.wrap(text, 80)) or text
+
+
+def _length_label(axis: str, l_ref: float | None) -> str:
+    if l_ref is None:
+        return axis
+    return f"{axis} / L_ref  (L_ref = {l_ref:g})"
+
+
+def _num(value: Any, default: float | None) -> float | None:
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        return default
+    return v if np.isfinite(v) else default
+
+
+# ---------------------------------------------------------------------------------------------
+def _residual_columns(source: str | os.PathLike | Mapping[str, Any]) -> tuple[np.ndarray, dict[str, np.ndarray]]:
+    if isinstance(source, Mapping):
+        cols = {str(k): np.asarray(v, dtype=float).ravel() for k, v in source.items()}
+        where = "the residual arrays"
+    else:
+        p = Path(source)
+        if p.is_dir():
+            p = p / "residuals.csv"
+        cols = read_csv_columns(p)
+        where = str(p)
+    names = [n for n in cols if n not in ("iteration", "seconds")]
+    if not names:
+        raise CaseError(f"{where}: no residual columns (only 'iteration'/'seconds'); nothing to plot")
+    n = len(cols[names[0]])
+    for k in names:
+        if len(cols[k]) != n:
+            raise CaseError(f"{where}: residual {k!r} has {len(cols[k])} values, {names[0]!r} has {n}")
+    it = cols.get("iteration", np.arange(1, n + 1, dtype=float))
+    if len(it) != n:
+        raise CaseError(f"{where}: 'iteration' has {len(it)} values, the residuals have {n}")
+    return it, {k: cols[k] for k in names}
+
+
+def residual_figure(
+    source: str | os.PathLike | Mapping[str, Any], title: str | None = None
+) -> Figure:
+    """Residual history on a log axis, one line per equation.
+
+    ``source``: ``residuals.csv`` (or the directory holding it) or a mapping name -> values
+    with an optional ``iteration`` entry (a ``seconds`` entry is ignored). ``title``: the case
+    title. Zero, negative and non-finite values are left out of the log plot.
+    """
+    it, res = _residual_columns(source)
+    fig = new_figure()
+    ax = fig.add_subplot()
+    marker = "o" if len(it) < 3 else None
+    for name, r in res.items():
+        y = np.where(np.isfinite(r) & (r > 0), r, np.nan)
+        ax.plot(it, y, label=name, lw=1.3, marker=marker)
+    ax.set_yscale("log")
+    ax.set_xlabel("outer iteration")
+    ax.set_ylabel("scaled residual [-]")
+    ax.set_title(_title(title, "residual history"), fontsize=11)
+    ax.grid(True, which="major", alpha=0.35)
+    ax.grid(True, which="minor", axis="y", alpha=0.12)
+    if len(it):
+        ax.set_xlim(float(np.min(it)), float(max(np.max(it), np.min(it) + 1)))
+    # the first iterations can hold round-off-sized values (e.g. a zero cross-flow start) that
+    # would stretch the log axis over many empty decades: scale to the rest of the history
+    later = np.stack(list(res.values()))[:, 2:] if len(it) > 5 else np.stack(list(res.values()))
+    pos = later[np.isfinite(later) & (later > 0)]
+    if len(pos):
+        ax.set_ylim(bottom=float(pos.min()) / 3.0)
+    if len(res) > 1:
+        ax.legend(loc="best", fontsize=9)
+    return fig
+
+
+# ---------------------------------------------------------------------------------------------
+def _choose_along(cols: Mapping[str, np.ndarray], along: str) -> str:
+    if along in ("x", "s"):
+        return along
+    if along != "auto":
+        raise CaseError(f"wall plot: along={along!r}; use 'x', 's' or 'auto'")
+    tx = cols.get("tx")
+    if tx is None or len(tx) == 0:
+        return "x"
+    # a wall with a good part running across the x direction (a vertical side) is plotted
+    # against the arc length, otherwise its points pile up on a few x values
+    return "s" if np.mean(np.abs(tx) < 0.5) > 0.2 else "x"
+
+
+def _reference_curves(
+    refs: Sequence[Reference], coord: np.ndarray, where: str
+) -> list[tuple[str, np.ndarray, np.ndarray]]:
+    out = []
+    for k, ref in enumerate(refs):
+        if not isinstance(ref, (tuple, list)) or len(ref) not in (2, 3):
+            raise CaseError(f"{where}: reference {k} must be (label, x, y) or (label, function of x)")
+        label = str(ref[0])
+        if len(ref) == 2:
+            f = ref[1]
+            if not callable(f):
+                raise CaseError(f"{where}: reference {label!r}: the second item must be a function of x")
+            lo, hi = (float(np.nanmin(coord)), float(np.nanmax(coord))) if len(coord) else (0.0, 1.0)
+            x = np.linspace(lo, hi, 400)
+            with np.errstate(all="ignore"):
+                y = np.broadcast_to(np.asarray(f(x), dtype=float), x.shape).copy()
+        else:
+            x = np.asarray(ref[1], dtype=float).ravel()
+            y = np.asarray(ref[2], dtype=float).ravel()
+            if len(x) != len(y):
+                raise CaseError(f"{where}: reference {label!r} has {len(x)} x values and {len(y)} y values")
+        ok = np.isfinite(x) & np.isfinite(y)
+        out.append((label, x[ok], y[ok]))
+    return out
+
+
+def wall_figure(
+    wall: str | os.PathLike | Mapping[str, Any],
+    quantity: str = "cf",
+    *,
+    title: str | None = None,
+    patch: str | None = None,
+    zero_shear: Sequence[float] = (),
+    references: Sequence[Reference] = (),
+    l_ref: float | None = None,
+    along: str = "auto",
+) -> Figure:
+    """A wall quantity (``cf``, ``cp`` or another column of ``wall/<patch>.csv``) along a wall.
+
+    The horizontal axis is x (or the arc length s when ``along="s"``, or with ``"auto"`` when a
+    fifth or more of the wall runs across x), divided by ``l_ref`` when given. ``zero_shear``:
+    positions (x, or s along s) of sign changes of the wall shear stress, drawn as vertical
+    lines. ``references``: ``(label, x, y)`` arrays or ``(label, f)`` with ``y = f(x)``, x in
+    the units of the wall table (the function is evaluated on 400 points over the wall).
+    """
+    if isinstance(wall, Mapping):
+        cols = {str(k): np.asarray(v, dtype=float).ravel() for k, v in wall.items()}
+        where = f"wall data {patch!r}" if patch else "wall data"
+    else:
+        where = str(wall)
+        cols = read_csv_columns(wall)
+        patch = patch or Path(wall).stem
+    quantity = quantity.lower()
+    along = _choose_along(cols, along)
+    missing = [c for c in (along, quantity) if c not in cols]
+    if missing:
+        raise CaseError(f"{where}: column(s) {', '.join(missing)} missing; it has {', '.join(cols)}")
+    coord, val = cols[along], cols[quantity]
+    seg = cols.get("segment", np.zeros(len(coord)))
+    scale = 1.0 / l_ref if l_ref else 1.0
+    short, ylabel = _WALL_LABELS.get(quantity, (quantity, quantity))
+
+    fig = new_figure()
+    ax = fig.add_subplot()
+    if quantity == "cf":
+        ax.axhline(0.0, color="0.55", lw=0.8, zorder=1)
+    first = True
+    for sg in np.unique(seg):
+        idx = np.nonzero(seg == sg)[0]
+        ax.plot(coord[idx] * scale, val[idx], color="C0", lw=1.5, marker="." if len(idx) <= 60 else None,
+                ms=4, label="computed" if first else None, zorder=3)
+        first = False
+    finite = val[np.isfinite(val)]
+    lo, hi = (float(finite.min()), float(finite.max())) if len(finite) else (0.0, 1.0)
+    for k, (label, x, y) in enumerate(_reference_curves(references, coord, where)):
+        ax.plot(x * scale, y, color=f"C{k + 1}", lw=1.4, ls=("--", "-.", ":")[k % 3], label=label, zorder=2)
+        if len(y) > 4:  # correlations can be singular at a leading edge: don't let that set the range
+            lo, hi = min(lo, float(np.percentile(y, 2))), max(hi, float(np.percentile(y, 98)))
+    if quantity == "cf":
+        lo, hi = min(lo, 0.0), max(hi, 0.0)
+    pad = 0.06 * (hi - lo) if hi > lo else max(abs(hi), 1.0) * 0.1
+    ax.set_ylim(lo - pad, hi + pad)
+    for k, z in enumerate(zero_shear):
+        ax.axvline(float(z) * scale, color="0.25", ls=":", lw=1.2, label=_ZERO_SHEAR_LABEL if k == 0 else None,
+                   zorder=2)
+    ax.set_xlabel(_length_label("x" if along == "x" else "s (arc length along the wall)", l_ref))
+    ax.set_ylabel(ylabel)
+    ax.set_title(_title(title, f"{short} along {patch}" if patch else f"{short} along the wall"), fontsize=11)
+    ax.grid(True, alpha=0.3)
+    if len(ax.get_legend_handles_labels()[1]) > 1:
+        ax.legend(loc="best", fontsize=9)
+    return fig
+
+
+# ---------------------------------------------------------------------------------------------
+def _field_values(fields: FieldData, quantity: str, reference: Mapping[str, Any] | None) -> tuple[np.ndarray, str, str]:
+    """(values, colour-bar label, short name) of a field quantity, non-dimensional if possible."""
+    ref = reference or {}
+    u_ref = _num(ref.get("u_ref"), None)
+    rho = _num(ref.get("rho"), None)
+    p_ref = _num(ref.get("p_ref"), 0.0)
+    if quantity in ("velocity", "velocity_magnitude"):
+        u = _get(fields, "velocity")
+        mag = np.hypot(u[:, 0], u[:, 1]) if u.ndim == 2 else np.abs(u)
+        if u_ref:
+            return mag / u_ref, "|U| / U_ref [-]", "velocity magnitude"
+        return mag, "|U| (units of the case)", "velocity magnitude"
+    if quantity == "pressure":
+        p = _get(fields, "pressure")
+        if u_ref and rho:
+            return (p - p_ref) / (0.5 * rho * u_ref**2), "Cp = (p − p_ref) / (½ ρ U_ref²) [-]", "pressure"
+        return p, "p (units of the case)", "pressure"
+    if quantity == "nut_ratio":
+        return _get(fields, "nut_ratio"), "ν_t / ν [-]", "eddy-viscosity ratio"
+    a = _get(fields, quantity)
+    if a.ndim == 2:
+        return np.hypot(a[:, 0], a[:, 1]), f"|{quantity}|", quantity
+    return a, quantity, quantity
+
+
+def _get(fields: FieldData, name: str) -> np.ndarray:
+    if name not in fields.data:
+        raise CaseError(f"{fields.source}: no cell data {name!r}; it has {', '.join(fields.data) or 'none'}")
+    a = np.asarray(fields.data[name], dtype=float)
+    return a[:, 0] if a.ndim == 2 and a.shape[1] == 1 else a
+
+
+def _colour_limits(values: np.ndarray) -> tuple[float, float, str]:
+    """Colour range and colour-bar ``extend`` mode.
+
+    The full range, unless a few cells hold extreme values (singular corners, stagnation
+    points) that would wash out the rest: when the 0.5-99.5 percentile range is less than
+    half of the full range, the colours span the percentiles and the bar gets arrows.
+    """
+    finite = values[np.isfinite(values)]
+    if not len(finite):
+        return 0.0, 1.0, "neither"
+    lo, hi = float(finite.min()), float(finite.max())
+    if len(finite) < 200:
+        return lo, hi, "neither"
+    plo, phi = (float(v) for v in np.percentile(finite, [0.5, 99.5]))
+    if phi - plo >= 0.5 * (hi - lo):
+        return lo, hi, "neither"
+    extend = {(True, True): "both", (True, False): "min", (False, True): "max"}.get((lo < plo, hi > phi), "neither")
+    return plo, phi, extend
+
+
+def _field_layout(w: float, h: float) -> tuple[tuple[float, float], str, tuple[float, float]]:
+    """Figure size, colour-bar location and approximate axes size (inches) for a w x h window."""
+    a = h / w if w > 0 else 1.0
+    if a < 0.6:  # wide: colour bar below, full width for the map
+        ax_w = 6.3
+        ax_h = ax_w * a
+        if ax_h > 3.4:
+            ax_h, ax_w = 3.4, 3.4 / a
+        return (max(ax_w + 0.9, 5.0), ax_h + 1.45), "bottom", (ax_w, ax_h)
+    ax_h = 4.6
+    ax_w = ax_h / a
+    if ax_w > 5.6:
+        ax_w, ax_h = 5.6, 5.6 * a
+    return (ax_w + 1.9, ax_h + 1.0), "right", (ax_w, ax_h)
+
+
+def _vertex_values(fields: FieldData, values: np.ndarray) -> np.ndarray:
+    """Cell values averaged to the mesh points, weighted by inverse distance to the cell
+    centroids (common practice); points used by no cell get 0."""
+    c = fields.centroids()
+    cell_ids, point_ids = [], []
+    start = 0
+    for b in fields.blocks:
+        m, k = b.shape
+        cell_ids.append(np.repeat(np.arange(start, start + m), k))
+        point_ids.append(b.ravel())
+        start += m
+    ci, pi = np.concatenate(cell_ids), np.concatenate(point_ids)
+    d = np.hypot(*(fields.points[pi] - c[ci]).T)
+    w = 1.0 / np.maximum(d, 1e-300)
+    n = len(fields.points)
+    wsum = np.bincount(pi, weights=w, minlength=n)
+    out = np.zeros((n,) + values.shape[1:])
+    for j in range(values.shape[1] if values.ndim == 2 else 1):
+        v = values[:, j] if values.ndim == 2 else values
+        acc = np.bincount(pi, weights=w * v[ci], minlength=n)
+        col = np.divide(acc, wsum, out=np.zeros(n), where=wsum > 0)
+        if values.ndim == 2:
+            out[:, j] = col
+        else:
+            out[:] = col
+    return out
+
+
+def _draw_streamlines(ax: Any, fields: FieldData, window: tuple[float, float, float, float],
+                      scale: float, axes_inches: tuple[float, float]) -> None:
+    """Streamlines of the cell velocities on a regular grid over ``window``.
+
+    The velocities are averaged to the mesh points and interpolated linearly on a fan
+    triangulation of the cells (matplotlib.tri); grid points outside every cell are masked, so
+    streamlines stop at walls and bodies. (scipy's griddata on the cell centroids was measured
+    at several seconds for 4000 cells: its point location falls back to a search of all
+    triangles for every grid point outside the centroids' hull, i.e. the whole wall band.)
+    """
+    from matplotlib.tri import LinearTriInterpolator, Triangulation
+
+    u = _get(fields, "velocity")
+    if u.ndim != 2:
+        return
+    x0, x1, y0, y1 = window
+    w, h = x1 - x0, y1 - y0
+    n_long = 260
+    nx = max(int(n_long * min(1.0, w / h)), 24)
+    ny = max(int(n_long * min(1.0, h / w)), 24)
+    xs, ys = np.linspace(x0, x1, nx), np.linspace(y0, y1, ny)
+    xg, yg = np.meshgrid(xs, ys)
+    try:
+        tri = Triangulation(fields.points[:, 0], fields.points[:, 1], fields.triangles())
+        finder = tri.get_trifinder()
+    except (RuntimeError, ValueError):  # overlapping triangles (non-convex cells): no streamlines
+        return
+    uv = _vertex_values(fields, u[:, :2])
+    U = LinearTriInterpolator(tri, uv[:, 0], trifinder=finder)(xg, yg)
+    V = LinearTriInterpolator(tri, uv[:, 1], trifinder=finder)(xg, yg)
+    if not np.any(np.ma.filled(np.hypot(U, V), 0.0) > 0):
+        return
+    # streamplot puts about 30 * density lines across the axes: aim at ~0.13 in between lines,
+    # and at least 6 lines across a slender domain
+    spacing = 0.13
+    density = (max(axes_inches[0] / (30 * spacing), 0.2), max(axes_inches[1] / (30 * spacing), 0.2))
+    ax.streamplot(xs * scale, ys * scale, U, V, density=density, color="white", linewidth=0.6,
+                  arrowsize=0.6, broken_streamlines=True, zorder=3)
+
+
+def field_figure(
+    fields: str | os.PathLike | FieldData,
+    quantity: str = "velocity",
+    *,
+    title: str | None = None,
+    reference: Mapping[str, Any] | None = None,
+    mesh_edges: bool = False,
+    streamlines: bool = False,
+    window: tuple[float, float, float, float] | None = None,
+    cmap: str | None = None,
+) -> Figure:
+    """A cell-data map on the mesh cells (flat colour per cell), equal aspect, with colour bar.
+
+    ``quantity``: ``"velocity"`` (magnitude, over U_ref), ``"pressure"`` (as Cp), ``"nut_ratio"``
+    or the name of any cell array (vectors as magnitudes). ``reference``: the ``reference``
+    block of summary.json (rho, u_ref, p_ref, l_ref) for non-dimensional values; without it
+    values are in the units of the case. ``window``: (xmin, xmax, ymin, ymax) in case units to
+    zoom in. ``streamlines``: cell velocities interpolated linearly (scipy ``griddata``) to a
+    regular grid, points outside the cells masked, drawn with ``streamplot``.
+    """
+    if not isinstance(fields, FieldData):
+        fields = read_fields(fields)
+    values, label, name = _field_values(fields, quantity, reference)
+    l_ref = _num((reference or {}).get("l_ref"), None)
+    scale = 1.0 / l_ref if l_ref else 1.0
+    x0, x1, y0, y1 = window if window is not None else fields.bounds()
+    if not (x1 > x0 and y1 > y0):
+        raise CaseError(f"{fields.source}: empty plot window {(x0, x1, y0, y1)}; give xmin < xmax, ymin < ymax")
+    size, cbar_loc, ax_in = _field_layout(x1 - x0, y1 - y0)
+    fig = new_figure(size)
+    ax = fig.add_subplot()
+    polys = [p * scale for p in fields.polygons()]
+    c = fields.centroids()
+    seen = (c[:, 0] >= x0) & (c[:, 0] <= x1) & (c[:, 1] >= y0) & (c[:, 1] <= y1)
+    lo, hi, extend = _colour_limits(values[seen] if seen.any() else values)  # colours for what is shown
+    if hi - lo <= 1e-9 * max(abs(lo), abs(hi)) or hi <= lo:  # a uniform field: a readable band around it
+        half = max(0.05 * abs(lo), 1e-12)
+        lo, hi, extend = lo - half, hi + half, "neither"
+    if min(-lo, hi) > 0.1 * (hi - lo):  # clearly of both signs: diverging colours, white at zero
+        norm: Any = TwoSlopeNorm(vcenter=0.0, vmin=lo, vmax=hi)
+        default_cmap = "RdBu_r"
+    else:
+        norm = Normalize(vmin=lo, vmax=hi)
+        default_cmap = "viridis"
+    coll = PolyCollection(polys, array=values, cmap=cmap or default_cmap, norm=norm, antialiased=mesh_edges,
+                          zorder=1)
+    if mesh_edges:
+        coll.set_edgecolor((0.5, 0.5, 0.5, 0.7))  # visible on dark and on light colours
+        coll.set_linewidth(0.3)
+    else:
+        coll.set_edgecolor("face")
+        coll.set_linewidth(0.0)
+    ax.add_collection(coll)
+    if streamlines and "velocity" in fields.data:
+        _draw_streamlines(ax, fields, (x0, x1, y0, y1), scale, ax_in)
+    ax.set_xlim(x0 * scale, x1 * scale)
+    ax.set_ylim(y0 * scale, y1 * scale)
+    ax.set_aspect("equal")
+    ax.set_xlabel(_length_label("x", l_ref))
+    ax.set_ylabel(_length_label("y", l_ref) if l_ref is None else "y / L_ref")
+    ax.set_title(_title(title, name), fontsize=11)
+    kw: dict[str, Any] = {"location": cbar_loc, "label": label, "extend": extend}
+    if cbar_loc == "bottom":
+        kw.update(aspect=45, fraction=0.08, pad=0.02)
+    else:
+        kw.update(aspect=30, fraction=0.05, pad=0.02)
+    cbar = fig.colorbar(coll, ax=ax, **kw)
+    if hasattr(cbar.formatter, "set_useOffset"):
+        cbar.formatter.set_useOffset(False)
+    return fig
+
+
+# ---------------------------------------------------------------------------------------------
+def wall_profile_figure(
+    y_plus: Any,
+    u_plus: Any,
+    *,
+    label: str = "computed",
+    title: str | None = None,
+    kappa: float = KAPPA,
+    b: float = B_LOG,
+) -> Figure:
+    """A velocity profile in wall units on a semilog axis with the law of the wall.
+
+    Drawn: the profile, the viscous sublayer ``u+ = y+`` (up to y+ = 15) and the log law
+    ``u+ = ln(y+) / kappa + b`` (from y+ = 5); kappa = 0.41, b = 5.0 (Coles 1956; common
+    practice). Points with y+ <= 0 cannot be shown on the log axis and are left out.
+    """
+    yp = np.asarray(y_plus, dtype=float).ravel()
+    up = np.asarray(u_plus, dtype=float).ravel()
+    if len(yp) != len(up):
+        raise CaseError(f"wall profile: {len(yp)} y+ values but {len(up)} u+ values")
+    ok = np.isfinite(yp) & np.isfinite(up) & (yp > 0)
+    yp, up = yp[ok], up[ok]
+    order = np.argsort(yp)
+    yp, up = yp[order], up[order]
+    y_lo = min(float(yp.min()) if len(yp) else 1.0, 1.0) * 0.8
+    y_hi = max(float(yp.max()) if len(yp) else 100.0, 100.0) * 1.25
+    fig = new_figure()
+    ax = fig.add_subplot()
+    ax.plot(yp, up, color="C0", lw=1.5, marker="o" if len(yp) <= 40 else None, ms=3.5, label=label, zorder=3)
+    yl = np.geomspace(y_lo, min(15.0, y_hi), 100)
+    ax.plot(yl, yl, color="C1", ls="--", lw=1.3, label="u+ = y+", zorder=2)
+    yg = np.geomspace(max(5.0, y_lo), y_hi, 100)
+    ax.plot(yg, np.log(yg) / kappa + b, color="C2", ls="-.", lw=1.3,
+            label=f"u+ = ln(y+) / {kappa:g} + {b:g}", zorder=2)
+    ax.set_xscale("log")
+    ax.set_xlim(y_lo, y_hi)
+    top = max(float(up.max()) if len(up) else 0.0, float(np.log(y_hi) / kappa + b))
+    ax.set_ylim(0.0, 1.08 * top)
+    ax.set_xlabel("y+ = y u_τ / ν [-]")
+    ax.set_ylabel("u+ = u / u_τ [-]")
+    ax.set_title(_title(title, "velocity profile in wall units"), fontsize=11)
+    ax.grid(True, which="major", alpha=0.35)
+    ax.grid(True, which="minor", axis="x", alpha=0.12)
+    ax.legend(loc="upper left", fontsize=9)
+    return fig
+
+
+def plot_wall_profile(
+    y_plus: Any, u_plus: Any, path: str | os.PathLike | None = None, **kwargs: Any
+) -> Figure:
+    """:func:`wall_profile_figure`, saved as PNG to ``path`` when given; returns the figure."""
+    fig = wall_profile_figure(y_plus, u_plus, **kwargs)
+    if path is not None:
+        save_figure(fig, path)
+    return fig
+
+
+# ---------------------------------------------------------------------------------------------
+def _check_references(references: Mapping[str, Any] | None, walls: Sequence[str], where: Path) -> None:
+    for patch, by_q in (references or {}).items():
+        if patch not in walls:
+            raise CaseError(
+                f"{where}: references given for {patch!r}, which is not a wall of this run; "
+                f"walls: {', '.join(walls) or 'none'}"
+            )
+        if not isinstance(by_q, Mapping):
+            raise CaseError(f"references[{patch!r}] must map 'cf'/'cp' to a list of reference curves")
+        bad = [q for q in by_q if str(q).lower() not in ("cf", "cp")]
+        if bad:
+            raise CaseError(f"references[{patch!r}]: quantity {bad[0]!r}; use 'cf' or 'cp'")
+
+
+def result_figures(
+    result_dir: str | os.PathLike,
+    references: Mapping[str, Mapping[str, Sequence[Reference]]] | None = None,
+    *,
+    mesh_edges: bool = False,
+    streamlines: bool = True,
+) -> Iterator[tuple[str, Figure]]:
+    """Yield ``(file name, figure)`` for every plot the files of ``result_dir`` allow.
+
+    ``residuals.png``; ``wall_<patch>_cf.png`` and ``wall_<patch>_cp.png`` per wall table, with
+    the zero-shear points of summary.json and the curves of ``references[patch]["cf" | "cp"]``
+    (see :func:`wall_figure`); ``field_velocity.png`` (with streamlines), ``field_pressure.png``
+    and ``field_nut_ratio.png`` (when present) from fields.vtu; ``profile_<name>.png`` for each
+    ``profiles/<name>.csv`` with ``y_plus`` and ``u_plus`` columns. Input problems are checked
+    before the first figure is made.
+    """
+    rd = Path(result_dir)
+    if not rd.is_dir():
+        raise CaseError(f"{rd}: no such result directory; give the --out directory of a run")
+    summary = read_summary(rd / "summary.json")
+    title = summary.get("title") if isinstance(summary.get("title"), str) else None
+    reference = summary.get("reference") if isinstance(summary.get("reference"), Mapping) else None
+    l_ref = _num((reference or {}).get("l_ref"), None)
+    walls_info = summary.get("walls") if isinstance(summary.get("walls"), Mapping) else {}
+    wall_files = sorted((rd / "wall").glob("*.csv")) if (rd / "wall").is_dir() else []
+    _check_references(references, [p.stem for p in wall_files], rd)
+    profile_files = sorted((rd / "profiles").glob("*.csv")) if (rd / "profiles").is_dir() else []
+    have_res = (rd / "residuals.csv").is_file()
+    have_fields = (rd / "fields.vtu").is_file()
+    if not (have_res or have_fields or wall_files or profile_files):
+        raise CaseError(
+            f"{rd}: no result files to plot (residuals.csv, fields.vtu, wall/*.csv, profiles/*.csv); "
+            "give the --out directory of a run"
+        )
+    return _result_figures(rd, title, reference, l_ref, walls_info, wall_files, profile_files, have_res,
+                           have_fields, references or {}, mesh_edges, streamlines)
+
+
+def _result_figures(rd: Path, title: str | None, reference: Mapping[str, Any] | None, l_ref: float | None,
+                    walls_info: Mapping[str, Any], wall_files: list[Path], profile_files: list[Path],
+                    have_res: bool, have_fields: bool, references: Mapping[str, Any], mesh_edges: bool,
+                    streamlines: bool) -> Iterator[tuple[str, Figure]]:
+    if have_res:
+        yield "residuals.png", residual_figure(rd / "residuals.csv", title=title)
+    for wf in wall_files:
+        patch = wf.stem
+        cols = read_csv_columns(wf)
+        along = _choose_along(cols, "auto")
+        info = walls_info.get(patch) if isinstance(walls_info.get(patch), Mapping) else {}
+        zs = [z for z in (info.get(f"shear_sign_change_{along}") or []) if z is not None]
+        refs = {str(k).lower(): v for k, v in (references.get(patch) or {}).items()}
+        for q in ("cf", "cp"):
+            if q in cols:
+                yield f"wall_{patch}_{q}.png", wall_figure(
+                    cols, q, title=title, patch=patch, zero_shear=zs, references=refs.get(q, ()), l_ref=l_ref,
+                    along=along)
+    if have_fields:
+        fields = read_fields(rd / "fields.vtu")
+        for q in ("velocity", "pressure", "nut_ratio"):
+            if q in fields.data:
+                yield f"field_{q}.png", field_figure(fields, q, title=title, reference=reference,
+                                                     mesh_edges=mesh_edges,
+                                                     streamlines=streamlines and q == "velocity")
+    for pf in profile_files:
+        cols = read_csv_columns(pf)
+        if "y_plus" in cols and "u_plus" in cols:
+            yield f"profile_{pf.stem}.png", wall_profile_figure(cols["y_plus"], cols["u_plus"], title=title,
+                                                                label=pf.stem)
+
+
+def make_plots(
+    result_dir: str | os.PathLike,
+    out_dir: str | os.PathLike | None = None,
+    references: Mapping[str, Mapping[str, Sequence[Reference]]] | None = None,
+    *,
+    mesh_edges: bool = False,
+    streamlines: bool = True,
+) -> list[Path]:
+    """Save the figures of :func:`result_figures` as PNGs into ``out_dir`` (default
+    ``result_dir/plots``), each atomically; return the paths written."""
+    figures = result_figures(result_dir, references, mesh_edges=mesh_edges, streamlines=streamlines)
+    out = Path(out_dir) if out_dir is not None else Path(result_dir) / "plots"
+    out.mkdir(parents=True, exist_ok=True)
+    return [save_figure(fig, out / name) for name, fig in figures]
