@@ -30,35 +30,60 @@ from typing import Any
 import numpy as np
 
 from fvrans.errors import DivergenceError
-from fvrans.fv._assembly_kernels import csr_refill
 from fvrans.fv.assembly import CsrAssembler
 from fvrans.fv.gradient import gradient_operator
+from fvrans.linalg.amg import AmgKrylovSolver
 from fvrans.linalg.pressure import PressureSolver
 from fvrans.mesh.geometry import Geometry
 from fvrans.mesh.mesh import Mesh
-from fvrans.physics.boundary import FREESTREAM, INLET, OUTLET, SYMMETRY, WALL, FlowBoundary
+from fvrans.physics.boundary import SYMMETRY, WALL, FlowBoundary
 from fvrans.solve import _kernels as K
 from fvrans.solve.fields import Fields
 
 log = logging.getLogger(__name__)
 
+#: phases of an outer iteration timed in ``SimpleSolver.timing`` (seconds, accumulated)
+PHASES = (
+    "gradients", "momentum assembly", "momentum solve", "Rhie-Chow + p' assembly", "p' solve", "corrections",
+)
+
+
+#: default velocity under-relaxation per coupling: 0.7 for SIMPLE is common practice; 0.95 for
+#: SIMPLEC was the fastest of 0.7-0.98 on the Re = 100 and 1000 cavity (benchmarks/bench_cavity.py)
+DEFAULT_RELAX_VELOCITY = {"simplec": 0.95, "simple": 0.7}
+
 
 @dataclass
 class SolverControls:
-    """Numerical settings of the loop (the case file's [solver] table)."""
+    """Numerical settings of the loop (the case file's [solver] table).
+
+    ``relax_velocity`` / ``relax_pressure`` None take the coupling's default. ``momentum_solver``:
+    'amg' (BiCGStab preconditioned by a reused AMG V-cycle, at most ``momentum_max_iterations``
+    iterations, relative L2 tolerance ``momentum_tolerance``) or 'gauss-seidel' (at most
+    ``momentum_sweeps`` symmetric sweeps, relative L1 tolerance ``momentum_tolerance``).
+    ``amg_rebuild_every``: outer iterations between AMG set-ups (pressure and momentum).
+    """
 
     coupling: str = "simplec"
     max_iterations: int = 5000
     tolerance: float = 1e-6
-    relax_velocity: float = 0.7
+    relax_velocity: float | None = None
     relax_pressure: float | None = None
     convection: str = "linear-upwind"
     gradient: str = "least-squares"
     pressure_tolerance: float = 0.01
+    momentum_solver: str = "amg"
     momentum_tolerance: float = 0.1
     momentum_sweeps: int = 5
+    momentum_max_iterations: int = 20
     amg_rebuild_every: int = 20
     divergence_factor: float = 1e5
+
+    @property
+    def alpha_u(self) -> float:
+        if self.relax_velocity is not None:
+            return float(self.relax_velocity)
+        return DEFAULT_RELAX_VELOCITY.get(self.coupling, 0.7)
 
     @property
     def alpha_p(self) -> float:
@@ -152,13 +177,45 @@ class SimpleSolver:
             CsrAssembler(mesh), rtol=self.ctl.pressure_tolerance, rebuild_every=self.ctl.amg_rebuild_every,
             singular=not boundary.has_fixed_pressure,
         )
-        # work arrays
+        if self.ctl.momentum_solver not in ("amg", "gauss-seidel"):
+            raise ValueError(
+                f"unknown momentum_solver {self.ctl.momentum_solver!r}; use 'amg' or 'gauss-seidel'"
+            )
+        # one hierarchy serves both velocity components (same off-diagonals), so it is rebuilt
+        # after 2 x amg_rebuild_every solves
+        self.msolver = AmgKrylovSolver(
+            "bicgstab", rtol=self.ctl.momentum_tolerance, rebuild_every=2 * self.ctl.amg_rebuild_every,
+            max_iterations=self.ctl.momentum_max_iterations,
+        )
+        # work arrays, reused every iteration
+        nb = nf - ni
         self.diag_u = np.zeros(nc)
         self.diag_v = np.zeros(nc)
         self.off_own = np.zeros(ni)
         self.off_nei = np.zeros(ni)
         self.bu = np.zeros(nc)
         self.bv = np.zeros(nc)
+        self.b_np = np.zeros((nc, 2))
+        self.a_rel = np.zeros((nc, 2))
+        self.rhs_u = np.zeros(nc)
+        self.rhs_v = np.zeros(nc)
+        self.work2 = np.zeros((nc, 2))
+        self.us = np.zeros(nc)
+        self.vs = np.zeros(nc)
+        self.hbya = np.zeros((nc, 2))
+        self.rau = np.zeros(nc)
+        self.dp = np.zeros(nc)
+        self.pc = np.zeros(nc)
+        self.pcb = np.zeros(nb)
+        self.pb = np.zeros(nb)
+        self.ub = np.zeros((nb, 2))
+        self.muf = np.zeros(nf)
+        self.mu_cell = np.full(nc, self.mu)
+        self.gu = np.zeros((nc, 2, 2))
+        self.gpc = np.zeros((nc, 2))
+        self.grad_p_buf = (np.zeros((nc, 2)), np.zeros((nc, 2)))
+        #: accumulated seconds per phase, see ``PHASES``
+        self.timing = np.zeros(len(PHASES))
         self.p_diag = np.zeros(nc)
         self.p_off = np.zeros(ni)
         self.p_rhs = np.zeros(nc)
@@ -198,40 +255,23 @@ class SimpleSolver:
         return F
 
     def _velocity_on_boundary(self, u: np.ndarray, Fb: np.ndarray) -> np.ndarray:
-        kind = self.bc.kind
-        uP = u[self.owner[self.ni :]]
-        n = self.geom.face_normal[self.ni :]
-        ub = uP.copy()
-        fixed = (kind == WALL) | (kind == INLET) | ((kind == FREESTREAM) & (Fb < 0))
-        ub[fixed] = self.bc.velocity[fixed]
-        sym = kind == SYMMETRY
-        un = np.einsum("ij,ij->i", uP, n)
-        ub[sym] = uP[sym] - un[sym, None] * n[sym]
-        rev = (kind == OUTLET) & (Fb < 0)
-        ub[rev] = un[rev, None] * n[rev]
+        """Boundary-face velocities for cell velocities ``u`` and boundary mass fluxes ``Fb``."""
+        ni = self.ni
+        F = np.zeros(self.nf)
+        F[ni:] = Fb
+        ub = np.empty((self.nf - ni, 2))
+        K.boundary_velocity(self.owner, ni, self.geom.face_normal, self.bc.kind, self.bc.velocity,
+                            np.ascontiguousarray(u, dtype=float), F, ub)
         return ub
 
     def _pressure_on_boundary(self, gp: np.ndarray) -> np.ndarray:
         """Fixed p on outlets and freestream; elsewhere linear extrapolation from the owner,
         p_b = p_P + grad p_P . (x_f - x_P), with the latest gradient (at convergence the boundary
         faces add nothing to the least-squares fit: a one-sided, second-order gradient)."""
-        ni = self.ni
-        P = self.owner[ni:]
-        d = self.geom.face_delta[ni:]
-        pb = self.fields.pressure[P] + np.einsum("ij,ij->i", gp[P], d)
-        fixed = (self.bc.kind == OUTLET) | (self.bc.kind == FREESTREAM)
-        pb[fixed] = self.bc.pressure[fixed]
+        pb = np.empty(self.nf - self.ni)
+        K.boundary_pressure(self.owner, self.ni, self.geom.face_delta, self.bc.kind, self.bc.pressure,
+                            self.fields.pressure, gp, pb)
         return pb
-
-    def _face_viscosity(self, mu_cell: np.ndarray) -> np.ndarray:
-        ni = self.ni
-        w = self.geom.face_weight
-        muf = np.empty(self.nf)
-        muf[:ni] = w[:ni] * mu_cell[self.owner[:ni]] + (1 - w[:ni]) * mu_cell[self.neigh]
-        muf[ni:] = mu_cell[self.owner[ni:]]
-        wall = self.bc.kind == WALL
-        muf[ni:][wall] = self.mu + self.model.wall_eddy_viscosity()
-        return muf
 
     # -- one outer iteration ---------------------------------------------------------------
     def iterate(self) -> list[float]:
@@ -240,92 +280,95 @@ class SimpleSolver:
         ctl = self.ctl
         rho = self.rho
         ni = self.ni
-        alpha = float(ctl.relax_velocity)
-        u_old = fl.velocity.copy()
-        F_old = fl.face_flux.copy()
+        g = self.geom
+        kind = self.bc.kind
+        alpha = ctl.alpha_u
+        u_old = fl.velocity
+        F_old = fl.face_flux
+        t = self.timing
+        t0 = time.perf_counter()
         mu_t = self.model.eddy_viscosity(fl)
-        mu_cell = np.full(self.nc, self.mu) if mu_t is None else self.mu + mu_t
-        muf = self._face_viscosity(mu_cell)
-        ub = self._velocity_on_boundary(u_old, F_old[ni:])
-        gu = self.grad(u_old, ub)
+        if mu_t is None:
+            mu_cell = self.mu_cell
+        else:
+            mu_cell = self.mu + mu_t
+        K.face_viscosity(self.owner, self.neigh, ni, g.face_weight, mu_cell, kind,
+                         self.mu + self.model.wall_eddy_viscosity(), self.muf)
+        K.boundary_velocity(self.owner, ni, g.face_normal, kind, self.bc.velocity, u_old, F_old, self.ub)
+        t1 = time.perf_counter()
+        gu = self.grad(u_old, self.ub, out=self.gu)
+        t2 = time.perf_counter()
         K.assemble_momentum(
-            self.owner, self.neigh, ni, self.S, self.dcoef, self.kvec, self.geom.face_weight,
-            self.geom.face_centre, self.geom.cell_centre, F_old, muf, u_old, gu, self.bc.kind,
+            self.owner, self.neigh, ni, self.S, self.dcoef, self.kvec, g.face_weight,
+            g.face_centre, g.cell_centre, F_old, self.muf, u_old, gu, kind,
             self.bc.velocity, ctl.convection == "linear-upwind",
             self.diag_u, self.diag_v, self.off_own, self.off_nei, self.bu, self.bv,
         )
-        # body force and pressure gradient (cell gradient, Rhie-Chow handles the coupling)
-        V = self.vol
-        self.bu += V * self.body[:, 0]
-        self.bv += V * self.body[:, 1]
+        # body force and pressure gradient (cell gradient, Rhie-Chow handles the coupling),
+        # residuals of the current velocity, implicit under-relaxation (Patankar 1980, sec. 4.2-5)
         gp = self.grad_p
-        bu_np = self.bu.copy()  # sources without the pressure gradient, for H/A
-        bv_np = self.bv.copy()
-        self.bu -= V * gp[:, 0]
-        self.bv -= V * gp[:, 1]
-        mu_ = self.asm_u.matrix(self.diag_u, self.off_own, self.off_nei)
-        mv_ = self.asm_v.matrix(self.diag_v, self.off_own, self.off_nei)
-        norm_u = self.u_scale * float(np.sum(self.diag_u)) + 1e-300
-        norm_v = self.u_scale * float(np.sum(self.diag_v)) + 1e-300
-        res_u = K.csr_residual_l1(mu_.indptr, mu_.indices, mu_.data, u_old[:, 0].copy(), self.bu) / norm_u
-        res_v = K.csr_residual_l1(mv_.indptr, mv_.indices, mv_.data, u_old[:, 1].copy(), self.bv) / norm_v
-        # implicit under-relaxation (Patankar 1980, sec. 4.2-5)
-        Au = self.diag_u / alpha
-        Av = self.diag_v / alpha
-        relax_u = (1.0 - alpha) * Au * u_old[:, 0]
-        relax_v = (1.0 - alpha) * Av * u_old[:, 1]
-        csr_refill(self.asm_u.diag_pos, self.asm_u.owner_pos, self.asm_u.neigh_pos, Au, self.off_own,
-                   self.off_nei, mu_.data)
-        csr_refill(self.asm_v.diag_pos, self.asm_v.owner_pos, self.asm_v.neigh_pos, Av, self.off_own,
-                   self.off_nei, mv_.data)
-        us = u_old[:, 0].copy()
-        vs = u_old[:, 1].copy()
-        K.gauss_seidel(mu_.indptr, mu_.indices, mu_.data, self.asm_u.diag_pos, self.bu + relax_u, us,
-                       ctl.momentum_sweeps, ctl.momentum_tolerance)
-        K.gauss_seidel(mv_.indptr, mv_.indices, mv_.data, self.asm_v.diag_pos, self.bv + relax_v, vs,
-                       ctl.momentum_sweeps, ctl.momentum_tolerance)
-        ustar = np.stack([us, vs], axis=1)
-        # H/A without the relaxation term: ((b - N u*) / A) , A the relaxed diagonal
-        nu_star = np.empty((self.nc, 2))
-        K.offdiag_product(self.owner, self.neigh, self.off_own, self.off_nei, ustar, nu_star)
-        hbya = np.empty((self.nc, 2))
-        hbya[:, 0] = (bu_np - nu_star[:, 0]) / Au
-        hbya[:, 1] = (bv_np - nu_star[:, 1]) / Av
-        A = 0.5 * (Au + Av)
-        rau = V / A
-        pb = self._pressure_on_boundary(gp)
+        ru, rv, su, sv = K.momentum_sources(
+            self.owner, self.neigh, self.vol, self.body, gp, u_old, alpha, self.diag_u, self.diag_v,
+            self.off_own, self.off_nei, self.bu, self.bv, self.b_np, self.a_rel, self.rhs_u, self.rhs_v,
+            self.work2,
+        )
+        res_u = ru / (self.u_scale * su + 1e-300)
+        res_v = rv / (self.u_scale * sv + 1e-300)
+        mu_ = self.asm_u.matrix(self.a_rel[:, 0], self.off_own, self.off_nei)
+        mv_ = self.asm_v.matrix(self.a_rel[:, 1], self.off_own, self.off_nei)
+        t3 = time.perf_counter()
+        us, vs = self.us, self.vs
+        us[:] = u_old[:, 0]
+        vs[:] = u_old[:, 1]
+        if ctl.momentum_solver == "amg":
+            self.msolver.solve(mu_, self.rhs_u, us)
+            self.msolver.solve(mv_, self.rhs_v, vs)
+        else:
+            K.gauss_seidel(mu_.indptr, mu_.indices, mu_.data, self.asm_u.diag_pos, self.rhs_u, us,
+                           ctl.momentum_sweeps, ctl.momentum_tolerance)
+            K.gauss_seidel(mv_.indptr, mv_.indices, mv_.data, self.asm_v.diag_pos, self.rhs_v, vs,
+                           ctl.momentum_sweeps, ctl.momentum_tolerance)
+        t4 = time.perf_counter()
+        # H/A without the relaxation term: ((b - N u*) / A), A the relaxed diagonal; D for p'
+        K.interpolation_coefficients(
+            self.owner, self.neigh, self.vol, self.off_own, self.off_nei, self.a_rel, self.b_np, us, vs,
+            ctl.coupling == "simplec", self.hbya, self.rau, self.dp, self.work2,
+        )
+        dp = self.dp
+        K.boundary_pressure(self.owner, ni, g.face_delta, kind, self.bc.pressure, fl.pressure, gp, self.pb)
         F = np.empty(self.nf)
         K.rhie_chow_fluxes(
-            self.owner, self.neigh, ni, self.S, self.dcoef, self.kvec, self.geom.face_weight,
-            self.geom.face_skew, gu, rho, hbya, rau, fl.pressure, gp, pb, self.bc.kind, self.bc.velocity,
+            self.owner, self.neigh, ni, self.S, self.dcoef, self.kvec, g.face_weight,
+            g.face_skew, gu, rho, self.hbya, self.rau, fl.pressure, gp, self.pb, kind, self.bc.velocity,
             alpha, F_old, F,
         )
-        # pressure correction
-        if ctl.coupling == "simplec":
-            sum_nb = np.zeros(self.nc)
-            np.add.at(sum_nb, self.owner[:ni], np.abs(self.off_own))
-            np.add.at(sum_nb, self.neigh, np.abs(self.off_nei))
-            denom = np.maximum(A - sum_nb, 0.05 * A)
-            dp = V / denom
-        else:
-            dp = rau
         imbalance = K.assemble_pressure_correction(
-            self.owner, self.neigh, ni, self.dcoef, rho, dp, self.bc.kind, F, self.p_diag, self.p_off, self.p_rhs
+            self.owner, self.neigh, ni, self.dcoef, rho, dp, kind, F, self.p_diag, self.p_off, self.p_rhs
         )
         res_c = imbalance / (rho * self.u_scale * self.perimeter_sum + 1e-300)
-        pc = self.psolver.solve(self.p_diag, self.p_off, self.p_rhs)
-        K.correct_fluxes(self.owner, self.neigh, ni, self.dcoef, rho, dp, self.bc.kind, pc, F)
-        alpha_p = ctl.alpha_p
-        p = fl.pressure + alpha_p * pc
-        if not self.bc.has_fixed_pressure:
-            p -= np.mean(p)
-        pcb = np.where((self.bc.kind == OUTLET) | (self.bc.kind == FREESTREAM), 0.0, pc[self.owner[ni:]])
-        gpc = self.grad(pc, pcb)
-        u_new = ustar - dp[:, None] * gpc
+        t5 = time.perf_counter()
+        pc = self.psolver.solve(self.p_diag, self.p_off, self.p_rhs, out=self.pc)
+        t6 = time.perf_counter()
+        K.correct_fluxes(self.owner, self.neigh, ni, self.dcoef, rho, dp, kind, pc, F)
+        p = np.empty(self.nc)
+        K.update_pressure(fl.pressure, pc, ctl.alpha_p, not self.bc.has_fixed_pressure, self.owner, ni, kind,
+                          p, self.pcb)
+        gpc = self.grad(pc, self.pcb, out=self.gpc)
+        u_new = np.empty((self.nc, 2))
+        K.correct_velocity(us, vs, dp, gpc, u_new)
         fl.velocity = u_new
         fl.pressure = p
         fl.face_flux = F
-        self.grad_p = self.grad_pressure(p, self._pressure_on_boundary(gp))
+        t7 = time.perf_counter()
+        K.boundary_pressure(self.owner, ni, g.face_delta, kind, self.bc.pressure, p, gp, self.pb)
+        self.grad_p = self.grad_pressure(p, self.pb, out=self.grad_p_buf[self.iteration % 2])
+        t8 = time.perf_counter()
+        t[0] += t2 - t1 + t8 - t7  # gradients of u and p
+        t[1] += t1 - t0 + t3 - t2  # momentum assembly
+        t[2] += t4 - t3  # momentum solve
+        t[3] += t5 - t4  # Rhie-Chow fluxes and pressure-correction assembly
+        t[4] += t6 - t5  # pressure-correction solve
+        t[5] += t7 - t6  # corrections
         res = [res_u, res_v, res_c]
         if self.model.names:
             ub2 = self._velocity_on_boundary(u_new, F[ni:])
