@@ -72,6 +72,8 @@ def _cmd_run(args: argparse.Namespace) -> int:
     result = api.solve(problem, callback=callback)
     progress.close()
     out = result.write(args.out)
+    if not args.no_plots:
+        _plots(out)
     state = "converged" if result.converged else ("DIVERGED" if result.diverged else "not converged")
     print(
         f"{state} after {result.iterations} iterations in {result.wall_seconds:.1f} s; results in {out}",
@@ -80,6 +82,25 @@ def _cmd_run(args: argparse.Namespace) -> int:
     if result.message:
         print(result.message, file=sys.stderr)
     return 0 if result.converged else 1
+
+
+def _plots(out: Path) -> None:
+    """Plots of a result folder; a failure to plot is reported but does not fail the run."""
+    from fvrans.post.plots import make_plots
+
+    try:
+        make_plots(out)
+    except Exception as exc:  # noqa: BLE001 - the results are written; plotting is a convenience
+        log.warning("plots of %s could not be made: %s", out, exc)
+
+
+def _cmd_plot(args: argparse.Namespace) -> int:
+    from fvrans.post.plots import make_plots
+
+    paths = make_plots(args.result_dir, mesh_edges=args.mesh_edges, streamlines=not args.no_streamlines)
+    for path in paths:
+        print(path)
+    return 0
 
 
 def _cmd_info(args: argparse.Namespace) -> int:
@@ -151,7 +172,14 @@ def build_parser() -> argparse.ArgumentParser:
         help="override a setting, value in TOML syntax, e.g. --set solver.max_iterations=200 (repeatable)",
     )
     r.add_argument("--quiet", action="store_true", help="no progress line")
+    r.add_argument("--no-plots", action="store_true", help="skip the plots in OUT/plots")
     r.set_defaults(func=_cmd_run)
+
+    pl = sub.add_parser("plot", help="(re)draw the plots of a result folder into DIR/plots")
+    pl.add_argument("result_dir", help="folder written by 'fvrans run'")
+    pl.add_argument("--mesh-edges", action="store_true", help="draw the cell edges on the field maps")
+    pl.add_argument("--no-streamlines", action="store_true", help="no streamlines on the velocity map")
+    pl.set_defaults(func=_cmd_plot)
 
     i = sub.add_parser("info", help="mesh report of a mesh file, or resolved settings and mesh report of a case")
     i.add_argument("path", help="mesh file (any format meshio reads) or case file (.toml)")
