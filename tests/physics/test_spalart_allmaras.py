@@ -243,3 +243,17 @@ def test_pure_diffusion_and_destruction_power_law():
     assert e64 < 5e-5
     assert e32 / e64 > 3.0  # second order: the error falls about 4x per halving
     assert np.all(nt64 > 0)
+
+
+def test_a_case_without_walls_is_refused_with_a_clear_message():
+    from fvrans.errors import CaseError
+
+    mesh, geom = _strip(4, 0.0, 1.0)
+    nb = mesh.n_boundary_faces
+    fb = FlowBoundary(kind=np.full(nb, SYMMETRY, dtype=np.int64), velocity=np.zeros((nb, 2)),
+                      pressure=np.zeros(nb), nut_ratio=np.zeros(nb),
+                      patch_kind={"bottom": "symmetry", "top": "symmetry", "sides": "symmetry"})
+    with pytest.raises(CaseError, match="needs at least one wall patch"):
+        SpalartAllmaras(mesh, geom, fb, rho=1.0, mu=1e-5)
+    with pytest.raises(CaseError, match="sa_variant"):
+        SpalartAllmaras(mesh, geom, fb, rho=1.0, mu=1e-5, variant="sa-neg", wall_distance=np.ones(4))

@@ -139,3 +139,18 @@ def test_wall_profile_rejects_a_station_off_the_wall():
     r = laminar().result
     with pytest.raises(CaseError, match="not on wall patch"):
         wall_profile(r, -0.1)
+
+
+@pytest.mark.parametrize("change", [{"solver.turbulence_convection": "linear-upwind"}, {"model.sa_variant": "no-ft2"}])
+def test_turbulent_options_on_the_coarse_grid(change):
+    """Second-order convection of nu_tilde and the variant without f_t2 converge to the same
+    skin friction and drag within the 3 % acceptance band."""
+    case = fa.load_case(CASES / "flat_plate_turbulent.toml").replace(
+        {"mesh.file": str(MESHES / "flat_plate_coarse.msh"), "solver.tolerance": 1e-8, **change})
+    r = fa.solve(case)
+    assert r.converged
+    w = r.wall("plate")
+    o = np.argsort(w.x)
+    assert float(np.interp(STATION, w.x[o], w.cf[o])) == pytest.approx(CF_097, rel=0.03)
+    assert patch_forces(w, l_ref=2.0).coefficients()["Cd"] == pytest.approx(CD_PLATE, rel=0.03)
+    assert r.fields.nu_tilde.min() >= 0.0
