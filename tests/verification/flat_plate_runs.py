@@ -76,7 +76,7 @@ def run_case(case: fa.Case, tolerance: float, max_iterations: int) -> PlateRun:
 @cache
 def turbulent(level: str) -> PlateRun:
     case = fa.load_case(CASES / "flat_plate_turbulent.toml").set("mesh.file", str(MESHES / f"flat_plate_{level}.msh"))
-    return run_case(case, tolerance=1e-9, max_iterations=2000)
+    return run_case(case, tolerance=1e-8, max_iterations=2000)
 
 
 @cache

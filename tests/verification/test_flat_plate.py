@@ -45,9 +45,9 @@ def _drag(run) -> float:
 @pytest.mark.parametrize("level", ["coarse", "medium"])
 def test_turbulent_converges_from_uniform_start(level):
     """Converged = residuals below 1e-6 and Cf(0.97) within 0.1 % of its final value from then on.
-    The run goes on to 1e-9 to know the final value; it must not stall or cycle on the way."""
+    The run goes on to 1e-8 to know the final value; it must not stall or cycle on the way."""
     run = turbulent(level)
-    assert run.result.converged  # residuals below 1e-9
+    assert run.result.converged  # residuals below 1e-8
     n_conv = converged_iteration(run)
     assert 0 <= n_conv < len(run.cf_history) - 10
     nt = run.result.fields.nu_tilde
