@@ -103,7 +103,9 @@ def assemble_momentum(
             diag_v[P] += D * n1 * n1
             bu[P] -= D * n0 * n1 * u[P, 1]
             bv[P] -= D * n0 * n1 * u[P, 0]
-        else:  # OUTLET or FREESTREAM: zero gradient on outflow
+        else:  # OUTLET or FREESTREAM: zero normal gradient; the transpose stress still acts
+            bu[P] += mu * (gu[P, 0, 0] * s0 + gu[P, 1, 0] * s1)
+            bv[P] += mu * (gu[P, 0, 1] * s0 + gu[P, 1, 1] * s1)
             if Ff >= 0.0:
                 diag_u[P] += Ff
                 diag_v[P] += Ff
@@ -127,7 +129,8 @@ def assemble_momentum(
 
 @njit(cache=True)
 def rhie_chow_fluxes(
-    owner, neigh, n_int, S, dcoef, kvec, w, skew, gu, rho, hbya, rau, p, gp, pb, bkind, bvel, relax_u, F_old, F,
+    owner, neigh, n_int, S, dcoef, kvec, w, skew, delta, gu, rho, hbya, rau, p, gp, pb, bkind, bvel, relax_u, F_old,
+    F,
 ):
     """Face mass fluxes F_f = rho [ (H/A)_f . S - (V/A)_f ((p_N - p_P) dcoef + k . grad p_f) ]
     + (1 - alpha_u) F_old   (Rhie & Chow 1983, AIAA J. 21, 1525-1532).
@@ -144,9 +147,11 @@ def rhie_chow_fluxes(
         N = neigh[f]
         wf = w[f]
         # linear interpolation to the intersection point, moved to the face centre with the
-        # velocity gradient (skewness correction; H/A - u is smooth to higher order)
-        s0 = skew[f, 0]
-        s1 = skew[f, 1]
+        # velocity gradient (skewness correction; H/A - alpha u is smooth to higher order). H/A
+        # scales with alpha_u (A = a_P / alpha_u), so the correction does too: that keeps the
+        # converged fluxes independent of alpha_u.
+        s0 = relax_u * skew[f, 0]
+        s1 = relax_u * skew[f, 1]
         h0 = wf * hbya[P, 0] + (1.0 - wf) * hbya[N, 0] + (
             (wf * gu[P, 0, 0] + (1.0 - wf) * gu[N, 0, 0]) * s0 + (wf * gu[P, 0, 1] + (1.0 - wf) * gu[N, 0, 1]) * s1
         )
@@ -168,9 +173,14 @@ def rhie_chow_fluxes(
         elif kind == INLET:
             F[f] = rho * (bvel[b, 0] * S[f, 0] + bvel[b, 1] * S[f, 1])
         else:
+            # H/A carried from the cell centre to the face centre with alpha_u grad u
+            d0 = relax_u * delta[f, 0]
+            d1 = relax_u * delta[f, 1]
+            h0 = hbya[P, 0] + gu[P, 0, 0] * d0 + gu[P, 0, 1] * d1
+            h1 = hbya[P, 1] + gu[P, 1, 0] * d0 + gu[P, 1, 1] * d1
             r = rau[P]
             F[f] = rho * (
-                hbya[P, 0] * S[f, 0] + hbya[P, 1] * S[f, 1]
+                h0 * S[f, 0] + h1 * S[f, 1]
                 - r * ((pb[b] - p[P]) * dcoef[f] + kvec[f, 0] * gp[P, 0] + kvec[f, 1] * gp[P, 1])
             ) + a * F_old[f]
 
@@ -288,28 +298,32 @@ def offdiag_product(owner, neigh, off_own, off_nei, x, out):
 
 
 @njit(cache=True)
-def boundary_velocity(owner, n_int, normal, bkind, bvel, u, F, ub):
-    """Boundary-face velocities: the given value on walls, inlets and freestream inflow; the
-    tangential part of the owner value on symmetry planes; the normal part of the owner value
-    for reverse flow through an outlet; the owner value elsewhere (zero gradient)."""
+def boundary_velocity(owner, n_int, normal, delta, bkind, bvel, u, gu, F, ub):
+    """Boundary-face velocities: the given value on walls, inlets and freestream inflow; elsewhere
+    the owner value carried along the face by the latest gradient, u_P + grad u_P . t with
+    t = d - (d.n) n (zero normal gradient, exact for fields varying along the boundary), then
+    its tangential part on symmetry planes and its normal part for reverse flow at an outlet."""
     for b in range(ub.shape[0]):
-        P = owner[n_int + b]
+        f = n_int + b
+        P = owner[f]
         kind = bkind[b]
-        Fb = F[n_int + b]
-        u0 = u[P, 0]
-        u1 = u[P, 1]
+        Fb = F[f]
         if kind == WALL or kind == INLET or (kind == FREESTREAM and Fb < 0.0):
             ub[b, 0] = bvel[b, 0]
             ub[b, 1] = bvel[b, 1]
-        elif kind == SYMMETRY:
-            n0 = normal[n_int + b, 0]
-            n1 = normal[n_int + b, 1]
+            continue
+        n0 = normal[f, 0]
+        n1 = normal[f, 1]
+        dn = delta[f, 0] * n0 + delta[f, 1] * n1
+        t0 = delta[f, 0] - dn * n0
+        t1 = delta[f, 1] - dn * n1
+        u0 = u[P, 0] + gu[P, 0, 0] * t0 + gu[P, 0, 1] * t1
+        u1 = u[P, 1] + gu[P, 1, 0] * t0 + gu[P, 1, 1] * t1
+        if kind == SYMMETRY:
             un = u0 * n0 + u1 * n1
             ub[b, 0] = u0 - un * n0
             ub[b, 1] = u1 - un * n1
         elif kind == OUTLET and Fb < 0.0:
-            n0 = normal[n_int + b, 0]
-            n1 = normal[n_int + b, 1]
             un = u0 * n0 + u1 * n1
             ub[b, 0] = un * n0
             ub[b, 1] = un * n1

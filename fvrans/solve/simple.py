@@ -260,8 +260,8 @@ class SimpleSolver:
         F = np.zeros(self.nf)
         F[ni:] = Fb
         ub = np.empty((self.nf - ni, 2))
-        K.boundary_velocity(self.owner, ni, self.geom.face_normal, self.bc.kind, self.bc.velocity,
-                            np.ascontiguousarray(u, dtype=float), F, ub)
+        K.boundary_velocity(self.owner, ni, self.geom.face_normal, self.geom.face_delta, self.bc.kind,
+                            self.bc.velocity, np.ascontiguousarray(u, dtype=float), self.gu, F, ub)
         return ub
 
     def _pressure_on_boundary(self, gp: np.ndarray) -> np.ndarray:
@@ -294,7 +294,8 @@ class SimpleSolver:
             mu_cell = self.mu + mu_t
         K.face_viscosity(self.owner, self.neigh, ni, g.face_weight, mu_cell, kind,
                          self.mu + self.model.wall_eddy_viscosity(), self.muf)
-        K.boundary_velocity(self.owner, ni, g.face_normal, kind, self.bc.velocity, u_old, F_old, self.ub)
+        K.boundary_velocity(self.owner, ni, g.face_normal, g.face_delta, kind, self.bc.velocity, u_old, self.gu,
+                            F_old, self.ub)
         t1 = time.perf_counter()
         gu = self.grad(u_old, self.ub, out=self.gu)
         t2 = time.perf_counter()
@@ -339,7 +340,7 @@ class SimpleSolver:
         F = np.empty(self.nf)
         K.rhie_chow_fluxes(
             self.owner, self.neigh, ni, self.S, self.dcoef, self.kvec, g.face_weight,
-            g.face_skew, gu, rho, self.hbya, self.rau, fl.pressure, gp, self.pb, kind, self.bc.velocity,
+            g.face_skew, g.face_delta, gu, rho, self.hbya, self.rau, fl.pressure, gp, self.pb, kind, self.bc.velocity,
             alpha, F_old, F,
         )
         imbalance = K.assemble_pressure_correction(
