@@ -36,6 +36,8 @@ PROFILE_COLUMN_KEYS = ("coordinate", "u", "v", "nut_ratio")
 DEFAULT_PROFILE_COLUMNS = {"coordinate": "y", "u": "u", "v": "v", "nut_ratio": "nut_ratio"}
 #: default under-relaxation of the pressure correction for each coupling
 DEFAULT_RELAX_PRESSURE = {"simple": 0.3, "simplec": 1.0}
+DEFAULT_RELAX_VELOCITY = {"simple": 0.7, "simplec": 0.95}
+MOMENTUM_SOLVERS = ("amg", "gauss-seidel")
 #: text standing for a Python function in :meth:`Case.to_dict`
 CALLABLE_TEXT = "<python callable>"
 
@@ -118,13 +120,14 @@ class BoundarySpec:
 class SolverSettings:
     """Pressure-velocity coupling, discretisation and linear-solver settings.
 
-    ``relax_pressure=None`` takes the default of the coupling (:data:`DEFAULT_RELAX_PRESSURE`).
+    ``relax_velocity=None`` / ``relax_pressure=None`` take the default of the coupling
+    (:data:`DEFAULT_RELAX_VELOCITY`, :data:`DEFAULT_RELAX_PRESSURE`).
     """
 
     coupling: str = "simplec"
     max_iterations: int = 5000
     tolerance: float = 1e-6
-    relax_velocity: float = 0.7
+    relax_velocity: float | None = None
     relax_pressure: float | None = None
     relax_turbulence: float = 0.8
     convection: str = "linear-upwind"
@@ -133,12 +136,16 @@ class SolverSettings:
     limiter: str = "none"
     pressure_tolerance: float = 0.01
     momentum_tolerance: float = 0.1
+    momentum_solver: str = "amg"
+    momentum_max_iterations: int = 20
     momentum_sweeps: int = 5
     amg_rebuild_every: int = 20
     divergence_factor: float = 1e5
     checkpoint_every: int = 0
 
     def __post_init__(self) -> None:
+        if self.relax_velocity is None:
+            object.__setattr__(self, "relax_velocity", DEFAULT_RELAX_VELOCITY.get(self.coupling, 0.7))
         if self.relax_pressure is None:
             object.__setattr__(self, "relax_pressure", DEFAULT_RELAX_PRESSURE.get(self.coupling, 1.0))
 
@@ -306,6 +313,8 @@ def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
             "max_iterations": s.max_iterations,
             "tolerance": s.tolerance,
             "relax_velocity": s.relax_velocity,
+            "momentum_solver": s.momentum_solver,
+            "momentum_max_iterations": s.momentum_max_iterations,
             "relax_pressure": s.relax_pressure,
             "relax_turbulence": s.relax_turbulence,
             "convection": s.convection,

@@ -106,7 +106,8 @@ def test_defaults_of_a_minimal_case(base):
     assert c.boundaries["walls"].velocity == (0.0, 0.0)  # resting wall by default
     s = c.solver
     assert (s.coupling, s.max_iterations, s.tolerance) == ("simplec", 5000, 1e-6)
-    assert (s.relax_velocity, s.relax_pressure, s.relax_turbulence) == (0.7, 1.0, 0.8)
+    assert (s.relax_velocity, s.relax_pressure, s.relax_turbulence) == (0.95, 1.0, 0.8)
+    assert (s.momentum_solver, s.momentum_max_iterations) == ("amg", 20)
     assert (s.convection, s.turbulence_convection, s.gradient, s.limiter) == (
         "linear-upwind",
         "upwind",
@@ -206,7 +207,7 @@ def test_round_trip_through_dict_and_toml(base, full_case_file):
         assert case_from_dict(tomllib.loads(c.to_toml())) == c
         assert tomllib.loads(c.to_toml()) == d  # to_dict is plain TOML data
         # every key is filled in: the solver and output tables are complete
-        assert len(d["solver"]) == 16 and len(d["output"]) == 5
+        assert len(d["solver"]) == 18 and len(d["output"]) == 5
         # equality is not trivial: a changed setting makes a different case
         assert c.set("solver.relax_velocity", 0.55) != c
 
@@ -259,7 +260,7 @@ def test_python_velocity_function_errors(base, err):
 def test_set_makes_a_new_validated_case(base, err):
     c = case_from_dict(base)
     c2 = c.set("solver.relax_velocity", 0.5)
-    assert c.solver.relax_velocity == 0.7 and c2.solver.relax_velocity == 0.5
+    assert c.solver.relax_velocity == 0.95 and c2.solver.relax_velocity == 0.5
     c3 = c.set("boundary.lid.velocity", [2, 0])
     assert c3.boundaries["lid"].velocity == (2.0, 0.0)
     c4 = c.set("boundary.inlet", {"kind": "velocity-inlet", "velocity": [1, 0]})
