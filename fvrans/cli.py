@@ -64,7 +64,8 @@ def _cmd_run(args: argparse.Namespace) -> int:
             f"patches {', '.join(problem.mesh.patch_names)}",
             file=sys.stderr,
         )
-    progress = Progress(["u", "v", "continuity"], args.quiet)
+    names = ["u", "v", "continuity"] + (["nu_tilde"] if case.turbulent else [])
+    progress = Progress(names, args.quiet)
 
     def callback(it, res):
         progress(it, res)
