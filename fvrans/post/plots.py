@@ -432,6 +432,8 @@ def field_figure(
     if not (x1 > x0 and y1 > y0):
         raise CaseError(f"{fields.source}: empty plot window {(x0, x1, y0, y1)}; give xmin < xmax, ymin < ymax")
     size, cbar_loc, ax_in = _field_layout(x1 - x0, y1 - y0)
+    title_text = _title(title, name)
+    size = (size[0], size[1] + 0.25 * title_text.count("\n"))  # room for a wrapped title
     fig = new_figure(size)
     ax = fig.add_subplot()
     polys = [p * scale for p in fields.polygons()]
@@ -463,7 +465,7 @@ def field_figure(
     ax.set_aspect("equal")
     ax.set_xlabel(_length_label("x", l_ref))
     ax.set_ylabel(_length_label("y", l_ref) if l_ref is None else "y / L_ref")
-    ax.set_title(_title(title, name), fontsize=11)
+    ax.set_title(title_text, fontsize=11)
     kw: dict[str, Any] = {"location": cbar_loc, "label": label, "extend": extend}
     if cbar_loc == "bottom":
         kw.update(aspect=45, fraction=0.08, pad=0.02)
