@@ -1,0 +1,109 @@
+"""Inflow profile of the backward-facing-step cases (``cases/step_inflow.csv``), computed by fvrans.
+
+The incoming boundary layer of Driver & Seegmiller (1985) at x = -4H: 99% thickness about 1.5 H
+and Re_theta about 5 000 at Re_H = 36 000 (as summarised in the NASA Turbulence Modeling
+Resource; from memory). Growing it on an upstream wall would need about 80 H of plate
+(turbulent flat-plate estimate Re_theta = 0.036 Re_x^0.8, common practice), so the profile is
+taken from fvrans' own zero-pressure-gradient flat plate instead (``flat_plate_turbulent.toml``,
+Spalart-Allmaras, Re = 5e6 per unit length, medium grid): at a station x_s the profiles u/U
+and nu_tilde/nu are, in the self-similar variables of a flat-plate layer,
+those of a layer with the same Re_theta at any unit Reynolds number; lengths scale by
+(5e6 / 36 000). v is set to zero (v/U ~ 1e-3 at the layer edge there).
+
+Both targets cannot be met at once: the model's flat-plate layer has delta99 / theta ~ 9.3 at
+Re_theta ~ 5 000 (the measured layer ~ 10.8), so at Re_theta = 5 000 delta99 is only 1.28 H. The
+station x_s is the one that minimises the larger of the two relative errors (delta99 against
+1.5 H, Re_theta against 5 000): about 7 % each, delta99 low and Re_theta high.
+
+The step channel has a viscous upper wall 8 H above the upstream floor; its incoming layer is
+not specified by the issue, so the same layer is put on it (the profile mirrored about y = 4 H,
+the channel mid-height, where both halves reach the free-stream values u = U, nu_tilde = 3 nu).
+
+Run from the repository root:  python cases/make_step_inflow.py [--level medium]
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+
+import numpy as np
+
+import fvrans.api as fa
+from fvrans.post.separation import cell_column, layer_thickness
+
+HERE = Path(__file__).resolve().parent
+RE_UNIT_PLATE = 5.0e6  # flat_plate_turbulent.toml
+RE_H_STEP = 36_000.0  # Driver & Seegmiller (1985), from memory
+RE_THETA_TARGET = 5_000.0  # Driver & Seegmiller (1985) via NASA TMR, from memory
+DELTA99_TARGET = 1.5  # H; Driver & Seegmiller (1985) via NASA TMR, from memory
+CHANNEL_HEIGHT = 8.0  # upper wall at y = 8 H above the upstream floor
+
+
+def column_profiles(result: fa.Result, x: float) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Cell-centre y, u, v, nu_tilde/nu of the column of cells that contains station x, sorted by
+    y, with the wall point (0, 0, 0, 0) in front."""
+    cells = cell_column(result.problem.mesh, result.cell_centres, x)
+    nu = result.case.fluid.viscosity / result.case.fluid.density
+    y = np.concatenate([[0.0], result.cell_centres[cells, 1]])
+    u = np.concatenate([[0.0], result.velocity[cells, 0]])
+    v = np.concatenate([[0.0], result.velocity[cells, 1]])
+    nt = np.concatenate([[0.0], result.fields.nu_tilde[cells] / nu])
+    return y, u, v, nt
+
+
+def main(argv: list[str] | None = None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--level", default="medium", help="flat-plate grid level (coarse, medium, fine)")
+    ap.add_argument("--out", default=str(HERE / "step_inflow.csv"))
+    args = ap.parse_args(argv)
+    case = fa.load_case(HERE / "flat_plate_turbulent.toml").set(
+        "mesh.file", str(HERE.parent / "meshes" / f"flat_plate_{args.level}.msh"))
+    res = fa.solve(case)
+    print(f"flat plate ({args.level}): converged={res.converged}, {res.iterations} iterations, "
+          f"{res.wall_seconds:.1f} s", flush=True)
+    nu = case.fluid.viscosity / case.fluid.density
+    # Re_theta along the plate at the x positions of the cell columns
+    mesh = res.problem.mesh
+    xs = np.unique(np.round(res.cell_centres[:, 0], 12))
+    xs = xs[(xs > 0.05) & (xs < 1.9)]
+    scale = RE_UNIT_PLATE / RE_H_STEP  # plate length -> step heights
+    err = []
+    for x in xs:
+        y, u, _, _ = column_profiles(res, float(x))
+        d99, _, th = layer_thickness(y, u, 1.0)
+        err.append(max(abs(th / nu / RE_THETA_TARGET - 1), abs(d99 * scale / DELTA99_TARGET - 1)))
+    i = int(np.argmin(err))
+    x_s = float(xs[i])
+    y, u, v, nt = column_profiles(res, x_s)
+    d99, ds, th = layer_thickness(y, u, 1.0)
+    print(f"station x = {x_s:.4f} (Re_x = {x_s / nu:.3g}): Re_theta = {th / nu:.0f}, "
+          f"delta99 = {d99 * scale:.3f} H, delta* = {ds * scale:.3f} H, theta = {th * scale:.4f} H, "
+          f"H12 = {ds / th:.3f}; cells {mesh.n_cells}")
+    ys = y * scale
+    half = 0.5 * CHANNEL_HEIGHT
+    m = ys < half
+    # lower half from the plate profile, the point y = 4 H interpolated, upper half mirrored
+    u4, nt4 = float(np.interp(half, ys, u)), float(np.interp(half, ys, nt))
+    yl = np.concatenate([ys[m], [half]])
+    ul = np.concatenate([u[m], [u4]])
+    ntl = np.concatenate([nt[m], [nt4]])
+    y_all = np.concatenate([yl, CHANNEL_HEIGHT - yl[-2::-1]])
+    u_all = np.concatenate([ul, ul[-2::-1]])
+    nt_all = np.concatenate([ntl, ntl[-2::-1]])
+    y_all[-1] = CHANNEL_HEIGHT
+    lines = [
+        "# Inflow of the backward-facing-step cases at x = -4 H, written by cases/make_step_inflow.py",
+        f"# from flat_plate_turbulent.toml ({args.level} grid, SA) at x = {x_s:.5f}, lengths x {scale:.4f};",
+        f"# Re_theta = {th / nu:.0f}, delta99 = {d99 * scale:.4f} H; upper half mirrored about y = 4 H",
+        "y,u,v,nut_ratio",
+    ]
+    lines += [f"{a:.8e},{b:.8e},0.0,{c:.8e}" for a, b, c in zip(y_all, u_all, nt_all)]
+    Path(args.out).write_text("\n".join(lines) + "\n")
+    print(f"wrote {args.out} ({len(y_all)} rows)")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
