@@ -1,6 +1,6 @@
 """Backward-facing step (Driver & Seegmiller 1985), Spalart-Allmaras, coarse grid of the bundled family.
 
-The case is cases/step_medium.toml run on meshes/step_coarse.msh (6 912 cells, about a minute);
+The case is cases/step_medium.toml run on meshes/step_coarse.msh (6 912 cells, about 15 s);
 the medium and mixed grids run in benchmarks/bench_step.py.
 
 References
