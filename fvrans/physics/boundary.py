@@ -13,12 +13,13 @@ Kinds (integer codes shared with the solver kernels):
 
 from __future__ import annotations
 
-from collections.abc import Callable, Mapping
+from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 
+from fvrans.case.schema import BoundarySpec
 from fvrans.errors import CaseError
 from fvrans.mesh.geometry import Geometry
 from fvrans.mesh.mesh import Mesh
@@ -42,57 +43,24 @@ class FlowBoundary:
         return bool(np.any((self.kind == OUTLET) | (self.kind == FREESTREAM)))
 
 
-def _get(spec: Any, key: str, default=None):
+def _as_spec(spec: Any) -> BoundarySpec:
+    """A case BoundarySpec as is; a plain mapping (driver scripts, tests) turned into one."""
     if isinstance(spec, Mapping):
-        return spec.get(key, default)
-    return getattr(spec, key, default)
+        return BoundarySpec(**dict(spec))
+    return spec
 
 
-def _profile_velocity(spec: Any, patch: str, xf: np.ndarray) -> np.ndarray:
-    """Velocity of an inlet: a case BoundarySpec evaluates itself (uniform, CSV profile or
-    callable); plain mappings may give a callable f(x, y) -> (u, v), a table or a vector."""
-    if hasattr(spec, "velocity_at"):
-        u, v = spec.velocity_at(xf[:, 0], xf[:, 1], f"boundary.{patch}")
-        return np.stack([u, v], axis=1)
-    vel = _get(spec, "velocity")
-    if callable(vel):
-        try:
-            u, v = vel(xf[:, 0].copy(), xf[:, 1].copy())
-        except Exception as exc:  # noqa: BLE001 - user code; report it with the patch name
-            raise CaseError(f"boundary.{patch}.velocity: the Python callable failed: {exc}") from exc
-        out = np.empty((len(xf), 2))
-        out[:, 0] = np.broadcast_to(np.asarray(u, dtype=float), (len(xf),))
-        out[:, 1] = np.broadcast_to(np.asarray(v, dtype=float), (len(xf),))
-        if not np.all(np.isfinite(out)):
-            raise CaseError(f"boundary.{patch}.velocity: the callable returned non-finite values")
-        return out
-    table = _get(spec, "profile_table")
-    if table is not None:
-        coord, uu, vv = table
-        axis = _get(spec, "profile_axis", 1)
-        s = xf[:, axis]
-        return np.stack([np.interp(s, coord, uu), np.interp(s, coord, vv)], axis=1)
-    if vel is None:
-        raise CaseError(f"boundary.{patch}: a velocity inlet needs 'velocity' (or 'profile')")
-    return np.broadcast_to(np.asarray(vel, dtype=float), (len(xf), 2)).copy()
+def _nut_ratio(spec: BoundarySpec, patch: str, xf: np.ndarray) -> np.ndarray:
+    """Inflow nu_tilde / nu: the condition's value or profile column, 3 when it gives none."""
+    if spec.nut_ratio is None and spec.profile is None:
+        return np.full(len(xf), 3.0)
+    return np.asarray(spec.nut_ratio_at(xf[:, 0], xf[:, 1], f"boundary.{patch}"), dtype=float)
 
 
-def _nut_ratio(spec: Any, patch: str, xf: np.ndarray) -> np.ndarray:
-    if hasattr(spec, "nut_ratio_at") and (spec.nut_ratio is not None or spec.profile is not None):
-        try:
-            return np.asarray(spec.nut_ratio_at(xf[:, 0], xf[:, 1], f"boundary.{patch}"), dtype=float)
-        except CaseError:
-            return np.full(len(xf), 3.0)
-    value = _get(spec, "nut_ratio", 3.0)
-    return np.full(len(xf), 3.0 if value is None else float(value))
-
-
-def build_flow_boundary(
-    mesh: Mesh, geom: Geometry, specs: Mapping[str, Any], callable_ok: bool = True
-) -> FlowBoundary:
-    """Per-face boundary arrays from ``specs`` (patch name -> object or dict with ``kind``,
-    ``velocity``, ``pressure``, ``nut_ratio``; inlets may carry ``profile_table`` =
-    (coordinate, u, v) with ``profile_axis`` 0 or 1)."""
+def build_flow_boundary(mesh: Mesh, geom: Geometry, specs: Mapping[str, Any]) -> FlowBoundary:
+    """Per-face boundary arrays from ``specs``: patch name -> a case BoundarySpec, or a dict of
+    its fields (``kind``, ``velocity`` as a vector or a callable f(x, y) -> (u, v),
+    ``pressure``, ``nut_ratio``)."""
     nb = mesh.n_boundary_faces
     ni = mesh.n_internal_faces
     kind = np.full(nb, -1, dtype=np.int64)
@@ -106,8 +74,8 @@ def build_flow_boundary(
                 f"{mesh.source}: patch {patch.name!r} has no boundary condition; add a "
                 f"[boundary.{patch.name}] table with a 'kind'"
             )
-        spec = specs[patch.name]
-        kname = _get(spec, "kind")
+        spec = _as_spec(specs[patch.name])
+        kname = spec.kind
         if kname not in KIND_CODES:
             raise CaseError(
                 f"boundary.{patch.name}.kind = {kname!r} is not a known kind; use one of {sorted(KIND_CODES)}"
@@ -118,25 +86,23 @@ def build_flow_boundary(
         patch_kind[patch.name] = kname
         xf = geom.face_centre[patch.start : patch.stop]
         if code == WALL:
-            v = _get(spec, "velocity")
+            v = spec.velocity
             if v is not None:
                 uw = np.broadcast_to(np.asarray(v, dtype=float), (patch.size, 2))
                 n = geom.face_normal[patch.start : patch.stop]
                 un = np.einsum("ij,ij->i", uw, n)
                 vel[sl] = uw - un[:, None] * n  # tangential motion only
         elif code == INLET:
-            vel[sl] = _profile_velocity(spec, patch.name, xf)
+            vel[sl] = np.stack(spec.velocity_at(xf[:, 0], xf[:, 1], f"boundary.{patch.name}"), axis=1)
             nut[sl] = _nut_ratio(spec, patch.name, xf)
         elif code == OUTLET:
-            pres[sl] = float(_get(spec, "pressure", 0.0) or 0.0)
+            pres[sl] = float(spec.pressure or 0.0)
         elif code == FREESTREAM:
-            v = _get(spec, "velocity")
+            v = spec.velocity
             if v is None:
                 raise CaseError(f"boundary.{patch.name}: a freestream boundary needs 'velocity'")
             vel[sl] = np.asarray(v, dtype=float)
-            pres[sl] = float(_get(spec, "pressure", 0.0) or 0.0)
+            pres[sl] = float(spec.pressure or 0.0)
             nut[sl] = _nut_ratio(spec, patch.name, xf)
     return FlowBoundary(kind=kind, velocity=vel, pressure=pres, nut_ratio=nut, patch_kind=patch_kind)
 
-
-VelocityCallable = Callable[[np.ndarray, np.ndarray], tuple[np.ndarray, np.ndarray]]

@@ -280,24 +280,6 @@ def gauss_seidel(indptr, indices, data, diag_pos, b, x, max_sweeps, rtol):
 
 
 @njit(cache=True)
-def offdiag_product(owner, neigh, off_own, off_nei, x, out):
-    """out = N x, the off-diagonal part of a face-stencil matrix applied to x (2 components)."""
-    for c in range(out.shape[0]):
-        out[c, 0] = 0.0
-        out[c, 1] = 0.0
-    for f in range(off_own.shape[0]):
-        P = owner[f]
-        N = neigh[f]
-        out[P, 0] += off_own[f] * x[N, 0]
-        out[P, 1] += off_own[f] * x[N, 1]
-        out[N, 0] += off_nei[f] * x[P, 0]
-        out[N, 1] += off_nei[f] * x[P, 1]
-
-
-# -- fused per-iteration helpers (same arithmetic as the numpy expressions they replace) -----
-
-
-@njit(cache=True)
 def boundary_velocity(owner, n_int, normal, delta, bkind, bvel, u, gu, F, ub):
     """Boundary-face velocities: the given value on walls, inlets and freestream inflow; elsewhere
     the owner value carried along the face by the latest gradient, u_P + grad u_P . t with
