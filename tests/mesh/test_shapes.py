@@ -160,7 +160,7 @@ def test_generators_from_a_case_file_and_bad_parameter_reported():
     data["mesh"] = {"generator": "planar_diffuser", "parameters": {"angle_deg": 8.0}}
     assert build_case_mesh(case_from_dict(data)).n_cells == (16 + 40 + 40) * 32
     data["mesh"] = {"generator": "bump_channel", "parameters": {"bump_height": 1.5}}
-    with pytest.raises(MeshError, match="bump_height"):
+    with pytest.raises(MeshError, match=r"mesh.parameters: bump_channel: parameter bump_height = 1.5"):
         build_case_mesh(case_from_dict(data))
     data["mesh"] = {"generator": "bump_channel", "parameters": {"bump_hieght": 0.1}}
     with pytest.raises(CaseError, match="bump_height"):
