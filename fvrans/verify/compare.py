@@ -56,6 +56,8 @@ class ItemResult:
     message: str = ""
     label: str = ""
     plot: str | None = None
+    x_label: str = "x"
+    log_x: bool = False  # profiles in wall units are drawn against log y+
     # data for the overlay plot (not written to JSON)
     result_curve: Curve | None = field(default=None, repr=False)
     reference_curve: Curve | None = field(default=None, repr=False)
@@ -315,6 +317,10 @@ def _finish(res: ItemResult, value: float, coverage: float, n: int, need: int, i
 def _compare_curve(rd: ResultDir, item: Item, res: ItemResult) -> ItemResult:
     rc = _result_curve(rd, item)
     fc = _reference_curve(item, rc)
+    if "wall_units" in item.result:
+        res.x_label, res.log_x = "y+", True
+    elif item.kind in ("wall", "profile", "line"):
+        res.x_label = str(item.result.get("x", "x"))
     res.result_curve, res.reference_curve = rc, fc
     target = item.range if item.range is not None else (float(fc.x[0]), float(fc.x[-1]))
     res.requested_range = target
