@@ -413,3 +413,32 @@ def test_cells_along_a_line_on_a_cell_edge(tmp_path):
     cells, s = ff.cells_along(np.array([0.0, 0.5]), np.array([4.0, 0.5]))  # along y = 0.5
     np.testing.assert_allclose(ff.cell_values("f", cells), [0.5 + 5, 1.5 + 5, 2.5 + 5, 3.5 + 5])
     np.testing.assert_allclose(s, [0.5, 1.5, 2.5, 3.5])
+
+
+def test_probe_profile_file_in_wall_units(tmp_path, make_result_dir):
+    """A line-probe file profiles/<name>.csv (columns s, x, y, u, v, p, nu_tilde, nut_ratio) along
+    the normal of a wall y = x tan(30 deg): the start is found from s and the points, u_tau from
+    the wall table at that start (linear between face centres), nu from summary.json."""
+    c, sn = np.cos(np.pi / 6), np.sin(np.pi / 6)
+    sw = np.array([0.5, 1.5, 2.5])  # wall-face centres along the inclined wall, u_tau 0.2, 0.4, 0.6
+    d = make_result_dir(walls={"w": {"x": sw * c, "y": sw * sn, "s": sw, "u_tau": 0.2 * (sw + 0.5)}},
+                        summary_extra={"reference": {"rho": 1.0, "mu": 1e-3}})
+    s = np.array([0.01, 0.02, 0.05, 0.1])
+    start = np.array([2.0 * c, 2.0 * sn])  # wall arc length 2: u_tau = 0.5
+    pts = start[None, :] + s[:, None] * np.array([-sn, c])[None, :]
+    u = 4.0 * s
+    (d / "profiles").mkdir()
+    rows = [",".join(repr(float(v)) for v in (a, x, y, b, 0.0, 0.0, 0.0, 0.0)) for a, (x, y), b in zip(s, pts, u)]
+    (d / "profiles" / "normal.csv").write_text("s,x,y,u,v,p,nu_tilde,nut_ratio\n" + "\n".join(rows) + "\n")
+    # y+ = s 0.5 / 1e-3 = 500 s, u+ = 4 s / 0.5 = 8 s = 0.016 y+
+    (tmp_path / "ref.csv").write_text("y_plus,u_plus\n10,0.16\n25,0.4\n50,0.8\n")
+    spec = tmp_path / "s.toml"
+    spec.write_text('[[item]]\nname = "p"\nkind = "profile"\nmetric = "max_abs"\ntolerance = 1e-9\n'
+                    '[item.result]\nprofile = "normal"\ny = "u"\nwall_units = "w"\n'
+                    '[item.reference]\nfile = "ref.csv"\nx = "y_plus"\ny = "u_plus"\n')
+    assert compare_command(d, spec, tmp_path / "r", stream=io.StringIO()) == 0
+    it = json.loads((tmp_path / "r" / "report.json").read_text())["items"][0]
+    assert it["n_points"] == 3 and it["value"] < 1e-12
+    spec.write_text(spec.read_text().replace('wall_units = "w"', 'wall_units = "w"\nx = "y"'))
+    with pytest.raises(CaseError, match='with wall_units the abscissa is the distance from the wall'):
+        load_spec(spec)
