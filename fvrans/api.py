@@ -29,6 +29,7 @@ import numpy as np
 
 from fvrans.case import Case, apply_overrides, case_from_dict, load_case
 from fvrans.case.build import build_case_mesh
+from fvrans.checkpoint import Checkpoint, read_checkpoint, write_checkpoint
 from fvrans.errors import CaseError, DivergenceError
 from fvrans.mesh.geometry import Geometry, compute_geometry
 from fvrans.mesh.mesh import Mesh
@@ -85,6 +86,12 @@ class Result:
     message: str = ""
     diverged: bool = False
     extra: dict[str, Any] = field(default_factory=dict)
+    #: stopped on request (a callback returning True, Ctrl-C, SIGTERM) before converging
+    interrupted: bool = False
+    #: velocity scale of the scaled residuals (kept in checkpoints)
+    velocity_scale: float = 1.0
+    #: outer iteration the fields belong to (one less than ``iterations`` after a divergence)
+    fields_iteration: int | None = None
 
     # -- arrays -----------------------------------------------------------------------------
     @property
@@ -136,6 +143,8 @@ class Result:
         """The content of summary.json."""
         extra = {"message": self.message} if self.message else {}
         extra["diverged"] = self.diverged
+        extra["interrupted"] = self.interrupted
+        extra.update(self.extra.get("summary", {}))
         return build_summary(
             self.case.title or self.case.label, self.converged, self.iterations, self.wall_seconds,
             self.mesh.n_cells, history=self.history, walls=self.walls(),
@@ -165,6 +174,15 @@ class Result:
         write_json_atomic(out / "summary.json", self.summary())
         return out
 
+    def write_checkpoint(self, path: str | Path) -> Path:
+        """Save the state of this run to ``path`` (a ``.npz`` file, written atomically) so that
+        ``solve(..., restart=path)`` or ``fvrans run --restart`` continues it."""
+        n = self.iterations if self.fields_iteration is None else self.fields_iteration
+        return write_checkpoint(
+            path, self.fields, n, list(self.history.names), self.history.as_array()[:n],
+            np.asarray(self.history.seconds[:n]), self.velocity_scale, self.case, self.mesh, self.grad_p,
+        )
+
 
 def _initial_fields(problem: Problem, initial: Result | Fields | None) -> Fields | None:
     mesh = problem.mesh
@@ -186,34 +204,77 @@ def solve(
     case: Case | Problem,
     initial: Result | Fields | None = None,
     callback: Callable[[int, list[float]], bool | None] | None = None,
+    *,
+    restart: Checkpoint | str | Path | None = None,
+    checkpoint: str | Path | None = None,
 ) -> Result:
     """Solve a case (or a prepared Problem); ``initial`` warm-starts from a previous result on the
     same mesh. A diverging run returns a Result with ``diverged=True`` holding the last good
-    state and the message; it does not raise."""
+    state and the message; it does not raise.
+
+    ``callback(iteration, residuals)`` is called after every outer iteration; returning True
+    stops the run there (``interrupted=True`` unless it converged). ``restart``: a checkpoint
+    (or its file, or a result folder holding ``checkpoint.npz``) to continue: fields, iteration
+    count and residual history carry on; ``solver.max_iterations`` counts the new iterations.
+    ``checkpoint``: a file to save the state to every ``solver.checkpoint_every`` iterations.
+    """
     problem = case if isinstance(case, Problem) else prepare(case)
     c = problem.case
     controls = SolverControls.from_settings(c.solver)
+    ckpt: Checkpoint | None = None
+    if restart is not None:
+        if initial is not None:
+            raise CaseError(f"{c.label}: give a warm start (initial) or a checkpoint (restart), not both")
+        ckpt = restart if isinstance(restart, Checkpoint) else read_checkpoint(restart)
+        ckpt.check_matches(c, problem.mesh)
+        initial = ckpt.fields
     fields = _initial_fields(problem, initial)
     model = model_for_case(c, problem.mesh, problem.geom, problem.boundary)
     solver = SimpleSolver(
         problem.mesh, problem.geom, problem.boundary, rho=c.fluid.density, mu=c.fluid.viscosity,
         controls=controls, fields=fields, model=model,
     )
+    if ckpt is not None:
+        if list(ckpt.history_names) != list(solver.history.names):
+            raise CaseError(f"{ckpt.source}: the checkpoint's residuals {ckpt.history_names} do not match this "
+                            f"case's {solver.history.names}; restart with the settings of that run")
+        solver.resume(ckpt.iteration, ckpt.history_rows, ckpt.history_seconds, ckpt.velocity_scale,
+                      ckpt.pressure_gradient)
+        log.info("%s: resuming at iteration %d from %s", c.label, ckpt.iteration, ckpt.source)
+    every = int(getattr(c.solver, "checkpoint_every", 0) or 0)
+    stopped = False
+
+    def step(it: int, res: list[float]) -> bool:
+        nonlocal stopped
+        if checkpoint is not None and every > 0 and it % every == 0:
+            write_checkpoint(checkpoint, solver.fields, it, list(solver.history.names), solver.history.as_array(),
+                             np.asarray(solver.history.seconds), solver.u_scale, c, problem.mesh, solver.grad_p)
+            log.debug("checkpoint at iteration %d written to %s", it, checkpoint)
+        if callback is not None and callback(it, res):
+            stopped = True
+        return stopped
+
     t0 = time.perf_counter()
     message = ""
     diverged = False
+    fields_iteration = None
     try:
-        converged = solver.run(callback=callback)
+        converged = solver.run(callback=step)
     except DivergenceError as exc:
         converged = False
         diverged = True
         message = str(exc)
+        fields_iteration = exc.iteration
         log.error("%s: %s", c.label, message)
     seconds = time.perf_counter() - t0
     grad_p = solver.grad_p
     if diverged:  # the gradient of the last good pressure
         grad_p = solver.grad_pressure(solver.fields.pressure, solver._pressure_on_boundary(grad_p))
-    if not converged and not diverged:
+    interrupted = stopped and not converged
+    if interrupted:
+        message = (f"interrupted at iteration {solver.iteration} before converging; continue with "
+                   "restart= (fvrans run ... --restart DIR)")
+    elif not converged and not diverged:
         message = (
             f"not converged after {solver.iteration} iterations (tolerance {controls.tolerance:g}); "
             "raise solver.max_iterations or restart from this result"
@@ -230,5 +291,6 @@ def solve(
     return Result(
         problem=problem, fields=solver.fields, history=solver.history, converged=bool(converged),
         iterations=solver.iteration, wall_seconds=seconds, grad_p=grad_p, message=message,
-        diverged=diverged, extra=extra,
+        diverged=diverged, extra=extra, interrupted=interrupted, velocity_scale=solver.u_scale,
+        fields_iteration=fields_iteration,
     )
