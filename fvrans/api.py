@@ -31,7 +31,9 @@ from fvrans.case import Case, apply_overrides, case_from_dict, load_case
 from fvrans.case.build import build_case_mesh
 from fvrans.checkpoint import Checkpoint, read_checkpoint, write_checkpoint
 from fvrans.errors import CaseError, DivergenceError
+from fvrans.fv.boundary import boundary_face_values
 from fvrans.mesh.geometry import Geometry, compute_geometry
+from fvrans.mesh.locate import CellLocator
 from fvrans.mesh.mesh import Mesh
 from fvrans.physics.boundary import FlowBoundary, build_flow_boundary
 from fvrans.physics.spalart_allmaras import eddy_viscosity as sa_eddy_viscosity
@@ -46,6 +48,7 @@ from fvrans.post import (
     write_residuals_csv,
     write_vtu_atomic,
 )
+from fvrans.post.probes import sample_line, write_probe_csv
 from fvrans.solve.fields import Fields
 from fvrans.solve.simple import History, SimpleSolver, SolverControls
 
@@ -145,6 +148,8 @@ class Result:
         extra["diverged"] = self.diverged
         extra["interrupted"] = self.interrupted
         extra.update(self.extra.get("summary", {}))
+        if self.case.output.map_window is not None:
+            extra["map_window"] = list(self.case.output.map_window)
         return build_summary(
             self.case.title or self.case.label, self.converged, self.iterations, self.wall_seconds,
             self.mesh.n_cells, history=self.history, walls=self.walls(),
@@ -158,8 +163,8 @@ class Result:
         return d
 
     def write(self, out_dir: str | Path) -> Path:
-        """Write summary.json, fields.vtu, wall/<patch>.csv and residuals.csv into ``out_dir``
-        (each file atomically)."""
+        """Write summary.json, fields.vtu, wall/<patch>.csv, residuals.csv and profiles/<probe>.csv
+        into ``out_dir`` (each file atomically)."""
         out = Path(out_dir)
         out.mkdir(parents=True, exist_ok=True)
         if self.case.output.write_fields:
@@ -171,8 +176,38 @@ class Result:
             header, cols = wall_columns(w)
             write_csv_atomic(out / "wall" / f"{name}.csv", header, cols)
         write_residuals_csv(out / "residuals.csv", self.history)
+        if self.case.probes:
+            (out / "profiles").mkdir(exist_ok=True)
+        for name in self.case.probes:
+            write_probe_csv(out / "profiles" / f"{name}.csv", self.probe(name))
         write_json_atomic(out / "summary.json", self.summary())
         return out
+
+    # -- line probes ------------------------------------------------------------------------
+    def sample_line(self, start: Any, end: Any, points: int = 101, name: str = "line") -> dict[str, np.ndarray]:
+        """Fields along a segment: columns ``s`` (distance from start), ``x``, ``y``, ``u``, ``v``,
+        ``p`` and, with Spalart-Allmaras, ``nu_tilde`` and ``nut_ratio`` (from the sampled nu_tilde).
+        Each value is the containing cell's value plus its gradient times the offset from the
+        cell centroid (:func:`fvrans.post.probes.sample_line`)."""
+        values = {"u": self.velocity[:, 0], "v": self.velocity[:, 1], "p": self.pressure}
+        if self.fields.nu_tilde is not None:
+            values["nu_tilde"] = self.fields.nu_tilde
+        if "locator" not in self.extra:
+            self.extra["locator"] = CellLocator(self.mesh, centroids=self.problem.geom.cell_centre)
+        cols = sample_line(self.extra["locator"], self.problem.geom.cell_centre, start, end, points, values,
+                           self.extra.get("gradients", {}), name=name)
+        if "nu_tilde" in cols:
+            nu = self.case.fluid.kinematic_viscosity
+            cols["nut_ratio"] = sa_eddy_viscosity(cols["nu_tilde"], nu) / nu
+        return cols
+
+    def probe(self, name: str) -> dict[str, np.ndarray]:
+        """The columns of the case's line probe ``[probes.<name>]`` (see :meth:`sample_line`)."""
+        if name not in self.case.probes:
+            raise CaseError(f"{self.case.label}: no probe {name!r}; the case has "
+                            f"{', '.join(repr(n) for n in self.case.probes) or 'none'} ([probes.<name>] tables)")
+        pr = self.case.probes[name]
+        return self.sample_line(pr.start, pr.end, pr.points, name=name)
 
     def write_checkpoint(self, path: str | Path) -> Path:
         """Save the state of this run to ``path`` (a ``.npz`` file, written atomically) so that
@@ -198,6 +233,19 @@ def _initial_fields(problem: Problem, initial: Result | Fields | None) -> Fields
             "warm starts need the same mesh (or a morphed mesh with the same topology)"
         )
     return fields.copy()
+
+
+def _gradients(solver: SimpleSolver, model: Any, grad_p: np.ndarray) -> dict[str, np.ndarray]:
+    """Cell gradients of u, v, p (and nu_tilde) of the final state, for probes."""
+    f = solver.fields
+    ub = solver._velocity_on_boundary(f.velocity, f.face_flux[solver.ni:])
+    gu = solver.grad(np.ascontiguousarray(f.velocity, dtype=float), ub)
+    out = {"u": gu[:, 0, :].copy(), "v": gu[:, 1, :].copy(), "p": np.array(grad_p)}
+    if model is not None and f.nu_tilde is not None:
+        nt = np.ascontiguousarray(f.nu_tilde, dtype=float)
+        nt_b = boundary_face_values(model.mesh, model.geom, model.bc, nt, model.grad_nt)
+        out["nu_tilde"] = np.array(model.grad(nt, nt_b))
+    return out
 
 
 def solve(
@@ -279,7 +327,7 @@ def solve(
             f"not converged after {solver.iteration} iterations (tolerance {controls.tolerance:g}); "
             "raise solver.max_iterations or restart from this result"
         )
-    extra: dict[str, Any] = {}
+    extra: dict[str, Any] = {"gradients": _gradients(solver, model, grad_p)}
     if model is not None and solver.fields.nu_tilde is not None:
         nt = solver.fields.nu_tilde
         nu = c.fluid.kinematic_viscosity

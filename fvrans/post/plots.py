@@ -37,6 +37,7 @@ __all__ = [
     "make_plots",
     "new_figure",
     "plot_wall_profile",
+    "probe_figure",
     "read_fields",
     "residual_figure",
     "result_figures",
@@ -535,6 +536,64 @@ def plot_wall_profile(
 
 
 # ---------------------------------------------------------------------------------------------
+def probe_figure(
+    probe: str | os.PathLike | Mapping[str, Any],
+    quantity: str = "u",
+    *,
+    name: str | None = None,
+    title: str | None = None,
+    reference: Mapping[str, Any] | None = None,
+) -> Figure:
+    """A quantity along a line probe (``profiles/<name>.csv``: columns s, x, y, u, v, p, ...).
+
+    Drawn against s, the distance from the probe's start; a probe running more across y than
+    along x gets s on the vertical axis (a profile across a layer reads bottom to top). With
+    ``reference`` (summary.json's block) u and v are divided by U_ref.
+    """
+    if isinstance(probe, Mapping):
+        cols = {str(k): np.asarray(v, dtype=float).ravel() for k, v in probe.items()}
+        where = f"probe {name!r}" if name else "probe data"
+    else:
+        where = str(probe)
+        cols = read_csv_columns(probe, required=("s", "x", "y"))
+        name = name or Path(probe).stem
+    if quantity not in cols:
+        raise CaseError(f"{where}: no column {quantity!r}; it has {', '.join(cols)}")
+    s_, val = cols["s"], cols[quantity]
+    x, y = cols["x"], cols["y"]
+    u_ref = _num((reference or {}).get("u_ref"), None)
+    label = {"u": "u", "v": "v", "p": "p", "nut_ratio": "ν_t / ν [-]", "nu_tilde": "ν̃"}.get(quantity, quantity)
+    if quantity in ("u", "v"):
+        if u_ref:
+            val = val / u_ref
+            label = f"{quantity} / U_ref [-]"
+        else:
+            label = f"{quantity} (units of the case)"
+    elif quantity in ("p", "nu_tilde"):
+        label = f"{label} (units of the case)"
+    vertical = len(x) > 1 and abs(y[-1] - y[0]) > abs(x[-1] - x[0])
+    where_text = (f"from ({x[0]:.4g}, {y[0]:.4g}) to ({x[-1]:.4g}, {y[-1]:.4g})" if len(x) else "")
+    s_label = f"s, distance along the probe {where_text}".rstrip()
+    fig = new_figure((5.2, 5.0) if vertical else FIGSIZE)
+    ax = fig.add_subplot()
+    marker = "." if len(s_) <= 60 else None
+    if vertical:
+        ax.plot(val, s_, color="C0", lw=1.5, marker=marker, ms=4, label=name)
+        ax.set_xlabel(label)
+        ax.set_ylabel(s_label)
+        ax.set_ylim(float(s_.min()) if len(s_) else 0.0, float(s_.max()) if len(s_) else 1.0)
+    else:
+        ax.plot(s_, val, color="C0", lw=1.5, marker=marker, ms=4, label=name)
+        ax.set_xlabel(s_label)
+        ax.set_ylabel(label)
+        ax.set_xlim(float(s_.min()) if len(s_) else 0.0, float(s_.max()) if len(s_) else 1.0)
+    ax.set_title(_title(title, f"{quantity} along probe {name!r}" if name else f"{quantity} along a probe"),
+                 fontsize=11)
+    ax.grid(True, alpha=0.3)
+    return fig
+
+
+# ---------------------------------------------------------------------------------------------
 def _check_references(references: Mapping[str, Any] | None, walls: Sequence[str], where: Path) -> None:
     for patch, by_q in (references or {}).items():
         if patch not in walls:
@@ -562,7 +621,8 @@ def result_figures(
     the zero-shear points of summary.json and the curves of ``references[patch]["cf" | "cp"]``
     (see :func:`wall_figure`); ``field_velocity.png`` (with streamlines), ``field_pressure.png``
     and ``field_nut_ratio.png`` (when present) from fields.vtu; ``profile_<name>.png`` for each
-    ``profiles/<name>.csv`` with ``y_plus`` and ``u_plus`` columns. Input problems are checked
+    ``profiles/<name>.csv`` with ``y_plus`` and ``u_plus`` columns, ``probe_<name>.png`` (u along
+    the probe) for each line-probe table. Input problems are checked
     before the first figure is made.
     """
     rd = Path(result_dir)
@@ -617,6 +677,8 @@ def _result_figures(rd: Path, title: str | None, reference: Mapping[str, Any] | 
         if "y_plus" in cols and "u_plus" in cols:
             yield f"profile_{pf.stem}.png", wall_profile_figure(cols["y_plus"], cols["u_plus"], title=title,
                                                                 label=pf.stem)
+        elif all(k in cols for k in ("s", "x", "y", "u")):
+            yield f"probe_{pf.stem}.png", probe_figure(cols, "u", name=pf.stem, title=title, reference=reference)
 
 
 def make_plots(
