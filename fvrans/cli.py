@@ -116,7 +116,8 @@ def _plots(out: Path) -> None:
 def _cmd_plot(args: argparse.Namespace) -> int:
     from fvrans.post.plots import make_plots
 
-    paths = make_plots(args.result_dir, mesh_edges=args.mesh_edges, streamlines=not args.no_streamlines)
+    paths = make_plots(args.result_dir, mesh_edges=args.mesh_edges, streamlines=not args.no_streamlines,
+                       window=args.window)
     for path in paths:
         print(path)
     return 0
@@ -200,6 +201,8 @@ def build_parser() -> argparse.ArgumentParser:
     pl.add_argument("result_dir", help="folder written by 'fvrans run'")
     pl.add_argument("--mesh-edges", action="store_true", help="draw the cell edges on the field maps")
     pl.add_argument("--no-streamlines", action="store_true", help="no streamlines on the velocity map")
+    pl.add_argument("--window", nargs=4, type=float, metavar=("XMIN", "XMAX", "YMIN", "YMAX"),
+                    help="also draw zoomed maps of this window (default: the case's output.map_window)")
     pl.set_defaults(func=_cmd_plot)
 
     i = sub.add_parser("info", help="mesh report of a mesh file, or resolved settings and mesh report of a case")

@@ -88,10 +88,20 @@ def test_probe_tables_of_a_run_and_the_developed_channel_profile(tmp_path):
         result.probe("acros")
     fig = probe_figure(out / "profiles" / "across.csv", title="probe channel")
     ax = fig.axes[0]
-    # a vertical probe: u across, s (distance from the start) upwards; one line, the probe named
-    assert len(ax.get_lines()) == 1 and "across" in ax.get_title()
-    assert ax.get_xlabel().startswith("u") and ax.get_ylabel().startswith("s, distance")
-    np.testing.assert_allclose(ax.get_lines()[0].get_xdata(), across["u"])
+    # a vertical probe: velocities across, s (distance from the start) upwards; u and v, the probe named
+    lines = _labelled(ax)
+    assert sorted(lines) == ["u", "v"] and "across" in ax.get_title() and ax.get_legend() is not None
+    assert ax.get_xlabel().startswith("velocity") and ax.get_ylabel().startswith("s, distance")
+    np.testing.assert_allclose(lines["u"].get_xdata(), across["u"])
+    np.testing.assert_allclose(lines["u"].get_ydata(), across["s"])
+    fig = probe_figure(out / "profiles" / "centre.csv", "p")  # along x: s horizontal
+    ax = fig.axes[0]
+    assert ax.get_xlabel().startswith("s, distance") and ax.get_ylabel().startswith("p")
+    assert len(_labelled(ax)) == 1
+
+
+def _labelled(ax) -> dict:
+    return {ln.get_label(): ln for ln in ax.get_lines() if not ln.get_label().startswith("_")}
 
 
 def test_spalart_allmaras_probe_has_model_columns(tmp_path):
