@@ -92,7 +92,7 @@ def _title(case_title: str | None, what: str, width: int = 72) -> str:
     if len(text) <= width:
         return text
     lines = textwrap.wrap(case_title, width, break_on_hyphens=False)
-    lines += textwrap.wrap(what[:1].upper() + what[1:], width, break_on_hyphens=False)
+    lines += textwrap.wrap(what, width, break_on_hyphens=False)
     return "\n".join(lines)
 
 
@@ -293,7 +293,8 @@ def wall_figure(
     axis = ("x" if along == "x" else "s") + ("/L_ref" if l_ref else "")
     lo, hi, clipped = _wall_range(coord, val, axis, scale)
     for k, (label, x, y) in enumerate(_reference_curves(references, coord, where)):
-        ax.plot(x * scale, y, color=f"C{k + 1}", lw=1.4, ls=("--", "-.", ":")[k % 3], label=label, zorder=2)
+        # dashed and on top: a reference the computation lies on stays visible
+        ax.plot(x * scale, y, color=f"C{k + 1}", lw=1.4, ls=("--", "-.", ":")[k % 3], label=label, zorder=4)
         if len(y) > 4:  # correlations can be singular at a leading edge: don't let that set the range
             lo, hi = min(lo, float(np.percentile(y, 2))), max(hi, float(np.percentile(y, 98)))
     if quantity == "cf":
