@@ -86,7 +86,8 @@ def test_stopped_and_restarted_run_equals_the_uninterrupted_run(tmp_path, capsys
     assert np.max(np.abs(p_res - p_full)) < 1e-8
 
 
-def test_sigint_ends_a_running_command_with_a_checkpoint_and_summary(tmp_path):
+@pytest.mark.parametrize("sig", [signal.SIGINT, signal.SIGTERM], ids=["SIGINT", "SIGTERM"])
+def test_a_signal_ends_a_running_command_with_a_checkpoint_and_summary(tmp_path, sig):
     case = _case(tmp_path, n=48, tol=1e-30, max_it=1_000_000, every=10)  # would run for hours
     out = tmp_path / "out"
     env = dict(os.environ)
@@ -100,7 +101,7 @@ def test_sigint_ends_a_running_command_with_a_checkpoint_and_summary(tmp_path):
                 assert proc.poll() is None, (tmp_path / "stderr.txt").read_text()
                 assert time.monotonic() < deadline, "no checkpoint after 300 s"
                 time.sleep(0.1)
-            proc.send_signal(signal.SIGINT)
+            proc.send_signal(sig)
             status = proc.wait(timeout=120)
         finally:
             if proc.poll() is None:
@@ -109,8 +110,8 @@ def test_sigint_ends_a_running_command_with_a_checkpoint_and_summary(tmp_path):
     assert status == 1, text
     summary = json.loads((out / "summary.json").read_text())
     assert summary["converged"] is False and summary["interrupted"] is True
-    assert summary["interrupted_by"] == "SIGINT"
-    assert "SIGINT" in text and "--restart" in text
+    assert summary["interrupted_by"] == sig.name
+    assert sig.name in text and "--restart" in text
     state = ck.read_checkpoint(out)
     assert state.iteration == summary["iterations"] >= 10
     res = np.genfromtxt(out / "residuals.csv", delimiter=",", names=True)
