@@ -6,54 +6,18 @@ from __future__ import annotations
 
 import argparse
 import logging
-import signal
 import sys
 from pathlib import Path
-from typing import Any
 
 from fvrans.errors import FvransError
 
 log = logging.getLogger(__name__)
 
 
-class StopRequest:
-    """SIGINT (Ctrl-C) and SIGTERM ask the run to stop at the end of the current iteration; a
-    second signal aborts at once (KeyboardInterrupt, nothing more is written)."""
-
-    SIGNALS = (signal.SIGINT, signal.SIGTERM)
-
-    def __init__(self) -> None:
-        self.signal_name: str | None = None
-        self._old: dict[int, Any] = {}
-
-    def install(self) -> None:
-        try:
-            for sig in self.SIGNALS:
-                self._old[sig] = signal.signal(sig, self._handler)
-        except ValueError:  # not the main thread: keep the default handlers
-            self.restore()
-
-    def restore(self) -> None:
-        for sig, old in self._old.items():
-            signal.signal(sig, old)
-        self._old = {}
-
-    def _handler(self, signum: int, frame: Any) -> None:
-        if self.signal_name is not None:
-            self.restore()
-            raise KeyboardInterrupt
-        self.signal_name = signal.Signals(signum).name
-        log.warning("%s received: stopping after this iteration and saving the state (send it again to abort "
-                    "without saving)", self.signal_name)
-
-    def __call__(self, it: int, res: list[float]) -> bool:
-        return self.signal_name is not None
-
-
 def _cmd_run(args: argparse.Namespace) -> int:
     from fvrans import api
     from fvrans.checkpoint import CHECKPOINT_NAME, read_checkpoint
-    from fvrans.progress import RunProgress
+    from fvrans.progress import RunProgress, StopRequest
 
     case = api.load_case(args.case)
     if args.set:
