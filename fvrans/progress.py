@@ -118,7 +118,8 @@ class RunProgress:
         self.tty = tty if force_terminal is None else force_terminal
         self.t_prev = clock()
         self.t_last_line = -math.inf
-        self.last_text = ""
+        self.last: tuple[int, list[float]] | None = None
+        self.last_printed = -1
         self._bar: Any = None
         self._task: Any = None
         if not quiet and self.tty:
@@ -156,6 +157,7 @@ class RunProgress:
         dt = now - self.t_prev
         self.t_prev = now
         self.estimate.add(iteration, residuals, dt if iteration > self.first + 1 else None)
+        self.last = (iteration, list(residuals))
         if self.quiet:
             return
         if self._bar is not None:
@@ -163,14 +165,24 @@ class RunProgress:
                              eta=self.estimate.text(iteration))
             return
         if iteration == self.first + 1 or now - self.t_last_line >= self.every_s:
-            self.stream.write(self.line(iteration, residuals) + "\n")
-            self.stream.flush()
+            self._write_line(iteration, residuals)
             self.t_last_line = now
 
+    def _write_line(self, iteration: int, residuals: Sequence[float]) -> None:
+        self.stream.write(self.line(iteration, residuals) + "\n")
+        self.stream.flush()
+        self.last_printed = iteration
+
     def close(self) -> None:
+        """End the display: the bar is filled to the last iteration; in plain mode the last
+        iteration's line is written if it was not yet."""
         if self._bar is not None:
+            if self.last is not None:
+                self._bar.update(self._task, total=self.last[0], completed=self.last[0])
             self._bar.stop()
             self._bar = None
+        elif not self.quiet and self.last is not None and self.last[0] != self.last_printed:
+            self._write_line(*self.last)
 
 
 class StopRequest:

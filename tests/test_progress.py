@@ -28,9 +28,10 @@ def test_plain_lines_every_few_seconds_with_residuals_and_time_left():
                     clock=clock)
     assert not p.tty
     _drive(p, clock, 40)  # 0.5 s per iteration: a line at iteration 1, then every 10 iterations
-    p.close()
     lines = stream.getvalue().splitlines()
     assert [ln.split()[1] for ln in lines] == ["1/1000", "11/1000", "21/1000", "31/1000"]
+    p.close()  # and the last iteration when the run ends
+    assert stream.getvalue().splitlines()[-1].split()[1] == "40/1000"
     last = lines[-1]
     assert "u 3.82e-02" in last and "continuity 3.82e-03" in last  # 0.9**31 = 0.0382
     assert "0.5000 s/iteration" in last
