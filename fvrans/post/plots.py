@@ -604,7 +604,7 @@ def probe_figure(
     reference: Mapping[str, Any] | None = None,
 ) -> Figure:
     """Quantities along a line probe (``profiles/<name>.csv``: columns s, x, y, u, v, p, ...), one
-    line each; by default the velocity components u and v.
+    line each, labelled with the quantity and the probe's name; by default u and v.
 
     Drawn against s, the distance from the probe's start; a probe running more across y than
     along x gets s on the vertical axis (a profile across a layer reads bottom to top). With
@@ -642,7 +642,8 @@ def probe_figure(
     for k, q in enumerate(quantities):
         val = cols[q] / u_ref if (velocity and u_ref) else cols[q]
         xy = (val, s_) if vertical else (s_, val)
-        ax.plot(*xy, color=f"C{k}", lw=1.5, ls=("-", "--", "-.", ":")[k % 4], marker=marker, ms=4, label=q)
+        ax.plot(*xy, color=f"C{k}", lw=1.5, ls=("-", "--", "-.", ":")[k % 4], marker=marker, ms=4,
+                label=f"{q}, probe {name}" if name else q)
     if velocity or len(quantities) > 1:
         (ax.axvline if vertical else ax.axhline)(0.0, color="0.55", lw=0.8, zorder=1)
     lim = (float(s_.min()), float(s_.max())) if len(s_) > 1 else (0.0, 1.0)
@@ -658,8 +659,7 @@ def probe_figure(
     ax.set_title(_title(title, f"{what} along probe {name!r}" if name else f"{what} along a probe",
                         width=int(10.5 * fig.get_figwidth())), fontsize=11)
     ax.grid(True, alpha=0.3)
-    if len(quantities) > 1:
-        ax.legend(loc="best", fontsize=9)
+    ax.legend(loc="best", fontsize=9)
     return fig
 
 

@@ -90,14 +90,15 @@ def test_probe_tables_of_a_run_and_the_developed_channel_profile(tmp_path):
     ax = fig.axes[0]
     # a vertical probe: velocities across, s (distance from the start) upwards; u and v, the probe named
     lines = _labelled(ax)
-    assert sorted(lines) == ["u", "v"] and "across" in ax.get_title() and ax.get_legend() is not None
+    assert sorted(lines) == ["u, probe across", "v, probe across"] and "across" in ax.get_title()
+    assert ax.get_legend() is not None
     assert ax.get_xlabel().startswith("velocity") and ax.get_ylabel().startswith("s, distance")
-    np.testing.assert_allclose(lines["u"].get_xdata(), across["u"])
-    np.testing.assert_allclose(lines["u"].get_ydata(), across["s"])
+    np.testing.assert_allclose(lines["u, probe across"].get_xdata(), across["u"])
+    np.testing.assert_allclose(lines["u, probe across"].get_ydata(), across["s"])
     fig = probe_figure(out / "profiles" / "centre.csv", "p")  # along x: s horizontal
     ax = fig.axes[0]
     assert ax.get_xlabel().startswith("s, distance") and ax.get_ylabel().startswith("p")
-    assert len(_labelled(ax)) == 1
+    assert list(_labelled(ax)) == ["p, probe centre"]
 
 
 def _labelled(ax) -> dict:
