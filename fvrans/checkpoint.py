@@ -89,9 +89,16 @@ def mesh_hash(mesh: Mesh) -> str:
 
 
 def physics_settings(case: Case) -> dict[str, Any]:
-    """The settings a restart must keep: the case's fluid, model and boundary tables."""
+    """The settings a restart must keep: the case's fluid, model and boundary tables (an inlet
+    profile file by its name and the SHA-256 of its content, so a moved case still matches)."""
     d = case.to_dict()
-    return json.loads(json.dumps({k: d[k] for k in PHYSICS_TABLES}, default=str))
+    out = json.loads(json.dumps({k: d[k] for k in PHYSICS_TABLES}, default=str))
+    for b in out["boundary"].values():
+        if "profile" in b:
+            p = Path(b["profile"])
+            digest = hashlib.sha256(p.read_bytes()).hexdigest() if p.is_file() else "missing"
+            b["profile"] = f"{p.name} (sha256 {digest[:16]})"
+    return out
 
 
 def _differences(old: Any, new: Any, path: str = "") -> list[str]:

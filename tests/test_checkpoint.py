@@ -152,3 +152,19 @@ def test_restart_on_another_problem_is_refused(tmp_path):
     # solver settings may change: a restart with another tolerance runs on
     more = api.solve(case.set("solver.max_iterations", 3), restart=tmp_path / "c.npz")
     assert more.iterations == 8 and len(more.history.rows) == 8
+
+
+def test_an_inlet_profile_is_identified_by_its_content_not_its_folder(tmp_path):
+    data = {
+        "mesh": {"generator": "channel", "parameters": {"nx": 4, "ny": 3}},
+        "fluid": {"density": 1.0, "viscosity": 0.1},
+        "boundary": {"inlet": {"kind": "velocity-inlet", "profile": "in.csv"}, "outlet": {"kind": "pressure-outlet"},
+                     "lower_wall": {"kind": "wall"}, "upper_wall": {"kind": "wall"}},
+    }
+    settings = []
+    same, other = "y,u,v\n0,1,0\n1,1,0\n", "y,u,v\n0,1,0\n1,2,0\n"
+    for folder, text in (("a", same), ("b", same), ("c", other)):
+        (tmp_path / folder).mkdir()
+        (tmp_path / folder / "in.csv").write_text(text)
+        settings.append(ck.physics_settings(api.case_from_dict(data, tmp_path / folder / "case.toml")))
+    assert settings[0] == settings[1] != settings[2]
