@@ -65,6 +65,16 @@ def test_turbulent_skin_friction_and_drag(level):
 
 
 @pytest.mark.slow
+def test_turbulent_refinement_moves_towards_the_reference():
+    """The finer grid is closer to the grid-converged reference than the coarser one (coarse vs
+    medium here; medium vs fine, run to 1e-10, in benchmarks/grid_study_flat_plate.py: Cf(0.97)
+    +0.65 % -> +0.64 %, drag +0.81 % -> +0.78 %)."""
+    coarse, medium = turbulent("coarse"), turbulent("medium")
+    assert abs(_cf_at(medium, STATION) - CF_097) < abs(_cf_at(coarse, STATION) - CF_097)
+    assert abs(_drag(medium) - CD_PLATE) < abs(_drag(coarse) - CD_PLATE)
+
+
+@pytest.mark.slow
 def test_turbulent_cf_follows_the_power_law_correlation():
     w = turbulent("medium").result.wall("plate")
     m = (w.x >= 0.5) & (w.x <= 2.0)
