@@ -34,7 +34,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from fvrans.errors import CaseError
+from fvrans.errors import CaseError, DivergenceError
 from fvrans.fv.assembly import Coefficients, CsrAssembler, under_relax
 from fvrans.fv.boundary import DIRICHLET, NEUMANN, BoundaryScalar, boundary_face_values
 from fvrans.fv.convection import convection_coefficients
@@ -222,6 +222,14 @@ class SpalartAllmaras(EddyViscosityModel):
         scale = max(float(np.max(np.abs(nt), initial=0.0)), float(np.max(self.inflow_value, initial=0.0)))
         res = r / (scale * a_sum + 1e-300)
         under_relax(co, nt, self.relax)
+        bad = np.flatnonzero(~(co.diag > 0.0))
+        if len(bad):  # only a flow field that is already running away can do this
+            c = int(bad[0])
+            x, y = self.geom.cell_centre[c]
+            raise DivergenceError(
+                f"the nu_tilde equation lost its diagonal at cell {c} (x = {x:.4g}, y = {y:.4g}; "
+                f"{len(bad)} cells): the velocity field is running away"
+            )
         A = self.asm.matrix(co.diag, co.off_owner, co.off_neighbour)
         x = nt.copy()
         self.last_sweeps, _, _ = gauss_seidel(A.indptr, A.indices, A.data, self.asm.diag_pos, co.source, x,

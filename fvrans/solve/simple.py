@@ -51,6 +51,10 @@ PHASES = (
 #: default velocity under-relaxation per coupling: 0.7 for SIMPLE is common practice; 0.95 for
 #: SIMPLEC was the fastest of 0.7-0.98 on the Re = 100 and 1000 cavity (benchmarks/bench_cavity.py)
 DEFAULT_RELAX_VELOCITY = {"simplec": 0.95, "simple": 0.7}
+# A steady incompressible flow does not reach speeds of this many times the largest speed imposed
+# on its boundaries or given as its initial field: a run that does is diverging, even while its
+# values are still finite (common practice: an order-of-magnitude guard, not a physical limit).
+RUNAWAY_SPEED = 1e3
 
 
 @dataclass
@@ -399,8 +403,9 @@ class SimpleSolver:
     ) -> bool:
         """Iterate until every scaled residual is below ``tolerance`` (True) or the limit (False).
 
-        NaN/Inf or growth of a residual by ``divergence_factor`` above its minimum raises
-        DivergenceError carrying the last good fields. ``callback(iteration, residuals)`` may
+        NaN/Inf, a speed above ``RUNAWAY_SPEED`` times the velocity scale, a linear system that
+        lost its diagonal, or growth of a residual by ``divergence_factor`` above its minimum
+        raises DivergenceError carrying the last good fields. ``callback(iteration, residuals)`` may
         return True to stop early.
         """
         n_max = self.ctl.max_iterations if max_iterations is None else max_iterations
@@ -409,7 +414,21 @@ class SimpleSolver:
         last_good = self.fields.copy()
         for _ in range(n_max):
             t0 = time.perf_counter()
-            res = self.iterate()
+            done = self.iteration
+            try:
+                res = self.iterate()
+            except (ZeroDivisionError, FloatingPointError, DivergenceError) as exc:
+                # a linear system that lost its diagonal dominance: the fields were already
+                # running away; stop as for any divergence, keeping the last good state
+                self.fields = last_good
+                self.iteration = done
+                raise DivergenceError(
+                    f"the run diverged at iteration {done + 1} ({exc}); the last good state "
+                    "is kept — lower relax_velocity / relax_pressure, use convection = 'upwind' to "
+                    "start, or check the boundary conditions and mesh",
+                    fields=last_good,
+                    iteration=done,
+                ) from exc
             dt = time.perf_counter() - t0
             self.history.rows.append(res)
             self.history.seconds.append(dt)
@@ -417,8 +436,13 @@ class SimpleSolver:
             finite = bool(np.all(np.isfinite(arr))) and self.fields.is_finite()
             worst = float(np.max(arr)) if finite else np.inf
             best = worst if best is None else min(best, worst)
-            if not finite or (self.iteration > 10 and worst > self.ctl.divergence_factor * max(best, 1e-300)):
-                bad = "non-finite values" if not finite else "runaway residual growth"
+            runaway = finite and float(np.abs(self.fields.velocity).max(initial=0.0)) > RUNAWAY_SPEED * self.u_scale
+            if not finite or runaway or (
+                self.iteration > 10 and worst > self.ctl.divergence_factor * max(best, 1e-300)
+            ):
+                bad = ("non-finite values" if not finite else
+                       f"a velocity above {RUNAWAY_SPEED:g} times the largest boundary or initial speed"
+                       if runaway else "runaway residual growth")
                 self.fields = last_good
                 raise DivergenceError(
                     f"the run diverged at iteration {self.iteration} ({bad}; residuals "

@@ -102,6 +102,50 @@ def test_divergence_stops_with_message_and_last_good_state():
     assert err.fields is not None and err.fields.is_finite()
 
 
+def test_a_failing_linear_system_stops_like_a_divergence(monkeypatch):
+    """A linear system that loses its diagonal inside an iteration (what a run-away velocity does to
+    the nu_tilde matrix) ends the run with DivergenceError and the last good state, not with a
+    ZeroDivisionError from inside a kernel."""
+    from fvrans.solve.simple import SimpleSolver
+
+    calls = {"n": 0}
+    iterate = SimpleSolver.iterate
+
+    def failing(self):
+        calls["n"] += 1
+        if calls["n"] == 4:
+            raise ZeroDivisionError("division by zero")
+        return iterate(self)
+
+    monkeypatch.setattr(SimpleSolver, "iterate", failing)
+    with pytest.raises(DivergenceError) as info:
+        solve(cavity(8), WALLS, mu=0.01, max_iterations=50, tolerance=1e-12)
+    err = info.value
+    assert "diverged" in str(err) and "division by zero" in str(err)
+    assert err.iteration == 3 and err.fields is not None and err.fields.is_finite()
+
+
+def test_runaway_speed_stops_before_overflow(monkeypatch):
+    """A velocity a thousand times the largest imposed speed stops the run even while every value
+    is still finite and within the first iterations, where residual growth is not yet judged."""
+    from fvrans.solve.simple import RUNAWAY_SPEED, SimpleSolver
+
+    iterate = SimpleSolver.iterate
+
+    def running_away(self):
+        res = iterate(self)
+        if self.iteration == 3:
+            self.fields.velocity *= 10 * RUNAWAY_SPEED
+        return res
+
+    monkeypatch.setattr(SimpleSolver, "iterate", running_away)
+    with pytest.raises(DivergenceError) as info:
+        solve(cavity(8), WALLS, mu=0.01, max_iterations=50, tolerance=1e-12)
+    err = info.value
+    assert "diverged at iteration 3" in str(err) and "times the largest" in str(err)
+    assert err.iteration == 2 and np.abs(err.fields.velocity).max() <= 1.0 + 1e-9
+
+
 def test_mesh_patch_without_condition_is_reported():
     mesh: Mesh = cavity(4)
     with pytest.raises(Exception) as info:
