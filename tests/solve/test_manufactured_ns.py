@@ -26,8 +26,11 @@ orders (L2, pairs 12-24, 24-48, 48-96 cells across):
 - mapped triangles: velocity 1.84, 1.93, 1.95; pressure 1.85, 1.84, 1.77 (1.54, 1.34, 1.17
   without the second-derivative terms)
 
-The slow fall of the pressure order comes from the first layer of cells at the boundary, where
-the discrete velocity error is O(h^2) but not smooth; the tests use 12, 24 and 48 cells across.
+The pressure order falls slowly on every family (96-192: triangles 1.61, mapped quads 1.64): the
+momentum truncation error is O(1) in the first layer of cells at the boundary (one-sided
+gradients in the boundary fluxes), reaches the face fluxes through H/A and leaves an O(h)
+continuity error in that layer (with the exact fields inserted and H/A replaced by u + (V/a_P)
+grad p it becomes second order there). The tests use 12, 24 and 48 cells across.
 """
 
 from __future__ import annotations
