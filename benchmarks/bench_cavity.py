@@ -1,4 +1,5 @@
-"""Speed and convergence of the SIMPLEC loop: lid-driven cavity, Re = 100, uniform quads.
+"""Speed and convergence of the SIMPLEC loop: lid-driven cavity, Re = 100, uniform quads
+(or, with ``--triangles``, the squares split into triangles).
 
 For 64^2, 128^2 and 256^2 cells: outer iterations to reach the stated tolerance on every scaled
 residual, seconds per outer iteration, microseconds per cell per outer iteration and that cost
@@ -7,6 +8,7 @@ fraction of the loop time spent in each phase. A short warm-up run excludes numb
 Prints a plain table; no assertions. Run:
 
     python benchmarks/bench_cavity.py [--sizes 64 128 256] [--tolerance 1e-6] [--momentum-solver amg]
+                                      [--triangles] [--quadratic-face-flux auto|on|off]
 """
 
 from __future__ import annotations
@@ -38,8 +40,8 @@ def triad_seconds(n: int, repeats: int = 50) -> float:
     return best
 
 
-def make_solver(n: int, controls: dict) -> SimpleSolver:
-    mesh = cavity(n)
+def make_solver(n: int, controls: dict, triangles: bool = False) -> SimpleSolver:
+    mesh = cavity(n, triangles=triangles)
     geom = compute_geometry(mesh)
     bc = build_flow_boundary(mesh, geom, SPECS)
     return SimpleSolver(mesh, geom, bc, rho=1.0, mu=0.01, controls=SolverControls(**controls))
@@ -52,22 +54,28 @@ def main() -> None:
     ap.add_argument("--max-iterations", type=int, default=5000)
     ap.add_argument("--momentum-solver", default=None, help="'amg' or 'gauss-seidel' (default: the solver's)")
     ap.add_argument("--relax-velocity", type=float, default=None)
+    ap.add_argument("--triangles", action="store_true", help="split every square into two triangles")
+    ap.add_argument("--quadratic-face-flux", choices=["auto", "on", "off"], default="auto",
+                    help="second-derivative terms of the Rhie-Chow fluxes (auto: on for non-quad cells)")
     args = ap.parse_args()
     controls: dict = {"tolerance": args.tolerance, "max_iterations": args.max_iterations}
     if args.momentum_solver:
         controls["momentum_solver"] = args.momentum_solver
     if args.relax_velocity:
         controls["relax_velocity"] = args.relax_velocity
-    make_solver(16, controls).run(max_iterations=30)  # numba compilation / cache load
+    if args.quadratic_face_flux != "auto":
+        controls["quadratic_face_flux"] = args.quadratic_face_flux == "on"
+    make_solver(16, controls, args.triangles).run(max_iterations=30)  # numba compilation / cache load
 
-    print(f"lid-driven cavity Re=100, uniform quads, SIMPLEC, controls {SolverControls(**controls)}")
+    cells = "squares split into triangles" if args.triangles else "uniform quads"
+    print(f"lid-driven cavity Re=100, {cells}, SIMPLEC, controls {SolverControls(**controls)}")
     print(f"converged = every scaled residual < {args.tolerance:g}")
     head = f"{'mesh':>8} {'cells':>7} {'conv':>5} {'iters':>6} {'total s':>8} {'s/iter':>8} {'us/cell/it':>10} "
     head += f"{'triad us':>9} {'/triad':>7} {'p CG/it':>7} {'mom Kr/it':>9}"
     rows = []
     profiles = []
     for n in args.sizes:
-        s = make_solver(n, controls)
+        s = make_solver(n, controls, args.triangles)
         t0 = time.perf_counter()
         ok = s.run()
         total = time.perf_counter() - t0

@@ -213,3 +213,124 @@ def slope_limiter(owner, neighbour, nfi, face_centre, cell_centre, phi, phi_b, g
     for c in range(nc):
         if psi[c] < 0.0:
             psi[c] = 0.0
+
+
+@njit(cache=True)
+def vertex_stencils(cell_offsets, cell_points, point_cell_ptr, point_cells, point_bface_ptr, point_bfaces, nfi):
+    """Vertex-neighbour stencil of every cell: the other cells sharing a vertex with it, then the
+    boundary faces touching one of its vertices (entry ``-1 - b`` for boundary face ``nfi + b``).
+    Returns (ptr, idx) in CSR form."""
+    nc = cell_offsets.shape[0] - 1
+    stamp_c = np.full(nc, -1, dtype=np.int64)
+    nbmax = 0
+    for k in range(point_bfaces.shape[0]):
+        if point_bfaces[k] - nfi + 1 > nbmax:
+            nbmax = point_bfaces[k] - nfi + 1
+    stamp_b = np.full(nbmax + 1, -1, dtype=np.int64)
+    ptr = np.zeros(nc + 1, dtype=np.int64)
+    for sweep in range(2):
+        if sweep == 1:
+            idx = np.empty(ptr[nc], dtype=np.int64)
+            stamp_c[:] = -1
+            stamp_b[:] = -1
+        else:
+            idx = np.empty(0, dtype=np.int64)
+        for c in range(nc):
+            stamp_c[c] = c
+            k = ptr[c]
+            n = 0
+            for q in range(cell_offsets[c], cell_offsets[c + 1]):
+                v = cell_points[q]
+                for r in range(point_cell_ptr[v], point_cell_ptr[v + 1]):
+                    j = point_cells[r]
+                    if stamp_c[j] != c:
+                        stamp_c[j] = c
+                        if sweep == 1:
+                            idx[k + n] = j
+                        n += 1
+            for q in range(cell_offsets[c], cell_offsets[c + 1]):
+                v = cell_points[q]
+                for r in range(point_bface_ptr[v], point_bface_ptr[v + 1]):
+                    b = point_bfaces[r] - nfi
+                    if stamp_b[b] != c:
+                        stamp_b[b] = c
+                        if sweep == 1:
+                            idx[k + n] = -1 - b
+                        n += 1
+            if sweep == 0:
+                ptr[c + 1] = ptr[c] + n
+    return ptr, idx
+
+
+@njit(cache=True)
+def quadratic_fit_matrices(ptr, idx, cell_centre, face_centre, area, nfi, coef):
+    """Weighted least-squares quadratic fit through the cell value: for stencil point j at offset
+    d_j = x_j - x_c, minimise sum_j |d_j|^-2 (phi_j - phi_c - g . d_j - d_j^T H d_j / 2)^2.
+    ``coef[k]`` (nnz, 5) holds the rows giving (g_x, g_y, H_xx, H_xy, H_yy) = sum_k coef[k]
+    (phi_j - phi_c). Exact for quadratic fields. Returns the number of cells whose fit is
+    singular (their rows are zero)."""
+    nc = ptr.shape[0] - 1
+    bad = 0
+    a = np.empty(5)
+    for c in range(nc):
+        h = np.sqrt(area[c])
+        m = np.zeros((5, 5))
+        for k in range(ptr[c], ptr[c + 1]):
+            j = idx[k]
+            if j >= 0:
+                r0 = (cell_centre[j, 0] - cell_centre[c, 0]) / h
+                r1 = (cell_centre[j, 1] - cell_centre[c, 1]) / h
+            else:
+                f = nfi - 1 - j
+                r0 = (face_centre[f, 0] - cell_centre[c, 0]) / h
+                r1 = (face_centre[f, 1] - cell_centre[c, 1]) / h
+            wgt = 1.0 / (r0 * r0 + r1 * r1)
+            a[0] = r0
+            a[1] = r1
+            a[2] = 0.5 * r0 * r0
+            a[3] = r0 * r1
+            a[4] = 0.5 * r1 * r1
+            for p in range(5):
+                coef[k, p] = wgt * a[p]
+                for q in range(5):
+                    m[p, q] += wgt * a[p] * a[q]
+        ev = np.linalg.eigvalsh(m)
+        if ptr[c + 1] - ptr[c] < 5 or not ev[0] > 1e-8 * ev[4]:
+            bad += 1
+            for k in range(ptr[c], ptr[c + 1]):
+                for p in range(5):
+                    coef[k, p] = 0.0
+            continue
+        minv = np.linalg.inv(m)
+        for k in range(ptr[c], ptr[c + 1]):
+            for p in range(5):
+                a[p] = coef[k, p]
+            for p in range(5):
+                s = 0.0
+                for q in range(5):
+                    s += minv[p, q] * a[q]
+                coef[k, p] = s / (h if p < 2 else h * h)
+    return bad
+
+
+@njit(cache=True)
+def quadratic_fit_hessian(ptr, idx, coef, phi, phi_b, out):
+    """Second derivatives (H_xx, H_xy, H_yy) of every component of phi (nc, m) from the
+    quadratic fit; ``phi_b`` (nb, m) are the boundary face values. ``out`` is (nc, m, 3)."""
+    nc = phi.shape[0]
+    m = phi.shape[1]
+    for c in range(nc):
+        for i in range(m):
+            h0 = 0.0
+            h1 = 0.0
+            h2 = 0.0
+            pc = phi[c, i]
+            for k in range(ptr[c], ptr[c + 1]):
+                j = idx[k]
+                dphi = (phi[j, i] if j >= 0 else phi_b[-1 - j, i]) - pc
+                h0 += coef[k, 2] * dphi
+                h1 += coef[k, 3] * dphi
+                h2 += coef[k, 4] * dphi
+            out[c, i, 0] = h0
+            out[c, i, 1] = h1
+            out[c, i, 2] = h2

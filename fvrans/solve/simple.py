@@ -31,7 +31,7 @@ import numpy as np
 
 from fvrans.errors import DivergenceError
 from fvrans.fv.assembly import CsrAssembler
-from fvrans.fv.gradient import gradient_operator
+from fvrans.fv.gradient import QuadraticFit, gradient_operator
 from fvrans.linalg.amg import AmgKrylovSolver
 from fvrans.linalg.pressure import PressureSolver
 from fvrans.mesh.geometry import Geometry
@@ -66,6 +66,10 @@ class SolverControls:
     iterations, relative L2 tolerance ``momentum_tolerance``) or 'gauss-seidel' (at most
     ``momentum_sweeps`` symmetric sweeps, relative L1 tolerance ``momentum_tolerance``).
     ``amg_rebuild_every``: outer iterations between AMG set-ups (pressure and momentum).
+    ``quadratic_face_flux``: add the second-derivative terms of the face velocity and of the
+    face integral to the Rhie-Chow fluxes (see ``_kernels.rhie_chow_fluxes``); None turns them on
+    when the mesh has a cell that is not a quadrilateral (on triangles the midpoint-rule errors
+    of the three faces do not cancel, so without them the pressure is only first order).
     """
 
     coupling: str = "simplec"
@@ -82,6 +86,7 @@ class SolverControls:
     momentum_max_iterations: int = 20
     amg_rebuild_every: int = 20
     divergence_factor: float = 1e5
+    quadratic_face_flux: bool | None = None
 
     @property
     def alpha_u(self) -> float:
@@ -177,6 +182,11 @@ class SimpleSolver:
         self.grad = gradient_operator(mesh, geom, method=self.ctl.gradient.replace("-", "_"))
         # the pressure force in conservative face-sum form (second order on irregular meshes)
         self.grad_pressure = gradient_operator(mesh, geom, method="gauss_least_squares")
+        quadratic = self.ctl.quadratic_face_flux
+        if quadratic is None:
+            quadratic = bool(np.any(mesh.cell_sizes() != 4))
+        self.hess = QuadraticFit(mesh, geom) if quadratic else None
+        self.hu = np.zeros((nc if quadratic else 1, 2, 3))
         self.psolver = PressureSolver(
             CsrAssembler(mesh), rtol=self.ctl.pressure_tolerance, rebuild_every=self.ctl.amg_rebuild_every,
             singular=not boundary.has_fixed_pressure,
@@ -302,6 +312,7 @@ class SimpleSolver:
                             F_old, self.ub)
         t1 = time.perf_counter()
         gu = self.grad(u_old, self.ub, out=self.gu)
+        hu = self.hu if self.hess is None else self.hess(u_old, self.ub, out=self.hu)
         t2 = time.perf_counter()
         K.assemble_momentum(
             self.owner, self.neigh, ni, self.S, self.dcoef, self.kvec, g.face_weight,
@@ -344,8 +355,8 @@ class SimpleSolver:
         F = np.empty(self.nf)
         K.rhie_chow_fluxes(
             self.owner, self.neigh, ni, self.S, self.dcoef, self.kvec, g.face_weight,
-            g.face_skew, g.face_delta, gu, rho, self.hbya, self.rau, fl.pressure, gp, self.pb, kind, self.bc.velocity,
-            alpha, F_old, F,
+            g.face_skew, g.face_delta, gu, hu, self.hess is not None, rho, self.hbya, self.rau, fl.pressure, gp,
+            self.pb, kind, self.bc.velocity, alpha, F_old, F,
         )
         imbalance = K.assemble_pressure_correction(
             self.owner, self.neigh, ni, self.dcoef, rho, dp, kind, F, self.p_diag, self.p_off, self.p_rhs

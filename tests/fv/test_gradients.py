@@ -140,3 +140,26 @@ def test_wrong_field_length_is_reported():
     with pytest.raises(ValueError, match="9 cell values"):
         op(np.zeros(8), np.zeros(m.n_boundary_faces))
 
+
+
+def quadratic(x, y):
+    return 0.3 + GX * x + GY * y + 1.5 * x * x - 0.8 * x * y + 2.25 * y * y
+
+
+@pytest.mark.parametrize("kind", list(MESH_KINDS))
+def test_quadratic_fit_hessian_exact_for_quadratic_fields(kind):
+    """A least-squares fit of a complete quadratic reproduces any quadratic field exactly
+    (k-exact reconstruction, Barth & Frederickson 1990, AIAA 90-0013; from memory): H = [[3, -0.8],
+    [-0.8, 4.5]] in every cell, boundary cells included, for both components of a 2-vector."""
+    from fvrans.fv.gradient import QuadraticFit
+
+    m, g = mesh_and_geometry(kind, 9)
+    fit = QuadraticFit(m, g)
+    assert fit.n_singular == 0
+    xb = g.face_centre[m.n_internal_faces :]
+    phi = np.stack([quadratic(*g.cell_centre.T), -quadratic(*g.cell_centre.T)], axis=1)
+    phi_b = np.stack([quadratic(*xb.T), -quadratic(*xb.T)], axis=1)
+    h = fit(phi, phi_b)
+    assert h.shape == (m.n_cells, 2, 3)
+    assert np.abs(h[:, 0] - [3.0, -0.8, 4.5]).max() < 1e-9
+    assert np.abs(h[:, 1] + [3.0, -0.8, 4.5]).max() < 1e-9
