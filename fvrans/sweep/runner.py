@@ -15,6 +15,7 @@ import hashlib
 import json
 import logging
 import os
+import platform
 import sys
 import time
 from collections.abc import Callable, Sequence
@@ -83,7 +84,7 @@ def execute_run(task: RunTask) -> dict[str, Any]:
 
     run_dir = Path(task.run_dir)
     record: dict[str, Any] = {"key": task.key, "parameters": task.changes, "started": _now(),
-                              "fvrans": _version(), "host": os.uname().nodename if hasattr(os, "uname") else ""}
+                              "fvrans": _version(), "host": platform.node(), "pid": os.getpid()}
     t0 = time.perf_counter()
     try:
         run_dir.mkdir(parents=True, exist_ok=True)

@@ -1,0 +1,56 @@
+"""Sweeps on a local dask.distributed cluster (2 worker processes on 127.0.0.1): the same numbers
+as solving the design points one by one in this process; failing runs isolated on the workers."""
+
+from __future__ import annotations
+
+import json
+import os
+
+import numpy as np
+import pytest
+
+import fvrans.api as fa
+from fvrans.case import load_case
+from fvrans.sweep import Output, Parameter, Sweep, run_sweep
+from fvrans.sweep.collect import summary_value
+
+TIMEOUT = 300.0  # seconds; a hung cluster fails the test instead of the CI job
+SPEEDS = [0.6, 0.7, 0.8, 0.9, 1.0, 1.1, 1.2, 1.3]
+X_STATION = 2.0
+
+
+def test_cluster_sweep_equals_in_process_runs(tmp_path, channel_case, dask_client):
+    """8 inlet speeds on 2 workers give, run for run, the outputs, iteration counts and convergence
+    of solving each case in this process (to solver tolerance: 1e-9 relative)."""
+    base = load_case(channel_case).set("mesh.parameters.length", 4.0)
+    sweep = Sweep(
+        case=base,
+        parameters=[Parameter("boundary.inlet.velocity", values=[[u, 0.0] for u in SPEEDS], name="u_in")],
+        outputs=[Output("cd", summary="walls.lower_wall.forces.Cd"),
+                 Output("cf_2", wall="lower_wall", quantity="cf", x=X_STATION)],
+    )
+    table = run_sweep(sweep, tmp_path / "out", scheduler=dask_client, timeout=TIMEOUT)
+    assert len(table) == len(SPEEDS) and table.all_ok
+    pids = {json.loads((tmp_path / "out" / "runs" / k / "run.json").read_text())["pid"] for k in table.column("key")}
+    assert os.getpid() not in pids  # solved in the worker processes
+    for row, u in zip(table.rows, SPEEDS):
+        assert row["u_in"] == [u, 0.0]
+        result = fa.solve(base.set("boundary.inlet.velocity", [u, 0.0]))
+        assert result.converged and row["converged"]
+        assert row["iterations"] == result.iterations
+        cd = summary_value(result.summary(), "walls.lower_wall.forces.Cd", "in-process")
+        wall = result.wall("lower_wall")
+        cf = float(np.interp(X_STATION, wall.x, wall.cf))
+        assert row["cd"] == pytest.approx(cd, rel=1e-9)
+        assert row["cf_2"] == pytest.approx(cf, rel=1e-9)
+
+
+def test_failures_on_workers_are_recorded(tmp_path, channel_case, dask_client):
+    """A mesh that cannot be built fails its run on the worker; the error comes back in its row."""
+    sweep = Sweep(case=channel_case, parameters=[Parameter("mesh.parameters.length", values=[-2.0, 3.0])],
+                  outputs=[Output("iters", summary="iterations")])
+    table = run_sweep(sweep, tmp_path / "out", scheduler=dask_client, timeout=TIMEOUT)
+    bad, good = table.rows
+    assert bad["status"] == "failed" and bad["error"].startswith("MeshError: channel: length and height")
+    assert bad["iters"] is None
+    assert good["status"] == "converged" and good["iters"] == good["iterations"] > 0 and good["error"] == ""
