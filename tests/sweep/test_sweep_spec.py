@@ -122,3 +122,21 @@ def test_csv_quotes_commas_and_keeps_lists():
     table = ResultsTable(["run", "u", "error"], [{"run": 0, "u": [1.0, 0.0], "error": "MeshError: a, b\nc"}])
     rows = list(csv.reader(io.StringIO(csv_text(table))))
     assert rows == [["run", "u", "error"], ["0", "[1.0, 0.0]", "MeshError: a, b | c"]]
+
+
+def test_bad_spec_exits_2_with_the_message(tmp_path, channel_case, capsys):
+    from fvrans.cli import main
+
+    path = _spec(tmp_path, GOOD.replace("start = 0.01", "start = -0.01"))
+    assert main(["sweep", str(path), "--out", str(tmp_path / "out"), "--quiet"]) == 2
+    err = capsys.readouterr().err
+    assert f"{path}: parameter 1 (fluid.viscosity): spacing = \"log\" needs start and stop > 0" in err
+    assert not (tmp_path / "out").exists()
+
+
+def test_bundled_demo_spec_loads():
+    from pathlib import Path
+
+    spec = Path(__file__).resolve().parents[2] / "cases" / "sweeps" / "channel_speed_viscosity.toml"
+    sweep = load_sweep(spec)
+    assert len(design_points(sweep)) == 8
