@@ -18,10 +18,13 @@ import os
 import platform
 import sys
 import time
+import uuid
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
+
+import numpy as np
 
 from fvrans.case import Case
 from fvrans.errors import CaseError, FvransError
@@ -76,22 +79,38 @@ def _error_text(exc: BaseException) -> str:
     return f"{type(exc).__name__}: {exc}"
 
 
-def execute_run(task: RunTask) -> dict[str, Any]:
-    """Solve one design point, write its folder and return its record (never raises for a
-    failing run: the exception text goes into the record)."""
+def _same_topology(a: Any, b: Any) -> bool:
+    """Same cells and faces (a warm start between them is valid); points may differ."""
+    return (
+        a.n_cells == b.n_cells and a.n_faces == b.n_faces and a.n_internal_faces == b.n_internal_faces
+        and np.array_equal(a.face_owner, b.face_owner) and np.array_equal(a.face_neighbour, b.face_neighbour)
+    )
+
+
+def _execute(task: RunTask, previous: Any = None) -> tuple[dict[str, Any], Any]:
+    """One run; ``previous`` (a Result or None) warm-starts it when its mesh has the same topology.
+    Returns the record (outputs included) and the Result (None for a failed run)."""
     from fvrans import api
     from fvrans.case import case_from_dict
 
     run_dir = Path(task.run_dir)
     record: dict[str, Any] = {"key": task.key, "parameters": task.changes, "started": _now(),
-                              "fvrans": _version(), "host": platform.node(), "pid": os.getpid()}
+                              "fvrans": _version(), "host": platform.node(), "pid": os.getpid(),
+                              "warm_start_from": ""}
     t0 = time.perf_counter()
+    result = None
     try:
         run_dir.mkdir(parents=True, exist_ok=True)
         case = case_from_dict(task.case_data, task.case_source)
         text = case.to_toml()
         atomic_write(run_dir / "case.toml", lambda f: f.write(text))
-        result = api.solve(case)
+        problem = api.prepare(case)
+        initial = None
+        if previous is not None and _same_topology(previous.mesh, problem.mesh):
+            initial = previous
+            record["warm_start_from"] = previous.extra.get("sweep_key", "")
+        result = api.solve(problem, initial=initial)
+        result.extra["sweep_key"] = task.key
         result.write(run_dir)
         status = "converged" if result.converged else ("diverged" if result.diverged else "not-converged")
         record.update(status=status, converged=bool(result.converged), iterations=int(result.iterations),
@@ -99,13 +118,33 @@ def execute_run(task: RunTask) -> dict[str, Any]:
     except Exception as exc:  # noqa: BLE001 - a failing run is recorded, the sweep goes on
         log.debug("run %s failed", task.key, exc_info=True)
         record.update(status="failed", converged=False, iterations=None, error=_error_text(exc))
+        result = None
     record["wall_seconds"] = time.perf_counter() - t0
     record["finished"] = _now()
     try:
         write_json_atomic(run_dir / RECORD, to_jsonable(record))
     except (OSError, FvransError) as exc:
         record["error"] = (record["error"] + "; " if record["error"] else "") + f"run record not written: {exc}"
-    return _with_outputs(record, run_dir, task.outputs)
+    return _with_outputs(record, run_dir, task.outputs), result
+
+
+def execute_run(task: RunTask) -> dict[str, Any]:
+    """Solve one design point from the case's initial state, write its folder and return its
+    record (never raises for a failing run: the exception text goes into the record)."""
+    return _execute(task)[0]
+
+
+def execute_chain(tasks: Sequence[RunTask]) -> list[dict[str, Any]]:
+    """Solve design points one after the other, each warm-started from the last converged one
+    (when the meshes have the same topology); returns their records."""
+    records = []
+    previous = None
+    for t in tasks:
+        rec, result = _execute(t, previous)
+        if result is not None and result.converged:
+            previous = result
+        records.append(rec)
+    return records
 
 
 def _with_outputs(record: dict[str, Any], run_dir: Path, outputs: Sequence[Output]) -> dict[str, Any]:
@@ -145,9 +184,25 @@ def _failed_record(key: str, changes: dict[str, Any], error: str) -> dict[str, A
 Done = Callable[[RunTask, dict[str, Any]], None]
 
 
-def _run_in_process(tasks: Sequence[RunTask], done: Done) -> None:
+def _run_in_process(tasks: Sequence[RunTask], done: Done, warm_start: bool) -> None:
+    previous = None
     for t in tasks:
-        done(t, execute_run(t))
+        rec, result = _execute(t, previous)
+        if warm_start and result is not None and result.converged:
+            previous = result
+        done(t, rec)
+
+
+def chains(tasks: Sequence[RunTask], n_workers: int, longest: int = 8) -> list[list[RunTask]]:
+    """Consecutive design points in chains for warm starts: one chain per worker, or chains of
+    ``longest`` runs when there are more runs (many chains balance the load).
+
+    >>> [len(c) for c in chains(list(range(10)), 2)], [len(c) for c in chains(list(range(20)), 2)]
+    ([5, 5], [8, 8, 4])
+    """
+    n = len(tasks)
+    size = max(1, min(longest, -(-n // max(1, n_workers))))
+    return [list(tasks[i : i + size]) for i in range(0, n, size)]
 
 
 def default_workers() -> int:
@@ -158,22 +213,31 @@ def default_workers() -> int:
         return max(1, os.cpu_count() or 1)
 
 
-def _run_on_dask(tasks: Sequence[RunTask], done: Done, client: Any, timeout: float | None) -> None:
+def _run_on_dask(tasks: Sequence[RunTask], done: Done, client: Any, timeout: float | None,
+                 warm_start: bool) -> None:
     from distributed import as_completed
 
+    tag = uuid.uuid4().hex[:8]  # task names unique to this sweep, even on a shared cluster
     futures = {}
-    for t in tasks:
-        fut = client.submit(execute_run, t, key=f"fvrans-run-{t.key}", pure=False)
-        futures[fut] = t
+    if warm_start:
+        n_workers = max(1, len(client.scheduler_info().get("workers", {})))
+        for i, chain in enumerate(chains(tasks, n_workers)):
+            futures[client.submit(execute_chain, chain, key=f"fvrans-chain-{tag}-{i}", pure=False)] = chain
+    else:
+        for t in tasks:
+            futures[client.submit(execute_run, t, key=f"fvrans-run-{tag}-{t.key}", pure=False)] = [t]
     try:
         for fut in as_completed(list(futures), timeout=timeout):
-            task = futures[fut]
+            group = futures[fut]
             try:
-                rec = fut.result()
+                recs = fut.result()
+                recs = recs if warm_start else [recs]
             except Exception as exc:  # noqa: BLE001 - e.g. the workers running it kept dying
-                rec = _failed_record(task.key, task.changes, f"the run was lost on the cluster: {_error_text(exc)}")
+                text = f"the run was lost on the cluster: {_error_text(exc)}"
+                recs = [_failed_record(t.key, t.changes, text) for t in group]
             fut.release()
-            done(task, rec)
+            for task, rec in zip(group, recs):
+                done(task, rec)
     finally:
         for fut in futures:
             if not fut.done():
@@ -237,6 +301,15 @@ class _Bar:
     def close(self) -> None:
         if self.enabled:
             self.progress.stop()
+
+
+def _order_key(v: Any) -> tuple:
+    """Sort key of parameter values: numbers by value, lists item by item, other values as text."""
+    if isinstance(v, (list, tuple)):
+        return tuple(_order_key(x) for x in v)
+    if isinstance(v, (int, float)) and not isinstance(v, bool):
+        return (0, float(v))
+    return (1, str(v))
 
 
 def _row(point: DesignPoint, sweep: Sweep, rec: dict[str, Any]) -> dict[str, Any]:
@@ -317,28 +390,30 @@ def run_sweep(
         bar.advance(_ok(rec))
 
     todo = list(tasks.values())
+    if sweep.warm_start and sweep.sampling != "factorial":
+        todo.sort(key=lambda t: _order_key(list(t.changes.values())))
     t0 = time.perf_counter()
     try:
         n = default_workers() if workers is None else workers
         if not todo:
             pass
         elif scheduler is None and min(n, len(todo)) == 1:
-            _run_in_process(todo, done)
+            _run_in_process(todo, done, sweep.warm_start)
         elif scheduler is None:
             cluster, client = _local_cluster(min(n, len(todo)))
             try:
-                _run_on_dask(todo, done, client, timeout)
+                _run_on_dask(todo, done, client, timeout, sweep.warm_start)
             finally:
                 client.close()
                 cluster.close()
         elif isinstance(scheduler, str):
             client = _connect(scheduler)
             try:
-                _run_on_dask(todo, done, client, timeout)
+                _run_on_dask(todo, done, client, timeout, sweep.warm_start)
             finally:
                 client.close()
         else:
-            _run_on_dask(todo, done, scheduler, timeout)
+            _run_on_dask(todo, done, scheduler, timeout, sweep.warm_start)
     finally:
         bar.close()
     rows = [_row(p, sweep, records[k]) for p, k in zip(points, point_keys) if k in records]

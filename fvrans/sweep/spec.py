@@ -9,6 +9,7 @@ A spec file (TOML, every key checked; unknown keys are refused)::
     sampling = "factorial"             # factorial | latin-hypercube | sobol
     # count = 16                       # sampled plans: number of runs
     # seed = 1                         # sampled plans: seed of the generator (default 0)
+    # warm_start = true                # start each run from a neighbour's converged result
 
     [[parameter]]
     key = "fluid.viscosity"            # a dotted case key, as for --set
@@ -36,6 +37,11 @@ A factorial plan runs every combination of the parameters' values (the first par
 slowest). A Latin-hypercube or Sobol plan (``scipy.stats.qmc``) draws ``count`` points in the unit
 cube and maps each coordinate onto its parameter: onto [start, stop] (uniformly, or uniformly in
 log for ``spacing = "log"``), or onto one of the listed ``values``.
+
+With ``warm_start = true`` consecutive design points (plan order; sampled plans sorted by their
+values) run in short chains, each run starting from the converged result of the one before when
+their meshes have the same topology (same parameters of the mesh, or a generator that keeps its
+topology); results then agree with cold starts to the solver tolerance, and iteration counts differ.
 
 The same from Python:
 
@@ -73,7 +79,7 @@ WALL_QUANTITIES = ("tau_w", "cf", "p_wall", "cp", "u_tau", "y_plus", "d_perp", "
 RESERVED_COLUMNS = ("run", "key", "status", "converged", "iterations", "wall_seconds", "error")
 
 _TOP_KEYS = ("title", "case", "plan", "parameter", "output")
-_PLAN_KEYS = ("sampling", "count", "seed")
+_PLAN_KEYS = ("sampling", "count", "seed", "warm_start")
 _PARAMETER_KEYS = ("key", "name", "values", "start", "stop", "count", "spacing")
 _OUTPUT_KEYS = ("name", "summary", "wall", "quantity", "x")
 
@@ -119,7 +125,8 @@ class Output:
 @dataclass(frozen=True)
 class Sweep:
     """A whole sweep. ``case`` is a case file or a loaded :class:`~fvrans.case.Case`;
-    ``count`` and ``seed`` belong to the sampled plans (``"latin-hypercube"``, ``"sobol"``)."""
+    ``count`` and ``seed`` belong to the sampled plans (``"latin-hypercube"``, ``"sobol"``);
+    ``warm_start`` chains neighbouring runs (see the module docstring)."""
 
     case: Case | str | Path
     parameters: Sequence[Parameter]
@@ -127,6 +134,7 @@ class Sweep:
     sampling: str = "factorial"
     count: int | None = None
     seed: int = 0
+    warm_start: bool = False
     title: str = ""
     source: Path | None = field(default=None, compare=False)
 
@@ -255,7 +263,9 @@ def check_sweep(sweep: Sweep) -> None:
                             f"give {lo} or {2 * lo} (or use sampling = \"latin-hypercube\")")
         if isinstance(sweep.seed, bool) or not isinstance(sweep.seed, numbers.Integral) or sweep.seed < 0:
             raise CaseError(f"{label}: plan.seed: must be an integer >= 0, got {describe(sweep.seed)}")
-    elif sweep.count is not None:
+    if not isinstance(sweep.warm_start, bool):
+        raise CaseError(f"{label}: plan.warm_start: must be true or false, got {describe(sweep.warm_start)}")
+    if not sampled and sweep.count is not None:
         raise CaseError(f"{label}: plan.count: a factorial plan runs every combination; give the number of "
                         "values per parameter (count in each [[parameter]]) and remove plan.count")
     if not sweep.parameters:
@@ -406,7 +416,8 @@ def sweep_from_dict(data: Mapping[str, Any], source: str | Path | None = None) -
         outputs.append(Output(**{k: t.get(k) for k in _OUTPUT_KEYS}))
     sweep = Sweep(
         case=full, parameters=params, outputs=outputs, sampling=plan.get("sampling", "factorial"),
-        count=plan.get("count"), seed=plan.get("seed", 0), title=title, source=src,
+        count=plan.get("count"), seed=plan.get("seed", 0), warm_start=plan.get("warm_start", False),
+        title=title, source=src,
     )
     check_sweep(sweep)
     return sweep
