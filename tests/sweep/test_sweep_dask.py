@@ -11,6 +11,7 @@ import pytest
 
 import fvrans.api as fa
 from fvrans.case import load_case
+from fvrans.cli import main
 from fvrans.sweep import Output, Parameter, Sweep, run_sweep
 from fvrans.sweep.collect import summary_value
 
@@ -46,11 +47,17 @@ def test_cluster_sweep_equals_in_process_runs(tmp_path, channel_case, dask_clien
 
 
 def test_failures_on_workers_are_recorded(tmp_path, channel_case, dask_client):
-    """A mesh that cannot be built fails its run on the worker; the error comes back in its row."""
-    sweep = Sweep(case=channel_case, parameters=[Parameter("mesh.parameters.length", values=[-2.0, 3.0])],
-                  outputs=[Output("iters", summary="iterations")])
-    table = run_sweep(sweep, tmp_path / "out", scheduler=dask_client, timeout=TIMEOUT)
-    bad, good = table.rows
+    """`fvrans sweep --scheduler ADDRESS`: a mesh that cannot be built fails its run on a worker, the
+    error comes back in its row, the other run completes, exit status 1."""
+    spec = tmp_path / "sweep.toml"
+    spec.write_text(
+        'case = "channel.toml"\n[[parameter]]\nkey = "mesh.parameters.length"\nvalues = [-2.0, 3.0]\n'
+        '[[output]]\nname = "iters"\nsummary = "iterations"\n', encoding="utf-8")
+    address = dask_client.scheduler.address
+    assert address.startswith("tcp://127.0.0.1:")
+    out = tmp_path / "out"
+    assert main(["sweep", str(spec), "--out", str(out), "--scheduler", address, "--quiet"]) == 1
+    bad, good = json.loads((out / "results.json").read_text(encoding="utf-8"))["runs"]
     assert bad["status"] == "failed" and bad["error"].startswith("MeshError: channel: length and height")
     assert bad["iters"] is None
     assert good["status"] == "converged" and good["iters"] == good["iterations"] > 0 and good["error"] == ""
