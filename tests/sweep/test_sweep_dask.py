@@ -80,3 +80,35 @@ def test_warm_start_chains_on_workers(tmp_path, channel_case, dask_client):
         cold = fa.solve(base.set("boundary.inlet.velocity", [u, 0.0]))
         cd = summary_value(cold.summary(), "walls.lower_wall.forces.Cd", "in-process")
         assert row["cd"] == pytest.approx(cd, rel=1e-5)
+
+
+def test_worker_killed_mid_sweep(tmp_path, channel_case, dask_client):
+    """A worker process killed (SIGKILL) once the first run has finished: the nanny restarts it,
+    dask reruns its task elsewhere, and the table has every row exactly once, all converged."""
+    import signal
+    import threading
+
+    sweep = Sweep(case=channel_case, parameters=[Parameter("fluid.viscosity", start=0.02, stop=0.1, count=8)],
+                  outputs=[Output("cd", summary="walls.lower_wall.forces.Cd")])
+    out = tmp_path / "out"
+    pids = dask_client.run(os.getpid)  # worker address -> pid of the worker processes we started
+    victim = max(pids.values())
+    state = {"finished_before_kill": None}
+
+    def kill_after_first_run() -> None:
+        for _ in range(30000):  # polls for at most ~300 s
+            records = list(out.glob("runs/*/run.json")) if out.is_dir() else []
+            if records:
+                state["finished_before_kill"] = len(records)
+                os.kill(victim, signal.SIGKILL)
+                return
+            threading.Event().wait(0.01)
+
+    killer = threading.Thread(target=kill_after_first_run, daemon=True)
+    killer.start()
+    table = run_sweep(sweep, out, scheduler=dask_client, timeout=TIMEOUT)
+    killer.join(timeout=10)
+    assert state["finished_before_kill"] is not None and state["finished_before_kill"] < len(table)
+    assert table.column("run") == list(range(8))
+    assert len(set(table.column("key"))) == 8
+    assert table.all_ok, [r["error"] for r in table.failed()]
