@@ -359,6 +359,7 @@ def run_sweep(
     points = design_points(sweep)
 
     records: dict[str, dict[str, Any]] = {}
+    refused = 0
     point_keys: list[str] = []
     tasks: dict[str, RunTask] = {}
     for point in points:
@@ -367,6 +368,7 @@ def run_sweep(
         except CaseError as exc:  # a value the case refuses: this run fails, the others go on
             key = _hash({"base": base.to_dict(), "changes": point.changes, "fvrans": _version()})
             records[key] = _failed_record(key, point.changes, _error_text(exc))
+            refused += 1
             point_keys.append(key)
             continue
         key = run_key(case)
@@ -380,7 +382,7 @@ def run_sweep(
         else:
             tasks[key] = RunTask(key, point.changes, case.to_dict(), case.label if case.source else None,
                                  str(run_dir), tuple(sweep.outputs))
-    reused = len(records)
+    reused = len(records) - refused
     bar = _Bar(len(records) + len(tasks), progress)
     for rec in records.values():
         bar.advance(_ok(rec))
@@ -420,7 +422,7 @@ def run_sweep(
     table = ResultsTable(
         table_columns([p.name for p in sweep.parameters], [o.name for o in sweep.outputs]), rows,
         meta={"title": sweep.title, "spec": sweep.label, "base_case": base.label, "fvrans": _version(),
-              "sampling": sweep.sampling, "runs_done": len(todo), "runs_reused": reused,
+              "sampling": sweep.sampling, "runs_done": len(todo), "runs_reused": reused, "runs_refused": refused,
               "seconds": time.perf_counter() - t0},
     )
     write_table(out, table)
@@ -441,7 +443,8 @@ def sweep_command(spec: str | Path, out_dir: str | Path, workers: int | None = N
     bad = table.failed()
     if not quiet:
         meta = table.meta
-        print(f"{len(table)} runs ({meta['runs_done']} run now, {meta['runs_reused']} from earlier), "
+        refused = f", {meta['runs_refused']} refused by the case" if meta["runs_refused"] else ""
+        print(f"{len(table)} runs ({meta['runs_done']} run now, {meta['runs_reused']} from earlier{refused}), "
               f"{len(bad)} not ok; table in {Path(out_dir) / 'results.csv'}", file=sys.stderr)
         for r in bad[:10]:
             print(f"  run {r['run']} ({r['key']}): {r['status']}: {r['error']}", file=sys.stderr)

@@ -1,6 +1,7 @@
 """The results table of a sweep: one row per design point, written atomically as CSV and JSON.
 
-Columns: ``run`` (position in the plan), ``key`` (the run folder ``runs/<key>``), one column per
+Columns: ``run`` (position in the plan), ``key`` (the run folder ``runs/<key>``; none for values the
+case refuses), one column per
 parameter and per output (by name), ``status`` (``converged``, ``not-converged``, ``diverged`` or
 ``failed``), ``converged``, ``iterations``, ``wall_seconds`` (of the whole run: mesh, solve,
 writing) and ``error`` (why a run failed, did not converge or an output could not be collected;
