@@ -32,6 +32,7 @@ from fvrans.case.build import build_case_mesh
 from fvrans.errors import CaseError, DivergenceError
 from fvrans.mesh.geometry import Geometry, compute_geometry
 from fvrans.mesh.mesh import Mesh
+from fvrans.mesh.morph import topology_difference
 from fvrans.physics.boundary import FlowBoundary, build_flow_boundary
 from fvrans.physics.spalart_allmaras import eddy_viscosity as sa_eddy_viscosity
 from fvrans.physics.spalart_allmaras import model_for_case
@@ -179,6 +180,13 @@ def _initial_fields(problem: Problem, initial: Result | Fields | None) -> Fields
             f"{fields.face_flux.shape[0]} faces but the mesh has {mesh.n_cells} and {mesh.n_faces}; "
             "warm starts need the same mesh (or a morphed mesh with the same topology)"
         )
+    diff = topology_difference(initial.mesh, mesh) if isinstance(initial, Result) else None
+    if diff is not None:
+        raise CaseError(
+            f"{problem.case.label}: the warm start's mesh has the same size but a different topology ({diff}); "
+            "warm starts need the same cells and faces: keep the generator's resolution parameters, "
+            "or morph the previous mesh (fvrans.mesh.morph)"
+        )
     return fields.copy()
 
 
@@ -188,8 +196,10 @@ def solve(
     callback: Callable[[int, list[float]], bool | None] | None = None,
 ) -> Result:
     """Solve a case (or a prepared Problem); ``initial`` warm-starts from a previous result on the
-    same mesh. A diverging run returns a Result with ``diverged=True`` holding the last good
-    state and the message; it does not raise."""
+    same mesh or one of the same topology (a neighbouring design of a parametric generator with the
+    same resolution, or a mesh morphed with :func:`fvrans.mesh.morph.morph`); a different cell or
+    face count, or (for a Result) a different topology, raises CaseError. A diverging run returns
+    a Result with ``diverged=True`` holding the last good state and the message; it does not raise."""
     problem = case if isinstance(case, Problem) else prepare(case)
     c = problem.case
     controls = SolverControls.from_settings(c.solver)

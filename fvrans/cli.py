@@ -138,9 +138,20 @@ def _cmd_cases(args: argparse.Namespace) -> int:
             c = load_case(f)
             text = c.description or c.title
         except FvransError as exc:
-            text = f"(cannot be loaded: {exc})"
+            text = _spec_title(f) or f"(cannot be loaded: {exc})"
         print(f"{f.name:<{width}}  {text}")
     return 0
+
+
+def _spec_title(path: Path) -> str | None:
+    """'comparison spec: <title>' for a file 'fvrans compare' reads, None for anything else."""
+    from fvrans.verify import load_spec
+
+    try:
+        spec = load_spec(path)
+    except FvransError:
+        return None
+    return f"comparison spec: {spec.title}"
 
 
 def _cmd_compare(args: argparse.Namespace) -> int:
@@ -151,9 +162,22 @@ def _cmd_compare(args: argparse.Namespace) -> int:
 
 def _cmd_grid_study(args: argparse.Namespace) -> int:
     from fvrans.verify import grid_study_command
+    from fvrans.verify.grid_runs import run_grid_study_command
 
-    return grid_study_command(
-        args.result_dirs, args.quantity, args.report, area=args.area, safety_factor=args.safety_factor
+    if args.case is None:
+        if args.meshes or args.family or args.set:
+            print("error: --meshes, --family and --set need --case CASE.toml", file=sys.stderr)
+            return 2
+        return grid_study_command(
+            args.result_dirs, args.quantity, args.report, area=args.area, safety_factor=args.safety_factor
+        )
+    if args.result_dirs or (args.meshes is None) == (args.family is None):
+        print("error: with --case give the grids either as --meshes M1 M2 M3 or as --family NAME "
+              "(and no result folders)", file=sys.stderr)
+        return 2
+    return run_grid_study_command(
+        args.case, args.quantity, args.report, meshes=args.meshes, family=args.family, levels=args.levels,
+        overrides=args.set, safety_factor=args.safety_factor,
     )
 
 
@@ -201,12 +225,21 @@ def build_parser() -> argparse.ArgumentParser:
     k.add_argument("--report", required=True, help="folder for report.json, junit.xml, summary.md and plots")
     k.set_defaults(func=_cmd_compare)
 
-    g = sub.add_parser("grid-study", help="observed order, Richardson extrapolation and GCI from 3+ result folders")
-    g.add_argument("result_dirs", nargs="+", help="result folders of one case on systematically refined grids")
+    g = sub.add_parser("grid-study", help="observed order, Richardson extrapolation and GCI on 3+ grids "
+                                          "(existing result folders, or runs of a case)")
+    g.add_argument("result_dirs", nargs="*", help="result folders of one case on systematically refined grids")
     g.add_argument(
-        "--quantity", action="append", required=True, metavar="DOTTED.KEY",
-        help="a scalar of summary.json, e.g. walls.plate.forces.Cd (repeatable)",
+        "--quantity", action="append", required=True, metavar="QUANTITY",
+        help="a scalar of summary.json (walls.plate.forces.Cd) or a wall value at a station "
+             "(wall.plate.cf@x=0.97) (repeatable)",
     )
+    g.add_argument("--case", default=None, help="run this case file on each grid (results in REPORT/runs/<grid>)")
+    g.add_argument("--meshes", nargs="+", default=None, metavar="MESH", help="with --case: the mesh files")
+    g.add_argument("--family", default=None,
+                   help="with --case: a generator family of fvrans.mesh.generate, e.g. flat_plate_family")
+    g.add_argument("--levels", nargs="+", default=["coarse", "medium", "fine"], help="levels of --family")
+    g.add_argument("--set", action="append", default=[], metavar="KEY=VALUE",
+                   help="with --case: override a setting on every grid (repeatable)")
     g.add_argument("--report", required=True, help="output folder")
     g.add_argument("--area", type=float, default=None, help="domain area for h = sqrt(area / N)")
     g.add_argument("--safety-factor", type=float, default=1.25, help="GCI safety factor (default 1.25)")

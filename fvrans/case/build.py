@@ -11,7 +11,7 @@ import numpy as np
 
 from fvrans.case.schema import Case
 from fvrans.case.validate import did_you_mean, format_key
-from fvrans.errors import CaseError
+from fvrans.errors import CaseError, MeshError
 
 if TYPE_CHECKING:
     from fvrans.mesh.mesh import Mesh
@@ -143,7 +143,10 @@ def _generate(case: Case) -> Mesh:
                         f"{', '.join(accepted) or 'no parameters'})") from None
     except ValueError:  # no signature available
         pass
-    mesh = func(**params)
+    try:
+        mesh = func(**params)
+    except MeshError as exc:  # invalid shape parameters: keep the type, name the case and the key
+        raise MeshError(f"{case.label}: mesh.parameters: {exc}") from None
     if not hasattr(mesh, "patches"):
         raise CaseError(f"{key}: generator {name!r} returned {type(mesh).__name__}, not a Mesh")
     return mesh

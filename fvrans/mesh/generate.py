@@ -25,16 +25,19 @@ from fvrans.mesh._blocks import (
     uniform_points,
 )
 from fvrans.mesh.mesh import Mesh
+from fvrans.mesh.shapes import bump_channel, planar_diffuser
 
 __all__ = [
     "LEVELS",
     "backward_facing_step",
+    "bump_channel",
     "cavity",
     "channel",
     "flat_plate",
     "flat_plate_family",
     "flat_plate_lines",
     "geometric_points",
+    "planar_diffuser",
     "spacing_ratios",
     "step_family",
     "step_lines",
@@ -287,22 +290,27 @@ def step_lines(
     wall_spacing: float = 2.5e-4,
     corner_spacing: float = 1.0e-3,
     outlet_spacing: float = 0.5,
+    step_height: float = STEP_H,
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """Point distributions (x_up, x_down, y_upper, y_lower) of the three-block step mesh.
 
     x_up on [x_in, 0]: geometric, spacing ``corner_spacing`` at the step (x = 0), growing upstream.
     x_down on [0, x_out]: two-sided tanh from ``corner_spacing`` at the step face to ``outlet_spacing``.
-    y_upper on [0, 8] and y_lower on [-1, 0]: mirrored geometric halves with ``wall_spacing`` at both
-    ends (the walls, and the step-lip level y = 0 where the shear layer leaves the corner).
+    y_upper on [0, 8] and y_lower on [-step_height, 0]: mirrored geometric halves with ``wall_spacing``
+    at both ends (the walls, and the step-lip level y = 0 where the shear layer leaves the corner).
     """
     if not x_in < 0 < x_out:
         raise MeshError(
             f"step: need x_in < 0 < x_out (step face at x = 0), got x_in={x_in!r}, x_out={x_out!r}"
         )
+    if not (np.isfinite(step_height) and 0 < step_height <= STEP_TOP):
+        raise MeshError(
+            f"step: parameter step_height = {step_height!r} is out of range; allowed: 0 < step_height <= {STEP_TOP:g}"
+        )
     x_up = geometric_points(nx_up, 0.0, float(x_in), first=corner_spacing)[::-1].copy()
     x_down = tanh_points(nx_down, 0.0, float(x_out), corner_spacing, outlet_spacing)
     y_upper = symmetric_geometric_points(ny_upper, 0.0, STEP_TOP, wall_spacing)
-    y_lower = symmetric_geometric_points(ny_lower, STEP_FLOOR, 0.0, wall_spacing)
+    y_lower = symmetric_geometric_points(ny_lower, -float(step_height), 0.0, wall_spacing)
     return x_up, x_down, y_upper, y_lower
 
 
@@ -340,20 +348,25 @@ def backward_facing_step(
     corner_spacing: float | None = None,
     outlet_spacing: float = 2.0,
     triangles: bool = False,
+    step_height: float = STEP_H,
 ) -> Mesh:
-    """Backward-facing step of height H = 1: three structured blocks glued by index.
+    """Backward-facing step of height H (``step_height``, default 1): three structured blocks glued by index.
 
-    Upstream floor y = 0 for x < 0, step face x = 0 for y in [-1, 0], downstream floor y = -1,
-    upper wall y = 8 (8H above the upstream floor, 9H above the downstream one; expansion ratio
-    9/8). Inlet at x = x_in, outlet at x = x_out. Blocks: upstream [x_in, 0] x [0, 8], downstream
-    upper [0, x_out] x [0, 8], downstream lower [0, x_out] x [-1, 0]. Clustered to all walls
+    Upstream floor y = 0 for x < 0, step face x = 0 for y in [-H, 0], downstream floor y = -H,
+    upper wall y = 8 (with H = 1: 8H above the upstream floor, 9H above the downstream one; expansion
+    ratio 9/8; in general (8 + H) / 8). ``step_height`` must lie in (0, 8]; the topology does not
+    depend on it, so meshes of different step heights share cell and face numbering (warm starts).
+    Inlet at x = x_in, outlet at x = x_out. Blocks: upstream [x_in, 0] x [0, 8], downstream
+    upper [0, x_out] x [0, 8], downstream lower [0, x_out] x [-H, 0]. Clustered to all walls
     (``wall_spacing``) and to the step corner (``corner_spacing`` in x on both sides of x = 0,
     default 4 x wall_spacing); see ``step_lines``. The defaults give the coarse resolution;
     ``step_family`` gives the nested levels.
     Patches: "inlet", "outlet", "lower_wall" (both floors), "step_face" (x = 0), "upper_wall".
     """
     cs = 4.0 * wall_spacing if corner_spacing is None else corner_spacing
-    lines = step_lines(x_in, x_out, nx_up, nx_down, ny_upper, ny_lower, wall_spacing, cs, outlet_spacing)
+    lines = step_lines(
+        x_in, x_out, nx_up, nx_down, ny_upper, ny_lower, wall_spacing, cs, outlet_spacing, step_height
+    )
     src = "generated:backward_facing_step(" + _fmt(
         x_in=float(x_in),
         x_out=float(x_out),
@@ -364,6 +377,7 @@ def backward_facing_step(
         wall_spacing=float(wall_spacing),
         corner_spacing=float(cs),
     )
+    src += f", step_height={float(step_height):g}" if step_height != STEP_H else ""
     return _step_mesh(*lines, triangles=triangles, source=src + (", triangles=True)" if triangles else ")"))
 
 

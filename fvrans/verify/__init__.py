@@ -10,10 +10,12 @@ from fvrans.verify.gci import (
     grid_study,
     grid_study_command,
     plot_grid_convergence,
+    quantity_value,
     representative_size,
     result_dir_size,
     write_grid_study,
 )
+from fvrans.verify.grid_runs import grid_changes, run_grid_study, run_grid_study_command
 from fvrans.verify.readers import FieldFile, Table, ZonedTable, read_columns, read_csv, read_field, read_table
 from fvrans.verify.report import compare_command, junit_xml, markdown_table, write_report
 from fvrans.verify.spec import Item, Spec, Transform, load_spec, parse_spec
@@ -38,18 +40,22 @@ __all__ = [
     "gci_three",
     "grid_convergence",
     "grid_study",
+    "grid_changes",
     "grid_study_command",
     "junit_xml",
     "load_spec",
     "markdown_table",
     "parse_spec",
     "plot_grid_convergence",
+    "quantity_value",
     "read_columns",
     "read_csv",
     "read_field",
     "read_table",
     "representative_size",
     "result_dir_size",
+    "run_grid_study",
+    "run_grid_study_command",
     "write_grid_study",
     "write_report",
 ]

@@ -56,6 +56,8 @@ class ItemResult:
     message: str = ""
     label: str = ""
     plot: str | None = None
+    x_label: str = "x"
+    log_x: bool = False  # profiles in wall units are drawn against log y+
     # data for the overlay plot (not written to JSON)
     result_curve: Curve | None = field(default=None, repr=False)
     reference_curve: Curve | None = field(default=None, repr=False)
@@ -194,11 +196,17 @@ def _result_curve(rd: ResultDir, item: Item) -> Curve:
         raw = _table_curve(rd.table(f"profiles/{r['profile']}.csv"), r["x"], r["y"], tr)
     else:  # line probe through fields.vtu
         a, b = np.array(r["start"]), np.array(r["end"])
-        t = np.linspace(0.0, 1.0, r["points"])
-        xy = a[None, :] + t[:, None] * (b - a)[None, :]
         ff = rd.fields()
-        vals = ff.sample(r["field"], xy, r.get("component"), "linear")
-        s = t * float(np.hypot(*(b - a)))
+        length = float(np.hypot(*(b - a)))
+        if r.get("sampling", "linear") == "cells":
+            cells, s = ff.cells_along(a, b)
+            vals = ff.cell_values(r["field"], cells, r.get("component"))
+            xy = a[None, :] + s[:, None] * ((b - a) / length)[None, :]
+        else:
+            t = np.linspace(0.0, 1.0, r["points"])
+            xy = a[None, :] + t[:, None] * (b - a)[None, :]
+            vals = ff.sample(r["field"], xy, r.get("component"), "linear")
+            s = t * length
         absc = {"s": s, "x": xy[:, 0], "y": xy[:, 1]}[r["x"]]
         ok = np.isfinite(vals)
         if ok.sum() < 2:
@@ -206,7 +214,52 @@ def _result_curve(rd: ResultDir, item: Item) -> Curve:
                 f"{ff.path}: the line from {tuple(a)} to {tuple(b)} lies (almost) entirely outside the mesh"
             )
         raw = Curve(absc[ok], vals[ok], f"{ff.path} along the line {tuple(a)}-{tuple(b)}", None, xy[ok])
+    if "wall_units" in r:
+        raw = _wall_units(rd, r["wall_units"], raw, np.array(r["start"]) if item.kind == "line" else None)
     return _apply(raw, tr)
+
+
+def _wall_units(rd: ResultDir, patch: str, curve: Curve, start: np.ndarray | None) -> Curve:
+    """Distance from the wall s and a velocity u -> y+ = s u_tau / nu, u+ = u / u_tau.
+
+    u_tau at the start of the line: linear between the two consecutive wall-face centres (in the
+    order of the wall's ``s`` column) whose segment passes nearest to it; nu = mu / rho of summary.json.
+    """
+    if start is None:  # a profile file: the start is where s = 0 on the line through its points
+        if curve.xy is None or len(curve.x) < 2:
+            raise CaseError(f"{curve.source}: wall units need the x and y columns of the profile")
+        d = curve.xy[-1] - curve.xy[0]
+        ds = float(curve.x[-1] - curve.x[0])
+        if ds == 0.0:
+            raise CaseError(f"{curve.source}: the distance column s does not change")
+        start = curve.xy[0] - curve.x[0] * d / ds
+    ref = rd.summary().get("reference")
+    try:
+        nu = float(ref["mu"]) / float(ref["rho"])
+    except (TypeError, KeyError, ValueError, ZeroDivisionError):
+        raise CaseError(f"{rd.path / 'summary.json'}: wall units need reference.mu and reference.rho "
+                        "(written by runs with wall patches)") from None
+    wall = rd.table(f"wall/{patch}.csv")
+    o = np.argsort(wall.column("s"), kind="stable")
+    pts = np.column_stack([wall.column("x"), wall.column("y")])[o]
+    ut = wall.column("u_tau")[o]
+    if len(pts) < 2:
+        raise CaseError(f"{wall.path}: wall units need at least two wall faces")
+    seg = pts[1:] - pts[:-1]
+    ll = np.maximum(np.einsum("ij,ij->i", seg, seg), 1e-300)
+    w = np.clip(np.einsum("ij,ij->i", start - pts[:-1], seg) / ll, 0.0, 1.0)
+    foot = pts[:-1] + w[:, None] * seg
+    dist = np.hypot(*(start - foot).T)
+    k = int(np.argmin(dist))
+    span = float(np.sum(np.sqrt(ll)))
+    if dist[k] > 1e-3 * span:
+        raise CaseError(f"{curve.source}: wall units: the line starts at {tuple(np.round(start, 9))}, "
+                        f"{dist[k]:.3g} away from wall patch {patch!r}; start the line on that wall")
+    u_tau = float((1.0 - w[k]) * ut[k] + w[k] * ut[k + 1])
+    if not u_tau > 0.0:
+        raise CaseError(f"{wall.path}: u_tau = {u_tau:g} at the line's start; wall units need a non-zero wall shear")
+    return Curve(curve.x * u_tau / nu, curve.y / u_tau, f"{curve.source} in wall units (u_tau = {u_tau:.6g})",
+                 curve.lines, curve.xy)
 
 
 def _reference_curve(item: Item, result: Curve) -> Curve:
@@ -264,6 +317,10 @@ def _finish(res: ItemResult, value: float, coverage: float, n: int, need: int, i
 def _compare_curve(rd: ResultDir, item: Item, res: ItemResult) -> ItemResult:
     rc = _result_curve(rd, item)
     fc = _reference_curve(item, rc)
+    if "wall_units" in item.result:
+        res.x_label, res.log_x = "y+", True
+    elif item.kind in ("wall", "profile", "line"):
+        res.x_label = str(item.result.get("x", "x"))
     res.result_curve, res.reference_curve = rc, fc
     target = item.range if item.range is not None else (float(fc.x[0]), float(fc.x[-1]))
     res.requested_range = target

@@ -23,6 +23,7 @@ from __future__ import annotations
 
 import math
 import os
+import re
 import sys
 from collections.abc import Sequence
 from dataclasses import asdict, dataclass, field
@@ -212,6 +213,37 @@ def grid_convergence(h: Sequence[float], phi: Sequence[float], name: str = "phi"
 
 
 # ---------------------------------------------------------------------------------------------
+_STATION = re.compile(r"^wall\.(?P<patch>[^@]+)\.(?P<column>[^.@]+)@(?P<axis>[xys])=(?P<at>[-+0-9.eE]+)$")
+
+
+def quantity_value(result_dir: Any, quantity: str) -> float:
+    """The value of a grid-study quantity in a result directory.
+
+    ``walls.<patch>.forces.Cd`` (any dotted path into summary.json), or a wall value at a station,
+    ``wall.<patch>.<column>@x=<value>`` (also ``@y=``, ``@s=``): the column of ``wall/<patch>.csv``
+    interpolated linearly between the two face centres around the station (never extrapolated).
+    """
+    from fvrans.verify.compare import Curve, ResultDir, _monotonic
+
+    rd = result_dir if isinstance(result_dir, ResultDir) else ResultDir(result_dir)
+    m = _STATION.match(quantity)
+    if m is None:
+        if quantity.startswith("wall.") or "@" in quantity:
+            raise CaseError(f"quantity {quantity!r}: a wall station reads wall.<patch>.<column>@x=<number> "
+                            "(or @y=, @s=), e.g. wall.plate.cf@x=0.97")
+        return rd.scalar(quantity)
+    try:
+        at = float(m["at"])
+    except ValueError:
+        raise CaseError(f"quantity {quantity!r}: {m['at']!r} is not a number") from None
+    table = rd.table(f"wall/{m['patch']}.csv")
+    curve = _monotonic(Curve(table.column(m["axis"]), table.column(m["column"]), table.path, table.lines))
+    if not curve.x[0] <= at <= curve.x[-1]:
+        raise CaseError(f"{table.path}: {m['axis']} = {at:g} lies outside the wall faces "
+                        f"({curve.x[0]:.6g} .. {curve.x[-1]:.6g}); choose a station on the wall")
+    return float(np.interp(at, curve.x, curve.y))
+
+
 def result_dir_size(result_dir: str | os.PathLike, area: float | None = None) -> tuple[int, float, float]:
     """(n_cells, area, h) of a run: n_cells from summary.json, the area from fields.vtu unless given."""
     from fvrans.verify.compare import ResultDir
@@ -233,10 +265,14 @@ class GridStudy:
     n_cells: tuple[int, ...]
     h: tuple[float, ...]
     quantities: dict[str, GridConvergence]
+    runs: tuple[dict[str, Any], ...] = ()  # when the study ran the case: one entry per grid, fine to coarse
 
     def to_json(self) -> dict[str, Any]:
-        return {"result_dirs": list(self.result_dirs), "n_cells": list(self.n_cells), "h": list(self.h),
-                "quantities": {k: v.to_json() for k, v in self.quantities.items()}}
+        d = {"result_dirs": list(self.result_dirs), "n_cells": list(self.n_cells), "h": list(self.h),
+             "quantities": {k: v.to_json() for k, v in self.quantities.items()}}
+        if self.runs:
+            d["runs"] = [dict(r) for r in self.runs]
+        return d
 
 
 def grid_study(result_dirs: Sequence[str | os.PathLike], quantities: Sequence[str], area: float | None = None,
@@ -259,7 +295,7 @@ def grid_study(result_dirs: Sequence[str | os.PathLike], quantities: Sequence[st
             raise CaseError(f"{da} and {db} have the same cell size h = {a:.6g}; each grid must differ")
     out: dict[str, GridConvergence] = {}
     for q in quantities:
-        vals = [ResultDir(d).scalar(q) for d in dirs]
+        vals = [quantity_value(ResultDir(d), q) for d in dirs]
         out[q] = grid_convergence(hs, vals, q, safety_factor)
     return GridStudy(dirs, tuple(sizes[i][0] for i in order), tuple(hs), out)
 
@@ -301,6 +337,13 @@ def grid_study_markdown(study: GridStudy) -> str:
     lines = ["# Grid-convergence study", "", "| grid | result | cells | h |", "|---|---|---:|---:|"]
     for k, (d, n, h) in enumerate(zip(study.result_dirs, study.n_cells, study.h)):
         lines.append(f"| {k + 1} | {d} | {n} | {h:.6g} |")
+    if study.runs:
+        lines += ["", "| grid | converged | iterations | seconds | final residuals |", "|---|---|---:|---:|---|"]
+        for k, r in enumerate(study.runs):
+            res = ", ".join(f"{n} {v:.2e}" for n, v in (r.get("final_residuals") or {}).items())
+            ok = "yes" if r.get("converged") else "**no**"
+            lines.append(f"| {k + 1} ({r.get('label', '')}) | {ok} | {r.get('iterations', '-')} | "
+                         f"{r.get('wall_seconds', float('nan')):.1f} | {res} |")
     lines += ["", "Finest three grids (Celik et al. 2008; GCI with safety factor "
               f"{next(iter(study.quantities.values())).finest.safety_factor:g}):", "",
               "| quantity | phi1 | phi2 | phi3 | r21 | r32 | p | phi_ext21 | e_a21 | e_ext21 | GCI_fine21 "

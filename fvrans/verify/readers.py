@@ -349,6 +349,45 @@ class FieldFile:
             raise CaseError(f"cell interpolation {cell_values!r}: use 'linear' or 'constant'")
         return out
 
+    def cells_along(self, start: np.ndarray, end: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """The cells the segment start-end crosses and the distance s from ``start`` of the foot of
+        each cell centre on the segment, sorted by s (centres whose foot falls outside are left out).
+
+        A cell is crossed when one of its triangles has vertices strictly on one side of the line
+        and on or beyond the other (a line along a cell edge picks the cells on one side only).
+        """
+        a, b = np.asarray(start, dtype=np.float64), np.asarray(end, dtype=np.float64)
+        length = float(np.hypot(*(b - a)))
+        if length <= 0.0:
+            raise CaseError(f"{self.path}: the line starts and ends at the same point {tuple(a)}")
+        t = (b - a) / length
+        nrm = np.array([-t[1], t[0]])
+        rel = self.points - a
+        across = (rel @ nrm)[self.triangles]  # (nt, 3)
+        along = (rel @ t)[self.triangles]
+        hit = (across.min(axis=1) < 0.0) & (across.max(axis=1) >= 0.0)
+        hit &= (along.max(axis=1) >= 0.0) & (along.min(axis=1) <= length)
+        cells = np.unique(self.triangle_cell[hit])
+        s = (self.cell_centre[cells] - a) @ t
+        keep = (s >= 0.0) & (s <= length)
+        o = np.argsort(s[keep], kind="stable")
+        return cells[keep][o], s[keep][o]
+
+    def cell_values(self, name: str, cells: np.ndarray, component: int | None = None) -> np.ndarray:
+        """Values of cell field ``name`` (one component of a vector field) in ``cells``."""
+        if name not in self.cell_data:
+            have = ", ".join(sorted(self.cell_data)) or "no cell fields"
+            raise CaseError(f"{self.path}: no cell field {name!r}; the file has {have}")
+        v = np.asarray(self.cell_data[name], dtype=np.float64)
+        if v.ndim == 2:
+            if component is None or not 0 <= component < v.shape[1]:
+                raise CaseError(f"{self.path}: field {name!r} has {v.shape[1]} components; "
+                                f"give component = 0 .. {v.shape[1] - 1}")
+            v = v[:, component]
+        elif component not in (None, 0):
+            raise CaseError(f"{self.path}: field {name!r} is a scalar; remove component = {component}")
+        return v[cells]
+
 
 def read_field(path: str | os.PathLike) -> FieldFile:
     """Read a field file with meshio; 2D cells (triangles, quads, polygons) are kept."""

@@ -13,6 +13,8 @@ from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
 
+import numpy as np
+
 from fvrans.errors import CaseError
 from fvrans.post.writers import atomic_path, atomic_write, to_jsonable, write_json_atomic
 from fvrans.verify.compare import ItemResult, compare
@@ -47,7 +49,16 @@ def plot_item(res: ItemResult, path: str | os.PathLike) -> None:
             ax.plot(fc.x, fc.y, "o", ms=3.5, mfc="none", label="reference")
         if res.compared_range is not None:
             ax.axvspan(*res.compared_range, color="0.9", zorder=0, label="compared")
-        ax.set_xlabel("x")
+        if res.compared_range is not None:  # y limits from the compared part (a leading-edge peak
+            lo, hi = res.compared_range  # elsewhere would flatten the compared curves)
+            ys = [rc.y[(rc.x >= lo) & (rc.x <= hi)]] + ([fc.y] if fc is not None else [])
+            ys = np.concatenate(ys)
+            if ys.size and np.all(np.isfinite(ys)):
+                pad = 0.15 * max(float(ys.max() - ys.min()), 1e-12 * max(1.0, float(np.abs(ys).max())))
+                ax.set_ylim(float(ys.min()) - pad, float(ys.max()) + pad)
+        ax.set_xlabel(res.x_label)
+        if res.log_x and rc.x.size and rc.x.max() > 0:
+            ax.set_xscale("log")
         ax.set_ylabel(res.label or res.name)
     elif res.compared is not None:
         _, ours, ref = res.compared

@@ -28,7 +28,12 @@ Layout (every key is checked; unknown keys are refused so that typing errors sur
     # or a field file read by meshio, sampled at our points / cell centres:
     # file = "ref.vtu"; field = "velocity"; component = 0
 
-Line items take ``start``, ``end``, ``points``, ``field``, ``component`` in ``[item.result]``; field
+Line items take ``start``, ``end``, ``points``, ``field``, ``component`` in ``[item.result]`` and
+``sampling = "linear"`` (``points`` equally spaced points, values interpolated between cell centres) or
+``"cells"`` (the centres of the cells the line crosses, placed at their foot on the line). Line and
+profile items take ``wall_units = "<wall patch>"`` for a line that starts on that wall: the abscissa
+becomes y+ = s u_tau / nu and the value u+ = value / u_tau, u_tau from ``wall/<patch>.csv`` at the
+line's start and nu = mu / rho from summary.json (give the velocity component along the wall); field
 items take ``field``, ``component`` and optionally ``region = [xmin, xmax, ymin, ymax]`` on the
 item; scalar items take ``path = "walls.lower_wall.forces.Cd"`` (dotted path into summary.json)
 and ``[item.reference] value = ...``.
@@ -57,8 +62,8 @@ TRANSFORM_KEYS = ("x_scale", "x_shift", "y_scale", "y_shift", "y_zero_at", "keep
 _ITEM_KEYS = {"name", "kind", "metric", "tolerance", "range", "min_coverage", "region", "label", "result", "reference"}
 _RESULT_KEYS = {
     "wall": {"patch", "x", "y", *TRANSFORM_KEYS},
-    "profile": {"profile", "x", "y", *TRANSFORM_KEYS},
-    "line": {"start", "end", "points", "field", "component", "x", *TRANSFORM_KEYS},
+    "profile": {"profile", "x", "y", "wall_units", *TRANSFORM_KEYS},
+    "line": {"start", "end", "points", "field", "component", "x", "sampling", "wall_units", *TRANSFORM_KEYS},
     "field": {"field", "component", "y_scale", "y_shift"},
     "scalar": {"path", "y_scale", "y_shift"},
 }
@@ -225,6 +230,17 @@ def _parse_item(spath: str, base: Path, k: int, raw: Any, names: set[str]) -> It
         result["x"] = res.get("x", "s")
         if result["x"] not in ("s", "x", "y"):
             raise _err(rw, f"x = {result['x']!r}: along a line the abscissa is 's' (distance from start), 'x' or 'y'")
+        sampling = res.get("sampling", "linear")
+        if sampling not in ("linear", "cells"):
+            raise _err(rw, f"sampling = {sampling!r}; choose 'linear' (equally spaced points) or 'cells' "
+                           "(the centres of the cells the line crosses)")
+        result["sampling"] = sampling
+    if "wall_units" in res:
+        if not isinstance(res["wall_units"], str) or not res["wall_units"]:
+            raise _err(rw, "wall_units must name the wall patch the line starts on, e.g. wall_units = \"plate\"")
+        if result["x"] != "s":
+            raise _err(rw, f"with wall_units the abscissa is the distance from the wall: x = \"s\", "
+                           f"not {result['x']!r}")
     if kind in ("line", "field") and "component" in res:
         c = res["component"]
         if isinstance(c, bool) or not isinstance(c, int) or c < 0:

@@ -58,7 +58,8 @@ def test_failures_on_workers_are_recorded(tmp_path, channel_case, dask_client):
     out = tmp_path / "out"
     assert main(["sweep", str(spec), "--out", str(out), "--scheduler", address, "--quiet"]) == 1
     bad, good = json.loads((out / "results.json").read_text(encoding="utf-8"))["runs"]
-    assert bad["status"] == "failed" and bad["error"].startswith("MeshError: channel: length and height")
+    assert bad["status"] == "failed" and bad["error"].startswith(f"MeshError: {tmp_path / 'channel.toml'}: ")
+    assert "mesh.parameters: channel: length and height must be positive" in bad["error"]
     assert bad["iters"] is None
     assert good["status"] == "converged" and good["iters"] == good["iterations"] > 0 and good["error"] == ""
 

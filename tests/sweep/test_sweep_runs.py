@@ -109,7 +109,7 @@ def test_failing_runs_are_recorded_and_the_others_complete(tmp_path, channel_cas
         assert bad["iters"] is None
     bad = by[(-1.0, 0.05)]
     assert bad["status"] == "failed"
-    assert bad["error"].startswith("MeshError: channel: length and height must be positive")
+    assert bad["error"].startswith(f"MeshError: {channel_case}: mesh.parameters: channel: length and height must")
 
     calls = []
     real = fvrans.api.prepare

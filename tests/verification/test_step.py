@@ -19,13 +19,12 @@ References
 from __future__ import annotations
 
 import json
-from functools import cache
 from pathlib import Path
 
 import numpy as np
 import pytest
+from step_runs import coarse
 
-import fvrans.api as fa
 from fvrans.post.separation import cell_column, layer_thickness, reattachment_x, streamwise_points
 
 ROOT = Path(__file__).resolve().parents[2]
@@ -33,12 +32,6 @@ RE_H = 36_000.0  # Driver & Seegmiller (1985), from memory
 DELTA99_EXP = 1.5  # H at x = -4 H; Driver & Seegmiller (1985) via NASA TMR, from memory
 RE_THETA_EXP = 5_000.0  # at x = -4 H; Driver & Seegmiller (1985) via NASA TMR, from memory
 REATTACH_BAND = (5.8, 6.5)  # the acceptance band (experiment 6.26 +/- 0.10, from memory)
-
-
-@cache
-def coarse() -> fa.Result:
-    case = fa.load_case(ROOT / "cases" / "step_medium.toml").set("mesh.file", str(ROOT / "meshes" / "step_coarse.msh"))
-    return fa.solve(case)
 
 
 def test_layer_thickness_of_a_linear_profile():

@@ -303,3 +303,142 @@ def test_field_item_against_a_reference_field(tmp_path, run_dir):
     it = json.loads((tmp_path / "r" / "report.json").read_text())["items"][0]
     assert it["value"] == pytest.approx(0.01, rel=1e-9)  # constant offset 0.01
     assert it["coverage"] == pytest.approx(1.0) and it["n_points"] == 20  # 5 x 4 cells in the region
+
+
+# ------------------------------------------------------------------ acceptance: exit codes, JUnit
+ONE_ITEM = """
+title = "one curve"
+[[item]]
+name = "cp_lower"
+kind = "wall"
+metric = "max_abs"
+tolerance = 0.01
+[item.result]
+patch = "lower_wall"
+y = "cp"
+[item.reference]
+file = "{file}"
+x = "x"
+y = "cp"
+"""
+
+
+def test_equal_passes_shifted_fails_and_junit_names_the_item(tmp_path, run_dir):
+    spec = tmp_path / "s.toml"
+    spec.write_text(ONE_ITEM.format(file="ref.csv"))
+    xs = np.linspace(0.5, 9.5, 10)
+    # the result's own curve cp = 1 - 0.1 x: passes (linear interpolation is exact)
+    (tmp_path / "ref.csv").write_text("x,cp\n" + "\n".join(f"{x!r},{1.0 - 0.1 * x!r}" for x in xs.tolist()))
+    assert compare_command(run_dir, spec, tmp_path / "r0", stream=io.StringIO()) == 0
+    # shifted by 0.02, twice the tolerance: exit 1, and the JUnit file names the failing item
+    (tmp_path / "ref.csv").write_text("x,cp\n" + "\n".join(f"{x!r},{1.02 - 0.1 * x!r}" for x in xs.tolist()))
+    assert compare_command(run_dir, spec, tmp_path / "r1", stream=io.StringIO()) == 1
+    suite = ET.parse(tmp_path / "r1" / "junit.xml").getroot().find("testsuite")
+    failed = [tc.get("name") for tc in suite.findall("testcase") if tc.find("failure") is not None]
+    assert failed == ["cp_lower"]
+    assert json.loads((tmp_path / "r1" / "report.json").read_text())["items"][0]["value"] == pytest.approx(0.02)
+
+
+def test_spec_naming_a_missing_file_exits_2(tmp_path, run_dir):
+    spec = tmp_path / "s.toml"
+    spec.write_text(ONE_ITEM.format(file="data/absent.csv"))
+    err = io.StringIO()
+    assert compare_command(run_dir, spec, tmp_path / "r", stream=err) == 2
+    assert str(tmp_path / "data" / "absent.csv") in err.getvalue() and "does not exist" in err.getvalue()
+    suite = ET.parse(tmp_path / "r" / "junit.xml").getroot().find("testsuite")
+    assert suite.get("errors") == "1" and suite.find("testcase").get("name") == "cp_lower"
+
+
+# ----------------------------------------------------------------------- profiles in wall units
+WALL_UNITS = """
+[[item]]
+name = "uplus"
+kind = "line"
+metric = "max_abs"
+tolerance = 1e-9
+[item.result]
+start = [{x0}, 0.0]
+end = [{x0}, 1.0]
+field = "velocity"
+component = 0
+sampling = "{sampling}"
+wall_units = "lower_wall"
+[item.reference]
+file = "ref.csv"
+x = "y_plus"
+y = "u_plus"
+"""
+
+
+def test_line_in_wall_units_at_cell_centres(tmp_path, make_result_dir):
+    # velocity u = 3 y in every cell (cell data), u_tau = 0.5 on the wall, nu = mu / rho = 0.01:
+    # y+ = 50 y, u+ = 6 y = 0.12 y+ at the cell centres y = 0.05, 0.15, ..., 0.95 (10 rows of cells)
+    xw = np.linspace(0.05, 1.95, 20)
+    d = make_result_dir(
+        n_cells=200, walls={"lower_wall": {"x": xw, "y": 0 * xw, "s": xw, "u_tau": 0 * xw + 0.5}},
+        summary_extra={"reference": {"rho": 2.0, "mu": 0.02}},
+        field=(20, 10, 2.0, 1.0, lambda x, y: 3.0 * y),
+    )
+    yp = np.array([5.0, 12.5, 20.0, 45.0])
+    (tmp_path / "ref.csv").write_text("y_plus,u_plus\n" + "\n".join(f"{v!r},{0.12 * v!r}" for v in yp.tolist()))
+    spec = tmp_path / "s.toml"
+    spec.write_text(WALL_UNITS.format(x0=0.33, sampling="cells"))
+    assert compare_command(d, spec, tmp_path / "r", stream=io.StringIO()) == 0
+    it = json.loads((tmp_path / "r" / "report.json").read_text())["items"][0]
+    assert it["n_points"] == 4 and it["value"] < 1e-12
+    assert it["compared_range"] == pytest.approx([5.0, 45.0])
+    # the centres span y+ = 2.5 .. 47.5: a reference point at y+ = 1 is outside (never extrapolated)
+    (tmp_path / "ref.csv").write_text("y_plus,u_plus\n1.0,0.12\n3.0,0.36\n45.0,5.4\n")
+    assert compare_command(d, spec, tmp_path / "r2", stream=io.StringIO()) == 0
+    it = json.loads((tmp_path / "r2" / "report.json").read_text())["items"][0]
+    assert it["n_points"] == 2 and it["coverage"] == pytest.approx(42.5 / 44.0)
+    # a line that does not start on the wall: bad input, named
+    spec.write_text(WALL_UNITS.format(x0=0.33, sampling="cells").replace("start = [0.33, 0.0]", "start = [0.33, 0.2]"))
+    err = io.StringIO()
+    assert compare_command(d, spec, tmp_path / "r3", stream=err) == 2
+    assert "away from wall patch 'lower_wall'" in err.getvalue()
+
+
+def test_cells_along_a_line_on_a_cell_edge(tmp_path):
+    from verify_helpers import write_quad_field
+
+    from fvrans.verify.readers import read_field
+
+    write_quad_field(tmp_path / "f.vtu", 4, 2, 4.0, 2.0, cell_fn=lambda x, y: x + 10 * y)
+    ff = read_field(tmp_path / "f.vtu")
+    # x = 2 is the edge between the columns of centres x = 1.5 and 2.5: one column is taken
+    cells, s = ff.cells_along(np.array([2.0, 0.0]), np.array([2.0, 2.0]))
+    np.testing.assert_allclose(s, [0.5, 1.5])
+    assert len(set(ff.cell_centre[cells, 0])) == 1
+    cells, s = ff.cells_along(np.array([0.0, 0.5]), np.array([4.0, 0.5]))  # along y = 0.5
+    np.testing.assert_allclose(ff.cell_values("f", cells), [0.5 + 5, 1.5 + 5, 2.5 + 5, 3.5 + 5])
+    np.testing.assert_allclose(s, [0.5, 1.5, 2.5, 3.5])
+
+
+def test_probe_profile_file_in_wall_units(tmp_path, make_result_dir):
+    """A line-probe file profiles/<name>.csv (columns s, x, y, u, v, p, nu_tilde, nut_ratio) along
+    the normal of a wall y = x tan(30 deg): the start is found from s and the points, u_tau from
+    the wall table at that start (linear between face centres), nu from summary.json."""
+    c, sn = np.cos(np.pi / 6), np.sin(np.pi / 6)
+    sw = np.array([0.5, 1.5, 2.5])  # wall-face centres along the inclined wall, u_tau 0.2, 0.4, 0.6
+    d = make_result_dir(walls={"w": {"x": sw * c, "y": sw * sn, "s": sw, "u_tau": 0.2 * (sw + 0.5)}},
+                        summary_extra={"reference": {"rho": 1.0, "mu": 1e-3}})
+    s = np.array([0.01, 0.02, 0.05, 0.1])
+    start = np.array([2.0 * c, 2.0 * sn])  # wall arc length 2: u_tau = 0.5
+    pts = start[None, :] + s[:, None] * np.array([-sn, c])[None, :]
+    u = 4.0 * s
+    (d / "profiles").mkdir()
+    rows = [",".join(repr(float(v)) for v in (a, x, y, b, 0.0, 0.0, 0.0, 0.0)) for a, (x, y), b in zip(s, pts, u)]
+    (d / "profiles" / "normal.csv").write_text("s,x,y,u,v,p,nu_tilde,nut_ratio\n" + "\n".join(rows) + "\n")
+    # y+ = s 0.5 / 1e-3 = 500 s, u+ = 4 s / 0.5 = 8 s = 0.016 y+
+    (tmp_path / "ref.csv").write_text("y_plus,u_plus\n10,0.16\n25,0.4\n50,0.8\n")
+    spec = tmp_path / "s.toml"
+    spec.write_text('[[item]]\nname = "p"\nkind = "profile"\nmetric = "max_abs"\ntolerance = 1e-9\n'
+                    '[item.result]\nprofile = "normal"\ny = "u"\nwall_units = "w"\n'
+                    '[item.reference]\nfile = "ref.csv"\nx = "y_plus"\ny = "u_plus"\n')
+    assert compare_command(d, spec, tmp_path / "r", stream=io.StringIO()) == 0
+    it = json.loads((tmp_path / "r" / "report.json").read_text())["items"][0]
+    assert it["n_points"] == 3 and it["value"] < 1e-12
+    spec.write_text(spec.read_text().replace('wall_units = "w"', 'wall_units = "w"\nx = "y"'))
+    with pytest.raises(CaseError, match='with wall_units the abscissa is the distance from the wall'):
+        load_spec(spec)
