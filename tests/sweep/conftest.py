@@ -41,6 +41,51 @@ write_fields = false
 """
 
 
+#: a coarse laminar channel with a bump (bump_channel generator, 42 x 12 = 504 cells), Re_h = 50
+BUMP = """
+title = "coarse bump"
+
+[mesh]
+generator = "bump_channel"
+
+[mesh.parameters]
+bump_height = 0.1
+bump_length = 1.0
+nx_bump = 16
+nx_up = 6
+nx_down = 20
+ny = 12
+wall_spacing = 0.03
+
+[fluid]
+density = 1.0
+viscosity = 0.02
+
+[initial]
+velocity = [1.0, 0.0]
+
+[boundary.inlet]
+kind = "velocity-inlet"
+velocity = [1.0, 0.0]
+
+[boundary.outlet]
+kind = "pressure-outlet"
+
+[boundary.lower_wall]
+kind = "wall"
+
+[boundary.upper_wall]
+kind = "wall"
+
+[solver]
+tolerance = 1e-7
+
+[output]
+wall_patches = ["lower_wall"]
+write_fields = false
+"""
+
+
 def write_channel(folder: Path, length: float = 8.0) -> Path:
     path = folder / "channel.toml"
     path.write_text(CHANNEL.format(length=length), encoding="utf-8")
@@ -50,6 +95,13 @@ def write_channel(folder: Path, length: float = 8.0) -> Path:
 @pytest.fixture
 def channel_case(tmp_path: Path) -> Path:
     return write_channel(tmp_path)
+
+
+@pytest.fixture
+def bump_case(tmp_path: Path) -> Path:
+    path = tmp_path / "bump.toml"
+    path.write_text(BUMP, encoding="utf-8")
+    return path
 
 
 @pytest.fixture(scope="module")

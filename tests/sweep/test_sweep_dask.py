@@ -1,5 +1,6 @@
-"""Sweeps on a local dask.distributed cluster (2 worker processes on 127.0.0.1): the same numbers
-as solving the design points one by one in this process; failing runs isolated on the workers."""
+"""Sweeps on a local dask.distributed cluster (2 worker processes on 127.0.0.1): bump heights give
+the same numbers as solving them one by one in this process; failing runs isolated on the workers;
+warm-start chains; a worker killed mid-sweep."""
 
 from __future__ import annotations
 
@@ -16,34 +17,39 @@ from fvrans.sweep import Output, Parameter, Sweep, run_sweep
 from fvrans.sweep.collect import summary_value
 
 TIMEOUT = 300.0  # seconds; a hung cluster fails the test instead of the CI job
-SPEEDS = [0.6, 0.7, 0.8, 0.9, 1.0, 1.1, 1.2, 1.3]
-X_STATION = 2.0
+HEIGHTS = [0.05, 0.1, 0.15, 0.2, 0.25, 0.3, 0.35, 0.4]
+OUTPUTS = [Output("cd", summary="walls.lower_wall.forces.Cd"),
+           Output("p_up", wall="lower_wall", quantity="p_wall", x=-1.5),
+           Output("cf_behind", wall="lower_wall", quantity="cf", x=1.0)]
 
 
-def test_cluster_sweep_equals_in_process_runs(tmp_path, channel_case, dask_client):
-    """8 inlet speeds on 2 workers give, run for run, the outputs, iteration counts and convergence
-    of solving each case in this process (to solver tolerance: 1e-9 relative)."""
-    base = load_case(channel_case).set("mesh.parameters.length", 4.0)
-    sweep = Sweep(
-        case=base,
-        parameters=[Parameter("boundary.inlet.velocity", values=[[u, 0.0] for u in SPEEDS], name="u_in")],
-        outputs=[Output("cd", summary="walls.lower_wall.forces.Cd"),
-                 Output("cf_2", wall="lower_wall", quantity="cf", x=X_STATION)],
-    )
+def _in_process(result) -> dict[str, float]:
+    """The outputs of a Result solved here, computed from the Result (not from files)."""
+    wall = result.wall("lower_wall")
+    return {"cd": summary_value(result.summary(), "walls.lower_wall.forces.Cd", "in-process"),
+            "p_up": float(np.interp(-1.5, wall.x, wall.p_wall)),
+            "cf_behind": float(np.interp(1.0, wall.x, wall.cf))}
+
+
+def test_cluster_sweep_of_bump_heights_equals_in_process_runs(tmp_path, bump_case, dask_client):
+    """8 bump heights on 2 worker processes give, run for run, the outputs, iteration counts and
+    convergence of solving each case one by one in this process (to solver tolerance: 1e-9 relative
+    asked; cold starts on both sides run the same arithmetic)."""
+    base = load_case(bump_case)
+    sweep = Sweep(case=base, outputs=OUTPUTS,
+                  parameters=[Parameter("mesh.parameters.bump_height", values=HEIGHTS, name="h")])
     table = run_sweep(sweep, tmp_path / "out", scheduler=dask_client, timeout=TIMEOUT)
-    assert len(table) == len(SPEEDS) and table.all_ok
+    assert len(table) == len(HEIGHTS) and table.all_ok
     pids = {json.loads((tmp_path / "out" / "runs" / k / "run.json").read_text())["pid"] for k in table.column("key")}
     assert os.getpid() not in pids  # solved in the worker processes
-    for row, u in zip(table.rows, SPEEDS):
-        assert row["u_in"] == [u, 0.0]
-        result = fa.solve(base.set("boundary.inlet.velocity", [u, 0.0]))
+    for row, h in zip(table.rows, HEIGHTS):
+        assert row["h"] == h
+        result = fa.solve(base.set("mesh.parameters.bump_height", h))
         assert result.converged and row["converged"]
         assert row["iterations"] == result.iterations
-        cd = summary_value(result.summary(), "walls.lower_wall.forces.Cd", "in-process")
-        wall = result.wall("lower_wall")
-        cf = float(np.interp(X_STATION, wall.x, wall.cf))
-        assert row["cd"] == pytest.approx(cd, rel=1e-9)
-        assert row["cf_2"] == pytest.approx(cf, rel=1e-9)
+        for name, value in _in_process(result).items():
+            assert row[name] == pytest.approx(value, rel=1e-9), name
+    assert len(set(table.column("cd"))) == len(HEIGHTS)  # the heights did change the flow
 
 
 def test_failures_on_workers_are_recorded(tmp_path, channel_case, dask_client):
@@ -64,23 +70,26 @@ def test_failures_on_workers_are_recorded(tmp_path, channel_case, dask_client):
     assert good["status"] == "converged" and good["iters"] == good["iterations"] > 0 and good["error"] == ""
 
 
-def test_warm_start_chains_on_workers(tmp_path, channel_case, dask_client):
-    """plan.warm_start on the cluster: chains of neighbouring runs per task; outputs agree with cold
-    in-process solves to the solver tolerance (1e-7 scaled residuals: 1e-5 relative asked)."""
-    base = load_case(channel_case).set("mesh.parameters.length", 4.0)
-    speeds = SPEEDS[:4]
-    sweep = Sweep(case=base, warm_start=True,
-                  parameters=[Parameter("boundary.inlet.velocity", values=[[u, 0.0] for u in speeds])],
-                  outputs=[Output("cd", summary="walls.lower_wall.forces.Cd")])
+def test_warm_start_chains_on_workers(tmp_path, bump_case, dask_client):
+    """plan.warm_start on the cluster: chains of neighbouring bump heights per task (the generator
+    keeps its topology); outputs agree with cold in-process solves to the solver tolerance (1e-7
+    scaled residuals: 1e-5 relative asked) in fewer iterations."""
+    base = load_case(bump_case)
+    heights = HEIGHTS[:4]
+    sweep = Sweep(case=base, warm_start=True, outputs=OUTPUTS,
+                  parameters=[Parameter("mesh.parameters.bump_height", values=heights)])
     table = run_sweep(sweep, tmp_path / "out", scheduler=dask_client, timeout=TIMEOUT)
     assert table.all_ok
     froms = [json.loads((tmp_path / "out" / "runs" / k / "run.json").read_text())["warm_start_from"]
              for k in table.column("key")]
     assert any(froms)  # some runs were warm-started on the workers
-    for row, u in zip(table.rows, speeds):
-        cold = fa.solve(base.set("boundary.inlet.velocity", [u, 0.0]))
-        cd = summary_value(cold.summary(), "walls.lower_wall.forces.Cd", "in-process")
-        assert row["cd"] == pytest.approx(cd, rel=1e-5)
+    cold_iterations = 0
+    for row, h in zip(table.rows, heights):
+        cold = fa.solve(base.set("mesh.parameters.bump_height", h))
+        cold_iterations += cold.iterations
+        for name, value in _in_process(cold).items():
+            assert row[name] == pytest.approx(value, rel=1e-5), name
+    assert sum(table.column("iterations")) < cold_iterations
 
 
 def test_worker_killed_mid_sweep(tmp_path, channel_case, dask_client):
