@@ -393,6 +393,9 @@ def sweep_from_dict(data: Mapping[str, Any], source: str | Path | None = None) -
     if not isinstance(title, str):
         raise CaseError(f"{label}: title: must be a string, got {describe(title)}")
     plan = _table(label, "plan", top.get("plan", {}), _PLAN_KEYS)
+    if plan.get("sampling", "factorial") == "factorial" and "seed" in plan:
+        raise CaseError(f"{label}: plan.seed: a factorial plan draws nothing at random; remove seed "
+                        "(or choose sampling = \"latin-hypercube\" or \"sobol\")")
     params = []
     for i, raw in enumerate(_array_of_tables(label, top, "parameter")):
         t = _table(label, f"parameter {i + 1}", raw, _PARAMETER_KEYS)

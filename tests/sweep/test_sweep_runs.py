@@ -121,8 +121,9 @@ def test_failing_runs_are_recorded_and_the_others_complete(tmp_path, channel_cas
 
 
 def test_rerun_executes_only_missing_runs(tmp_path, channel_case, monkeypatch):
-    """Resume: a second invocation runs nothing; after one run folder is removed (an interrupted
-    sweep) only that run is solved again and the others' records are untouched."""
+    """Resume: a second invocation runs nothing (also with an output added to the spec, read back
+    from the run folders); after one run folder is removed (an interrupted sweep) only that run is
+    solved again and the others' records are untouched."""
     spec = tmp_path / "sweep.toml"
     spec.write_text(RE_SPEC, encoding="utf-8")
     out = tmp_path / "out"
@@ -137,6 +138,13 @@ def test_rerun_executes_only_missing_runs(tmp_path, channel_case, monkeypatch):
     assert calls == []
     assert second.rows == first.rows
     assert {k: (out / "runs" / k / "run.json").read_text(encoding="utf-8") for k in keys} == records
+
+    spec.write_text(RE_SPEC + '[[output]]\nname = "cf_4"\nwall = "lower_wall"\nquantity = "cf"\nx = 4.0\n',
+                    encoding="utf-8")
+    more = run_sweep(load_sweep(spec), out, workers=1)  # a new output, read from the run folders
+    assert calls == [] and more.meta["runs_done"] == 0
+    assert all(cf > 0 for cf in more.column("cf_4")) and more.column("p1") == first.column("p1")
+    spec.write_text(RE_SPEC, encoding="utf-8")
 
     victim = keys[1]
     for p in sorted((out / "runs" / victim).rglob("*"), reverse=True):

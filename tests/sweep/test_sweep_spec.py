@@ -71,6 +71,8 @@ def test_sampled_plan_checks(tmp_path, channel_case):
     text = GOOD.replace("count = 3\n", "") + '\n[plan]\nsampling = "sobol"\ncount = 10\n'
     with pytest.raises(CaseError, match="power of 2; give 8 or 16"):
         load_sweep(_spec(tmp_path, text))
+    with pytest.raises(CaseError, match="plan.seed: a factorial plan draws nothing at random"):
+        load_sweep(_spec(tmp_path, GOOD + "\n[plan]\nseed = 3\n"))
     with pytest.raises(CaseError, match=r"\.count: a sampled plan draws from \[start, stop\]"):
         load_sweep(_spec(tmp_path, GOOD + '\n[plan]\nsampling = "latin-hypercube"\ncount = 4\n'))
 
