@@ -3,7 +3,8 @@
 Factorial: every combination of the parameters' values, the first parameter varying slowest.
 Latin hypercube and Sobol: ``count`` points of ``scipy.stats.qmc`` (scrambled, seeded) in the unit
 cube, each coordinate u mapped onto its parameter: start + u (stop - start) for a linear range,
-start (stop / start)^u for a log range, values[floor(u n)] for a list of n values.
+start (stop / start)^u for a log range, values[floor(u n)] for a list of n values. A range whose
+start and stop are integers gives integers (rounded; each integer of a linear range equally likely).
 
 >>> from fvrans.sweep.spec import Parameter, Sweep
 >>> sweep = Sweep("base.toml", [Parameter("fluid.viscosity", start=0.01, stop=1.0, count=3, spacing="log"),
@@ -48,6 +49,8 @@ def range_values(p: Parameter) -> list[Any]:
 
     >>> range_values(Parameter("a", start=1.0, stop=3.0, count=3))
     [1.0, 2.0, 3.0]
+    >>> range_values(Parameter("mesh.parameters.ny", start=8, stop=32, count=4))
+    [8, 16, 24, 32]
     """
     if p.values is not None:
         return [_plain(v) for v in p.values]
@@ -57,6 +60,17 @@ def range_values(p: Parameter) -> list[Any]:
     else:
         vals = np.linspace(p.start, p.stop, n)
     vals[0], vals[-1] = p.start, p.stop  # exact ends
+    return _typed(p, vals)
+
+
+def _integer_range(p: Parameter) -> bool:
+    return all(isinstance(v, (int, np.integer)) and not isinstance(v, bool) for v in (p.start, p.stop))
+
+
+def _typed(p: Parameter, vals: np.ndarray) -> list[Any]:
+    """Floats, or the nearest integers for a range whose start and stop are integers."""
+    if _integer_range(p):
+        return [int(v) for v in np.rint(vals)]
     return [float(v) for v in vals]
 
 
@@ -67,14 +81,21 @@ def map_unit(p: Parameter, u: np.ndarray) -> list[Any]:
     [1.0, 10.0]
     >>> map_unit(Parameter("a", values=["x", "y", "z"]), np.array([0.1, 0.5, 0.99]))
     ['x', 'y', 'z']
+    >>> map_unit(Parameter("n", start=2, stop=4), np.array([0.0, 0.34, 0.99]))
+    [2, 3, 4]
     """
     if p.values is not None:
         idx = np.minimum((u * len(p.values)).astype(np.int64), len(p.values) - 1)
         return [_plain(p.values[i]) for i in idx]
     a, b = float(p.start), float(p.stop)
     if p.spacing == "log":
-        return [float(v) for v in a * (b / a) ** u]
-    return [float(v) for v in a + u * (b - a)]
+        vals = a * (b / a) ** u
+    elif _integer_range(p):  # every integer from start to stop with the same chance
+        lo, hi = min(a, b), max(a, b)
+        vals = np.minimum(lo + np.floor(u * (hi - lo + 1)), hi)
+    else:
+        vals = a + u * (b - a)
+    return _typed(p, vals)
 
 
 def unit_samples(sampling: str, count: int, dim: int, seed: int) -> np.ndarray:
