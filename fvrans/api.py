@@ -29,8 +29,11 @@ import numpy as np
 
 from fvrans.case import Case, apply_overrides, case_from_dict, load_case
 from fvrans.case.build import build_case_mesh
+from fvrans.checkpoint import Checkpoint, read_checkpoint, write_checkpoint
 from fvrans.errors import CaseError, DivergenceError
+from fvrans.fv.boundary import boundary_face_values
 from fvrans.mesh.geometry import Geometry, compute_geometry
+from fvrans.mesh.locate import CellLocator
 from fvrans.mesh.mesh import Mesh
 from fvrans.mesh.morph import topology_difference
 from fvrans.physics.boundary import FlowBoundary, build_flow_boundary
@@ -46,6 +49,7 @@ from fvrans.post import (
     write_residuals_csv,
     write_vtu_atomic,
 )
+from fvrans.post.probes import sample_line, write_probe_csv
 from fvrans.solve.fields import Fields
 from fvrans.solve.simple import History, SimpleSolver, SolverControls
 
@@ -86,6 +90,12 @@ class Result:
     message: str = ""
     diverged: bool = False
     extra: dict[str, Any] = field(default_factory=dict)
+    #: stopped on request (a callback returning True, Ctrl-C, SIGTERM) before converging
+    interrupted: bool = False
+    #: velocity scale of the scaled residuals (kept in checkpoints)
+    velocity_scale: float = 1.0
+    #: outer iteration the fields belong to (one less than ``iterations`` after a divergence)
+    fields_iteration: int | None = None
 
     # -- arrays -----------------------------------------------------------------------------
     @property
@@ -137,6 +147,10 @@ class Result:
         """The content of summary.json."""
         extra = {"message": self.message} if self.message else {}
         extra["diverged"] = self.diverged
+        extra["interrupted"] = self.interrupted
+        extra.update(self.extra.get("summary", {}))
+        if self.case.output.map_window is not None:
+            extra["map_window"] = list(self.case.output.map_window)
         return build_summary(
             self.case.title or self.case.label, self.converged, self.iterations, self.wall_seconds,
             self.mesh.n_cells, history=self.history, walls=self.walls(),
@@ -150,8 +164,8 @@ class Result:
         return d
 
     def write(self, out_dir: str | Path) -> Path:
-        """Write summary.json, fields.vtu, wall/<patch>.csv and residuals.csv into ``out_dir``
-        (each file atomically)."""
+        """Write summary.json, fields.vtu, wall/<patch>.csv, residuals.csv and profiles/<probe>.csv
+        into ``out_dir`` (each file atomically)."""
         out = Path(out_dir)
         out.mkdir(parents=True, exist_ok=True)
         if self.case.output.write_fields:
@@ -163,8 +177,47 @@ class Result:
             header, cols = wall_columns(w)
             write_csv_atomic(out / "wall" / f"{name}.csv", header, cols)
         write_residuals_csv(out / "residuals.csv", self.history)
+        if self.case.probes:
+            (out / "profiles").mkdir(exist_ok=True)
+        for name in self.case.probes:
+            write_probe_csv(out / "profiles" / f"{name}.csv", self.probe(name))
         write_json_atomic(out / "summary.json", self.summary())
         return out
+
+    # -- line probes ------------------------------------------------------------------------
+    def sample_line(self, start: Any, end: Any, points: int = 101, name: str = "line") -> dict[str, np.ndarray]:
+        """Fields along a segment: columns ``s`` (distance from start), ``x``, ``y``, ``u``, ``v``,
+        ``p`` and, with Spalart-Allmaras, ``nu_tilde`` and ``nut_ratio`` (from the sampled nu_tilde).
+        Each value is the containing cell's value plus its gradient times the offset from the
+        cell centroid (:func:`fvrans.post.probes.sample_line`)."""
+        values = {"u": self.velocity[:, 0], "v": self.velocity[:, 1], "p": self.pressure}
+        if self.fields.nu_tilde is not None:
+            values["nu_tilde"] = self.fields.nu_tilde
+        if "locator" not in self.extra:
+            self.extra["locator"] = CellLocator(self.mesh, centroids=self.problem.geom.cell_centre)
+        cols = sample_line(self.extra["locator"], self.problem.geom.cell_centre, start, end, points, values,
+                           self.extra.get("gradients", {}), name=name)
+        if "nu_tilde" in cols:
+            nu = self.case.fluid.kinematic_viscosity
+            cols["nut_ratio"] = sa_eddy_viscosity(cols["nu_tilde"], nu) / nu
+        return cols
+
+    def probe(self, name: str) -> dict[str, np.ndarray]:
+        """The columns of the case's line probe ``[probes.<name>]`` (see :meth:`sample_line`)."""
+        if name not in self.case.probes:
+            raise CaseError(f"{self.case.label}: no probe {name!r}; the case has "
+                            f"{', '.join(repr(n) for n in self.case.probes) or 'none'} ([probes.<name>] tables)")
+        pr = self.case.probes[name]
+        return self.sample_line(pr.start, pr.end, pr.points, name=name)
+
+    def write_checkpoint(self, path: str | Path) -> Path:
+        """Save the state of this run to ``path`` (a ``.npz`` file, written atomically) so that
+        ``solve(..., restart=path)`` or ``fvrans run --restart`` continues it."""
+        n = self.iterations if self.fields_iteration is None else self.fields_iteration
+        return write_checkpoint(
+            path, self.fields, n, list(self.history.names), self.history.as_array()[:n],
+            np.asarray(self.history.seconds[:n]), self.velocity_scale, self.case, self.mesh, self.grad_p,
+        )
 
 
 def _initial_fields(problem: Problem, initial: Result | Fields | None) -> Fields | None:
@@ -190,45 +243,101 @@ def _initial_fields(problem: Problem, initial: Result | Fields | None) -> Fields
     return fields.copy()
 
 
+def _gradients(solver: SimpleSolver, model: Any, grad_p: np.ndarray) -> dict[str, np.ndarray]:
+    """Cell gradients of u, v, p (and nu_tilde) of the final state, for probes."""
+    f = solver.fields
+    ub = solver._velocity_on_boundary(f.velocity, f.face_flux[solver.ni:])
+    gu = solver.grad(np.ascontiguousarray(f.velocity, dtype=float), ub)
+    out = {"u": gu[:, 0, :].copy(), "v": gu[:, 1, :].copy(), "p": np.array(grad_p)}
+    if model is not None and f.nu_tilde is not None:
+        nt = np.ascontiguousarray(f.nu_tilde, dtype=float)
+        nt_b = boundary_face_values(model.mesh, model.geom, model.bc, nt, model.grad_nt)
+        out["nu_tilde"] = np.array(model.grad(nt, nt_b))
+    return out
+
+
 def solve(
     case: Case | Problem,
     initial: Result | Fields | None = None,
     callback: Callable[[int, list[float]], bool | None] | None = None,
+    *,
+    restart: Checkpoint | str | Path | None = None,
+    checkpoint: str | Path | None = None,
 ) -> Result:
     """Solve a case (or a prepared Problem); ``initial`` warm-starts from a previous result on the
     same mesh or one of the same topology (a neighbouring design of a parametric generator with the
     same resolution, or a mesh morphed with :func:`fvrans.mesh.morph.morph`); a different cell or
     face count, or (for a Result) a different topology, raises CaseError. A diverging run returns
-    a Result with ``diverged=True`` holding the last good state and the message; it does not raise."""
+    a Result with ``diverged=True`` holding the last good state and the message; it does not raise.
+
+    ``callback(iteration, residuals)`` is called after every outer iteration; returning True
+    stops the run there (``interrupted=True`` unless it converged). ``restart``: a checkpoint
+    (or its file, or a result folder holding ``checkpoint.npz``) to continue: fields, iteration
+    count and residual history carry on; ``solver.max_iterations`` counts the new iterations.
+    ``checkpoint``: a file to save the state to every ``solver.checkpoint_every`` iterations.
+    """
     problem = case if isinstance(case, Problem) else prepare(case)
     c = problem.case
     controls = SolverControls.from_settings(c.solver)
+    ckpt: Checkpoint | None = None
+    if restart is not None:
+        if initial is not None:
+            raise CaseError(f"{c.label}: give a warm start (initial) or a checkpoint (restart), not both")
+        ckpt = restart if isinstance(restart, Checkpoint) else read_checkpoint(restart)
+        ckpt.check_matches(c, problem.mesh)
+        initial = ckpt.fields
     fields = _initial_fields(problem, initial)
     model = model_for_case(c, problem.mesh, problem.geom, problem.boundary)
     solver = SimpleSolver(
         problem.mesh, problem.geom, problem.boundary, rho=c.fluid.density, mu=c.fluid.viscosity,
         controls=controls, fields=fields, model=model,
     )
+    if ckpt is not None:
+        if list(ckpt.history_names) != list(solver.history.names):
+            raise CaseError(f"{ckpt.source}: the checkpoint's residuals {ckpt.history_names} do not match this "
+                            f"case's {solver.history.names}; restart with the settings of that run")
+        solver.resume(ckpt.iteration, ckpt.history_rows, ckpt.history_seconds, ckpt.velocity_scale,
+                      ckpt.pressure_gradient)
+        log.info("%s: resuming at iteration %d from %s", c.label, ckpt.iteration, ckpt.source)
+    every = int(getattr(c.solver, "checkpoint_every", 0) or 0)
+    stopped = False
+
+    def step(it: int, res: list[float]) -> bool:
+        nonlocal stopped
+        if checkpoint is not None and every > 0 and it % every == 0:
+            write_checkpoint(checkpoint, solver.fields, it, list(solver.history.names), solver.history.as_array(),
+                             np.asarray(solver.history.seconds), solver.u_scale, c, problem.mesh, solver.grad_p)
+            log.debug("checkpoint at iteration %d written to %s", it, checkpoint)
+        if callback is not None and callback(it, res):
+            stopped = True
+        return stopped
+
     t0 = time.perf_counter()
     message = ""
     diverged = False
+    fields_iteration = None
     try:
-        converged = solver.run(callback=callback)
+        converged = solver.run(callback=step)
     except DivergenceError as exc:
         converged = False
         diverged = True
         message = str(exc)
+        fields_iteration = exc.iteration
         log.error("%s: %s", c.label, message)
     seconds = time.perf_counter() - t0
     grad_p = solver.grad_p
     if diverged:  # the gradient of the last good pressure
         grad_p = solver.grad_pressure(solver.fields.pressure, solver._pressure_on_boundary(grad_p))
-    if not converged and not diverged:
+    interrupted = stopped and not converged
+    if interrupted:
+        message = (f"interrupted at iteration {solver.iteration} before converging; continue with "
+                   "restart= (fvrans run ... --restart DIR)")
+    elif not converged and not diverged:
         message = (
             f"not converged after {solver.iteration} iterations (tolerance {controls.tolerance:g}); "
             "raise solver.max_iterations or restart from this result"
         )
-    extra: dict[str, Any] = {}
+    extra: dict[str, Any] = {"gradients": _gradients(solver, model, grad_p)}
     if model is not None and solver.fields.nu_tilde is not None:
         nt = solver.fields.nu_tilde
         nu = c.fluid.kinematic_viscosity
@@ -240,5 +349,6 @@ def solve(
     return Result(
         problem=problem, fields=solver.fields, history=solver.history, converged=bool(converged),
         iterations=solver.iteration, wall_seconds=seconds, grad_p=grad_p, message=message,
-        diverged=diverged, extra=extra,
+        diverged=diverged, extra=extra, interrupted=interrupted, velocity_scale=solver.u_scale,
+        fields_iteration=fields_iteration,
     )

@@ -7,75 +7,57 @@ from __future__ import annotations
 import argparse
 import logging
 import sys
-import time
 from pathlib import Path
 
 from fvrans.errors import FvransError
 
-log = logging.getLogger("fvrans")
-
-
-class Progress:
-    """A live progress line: iteration, residuals, seconds per iteration."""
-
-    def __init__(self, names: list[str], quiet: bool, stream=sys.stderr, every_s: float = 0.5):
-        self.names = names
-        self.quiet = quiet
-        self.stream = stream
-        self.tty = hasattr(stream, "isatty") and stream.isatty()
-        self.every_s = every_s if self.tty else 10.0
-        self.t_start = time.perf_counter()
-        self.t_last = -1e9
-        self.last_it = 0
-
-    def __call__(self, it: int, res: list[float]) -> None:
-        if self.quiet:
-            return
-        now = time.perf_counter()
-        if now - self.t_last < self.every_s and it > 1:
-            return
-        rate = (now - self.t_start) / max(it, 1)
-        text = f"iteration {it:6d}  " + "  ".join(
-            f"{n} {r:8.2e}" for n, r in zip(self.names, res)
-        ) + f"  {rate:7.4f} s/iteration"
-        if self.tty:
-            self.stream.write("\r" + text)
-        else:
-            self.stream.write(text + "\n")
-        self.stream.flush()
-        self.t_last = now
-
-    def close(self) -> None:
-        if self.tty and not self.quiet:
-            self.stream.write("\n")
-            self.stream.flush()
+log = logging.getLogger(__name__)
 
 
 def _cmd_run(args: argparse.Namespace) -> int:
     from fvrans import api
+    from fvrans.checkpoint import CHECKPOINT_NAME, read_checkpoint
+    from fvrans.progress import RunProgress, StopRequest
 
     case = api.load_case(args.case)
     if args.set:
         case = api.apply_overrides(case, args.set)
     problem = api.prepare(case)
-    if not args.quiet:
-        print(
-            f"{case.label}: {problem.mesh.n_cells} cells, {problem.mesh.n_faces} faces, "
-            f"patches {', '.join(problem.mesh.patch_names)}",
-            file=sys.stderr,
-        )
+    log.info("%s: %d cells, %d faces, patches %s", case.label, problem.mesh.n_cells, problem.mesh.n_faces,
+             ", ".join(problem.mesh.patch_names))
+    restart = None
+    if args.restart:
+        restart = read_checkpoint(args.restart)
+        restart.check_matches(case, problem.mesh)
+    out = Path(args.out)
+    out.mkdir(parents=True, exist_ok=True)
+    checkpoint = out / CHECKPOINT_NAME
     names = ["u", "v", "continuity"] + (["nu_tilde"] if case.turbulent else [])
-    progress = Progress(names, args.quiet)
+    progress = RunProgress(names, case.solver.max_iterations, case.solver.tolerance,
+                           first_iteration=restart.iteration if restart else 0, quiet=args.quiet)
+    stop = StopRequest()
 
     def callback(it, res):
         progress(it, res)
+        return stop(it, res)
 
-    result = api.solve(problem, callback=callback)
-    progress.close()
-    out = result.write(args.out)
+    stop.install()
+    try:
+        result = api.solve(problem, callback=callback, restart=restart, checkpoint=checkpoint)
+    finally:
+        stop.restore()
+        progress.close()
+    if stop.signal_name is not None and result.interrupted:
+        result.message = (f"interrupted by {stop.signal_name} at iteration {result.iterations}; continue with: "
+                          f"fvrans run {args.case} --out DIR --restart {out}")
+        result.extra["summary"] = {"interrupted_by": stop.signal_name}
+    if not result.converged or case.solver.checkpoint_every > 0 or checkpoint.exists():
+        result.write_checkpoint(checkpoint)
+    result.write(out)
     if not args.no_plots:
         _plots(out)
-    state = "converged" if result.converged else ("DIVERGED" if result.diverged else "not converged")
+    state = "converged" if result.converged else ("DIVERGED" if result.diverged else (
+        "interrupted" if result.interrupted else "not converged"))
     print(
         f"{state} after {result.iterations} iterations in {result.wall_seconds:.1f} s; results in {out}",
         file=sys.stderr,
@@ -98,7 +80,8 @@ def _plots(out: Path) -> None:
 def _cmd_plot(args: argparse.Namespace) -> int:
     from fvrans.post.plots import make_plots
 
-    paths = make_plots(args.result_dir, mesh_edges=args.mesh_edges, streamlines=not args.no_streamlines)
+    paths = make_plots(args.result_dir, mesh_edges=args.mesh_edges, streamlines=not args.no_streamlines,
+                       window=args.window)
     for path in paths:
         print(path)
     return 0
@@ -202,7 +185,9 @@ def build_parser() -> argparse.ArgumentParser:
         "--set", action="append", default=[], metavar="KEY=VALUE",
         help="override a setting, value in TOML syntax, e.g. --set solver.max_iterations=200 (repeatable)",
     )
-    r.add_argument("--quiet", action="store_true", help="no progress line")
+    r.add_argument("--quiet", action="store_true", help="no progress bar, only errors and the final line")
+    r.add_argument("--restart", metavar="DIR",
+                   help="continue from the checkpoint of an earlier run (its --out folder or checkpoint.npz)")
     r.add_argument("--no-plots", action="store_true", help="skip the plots in OUT/plots")
     r.set_defaults(func=_cmd_run)
 
@@ -210,6 +195,8 @@ def build_parser() -> argparse.ArgumentParser:
     pl.add_argument("result_dir", help="folder written by 'fvrans run'")
     pl.add_argument("--mesh-edges", action="store_true", help="draw the cell edges on the field maps")
     pl.add_argument("--no-streamlines", action="store_true", help="no streamlines on the velocity map")
+    pl.add_argument("--window", nargs=4, type=float, metavar=("XMIN", "XMAX", "YMIN", "YMAX"),
+                    help="also draw zoomed maps of this window (default: the case's output.map_window)")
     pl.set_defaults(func=_cmd_plot)
 
     i = sub.add_parser("info", help="mesh report of a mesh file, or resolved settings and mesh report of a case")
@@ -258,11 +245,46 @@ def build_parser() -> argparse.ArgumentParser:
     return p
 
 
+class _MessageFormatter(logging.Formatter):
+    """INFO lines as the bare message; warnings and errors with their level and logger."""
+
+    def format(self, record: logging.LogRecord) -> str:
+        if record.levelno == logging.INFO:
+            return record.getMessage()
+        return f"{record.levelname.lower()} {record.name}: {record.getMessage()}"
+
+
+class _StderrHandler(logging.StreamHandler):
+    """Writes to the current ``sys.stderr`` (which tests and progress bars may replace)."""
+
+    def __init__(self) -> None:
+        super().__init__()
+
+    @property
+    def stream(self):  # type: ignore[override]
+        return sys.stderr
+
+    @stream.setter
+    def stream(self, value) -> None:
+        pass
+
+
+def _setup_logging(level: int) -> None:
+    """The command line's logging: the ``fvrans`` loggers at ``level`` to stderr."""
+    root = logging.getLogger("fvrans")
+    for h in list(root.handlers):
+        if isinstance(h, _StderrHandler):
+            root.removeHandler(h)
+    handler = _StderrHandler()
+    handler.setFormatter(_MessageFormatter())
+    root.addHandler(handler)
+    root.setLevel(level)
+
+
 def main(argv: list[str] | None = None) -> int:
     args = build_parser().parse_args(argv)
-    logging.basicConfig(
-        level=logging.DEBUG if args.verbose else logging.WARNING, format="%(levelname)s %(name)s: %(message)s"
-    )
+    _setup_logging(logging.DEBUG if args.verbose else logging.WARNING if getattr(args, "quiet", False)
+                   else logging.INFO)
     try:
         return int(args.func(args))
     except FvransError as exc:

@@ -27,6 +27,7 @@ from fvrans.case.schema import (
     MeshSettings,
     ModelSettings,
     OutputSettings,
+    ProbeLine,
     SolverSettings,
 )
 from fvrans.case.validate import case_from_dict
@@ -40,6 +41,7 @@ __all__ = [
     "MeshSettings",
     "ModelSettings",
     "OutputSettings",
+    "ProbeLine",
     "SolverSettings",
     "apply_overrides",
     "build_case_mesh",

@@ -159,6 +159,17 @@ class OutputSettings:
     reference_pressure: float = 0.0
     reference_length: float = 1.0
     write_fields: bool = True
+    #: (xmin, xmax, ymin, ymax) of the zoomed field maps, or None
+    map_window: tuple[float, float, float, float] | None = None
+
+
+@dataclass(frozen=True)
+class ProbeLine:
+    """A line probe ``[probes.<name>]``: ``points`` samples evenly spaced from ``start`` to ``end``."""
+
+    start: tuple[float, float]
+    end: tuple[float, float]
+    points: int = 101
 
 
 @dataclass(frozen=True)
@@ -180,6 +191,7 @@ class Case:
     boundaries: dict[str, BoundarySpec]
     solver: SolverSettings
     output: OutputSettings
+    probes: dict[str, ProbeLine] = field(default_factory=dict)
     raw: dict[str, Any] | None = field(default=None, compare=False, repr=False)
 
     @property
@@ -296,7 +308,16 @@ def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
         mesh["parameters"] = copy_data(m.parameters)
     mesh["renumber"] = bool(m.renumber)
     s = case.solver
-    return {
+    output: dict[str, Any] = {
+        "wall_patches": list(case.output.wall_patches),
+        "reference_velocity": case.output.reference_velocity,
+        "reference_pressure": case.output.reference_pressure,
+        "reference_length": case.output.reference_length,
+        "write_fields": case.output.write_fields,
+    }
+    if case.output.map_window is not None:
+        output["map_window"] = [float(v) for v in case.output.map_window]
+    data = {
         "title": case.title,
         "description": case.description,
         "mesh": mesh,
@@ -328,11 +349,9 @@ def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
             "divergence_factor": s.divergence_factor,
             "checkpoint_every": s.checkpoint_every,
         },
-        "output": {
-            "wall_patches": list(case.output.wall_patches),
-            "reference_velocity": case.output.reference_velocity,
-            "reference_pressure": case.output.reference_pressure,
-            "reference_length": case.output.reference_length,
-            "write_fields": case.output.write_fields,
-        },
+        "output": output,
     }
+    if case.probes:
+        data["probes"] = {name: {"start": _vec(pr.start), "end": _vec(pr.end), "points": pr.points}
+                          for name, pr in case.probes.items()}
+    return data

@@ -45,9 +45,13 @@ TABLE_KEYS: dict[str, tuple[str, ...]] = {
     ),
     "output": (
         "wall_patches", "reference_velocity", "reference_pressure", "reference_length", "write_fields",
+        "map_window",
     ),
 }
-TOP_KEYS = ("title", "description", "mesh", "fluid", "model", "initial", "boundary", "solver", "output")
+TOP_KEYS = ("title", "description", "mesh", "fluid", "model", "initial", "boundary", "solver", "output", "probes")
+#: keys of a line probe [probes.<name>]
+PROBE_KEYS = ("start", "end", "points")
+_PROBE_NAME = re.compile(r"^[A-Za-z0-9_][A-Za-z0-9_.-]*$")
 
 Rule = tuple[Callable[[float], bool], str]
 POSITIVE: Rule = (lambda v: v > 0, "> 0")
@@ -325,6 +329,7 @@ def case_from_dict(data: Mapping[str, Any], source: str | Path | None = None) ->
         'add one table per mesh patch, e.g. [boundary.walls] with kind = "wall"')))
     solver = _solver(ctx, top.table("solver", {}))
     output = _output(ctx, top.table("output", {}), boundaries)
+    probes = _probes(ctx, top.table("probes", {}))
     return S.Case(
         source=src,
         title=title,
@@ -336,6 +341,7 @@ def case_from_dict(data: Mapping[str, Any], source: str | Path | None = None) ->
         boundaries=boundaries,
         solver=solver,
         output=output,
+        probes=probes,
         raw=S.copy_data(data),
     )
 
@@ -504,7 +510,46 @@ def _output(ctx: _Ctx, data: Any, boundaries: Mapping[str, S.BoundarySpec]) -> S
         reference_pressure=t.number("reference_pressure", 0.0),
         reference_length=t.number("reference_length", 1.0, POSITIVE, "the length of force coefficients"),
         write_fields=t.boolean("write_fields", True),
+        map_window=_window(t),
     )
+
+
+def _window(t: _Table) -> tuple[float, float, float, float] | None:
+    if not t.has("map_window"):
+        return None
+    v = t.data["map_window"]
+    if isinstance(v, np.ndarray):
+        v = v.tolist()
+    need = "must be a list of 4 numbers [xmin, xmax, ymin, ymax]"
+    if not isinstance(v, (list, tuple)) or len(v) != 4:
+        raise t.fail("map_window", f"{need}, got {describe(v)}")
+    w = [check_number(c, lambda m, i=i: t.fail("map_window", f"item {i + 1} {m}")) for i, c in enumerate(v)]
+    if not (w[0] < w[1] and w[2] < w[3]):
+        raise t.fail("map_window", f"{need} with xmin < xmax and ymin < ymax, got {w}")
+    return (w[0], w[1], w[2], w[3])
+
+
+def _probes(ctx: _Ctx, data: Any) -> dict[str, S.ProbeLine]:
+    if not isinstance(data, Mapping):
+        raise ctx.error(("probes",), f"must hold one table per probe, [probes.<name>] with start = [x, y] and "
+                        f"end = [x, y], got {describe(data)}")
+    out: dict[str, S.ProbeLine] = {}
+    for name, spec in data.items():
+        path = ("probes", str(name))
+        if not isinstance(name, str) or not _PROBE_NAME.match(name):
+            raise ctx.error(path, "a probe name becomes a file name (profiles/<name>.csv): use letters, digits, "
+                            "'_', '-' and '.', e.g. [probes.wake_x2]")
+        if not isinstance(spec, Mapping):
+            raise ctx.error(path, f"must be a table [{format_key(path)}] with start = [x, y], end = [x, y] and "
+                            f"optionally points = 101, got {describe(spec)}")
+        t = _Table(ctx, path, spec, PROBE_KEYS, "a line probe")
+        start = t.vector("start", hint="add start = [x, y], the first point of the line")
+        end = t.vector("end", hint="add end = [x, y], the last point of the line")
+        if start == end:
+            raise t.fail("end", f"equals start {list(start)}; a line probe needs two different points")
+        points = t.integer("points", 101, (lambda v: v >= 2, ">= 2"), "the number of sample points")
+        out[name] = S.ProbeLine(start=start, end=end, points=points)
+    return out
 
 
 # ------------------------------------------------------------------------------------------

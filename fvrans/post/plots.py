@@ -37,6 +37,7 @@ __all__ = [
     "make_plots",
     "new_figure",
     "plot_wall_profile",
+    "probe_figure",
     "read_fields",
     "residual_figure",
     "result_figures",
@@ -46,6 +47,8 @@ __all__ = [
 ]
 
 FIGSIZE = (7.0, 4.0)  # inches
+#: field-map windows less high than this per unit width are drawn with y stretched
+THIN_WINDOW = 0.08
 DPI = 120
 KAPPA = 0.41  # von Karman constant (Coles 1956; common practice)
 B_LOG = 5.0  # log-law intercept (Coles 1956; common practice)
@@ -80,9 +83,17 @@ def save_figure(fig: Figure, path: str | os.PathLike) -> Path:
     return target
 
 
-def _title(case_title: str | None, what: str) -> str:
-    text = f"{case_title}: {what}" if case_title else what[:1].upper() + what[1:]
-    return "\n".join(textwrap.wrap(text, 80)) or text
+def _title(case_title: str | None, what: str, width: int = 72) -> str:
+    """``"<case title>: <what>"``; when longer than ``width`` characters (about 10 per inch of
+    figure at size 11) the case title and the subject go on lines of their own, each wrapped."""
+    if not case_title:
+        return what[:1].upper() + what[1:]
+    text = f"{case_title}: {what}"
+    if len(text) <= width:
+        return text
+    lines = textwrap.wrap(case_title, width, break_on_hyphens=False)
+    lines += textwrap.wrap(what, width, break_on_hyphens=False)
+    return "\n".join(lines)
 
 
 def _length_label(axis: str, l_ref: float | None) -> str:
@@ -198,6 +209,41 @@ def _reference_curves(
     return out
 
 
+def _wall_range(coord: np.ndarray, val: np.ndarray, axis: str = "x", scale: float = 1.0
+                ) -> tuple[float, float, str]:
+    """Vertical range of a wall plot and a note on what it leaves out.
+
+    Singular points at the ends of a wall (a leading edge, a corner) can rise far above the rest
+    and flatten everything else: when the values within 2 % of the wall's length from its ends
+    reach more than 1.5 times the range of the rest, the range is that of the rest (plus half of
+    it) and the note names the extreme value and where it is.
+    """
+    ok = np.isfinite(val) & np.isfinite(coord)
+    c, v = coord[ok], val[ok]
+    if not len(v):
+        return 0.0, 1.0, ""
+    lo, hi = float(v.min()), float(v.max())
+    span = float(c.max() - c.min())
+    inner = (c > c.min() + 0.02 * span) & (c < c.max() - 0.02 * span)
+    if inner.sum() < 10 or span <= 0:
+        return lo, hi, ""
+    ilo, ihi = float(v[inner].min()), float(v[inner].max())
+    ilo, ihi = min(ilo, 0.0) if lo < 0 <= ilo else ilo, ihi
+    r = max(ihi - ilo, 1e-300)
+    if hi - lo <= 1.5 * r:
+        return lo, hi, ""
+    new_lo = lo if lo >= ilo - 0.5 * r else ilo - 0.5 * r
+    new_hi = hi if hi <= ihi + 0.5 * r else ihi + 0.5 * r
+    notes = []
+    if hi > new_hi:
+        k = int(np.argmax(v))
+        notes.append(f"max {v[k]:.3g} at {axis} = {c[k] * scale:.3g} (off scale)")
+    if lo < new_lo:
+        k = int(np.argmin(v))
+        notes.append(f"min {v[k]:.3g} at {axis} = {c[k] * scale:.3g} (off scale)")
+    return new_lo, new_hi, "; ".join(notes)
+
+
 def wall_figure(
     wall: str | os.PathLike | Mapping[str, Any],
     quantity: str = "cf",
@@ -241,13 +287,14 @@ def wall_figure(
     first = True
     for sg in np.unique(seg):
         idx = np.nonzero(seg == sg)[0]
-        ax.plot(coord[idx] * scale, val[idx], color="C0", lw=1.5, marker="." if len(idx) <= 60 else None,
+        ax.plot(coord[idx] * scale, val[idx], color="C0", lw=1.5, marker="." if len(coord) <= 60 else None,
                 ms=4, label="computed" if first else None, zorder=3)
         first = False
-    finite = val[np.isfinite(val)]
-    lo, hi = (float(finite.min()), float(finite.max())) if len(finite) else (0.0, 1.0)
+    axis = ("x" if along == "x" else "s") + ("/L_ref" if l_ref else "")
+    lo, hi, clipped = _wall_range(coord, val, axis, scale)
     for k, (label, x, y) in enumerate(_reference_curves(references, coord, where)):
-        ax.plot(x * scale, y, color=f"C{k + 1}", lw=1.4, ls=("--", "-.", ":")[k % 3], label=label, zorder=2)
+        # dashed and on top: a reference the computation lies on stays visible
+        ax.plot(x * scale, y, color=f"C{k + 1}", lw=1.4, ls=("--", "-.", ":")[k % 3], label=label, zorder=4)
         if len(y) > 4:  # correlations can be singular at a leading edge: don't let that set the range
             lo, hi = min(lo, float(np.percentile(y, 2))), max(hi, float(np.percentile(y, 98)))
     if quantity == "cf":
@@ -257,7 +304,8 @@ def wall_figure(
     for k, z in enumerate(zero_shear):
         ax.axvline(float(z) * scale, color="0.25", ls=":", lw=1.2, label=_ZERO_SHEAR_LABEL if k == 0 else None,
                    zorder=2)
-    ax.set_xlabel(_length_label("x" if along == "x" else "s (arc length along the wall)", l_ref))
+    xlabel = _length_label("x" if along == "x" else "s (arc length along the wall)", l_ref)
+    ax.set_xlabel(f"{xlabel}\n{clipped}" if clipped else xlabel)
     ax.set_ylabel(ylabel)
     ax.set_title(_title(title, f"{short} along {patch}" if patch else f"{short} along the wall"), fontsize=11)
     ax.grid(True, alpha=0.3)
@@ -363,8 +411,16 @@ def _vertex_values(fields: FieldData, values: np.ndarray) -> np.ndarray:
     return out
 
 
+def _stretch_factor(w: float, h: float) -> float:
+    """1 for windows at least :data:`THIN_WINDOW` high per unit width; otherwise the factor, rounded
+    to one significant digit, that shows the window about 0.35 times as high as wide."""
+    if h >= THIN_WINDOW * w:
+        return 1.0
+    return float(f"{0.35 * w / h:.1g}")
+
+
 def _draw_streamlines(ax: Any, fields: FieldData, window: tuple[float, float, float, float],
-                      scale: float, axes_inches: tuple[float, float]) -> None:
+                      scale: float, axes_inches: tuple[float, float], stretch: float = 1.0) -> None:
     """Streamlines of the cell velocities on a regular grid over ``window``.
 
     The velocities are averaged to the mesh points and interpolated linearly on a fan
@@ -379,7 +435,7 @@ def _draw_streamlines(ax: Any, fields: FieldData, window: tuple[float, float, fl
     if u.ndim != 2:
         return
     x0, x1, y0, y1 = window
-    w, h = x1 - x0, y1 - y0
+    w, h = x1 - x0, (y1 - y0) * stretch
     n_long = 260
     nx = max(int(n_long * min(1.0, w / h)), 24)
     ny = max(int(n_long * min(1.0, h / w)), 24)
@@ -400,7 +456,7 @@ def _draw_streamlines(ax: Any, fields: FieldData, window: tuple[float, float, fl
     spacing = 0.13
     density = (max(axes_inches[0] / (30 * spacing), 0.2), max(axes_inches[1] / (30 * spacing), 0.2))
     ax.streamplot(xs * scale, ys * scale, U, V, density=density, color="white", linewidth=0.6,
-                  arrowsize=0.6, broken_streamlines=True, zorder=3)
+                  arrowsize=0.6, broken_streamlines=True, zorder=2)  # below the axes frame (2.5)
 
 
 def field_figure(
@@ -420,8 +476,10 @@ def field_figure(
     or the name of any cell array (vectors as magnitudes). ``reference``: the ``reference``
     block of summary.json (rho, u_ref, p_ref, l_ref) for non-dimensional values; without it
     values are in the units of the case. ``window``: (xmin, xmax, ymin, ymax) in case units to
-    zoom in. ``streamlines``: cell velocities interpolated linearly (scipy ``griddata``) to a
-    regular grid, points outside the cells masked, drawn with ``streamplot``.
+    zoom in; a window less high than :data:`THIN_WINDOW` times its width (a boundary layer) is
+    drawn with y stretched by a round factor, named in the y label. ``streamlines``: cell
+    velocities averaged to the mesh points, interpolated linearly on a regular grid (points
+    outside the cells masked), drawn with ``streamplot``.
     """
     if not isinstance(fields, FieldData):
         fields = read_fields(fields)
@@ -431,7 +489,8 @@ def field_figure(
     x0, x1, y0, y1 = window if window is not None else fields.bounds()
     if not (x1 > x0 and y1 > y0):
         raise CaseError(f"{fields.source}: empty plot window {(x0, x1, y0, y1)}; give xmin < xmax, ymin < ymax")
-    size, cbar_loc, ax_in = _field_layout(x1 - x0, y1 - y0)
+    stretch = _stretch_factor(x1 - x0, y1 - y0)
+    size, cbar_loc, ax_in = _field_layout(x1 - x0, (y1 - y0) * stretch)
     title_text = _title(title, name)
     size = (size[0], size[1] + 0.25 * title_text.count("\n"))  # room for a wrapped title
     fig = new_figure(size)
@@ -459,12 +518,13 @@ def field_figure(
         coll.set_linewidth(0.0)
     ax.add_collection(coll)
     if streamlines and "velocity" in fields.data:
-        _draw_streamlines(ax, fields, (x0, x1, y0, y1), scale, ax_in)
+        _draw_streamlines(ax, fields, (x0, x1, y0, y1), scale, ax_in, stretch)
     ax.set_xlim(x0 * scale, x1 * scale)
     ax.set_ylim(y0 * scale, y1 * scale)
-    ax.set_aspect("equal")
+    ax.set_aspect(stretch)
     ax.set_xlabel(_length_label("x", l_ref))
-    ax.set_ylabel(_length_label("y", l_ref) if l_ref is None else "y / L_ref")
+    ylabel = _length_label("y", l_ref) if l_ref is None else "y / L_ref"
+    ax.set_ylabel(ylabel if stretch == 1.0 else f"{ylabel}\n(y stretched {stretch:g}×)")
     ax.set_title(title_text, fontsize=11)
     kw: dict[str, Any] = {"location": cbar_loc, "label": label, "extend": extend}
     if cbar_loc == "bottom":
@@ -535,6 +595,75 @@ def plot_wall_profile(
 
 
 # ---------------------------------------------------------------------------------------------
+def probe_figure(
+    probe: str | os.PathLike | Mapping[str, Any],
+    quantities: Sequence[str] = ("u", "v"),
+    *,
+    name: str | None = None,
+    title: str | None = None,
+    reference: Mapping[str, Any] | None = None,
+) -> Figure:
+    """Quantities along a line probe (``profiles/<name>.csv``: columns s, x, y, u, v, p, ...), one
+    line each, labelled with the quantity and the probe's name; by default u and v.
+
+    Drawn against s, the distance from the probe's start; a probe running more across y than
+    along x gets s on the vertical axis (a profile across a layer reads bottom to top). With
+    ``reference`` (summary.json's block) velocities are divided by U_ref.
+    """
+    if isinstance(quantities, str):
+        quantities = (quantities,)
+    if isinstance(probe, Mapping):
+        cols = {str(k): np.asarray(v, dtype=float).ravel() for k, v in probe.items()}
+        where = f"probe {name!r}" if name else "probe data"
+    else:
+        where = str(probe)
+        cols = read_csv_columns(probe, required=("s", "x", "y"))
+        name = name or Path(probe).stem
+    missing = [q for q in ("s", "x", "y", *quantities) if q not in cols]
+    if missing:
+        raise CaseError(f"{where}: no column(s) {', '.join(missing)}; it has {', '.join(cols)}")
+    s_, x, y = cols["s"], cols["x"], cols["y"]
+    u_ref = _num((reference or {}).get("u_ref"), None)
+    velocity = all(q in ("u", "v") for q in quantities)
+    if velocity:
+        label = "velocity / U_ref [-]" if u_ref else "velocity (units of the case)"
+    elif len(quantities) == 1:
+        q = quantities[0]
+        label = {"nut_ratio": "ν_t / ν [-]", "p": "p (units of the case)",
+                 "nu_tilde": "ν̃ (units of the case)"}.get(q, q)
+    else:
+        label = ", ".join(quantities)
+    vertical = len(x) > 1 and abs(y[-1] - y[0]) > abs(x[-1] - x[0])
+    where_text = f" from ({x[0]:.4g}, {y[0]:.4g}) to ({x[-1]:.4g}, {y[-1]:.4g})" if len(x) else ""
+    s_label = f"s, distance along the probe{where_text}"
+    fig = new_figure((5.4, 5.0) if vertical else FIGSIZE)
+    ax = fig.add_subplot()
+    marker = "." if len(s_) <= 60 else None
+    for k, q in enumerate(quantities):
+        val = cols[q] / u_ref if (velocity and u_ref) else cols[q]
+        xy = (val, s_) if vertical else (s_, val)
+        ax.plot(*xy, color=f"C{k}", lw=1.5, ls=("-", "--", "-.", ":")[k % 4], marker=marker, ms=4,
+                label=f"{q}, probe {name}" if name else q)
+    if velocity or len(quantities) > 1:
+        (ax.axvline if vertical else ax.axhline)(0.0, color="0.55", lw=0.8, zorder=1)
+    lim = (float(s_.min()), float(s_.max())) if len(s_) > 1 else (0.0, 1.0)
+    if vertical:
+        ax.set_xlabel(label)
+        ax.set_ylabel(s_label)
+        ax.set_ylim(*lim)
+    else:
+        ax.set_xlabel(s_label)
+        ax.set_ylabel(label)
+        ax.set_xlim(*lim)
+    what = ", ".join(quantities)
+    ax.set_title(_title(title, f"{what} along probe {name!r}" if name else f"{what} along a probe",
+                        width=int(10.5 * fig.get_figwidth())), fontsize=11)
+    ax.grid(True, alpha=0.3)
+    ax.legend(loc="best", fontsize=9)
+    return fig
+
+
+# ---------------------------------------------------------------------------------------------
 def _check_references(references: Mapping[str, Any] | None, walls: Sequence[str], where: Path) -> None:
     for patch, by_q in (references or {}).items():
         if patch not in walls:
@@ -555,14 +684,19 @@ def result_figures(
     *,
     mesh_edges: bool = False,
     streamlines: bool = True,
+    window: Sequence[float] | None = None,
 ) -> Iterator[tuple[str, Figure]]:
     """Yield ``(file name, figure)`` for every plot the files of ``result_dir`` allow.
+
+    ``window`` (xmin, xmax, ymin, ymax), or else the ``map_window`` of summary.json (the case's
+    ``output.map_window``), adds zoomed maps ``field_<quantity>_zoom.png``.
 
     ``residuals.png``; ``wall_<patch>_cf.png`` and ``wall_<patch>_cp.png`` per wall table, with
     the zero-shear points of summary.json and the curves of ``references[patch]["cf" | "cp"]``
     (see :func:`wall_figure`); ``field_velocity.png`` (with streamlines), ``field_pressure.png``
     and ``field_nut_ratio.png`` (when present) from fields.vtu; ``profile_<name>.png`` for each
-    ``profiles/<name>.csv`` with ``y_plus`` and ``u_plus`` columns. Input problems are checked
+    ``profiles/<name>.csv`` with ``y_plus`` and ``u_plus`` columns, ``probe_<name>.png`` (u and v
+    along the probe) for each line-probe table. Input problems are checked
     before the first figure is made.
     """
     rd = Path(result_dir)
@@ -576,6 +710,10 @@ def result_figures(
     wall_files = sorted((rd / "wall").glob("*.csv")) if (rd / "wall").is_dir() else []
     _check_references(references, [p.stem for p in wall_files], rd)
     profile_files = sorted((rd / "profiles").glob("*.csv")) if (rd / "profiles").is_dir() else []
+    if window is None and summary.get("map_window") is not None:
+        window = summary["map_window"]
+    if window is not None:
+        window = _check_window(window, rd)
     have_res = (rd / "residuals.csv").is_file()
     have_fields = (rd / "fields.vtu").is_file()
     if not (have_res or have_fields or wall_files or profile_files):
@@ -584,13 +722,25 @@ def result_figures(
             "give the --out directory of a run"
         )
     return _result_figures(rd, title, reference, l_ref, walls_info, wall_files, profile_files, have_res,
-                           have_fields, references or {}, mesh_edges, streamlines)
+                           have_fields, references or {}, mesh_edges, streamlines, window)
+
+
+def _check_window(window: Any, where: Path) -> tuple[float, float, float, float]:
+    try:
+        w = [float(v) for v in window]
+    except (TypeError, ValueError):
+        w = []
+    if len(w) != 4 or not all(np.isfinite(w)) or not (w[0] < w[1] and w[2] < w[3]):
+        raise CaseError(f"{where}: map window {window!r}: give 4 numbers xmin xmax ymin ymax with xmin < xmax "
+                        "and ymin < ymax")
+    return (w[0], w[1], w[2], w[3])
 
 
 def _result_figures(rd: Path, title: str | None, reference: Mapping[str, Any] | None, l_ref: float | None,
                     walls_info: Mapping[str, Any], wall_files: list[Path], profile_files: list[Path],
                     have_res: bool, have_fields: bool, references: Mapping[str, Any], mesh_edges: bool,
-                    streamlines: bool) -> Iterator[tuple[str, Figure]]:
+                    streamlines: bool, window: tuple[float, float, float, float] | None = None,
+                    ) -> Iterator[tuple[str, Figure]]:
     if have_res:
         yield "residuals.png", residual_figure(rd / "residuals.csv", title=title)
     for wf in wall_files:
@@ -612,11 +762,18 @@ def _result_figures(rd: Path, title: str | None, reference: Mapping[str, Any] | 
                 yield f"field_{q}.png", field_figure(fields, q, title=title, reference=reference,
                                                      mesh_edges=mesh_edges,
                                                      streamlines=streamlines and q == "velocity")
+        for q in ("velocity", "pressure", "nut_ratio") if window is not None else ():
+            if q in fields.data:
+                yield f"field_{q}_zoom.png", field_figure(fields, q, title=title, reference=reference,
+                                                          mesh_edges=mesh_edges, window=window,
+                                                          streamlines=streamlines and q == "velocity")
     for pf in profile_files:
         cols = read_csv_columns(pf)
         if "y_plus" in cols and "u_plus" in cols:
             yield f"profile_{pf.stem}.png", wall_profile_figure(cols["y_plus"], cols["u_plus"], title=title,
                                                                 label=pf.stem)
+        elif all(k in cols for k in ("s", "x", "y", "u")):
+            yield f"probe_{pf.stem}.png", probe_figure(cols, name=pf.stem, title=title, reference=reference)
 
 
 def make_plots(
@@ -626,10 +783,11 @@ def make_plots(
     *,
     mesh_edges: bool = False,
     streamlines: bool = True,
+    window: Sequence[float] | None = None,
 ) -> list[Path]:
     """Save the figures of :func:`result_figures` as PNGs into ``out_dir`` (default
     ``result_dir/plots``), each atomically; return the paths written."""
-    figures = result_figures(result_dir, references, mesh_edges=mesh_edges, streamlines=streamlines)
+    figures = result_figures(result_dir, references, mesh_edges=mesh_edges, streamlines=streamlines, window=window)
     out = Path(out_dir) if out_dir is not None else Path(result_dir) / "plots"
     out.mkdir(parents=True, exist_ok=True)
     return [save_figure(fig, out / name) for name, fig in figures]

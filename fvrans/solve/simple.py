@@ -377,6 +377,19 @@ class SimpleSolver:
         self.iteration += 1
         return res
 
+    def resume(self, iteration: int, rows: Any, seconds: Any, velocity_scale: float,
+               pressure_gradient: np.ndarray | None = None) -> None:
+        """Continue a saved run: its iteration count, residual history, residual velocity scale
+        (so the history continues on the same scale) and the pressure gradient of its last
+        iteration (the boundary pressure extrapolation depends on it); see :mod:`fvrans.checkpoint`."""
+        rows = np.asarray(rows, dtype=float).reshape(-1, len(self.history.names))
+        self.iteration = int(iteration)
+        self.history.rows = [list(map(float, r)) for r in rows]
+        self.history.seconds = [float(t) for t in np.asarray(seconds, dtype=float)]
+        self.u_scale = float(velocity_scale)
+        if pressure_gradient is not None:
+            self.grad_p = np.array(pressure_gradient, dtype=float).reshape(self.nc, 2)
+
     # -- the loop ---------------------------------------------------------------------------
     def run(
         self,

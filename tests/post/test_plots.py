@@ -5,6 +5,8 @@ written with fvrans.post.writers keep the tests fast."""
 
 from __future__ import annotations
 
+import json
+
 import matplotlib
 import numpy as np
 import pytest
@@ -299,3 +301,48 @@ def test_result_figures_take_zero_shear_points_and_references_from_their_inputs(
     assert "arrays" in _labelled_lines(ax)
     assert "arrays" not in _labelled_lines(figs["wall_plate_cp.png"].axes[0])
     assert TITLE in figs["field_velocity.png"].axes[0].get_title()
+
+
+# ---------------------------------------------------------------------------------------------
+def test_zoomed_maps_from_the_summary_window_and_a_thin_window_is_stretched(tmp_path):
+    _write_result(tmp_path)
+    # the case's output.map_window travels in summary.json
+    summary = json.loads((tmp_path / "summary.json").read_text())
+    summary["map_window"] = [0.5, 1.5, 0.0, 0.5]
+    write_json_atomic(tmp_path / "summary.json", summary)
+    figs = dict(result_figures(tmp_path))
+    assert {"field_velocity_zoom.png", "field_pressure_zoom.png", "field_nut_ratio_zoom.png"} <= set(figs)
+    ax = figs["field_pressure_zoom.png"].axes[0]
+    assert ax.get_xlim() == (0.5, 1.5) and ax.get_ylim() == (0.0, 0.5)
+    assert ax.get_aspect() == 1.0 and "stretched" not in ax.get_ylabel()
+    # a window given to the call wins; 0.05 high on 2 wide is drawn with y stretched 10x
+    # (0.35 * 2 / 0.05 = 14, rounded to one significant digit)
+    figs = dict(result_figures(tmp_path, window=(0.0, 2.0, 0.0, 0.05)))
+    ax = figs["field_velocity_zoom.png"].axes[0]
+    assert ax.get_ylim() == (0.0, 0.05)
+    assert ax.get_aspect() == 10.0 and "y stretched 10×" in ax.get_ylabel()
+    with pytest.raises(CaseError, match="xmin < xmax"):
+        result_figures(tmp_path, window=(1.0, 0.0, 0.0, 1.0))
+
+
+def test_wall_figure_keeps_a_leading_edge_spike_off_scale_and_says_so():
+    x = np.linspace(0.001, 2.0, 200)
+    cf = 0.0592 * (5e6 * x) ** -0.2  # Prandtl's turbulent power law (Schlichting, ch. 21), spiked below
+    cf[:3] = [0.05, 0.03, 0.02]  # a singular leading edge
+    cols = dict(zip(WALL_HEADER, _wall_columns(x, 0 * x, np.ones(200), np.zeros(200), cf)))
+    ax = wall_figure(cols, "cf", patch="plate").axes[0]
+    top = ax.get_ylim()[1]
+    assert cf[3:].max() < top < 0.02
+    assert "max 0.05 at x = 0.001 (off scale)" in ax.get_xlabel()
+    # without a spike the whole range is shown and nothing is said
+    ax = wall_figure(dict(zip(WALL_HEADER, _wall_columns(x, 0 * x, np.ones(200), np.zeros(200), cf * 0 + 0.003))),
+                     "cf", patch="plate").axes[0]
+    assert "off scale" not in ax.get_xlabel()
+
+
+def test_plot_command_window(tmp_path, capsys):
+    from fvrans.cli import main
+
+    _write_result(tmp_path)
+    assert main(["plot", str(tmp_path), "--window", "0", "1", "0", "0.5", "--no-streamlines"]) == 0
+    assert (tmp_path / "plots" / "field_velocity_zoom.png").is_file()

@@ -1,0 +1,93 @@
+"""Which cell holds a point: candidates from a k-d tree of the cell centroids (scipy), then an
+exact point-in-polygon test (crossing number) on each candidate; a point on a cell edge or
+within a small tolerance outside the mesh boundary counts as inside the nearest cell.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from scipy.spatial import cKDTree
+
+from fvrans.mesh.mesh import Mesh
+
+
+def _point_in_polygon(px: float, py: float, poly: np.ndarray) -> bool:
+    """Crossing-number test (a horizontal ray to +x); ``poly`` (k, 2) in any orientation."""
+    x, y = poly[:, 0], poly[:, 1]
+    xn, yn = np.roll(x, -1), np.roll(y, -1)
+    straddle = (y > py) != (yn > py)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        xc = x + (py - y) * (xn - x) / (yn - y)
+    return bool(np.count_nonzero(straddle & (px < xc)) % 2)
+
+
+def _distance_to_polygon(px: float, py: float, poly: np.ndarray) -> float:
+    """Distance from the point to the polygon's edges."""
+    a = poly
+    b = np.roll(poly, -1, axis=0)
+    ab = b - a
+    ap = np.array([px, py]) - a
+    t = np.clip(np.einsum("ij,ij->i", ap, ab) / np.maximum(np.einsum("ij,ij->i", ab, ab), 1e-300), 0.0, 1.0)
+    d = ap - t[:, None] * ab
+    return float(np.min(np.hypot(d[:, 0], d[:, 1])))
+
+
+def line_points(start, end, n: int) -> np.ndarray:
+    """``n`` evenly spaced points from ``start`` to ``end`` (both included), shape (n, 2)."""
+    t = np.linspace(0.0, 1.0, int(n))[:, None]
+    return (1.0 - t) * np.asarray(start, dtype=float) + t * np.asarray(end, dtype=float)
+
+
+class CellLocator:
+    """Locates points in the cells of ``mesh``.
+
+    ``tolerance``: points this close to a cell (relative to the mesh's bounding-box diagonal)
+    count as inside it, so that points on the boundary are found.
+    """
+
+    def __init__(self, mesh: Mesh, tolerance: float = 1e-9, centroids: np.ndarray | None = None):
+        self.mesh = mesh
+        off, cp = mesh.cell_offsets, mesh.cell_points
+        if centroids is None:
+            sizes = np.diff(off)
+            sums = np.add.reduceat(mesh.points[cp], off[:-1], axis=0)
+            centroids = sums / sizes[:, None]
+        self.centroids = np.asarray(centroids, dtype=float)
+        self.tree = cKDTree(self.centroids)
+        lo, hi = mesh.points.min(axis=0), mesh.points.max(axis=0)
+        self.tol = float(tolerance * np.hypot(*(hi - lo)))
+
+    def polygon(self, c: int) -> np.ndarray:
+        return self.mesh.points[self.mesh.cell_points[self.mesh.cell_offsets[c] : self.mesh.cell_offsets[c + 1]]]
+
+    def find(self, points: np.ndarray) -> np.ndarray:
+        """Cell index of each point (n, 2), -1 for points outside the mesh."""
+        pts = np.atleast_2d(np.asarray(points, dtype=float))
+        out = np.full(len(pts), -1, dtype=np.int64)
+        n = self.mesh.n_cells
+        for i, (px, py) in enumerate(pts):
+            for k in (min(8, n), min(64, n), min(512, n)):
+                _, cand = self.tree.query([px, py], k=k)
+                cand = np.atleast_1d(cand)
+                hit = next((int(c) for c in cand if _point_in_polygon(px, py, self.polygon(int(c)))), -1)
+                if hit < 0:  # on an edge or just outside the boundary: the closest cell within tolerance
+                    d = [(_distance_to_polygon(px, py, self.polygon(int(c))), int(c)) for c in cand]
+                    dmin, c_best = min(d)
+                    if dmin <= self.tol:
+                        hit = c_best
+                if hit >= 0:
+                    out[i] = hit
+                    break
+                if k == min(512, n):
+                    break
+                # try more candidates only if the point may be inside: within the farthest candidate's reach
+                if self.tree.query([px, py], k=1)[0] > 10 * self._cell_size(int(cand[0])):
+                    break
+        return out
+
+    def _cell_size(self, c: int) -> float:
+        p = self.polygon(c)
+        return float(np.hypot(*(p.max(axis=0) - p.min(axis=0))))
+
+
+__all__ = ["CellLocator", "line_points"]
