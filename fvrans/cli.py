@@ -164,6 +164,12 @@ def _cmd_grid_study(args: argparse.Namespace) -> int:
     )
 
 
+def _cmd_sweep(args: argparse.Namespace) -> int:
+    from fvrans.sweep import sweep_command
+
+    return sweep_command(args.spec, args.out, workers=args.workers, scheduler=args.scheduler, quiet=args.quiet)
+
+
 def build_parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(
         prog="fvrans",
@@ -225,6 +231,17 @@ def build_parser() -> argparse.ArgumentParser:
     g.add_argument("--area", type=float, default=None, help="domain area for h = sqrt(area / N)")
     g.add_argument("--safety-factor", type=float, default=1.25, help="GCI safety factor (default 1.25)")
     g.set_defaults(func=_cmd_grid_study)
+
+    s = sub.add_parser("sweep", help="run a parameter sweep (a spec file) and write a results table")
+    s.add_argument("spec", help="sweep spec (TOML)")
+    s.add_argument("--out", required=True, help="output folder: runs/<key>/ per run, results.csv, results.json")
+    s.add_argument("--workers", type=int, default=None, metavar="N",
+                   help="worker processes of a local dask cluster on 127.0.0.1 (default: one per CPU); "
+                        "1 runs in this process without dask")
+    s.add_argument("--scheduler", default=None, metavar="ADDRESS",
+                   help="run on an existing dask cluster, e.g. tcp://10.0.0.5:8786")
+    s.add_argument("--quiet", action="store_true", help="no progress bar or summary")
+    s.set_defaults(func=_cmd_sweep)
     return p
 
 
