@@ -144,6 +144,27 @@ class GaussLeastSquaresGradient(_CellGradient):
             phi, phi_b, self._work, True, out,
         )
 
+    def from_least_squares(
+        self, phi: np.ndarray, phi_b: np.ndarray, g_lsq: np.ndarray, out: np.ndarray | None = None
+    ) -> np.ndarray:
+        """The same gradient when the least-squares gradient ``g_lsq`` of ``phi`` (shape
+        phi.shape + (2,)) is already at hand: only the face-sum pass is done."""
+        phi, phi_b = _check_phi(phi, phi_b, self.n_cells, self.n_boundary_faces)
+        nc, nb = self.n_cells, self.n_boundary_faces
+        m = phi.reshape(nc, -1)
+        mb = phi_b.reshape(nb, -1)
+        gl = np.asarray(g_lsq, dtype=np.float64).reshape(nc, -1, 2)
+        res = np.empty((nc, m.shape[1], 2)) if out is None else out.reshape(nc, -1, 2)
+        tmp = np.empty((nc, 2))
+        for j in range(m.shape[1]):
+            _k.green_gauss_pass(
+                self._owner, self._neighbour, self._nfi, self._sf, self._w, self._skew, self._area,
+                np.ascontiguousarray(m[:, j]), np.ascontiguousarray(mb[:, j]), np.ascontiguousarray(gl[:, j, :]),
+                True, tmp,
+            )
+            res[:, j, :] = tmp
+        return res.reshape(phi.shape + (2,))
+
 
 def gradient_operator(mesh: Mesh, geom: Geometry, method: str = "least_squares", **options) -> _CellGradient:
     """A gradient operator by name: 'least_squares' (default), 'green_gauss' (option

@@ -20,15 +20,16 @@ FREESTREAM = 4
 
 @njit(cache=True)
 def assemble_momentum(
-    owner, neigh, n_int, S, dcoef, kvec, w, xf, xc, F, mu_f, u, gu, bkind, bvel, second_order,
+    owner, neigh, n_int, S, dcoef, kvec, w, xf, xc, F, mu_f, u, gu, gc, bkind, bvel, second_order,
     diag_u, diag_v, off_own, off_nei, bu, bv,
 ):
     """Coefficients of sum_f [F u_f - mu_f (grad u + grad u^T)_f . S_f] = 0 for both components.
 
     Implicit: first-order upwind convection and orthogonal diffusion. Explicit (deferred):
-    linear-upwind correction F (u_f^LUD - u_f^UD), non-orthogonal diffusion mu k . grad u_f and
-    the transpose-gradient stress mu (grad u)^T_f . S_f. ``off_own[f]`` multiplies u_N in row P,
-    ``off_nei[f]`` multiplies u_P in row N.
+    linear-upwind correction F (u_f^LUD - u_f^UD) = F gc_U . (x_f - x_U) with the upwind cell's
+    gradient ``gc`` (the solver passes the face-sum gradient, see ``SimpleSolver``), non-orthogonal
+    diffusion mu k . grad u_f and the transpose-gradient stress mu (grad u)^T_f . S_f with ``gu``.
+    ``off_own[f]`` multiplies u_N in row P, ``off_nei[f]`` multiplies u_P in row N.
     """
     nc = u.shape[0]
     nf = owner.shape[0]
@@ -66,8 +67,8 @@ def assemble_momentum(
             U = P if Ff >= 0.0 else N
             r0 = xf[f, 0] - xc[U, 0]
             r1 = xf[f, 1] - xc[U, 1]
-            su -= Ff * (gu[U, 0, 0] * r0 + gu[U, 0, 1] * r1)
-            sv -= Ff * (gu[U, 1, 0] * r0 + gu[U, 1, 1] * r1)
+            su -= Ff * (gc[U, 0, 0] * r0 + gc[U, 0, 1] * r1)
+            sv -= Ff * (gc[U, 1, 0] * r0 + gc[U, 1, 1] * r1)
         bu[P] += su
         bv[P] += sv
         bu[N] -= su
@@ -112,8 +113,8 @@ def assemble_momentum(
                 if second_order:
                     r0 = xf[f, 0] - xc[P, 0]
                     r1 = xf[f, 1] - xc[P, 1]
-                    bu[P] -= Ff * (gu[P, 0, 0] * r0 + gu[P, 0, 1] * r1)
-                    bv[P] -= Ff * (gu[P, 1, 0] * r0 + gu[P, 1, 1] * r1)
+                    bu[P] -= Ff * (gc[P, 0, 0] * r0 + gc[P, 0, 1] * r1)
+                    bv[P] -= Ff * (gc[P, 1, 0] * r0 + gc[P, 1, 1] * r1)
             elif kind == FREESTREAM:
                 bu[P] -= Ff * bvel[b, 0]
                 bv[P] -= Ff * bvel[b, 1]

@@ -31,7 +31,7 @@ import numpy as np
 
 from fvrans.errors import DivergenceError
 from fvrans.fv.assembly import CsrAssembler
-from fvrans.fv.gradient import QuadraticFit, gradient_operator
+from fvrans.fv.gradient import GaussLeastSquaresGradient, QuadraticFit, gradient_operator
 from fvrans.linalg.amg import AmgKrylovSolver
 from fvrans.linalg.pressure import PressureSolver
 from fvrans.mesh.geometry import Geometry
@@ -180,6 +180,21 @@ class SimpleSolver:
         self.asm_u = CsrAssembler(mesh)
         self.asm_v = CsrAssembler(mesh)
         self.grad = gradient_operator(mesh, geom, method=self.ctl.gradient.replace("-", "_"))
+        # The linear-upwind reconstruction u_P + grad u_P . (x_f - x_P) takes the face-sum gradient
+        # (Green-Gauss, face values moved to the face centre with the least-squares gradient): in a
+        # wall cell stretched along a curved wall, the least-squares fit resolves the along-wall
+        # derivative from the two short offsets (wall face, next cell out) whenever they are not
+        # collinear, so a change of u_P moves the extrapolated value on the long sides by up to
+        # ~120 times that change (wall cells of aspect ratio 250 and 26 deg non-orthogonality on
+        # the bump flank, tests/solve/test_bump_robustness.py) and the deferred correction runs
+        # away; in the face-sum form those offsets act only through their face areas (response
+        # below 2). The two gradients coincide on Cartesian graded meshes; both are exact for
+        # linear fields on any mesh.
+        self.grad_convection = (
+            GaussLeastSquaresGradient(mesh, geom)
+            if self.ctl.gradient.replace("_", "-") == "least-squares" and self.ctl.convection == "linear-upwind"
+            else None
+        )
         # the pressure force in conservative face-sum form (second order on irregular meshes)
         self.grad_pressure = gradient_operator(mesh, geom, method="gauss_least_squares")
         quadratic = self.ctl.quadratic_face_flux
@@ -227,6 +242,7 @@ class SimpleSolver:
         self.mu_cell = np.full(nc, self.mu)
         self.gu = np.zeros((nc, 2, 2))
         self.gpc = np.zeros((nc, 2))
+        self.gc = np.zeros((nc, 2, 2))
         self.grad_p_buf = (np.zeros((nc, 2)), np.zeros((nc, 2)))
         #: accumulated seconds per phase, see ``PHASES``
         self.timing = np.zeros(len(PHASES))
@@ -312,11 +328,13 @@ class SimpleSolver:
                             F_old, self.ub)
         t1 = time.perf_counter()
         gu = self.grad(u_old, self.ub, out=self.gu)
+        gc = gu if self.grad_convection is None else self.grad_convection.from_least_squares(
+            u_old, self.ub, gu, out=self.gc)
         hu = self.hu if self.hess is None else self.hess(u_old, self.ub, out=self.hu)
         t2 = time.perf_counter()
         K.assemble_momentum(
             self.owner, self.neigh, ni, self.S, self.dcoef, self.kvec, g.face_weight,
-            g.face_centre, g.cell_centre, F_old, self.muf, u_old, gu, kind,
+            g.face_centre, g.cell_centre, F_old, self.muf, u_old, gu, gc, kind,
             self.bc.velocity, ctl.convection == "linear-upwind",
             self.diag_u, self.diag_v, self.off_own, self.off_nei, self.bu, self.bv,
         )
