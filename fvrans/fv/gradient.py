@@ -125,15 +125,24 @@ class GaussLeastSquaresGradient(_CellGradient):
 
     Exact for linear fields on any mesh (the face values are exact and the midpoint rule is exact
     for linear integrands); used for the pressure force, where the face-sum form keeps the
-    discretisation second-order on irregular meshes.
+    discretisation second-order on irregular meshes. ``bounded_skew``: |x_f - x_ip| is cut to half
+    the face length where the owner-neighbour line meets the face line beyond the face (exactness
+    kept wherever it does not); the momentum equations' linear-upwind reconstruction uses that form.
     """
 
-    def __init__(self, mesh: Mesh, geom: Geometry):
+    def __init__(self, mesh: Mesh, geom: Geometry, bounded_skew: bool = False):
         super().__init__(mesh, geom)
         self._lsq = LeastSquaresGradient(mesh, geom)
         self._sf = geom.face_area_vector
         self._w = geom.face_weight
         self._skew = geom.face_skew
+        if bounded_skew:
+            # where the owner-neighbour line meets the face line beyond the face, move the value
+            # only to the face end: |x_f - x_ip| <= L_f / 2
+            length = np.linalg.norm(self._skew, axis=1)
+            half = 0.5 * geom.face_length
+            scale = np.where(length > half, half / np.maximum(length, 1e-300), 1.0)
+            self._skew = np.ascontiguousarray(self._skew * scale[:, None])
         self._area = geom.cell_area
         self._work = np.empty((mesh.n_cells, 2))
 
