@@ -9,6 +9,8 @@ first-order accurate (Syrakos et al. 2017, Phys. Fluids 29, 127103, sec. III).
 
 from __future__ import annotations
 
+import dataclasses
+
 import numpy as np
 import pytest
 from meshes_for_tests import MESH_KINDS, mesh_and_geometry
@@ -21,6 +23,7 @@ from fvrans.fv import (
     gradient_operator,
     interpolate_to_faces,
 )
+from fvrans.fv.gradient import GaussLeastSquaresGradient
 
 GX, GY = 2.5, -1.75
 
@@ -131,6 +134,24 @@ def test_face_sum_gradient_from_a_given_least_squares_gradient():
     assert res.shape == (m.n_cells, 2, 2) and np.shares_memory(res, out)
     assert np.allclose(res, op(u, ub), rtol=0, atol=1e-13)
     assert np.abs(res[:, 1] - [GX, GY]).max() < 1e-12
+
+
+def test_bounded_skew_acts_only_beyond_the_face():
+    """bounded_skew cuts |x_f - x_ip| to half the face length: no change where the owner-neighbour
+    line meets the face (here everywhere), a shorter shift where it meets the face line outside."""
+    m, g = mesh_and_geometry("perturbed_mixed", 6)
+    x, y = g.cell_centre.T
+    phi = smooth(x, y)
+    xb, yb = g.face_centre[m.n_internal_faces :].T
+    pb = smooth(xb, yb)
+    plain = gradient_operator(m, g, "gauss_least_squares")
+    bounded = GaussLeastSquaresGradient(m, g, bounded_skew=True)
+    assert np.array_equal(bounded(phi, pb), plain(phi, pb))
+    skew = g.face_skew.copy()
+    skew[0] = [3.0 * g.face_length[0], 0.0]  # an intersection point 3 face lengths away
+    shift = GaussLeastSquaresGradient(m, dataclasses.replace(g, face_skew=skew), bounded_skew=True)._skew
+    assert np.linalg.norm(shift[0]) == pytest.approx(0.5 * g.face_length[0], rel=1e-12)
+    assert np.array_equal(shift[1:], g.face_skew[1:])
 
 
 def test_face_interpolation_with_skew_correction_is_exact_for_linear_fields():
