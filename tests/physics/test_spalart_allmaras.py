@@ -221,8 +221,8 @@ def _power_law_run(n: int):
     fb = FlowBoundary(kind=kind, velocity=np.zeros((nb, 2)), pressure=np.zeros(nb), nut_ratio=ratio,
                       patch_kind={"bottom": "velocity-inlet", "top": "velocity-inlet", "sides": "symmetry"})
     yc = geom.cell_centre[:, 1]
-    model = SpalartAllmaras(mesh, geom, fb, rho=1.0, mu=nu, relax=1.0, wall_distance=yc, sweeps=400,
-                            sweep_tolerance=1e-12)
+    model = SpalartAllmaras(mesh, geom, fb, rho=1.0, mu=nu, relax=1.0, wall_distance=yc, linear_max_iterations=200,
+                            linear_tolerance=1e-12)
     fields = Fields.uniform(mesh.n_cells, mesh.n_faces)
     fields.nu_tilde = np.full(mesh.n_cells, 1.5)
     grad_u = np.zeros((mesh.n_cells, 2, 2))
