@@ -10,7 +10,10 @@ Modeling Resource, from memory), the corner-eddy extent and, at x = -4 H, the in
 medium to fine and between the mixed and the medium grid (acceptance: both below 3 %).
 
 Run:  python benchmarks/bench_step.py [--levels coarse medium mixed fine] [--fine-start medium]
-       [--tolerance 1e-6]
+       [--tolerance 1e-6] [--out DIR]
+``--out DIR`` writes each grid's result to DIR/<grid> (summary.json with the zero-shear points, wall
+tables, fields, the plots; the zero-shear lines on the Cf and Cp plots carry their x) and a map of
+the velocity near the step with streamlines, DIR/<grid>/plots/field_velocity_near_step.png.
 The fine grid (110 592 cells) is generated in memory. ``--fine-start medium`` starts it from the
 medium-grid result (each fine cell takes the value of the nearest medium cell centre; grid
 sequencing, to save machine time; the converged answer does not depend on the start), ``uniform``
@@ -30,6 +33,7 @@ from scipy.spatial import cKDTree
 import fvrans.api as fa
 from fvrans.errors import CaseError
 from fvrans.mesh.generate import step_family
+from fvrans.post.plots import field_figure, make_plots, save_figure
 from fvrans.post.separation import cell_column, layer_thickness, reattachment_x, streamwise_points
 from fvrans.solve.fields import Fields
 
@@ -37,10 +41,22 @@ ROOT = Path(__file__).resolve().parents[1]
 CASE = ROOT / "cases" / "step_medium.toml"
 RE_H = 36_000.0
 XR_EXP = 6.26  # Driver & Seegmiller (1985), from memory
+NEAR_STEP = (-2.0, 10.0, -1.0, 2.0)  # plot window (x0, x1, y0, y1) in step heights
+
+
+def write_result(r: fa.Result, out: Path) -> None:
+    """The result files and plots, plus the velocity near the step with streamlines."""
+    r.write(out)
+    make_plots(out)
+    ref = {"u_ref": r.case.output.reference_velocity, "rho": r.case.fluid.density, "l_ref": 1.0}
+    fig = field_figure(out / "fields.vtu", "velocity", title=f"{r.case.title}: near the step", reference=ref,
+                       streamlines=True, window=NEAR_STEP)
+    save_figure(fig, out / "plots" / "field_velocity_near_step.png")
 
 
 def problem_for(level: str, tolerance: float | None = None) -> fa.Problem:
     case = fa.load_case(CASE)
+    case = case.set("title", case.title.replace("(medium grid)", f"({level} grid)"))
     if tolerance is not None:
         case = case.set("solver.tolerance", tolerance)
     if level == "fine":
@@ -84,6 +100,7 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--levels", nargs="+", default=["coarse", "medium", "mixed"])
     ap.add_argument("--fine-start", choices=["uniform", "medium"], default="uniform")
     ap.add_argument("--tolerance", type=float, default=None)
+    ap.add_argument("--out", type=Path, default=None, help="write each grid's result and plots here")
     args = ap.parse_args(argv)
     levels = list(args.levels)
     if "fine" in levels and args.fine_start == "medium" and "medium" not in levels:
@@ -103,6 +120,8 @@ def main(argv: list[str] | None = None) -> int:
         print(f"{level:7s} {q['cells']:7d}  {q['start']:7s} {q['iterations']:6d} {int(q['converged']):4d} "
               f"{q['wall']:8.1f} {q['us']:10.2f}   {q['xr']:6.3f} {100 * (q['xr'] / XR_EXP - 1):+6.2f}%  "
               f"{q['corner']:6.3f} {q['d99']:6.3f} {q['re_theta']:8.0f}  {q['upper']}", flush=True)
+        if args.out is not None:
+            write_result(results[level], args.out / level)
     if "medium" in rows and "fine" in rows:
         print(f"x_r change medium -> fine: {100 * (rows['fine']['xr'] / rows['medium']['xr'] - 1):+.2f}%")
     if "medium" in rows and "mixed" in rows:
