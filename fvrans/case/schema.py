@@ -38,6 +38,7 @@ DEFAULT_PROFILE_COLUMNS = {"coordinate": "y", "u": "u", "v": "v", "nut_ratio": "
 DEFAULT_RELAX_PRESSURE = {"simple": 0.3, "simplec": 1.0}
 DEFAULT_RELAX_VELOCITY = {"simple": 0.7, "simplec": 0.95}
 MOMENTUM_SOLVERS = ("amg", "gauss-seidel")
+TURBULENCE_SOLVERS = ("amg", "gauss-seidel")
 #: text standing for a Python function in :meth:`Case.to_dict`
 CALLABLE_TEXT = "<python callable>"
 
@@ -129,7 +130,7 @@ class SolverSettings:
     tolerance: float = 1e-6
     relax_velocity: float | None = None
     relax_pressure: float | None = None
-    relax_turbulence: float = 0.8
+    relax_turbulence: float = 1.0
     convection: str = "linear-upwind"
     turbulence_convection: str = "upwind"
     gradient: str = "least-squares"
@@ -139,6 +140,9 @@ class SolverSettings:
     momentum_solver: str = "amg"
     momentum_max_iterations: int = 20
     momentum_sweeps: int = 5
+    turbulence_solver: str = "amg"
+    turbulence_tolerance: float = 0.01
+    turbulence_max_iterations: int = 20
     amg_rebuild_every: int = 20
     divergence_factor: float = 1e5
     checkpoint_every: int = 0
@@ -345,6 +349,9 @@ def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
             "pressure_tolerance": s.pressure_tolerance,
             "momentum_tolerance": s.momentum_tolerance,
             "momentum_sweeps": s.momentum_sweeps,
+            "turbulence_solver": s.turbulence_solver,
+            "turbulence_tolerance": s.turbulence_tolerance,
+            "turbulence_max_iterations": s.turbulence_max_iterations,
             "amg_rebuild_every": s.amg_rebuild_every,
             "divergence_factor": s.divergence_factor,
             "checkpoint_every": s.checkpoint_every,

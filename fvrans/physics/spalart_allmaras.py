@@ -19,8 +19,11 @@ selectable) with the mass-imbalance term removed from the diagonal; diffusion wi
 diffusivity rho (nu + nt f_n)_f / sigma (linear interpolation) and over-relaxed non-orthogonal
 correction; the cb2 term explicit; the cell source P - D linearised by Newton's rule with its
 derivative on the diagonal where negative (destruction implicit, production explicit where it
-dominates; see ``_sa_kernels.assemble_sources``); Patankar's implicit under-relaxation (``relax``);
-symmetric Gauss-Seidel sweeps.
+dominates; see ``_sa_kernels.assemble_sources``); Patankar's implicit under-relaxation (``relax``,
+1 = none by default: the linearised system is diagonally dominant without it, and relaxation pins
+stacks of thin cells to their old values); the linear system solved by BiCGStab with the reused
+AMG V-cycle of ``fvrans.linalg.amg`` to ``linear_tolerance`` (default), or by symmetric
+Gauss-Seidel sweeps (``linear_solver = "gauss-seidel"``; at most ``linear_max_iterations`` either way).
 
 Boundary values: nt = 0 on walls; nt = nut_ratio nu on velocity inlets and on freestream faces
 where the mass flux enters; zero normal gradient elsewhere (outlets, symmetry, freestream outflow).
@@ -40,6 +43,7 @@ from fvrans.fv.boundary import DIRICHLET, NEUMANN, BoundaryScalar, boundary_face
 from fvrans.fv.convection import convection_coefficients
 from fvrans.fv.diffusion import diffusion_coefficients
 from fvrans.fv.gradient import gradient_operator, limit_gradient
+from fvrans.linalg.amg import AmgKrylovSolver
 from fvrans.mesh.geometry import Geometry
 from fvrans.mesh.mesh import Mesh
 from fvrans.physics import _sa_kernels as K
@@ -54,6 +58,7 @@ CONSTANTS = {
     "cw3": K.CW3, "cv1": K.CV1, "ct3": K.CT3, "ct4": K.CT4, "cv2": K.CV2, "cv3": K.CV3, "cn1": K.CN1,
 }
 VARIANTS = ("standard", "no-ft2")
+LINEAR_SOLVERS = ("amg", "gauss-seidel")
 CONVECTION = ("upwind", "linear-upwind")
 
 
@@ -98,14 +103,16 @@ class SpalartAllmaras(EddyViscosityModel):
         rho: float,
         mu: float,
         variant: str = "standard",
-        relax: float = 0.8,
+        relax: float = 1.0,
         convection: str = "upwind",
         initial_nut_ratio: float = 3.0,
         wall_distance: np.ndarray | None = None,
         gradient: str = "least-squares",
         limiter: str = "none",
-        sweeps: int = 10,
-        sweep_tolerance: float = 0.05,
+        linear_solver: str = "amg",
+        linear_tolerance: float = 0.01,
+        linear_max_iterations: int = 20,
+        amg_rebuild_every: int = 20,
     ):
         if variant not in VARIANTS:
             raise CaseError(f"model.sa_variant = {variant!r} is not known; use one of {VARIANTS}")
@@ -113,6 +120,8 @@ class SpalartAllmaras(EddyViscosityModel):
             raise CaseError(f"solver.turbulence_convection = {convection!r} is not known; use one of {CONVECTION}")
         if not 0.0 < relax <= 1.0:
             raise CaseError(f"solver.relax_turbulence = {relax!r} must be in (0, 1]")
+        if linear_solver not in LINEAR_SOLVERS:
+            raise CaseError(f"solver.turbulence_solver = {linear_solver!r} is not known; use one of {LINEAR_SOLVERS}")
         self.mesh = mesh
         self.geom = geom
         self.bc_flow = boundary
@@ -124,8 +133,11 @@ class SpalartAllmaras(EddyViscosityModel):
         self.scheme = "linear_upwind" if convection == "linear-upwind" else "upwind"
         self.limiter = None if limiter in ("none", None) else limiter.replace("-", "_")
         self.initial_nut_ratio = float(initial_nut_ratio)
-        self.sweeps = int(sweeps)
-        self.sweep_tolerance = float(sweep_tolerance)
+        self.linear_solver = linear_solver
+        self.linear_tolerance = float(linear_tolerance)
+        self.linear_max_iterations = int(linear_max_iterations)
+        self.ksolver = AmgKrylovSolver("bicgstab", rtol=self.linear_tolerance, rebuild_every=int(amg_rebuild_every),
+                                       max_iterations=self.linear_max_iterations)
         nc, ni = mesh.n_cells, mesh.n_internal_faces
         if wall_distance is None:
             walls = [name for name, kind in boundary.patch_kind.items() if kind == "wall"]
@@ -164,7 +176,8 @@ class SpalartAllmaras(EddyViscosityModel):
         self.own_i = mesh.face_owner[:ni]
         self.nei_i = mesh.face_neighbour[:ni]
         self.w_i = geom.face_weight[:ni]
-        self.last_sweeps = 0
+        #: iterations (amg) or sweeps (gauss-seidel) of the last linear solve
+        self.last_iterations = 0
 
     # -- interface of the solver -----------------------------------------------------------
     def initial_nu_tilde(self) -> np.ndarray:
@@ -232,8 +245,11 @@ class SpalartAllmaras(EddyViscosityModel):
             )
         A = self.asm.matrix(co.diag, co.off_owner, co.off_neighbour)
         x = nt.copy()
-        self.last_sweeps, _, _ = gauss_seidel(A.indptr, A.indices, A.data, self.asm.diag_pos, co.source, x,
-                                              self.sweeps, self.sweep_tolerance)
+        if self.linear_solver == "amg":
+            self.last_iterations = self.ksolver.solve(A, co.source, x)
+        else:
+            self.last_iterations, _, _ = gauss_seidel(A.indptr, A.indices, A.data, self.asm.diag_pos, co.source, x,
+                                                      self.linear_max_iterations, self.linear_tolerance)
         fields.nu_tilde = x
         return [res]
 
@@ -248,6 +264,8 @@ def model_for_case(case, mesh: Mesh, geom: Geometry, boundary: FlowBoundary,
         mesh, geom, boundary, rho=case.fluid.density, mu=case.fluid.viscosity, variant=case.model.sa_variant,
         relax=s.relax_turbulence, convection=s.turbulence_convection, initial_nut_ratio=case.initial.nut_ratio,
         wall_distance=wall_distance, gradient=s.gradient, limiter=s.limiter,
+        linear_solver=s.turbulence_solver, linear_tolerance=s.turbulence_tolerance,
+        linear_max_iterations=s.turbulence_max_iterations, amg_rebuild_every=s.amg_rebuild_every,
     )
 
 

@@ -301,9 +301,15 @@ def wall_figure(
         lo, hi = min(lo, 0.0), max(hi, 0.0)
     pad = 0.06 * (hi - lo) if hi > lo else max(abs(hi), 1.0) * 0.1
     ax.set_ylim(lo - pad, hi + pad)
-    for k, z in enumerate(zero_shear):
-        ax.axvline(float(z) * scale, color="0.25", ls=":", lw=1.2, label=_ZERO_SHEAR_LABEL if k == 0 else None,
+    span = float(np.ptp(coord)) * scale if len(coord) else 1.0
+    last = -np.inf
+    for k, z in enumerate(sorted(float(v) for v in zero_shear)):
+        ax.axvline(z * scale, color="0.25", ls=":", lw=1.2, label=_ZERO_SHEAR_LABEL if k == 0 else None,
                    zorder=2)
+        if z * scale - last > 0.04 * span:  # its position written at the top, unless crowded
+            ax.annotate(f"{z * scale:.3g}", (z * scale, 1.0), xycoords=("data", "axes fraction"),
+                        xytext=(2, -10), textcoords="offset points", fontsize=8, color="0.25")
+            last = z * scale
     xlabel = _length_label("x" if along == "x" else "s (arc length along the wall)", l_ref)
     ax.set_xlabel(f"{xlabel}\n{clipped}" if clipped else xlabel)
     ax.set_ylabel(ylabel)

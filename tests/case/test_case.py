@@ -70,6 +70,9 @@ limiter = "venkatakrishnan"
 pressure_tolerance = 0.05
 momentum_tolerance = 0.2
 momentum_sweeps = 3
+turbulence_solver = "gauss-seidel"
+turbulence_tolerance = 0.02
+turbulence_max_iterations = 8
 amg_rebuild_every = 10
 divergence_factor = 1e4
 checkpoint_every = 50
@@ -106,7 +109,7 @@ def test_defaults_of_a_minimal_case(base):
     assert c.boundaries["walls"].velocity == (0.0, 0.0)  # resting wall by default
     s = c.solver
     assert (s.coupling, s.max_iterations, s.tolerance) == ("simplec", 5000, 1e-6)
-    assert (s.relax_velocity, s.relax_pressure, s.relax_turbulence) == (0.95, 1.0, 0.8)
+    assert (s.relax_velocity, s.relax_pressure, s.relax_turbulence) == (0.95, 1.0, 1.0)
     assert (s.momentum_solver, s.momentum_max_iterations) == ("amg", 20)
     assert (s.convection, s.turbulence_convection, s.gradient, s.limiter) == (
         "linear-upwind",
@@ -115,6 +118,7 @@ def test_defaults_of_a_minimal_case(base):
         "none",
     )
     assert (s.pressure_tolerance, s.momentum_tolerance, s.momentum_sweeps) == (0.01, 0.1, 5)
+    assert (s.turbulence_solver, s.turbulence_tolerance, s.turbulence_max_iterations) == ("amg", 0.01, 20)
     assert (s.amg_rebuild_every, s.divergence_factor, s.checkpoint_every) == (20, 1e5, 0)
     o = c.output
     assert o.wall_patches == ("lid", "walls")  # every wall patch by default
@@ -165,6 +169,8 @@ def test_full_case_file(full_case_file, tmp_path, monkeypatch):
     assert list(c.boundaries) == ["inlet", "outlet", "bottom", "top", "far field"]  # file order
     assert c.solver.coupling == "simple" and c.solver.relax_pressure == 0.3
     assert c.solver.limiter == "venkatakrishnan" and c.solver.checkpoint_every == 50
+    assert (c.solver.turbulence_solver, c.solver.turbulence_tolerance, c.solver.turbulence_max_iterations) == (
+        "gauss-seidel", 0.02, 8)
     assert c.output.wall_patches == ("bottom",) and c.output.write_fields is False
 
 
@@ -207,7 +213,7 @@ def test_round_trip_through_dict_and_toml(base, full_case_file):
         assert case_from_dict(tomllib.loads(c.to_toml())) == c
         assert tomllib.loads(c.to_toml()) == d  # to_dict is plain TOML data
         # every key is filled in: the solver and output tables are complete
-        assert len(d["solver"]) == 18 and len(d["output"]) == 5
+        assert len(d["solver"]) == 21 and len(d["output"]) == 5
         # equality is not trivial: a changed setting makes a different case
         assert c.set("solver.relax_velocity", 0.55) != c
 

@@ -188,6 +188,18 @@ CASES = {
         ["solver.momentum_tolerance", "(0, 1)"],
     ),
     "zero iterations": (_set("solver.max_iterations", 0), ["solver.max_iterations", ">= 1"]),
+    "turbulence tolerance of 1": (
+        _set("solver.turbulence_tolerance", 1.0),
+        ["solver.turbulence_tolerance", "(0, 1)"],
+    ),
+    "zero turbulence iterations": (
+        _set("solver.turbulence_max_iterations", 0),
+        ["solver.turbulence_max_iterations", ">= 1"],
+    ),
+    "unknown turbulence solver": (
+        _set("solver.turbulence_solver", "jacobi"),
+        ["solver.turbulence_solver", "gauss-seidel"],
+    ),
     "zero sweeps": (_set("solver.momentum_sweeps", 0), ["solver.momentum_sweeps", ">= 1"]),
     "zero AMG rebuild interval": (_set("solver.amg_rebuild_every", 0), ["solver.amg_rebuild_every", ">= 1"]),
     "divergence factor 1": (_set("solver.divergence_factor", 1.0), ["solver.divergence_factor", "> 1"]),

@@ -198,7 +198,7 @@ def _strip(n: int, y0: float, y1: float, width: float = 0.05):
     return mesh, compute_geometry(mesh)
 
 
-def _power_law_run(n: int):
+def _power_law_run(n: int, solver: str = "amg"):
     """Zero velocity, Omega = 0, nu -> 0, wall at y = 0 (outside the strip [1, 2]): the equation
     reduces to (1/sigma)[(nt nt')' + cb2 nt'^2] = cw1 f_w(10) (nt/y)^2 (r = 1/f_v2 > 10 is
     clipped; production ~ nu and f_t2 vanish), solved exactly by nt = A y^p with
@@ -221,8 +221,8 @@ def _power_law_run(n: int):
     fb = FlowBoundary(kind=kind, velocity=np.zeros((nb, 2)), pressure=np.zeros(nb), nut_ratio=ratio,
                       patch_kind={"bottom": "velocity-inlet", "top": "velocity-inlet", "sides": "symmetry"})
     yc = geom.cell_centre[:, 1]
-    model = SpalartAllmaras(mesh, geom, fb, rho=1.0, mu=nu, relax=1.0, wall_distance=yc, sweeps=400,
-                            sweep_tolerance=1e-12)
+    model = SpalartAllmaras(mesh, geom, fb, rho=1.0, mu=nu, relax=1.0, wall_distance=yc, linear_solver=solver,
+                            linear_max_iterations=400, linear_tolerance=1e-12)
     fields = Fields.uniform(mesh.n_cells, mesh.n_faces)
     fields.nu_tilde = np.full(mesh.n_cells, 1.5)
     grad_u = np.zeros((mesh.n_cells, 2, 2))
@@ -234,9 +234,10 @@ def _power_law_run(n: int):
     return fields.nu_tilde, A * yc**p, p
 
 
-def test_pure_diffusion_and_destruction_power_law():
-    nt32, exact32, p = _power_law_run(32)
-    nt64, exact64, _ = _power_law_run(64)
+@pytest.mark.parametrize("solver", ["amg", "gauss-seidel"])
+def test_pure_diffusion_and_destruction_power_law(solver):
+    nt32, exact32, p = _power_law_run(32, solver)
+    nt64, exact64, _ = _power_law_run(64, solver)
     assert p == pytest.approx(1.4898, abs=2e-4)  # worked by hand from the quadratic
     e32 = np.max(np.abs(nt32 / exact32 - 1))
     e64 = np.max(np.abs(nt64 / exact64 - 1))
