@@ -7,9 +7,40 @@ from typing import Any
 
 import numpy as np
 
+from fvrans.errors import CaseError
 from fvrans.post.residuals import HistoryLike
 from fvrans.post.wall import WallData, patch_forces, zero_shear_points
 from fvrans.post.writers import to_jsonable
+
+
+def summary_value(summary: Any, dotted: str, where: str, none_as_nan: bool = False) -> float:
+    """A number of a summary.json by dotted path (list entries by index, ``a.0.b``); ``where``
+    starts the error messages. A null (a non-finite number written by the run) is NaN with
+    ``none_as_nan``, an error otherwise.
+
+    >>> summary_value({"walls": {"w": {"forces": {"Cd": 0.5}}}}, "walls.w.forces.Cd", "s")
+    0.5
+    """
+    node = summary
+    done: list[str] = []
+    for part in dotted.split("."):
+        if isinstance(node, dict) and part in node:
+            node = node[part]
+        elif isinstance(node, list) and part.lstrip("-").isdigit() and -len(node) <= int(part) < len(node):
+            node = node[int(part)]
+        else:
+            at = ".".join(done) or "the top level"
+            if isinstance(node, dict):
+                have = ", ".join(sorted(map(str, node))) or "nothing"
+            else:
+                have = f"a {type(node).__name__}"
+            raise CaseError(f"{where}: no key {part!r} under {at}; there are: {have}")
+        done.append(part)
+    if node is None and none_as_nan:
+        return float("nan")
+    if isinstance(node, bool) or not isinstance(node, (int, float)):
+        raise CaseError(f"{where}: {dotted} is {node!r}, not a number")
+    return float(node)
 
 
 def wall_summary(

@@ -15,32 +15,8 @@ from typing import Any
 import numpy as np
 
 from fvrans.errors import CaseError
+from fvrans.post.summary import summary_value
 from fvrans.sweep.spec import Output
-
-
-def summary_value(summary: Any, dotted: str, where: str) -> float:
-    """A number of summary.json by dotted path (list entries by index, ``a.0.b``).
-
-    >>> summary_value({"walls": {"w": {"forces": {"Cd": 0.5}}}}, "walls.w.forces.Cd", "s")
-    0.5
-    """
-    node = summary
-    done: list[str] = []
-    for part in dotted.split("."):
-        if isinstance(node, dict) and part in node:
-            node = node[part]
-        elif isinstance(node, list) and part.lstrip("-").isdigit() and -len(node) <= int(part) < len(node):
-            node = node[int(part)]
-        else:
-            at = ".".join(done) or "the top level"
-            have = ", ".join(sorted(map(str, node))) if isinstance(node, dict) else f"a {type(node).__name__}"
-            raise CaseError(f"{where}: no {part!r} under {at}; there are: {have}")
-        done.append(part)
-    if node is None:
-        return math.nan  # a non-finite number (written as null)
-    if isinstance(node, bool) or not isinstance(node, (int, float)):
-        raise CaseError(f"{where}: {dotted} is {node!r}, not a number")
-    return float(node)
 
 
 def read_wall_table(path: Path) -> dict[str, np.ndarray]:
@@ -88,7 +64,7 @@ def collect_outputs(run_dir: str | Path, outputs: Sequence[Output]) -> tuple[dic
             if o.summary is not None:
                 if summary is None:
                     summary = json.loads((run / "summary.json").read_text(encoding="utf-8"))
-                v = summary_value(summary, o.summary, f"{where}: {run / 'summary.json'}")
+                v = summary_value(summary, o.summary, f"{where}: {run / 'summary.json'}", none_as_nan=True)
             else:
                 path = run / "wall" / f"{o.wall}.csv"
                 if o.wall not in walls:

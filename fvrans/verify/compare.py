@@ -24,6 +24,7 @@ from typing import Any
 import numpy as np
 
 from fvrans.errors import CaseError
+from fvrans.post.summary import summary_value
 from fvrans.verify.readers import FieldFile, Table, read_csv, read_field, read_table
 from fvrans.verify.spec import Item, Spec, Transform
 
@@ -102,23 +103,7 @@ class ResultDir:
 
     def scalar(self, dotted: str) -> float:
         """A number from summary.json by dotted path (list entries by index: ``a.0.b``)."""
-        node: Any = self.summary()
-        done: list[str] = []
-        for key in dotted.split("."):
-            if isinstance(node, dict):
-                if key not in node:
-                    have = ", ".join(sorted(map(str, node))) or "nothing"
-                    at = ".".join(done) or "the top level"
-                    raise CaseError(f"{self.path / 'summary.json'}: no key {key!r} under {at}; there are: {have}")
-                node = node[key]
-            elif isinstance(node, list) and key.lstrip("-").isdigit() and -len(node) <= int(key) < len(node):
-                node = node[int(key)]
-            else:
-                raise CaseError(f"{self.path / 'summary.json'}: {'.'.join(done)} has no entry {key!r}")
-            done.append(key)
-        if isinstance(node, bool) or not isinstance(node, (int, float)):
-            raise CaseError(f"{self.path / 'summary.json'}: {dotted} is {node!r}, not a number")
-        return float(node)
+        return summary_value(self.summary(), dotted, str(self.path / "summary.json"))
 
     def table(self, rel: str) -> Table:
         p = self.path / rel

@@ -13,8 +13,8 @@ import pytest
 import fvrans.api as fa
 from fvrans.case import load_case
 from fvrans.cli import main
+from fvrans.post.summary import summary_value
 from fvrans.sweep import Output, Parameter, Sweep, run_sweep
-from fvrans.sweep.collect import summary_value
 
 TIMEOUT = 300.0  # seconds; a hung cluster fails the test instead of the CI job
 HEIGHTS = [0.05, 0.1, 0.15, 0.2, 0.25, 0.3, 0.35, 0.4]
