@@ -55,6 +55,10 @@ DEFAULT_RELAX_VELOCITY = {"simplec": 0.95, "simple": 0.7}
 # on its boundaries or given as its initial field: a run that does is diverging, even while its
 # values are still finite (common practice: an order-of-magnitude guard, not a physical limit).
 RUNAWAY_SPEED = 1e3
+DIVERGENCE_ADVICE = (
+    "the last good state is kept — lower relax_velocity / relax_pressure, use convection = 'upwind' "
+    "to start, or check the boundary conditions and mesh"
+)
 
 
 @dataclass
@@ -455,9 +459,7 @@ class SimpleSolver:
                 self.fields = last_good
                 self.iteration = done
                 raise DivergenceError(
-                    f"the run diverged at iteration {done + 1} ({exc}); the last good state "
-                    "is kept — lower relax_velocity / relax_pressure, use convection = 'upwind' to "
-                    "start, or check the boundary conditions and mesh",
+                    f"the run diverged at iteration {done + 1} ({exc}); {DIVERGENCE_ADVICE}",
                     fields=last_good,
                     iteration=done,
                 ) from exc
@@ -479,8 +481,7 @@ class SimpleSolver:
                 raise DivergenceError(
                     f"the run diverged at iteration {self.iteration} ({bad}; residuals "
                     f"{', '.join(f'{n}={r:.3g}' for n, r in zip(self.history.names, res))}); "
-                    "the last good state is kept — lower relax_velocity / relax_pressure, use "
-                    "convection = 'upwind' to start, or check the boundary conditions and mesh",
+                    f"{DIVERGENCE_ADVICE}",
                     fields=last_good,
                     iteration=self.iteration - 1,
                 )
