@@ -299,7 +299,7 @@ def solve(
         solver.resume(ckpt.iteration, ckpt.history_rows, ckpt.history_seconds, ckpt.velocity_scale,
                       ckpt.pressure_gradient)
         log.info("%s: resuming at iteration %d from %s", c.label, ckpt.iteration, ckpt.source)
-    every = int(getattr(c.solver, "checkpoint_every", 0) or 0)
+    every = c.solver.checkpoint_every
     stopped = False
 
     def step(it: int, res: list[float]) -> bool:
