@@ -197,9 +197,11 @@ class SpalartAllmaras(EddyViscosityModel):
     def wall_eddy_viscosity(self) -> float:
         return 0.0  # nu_tilde = 0 on the wall
 
-    def update(self, fields: Fields, grad_u: np.ndarray) -> list[float]:
+    def update(self, fields: Fields, grad_u: np.ndarray, pseudo_time: np.ndarray | None = None) -> list[float]:
         """Assemble and solve the nu_tilde equation once with the new velocity gradient and the
-        corrected face fluxes; returns [scaled residual]."""
+        corrected face fluxes; returns [scaled residual]. ``pseudo_time``: rho V / dt per cell,
+        the loop's local pseudo-time term, added to the diagonal with its old-value source (it
+        vanishes at convergence)."""
         nt = np.ascontiguousarray(self._ensure(fields), dtype=np.float64)
         F = np.ascontiguousarray(fields.face_flux, dtype=np.float64)
         ni = self.ni
@@ -233,6 +235,9 @@ class SpalartAllmaras(EddyViscosityModel):
         A = self.asm.matrix(co.diag, co.off_owner, co.off_neighbour)
         res = scaled_residual(A, co.source, nt)
         under_relax(co, nt, self.relax)
+        if pseudo_time is not None:
+            co.diag += pseudo_time
+            co.source += pseudo_time * nt
         bad = np.flatnonzero(~(co.diag > 0.0))
         if len(bad):  # only a flow field that is already running away can do this
             c = int(bad[0])
