@@ -6,17 +6,25 @@ from __future__ import annotations
 
 import argparse
 import logging
+import shlex
 import sys
 from pathlib import Path
 
+from fvrans.case.load import OVERRIDE_RULE
 from fvrans.errors import FvransError
 
 log = logging.getLogger(__name__)
 
 
+#: the resolved case (every override applied, every default filled in) inside a result folder
+RESOLVED_CASE = "case.toml"
+
+
 def _cmd_run(args: argparse.Namespace) -> int:
     from fvrans import api
     from fvrans.checkpoint import CHECKPOINT_NAME, read_checkpoint
+    from fvrans.post.outputs import clear_previous_outputs, record_outputs
+    from fvrans.post.writers import atomic_write
     from fvrans.progress import RunProgress, StopRequest
 
     case = api.load_case(args.case)
@@ -32,6 +40,12 @@ def _cmd_run(args: argparse.Namespace) -> int:
     out = Path(args.out)
     out.mkdir(parents=True, exist_ok=True)
     checkpoint = out / CHECKPOINT_NAME
+    keep = [checkpoint] if restart is not None and Path(restart.source).resolve() == checkpoint.resolve() else []
+    removed = clear_previous_outputs(out, keep=keep)  # the input is good: the earlier run's files go now
+    if removed:
+        log.info("%s: removed the %d output files of the earlier run there", out, len(removed))
+    resolved = case.to_toml()
+    atomic_write(out / RESOLVED_CASE, lambda f: f.write(resolved))
     names = ["u", "v", "continuity"] + (["nu_tilde"] if case.turbulent else [])
     progress = RunProgress(names, case.solver.max_iterations, case.solver.tolerance,
                            first_iteration=restart.iteration if restart else 0, quiet=args.quiet)
@@ -47,34 +61,40 @@ def _cmd_run(args: argparse.Namespace) -> int:
     finally:
         stop.restore()
         progress.close()
+    again = " ".join(shlex.quote(str(a)) for a in ("fvrans", "run", out / RESOLVED_CASE, "--out", out,
+                                                    "--restart", out))
     if stop.signal_name is not None and result.interrupted:
-        result.message = (f"interrupted by {stop.signal_name} at iteration {result.iterations}; continue with: "
-                          f"fvrans run {args.case} --out DIR --restart {out}")
+        result.message = f"interrupted by {stop.signal_name} at iteration {result.iterations}; continue with: {again}"
         result.extra["summary"] = {"interrupted_by": stop.signal_name}
+    elif not result.converged and not result.diverged:
+        result.message += f"; continue with: {again} (--set solver.max_iterations=N for N more)"
+    written = [out / RESOLVED_CASE]
     if not result.converged or case.solver.checkpoint_every > 0 or checkpoint.exists():
-        result.write_checkpoint(checkpoint)
+        written.append(result.write_checkpoint(checkpoint))
     result.write(out)
+    written += [out / n for n in ("summary.json", "fields.vtu", "residuals.csv")]
+    written += [out / "wall" / f"{n}.csv" for n in result.walls()]
+    written += [out / "profiles" / f"{n}.csv" for n in case.probes]
     if not args.no_plots:
-        _plots(out)
+        written += _plots(out)
+    record_outputs(out, written)
     state = "converged" if result.converged else ("DIVERGED" if result.diverged else (
         "interrupted" if result.interrupted else "not converged"))
-    print(
-        f"{state} after {result.iterations} iterations in {result.wall_seconds:.1f} s; results in {out}",
-        file=sys.stderr,
-    )
+    print(f"{state} after {result.iterations} iterations in {result.wall_seconds:.1f} s; results in {out}")
     if result.message:
         print(result.message, file=sys.stderr)
     return 0 if result.converged else 1
 
 
-def _plots(out: Path) -> None:
+def _plots(out: Path) -> list[Path]:
     """Plots of a result folder; a failure to plot is reported but does not fail the run."""
     from fvrans.post.plots import make_plots
 
     try:
-        make_plots(out)
+        return make_plots(out)
     except Exception as exc:  # noqa: BLE001 - the results are written; plotting is a convenience
         log.warning("plots of %s could not be made: %s", out, exc)
+        return []
 
 
 def _cmd_plot(args: argparse.Namespace) -> int:
@@ -183,7 +203,7 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--out", required=True, help="output folder (created if missing)")
     r.add_argument(
         "--set", action="append", default=[], metavar="KEY=VALUE",
-        help="override a setting, value in TOML syntax, e.g. --set solver.max_iterations=200 (repeatable)",
+        help=f"override a setting (repeatable), e.g. --set solver.max_iterations=200: {OVERRIDE_RULE}",
     )
     r.add_argument("--quiet", action="store_true", help="no progress bar, only errors and the final line")
     r.add_argument("--restart", metavar="DIR",
@@ -226,7 +246,7 @@ def build_parser() -> argparse.ArgumentParser:
                    help="with --case: a generator family of fvrans.mesh.generate, e.g. flat_plate_family")
     g.add_argument("--levels", nargs="+", default=["coarse", "medium", "fine"], help="levels of --family")
     g.add_argument("--set", action="append", default=[], metavar="KEY=VALUE",
-                   help="with --case: override a setting on every grid (repeatable)")
+                   help=f"with --case: override a setting on every grid (repeatable); {OVERRIDE_RULE}")
     g.add_argument("--report", required=True, help="output folder")
     g.add_argument("--area", type=float, default=None, help="domain area for h = sqrt(area / N)")
     g.add_argument("--safety-factor", type=float, default=1.25, help="GCI safety factor (default 1.25)")

@@ -384,15 +384,16 @@ def grid_study_command(result_dirs: Sequence[str | os.PathLike], quantities: Seq
                        safety_factor: float = SAFETY_FACTOR_THREE_GRIDS, stream: Any = None) -> int:
     """``fvrans grid-study``: exit 0 when every quantity converges monotonically, 1 when any is
     oscillatory, divergent or undetermined, 2 for bad input."""
-    stream = stream if stream is not None else sys.stderr
+    out = stream if stream is not None else sys.stdout  # results to stdout, errors to stderr
+    err = stream if stream is not None else sys.stderr
     try:
         study = grid_study(result_dirs, quantities, area, safety_factor)
         write_grid_study(study, report_dir)
     except CaseError as exc:
-        print(f"error: {exc}", file=stream)
+        print(f"error: {exc}", file=err)
         return 2
     for name, gc in study.quantities.items():
         g = gc.finest
         print(f"{name}: p = {_fmt(g.p)}, extrapolated {_fmt(g.phi_ext21)}, GCI_fine = {_fmt(g.gci_fine21, True)} "
-              f"({g.behaviour})", file=stream)
+              f"({g.behaviour})", file=out)
     return 1 if any(gc.finest.flagged for gc in study.quantities.values()) else 0

@@ -138,22 +138,23 @@ def run_grid_study_command(case_path: str | os.PathLike, quantities: Sequence[st
     import fvrans.api as fa
     from fvrans.verify.gci import _fmt
 
-    stream = stream if stream is not None else sys.stderr
+    out = stream if stream is not None else sys.stdout  # results to stdout, progress and errors to stderr
+    err = stream if stream is not None else sys.stderr
     try:
         case = fa.load_case(case_path)
         if overrides:
             case = fa.apply_overrides(case, list(overrides))
         study = run_grid_study(case, quantities, report_dir, meshes=meshes, family=family, levels=levels,
-                               safety_factor=safety_factor, log=lambda m: print(m, file=stream, flush=True))
+                               safety_factor=safety_factor, log=lambda m: print(m, file=err, flush=True))
     except CaseError as exc:
-        print(f"error: {exc}", file=stream)
+        print(f"error: {exc}", file=err)
         return 2
     for name, gc in study.quantities.items():
         g = gc.finest
         print(f"{name}: p = {_fmt(g.p)}, extrapolated {_fmt(g.phi_ext21)}, GCI_fine = {_fmt(g.gci_fine21, True)} "
-              f"({g.behaviour})", file=stream)
-    print(f"report in {Path(report_dir) / 'grid_study.md'}", file=stream)
+              f"({g.behaviour})", file=out)
+    print(f"report in {Path(report_dir) / 'grid_study.md'}", file=out)
     bad_runs = [r["label"] for r in study.runs if not r["converged"]]
     if bad_runs:
-        print(f"not converged: {', '.join(bad_runs)} (the estimate assumes converged runs)", file=stream)
+        print(f"not converged: {', '.join(bad_runs)} (the estimate assumes converged runs)", file=out)
     return 1 if bad_runs or any(gc.finest.flagged for gc in study.quantities.values()) else 0
