@@ -172,7 +172,8 @@ def _cmd_grid_study(args: argparse.Namespace) -> int:
             print("error: --meshes, --family and --set need --case CASE.toml", file=sys.stderr)
             return 2
         return grid_study_command(
-            args.result_dirs, args.quantity, args.report, area=args.area, safety_factor=args.safety_factor
+            args.result_dirs, args.quantity, args.report, area=args.area, safety_factor=args.safety_factor,
+            formal_order=args.formal_order, gci_limit=args.gci_limit / 100.0,
         )
     if args.result_dirs or (args.meshes is None) == (args.family is None):
         print("error: with --case give the grids either as --meshes M1 M2 M3 or as --family NAME "
@@ -180,7 +181,8 @@ def _cmd_grid_study(args: argparse.Namespace) -> int:
         return 2
     return run_grid_study_command(
         args.case, args.quantity, args.report, meshes=args.meshes, family=args.family, levels=args.levels,
-        overrides=args.set, safety_factor=args.safety_factor,
+        overrides=args.set, safety_factor=args.safety_factor, formal_order=args.formal_order,
+        gci_limit=args.gci_limit / 100.0,
     )
 
 
@@ -250,6 +252,10 @@ def build_parser() -> argparse.ArgumentParser:
     g.add_argument("--report", required=True, help="output folder")
     g.add_argument("--area", type=float, default=None, help="domain area for h = sqrt(area / N)")
     g.add_argument("--safety-factor", type=float, default=1.25, help="GCI safety factor (default 1.25)")
+    g.add_argument("--formal-order", type=float, default=2.0,
+                   help="formal order of the scheme (default 2); an observed order below half of it is flagged")
+    g.add_argument("--gci-limit", type=float, default=10.0, metavar="PERCENT",
+                   help="a GCI_fine above this is flagged (default 10 %%, common practice)")
     g.set_defaults(func=_cmd_grid_study)
 
     s = sub.add_parser("sweep", help="run a parameter sweep (a spec file) and write a results table")
