@@ -116,6 +116,10 @@ def _cmd_info(args: argparse.Namespace) -> int:
         from fvrans.case import load_case
         from fvrans.case.build import build_case_mesh
 
+        spec = _spec_kind(path)
+        if spec is not None:
+            print(_spec_description(path, spec))
+            return 0
         case = load_case(path)
         print(f"# {case.label}: resolved settings (every default filled in)")
         print(case.to_toml())
@@ -147,14 +151,61 @@ def _cmd_cases(args: argparse.Namespace) -> int:
 
 
 def _spec_title(path: Path) -> str | None:
-    """'comparison spec: <title>' for a file 'fvrans compare' reads, None for anything else."""
-    from fvrans.verify import load_spec
+    """'comparison spec: <title>' or 'sweep spec: <title>' for a spec file, None for anything else."""
+    kind = _spec_kind(path)
+    if kind is None:
+        return None
+    try:
+        loaded = _load_spec(path, kind)
+    except FvransError as exc:
+        return f"{kind} spec (cannot be loaded: {exc})"
+    return f"{kind} spec: {loaded.title}"
+
+
+#: top-level tables that mark a spec file: comparison specs list [[item]], sweep specs [[parameter]]
+_SPEC_MARKS = {"comparison": ("item",), "sweep": ("parameter", "plan", "output")}
+
+
+def _spec_kind(path: Path) -> str | None:
+    """``"comparison"`` or ``"sweep"`` when the TOML file at ``path`` is a spec rather than a case
+    (told by its top-level tables), else None."""
+    from fvrans.case.load import read_toml
 
     try:
-        spec = load_spec(path)
+        data = read_toml(path)
     except FvransError:
         return None
-    return f"comparison spec: {spec.title}"
+    for kind, marks in _SPEC_MARKS.items():
+        if any(m in data for m in marks) and "mesh" not in data:
+            return kind
+    return None
+
+
+def _load_spec(path: Path, kind: str):
+    if kind == "comparison":
+        from fvrans.verify import load_spec
+
+        return load_spec(path)
+    from fvrans.sweep import load_sweep
+
+    return load_sweep(path)
+
+
+def _spec_description(path: Path, kind: str) -> str:
+    """What ``fvrans info`` says about a spec file: what it is, what it holds, which command takes it."""
+    spec = _load_spec(path, kind)
+    if kind == "comparison":
+        names = ", ".join(i.name for i in spec.items)
+        return (f"{path}: a comparison spec, not a case file: {spec.title or '(no title)'}; {len(spec.items)} "
+                f"item(s): {names}\ncompare a result folder with it: fvrans compare RESULT_DIR {path} --report OUT")
+    from fvrans.sweep import design_points
+
+    runs = len(design_points(spec))
+    params = ", ".join(p.name for p in spec.parameters)
+    base = spec.case if not hasattr(spec.case, "label") else spec.case.label
+    return (f"{path}: a sweep spec, not a case file: {spec.title or '(no title)'}; base case {base}; "
+            f"{runs} run(s) varying {params}; {len(spec.outputs)} output(s)\n"
+            f"run it with: fvrans sweep {path} --out DIR")
 
 
 def _cmd_compare(args: argparse.Namespace) -> int:

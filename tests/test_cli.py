@@ -5,6 +5,7 @@ from __future__ import annotations
 import csv
 import json
 import shlex
+from pathlib import Path
 
 import meshio
 import numpy as np
@@ -160,3 +161,22 @@ def test_a_reused_output_folder_loses_the_earlier_runs_files_and_keeps_the_users
                            "wall/walls.csv"])
     assert not (out / "profiles").exists()
     assert all(f.read_text() == "the user's own file" for f in mine)
+
+
+ROOT = Path(__file__).resolve().parents[1]
+
+
+@pytest.mark.parametrize("spec, words", [
+    ("flat_plate_checks.toml", ["a comparison spec, not a case file", "4 item(s)",
+                                "fvrans compare RESULT_DIR", "--report OUT"]),
+    ("sweeps/channel_speed_viscosity.toml", ["a sweep spec, not a case file", "8 run(s)",
+                                             "varying inlet_velocity, mu", "fvrans sweep", "--out DIR"]),
+])
+def test_info_recognises_spec_files(spec, words, capsys):
+    """Issue #12 item 10: info on a spec says what it is and which command takes it (it once
+    answered 'item: unknown key')."""
+    assert main(["info", str(ROOT / "cases" / spec)]) == 0
+    out = capsys.readouterr().out
+    for w in words:
+        assert w in out, out
+    assert "unknown key" not in out
