@@ -6,6 +6,7 @@ from __future__ import annotations
 
 import argparse
 import logging
+import os
 import shlex
 import sys
 from pathlib import Path
@@ -132,21 +133,42 @@ def _cmd_info(args: argparse.Namespace) -> int:
 
 
 def _cmd_cases(args: argparse.Namespace) -> int:
+    from fvrans.bundled import bundled_cases_dir
     from fvrans.case import load_case
 
-    folder = Path(args.dir)
+    folder = Path(args.dir) if args.dir is not None else bundled_cases_dir()
     files = sorted(folder.glob("*.toml"))
+    if args.dir is None:
+        files += sorted(folder.glob("*/*.toml"))
     if not files:
         print(f"no case files (*.toml) in {folder.resolve()}; pass the folder with --dir", file=sys.stderr)
         return 2
-    width = max(len(f.name) for f in files)
+    if args.dir is None:
+        print(f"# the bundled cases ({folder}); copy one to start from: fvrans copy-case NAME DIR", file=sys.stderr)
+    names = {f: f.relative_to(folder).as_posix() for f in files}
+    width = max(len(n) for n in names.values())
     for f in files:
         try:
             c = load_case(f)
             text = c.description or c.title
         except FvransError as exc:
             text = _spec_title(f) or f"(cannot be loaded: {exc})"
-        print(f"{f.name:<{width}}  {text}")
+        print(f"{names[f]:<{width}}  {text}")
+    return 0
+
+
+def _cmd_copy_case(args: argparse.Namespace) -> int:
+    from fvrans.bundled import copy_case
+
+    written = copy_case(args.name, args.dir, overwrite=args.overwrite)
+    for p in written:
+        print(p)
+    first, out = shlex.quote(str(written[0])), shlex.quote(str(Path(args.dir) / "run"))
+    kind = _spec_kind(written[0])
+    hint = {"comparison": f"compare a result folder with it: fvrans compare RESULT_DIR {first} --report OUT",
+            "sweep": f"run it with: fvrans sweep {first} --out {out}"}.get(kind or "",
+                                                                         f"run it with: fvrans run {first} --out {out}")
+    print(hint, file=sys.stderr)
     return 0
 
 
@@ -276,9 +298,15 @@ def build_parser() -> argparse.ArgumentParser:
     i.add_argument("path", help="mesh file (any format meshio reads) or case file (.toml)")
     i.set_defaults(func=_cmd_info)
 
-    c = sub.add_parser("cases", help="list the case files of a folder with their descriptions")
-    c.add_argument("--dir", default="cases", help="folder of case files (default: ./cases)")
+    c = sub.add_parser("cases", help="list the bundled case files (or those of a folder) with their descriptions")
+    c.add_argument("--dir", default=None, help="folder of case files (default: the cases bundled with fvrans)")
     c.set_defaults(func=_cmd_cases)
+    cc = sub.add_parser("copy-case", help="copy a bundled case with its mesh and the files it refers to into a "
+                                          "folder, to start from")
+    cc.add_argument("name", help="a bundled case or spec as 'fvrans cases' lists it, e.g. cavity_re100")
+    cc.add_argument("dir", help="folder to copy into (created if missing)")
+    cc.add_argument("--overwrite", action="store_true", help="replace files of the same name in DIR")
+    cc.set_defaults(func=_cmd_copy_case)
     k = sub.add_parser("compare", help="compare a result folder with reference data as a TOML spec describes")
     k.add_argument("result_dir", help="folder written by 'fvrans run'")
     k.add_argument("spec", help="comparison spec (TOML)")
@@ -370,6 +398,9 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("interrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:  # the reader went away (fvrans info ... | head): no traceback
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return 0
 
 
 if __name__ == "__main__":  # pragma: no cover
