@@ -24,6 +24,7 @@ RESOLVED_CASE = "case.toml"
 def _cmd_run(args: argparse.Namespace) -> int:
     from fvrans import api
     from fvrans.checkpoint import CHECKPOINT_NAME, read_checkpoint
+    from fvrans.jit import COMPILE_MESSAGE, CompileWatch
     from fvrans.post.outputs import clear_previous_outputs, record_outputs
     from fvrans.post.writers import atomic_write
     from fvrans.progress import RunProgress, StopRequest
@@ -31,7 +32,18 @@ def _cmd_run(args: argparse.Namespace) -> int:
     case = api.load_case(args.case)
     if args.set:
         case = api.apply_overrides(case, args.set)
-    problem = api.prepare(case)
+    progress: RunProgress | None = None
+
+    def compiling() -> None:  # once, when numba starts compiling (a cold cache)
+        if not args.quiet:
+            if progress is not None:
+                progress.note(COMPILE_MESSAGE)
+            else:
+                print(COMPILE_MESSAGE, file=sys.stderr, flush=True)
+
+    watch = CompileWatch(on_first=compiling)
+    with watch:
+        problem = api.prepare(case)
     log.info("%s: %d cells, %d faces, patches %s", case.label, problem.mesh.n_cells, problem.mesh.n_faces,
              ", ".join(problem.mesh.patch_names))
     restart = None
@@ -58,10 +70,14 @@ def _cmd_run(args: argparse.Namespace) -> int:
 
     stop.install()
     try:
-        result = api.solve(problem, callback=callback, restart=restart, checkpoint=checkpoint)
+        with watch:
+            result = api.solve(problem, callback=callback, restart=restart, checkpoint=checkpoint)
     finally:
         stop.restore()
         progress.close()
+    if watch.count:
+        log.info("compiled %d kernels in %.1f s (kept out of the solve time: summary.json's compile_seconds)",
+                 watch.count, watch.seconds)
     again = " ".join(shlex.quote(str(a)) for a in ("fvrans", "run", out / RESOLVED_CASE, "--out", out,
                                                     "--restart", out))
     if stop.signal_name is not None and result.interrupted:

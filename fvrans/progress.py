@@ -222,6 +222,16 @@ class RunProgress:
             self._write_line(iteration, residuals)
             self.t_last_line = now
 
+    def note(self, text: str) -> None:
+        """A message between progress lines (above the bar on a terminal); nothing when quiet."""
+        if self.quiet:
+            return
+        if self._bar is not None:
+            self._bar.console.print(text, highlight=False, markup=False)
+        else:
+            self.stream.write(text + "\n")
+            self.stream.flush()
+
     def _write_line(self, iteration: int, residuals: Sequence[float]) -> None:
         self.stream.write(self.line(iteration, residuals) + "\n")
         self.stream.flush()
