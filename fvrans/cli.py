@@ -46,6 +46,8 @@ def _cmd_run(args: argparse.Namespace) -> int:
         problem = api.prepare(case)
     log.info("%s: %d cells, %d faces, patches %s", case.label, problem.mesh.n_cells, problem.mesh.n_faces,
              ", ".join(problem.mesh.patch_names))
+    if log.isEnabledFor(logging.DEBUG):
+        _log_details(case, problem)
     restart = None
     if args.restart:
         restart = read_checkpoint(args.restart)
@@ -95,12 +97,35 @@ def _cmd_run(args: argparse.Namespace) -> int:
     if not args.no_plots:
         written += _plots(out)
     record_outputs(out, written)
+    log.debug("wrote %s", ", ".join(sorted(p.relative_to(out).as_posix() for p in written if p.is_file())))
+    log.debug("solve %.2f s, of which compiling kernels %.2f s", result.wall_seconds, result.compile_seconds)
     state = "converged" if result.converged else ("DIVERGED" if result.diverged else (
         "interrupted" if result.interrupted else "not converged"))
     print(f"{state} after {result.iterations} iterations in {result.wall_seconds:.1f} s; results in {out}")
     if result.message:
         print(result.message, file=sys.stderr)
     return 0 if result.converged else 1
+
+
+def _log_details(case, problem) -> None:
+    """What ``-v`` adds before a run: the boundary conditions, the model, the solver settings and
+    the mesh's quality figures."""
+    from fvrans.mesh.quality import mesh_quality
+
+    for name, b in case.boundaries.items():
+        keys = {k: v for k, v in vars(b).items() if v is not None and k != "kind"}
+        log.debug("boundary %s: %s %s", name, b.kind, keys or "")
+    log.debug("model: %s%s", case.model.turbulence,
+              f" ({case.model.sa_variant})" if case.turbulent else "")
+    s = case.solver
+    log.debug("solver: %s, relax u %g p %g turbulence %g, %s convection, %s gradient, limiter %s, tolerance %g, "
+              "at most %d iterations, momentum solver %s", s.coupling, s.relax_velocity, s.relax_pressure,
+              s.relax_turbulence, s.convection, s.gradient, s.limiter, s.tolerance, s.max_iterations,
+              s.momentum_solver)
+    q = mesh_quality(problem.mesh, problem.geom)
+    log.debug("mesh: %d triangles, %d quads, %d polygons; largest non-orthogonality %.1f deg, skewness %.3g, "
+              "aspect ratio %.3g%s", q.n_triangles, q.n_quads, q.n_polygons, q.max_nonorth_deg, q.max_skewness,
+              q.max_aspect_ratio, "".join(f"; warning: {w}" for w in q.warnings))
 
 
 def _plots(out: Path) -> list[Path]:

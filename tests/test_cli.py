@@ -180,3 +180,17 @@ def test_info_recognises_spec_files(spec, words, capsys):
     for w in words:
         assert w in out, out
     assert "unknown key" not in out
+
+
+def test_verbose_adds_visible_detail(case_file, tmp_path, capsys):
+    """Issue #12 item 15: -v shows the conditions, the solver settings, the mesh figures and the
+    files written; without it none of this appears."""
+    main(["run", str(case_file), "--out", str(tmp_path / "a"), "--quiet", "--no-plots",
+          "--set", "solver.max_iterations=2"])
+    plain = capsys.readouterr().err
+    main(["-v", "run", str(case_file), "--out", str(tmp_path / "b"), "--quiet", "--no-plots",
+          "--set", "solver.max_iterations=2"])
+    verbose = capsys.readouterr().err
+    for words in ("boundary inlet: inflow-velocity", "solver: simplec", "largest non-orthogonality",
+                  "wrote case.toml", "of which compiling kernels"):
+        assert words in verbose and words not in plain, words

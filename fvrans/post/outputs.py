@@ -75,8 +75,6 @@ def clear_previous_outputs(out_dir: str | os.PathLike, keep: Iterable[str | os.P
         d = out / sub
         if d.is_dir() and not d.is_symlink() and not any(d.iterdir()):
             d.rmdir()
-    if removed:
-        log.debug("removed %d outputs of the earlier run in %s", len(removed), out)
     return removed
 
 
