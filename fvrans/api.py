@@ -92,7 +92,7 @@ class Result:
     extra: dict[str, Any] = field(default_factory=dict)
     #: stopped on request (a callback returning True, Ctrl-C, SIGTERM) before converging
     interrupted: bool = False
-    #: velocity scale of the scaled residuals (kept in checkpoints)
+    #: velocity scale of the normalised imbalances (kept in checkpoints)
     velocity_scale: float = 1.0
     #: outer iteration the fields belong to (one less than ``iterations`` after a divergence)
     fields_iteration: int | None = None
@@ -122,7 +122,7 @@ class Result:
 
     @property
     def residuals(self) -> np.ndarray:
-        """Scaled residuals per iteration, columns named by ``history.names``."""
+        """Normalised imbalances per iteration, columns named by ``history.names``."""
         return self.history.as_array()
 
     # -- derived ----------------------------------------------------------------------------
@@ -187,7 +187,7 @@ class Result:
     # -- line probes ------------------------------------------------------------------------
     def sample_line(self, start: Any, end: Any, points: int = 101, name: str = "line") -> dict[str, np.ndarray]:
         """Fields along a segment: columns ``s`` (distance from start), ``x``, ``y``, ``u``, ``v``,
-        ``p`` and, with Spalart-Allmaras, ``nu_tilde`` and ``nut_ratio`` (from the sampled nu_tilde).
+        ``p`` and, with Spalart-Allmaras, ``nu_tilde`` and ``eddy_viscosity_ratio`` (from the sampled nu_tilde).
         Each value is the containing cell's value plus its gradient times the offset from the
         cell centroid (:func:`fvrans.post.probes.sample_line`)."""
         values = {"u": self.velocity[:, 0], "v": self.velocity[:, 1], "p": self.pressure}
@@ -199,7 +199,7 @@ class Result:
                            self.extra.get("gradients", {}), name=name)
         if "nu_tilde" in cols:
             nu = self.case.fluid.kinematic_viscosity
-            cols["nut_ratio"] = sa_eddy_viscosity(cols["nu_tilde"], nu) / nu
+            cols["eddy_viscosity_ratio"] = sa_eddy_viscosity(cols["nu_tilde"], nu) / nu
         return cols
 
     def probe(self, name: str) -> dict[str, np.ndarray]:
@@ -343,7 +343,7 @@ def solve(
         nu = c.fluid.kinematic_viscosity
         extra["cell_data"] = {
             "nu_tilde": nt,
-            "nut_ratio": sa_eddy_viscosity(nt, nu) / nu,
+            "eddy_viscosity_ratio": sa_eddy_viscosity(nt, nu) / nu,
             "wall_distance": model.wall_distance,
         }
     return Result(

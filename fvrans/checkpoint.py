@@ -2,7 +2,7 @@
 
 A checkpoint holds the :class:`~fvrans.solve.fields.Fields` (cell velocity and pressure, face
 mass fluxes, nu_tilde), the cell pressure gradient of the last iteration, the number of outer
-iterations done, the residual history so far, the velocity scale of the scaled residuals (so
+iterations done, the residual history so far, the velocity scale of the normalised imbalances (so
 the history continues on the same scale), and the identity of the problem: a SHA-256 of the
 mesh (points, cells, faces, patches) and the physical settings (fluid, model, boundary
 conditions). A restart with another mesh or other physics is refused with a message naming

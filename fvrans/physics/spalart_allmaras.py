@@ -25,10 +25,10 @@ stacks of thin cells to their old values); the linear system solved by BiCGStab 
 AMG V-cycle of ``fvrans.linalg.amg`` to ``linear_tolerance`` (default), or by symmetric
 Gauss-Seidel sweeps (``linear_solver = "gauss-seidel"``; at most ``linear_max_iterations`` either way).
 
-Boundary values: nt = 0 on walls; nt = nut_ratio nu on velocity inlets and on freestream faces
+Boundary values: nt = 0 on walls; nt = nu_tilde_ratio nu on velocity inlets and on freestream faces
 where the mass flux enters; zero normal gradient elsewhere (outlets, symmetry, freestream outflow).
 
-Scaled residual: sum_c |b - A nt|_c / (nt_scale sum_c a_P,c) of the unrelaxed linearised system at
+Normalised imbalance: sum_c |b - A nt|_c / (nt_scale sum_c a_P,c) of the unrelaxed linearised system at
 the current nt, with nt_scale = max(max_c |nt|, max inflow nt): the same form as the momentum
 residuals (sum |r| / (U sum a_P)).
 """
@@ -89,7 +89,7 @@ class SpalartAllmaras(EddyViscosityModel):
     """The SA model as seen by :class:`fvrans.solve.simple.SimpleSolver`.
 
     ``mu`` is the molecular dynamic viscosity (nu = mu / rho); ``wall_distance`` (n_cells,) is
-    computed from the wall patches when not given. ``initial_nut_ratio`` sets nu_tilde = ratio nu
+    computed from the wall patches when not given. ``initial_nu_tilde_ratio`` sets nu_tilde = ratio nu
     in a start without nu_tilde.
     """
 
@@ -105,7 +105,7 @@ class SpalartAllmaras(EddyViscosityModel):
         variant: str = "standard",
         relax: float = 1.0,
         convection: str = "upwind",
-        initial_nut_ratio: float = 3.0,
+        initial_nu_tilde_ratio: float = 3.0,
         wall_distance: np.ndarray | None = None,
         gradient: str = "least-squares",
         limiter: str = "none",
@@ -132,7 +132,7 @@ class SpalartAllmaras(EddyViscosityModel):
         self.relax = float(relax)
         self.scheme = "linear_upwind" if convection == "linear-upwind" else "upwind"
         self.limiter = None if limiter in ("none", None) else limiter.replace("-", "_")
-        self.initial_nut_ratio = float(initial_nut_ratio)
+        self.initial_nu_tilde_ratio = float(initial_nu_tilde_ratio)
         self.linear_solver = linear_solver
         self.linear_tolerance = float(linear_tolerance)
         self.linear_max_iterations = int(linear_max_iterations)
@@ -155,7 +155,7 @@ class SpalartAllmaras(EddyViscosityModel):
         self.wall_distance = d
         kind = boundary.kind
         self.kind = kind
-        self.inflow_value = self.nu * boundary.nut_ratio
+        self.inflow_value = self.nu * boundary.nu_tilde_ratio
         bkind = np.full(len(kind), NEUMANN, dtype=np.int8)
         bval = np.zeros(len(kind))
         bkind[kind == WALL] = DIRICHLET
@@ -181,7 +181,7 @@ class SpalartAllmaras(EddyViscosityModel):
 
     # -- interface of the solver -----------------------------------------------------------
     def initial_nu_tilde(self) -> np.ndarray:
-        return np.full(self.mesh.n_cells, self.initial_nut_ratio * self.nu)
+        return np.full(self.mesh.n_cells, self.initial_nu_tilde_ratio * self.nu)
 
     def _ensure(self, fields: Fields) -> np.ndarray:
         if fields.nu_tilde is None or fields.nu_tilde.shape != (self.mesh.n_cells,):
@@ -199,7 +199,7 @@ class SpalartAllmaras(EddyViscosityModel):
 
     def update(self, fields: Fields, grad_u: np.ndarray) -> list[float]:
         """Assemble and solve the nu_tilde equation once with the new velocity gradient and the
-        corrected face fluxes; returns [scaled residual]."""
+        corrected face fluxes; returns [normalised imbalance]."""
         nt = np.ascontiguousarray(self._ensure(fields), dtype=np.float64)
         F = np.ascontiguousarray(fields.face_flux, dtype=np.float64)
         ni = self.ni
@@ -262,7 +262,8 @@ def model_for_case(case, mesh: Mesh, geom: Geometry, boundary: FlowBoundary,
     s = case.solver
     return SpalartAllmaras(
         mesh, geom, boundary, rho=case.fluid.density, mu=case.fluid.viscosity, variant=case.model.sa_variant,
-        relax=s.relax_turbulence, convection=s.turbulence_convection, initial_nut_ratio=case.initial.nut_ratio,
+        relax=s.relax_turbulence, convection=s.turbulence_convection,
+        initial_nu_tilde_ratio=case.initial.nu_tilde_ratio,
         wall_distance=wall_distance, gradient=s.gradient, limiter=s.limiter,
         linear_solver=s.turbulence_solver, linear_tolerance=s.turbulence_tolerance,
         linear_max_iterations=s.turbulence_max_iterations, amg_rebuild_every=s.amg_rebuild_every,

@@ -118,7 +118,7 @@ class SolverControls:
 
 @dataclass
 class History:
-    """Scaled residuals per outer iteration (columns named in ``names``)."""
+    """Normalised imbalances per outer iteration (columns named in ``names``)."""
 
     names: list[str] = field(default_factory=lambda: ["u", "v", "continuity"])
     rows: list[list[float]] = field(default_factory=list)
@@ -141,7 +141,7 @@ class EddyViscosityModel:
         return 0.0
 
     def update(self, fields: Fields, grad_u: np.ndarray) -> list[float]:
-        """Advance the model equations one outer iteration; return their scaled residuals."""
+        """Advance the model equations one outer iteration; return their normalised imbalances."""
         return []
 
 
@@ -312,7 +312,7 @@ class SimpleSolver:
 
     # -- one outer iteration ---------------------------------------------------------------
     def iterate(self) -> list[float]:
-        """One SIMPLE(C) outer iteration; returns the scaled residuals [u, v, continuity, ...]."""
+        """One SIMPLE(C) outer iteration; returns the normalised imbalances [u, v, continuity, ...]."""
         fl = self.fields
         ctl = self.ctl
         rho = self.rho
@@ -437,7 +437,7 @@ class SimpleSolver:
         tolerance: float | None = None,
         callback: Callable[[int, list[float]], bool | None] | None = None,
     ) -> bool:
-        """Iterate until every scaled residual is below ``tolerance`` (True) or the limit (False).
+        """Iterate until every normalised imbalance is below ``tolerance`` (True) or the limit (False).
 
         NaN/Inf, a speed above ``RUNAWAY_SPEED`` times the velocity scale, a linear system that
         lost its diagonal, or growth of a residual by ``divergence_factor`` above its minimum
