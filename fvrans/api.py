@@ -49,6 +49,7 @@ from fvrans.post import (
     write_residuals_csv,
     write_vtu_atomic,
 )
+from fvrans.post.filenames import output_file
 from fvrans.post.probes import sample_line, write_probe_csv
 from fvrans.solve.fields import Fields
 from fvrans.solve.simple import History, SimpleSolver, SolverControls
@@ -168,20 +169,24 @@ class Result:
         into ``out_dir`` (each file atomically)."""
         out = Path(out_dir)
         out.mkdir(parents=True, exist_ok=True)
-        if self.case.output.write_fields:
-            write_vtu_atomic(out / "fields.vtu", self.mesh, self.cell_data())
         walls = self.walls()
+        # names from the mesh and the case become file names only through output_file
+        wall_files = {n: output_file(out, n, ".csv", subfolder="wall", what=f"wall patch {n!r}") for n in walls}
+        probe_files = {n: output_file(out, n, ".csv", subfolder="profiles", what=f"probe {n!r}")
+                       for n in self.case.probes}
+        if self.case.output.write_fields:
+            write_vtu_atomic(out / "fields.vtu", self.mesh, self.cell_data(), within=out)
         if walls:
             (out / "wall").mkdir(exist_ok=True)
         for name, w in walls.items():
             header, cols = wall_columns(w)
-            write_csv_atomic(out / "wall" / f"{name}.csv", header, cols)
-        write_residuals_csv(out / "residuals.csv", self.history)
+            write_csv_atomic(wall_files[name], header, cols, within=out)
+        write_residuals_csv(out / "residuals.csv", self.history, within=out)
         if self.case.probes:
             (out / "profiles").mkdir(exist_ok=True)
-        for name in self.case.probes:
-            write_probe_csv(out / "profiles" / f"{name}.csv", self.probe(name))
-        write_json_atomic(out / "summary.json", self.summary())
+        for name, path in probe_files.items():
+            write_probe_csv(path, self.probe(name), within=out)
+        write_json_atomic(out / "summary.json", self.summary(), within=out)
         return out
 
     # -- line probes ------------------------------------------------------------------------

@@ -52,8 +52,9 @@ def residual_columns(history: HistoryLike, first_iteration: int = 1) -> tuple[li
     return header, cols
 
 
-def write_residuals_csv(path: str | os.PathLike, history: HistoryLike, first_iteration: int = 1) -> None:
+def write_residuals_csv(path: str | os.PathLike, history: HistoryLike, first_iteration: int = 1,
+                        within: str | os.PathLike | None = None) -> None:
     """Write ``history`` to ``path`` (normally ``residuals.csv``) atomically; see
     :func:`residual_columns` for the columns."""
     header, cols = residual_columns(history, first_iteration)
-    write_csv_atomic(path, header, cols)
+    write_csv_atomic(path, header, cols, within=within)
