@@ -30,15 +30,18 @@ from typing import Any
 import numpy as np
 
 from fvrans.errors import DivergenceError
+from fvrans.fields import Fields
+from fvrans.fv import stress as stress_modes
 from fvrans.fv.assembly import CsrAssembler
 from fvrans.fv.gradient import GaussLeastSquaresGradient, QuadraticFit, gradient_operator
+from fvrans.fv.stress import StressDivergence
 from fvrans.linalg.amg import AmgKrylovSolver
 from fvrans.linalg.pressure import PressureSolver
 from fvrans.mesh.geometry import Geometry
 from fvrans.mesh.mesh import Mesh
+from fvrans.models.base import EddyViscosityModel, TurbulenceModel  # noqa: F401 (the interface's old home)
 from fvrans.physics.boundary import SYMMETRY, WALL, FlowBoundary
 from fvrans.solve import _kernels as K
-from fvrans.solve.fields import Fields
 
 log = logging.getLogger(__name__)
 
@@ -128,27 +131,12 @@ class History:
         return np.asarray(self.rows, dtype=float).reshape(-1, len(self.names))
 
 
-class EddyViscosityModel:
-    """Interface of a turbulence model seen by the loop (laminar flow: this class as is)."""
-
-    names: tuple[str, ...] = ()
-
-    def eddy_viscosity(self, fields: Fields) -> np.ndarray | None:
-        """mu_t per cell, or None for laminar flow."""
-        return None
-
-    def wall_eddy_viscosity(self) -> float:
-        return 0.0
-
-    def update(self, fields: Fields, grad_u: np.ndarray) -> list[float]:
-        """Advance the model equations one outer iteration; return their normalised imbalances."""
-        return []
-
-
 class SimpleSolver:
     """Steady incompressible solver (SIMPLE/SIMPLEC, Rhie-Chow) on a fixed mesh.
 
-    ``mu`` is the dynamic viscosity, ``rho`` the density. ``model`` supplies the eddy viscosity.
+    ``mu`` is the dynamic viscosity, ``rho`` the density. ``model`` (a
+    :class:`fvrans.models.base.TurbulenceModel`; laminar when None) supplies the eddy viscosity,
+    an optional explicit extra stress and its own equations, advanced once per outer iteration.
     """
 
     def __init__(
@@ -160,7 +148,7 @@ class SimpleSolver:
         mu: float,
         controls: SolverControls | None = None,
         fields: Fields | None = None,
-        model: EddyViscosityModel | None = None,
+        model: TurbulenceModel | None = None,
         body_force: Callable[[np.ndarray], np.ndarray] | np.ndarray | None = None,
     ):
         self.mesh = mesh
@@ -169,7 +157,7 @@ class SimpleSolver:
         self.rho = float(rho)
         self.mu = float(mu)
         self.ctl = controls or SolverControls()
-        self.model = model or EddyViscosityModel()
+        self.model = model if model is not None else TurbulenceModel()
         nc, nf, ni = mesh.n_cells, mesh.n_faces, mesh.n_internal_faces
         self.nc, self.nf, self.ni = nc, nf, ni
         # geometry for the kernels
@@ -265,6 +253,14 @@ class SimpleSolver:
         self.history = History(names=["u", "v", "continuity", *self.model.names])
         self.iteration = 0
         self.fields = fields.copy() if fields is not None else Fields.uniform(nc, nf)
+        self.model.initialise(self.fields)
+        # the explicit extra stress of the model (non-linear relations, injected stresses): its
+        # divergence is a momentum source; zero on walls, normal part only on symmetry planes
+        bmode = np.full(nf - ni, stress_modes.OWNER, dtype=np.int64)
+        bmode[boundary.kind == WALL] = stress_modes.ZERO
+        bmode[boundary.kind == SYMMETRY] = stress_modes.NORMAL
+        self.stress_divergence = StressDivergence(mesh, geom, bmode)
+        self.div_stress = np.zeros((nc, 2))
         if fields is None or not np.any(fields.face_flux):
             self.fields.face_flux = self._interpolated_fluxes(self.fields.velocity)
         self.grad_p = self.grad_pressure(self.fields.pressure, self._pressure_on_boundary(np.zeros((nc, 2))))
@@ -345,6 +341,12 @@ class SimpleSolver:
             self.bc.velocity, ctl.convection == "linear-upwind",
             self.diag_u, self.diag_v, self.off_own, self.off_nei, self.bu, self.bv,
         )
+        # the model's explicit extra stress T (beside 2 mu_t S): + sum_f T_f . S_f on the right
+        extra = self.model.extra_stress(fl, gu)
+        if extra is not None:
+            div = self.stress_divergence(extra, out=self.div_stress)
+            self.bu += div[:, 0]
+            self.bv += div[:, 1]
         # body force and pressure gradient (cell gradient, Rhie-Chow handles the coupling),
         # residuals of the current velocity, implicit under-relaxation (Patankar 1980, sec. 4.2-5)
         gp = self.grad_p
