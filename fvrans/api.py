@@ -94,7 +94,7 @@ class Result:
     extra: dict[str, Any] = field(default_factory=dict)
     #: stopped on request (a callback returning True, Ctrl-C, SIGTERM) before converging
     interrupted: bool = False
-    #: velocity scale of the normalised imbalances (kept in checkpoints)
+    #: velocity scale of the divergence guard (kept in checkpoints)
     velocity_scale: float = 1.0
     #: outer iteration the fields belong to (one less than ``iterations`` after a divergence)
     fields_iteration: int | None = None

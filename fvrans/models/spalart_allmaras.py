@@ -28,9 +28,8 @@ Gauss-Seidel sweeps (``linear_solver = "gauss-seidel"``; at most ``linear_max_it
 Boundary values: nt = 0 on walls; nt = nu_tilde_ratio nu on velocity inlets and on freestream faces
 where the mass flux enters; zero normal gradient elsewhere (outlets, symmetry, freestream outflow).
 
-Normalised imbalance: sum_c |b - A nt|_c / (nt_scale sum_c a_P,c) of the unrelaxed linearised system at
-the current nt, with nt_scale = max(max_c |nt|, max inflow nt): the same form as the momentum
-residuals (sum |r| / (U sum a_P)).
+Normalised imbalance: sum_c |b - A nt|_c / sum_c (|A| |nt| + |b|)_c of the unrelaxed linearised system at
+the current nt, the definition every equation of the loop uses (``fvrans.fv.residual``).
 """
 
 from __future__ import annotations
@@ -44,6 +43,7 @@ from fvrans.fv.boundary import DIRICHLET, NEUMANN, BoundaryScalar, boundary_face
 from fvrans.fv.convection import convection_coefficients
 from fvrans.fv.diffusion import diffusion_coefficients
 from fvrans.fv.gradient import gradient_operator, limit_gradient
+from fvrans.fv.residual import normalised_imbalance
 from fvrans.linalg._smoother_kernels import gauss_seidel
 from fvrans.linalg.amg import AmgKrylovSolver
 from fvrans.mesh.geometry import Geometry
@@ -237,9 +237,7 @@ class SpalartAllmaras(TurbulenceModel):
         K.assemble_sources(nt, self.nu, self.rho, self.geom.cell_area, self.wall_distance, gu, g,
                            self.use_ft2, co.diag, co.source)
         A = self.asm.matrix(co.diag, co.off_owner, co.off_neighbour)
-        r, a_sum = K.residual_sums(A.indptr, A.indices, A.data, self.asm.diag_pos, co.source, nt)
-        scale = max(float(np.max(np.abs(nt), initial=0.0)), float(np.max(self.inflow_value, initial=0.0)))
-        res = r / (scale * a_sum + 1e-300)
+        res = normalised_imbalance(A, co.source, nt)
         under_relax(co, nt, self.relax)
         bad = np.flatnonzero(~(co.diag > 0.0))
         if len(bad):  # only a flow field that is already running away can do this
