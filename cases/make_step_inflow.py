@@ -50,7 +50,7 @@ def column_profiles(result: fa.Result, x: float) -> tuple[np.ndarray, np.ndarray
     y = np.concatenate([[0.0], result.cell_centres[cells, 1]])
     u = np.concatenate([[0.0], result.velocity[cells, 0]])
     v = np.concatenate([[0.0], result.velocity[cells, 1]])
-    nt = np.concatenate([[0.0], result.fields.nu_tilde[cells] / nu])
+    nt = np.concatenate([[0.0], result.fields.variables["nu_tilde"][cells] / nu])
     return y, u, v, nt
 
 

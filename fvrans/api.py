@@ -31,15 +31,15 @@ from fvrans.case import Case, apply_overrides, case_from_dict, load_case
 from fvrans.case.build import build_case_mesh
 from fvrans.checkpoint import Checkpoint, read_checkpoint, write_checkpoint
 from fvrans.errors import CaseError, DivergenceError
-from fvrans.fv.boundary import boundary_face_values
+from fvrans.fields import Fields
 from fvrans.jit import CompileWatch
 from fvrans.mesh.geometry import Geometry, compute_geometry
 from fvrans.mesh.locate import CellLocator
 from fvrans.mesh.mesh import Mesh
 from fvrans.mesh.morph import topology_difference
+from fvrans.models import model_for_case, residual_names
+from fvrans.models.base import TurbulenceModel
 from fvrans.physics.boundary import FlowBoundary, build_flow_boundary
-from fvrans.physics.spalart_allmaras import eddy_viscosity as sa_eddy_viscosity
-from fvrans.physics.spalart_allmaras import model_for_case
 from fvrans.post import (
     WallData,
     all_wall_data,
@@ -50,13 +50,15 @@ from fvrans.post import (
     write_residuals_csv,
     write_vtu_atomic,
 )
+from fvrans.post.filenames import output_file
 from fvrans.post.probes import sample_line, write_probe_csv
-from fvrans.solve.fields import Fields
 from fvrans.solve.simple import History, SimpleSolver, SolverControls
 
 log = logging.getLogger(__name__)
 
-__all__ = ["Problem", "Result", "apply_overrides", "case_from_dict", "load_case", "prepare", "solve"]
+__all__ = [
+    "Problem", "Result", "apply_overrides", "case_from_dict", "load_case", "prepare", "residual_names", "solve",
+]
 
 
 @dataclass(frozen=True)
@@ -93,10 +95,12 @@ class Result:
     extra: dict[str, Any] = field(default_factory=dict)
     #: stopped on request (a callback returning True, Ctrl-C, SIGTERM) before converging
     interrupted: bool = False
-    #: velocity scale of the normalised imbalances (kept in checkpoints)
+    #: velocity scale of the divergence guard (kept in checkpoints)
     velocity_scale: float = 1.0
     #: outer iteration the fields belong to (one less than ``iterations`` after a divergence)
     fields_iteration: int | None = None
+    #: the turbulence model of the run (its outputs and probe columns); None: none recorded
+    model: TurbulenceModel | None = None
     #: seconds of ``wall_seconds`` spent compiling kernels (0 with a warm numba cache)
     compile_seconds: float = 0.0
 
@@ -173,38 +177,47 @@ class Result:
         into ``out_dir`` (each file atomically)."""
         out = Path(out_dir)
         out.mkdir(parents=True, exist_ok=True)
-        if self.case.output.write_fields:
-            write_vtu_atomic(out / "fields.vtu", self.mesh, self.cell_data())
         walls = self.walls()
+        # names from the mesh and the case become file names only through output_file
+        wall_files = {n: output_file(out, n, ".csv", subfolder="wall", what=f"wall patch {n!r}") for n in walls}
+        probe_files = {n: output_file(out, n, ".csv", subfolder="profiles", what=f"probe {n!r}")
+                       for n in self.case.probes}
+        if self.case.output.write_fields:
+            write_vtu_atomic(out / "fields.vtu", self.mesh, self.cell_data(), within=out)
         if walls:
             (out / "wall").mkdir(exist_ok=True)
         for name, w in walls.items():
             header, cols = wall_columns(w)
-            write_csv_atomic(out / "wall" / f"{name}.csv", header, cols)
-        write_residuals_csv(out / "residuals.csv", self.history)
+            write_csv_atomic(wall_files[name], header, cols, within=out)
+        write_residuals_csv(out / "residuals.csv", self.history, within=out)
         if self.case.probes:
             (out / "profiles").mkdir(exist_ok=True)
-        for name in self.case.probes:
-            write_probe_csv(out / "profiles" / f"{name}.csv", self.probe(name))
-        write_json_atomic(out / "summary.json", self.summary())
+        for name, path in probe_files.items():
+            write_probe_csv(path, self.probe(name), within=out)
+        write_json_atomic(out / "summary.json", self.summary(), within=out)
         return out
 
     # -- line probes ------------------------------------------------------------------------
     def sample_line(self, start: Any, end: Any, points: int = 101, name: str = "line") -> dict[str, np.ndarray]:
         """Fields along a segment: columns ``s`` (distance from start), ``x``, ``y``, ``u``, ``v``,
-        ``p`` and, with Spalart-Allmaras, ``nu_tilde`` and ``eddy_viscosity_ratio`` (from the sampled nu_tilde).
-        Each value is the containing cell's value plus its gradient times the offset from the
-        cell centroid (:func:`fvrans.post.probes.sample_line`)."""
+        ``p`` and the turbulence model's probe columns (Spalart-Allmaras: ``nu_tilde`` and
+        ``eddy_viscosity_ratio``, the latter from the sampled nu_tilde). Each value is the containing cell's
+        value plus its gradient times the offset from the cell centroid
+        (:func:`fvrans.post.probes.sample_line`)."""
         values = {"u": self.velocity[:, 0], "v": self.velocity[:, 1], "p": self.pressure}
-        if self.fields.nu_tilde is not None:
-            values["nu_tilde"] = self.fields.nu_tilde
+        gradients = dict(self.extra.get("gradients", {}))
+        if "probe_fields" not in self.extra and self.model is not None:
+            self.extra["probe_fields"] = self.model.probe_fields(self.fields)
+        for key, (v, g) in self.extra.get("probe_fields", {}).items():
+            values[key] = v
+            if g is not None:
+                gradients[key] = g
         if "locator" not in self.extra:
             self.extra["locator"] = CellLocator(self.mesh, centroids=self.problem.geom.cell_centre)
         cols = sample_line(self.extra["locator"], self.problem.geom.cell_centre, start, end, points, values,
-                           self.extra.get("gradients", {}), name=name)
-        if "nu_tilde" in cols:
-            nu = self.case.fluid.kinematic_viscosity
-            cols["eddy_viscosity_ratio"] = sa_eddy_viscosity(cols["nu_tilde"], nu) / nu
+                           gradients, name=name)
+        if self.model is not None:
+            cols.update(self.model.probe_columns(cols))
         return cols
 
     def probe(self, name: str) -> dict[str, np.ndarray]:
@@ -248,17 +261,12 @@ def _initial_fields(problem: Problem, initial: Result | Fields | None) -> Fields
     return fields.copy()
 
 
-def _gradients(solver: SimpleSolver, model: Any, grad_p: np.ndarray) -> dict[str, np.ndarray]:
-    """Cell gradients of u, v, p (and nu_tilde) of the final state, for probes."""
+def _gradients(solver: SimpleSolver, grad_p: np.ndarray) -> dict[str, np.ndarray]:
+    """Cell gradients of u, v, p of the final state, for probes."""
     f = solver.fields
     ub = solver._velocity_on_boundary(f.velocity, f.face_flux[solver.ni:])
     gu = solver.grad(np.ascontiguousarray(f.velocity, dtype=float), ub)
-    out = {"u": gu[:, 0, :].copy(), "v": gu[:, 1, :].copy(), "p": np.array(grad_p)}
-    if model is not None and f.nu_tilde is not None:
-        nt = np.ascontiguousarray(f.nu_tilde, dtype=float)
-        nt_b = boundary_face_values(model.mesh, model.geom, model.bc, nt, model.grad_nt)
-        out["nu_tilde"] = np.array(model.grad(nt, nt_b))
-    return out
+    return {"u": gu[:, 0, :].copy(), "v": gu[:, 1, :].copy(), "p": np.array(grad_p)}
 
 
 def solve(
@@ -344,18 +352,13 @@ def solve(
             f"not converged after {solver.iteration} iterations (tolerance {controls.tolerance:g}); "
             "raise solver.max_iterations or restart from this result"
         )
-    extra: dict[str, Any] = {"gradients": _gradients(solver, model, grad_p)}
-    if model is not None and solver.fields.nu_tilde is not None:
-        nt = solver.fields.nu_tilde
-        nu = c.fluid.kinematic_viscosity
-        extra["cell_data"] = {
-            "nu_tilde": nt,
-            "eddy_viscosity_ratio": sa_eddy_viscosity(nt, nu) / nu,
-            "wall_distance": model.wall_distance,
-        }
+    extra: dict[str, Any] = {
+        "gradients": _gradients(solver, grad_p),
+        "cell_data": model.cell_outputs(solver.fields),
+    }
     return Result(
         problem=problem, fields=solver.fields, history=solver.history, converged=bool(converged),
         iterations=solver.iteration, wall_seconds=seconds, grad_p=grad_p, message=message,
         diverged=diverged, extra=extra, interrupted=interrupted, velocity_scale=solver.u_scale,
-        fields_iteration=fields_iteration, compile_seconds=watch.seconds,
+        fields_iteration=fields_iteration, model=model, compile_seconds=watch.seconds,
     )

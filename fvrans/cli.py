@@ -25,6 +25,7 @@ def _cmd_run(args: argparse.Namespace) -> int:
     from fvrans import api
     from fvrans.checkpoint import CHECKPOINT_NAME, read_checkpoint
     from fvrans.jit import COMPILE_MESSAGE, CompileWatch
+    from fvrans.post.filenames import output_file
     from fvrans.post.outputs import clear_previous_outputs, record_outputs
     from fvrans.post.writers import atomic_write
     from fvrans.progress import RunProgress, StopRequest
@@ -61,7 +62,7 @@ def _cmd_run(args: argparse.Namespace) -> int:
         log.info("%s: removed the %d output files of the earlier run there", out, len(removed))
     resolved = case.to_toml()
     atomic_write(out / RESOLVED_CASE, lambda f: f.write(resolved))
-    names = ["u", "v", "continuity"] + (["nu_tilde"] if case.turbulent else [])
+    names = api.residual_names(case)
     progress = RunProgress(names, case.solver.max_iterations, case.solver.tolerance,
                            first_iteration=restart.iteration if restart else 0, quiet=args.quiet)
     stop = StopRequest()
@@ -92,8 +93,8 @@ def _cmd_run(args: argparse.Namespace) -> int:
         written.append(result.write_checkpoint(checkpoint))
     result.write(out)
     written += [out / n for n in ("summary.json", "fields.vtu", "residuals.csv")]
-    written += [out / "wall" / f"{n}.csv" for n in result.walls()]
-    written += [out / "profiles" / f"{n}.csv" for n in case.probes]
+    written += [output_file(out, n, ".csv", subfolder="wall") for n in result.walls()]  # as Result.write names them
+    written += [output_file(out, n, ".csv", subfolder="profiles") for n in case.probes]
     if not args.no_plots:
         written += _plots(out)
     record_outputs(out, written)

@@ -28,7 +28,7 @@ from matplotlib.figure import Figure
 from fvrans.errors import CaseError
 from fvrans.post._plot_data import FieldData, read_csv_columns, read_fields, read_summary
 from fvrans.post.residuals import RESIDUAL_LABEL, RESIDUAL_NORMALISATION
-from fvrans.post.writers import atomic_path
+from fvrans.post.writers import atomic_path, safe_file_name
 
 __all__ = [
     "DPI",
@@ -76,10 +76,11 @@ def new_figure(size: tuple[float, float] = FIGSIZE) -> Figure:
     return fig
 
 
-def save_figure(fig: Figure, path: str | os.PathLike) -> Path:
-    """Save ``fig`` as PNG atomically (temporary file in the same directory, then os.replace)."""
+def save_figure(fig: Figure, path: str | os.PathLike, within: str | os.PathLike | None = None) -> Path:
+    """Save ``fig`` as PNG atomically (temporary file in the same directory, then os.replace);
+    ``within``: the folder the file must lie in."""
     target = Path(path)
-    with atomic_path(target, suffix=".png") as tmp:
+    with atomic_path(target, suffix=".png", within=within) as tmp:
         fig.savefig(tmp, format="png", dpi=DPI)
     return target
 
@@ -770,7 +771,8 @@ def result_figures(
     l_ref = None  # x in the units of the case in every plot of a run, as in fvrans compare's overlays
     walls_info = summary.get("walls") if isinstance(summary.get("walls"), Mapping) else {}
     wall_files = sorted((rd / "wall").glob("*.csv")) if (rd / "wall").is_dir() else []
-    _check_references(references, [p.stem for p in wall_files], rd)
+    names = _patch_of_file(walls_info)
+    _check_references(references, [names.get(p.stem, p.stem) for p in wall_files], rd)
     profile_files = sorted((rd / "profiles").glob("*.csv")) if (rd / "profiles").is_dir() else []
     if window is None and summary.get("map_window") is not None:
         window = summary["map_window"]
@@ -785,6 +787,12 @@ def result_figures(
         )
     return _result_figures(rd, title, reference, l_ref, walls_info, wall_files, profile_files, have_res,
                            have_fields, references or {}, mesh_edges, streamlines, window)
+
+
+def _patch_of_file(walls_info: Mapping[str, Any]) -> dict[str, str]:
+    """File stem -> patch name of the walls of summary.json (a name mapped to a safe file name by
+    :func:`fvrans.post.filenames.safe_file_name` is shown as given)."""
+    return {safe_file_name(str(k)): str(k) for k in walls_info if str(k).strip()}
 
 
 def _check_window(window: Any, where: Path) -> tuple[float, float, float, float]:
@@ -805,8 +813,9 @@ def _result_figures(rd: Path, title: str | None, reference: Mapping[str, Any] | 
                     ) -> Iterator[tuple[str, Figure]]:
     if have_res:
         yield "residuals.png", residual_figure(rd / "residuals.csv", title=title)
+    names = _patch_of_file(walls_info)
     for wf in wall_files:
-        patch = wf.stem
+        patch = names.get(wf.stem, wf.stem)
         cols = read_csv_columns(wf)
         along = _choose_along(cols, "auto")
         info = walls_info.get(patch) if isinstance(walls_info.get(patch), Mapping) else {}
@@ -814,7 +823,7 @@ def _result_figures(rd: Path, title: str | None, reference: Mapping[str, Any] | 
         refs = {str(k).lower(): v for k, v in (references.get(patch) or {}).items()}
         for q in ("cf", "cp"):
             if q in cols:
-                yield f"wall_{patch}_{q}.png", wall_figure(
+                yield f"wall_{wf.stem}_{q}.png", wall_figure(
                     cols, q, title=title, patch=patch, zero_shear=zs, references=refs.get(q, ()), l_ref=l_ref,
                     along=along)
     if have_fields:
@@ -852,4 +861,4 @@ def make_plots(
     figures = result_figures(result_dir, references, mesh_edges=mesh_edges, streamlines=streamlines, window=window)
     out = Path(out_dir) if out_dir is not None else Path(result_dir) / "plots"
     out.mkdir(parents=True, exist_ok=True)
-    return [save_figure(fig, out / name) for name, fig in figures]
+    return [save_figure(fig, out / name, within=out) for name, fig in figures]

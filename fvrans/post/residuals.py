@@ -8,17 +8,14 @@ from typing import Protocol
 
 import numpy as np
 
+from fvrans.fv.residual import RESIDUAL_DESCRIPTION
 from fvrans.post.writers import write_csv_atomic
 
 #: what fvrans calls the per-equation convergence measure on plots and in messages; the one
 #: place that names it (a change of its definition in the solver updates RESIDUAL_NORMALISATION)
 RESIDUAL_LABEL = "normalised imbalance"
-#: how the solver normalises each equation's imbalance today (fvrans/solve/simple.py, iterate;
-#: fvrans/physics/spalart_allmaras.py, update); U_s is the largest imposed or initial speed
-RESIDUAL_NORMALISATION = (
-    "u, v: sum|b - A u| / (U_s sum a_P);  continuity: sum|net mass flux| / (rho U_s sum of half-perimeters);  "
-    "nu_tilde: sum|b - A nu_tilde| / (max nu_tilde sum a_P);  U_s = largest imposed or initial speed"
-)
+#: how every equation's imbalance is normalised (defined once in fvrans/fv/residual.py)
+RESIDUAL_NORMALISATION = RESIDUAL_DESCRIPTION
 
 
 class HistoryLike(Protocol):
@@ -52,8 +49,9 @@ def residual_columns(history: HistoryLike, first_iteration: int = 1) -> tuple[li
     return header, cols
 
 
-def write_residuals_csv(path: str | os.PathLike, history: HistoryLike, first_iteration: int = 1) -> None:
+def write_residuals_csv(path: str | os.PathLike, history: HistoryLike, first_iteration: int = 1,
+                        within: str | os.PathLike | None = None) -> None:
     """Write ``history`` to ``path`` (normally ``residuals.csv``) atomically; see
     :func:`residual_columns` for the columns."""
     header, cols = residual_columns(history, first_iteration)
-    write_csv_atomic(path, header, cols)
+    write_csv_atomic(path, header, cols, within=within)
