@@ -61,7 +61,7 @@ def _cmd_run(args: argparse.Namespace) -> int:
     if removed:
         log.info("%s: removed the %d output files of the earlier run there", out, len(removed))
     resolved = case.to_toml()
-    atomic_write(out / RESOLVED_CASE, lambda f: f.write(resolved))
+    atomic_write(out / RESOLVED_CASE, lambda f: f.write(resolved), within=out)
     names = api.residual_names(case)
     progress = RunProgress(names, case.solver.max_iterations, case.solver.tolerance,
                            first_iteration=restart.iteration if restart else 0, quiet=args.quiet)

@@ -42,7 +42,7 @@ def record_outputs(out_dir: str | os.PathLike, files: Iterable[str | os.PathLike
             names.append(rel.as_posix())
     names.append(OUTPUTS_LIST)
     target = out / OUTPUTS_LIST
-    write_json_atomic(target, {"written_by": f"fvrans {__version__}", "files": sorted(names)})
+    write_json_atomic(target, {"written_by": f"fvrans {__version__}", "files": sorted(names)}, within=out)
     return target
 
 
