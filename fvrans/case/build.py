@@ -180,7 +180,9 @@ def build_case_mesh(case: Case, check: bool = True) -> Mesh:
     if case.mesh.file is not None:
         from fvrans.mesh.io import read_mesh
 
-        mesh = read_mesh(case.mesh.file)
+        m = case.mesh
+        mesh = read_mesh(m.file, edge_tags=m.edge_tags, edge_tag_array=m.edge_tag_array, edge_boxes=m.edge_boxes,
+                         unnamed_edges=m.unnamed_edges)
     else:
         mesh = _generate(case)
     if case.mesh.renumber:
