@@ -80,9 +80,9 @@ def _suggest_condition(name: str) -> str:
     elif "sym" in low:
         body = 'kind = "symmetry"'
     elif "far" in low or "free" in low:
-        body = 'kind = "freestream"\nvelocity = [1.0, 0.0]   # the free-stream velocity'
+        body = 'kind = "outer-flow"\nvelocity = [1.0, 0.0]   # the free-stream velocity'
     else:
-        body = 'kind = "wall"   # or: inflow-velocity, outflow-pressure, symmetry, freestream'
+        body = 'kind = "wall"   # or: inflow-velocity, outflow-pressure, symmetry, outer-flow'
     lines = [f"[{format_key(('boundary', name))}]", *body.splitlines()]
     return "".join(f"  {line}\n" for line in lines)
 

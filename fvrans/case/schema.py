@@ -17,7 +17,7 @@ import numpy as np
 # -- allowed values ------------------------------------------------------------------------
 TURBULENCE_MODELS = ("none", "spalart-allmaras")
 SA_VARIANTS = ("standard", "no-ft2")
-BOUNDARY_KINDS = ("wall", "inflow-velocity", "outflow-pressure", "symmetry", "freestream")
+BOUNDARY_KINDS = ("wall", "inflow-velocity", "outflow-pressure", "symmetry", "outer-flow")
 COUPLINGS = ("simple", "simplec")
 CONVECTION_SCHEMES = ("upwind", "linear-upwind")
 GRADIENT_METHODS = ("least-squares", "green-gauss")
@@ -29,7 +29,7 @@ BOUNDARY_KEYS: dict[str, tuple[str, ...]] = {
     "inflow-velocity": ("kind", "velocity", "profile", "profile_columns", "nu_tilde_ratio"),
     "outflow-pressure": ("kind", "pressure"),
     "symmetry": ("kind",),
-    "freestream": ("kind", "velocity", "pressure", "nu_tilde_ratio"),
+    "outer-flow": ("kind", "velocity", "pressure", "nu_tilde_ratio"),
 }
 PROFILE_COLUMN_KEYS = ("coordinate", "u", "v", "nu_tilde_ratio")
 #: column names used when ``profile_columns`` does not name them

@@ -453,7 +453,7 @@ def _boundary(ctx: _Ctx, name: str, data: Any) -> S.BoundarySpec:
         return S.BoundarySpec(kind, pressure=t.number("pressure", 0.0))
     if kind == "symmetry":
         return S.BoundarySpec(kind)
-    if kind == "freestream":
+    if kind == "outer-flow":
         return S.BoundarySpec(
             kind,
             velocity=t.vector("velocity", hint="add velocity = [u, v], the free-stream velocity"),
