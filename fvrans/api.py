@@ -29,7 +29,7 @@ import numpy as np
 
 from fvrans.case import Case, apply_overrides, case_from_dict, load_case
 from fvrans.case.build import build_case_mesh
-from fvrans.checkpoint import Checkpoint, read_checkpoint, write_checkpoint
+from fvrans.checkpoint import CHECKPOINT_NAME, Checkpoint, read_checkpoint, write_checkpoint
 from fvrans.errors import CaseError, DivergenceError
 from fvrans.fv.boundary import boundary_face_values
 from fvrans.mesh.geometry import Geometry, compute_geometry
@@ -50,6 +50,7 @@ from fvrans.post import (
     write_vtu_atomic,
 )
 from fvrans.post.filenames import output_file
+from fvrans.post.outputs import output_set
 from fvrans.post.probes import sample_line, write_probe_csv
 from fvrans.solve.fields import Fields
 from fvrans.solve.simple import History, SimpleSolver, SolverControls
@@ -164,29 +165,34 @@ class Result:
         d.update(self.extra.get("cell_data", {}))
         return d
 
-    def write(self, out_dir: str | Path) -> Path:
-        """Write summary.json, fields.vtu, wall/<patch>.csv, residuals.csv and profiles/<probe>.csv
-        into ``out_dir`` (each file atomically)."""
+    def write(self, out_dir: str | Path, checkpoint: bool = False) -> Path:
+        """Write summary.json, fields.vtu, wall/<patch>.csv, residuals.csv, profiles/<probe>.csv
+        (and checkpoint.npz when ``checkpoint``) into ``out_dir`` as one set: written aside and
+        put in place together, replacing the previous set of fvrans outputs there
+        (:func:`fvrans.post.outputs.output_set`), so a reader never sees files of two runs."""
         out = Path(out_dir)
-        out.mkdir(parents=True, exist_ok=True)
         walls = self.walls()
-        # names from the mesh and the case become file names only through output_file
-        wall_files = {n: output_file(out, n, ".csv", subfolder="wall", what=f"wall patch {n!r}") for n in walls}
-        probe_files = {n: output_file(out, n, ".csv", subfolder="profiles", what=f"probe {n!r}")
-                       for n in self.case.probes}
-        if self.case.output.write_fields:
-            write_vtu_atomic(out / "fields.vtu", self.mesh, self.cell_data(), within=out)
-        if walls:
-            (out / "wall").mkdir(exist_ok=True)
-        for name, w in walls.items():
-            header, cols = wall_columns(w)
-            write_csv_atomic(wall_files[name], header, cols, within=out)
-        write_residuals_csv(out / "residuals.csv", self.history, within=out)
-        if self.case.probes:
-            (out / "profiles").mkdir(exist_ok=True)
-        for name, path in probe_files.items():
-            write_probe_csv(path, self.probe(name), within=out)
-        write_json_atomic(out / "summary.json", self.summary(), within=out)
+        summary = self.summary()
+        n = self.iterations if self.fields_iteration is None else self.fields_iteration
+        with output_set(out, iteration=n) as stage:
+            # names from the mesh and the case become file names only through output_file
+            if self.case.output.write_fields:
+                write_vtu_atomic(stage / "fields.vtu", self.mesh, self.cell_data(), within=stage)
+            if walls:
+                (stage / "wall").mkdir()
+            for name, w in walls.items():
+                header, cols = wall_columns(w)
+                path = output_file(stage, name, ".csv", subfolder="wall", what=f"wall patch {name!r}")
+                write_csv_atomic(path, header, cols, within=stage)
+            write_residuals_csv(stage / "residuals.csv", self.history, within=stage)
+            if self.case.probes:
+                (stage / "profiles").mkdir()
+            for name in self.case.probes:
+                path = output_file(stage, name, ".csv", subfolder="profiles", what=f"probe {name!r}")
+                write_probe_csv(path, self.probe(name), within=stage)
+            if checkpoint:
+                self.write_checkpoint(stage / CHECKPOINT_NAME)
+            write_json_atomic(stage / "summary.json", summary, within=stage)
         return out
 
     # -- line probes ------------------------------------------------------------------------

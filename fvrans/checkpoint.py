@@ -27,7 +27,9 @@ import numpy as np
 
 from fvrans.case import Case
 from fvrans.errors import CaseError
+from fvrans.files import input_file
 from fvrans.mesh.mesh import Mesh
+from fvrans.post.outputs import recover
 from fvrans.post.writers import atomic_write
 from fvrans.solve.fields import Fields
 
@@ -165,6 +167,7 @@ def read_checkpoint(path: str | os.PathLike) -> Checkpoint:
     not a checkpoint."""
     p = Path(path)
     if p.is_dir():
+        recover(p)  # a set of outputs half put in place by a killed run is finished first
         p = p / CHECKPOINT_NAME
         if not p.is_file():
             raise CaseError(
@@ -172,8 +175,9 @@ def read_checkpoint(path: str | os.PathLike) -> Checkpoint:
                 "solver.checkpoint_every > 0 or when it stops before converging — give the --out folder of "
                 "such a run"
             )
-    if not p.is_file():
+    if not p.exists():
         raise CaseError(f"{p}: no such checkpoint file; give a result folder or its {CHECKPOINT_NAME}")
+    input_file(p, "checkpoint")  # a regular file (a pipe would block np.load)
     try:
         with np.load(p, allow_pickle=False) as z:
             data = {k: z[k] for k in z.files}

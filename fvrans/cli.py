@@ -1,6 +1,7 @@
 """The command line: parses, calls the API, prints. Exit status 0 = done/converged,
 1 = ran but did not converge (or diverged; outputs of the last good state are written),
-2 = bad input (case, mesh or option)."""
+2 = bad input (case, mesh or option), 130 / 143 = stopped by SIGINT / SIGTERM before the
+command's work was done (see :mod:`fvrans.stop` and README)."""
 
 from __future__ import annotations
 
@@ -15,47 +16,61 @@ log = logging.getLogger(__name__)
 
 
 def _cmd_run(args: argparse.Namespace) -> int:
+    """``fvrans run``. Phases of a stop request (SIGINT, SIGTERM; :mod:`fvrans.stop`): during
+    start-up it ends the command at once (nothing written, status 128 + signal number); while
+    solving it stops the run after the current iteration (outputs written, status 1); while the
+    outputs are written it waits for them; while plotting it skips the remaining plots (the
+    status stays that of the run)."""
     from fvrans import api
     from fvrans.checkpoint import CHECKPOINT_NAME, read_checkpoint
-    from fvrans.progress import RunProgress, StopRequest
+    from fvrans.post.outputs import recover
+    from fvrans.progress import RunProgress
+    from fvrans.stop import StopRequest, active
 
+    stop = active() or StopRequest()  # main() installs it; without main, flags only
+    stop.enter("start-up")
     case = api.load_case(args.case)
     if args.set:
         case = api.apply_overrides(case, args.set)
     problem = api.prepare(case)
     log.info("%s: %d cells, %d faces, patches %s", case.label, problem.mesh.n_cells, problem.mesh.n_faces,
              ", ".join(problem.mesh.patch_names))
+    out = Path(args.out)
     restart = None
     if args.restart:
+        recover(args.restart)  # a set of outputs half put in place by a killed run is finished first
         restart = read_checkpoint(args.restart)
         restart.check_matches(case, problem.mesh)
-    out = Path(args.out)
-    out.mkdir(parents=True, exist_ok=True)
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise FvransError(f"cannot create the output folder {out}: {exc.strerror or exc}") from None
+    recover(out)
     checkpoint = out / CHECKPOINT_NAME
     names = ["u", "v", "continuity"] + (["nu_tilde"] if case.turbulent else [])
     progress = RunProgress(names, case.solver.max_iterations, case.solver.tolerance,
                            first_iteration=restart.iteration if restart else 0, quiet=args.quiet)
-    stop = StopRequest()
 
     def callback(it, res):
         progress(it, res)
         return stop(it, res)
 
-    stop.install()
     try:
+        stop.enter("solving")
         result = api.solve(problem, callback=callback, restart=restart, checkpoint=checkpoint)
+        stop.enter("writing")
     finally:
-        stop.restore()
         progress.close()
     if stop.signal_name is not None and result.interrupted:
         result.message = (f"interrupted by {stop.signal_name} at iteration {result.iterations}; continue with: "
                           f"fvrans run {args.case} --out DIR --restart {out}")
         result.extra["summary"] = {"interrupted_by": stop.signal_name}
-    if not result.converged or case.solver.checkpoint_every > 0 or checkpoint.exists():
-        result.write_checkpoint(checkpoint)
-    result.write(out)
+    keep_checkpoint = not result.converged or case.solver.checkpoint_every > 0 or checkpoint.exists()
+    result.write(out, checkpoint=keep_checkpoint)
+    plots_note = ""
     if not args.no_plots:
-        _plots(out)
+        stop.enter("plotting")
+        plots_note = _plots(out, stop.requested)
     state = "converged" if result.converged else ("DIVERGED" if result.diverged else (
         "interrupted" if result.interrupted else "not converged"))
     print(
@@ -64,17 +79,24 @@ def _cmd_run(args: argparse.Namespace) -> int:
     )
     if result.message:
         print(result.message, file=sys.stderr)
+    if stop.signal_name is not None and stop.signal_phase in ("writing", "plotting"):
+        print(f"{stop.signal_name} arrived while {stop.signal_phase}: the results were written whole{plots_note}",
+              file=sys.stderr)
     return 0 if result.converged else 1
 
 
-def _plots(out: Path) -> None:
-    """Plots of a result folder; a failure to plot is reported but does not fail the run."""
+def _plots(out: Path, should_stop=None) -> str:
+    """Plots of a result folder; a failure to plot is reported but does not fail the run. Returns
+    a note when a stop request cut the plots short."""
     from fvrans.post.plots import make_plots
 
     try:
-        make_plots(out)
+        make_plots(out, should_stop=should_stop)
     except Exception as exc:  # noqa: BLE001 - the results are written; plotting is a convenience
         log.warning("plots of %s could not be made: %s", out, exc)
+    if should_stop is not None and should_stop():
+        return f"; the plots were cut short (draw them with: fvrans plot {out})"
+    return ""
 
 
 def _cmd_plot(args: argparse.Namespace) -> int:
@@ -282,17 +304,27 @@ def _setup_logging(level: int) -> None:
 
 
 def main(argv: list[str] | None = None) -> int:
+    """Exit status: see the module docstring; a stop request (SIGINT, SIGTERM) that ends a command
+    before its work is done gives 128 + the signal number (130, 143), as a shell reports it."""
+    from fvrans.stop import Stopped, StopRequest
+
     args = build_parser().parse_args(argv)
     _setup_logging(logging.DEBUG if args.verbose else logging.WARNING if getattr(args, "quiet", False)
                    else logging.INFO)
+    stop = StopRequest("start-up").install()
     try:
         return int(args.func(args))
     except FvransError as exc:
         print(f"error: {exc}", file=sys.stderr)
         return 2
+    except Stopped as exc:
+        print(f"stopped by {exc.signal_name} during {exc.phase}; nothing more was written", file=sys.stderr)
+        return exc.exit_status
     except KeyboardInterrupt:
         print("interrupted", file=sys.stderr)
         return 130
+    finally:
+        stop.restore()
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -21,6 +21,7 @@ import numpy as np
 
 from fvrans.case import schema as S
 from fvrans.errors import CaseError
+from fvrans.files import MAX_NESTING, check_path_text, input_file, nesting_depth
 
 if sys.version_info >= (3, 11):
     import tomllib
@@ -271,19 +272,26 @@ def check_vector(v: Any, fail: Callable[[str], CaseError]) -> tuple[float, float
     return (out[0], out[1])
 
 
-def _check_path(ctx: _Ctx, path: tuple[str, ...], v: Any, what: str) -> Path:
+def _check_path(ctx: _Ctx, path: tuple[str, ...], v: Any, what: str, max_bytes: int | None = None) -> Path:
+    """An existing regular file (not a pipe or device; no NUL, overlong name or link loop)."""
     if isinstance(v, os.PathLike):
         v = os.fspath(v)
     if not isinstance(v, str) or not v.strip():
         raise ctx.error(path, f"must be a file path (a quoted string), got {describe(v)}")
-    p = Path(v).expanduser()
-    full = (p if p.is_absolute() else ctx.base / p).resolve()
-    if not full.exists():
+
+    def fail(msg: str) -> CaseError:
+        return ctx.error(path, msg)
+
+    p = check_path_text(v, fail, what).expanduser()
+    full = p if p.is_absolute() else ctx.base / p
+    try:
+        full = full.resolve()
+    except (OSError, RuntimeError):  # a symbolic-link loop: input_file names it
+        pass
+    if not full.exists() and not full.is_symlink():
         rel = "" if p.is_absolute() else f" (relative paths start from {ctx.base})"
         raise ctx.error(path, f"the {what} {full} does not exist{rel}; correct the path")
-    if full.is_dir():
-        raise ctx.error(path, f"{full} is a directory; give the {what} itself")
-    return full
+    return input_file(full, what, max_bytes=max_bytes, fail=fail)
 
 
 # ------------------------------------------------------------------------------------------
@@ -299,6 +307,9 @@ def case_from_dict(data: Mapping[str, Any], source: str | Path | None = None) ->
     src = Path(source) if source is not None else None
     ctx = _Ctx(str(src) if src is not None else "<in memory>",
                src.absolute().parent if src is not None else Path.cwd())
+    if nesting_depth(data) > MAX_NESTING:
+        raise ctx.error((), f"tables and lists are nested more than {MAX_NESTING} deep; a case nests a few levels "
+                        "(e.g. [boundary.inlet] with profile_columns = { ... })")
     top = _Table(ctx, (), data, TOP_KEYS, "the top level of a case")
     title = top.string("title", "")
     description = top.string("description", "")
@@ -442,7 +453,9 @@ def _inlet(ctx: _Ctx, t: _Table) -> S.BoundarySpec:
             velocity = t.vector("velocity")
         return S.BoundarySpec("velocity-inlet", velocity=velocity,
                               nut_ratio=t.number("nut_ratio", 3.0, NON_NEGATIVE, "the inflow nu_tilde / nu"))
-    profile = _check_path(ctx, t.path + ("profile",), t.data["profile"], "inlet profile file")
+    from fvrans.case.profile import MAX_PROFILE_BYTES
+
+    profile = _check_path(ctx, t.path + ("profile",), t.data["profile"], "inlet profile file", MAX_PROFILE_BYTES)
     given = t.table("profile_columns", {})
     _Table(ctx, t.path + ("profile_columns",), given, S.PROFILE_COLUMN_KEYS, "profile_columns")
     columns = resolve_profile(profile, given, lambda key, m: ctx.error(t.path + key, m))

@@ -29,6 +29,7 @@ import meshio
 import numpy as np
 
 from fvrans.errors import MeshError
+from fvrans.files import input_file
 from fvrans.mesh.mesh import Mesh, build_mesh
 
 log = logging.getLogger(__name__)
@@ -57,12 +58,8 @@ def read_mesh(path: str | Path, file_format: str | None = None) -> Mesh:
     ``file_format`` is a meshio format name (e.g. ``"gmsh"``, ``"vtu"``); by default the file
     suffix decides. Every problem is raised as :class:`MeshError` naming the file.
     """
-    p = Path(path)
+    p = input_file(path, "mesh file", MeshError)  # a regular file: no pipe, device, link loop
     src = str(p)
-    if not p.exists():
-        raise MeshError(f"{src}: file not found; check the path (working directory {Path.cwd()})")
-    if p.is_dir():
-        raise MeshError(f"{src}: is a directory, not a mesh file")
     if file_format is None and p.suffix.lower() == ".msh":
         file_format = "gmsh"  # meshio would try another format first and print its failure
     out = io.StringIO()

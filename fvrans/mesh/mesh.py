@@ -151,7 +151,7 @@ class Mesh:
             raise MeshError(f"{self.source}: a cell permutation must contain each cell index once")
         cells = [self.cell(c) for c in order]
         boundary = {p.name: self.face_points[p.start : p.stop] for p in self.patches}
-        return build_mesh(self.points, cells, boundary, source=self.source, quiet=True)
+        return build_mesh(self.points, cells, boundary, source=self.source, quiet=True, check_overlaps=False)
 
 
 # ----------------------------------------------------------------------------------------
@@ -203,8 +203,11 @@ def build_mesh(
     boundary: Mapping[str, object],
     source: str = "<in memory>",
     quiet: bool = False,
+    check_overlaps: bool = True,
 ) -> Mesh:
-    """Build faces, owners, neighbours and patches; check and repair the input (see Mesh)."""
+    """Build faces, owners, neighbours and patches; check and repair the input (see Mesh).
+    ``check_overlaps``: also refuse self-intersecting and overlapping cells
+    (:func:`fvrans.mesh.folds.check_folds`; skipped when the points are those of a checked mesh)."""
     notes: list[str] = []
     pts = np.asarray(points, dtype=np.float64)
     if pts.ndim != 2 or pts.shape[1] not in (2, 3):
@@ -417,7 +420,7 @@ def build_mesh(
     face_owner = np.ascontiguousarray(np.concatenate(owners).astype(np.int64))
     face_neighbour = np.full(len(face_owner), -1, dtype=np.int64)
     face_neighbour[:n_int] = neigh_i
-    return Mesh(
+    mesh = Mesh(
         points=pts,
         cell_offsets=np.ascontiguousarray(offsets.astype(np.int64)),
         cell_points=np.ascontiguousarray(flat.astype(np.int64)),
@@ -429,3 +432,8 @@ def build_mesh(
         source=source,
         notes=tuple(notes),
     )
+    if check_overlaps:
+        from fvrans.mesh.folds import check_folds
+
+        check_folds(mesh)
+    return mesh

@@ -27,6 +27,7 @@ from matplotlib.figure import Figure
 
 from fvrans.errors import CaseError
 from fvrans.post._plot_data import FieldData, read_csv_columns, read_fields, read_summary
+from fvrans.post.outputs import output_set, recover
 from fvrans.post.writers import atomic_path, safe_file_name
 
 __all__ = [
@@ -47,6 +48,8 @@ __all__ = [
 ]
 
 FIGSIZE = (7.0, 4.0)  # inches
+#: the sub-folder of a result folder that holds its plots
+PLOTS_DIR = "plots"
 #: field-map windows less high than this per unit width are drawn with y stretched
 THIN_WINDOW = 0.08
 DPI = 120
@@ -799,10 +802,31 @@ def make_plots(
     mesh_edges: bool = False,
     streamlines: bool = True,
     window: Sequence[float] | None = None,
+    should_stop: Callable[[], bool] | None = None,
 ) -> list[Path]:
-    """Save the figures of :func:`result_figures` as PNGs into ``out_dir`` (default
-    ``result_dir/plots``), each atomically; return the paths written."""
+    """Save the figures of :func:`result_figures` as PNGs into ``out_dir``, each atomically, and
+    return the paths written. By default into ``result_dir/plots`` as one set that replaces the
+    previous plots there when the last is drawn (:func:`fvrans.post.outputs.output_set`).
+    ``should_stop()``, asked before each figure, ends the drawing early (the figures drawn so far
+    are kept)."""
+    recover(result_dir)  # a set of outputs half put in place by a killed run is finished first
     figures = result_figures(result_dir, references, mesh_edges=mesh_edges, streamlines=streamlines, window=window)
-    out = Path(out_dir) if out_dir is not None else Path(result_dir) / "plots"
+    if out_dir is not None:
+        out = Path(out_dir)
+        out.mkdir(parents=True, exist_ok=True)
+        return _save_all(figures, out, should_stop)
+    rd = Path(result_dir)
+    with output_set(rd, scope=PLOTS_DIR) as stage:
+        saved = _save_all(figures, stage / PLOTS_DIR, should_stop)
+    return [rd / PLOTS_DIR / p.name for p in saved]
+
+
+def _save_all(figures: Iterator[tuple[str, Figure]], out: Path, should_stop: Callable[[], bool] | None) -> list[Path]:
     out.mkdir(parents=True, exist_ok=True)
-    return [save_figure(fig, out / name, within=out) for name, fig in figures]
+    saved = []
+    while should_stop is None or not should_stop():  # asked before each figure is drawn
+        item = next(figures, None)
+        if item is None:
+            break
+        saved.append(save_figure(item[1], out / item[0], within=out))
+    return saved
