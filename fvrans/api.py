@@ -23,6 +23,7 @@ import time
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
+from types import SimpleNamespace
 from typing import Any
 
 import numpy as np
@@ -184,7 +185,7 @@ class Result:
                 header, cols = wall_columns(w)
                 path = output_file(stage, name, ".csv", subfolder="wall", what=f"wall patch {name!r}")
                 write_csv_atomic(path, header, cols, within=stage)
-            write_residuals_csv(stage / "residuals.csv", self.history, within=stage)
+            write_residuals_csv(stage / "residuals.csv", self._finite_history(), within=stage)
             if self.case.probes:
                 (stage / "profiles").mkdir()
             for name in self.case.probes:
@@ -194,6 +195,16 @@ class Result:
                 self.write_checkpoint(stage / CHECKPOINT_NAME)
             write_json_atomic(stage / "summary.json", summary, within=stage)
         return out
+
+    def _finite_history(self) -> Any:
+        """The residual history without a diverged last iteration whose residuals are not finite
+        (the outputs hold the last good state; the message says how the run ended)."""
+        h = self.history
+        rows = h.rows
+        if self.diverged and rows and not np.all(np.isfinite(np.asarray(rows[-1], dtype=float))):
+            n = len(rows) - 1
+            return SimpleNamespace(names=h.names, rows=rows[:n], seconds=h.seconds[:n])
+        return h
 
     # -- line probes ------------------------------------------------------------------------
     def sample_line(self, start: Any, end: Any, points: int = 101, name: str = "line") -> dict[str, np.ndarray]:
@@ -267,6 +278,18 @@ def _gradients(solver: SimpleSolver, model: Any, grad_p: np.ndarray) -> dict[str
     return out
 
 
+def _last_good_gradient(solver: SimpleSolver, grad_p: np.ndarray) -> np.ndarray:
+    """The pressure gradient of the last good state after a divergence. The boundary pressures it
+    needs are extrapolated with a gradient: the diverged iteration's may be non-finite (a
+    divergence at iteration 1 leaves the initial state), so start from zero where it is not
+    finite and refine twice; a gradient that stays non-finite is zero (a uniform start)."""
+    p = solver.fields.pressure
+    g = np.where(np.isfinite(grad_p), grad_p, 0.0)
+    for _ in range(2):
+        g = np.array(solver.grad_pressure(p, solver._pressure_on_boundary(g)))
+    return g if np.all(np.isfinite(g)) else np.zeros_like(g)
+
+
 def solve(
     case: Case | Problem,
     initial: Result | Fields | None = None,
@@ -337,8 +360,8 @@ def solve(
         log.error("%s: %s", c.label, message)
     seconds = time.perf_counter() - t0
     grad_p = solver.grad_p
-    if diverged:  # the gradient of the last good pressure
-        grad_p = solver.grad_pressure(solver.fields.pressure, solver._pressure_on_boundary(grad_p))
+    if diverged:
+        grad_p = _last_good_gradient(solver, grad_p)
     interrupted = stopped and not converged
     if interrupted:
         message = (f"interrupted at iteration {solver.iteration} before converging; continue with "
@@ -348,7 +371,10 @@ def solve(
             f"not converged after {solver.iteration} iterations (tolerance {controls.tolerance:g}); "
             "raise solver.max_iterations or restart from this result"
         )
-    extra: dict[str, Any] = {"gradients": _gradients(solver, model, grad_p)}
+    gradients = _gradients(solver, model, grad_p)
+    if diverged:  # model gradients may still be those of the diverged iteration
+        gradients = {k: np.where(np.isfinite(v), v, 0.0) for k, v in gradients.items()}
+    extra: dict[str, Any] = {"gradients": gradients}
     if model is not None and solver.fields.nu_tilde is not None:
         nt = solver.fields.nu_tilde
         nu = c.fluid.kinematic_viscosity

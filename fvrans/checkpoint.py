@@ -58,6 +58,12 @@ class Checkpoint:
 
     def check_matches(self, case: Case, mesh: Mesh) -> None:
         """Raise CaseError unless ``case`` and ``mesh`` are the problem this checkpoint was made for."""
+        f = self.fields
+        if len(f.pressure) != mesh.n_cells or len(f.face_flux) != mesh.n_faces:
+            raise CaseError(
+                f"{self.source}: the checkpoint was written for another mesh: it holds {len(f.pressure)} cells and "
+                f"{len(f.face_flux)} faces, the mesh of {case.label} has {mesh.n_cells} and {mesh.n_faces}; restart "
+                "with the case (and mesh) of that run")
         if mesh_hash(mesh) != self.mesh_hash:
             raise CaseError(
                 f"{self.source}: the checkpoint was written for another mesh than the one of {case.label} "
@@ -188,22 +194,83 @@ def read_checkpoint(path: str | os.PathLike) -> Checkpoint:
     missing = [k for k in need if k not in data]
     if missing:
         raise CaseError(f"{p}: not an fvrans checkpoint (missing {', '.join(missing)})")
-    if int(data["format_version"]) != FORMAT_VERSION:
-        raise CaseError(f"{p}: checkpoint format {int(data['format_version'])}, this fvrans reads "
+    version = _scalar(data, "format_version", p, "iu")
+    if version != FORMAT_VERSION:
+        raise CaseError(f"{p}: checkpoint format {version}, this fvrans reads "
                         f"{FORMAT_VERSION}; restart with the fvrans version that wrote it")
-    names = [str(n) for n in data["history_names"].tolist()]
-    fields = Fields(data["velocity"], data["pressure"], data["face_flux"], data.get("nu_tilde"))
+    return _checked(data, p)
+
+
+#: the largest iteration count a checkpoint may hold
+MAX_ITERATION = 10**9
+
+
+def _scalar(data: dict[str, np.ndarray], key: str, p: Path, kinds: str) -> Any:
+    a = data[key]
+    if a.shape != () or a.dtype.kind not in kinds:
+        raise CaseError(f"{p}: not a valid checkpoint: {key} is an array of shape {a.shape} and type {a.dtype}, not a "
+                        "single value; restart from another checkpoint")
+    return a.item()
+
+
+def _checked(data: dict[str, np.ndarray], p: Path) -> Checkpoint:
+    """A Checkpoint from the arrays of a file, every shape, type and range checked (a hand-edited or
+    damaged file is refused with what is wrong, not a failure deep in the solver)."""
+
+    def bad(msg: str) -> CaseError:
+        return CaseError(f"{p}: not a valid checkpoint: {msg}; restart from another checkpoint or start afresh")
+
+    def numbers(key: str, shape: tuple, finite: bool = True) -> np.ndarray:
+        a = data[key]
+        if a.dtype.kind not in "fiu":
+            raise bad(f"{key} holds {a.dtype} values, not numbers")
+        if a.ndim != len(shape) or any(s is not None and s != n for s, n in zip(shape, a.shape)):
+            want = "(" + ", ".join("n" if s is None else str(s) for s in shape) + ")"
+            raise bad(f"{key} has shape {a.shape}, expected {want}")
+        a = a.astype(float)
+        if finite and not np.all(np.isfinite(a)):
+            raise bad(f"{key} holds non-finite values")
+        return a
+
+    velocity = numbers("velocity", (None, 2))
+    nc = len(velocity)
+    pressure = numbers("pressure", (nc,))
+    face_flux = numbers("face_flux", (None,))
+    nu_tilde = numbers("nu_tilde", (nc,)) if "nu_tilde" in data else None
+    grad_p = numbers("pressure_gradient", (nc, 2)) if "pressure_gradient" in data else None
+    iteration = _scalar(data, "iteration", p, "iu")
+    if not 0 <= iteration <= MAX_ITERATION:
+        raise bad(f"iteration {iteration} is outside 0..{MAX_ITERATION}")
+    names_a = data["history_names"]
+    if names_a.ndim != 1 or names_a.dtype.kind != "U" or not 1 <= len(names_a) <= 16:
+        raise bad(f"history_names has shape {names_a.shape} and type {names_a.dtype}, expected a few names")
+    names = [str(n) for n in names_a.tolist()]
+    rows = numbers("history_rows", (iteration, len(names)), finite=False) if data["history_rows"].ndim == 2 else None
+    if rows is None:
+        raise bad(f"history_rows has shape {data['history_rows'].shape}, expected ({iteration}, {len(names)})")
+    seconds = data["history_seconds"]
+    if seconds.dtype.kind not in "fiu" or seconds.shape != (iteration,):
+        raise bad(f"history_seconds has shape {seconds.shape}, expected ({iteration},)")
+    scale = _scalar(data, "velocity_scale", p, "fiu")
+    if not (np.isfinite(scale) and scale > 0):
+        raise bad(f"velocity_scale {scale!r} is not a positive finite number")
+    try:
+        physics = json.loads(str(_scalar(data, "physics", p, "U")))
+    except (ValueError, RecursionError):
+        raise bad("its physical settings are not readable JSON") from None
+    if not isinstance(physics, dict):
+        raise bad("its physical settings are not a table")
     return Checkpoint(
-        fields=fields,
-        iteration=int(data["iteration"]),
+        fields=Fields(velocity, pressure, face_flux, nu_tilde),
+        iteration=int(iteration),
         history_names=names,
-        history_rows=np.asarray(data["history_rows"], dtype=float).reshape(-1, len(names)),
-        history_seconds=np.asarray(data["history_seconds"], dtype=float),
-        velocity_scale=float(data["velocity_scale"]),
-        mesh_hash=str(data["mesh_hash"]),
-        physics=json.loads(str(data["physics"])),
+        history_rows=rows,
+        history_seconds=seconds.astype(float),
+        velocity_scale=float(scale),
+        mesh_hash=str(_scalar(data, "mesh_hash", p, "U")),
+        physics=physics,
         source=str(p),
-        pressure_gradient=data.get("pressure_gradient"),
+        pressure_gradient=grad_p,
     )
 
 

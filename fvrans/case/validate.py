@@ -62,6 +62,15 @@ UNIT: Rule = (lambda v: 0 < v <= 1, "in (0, 1]")
 OPEN_UNIT: Rule = (lambda v: 0 < v < 1, "in (0, 1)")
 ABOVE_ONE: Rule = (lambda v: v > 1, "> 1")
 AT_LEAST_ONE: Rule = (lambda v: v >= 1, ">= 1")
+#: largest magnitude of any number of a case: beyond it squares and products overflow floats
+MAX_MAGNITUDE = 1e30
+#: a positive physical property or reference value: between 1e-30 and 1e30 (so that products
+#: such as 1/2 rho U^2 L stay normal floats)
+PHYSICAL: Rule = (lambda v: 1e-30 <= v <= 1e30, "> 0 (between 1e-30 and 1e30)")
+#: largest magnitude of an integer of a case (iteration counts and the like)
+MAX_INTEGER = 10**15
+#: most sample points of a line probe
+MAX_PROBE_POINTS = 100_000
 
 
 # ------------------------------------------------------------------------------------------
@@ -228,9 +237,16 @@ def check_number(
             except ValueError:
                 pass
         raise fail(f"must be {need}, got {describe(v)}{extra}")
-    x = float(v)
+    try:
+        x = float(v)
+    except OverflowError:  # an integer beyond the float range
+        x = math.inf
     if not math.isfinite(x):
-        raise fail(f"must be a finite number, got {x!r}")
+        got = repr(float(v)) if isinstance(v, float) else f"an integer of {len(str(int(v)))} digits"
+        raise fail(f"must be a finite number, got {got}")
+    if abs(x) > MAX_MAGNITUDE:
+        raise fail(f"must be at most {MAX_MAGNITUDE:g} in magnitude, got {x!r}; give the value in units that keep "
+                   "it within that range")
     if rule and not rule[0](x):
         what = f" ({meaning})" if meaning else ""
         raise fail(f"must be {rule[1]}{what}, got {x!r}; give a value {rule[1]}")
@@ -250,6 +266,8 @@ def check_integer(
         n = int(float(v))
     else:
         raise fail(f"must be {need}, got {describe(v)}")
+    if abs(n) > MAX_INTEGER:
+        raise fail(f"must be {need} of at most {MAX_INTEGER:.0e} in magnitude, got {describe(v)[:40]}")
     if rule and not rule[0](n):
         what = f" ({meaning})" if meaning else ""
         raise fail(f"must be {rule[1]}{what}, got {n}; give an integer {rule[1]}")
@@ -321,9 +339,9 @@ def case_from_dict(data: Mapping[str, Any], source: str | Path | None = None) ->
         "add a [fluid] table with density = ... and viscosity = ... (dynamic viscosity)")),
         TABLE_KEYS["fluid"], "[fluid]")
     fluid = S.Fluid(
-        density=fluid_t.number("density", rule=POSITIVE, meaning="the fluid density",
+        density=fluid_t.number("density", rule=PHYSICAL, meaning="the fluid density",
                                hint="add density = <rho>, e.g. density = 1.0"),
-        viscosity=fluid_t.number("viscosity", rule=POSITIVE, meaning="the dynamic viscosity mu = rho nu",
+        viscosity=fluid_t.number("viscosity", rule=PHYSICAL, meaning="the dynamic viscosity mu = rho nu",
                                  hint="add viscosity = <dynamic viscosity mu>, e.g. viscosity = 0.01"),
     )
     model_t = _Table(ctx, ("model",), top.table("model", {}), TABLE_KEYS["model"], "[model]")
@@ -524,9 +542,9 @@ def _output(ctx: _Ctx, data: Any, boundaries: Mapping[str, S.BoundarySpec]) -> S
             names.append(n)
     return S.OutputSettings(
         wall_patches=tuple(names or walls),
-        reference_velocity=t.number("reference_velocity", 1.0, POSITIVE, "the velocity U in 1/2 rho U^2"),
+        reference_velocity=t.number("reference_velocity", 1.0, PHYSICAL, "the velocity U in 1/2 rho U^2"),
         reference_pressure=t.number("reference_pressure", 0.0),
-        reference_length=t.number("reference_length", 1.0, POSITIVE, "the length of force coefficients"),
+        reference_length=t.number("reference_length", 1.0, PHYSICAL, "the length of force coefficients"),
         write_fields=t.boolean("write_fields", True),
         map_window=_window(t),
     )
@@ -565,7 +583,8 @@ def _probes(ctx: _Ctx, data: Any) -> dict[str, S.ProbeLine]:
         end = t.vector("end", hint="add end = [x, y], the last point of the line")
         if start == end:
             raise t.fail("end", f"equals start {list(start)}; a line probe needs two different points")
-        points = t.integer("points", 101, (lambda v: v >= 2, ">= 2"), "the number of sample points")
+        points = t.integer("points", 101, (lambda v: 2 <= v <= MAX_PROBE_POINTS, f">= 2 and <= {MAX_PROBE_POINTS}"),
+                           "the number of sample points")
         out[name] = S.ProbeLine(start=start, end=end, points=points)
     return out
 

@@ -18,6 +18,9 @@ from fvrans.errors import MeshError
 
 log = logging.getLogger(__name__)
 
+#: largest coordinate magnitude of a point used by a cell (beyond it areas overflow floats)
+MAX_COORDINATE = 1e30
+
 
 @dataclass(frozen=True)
 class Patch:
@@ -241,11 +244,22 @@ def build_mesh(
             raise MeshError(f"{source}: patch {name!r} refers to a point index outside 0..{len(pts) - 1}")
         bnd_in[str(name)] = e
 
-    # -- merge duplicate points (exact, after rounding to a tolerance of the bounding box) --
-    span = float(np.ptp(pts, axis=0).max()) or 1.0
+    # -- merge duplicate points (exact, after rounding to a tolerance of the bounding box of the
+    # points the cells use: an unused far-away point neither sets the tolerance nor merges) --
+    in_cells = np.zeros(len(pts), dtype=bool)
+    in_cells[flat] = True
+    upts = pts[in_cells]
+    if np.abs(upts).max() > MAX_COORDINATE:
+        i = int(np.flatnonzero(in_cells & (np.abs(pts) > MAX_COORDINATE).any(axis=1))[0])
+        raise MeshError(f"{source}: point {i} at {_fmt_pt(pts, i)} lies beyond {MAX_COORDINATE:g}; give the "
+                        "coordinates in units that keep them within that range")
+    span = float(np.ptp(upts, axis=0).max()) or 1.0
     tol = 1e-12 * span
     # relative to the lower-left corner, so far-from-origin coordinates cannot overflow int64
-    keys = np.round((pts - pts.min(axis=0)) / tol).astype(np.int64)
+    keys = np.empty((len(pts), 2), dtype=np.int64)
+    keys[in_cells] = np.round((upts - upts.min(axis=0)) / tol).astype(np.int64)
+    keys[~in_cells, 0] = -1 - np.arange(int((~in_cells).sum()))  # unused points: never merged
+    keys[~in_cells, 1] = 0
     _, first, inverse = np.unique(keys, axis=0, return_index=True, return_inverse=True)
     inverse = inverse.ravel()
     if len(first) < len(pts):
