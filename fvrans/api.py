@@ -32,14 +32,14 @@ from fvrans.case import Case, apply_overrides, case_from_dict, load_case
 from fvrans.case.build import build_case_mesh
 from fvrans.checkpoint import CHECKPOINT_NAME, Checkpoint, read_checkpoint, write_checkpoint
 from fvrans.errors import CaseError, DivergenceError
-from fvrans.fv.boundary import boundary_face_values
+from fvrans.fields import Fields
 from fvrans.mesh.geometry import Geometry, compute_geometry
 from fvrans.mesh.locate import CellLocator
 from fvrans.mesh.mesh import Mesh
 from fvrans.mesh.morph import topology_difference
+from fvrans.models import model_for_case, residual_names
+from fvrans.models.base import TurbulenceModel
 from fvrans.physics.boundary import FlowBoundary, build_flow_boundary
-from fvrans.physics.spalart_allmaras import eddy_viscosity as sa_eddy_viscosity
-from fvrans.physics.spalart_allmaras import model_for_case
 from fvrans.post import (
     WallData,
     all_wall_data,
@@ -53,12 +53,13 @@ from fvrans.post import (
 from fvrans.post.filenames import output_file
 from fvrans.post.outputs import output_set
 from fvrans.post.probes import sample_line, write_probe_csv
-from fvrans.solve.fields import Fields
 from fvrans.solve.simple import History, SimpleSolver, SolverControls
 
 log = logging.getLogger(__name__)
 
-__all__ = ["Problem", "Result", "apply_overrides", "case_from_dict", "load_case", "prepare", "solve"]
+__all__ = [
+    "Problem", "Result", "apply_overrides", "case_from_dict", "load_case", "prepare", "residual_names", "solve",
+]
 
 
 @dataclass(frozen=True)
@@ -95,10 +96,12 @@ class Result:
     extra: dict[str, Any] = field(default_factory=dict)
     #: stopped on request (a callback returning True, Ctrl-C, SIGTERM) before converging
     interrupted: bool = False
-    #: velocity scale of the scaled residuals (kept in checkpoints)
+    #: velocity scale of the divergence guard (kept in checkpoints)
     velocity_scale: float = 1.0
     #: outer iteration the fields belong to (one less than ``iterations`` after a divergence)
     fields_iteration: int | None = None
+    #: the turbulence model of the run (its outputs and probe columns); None: none recorded
+    model: TurbulenceModel | None = None
 
     # -- arrays -----------------------------------------------------------------------------
     @property
@@ -125,7 +128,7 @@ class Result:
 
     @property
     def residuals(self) -> np.ndarray:
-        """Scaled residuals per iteration, columns named by ``history.names``."""
+        """Normalised imbalances per iteration, columns named by ``history.names``."""
         return self.history.as_array()
 
     # -- derived ----------------------------------------------------------------------------
@@ -209,19 +212,26 @@ class Result:
     # -- line probes ------------------------------------------------------------------------
     def sample_line(self, start: Any, end: Any, points: int = 101, name: str = "line") -> dict[str, np.ndarray]:
         """Fields along a segment: columns ``s`` (distance from start), ``x``, ``y``, ``u``, ``v``,
-        ``p`` and, with Spalart-Allmaras, ``nu_tilde`` and ``nut_ratio`` (from the sampled nu_tilde).
-        Each value is the containing cell's value plus its gradient times the offset from the
-        cell centroid (:func:`fvrans.post.probes.sample_line`)."""
+        ``p`` and the turbulence model's probe columns (Spalart-Allmaras: ``nu_tilde`` and
+        ``eddy_viscosity_ratio``, the latter from the sampled nu_tilde). Each value is the containing cell's
+        value plus its gradient times the offset from the cell centroid
+        (:func:`fvrans.post.probes.sample_line`)."""
         values = {"u": self.velocity[:, 0], "v": self.velocity[:, 1], "p": self.pressure}
-        if self.fields.nu_tilde is not None:
-            values["nu_tilde"] = self.fields.nu_tilde
+        gradients = dict(self.extra.get("gradients", {}))
+        if "probe_fields" not in self.extra and self.model is not None:
+            self.extra["probe_fields"] = self.model.probe_fields(self.fields)
+        for key, (v, g) in self.extra.get("probe_fields", {}).items():
+            values[key] = v
+            if g is not None:
+                gradients[key] = g
         if "locator" not in self.extra:
             self.extra["locator"] = CellLocator(self.mesh, centroids=self.problem.geom.cell_centre)
+        if self.diverged:  # gradients of the diverged iteration may linger in the model: last good values only
+            gradients = {k: np.where(np.isfinite(g), g, 0.0) for k, g in gradients.items()}
         cols = sample_line(self.extra["locator"], self.problem.geom.cell_centre, start, end, points, values,
-                           self.extra.get("gradients", {}), name=name)
-        if "nu_tilde" in cols:
-            nu = self.case.fluid.kinematic_viscosity
-            cols["nut_ratio"] = sa_eddy_viscosity(cols["nu_tilde"], nu) / nu
+                           gradients, name=name)
+        if self.model is not None:
+            cols.update(self.model.probe_columns(cols))
         return cols
 
     def probe(self, name: str) -> dict[str, np.ndarray]:
@@ -265,17 +275,12 @@ def _initial_fields(problem: Problem, initial: Result | Fields | None) -> Fields
     return fields.copy()
 
 
-def _gradients(solver: SimpleSolver, model: Any, grad_p: np.ndarray) -> dict[str, np.ndarray]:
-    """Cell gradients of u, v, p (and nu_tilde) of the final state, for probes."""
+def _gradients(solver: SimpleSolver, grad_p: np.ndarray) -> dict[str, np.ndarray]:
+    """Cell gradients of u, v, p of the final state, for probes."""
     f = solver.fields
     ub = solver._velocity_on_boundary(f.velocity, f.face_flux[solver.ni:])
     gu = solver.grad(np.ascontiguousarray(f.velocity, dtype=float), ub)
-    out = {"u": gu[:, 0, :].copy(), "v": gu[:, 1, :].copy(), "p": np.array(grad_p)}
-    if model is not None and f.nu_tilde is not None:
-        nt = np.ascontiguousarray(f.nu_tilde, dtype=float)
-        nt_b = boundary_face_values(model.mesh, model.geom, model.bc, nt, model.grad_nt)
-        out["nu_tilde"] = np.array(model.grad(nt, nt_b))
-    return out
+    return {"u": gu[:, 0, :].copy(), "v": gu[:, 1, :].copy(), "p": np.array(grad_p)}
 
 
 def _last_good_gradient(solver: SimpleSolver, grad_p: np.ndarray) -> np.ndarray:
@@ -371,21 +376,13 @@ def solve(
             f"not converged after {solver.iteration} iterations (tolerance {controls.tolerance:g}); "
             "raise solver.max_iterations or restart from this result"
         )
-    gradients = _gradients(solver, model, grad_p)
-    if diverged:  # model gradients may still be those of the diverged iteration
-        gradients = {k: np.where(np.isfinite(v), v, 0.0) for k, v in gradients.items()}
-    extra: dict[str, Any] = {"gradients": gradients}
-    if model is not None and solver.fields.nu_tilde is not None:
-        nt = solver.fields.nu_tilde
-        nu = c.fluid.kinematic_viscosity
-        extra["cell_data"] = {
-            "nu_tilde": nt,
-            "nut_ratio": sa_eddy_viscosity(nt, nu) / nu,
-            "wall_distance": model.wall_distance,
-        }
+    extra: dict[str, Any] = {
+        "gradients": _gradients(solver, grad_p),
+        "cell_data": model.cell_outputs(solver.fields),
+    }
     return Result(
         problem=problem, fields=solver.fields, history=solver.history, converged=bool(converged),
         iterations=solver.iteration, wall_seconds=seconds, grad_p=grad_p, message=message,
         diverged=diverged, extra=extra, interrupted=interrupted, velocity_scale=solver.u_scale,
-        fields_iteration=fields_iteration,
+        fields_iteration=fields_iteration, model=model,
     )

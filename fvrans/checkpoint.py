@@ -1,12 +1,13 @@
 """Checkpoints: the state of a run in one ``.npz`` file, written atomically, read back to resume.
 
-A checkpoint holds the :class:`~fvrans.solve.fields.Fields` (cell velocity and pressure, face
-mass fluxes, nu_tilde), the cell pressure gradient of the last iteration, the number of outer
-iterations done, the residual history so far, the velocity scale of the scaled residuals (so
-the history continues on the same scale), and the identity of the problem: a SHA-256 of the
-mesh (points, cells, faces, patches) and the physical settings (fluid, model, boundary
-conditions). A restart with another mesh or other physics is refused with a message naming
-what differs; solver settings (iterations, tolerance, relaxation, ...) may change between runs.
+A checkpoint holds the :class:`~fvrans.fields.Fields` (cell velocity and pressure, face
+mass fluxes, the turbulence model's variables by name), the cell pressure gradient of the last
+iteration, the number of outer iterations done, the residual history so far, the velocity scale of the run (the largest
+boundary or initial speed, against which the divergence guard measures speeds), and the
+identity of the problem: a SHA-256 of the mesh (points, cells, faces, patches) and the physical
+settings (fluid, model, boundary conditions). A restart with another mesh or other physics is
+refused with a message naming what differs; solver settings (iterations, tolerance, relaxation,
+...) may change between runs.
 
 The file is written to a temporary file in the same folder and renamed onto the target
 (:func:`fvrans.post.writers.atomic_write`), so an interrupted write leaves the previous
@@ -27,15 +28,19 @@ import numpy as np
 
 from fvrans.case import Case
 from fvrans.errors import CaseError
+from fvrans.fields import Fields
 from fvrans.files import input_file
 from fvrans.mesh.mesh import Mesh
 from fvrans.post.outputs import recover
 from fvrans.post.writers import atomic_write
-from fvrans.solve.fields import Fields
 
 #: file name of the checkpoint inside a result folder
 CHECKPOINT_NAME = "checkpoint.npz"
-FORMAT_VERSION = 1
+FORMAT_VERSION = 2
+#: formats this version reads (1: the model variable stored under its own name)
+READABLE_VERSIONS = (1, 2)
+#: prefix of the arrays of the model variables (``variable.<name>``)
+VARIABLE_PREFIX = "variable."
 #: setting tables that define the problem (a restart must match them)
 PHYSICS_TABLES = ("fluid", "model", "boundary")
 
@@ -159,8 +164,8 @@ def write_checkpoint(
         "mesh_hash": np.array(mesh_hash(mesh)),
         "physics": np.array(json.dumps(physics_settings(case), sort_keys=True)),
     }
-    if fields.nu_tilde is not None:
-        arrays["nu_tilde"] = np.asarray(fields.nu_tilde, dtype=float)
+    for name, values in fields.variables.items():
+        arrays[VARIABLE_PREFIX + name] = np.asarray(values, dtype=float)
     if pressure_gradient is not None:
         arrays["pressure_gradient"] = np.asarray(pressure_gradient, dtype=float)
     target = Path(path)
@@ -195,9 +200,13 @@ def read_checkpoint(path: str | os.PathLike) -> Checkpoint:
     if missing:
         raise CaseError(f"{p}: not an fvrans checkpoint (missing {', '.join(missing)})")
     version = _scalar(data, "format_version", p, "iu")
-    if version != FORMAT_VERSION:
+    if version not in READABLE_VERSIONS:
         raise CaseError(f"{p}: checkpoint format {version}, this fvrans reads "
-                        f"{FORMAT_VERSION}; restart with the fvrans version that wrote it")
+                        f"{', '.join(map(str, READABLE_VERSIONS))}; restart with the fvrans version that wrote it")
+    if version == 1:  # the model variable under its own name
+        data = {k: v for k, v in data.items()}
+        for k in [k for k in data if k not in need and k != "pressure_gradient"]:
+            data[VARIABLE_PREFIX + k] = data.pop(k)
     return _checked(data, p)
 
 
@@ -236,7 +245,7 @@ def _checked(data: dict[str, np.ndarray], p: Path) -> Checkpoint:
     nc = len(velocity)
     pressure = numbers("pressure", (nc,))
     face_flux = numbers("face_flux", (None,))
-    nu_tilde = numbers("nu_tilde", (nc,)) if "nu_tilde" in data else None
+    variables = {k[len(VARIABLE_PREFIX):]: numbers(k, (nc,)) for k in data if k.startswith(VARIABLE_PREFIX)}
     grad_p = numbers("pressure_gradient", (nc, 2)) if "pressure_gradient" in data else None
     iteration = _scalar(data, "iteration", p, "iu")
     if not 0 <= iteration <= MAX_ITERATION:
@@ -261,7 +270,7 @@ def _checked(data: dict[str, np.ndarray], p: Path) -> Checkpoint:
     if not isinstance(physics, dict):
         raise bad("its physical settings are not a table")
     return Checkpoint(
-        fields=Fields(velocity, pressure, face_flux, nu_tilde),
+        fields=Fields(velocity, pressure, face_flux, variables),
         iteration=int(iteration),
         history_names=names,
         history_rows=rows,

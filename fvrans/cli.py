@@ -47,7 +47,7 @@ def _cmd_run(args: argparse.Namespace) -> int:
         raise FvransError(f"cannot create the output folder {out}: {exc.strerror or exc}") from None
     recover(out)
     checkpoint = out / CHECKPOINT_NAME
-    names = ["u", "v", "continuity"] + (["nu_tilde"] if case.turbulent else [])
+    names = api.residual_names(case)
     progress = RunProgress(names, case.solver.max_iterations, case.solver.tolerance,
                            first_iteration=restart.iteration if restart else 0, quiet=args.quiet)
 

@@ -36,6 +36,7 @@ from fvrans.post._plot_data import (
     read_summary,
 )
 from fvrans.post.outputs import output_set, recover
+from fvrans.post.residuals import RESIDUAL_LABEL, RESIDUAL_NORMALISATION
 from fvrans.post.writers import atomic_path, safe_file_name
 
 __all__ = [
@@ -166,8 +167,10 @@ def residual_figure(
         ax.plot(it, y, label=cap_text(name), lw=1.3, marker=marker)
     ax.set_yscale("log")
     ax.set_xlabel("outer iteration")
-    ax.set_ylabel("scaled residual [-]")
-    ax.set_title(_title(title, "residual history"), fontsize=11)
+    ax.set_ylabel(f"{RESIDUAL_LABEL} [-]")
+    ax.set_title(_title(title, f"{RESIDUAL_LABEL} per equation"), fontsize=11)
+    fig.text(0.01, 0.005, "\n".join(textwrap.wrap(RESIDUAL_NORMALISATION, 118)), fontsize=6.5, color="0.3",
+             ha="left", va="bottom")
     ax.grid(True, which="major", alpha=0.35)
     ax.grid(True, which="minor", axis="y", alpha=0.12)
     if len(it):
@@ -354,8 +357,8 @@ def _field_values(fields: FieldData, quantity: str, reference: Mapping[str, Any]
         if u_ref and rho:
             return (p - p_ref) / (0.5 * rho * u_ref**2), "Cp = (p − p_ref) / (½ ρ U_ref²) [-]", "pressure"
         return p, "p (units of the case)", "pressure"
-    if quantity == "nut_ratio":
-        return _get(fields, "nut_ratio"), "ν_t / ν [-]", "eddy-viscosity ratio"
+    if quantity == "eddy_viscosity_ratio":
+        return _get(fields, "eddy_viscosity_ratio"), "ν_t / ν [-]", "eddy-viscosity ratio"
     a = _get(fields, quantity)
     if a.ndim == 2:
         return np.hypot(a[:, 0], a[:, 1]), f"|{quantity}|", quantity
@@ -494,7 +497,7 @@ def field_figure(
 ) -> Figure:
     """A cell-data map on the mesh cells (flat colour per cell), equal aspect, with colour bar.
 
-    ``quantity``: ``"velocity"`` (magnitude, over U_ref), ``"pressure"`` (as Cp), ``"nut_ratio"``
+    ``quantity``: ``"velocity"`` (magnitude, over U_ref), ``"pressure"`` (as Cp), ``"eddy_viscosity_ratio"``
     or the name of any cell array (vectors as magnitudes). ``reference``: the ``reference``
     block of summary.json (rho, u_ref, p_ref, l_ref) for non-dimensional values; without it
     values are in the units of the case. ``window``: (xmin, xmax, ymin, ymax) in case units to
@@ -652,7 +655,7 @@ def probe_figure(
         label = "velocity / U_ref [-]" if u_ref else "velocity (units of the case)"
     elif len(quantities) == 1:
         q = quantities[0]
-        label = {"nut_ratio": "ν_t / ν [-]", "p": "p (units of the case)",
+        label = {"eddy_viscosity_ratio": "ν_t / ν [-]", "p": "p (units of the case)",
                  "nu_tilde": "ν̃ (units of the case)"}.get(q, q)
     else:
         label = ", ".join(quantities)
@@ -718,7 +721,7 @@ def result_figures(
     ``residuals.png``; ``wall_<patch>_cf.png`` and ``wall_<patch>_cp.png`` per wall table, with
     the zero-shear points of summary.json and the curves of ``references[patch]["cf" | "cp"]``
     (see :func:`wall_figure`); ``field_velocity.png`` (with streamlines), ``field_pressure.png``
-    and ``field_nut_ratio.png`` (when present) from fields.vtu; ``profile_<name>.png`` for each
+    and ``field_eddy_viscosity_ratio.png`` (when present) from fields.vtu; ``profile_<name>.png`` for each
     ``profiles/<name>.csv`` with ``y_plus`` and ``u_plus`` columns, ``probe_<name>.png`` (u and v
     along the probe) for each line-probe table. Input problems are checked
     before the first figure is made.
@@ -789,12 +792,12 @@ def _result_figures(rd: Path, title: str | None, reference: Mapping[str, Any] | 
                     along=along)
     if have_fields:
         fields = read_fields(rd / "fields.vtu")
-        for q in ("velocity", "pressure", "nut_ratio"):
+        for q in ("velocity", "pressure", "eddy_viscosity_ratio"):
             if q in fields.data:
                 yield f"field_{q}.png", field_figure(fields, q, title=title, reference=reference,
                                                      mesh_edges=mesh_edges,
                                                      streamlines=streamlines and q == "velocity")
-        for q in ("velocity", "pressure", "nut_ratio") if window is not None else ():
+        for q in ("velocity", "pressure", "eddy_viscosity_ratio") if window is not None else ():
             if q in fields.data:
                 yield f"field_{q}_zoom.png", field_figure(fields, q, title=title, reference=reference,
                                                           mesh_edges=mesh_edges, window=window,

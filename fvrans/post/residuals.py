@@ -8,7 +8,14 @@ from typing import Protocol
 
 import numpy as np
 
+from fvrans.fv.residual import RESIDUAL_DESCRIPTION
 from fvrans.post.writers import write_csv_atomic
+
+#: what fvrans calls the per-equation convergence measure on plots and in messages; the one
+#: place that names it (a change of its definition in the solver updates RESIDUAL_NORMALISATION)
+RESIDUAL_LABEL = "normalised imbalance"
+#: how every equation's imbalance is normalised (defined once in fvrans/fv/residual.py)
+RESIDUAL_NORMALISATION = RESIDUAL_DESCRIPTION
 
 
 class HistoryLike(Protocol):

@@ -9,34 +9,12 @@ import json
 import meshio
 import numpy as np
 import pytest
+from hostile_cases import cavity_data
 
+from fvrans.case.tomlwrite import dumps
 from fvrans.checkpoint import read_checkpoint
 from fvrans.cli import main
 from fvrans.solve.simple import SimpleSolver
-
-CASE = """
-title = "early divergence"
-[mesh]
-generator = "cavity"
-parameters = { n = 8 }
-[fluid]
-density = 1.0
-viscosity = 0.01
-[model]
-turbulence = "{model}"
-[initial]
-velocity = [0.2, 0.1]
-pressure = 3.0
-[boundary.lid]
-kind = "wall"
-velocity = [1.0, 0.0]
-[boundary.walls]
-kind = "wall"
-[probes.mid]
-start = [0.5, 0.1]
-end = [0.5, 0.9]
-points = 9
-"""
 
 
 def _numbers(obj, path=""):
@@ -64,7 +42,9 @@ def test_a_divergence_at_iteration_1_writes_the_finite_initial_state(tmp_path, m
 
     monkeypatch.setattr(SimpleSolver, "iterate", poisoned)
     case = tmp_path / "case.toml"
-    case.write_text(CASE.replace("{model}", model))
+    probe = {"mid": {"start": [0.5, 0.1], "end": [0.5, 0.9], "points": 9}}
+    case.write_text(dumps(cavity_data(model={"turbulence": model}, initial={"velocity": [0.2, 0.1], "pressure": 3.0},
+                                      probes=probe)))
     out = tmp_path / "out"
     assert main(["run", str(case), "--out", str(out), "--quiet", "--no-plots"]) == 1
     summary = json.loads((out / "summary.json").read_text())

@@ -11,35 +11,17 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from hostile_cases import write_cavity
 
 import fvrans.api as fa
 from fvrans.case import case_from_dict, load_case
 from fvrans.cli import main
 from fvrans.errors import CaseError
 
-CAVITY = """
-title = "limits"
-[mesh]
-generator = "cavity"
-parameters = { n = 8 }
-[fluid]
-density = 1.0
-viscosity = 0.01
-[boundary.lid]
-kind = "wall"
-velocity = [1.0, 0.0]
-[boundary.walls]
-kind = "wall"
-[solver]
-max_iterations = 3
-"""
-
 
 @pytest.fixture
 def case_file(tmp_path):
-    p = tmp_path / "case.toml"
-    p.write_text(CAVITY)
-    return p
+    return write_cavity(tmp_path / "case.toml")
 
 
 @contextlib.contextmanager
@@ -149,7 +131,7 @@ def test_profiles_pipes_devices_and_oversized_files_are_refused(case_file, tmp_p
     os.mkfifo(tmp_path / "pipe.csv")
     base = load_case(case_file).to_dict()
     for profile, why in ((str(big), "MiB"), ("pipe.csv", "named pipe"), ("/dev/zero", "device")):
-        base["boundary"]["walls"] = {"kind": "velocity-inlet", "profile": profile}
+        base["boundary"]["walls"] = {"kind": "inflow-velocity", "profile": profile}
         with deadline(), pytest.raises(CaseError, match="boundary.walls.profile") as info:
             case_from_dict(base, source=tmp_path / "c.toml")
         assert why in str(info.value)

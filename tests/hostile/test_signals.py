@@ -18,6 +18,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from hostile_cases import write_cavity
 
 import fvrans.api as fa
 import fvrans.post.plots as plots
@@ -30,34 +31,8 @@ from fvrans.post.writers import TMP_PREFIX
 SIGNALS = [signal.SIGINT, signal.SIGTERM]
 IDS = ["SIGINT", "SIGTERM"]
 
-CAVITY = """
-title = "cavity for stop requests"
-
-[mesh]
-generator = "cavity"
-parameters = {{ n = {n} }}
-
-[fluid]
-density = 1.0
-viscosity = 0.01
-
-[boundary.lid]
-kind = "wall"
-velocity = [1.0, 0.0]
-
-[boundary.walls]
-kind = "wall"
-
-[solver]
-tolerance = {tol}
-max_iterations = {max_it}
-"""
-
-
 def _case(tmp_path: Path, n: int = 8, tol: float = 1e-4, max_it: int = 400) -> Path:
-    p = tmp_path / "case.toml"
-    p.write_text(CAVITY.format(n=n, tol=tol, max_it=max_it))
-    return p
+    return write_cavity(tmp_path / "case.toml", n=n, tolerance=tol, max_iterations=max_it)
 
 
 def _leftovers(root: Path) -> list[Path]:

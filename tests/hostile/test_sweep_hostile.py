@@ -9,29 +9,13 @@ import signal
 import time
 
 import pytest
+from hostile_cases import write_cavity
 
 import fvrans.api as fa
 from fvrans.cli import main
 from fvrans.errors import CaseError
 from fvrans.sweep import Output, run_sweep
 from fvrans.sweep.collect import collect_outputs, read_wall_table
-
-CAVITY = """
-title = "cavity sweep"
-[mesh]
-generator = "cavity"
-parameters = { n = 8 }
-[fluid]
-density = 1.0
-viscosity = 0.01
-[boundary.lid]
-kind = "wall"
-velocity = [1.0, 0.0]
-[boundary.walls]
-kind = "wall"
-[solver]
-tolerance = 1e-5
-"""
 
 SPEC = """
 case = "cavity.toml"
@@ -51,7 +35,7 @@ x = 0.5
 
 @pytest.fixture
 def spec(tmp_path):
-    (tmp_path / "cavity.toml").write_text(CAVITY)
+    write_cavity(tmp_path / "cavity.toml", tolerance=1e-5, max_iterations=5000)
     p = tmp_path / "sweep.toml"
     p.write_text(SPEC)
     return p

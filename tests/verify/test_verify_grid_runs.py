@@ -30,10 +30,10 @@ parameters = { length = 4.0, height = 1.0, nx = 12, ny = 4 }
 density = 1.0
 viscosity = 0.05
 [boundary.inlet]
-kind = "velocity-inlet"
+kind = "inflow-velocity"
 velocity = [1.0, 0.0]
 [boundary.outlet]
-kind = "pressure-outlet"
+kind = "outflow-pressure"
 [boundary.lower_wall]
 kind = "wall"
 [boundary.upper_wall]
