@@ -143,7 +143,7 @@ def _check_finite(ds: DataSet, what: dict[str, str]) -> None:
         if len(bad):
             i = int(bad[0])
             raise CaseError(
-                f"{ds.label}: {what.get(q, q)!r} holds {v[i]!r} at {ds.site_name(i)}"
+                f"{ds.label}: {what.get(q, repr(q))} holds {float(v[i])} at {ds.site_name(i)}"
                 + (f" and {len(bad) - 1} more" if len(bad) > 1 else "")
                 + "; every value must be a finite number: remove those rows or fill them in"
             )
