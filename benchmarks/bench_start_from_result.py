@@ -28,7 +28,7 @@ from pathlib import Path
 import numpy as np
 
 import fvrans.api as fa
-from fvrans.physics.spalart_allmaras import model_for_case
+from fvrans.models import model_for_case
 from fvrans.post.wall import order_patch_faces
 from fvrans.solve.simple import SimpleSolver, SolverControls
 

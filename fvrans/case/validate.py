@@ -35,7 +35,7 @@ TABLE_KEYS: dict[str, tuple[str, ...]] = {
     "mesh": ("file", "generator", "parameters", "renumber"),
     "fluid": ("density", "viscosity"),
     "model": ("turbulence", "sa_variant"),
-    "initial": ("velocity", "pressure", "nut_ratio", "from_result"),
+    "initial": ("velocity", "pressure", "nu_tilde_ratio", "from_result"),
     "solver": (
         "coupling", "max_iterations", "tolerance", "relax_velocity", "relax_pressure",
         "relax_turbulence", "convection", "turbulence_convection", "gradient", "limiter",
@@ -261,7 +261,8 @@ def check_vector(v: Any, fail: Callable[[str], CaseError]) -> tuple[float, float
         v = v.tolist()
     need = "must be a list of 2 numbers [x component, y component]"
     if not isinstance(v, (list, tuple)):
-        extra = " (Python functions are accepted for velocity-inlet velocities only)" if callable(v) else ""
+        extra = (" (Python functions are accepted only for the velocity of an inflow-velocity patch)"
+                 if callable(v) else "")
         raise fail(f"{need}, got {describe(v)}{extra}")
     if len(v) != 2:
         raise fail(f"{need}, got {len(v)} item(s): {describe(v)}")
@@ -352,7 +353,7 @@ def _initial(ctx: _Ctx, data: Any) -> S.InitialState:
     return S.InitialState(
         velocity=t.vector("velocity", (0.0, 0.0)),
         pressure=t.number("pressure", 0.0),
-        nut_ratio=t.number("nut_ratio", 3.0, NON_NEGATIVE, "the initial ratio nu_tilde / nu"),
+        nu_tilde_ratio=t.number("nu_tilde_ratio", 3.0, NON_NEGATIVE, "the initial ratio nu_tilde / nu"),
         from_result=from_result,
     )
 
@@ -431,12 +432,12 @@ def _boundary(ctx: _Ctx, name: str, data: Any) -> S.BoundarySpec:
             users = [kd for kd, keys in S.BOUNDARY_KEYS.items() if k in keys]
             why = (f"; {k} is used by kind(s) {_quoted_list(users)} only" if users
                    else did_you_mean(str(k), allowed))
-            raise ctx.error(path + (str(k),), f"not a key of kind {kind!r}{why}; a {kind} patch takes: "
+            raise ctx.error(path + (str(k),), f"not a key of kind {kind!r}{why}; a patch of kind {kind!r} takes: "
                             f"{', '.join(allowed)} — remove the key or change the kind")
-    t = _Table(ctx, path, data, allowed, f"a {kind} patch")
+    t = _Table(ctx, path, data, allowed, f"a patch of kind {kind!r}")
     if kind == "wall":
         return S.BoundarySpec(kind, velocity=t.vector("velocity", (0.0, 0.0)))
-    if kind == "pressure-outlet":
+    if kind == "outflow-pressure":
         return S.BoundarySpec(kind, pressure=t.number("pressure", 0.0))
     if kind == "symmetry":
         return S.BoundarySpec(kind)
@@ -445,7 +446,7 @@ def _boundary(ctx: _Ctx, name: str, data: Any) -> S.BoundarySpec:
             kind,
             velocity=t.vector("velocity", hint="add velocity = [u, v], the free-stream velocity"),
             pressure=t.number("pressure", 0.0),
-            nut_ratio=t.number("nut_ratio", 3.0, NON_NEGATIVE, "the free-stream nu_tilde / nu"),
+            nu_tilde_ratio=t.number("nu_tilde_ratio", 3.0, NON_NEGATIVE, "the free-stream nu_tilde / nu"),
         )
     return _inlet(ctx, t)
 
@@ -470,20 +471,21 @@ def _inlet(ctx: _Ctx, t: _Table) -> S.BoundarySpec:
             velocity: S.Velocity = v
         else:
             velocity = t.vector("velocity")
-        return S.BoundarySpec("velocity-inlet", velocity=velocity,
-                              nut_ratio=t.number("nut_ratio", 3.0, NON_NEGATIVE, "the inflow nu_tilde / nu"))
+        ratio = t.number("nu_tilde_ratio", 3.0, NON_NEGATIVE, "the inflow nu_tilde / nu")
+        return S.BoundarySpec("inflow-velocity", velocity=velocity, nu_tilde_ratio=ratio)
     profile = _check_path(ctx, t.path + ("profile",), t.data["profile"], "inlet profile file")
     given = t.table("profile_columns", {})
     _Table(ctx, t.path + ("profile_columns",), given, S.PROFILE_COLUMN_KEYS, "profile_columns")
-    columns = resolve_profile(profile, given, lambda key, m: ctx.error(t.path + key, m))
-    if "nut_ratio" in columns:
-        if t.has("nut_ratio"):
-            raise t.fail("nut_ratio", f"the profile {profile} already gives nut_ratio in column "
-                         f"{columns['nut_ratio']!r}; remove this key (or the column)")
+    columns = resolve_profile(profile, given, lambda key, m: ctx.error(t.path + key, m),
+                              constant_given=t.has("nu_tilde_ratio"))
+    if "nu_tilde_ratio" in columns:
+        if t.has("nu_tilde_ratio"):
+            raise t.fail("nu_tilde_ratio", f"the profile {profile} already gives nu_tilde_ratio in column "
+                         f"{columns['nu_tilde_ratio']!r}; remove this key (or the column)")
         nut = None
     else:
-        nut = t.number("nut_ratio", 3.0, NON_NEGATIVE, "the inflow nu_tilde / nu")
-    return S.BoundarySpec("velocity-inlet", profile=profile, profile_columns=columns, nut_ratio=nut)
+        nut = t.number("nu_tilde_ratio", 3.0, NON_NEGATIVE, "the inflow nu_tilde / nu")
+    return S.BoundarySpec("inflow-velocity", profile=profile, profile_columns=columns, nu_tilde_ratio=nut)
 
 
 def _solver(ctx: _Ctx, data: Any) -> S.SolverSettings:
@@ -492,7 +494,7 @@ def _solver(ctx: _Ctx, data: Any) -> S.SolverSettings:
     return S.SolverSettings(
         coupling=coupling,
         max_iterations=t.integer("max_iterations", 5000, AT_LEAST_ONE, "the number of outer iterations"),
-        tolerance=t.number("tolerance", 1e-6, POSITIVE, "the scaled-residual tolerance"),
+        tolerance=t.number("tolerance", 1e-6, POSITIVE, "the normalised-imbalance tolerance"),
         relax_velocity=t.number("relax_velocity", S.DEFAULT_RELAX_VELOCITY[coupling], UNIT,
                                 "an under-relaxation factor"),
         relax_pressure=t.number("relax_pressure", S.DEFAULT_RELAX_PRESSURE[coupling], UNIT,

@@ -261,7 +261,7 @@ def read_mesh_data(path: str | os.PathLike, names: Mapping[str, str] | None = No
 
 def read_result_folder(folder: str | os.PathLike) -> FieldSource:
     """The cell fields of an fvrans result folder (``fields.vtu``: velocity, pressure and, with
-    Spalart-Allmaras, nu_tilde, nut_ratio, wall_distance)."""
+    Spalart-Allmaras, nu_tilde, eddy_viscosity_ratio, wall_distance)."""
     d = Path(folder)
     if not d.is_dir():
         raise CaseError(f"result folder {d} does not exist (a folder fvrans run --out wrote)")

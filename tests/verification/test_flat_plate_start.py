@@ -37,5 +37,5 @@ def test_medium_plate_started_from_the_coarse_result():
     cf_warm, cf_cold = _cf(warm), _cf(medium.result)
     print(f"Cf(0.97): uniform start {cf_cold:.7g}, from coarse {cf_warm:.7g}, {cf_warm / cf_cold - 1:.2e}")
     assert abs(cf_warm / cf_cold - 1) < 1.5e-4
-    nt = warm.fields.nu_tilde
+    nt = warm.fields.variables["nu_tilde"]
     assert np.all(np.isfinite(nt)) and nt.min() >= 0.0
