@@ -251,8 +251,8 @@ def _interpolated_start(problem: Problem, source: FieldSource) -> tuple[Fields, 
 
     The pressure is not carried over: with SIMPLEC the first pressure correction rebuilds it from the
     velocity, consistent with the new grid, and an interpolated one slowed the convergence on the
-    laminar cases (coarse-to-fine laminar bump, Re_h 100, to 1e-7: 158 iterations with it, 117
-    without, 133 from the uniform start; DEVELOPERS.md has the table)."""
+    laminar cases (coarse-to-fine laminar bump, Re_h 100, to 1e-7: 180 iterations with it, 137
+    without, 143 from the uniform start; DEVELOPERS.md has the table)."""
     c, mesh = problem.case, problem.mesh
     variables = [v for v in model_class(c.model.turbulence).variables if v in source]
     wanted = ["u", "v", *variables]

@@ -118,7 +118,11 @@ class Domain:
 
     @cached_property
     def _finder(self):
-        return self.triangulation.get_trifinder()
+        try:
+            return self.triangulation.get_trifinder()
+        except (RuntimeError, ValueError) as exc:  # overlapping or repeated cells
+            raise CaseError(f"the cells of the data's mesh overlap or repeat points ({exc}); the points "
+                            "cannot be located in it: give a valid 2D mesh, or the data as a point cloud") from None
 
     def locate(self, xy: np.ndarray) -> np.ndarray:
         """The triangle holding each point (on an edge: one of its triangles), -1 outside."""
@@ -234,7 +238,10 @@ def stencil(ds: DataSet, xy: np.ndarray, outside: str = "nearest", cell_values: 
     else:
         dom = ds.domain
         assert dom is not None
-        t = dom.locate(xy)
+        try:
+            t = dom.locate(xy)
+        except CaseError as exc:
+            raise CaseError(f"{ds.label}: {exc}") from None
         ok = t >= 0
         if ds.location == "nodes":
             index[ok] = dom.triangles[t[ok]]

@@ -22,10 +22,11 @@ def _cf(result: fa.Result) -> float:
 def test_medium_plate_started_from_the_coarse_result():
     """The uniform start runs to residuals 1e-8 (the case's tolerance), the coarse start to 1e-9.
     Measured on the medium grid (a run on to 1e-11 as the final value): from the uniform start
-    282 iterations to 1e-8, Cf(0.97) then +6.8e-5 (relative) from its final value; from the coarse
-    result 154 iterations to 1e-8 (Cf -1.1e-4 from final) and 226 to 1e-9 (-7.8e-6); the two final
-    values agree to 5e-8. So the two runs here differ by the uniform start's iteration error,
-    below 1.5e-4. (The grid change coarse -> medium moves Cf(0.97) by only 1.6e-3 relative.)"""
+    332 iterations to 1e-8, Cf(0.97) then +8.7e-6 (relative) from its final value; from the coarse
+    result 197 iterations to 1e-8 (Cf -2.3e-5 from final) and 269 to 1e-9 (-1.4e-6); the two final
+    values agree to 1e-9. So the two runs here differ by about 1e-5, the sum of those iteration
+    errors; the bound allows three times that. (The grid change coarse -> medium moves Cf(0.97) by
+    1.6e-3 relative.)"""
     coarse, medium = turbulent("coarse"), turbulent("medium")
     warm = fa.solve(medium.result.case.set("solver.tolerance", 1e-9), initial=coarse.result)
     assert warm.converged
@@ -36,6 +37,6 @@ def test_medium_plate_started_from_the_coarse_result():
     assert warm.iterations < medium.result.iterations
     cf_warm, cf_cold = _cf(warm), _cf(medium.result)
     print(f"Cf(0.97): uniform start {cf_cold:.7g}, from coarse {cf_warm:.7g}, {cf_warm / cf_cold - 1:.2e}")
-    assert abs(cf_warm / cf_cold - 1) < 1.5e-4
+    assert abs(cf_warm / cf_cold - 1) < 3e-5
     nt = warm.fields.variables["nu_tilde"]
     assert np.all(np.isfinite(nt)) and nt.min() >= 0.0
