@@ -37,7 +37,7 @@ from fvrans.mesh.geometry import Geometry, compute_geometry
 from fvrans.mesh.locate import CellLocator
 from fvrans.mesh.mesh import Mesh
 from fvrans.mesh.morph import topology_difference
-from fvrans.models import model_for_case, residual_names
+from fvrans.models import model_class, model_for_case, residual_names
 from fvrans.models.base import TurbulenceModel
 from fvrans.physics.boundary import FlowBoundary, build_flow_boundary
 from fvrans.post import (
@@ -52,12 +52,14 @@ from fvrans.post import (
 )
 from fvrans.post.filenames import output_file
 from fvrans.post.probes import sample_line, write_probe_csv
+from fvrans.reference import FieldSource, cell_source, read_result_folder
 from fvrans.solve.simple import History, SimpleSolver, SolverControls
 
 log = logging.getLogger(__name__)
 
 __all__ = [
-    "Problem", "Result", "apply_overrides", "case_from_dict", "load_case", "prepare", "residual_names", "solve",
+    "Problem", "Result", "apply_overrides", "case_from_dict", "load_case", "prepare", "residual_names",
+    "result_source", "solve", "start_fields",
 ]
 
 
@@ -238,27 +240,65 @@ class Result:
         )
 
 
-def _initial_fields(problem: Problem, initial: Result | Fields | None) -> Fields | None:
+def result_source(result: Result) -> FieldSource:
+    """The cell fields of a result (u, v, p and the turbulence model's variables, e.g. nu_tilde) as a
+    :class:`~fvrans.reference.FieldSource`, to interpolate onto another mesh."""
+    f = result.fields
+    values = {"u": f.velocity[:, 0], "v": f.velocity[:, 1], "p": f.pressure, **f.variables}
+    return cell_source(result.mesh, result.cell_centres, values, f"the result of {result.case.label}")
+
+
+def _interpolated_start(problem: Problem, source: FieldSource) -> tuple[Fields, dict[str, Any]]:
+    """The velocity and the case's model variables (those the source has, e.g. nu_tilde) of
+    ``source`` at the cell centres: linear, the nearest value outside its data. The pressure starts
+    uniform at initial.pressure and the face fluxes at zero, so the solver rebuilds them from the
+    velocity; a variable the source lacks starts as the model starts it (initial.nu_tilde_ratio).
+
+    The pressure is not carried over: with SIMPLEC the first pressure correction rebuilds it from the
+    velocity, consistent with the new grid, and an interpolated one slowed the convergence on the
+    laminar cases (coarse-to-fine laminar bump, Re_h 100, to 1e-7: 180 iterations with it, 137
+    without, 143 from the uniform start; DEVELOPERS.md has the table)."""
+    c, mesh = problem.case, problem.mesh
+    variables = [v for v in model_class(c.model.turbulence).variables if v in source]
+    wanted = ["u", "v", *variables]
+    got = source.interpolate(problem.geom.cell_centre, wanted, outside="nearest", estimate_error=False,
+                             target_label="cell")
+    fields = Fields(np.column_stack([got["u"], got["v"]]), np.full(mesh.n_cells, float(c.initial.pressure)),
+                    np.zeros(mesh.n_faces), {v: got[v].copy() for v in variables})
+    cov = got.coverage[0]
+    log.info("%s: start interpolated from %s: %s", c.label, source.label, cov)
+    report = {"from": source.label, "kind": source.kind, "quantities": wanted,
+              "cells_inside_data": cov.inside_share, "cells_nearest_value": cov.nearest,
+              "distance_max": cov.distance_max_outside}
+    return fields, report
+
+
+def start_fields(problem: Problem, initial: Result | Fields | FieldSource | str | Path | None
+                    ) -> tuple[Fields, dict[str, Any] | None]:
+    """The fields a run of ``problem`` starts from (see :func:`solve` for ``initial``) and, for a start
+    interpolated from elsewhere, what summary.json records about it under ``start`` (else None)."""
     mesh = problem.mesh
+    c = problem.case
+    if initial is None and c.initial.from_result is not None:
+        initial = c.initial.from_result
     if initial is None:
-        c = problem.case
-        f = Fields.uniform(mesh.n_cells, mesh.n_faces, c.initial.velocity, c.initial.pressure)
-        return f
+        return Fields.uniform(mesh.n_cells, mesh.n_faces, c.initial.velocity, c.initial.pressure), None
+    if isinstance(initial, (str, Path)):
+        initial = read_result_folder(initial)
+    if isinstance(initial, FieldSource):
+        return _interpolated_start(problem, initial)
     fields = initial.fields if isinstance(initial, Result) else initial
-    if fields.velocity.shape[0] != mesh.n_cells or fields.face_flux.shape[0] != mesh.n_faces:
+    same_size = fields.velocity.shape[0] == mesh.n_cells and fields.face_flux.shape[0] == mesh.n_faces
+    if isinstance(initial, Result) and (not same_size or topology_difference(initial.mesh, mesh) is not None):
+        return _interpolated_start(problem, result_source(initial))
+    if not same_size:
         raise CaseError(
             f"{problem.case.label}: the warm start has {fields.velocity.shape[0]} cells and "
             f"{fields.face_flux.shape[0]} faces but the mesh has {mesh.n_cells} and {mesh.n_faces}; "
-            "warm starts need the same mesh (or a morphed mesh with the same topology)"
+            "bare Fields need the same mesh: pass the Result (its mesh tells where the values are) to "
+            "interpolate them onto this one"
         )
-    diff = topology_difference(initial.mesh, mesh) if isinstance(initial, Result) else None
-    if diff is not None:
-        raise CaseError(
-            f"{problem.case.label}: the warm start's mesh has the same size but a different topology ({diff}); "
-            "warm starts need the same cells and faces: keep the generator's resolution parameters, "
-            "or morph the previous mesh (fvrans.mesh.morph)"
-        )
-    return fields.copy()
+    return fields.copy(), None
 
 
 def _gradients(solver: SimpleSolver, grad_p: np.ndarray) -> dict[str, np.ndarray]:
@@ -271,17 +311,25 @@ def _gradients(solver: SimpleSolver, grad_p: np.ndarray) -> dict[str, np.ndarray
 
 def solve(
     case: Case | Problem,
-    initial: Result | Fields | None = None,
+    initial: Result | Fields | FieldSource | str | Path | None = None,
     callback: Callable[[int, list[float]], bool | None] | None = None,
     *,
     restart: Checkpoint | str | Path | None = None,
     checkpoint: str | Path | None = None,
 ) -> Result:
-    """Solve a case (or a prepared Problem); ``initial`` warm-starts from a previous result on the
-    same mesh or one of the same topology (a neighbouring design of a parametric generator with the
-    same resolution, or a mesh morphed with :func:`fvrans.mesh.morph.morph`); a different cell or
-    face count, or (for a Result) a different topology, raises CaseError. A diverging run returns
-    a Result with ``diverged=True`` holding the last good state and the message; it does not raise.
+    """Solve a case (or a prepared Problem). A diverging run returns a Result with ``diverged=True``
+    holding the last good state and the message; it does not raise.
+
+    ``initial``: where the iterations start (default: the case's ``[initial]``, uniform values or
+    ``from_result``). A Result on the same mesh or one of the same topology (a neighbouring design
+    of a parametric generator with the same resolution, or a mesh morphed with
+    :func:`fvrans.mesh.morph.morph`) is copied as it is (fields and face fluxes). A Result on
+    another mesh, a result folder (path) or a :class:`~fvrans.reference.FieldSource` is
+    interpolated onto the cells (:mod:`fvrans.reference`: linear, the nearest value outside its
+    data): the velocity and the model's variables (nu_tilde) the source has; the pressure starts uniform at
+    ``initial.pressure`` and the face fluxes are rebuilt from the velocity;
+    summary.json then records the source and its coverage under ``start``. Bare Fields must
+    match the mesh in size.
 
     ``callback(iteration, residuals)`` is called after every outer iteration; returning True
     stops the run there (``interrupted=True`` unless it converged). ``restart``: a checkpoint
@@ -299,7 +347,7 @@ def solve(
         ckpt = restart if isinstance(restart, Checkpoint) else read_checkpoint(restart)
         ckpt.check_matches(c, problem.mesh)
         initial = ckpt.fields
-    fields = _initial_fields(problem, initial)
+    fields, start = start_fields(problem, initial)
     model = model_for_case(c, problem.mesh, problem.geom, problem.boundary)
     solver = SimpleSolver(
         problem.mesh, problem.geom, problem.boundary, rho=c.fluid.density, mu=c.fluid.viscosity,
@@ -356,6 +404,8 @@ def solve(
         "gradients": _gradients(solver, grad_p),
         "cell_data": model.cell_outputs(solver.fields),
     }
+    if start is not None:
+        extra["summary"] = {"start": start}
     return Result(
         problem=problem, fields=solver.fields, history=solver.history, converged=bool(converged),
         iterations=solver.iteration, wall_seconds=seconds, grad_p=grad_p, message=message,

@@ -86,9 +86,14 @@ class ModelSettings:
 
 @dataclass(frozen=True)
 class InitialState:
+    """The start: uniform values, or the velocity and nu_tilde of a result folder (absolute path)
+    interpolated onto the cells (``pressure`` still sets the uniform start pressure; ``nu_tilde_ratio``
+    applies only when that result carries no nu_tilde)."""
+
     velocity: tuple[float, float] = (0.0, 0.0)
     pressure: float = 0.0
     nu_tilde_ratio: float = 3.0
+    from_result: Path | None = None
 
 
 @dataclass(frozen=True)
@@ -311,6 +316,12 @@ def boundary_data(b: BoundarySpec, keep_callables: bool = False) -> dict[str, An
     return out
 
 
+def _initial_data(i: InitialState) -> dict[str, Any]:
+    if i.from_result is not None:
+        return {"from_result": str(i.from_result), "pressure": i.pressure, "nu_tilde_ratio": i.nu_tilde_ratio}
+    return {"velocity": _vec(i.velocity), "pressure": i.pressure, "nu_tilde_ratio": i.nu_tilde_ratio}
+
+
 def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
     m = case.mesh
     mesh: dict[str, Any] = {}
@@ -344,11 +355,7 @@ def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
         "mesh": mesh,
         "fluid": {"density": case.fluid.density, "viscosity": case.fluid.viscosity},
         "model": {"turbulence": case.model.turbulence, "sa_variant": case.model.sa_variant},
-        "initial": {
-            "velocity": _vec(case.initial.velocity),
-            "pressure": case.initial.pressure,
-            "nu_tilde_ratio": case.initial.nu_tilde_ratio,
-        },
+        "initial": _initial_data(case.initial),
         "boundary": {name: boundary_data(b, keep_callables) for name, b in case.boundaries.items()},
         "solver": {
             "coupling": s.coupling,

@@ -36,7 +36,7 @@ TABLE_KEYS: dict[str, tuple[str, ...]] = {
              "unnamed_edges"),
     "fluid": ("density", "viscosity"),
     "model": ("turbulence", "sa_variant"),
-    "initial": ("velocity", "pressure", "nu_tilde_ratio"),
+    "initial": ("velocity", "pressure", "nu_tilde_ratio", "from_result"),
     "solver": (
         "coupling", "max_iterations", "tolerance", "relax_velocity", "relax_pressure",
         "relax_turbulence", "convection", "turbulence_convection", "gradient", "limiter",
@@ -322,12 +322,7 @@ def case_from_dict(data: Mapping[str, Any], source: str | Path | None = None) ->
         turbulence=model_t.choice("turbulence", S.TURBULENCE_MODELS, "none"),
         sa_variant=model_t.choice("sa_variant", S.SA_VARIANTS, "standard"),
     )
-    init_t = _Table(ctx, ("initial",), top.table("initial", {}), TABLE_KEYS["initial"], "[initial]")
-    initial = S.InitialState(
-        velocity=init_t.vector("velocity", (0.0, 0.0)),
-        pressure=init_t.number("pressure", 0.0),
-        nu_tilde_ratio=init_t.number("nu_tilde_ratio", 3.0, NON_NEGATIVE, "the initial ratio nu_tilde / nu"),
-    )
+    initial = _initial(ctx, top.table("initial", {}))
     boundaries = _boundaries(ctx, top.table("boundary", hint=(
         'add one table per mesh patch, e.g. [boundary.walls] with kind = "wall"')))
     solver = _solver(ctx, top.table("solver", {}))
@@ -347,6 +342,41 @@ def case_from_dict(data: Mapping[str, Any], source: str | Path | None = None) ->
         probes=probes,
         raw=S.copy_data(data),
     )
+
+
+def _initial(ctx: _Ctx, data: Any) -> S.InitialState:
+    t = _Table(ctx, ("initial",), data, TABLE_KEYS["initial"], "[initial]")
+    from_result = None
+    if t.has("from_result"):
+        if t.has("velocity"):
+            raise t.fail("velocity", "the start velocity comes from from_result; remove initial.velocity")
+        from_result = _check_result_folder(ctx, ("initial", "from_result"), t.data["from_result"])
+    return S.InitialState(
+        velocity=t.vector("velocity", (0.0, 0.0)),
+        pressure=t.number("pressure", 0.0),
+        nu_tilde_ratio=t.number("nu_tilde_ratio", 3.0, NON_NEGATIVE, "the initial ratio nu_tilde / nu"),
+        from_result=from_result,
+    )
+
+
+def _check_result_folder(ctx: _Ctx, path: tuple[str, ...], v: Any) -> Path:
+    """An existing folder holding fields.vtu (the output folder of a run)."""
+    from fvrans.reference.source import RESULT_FIELDS
+
+    if isinstance(v, os.PathLike):
+        v = os.fspath(v)
+    if not isinstance(v, str) or not v.strip():
+        raise ctx.error(path, f"must be the path of a result folder (a quoted string), got {describe(v)}")
+    p = Path(v).expanduser()
+    full = (p if p.is_absolute() else ctx.base / p).resolve()
+    rel = "" if p.is_absolute() else f" (relative paths start from {ctx.base})"
+    if not full.is_dir():
+        raise ctx.error(path, f"the result folder {full} does not exist{rel}; give the folder a run wrote "
+                        "(fvrans run ... --out FOLDER)")
+    if not (full / RESULT_FIELDS).is_file():
+        raise ctx.error(path, f"{full} holds no {RESULT_FIELDS}; give the output folder of a run that wrote "
+                        "its fields (output.write_fields = true)")
+    return full
 
 
 def _mesh(ctx: _Ctx, data: Any) -> S.MeshSettings:
