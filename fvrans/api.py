@@ -251,6 +251,15 @@ def _initial_fields(problem: Problem, initial: Result | Fields | None) -> Fields
     return fields.copy()
 
 
+def _mean_flow_summary(solver: SimpleSolver) -> dict[str, Any]:
+    """The mean pressure gradient that drives a periodic flow and its bulk (volume-mean) velocity."""
+    vol = solver.geom.cell_area
+    bulk = vol @ solver.fields.velocity / vol.sum()
+    g = -(vol @ solver.body) / vol.sum()
+    return {"mean_flow": {"pressure_gradient": [float(g[0]), float(g[1])],
+                          "bulk_velocity": [float(bulk[0]), float(bulk[1])]}}
+
+
 def _gradients(solver: SimpleSolver, grad_p: np.ndarray) -> dict[str, np.ndarray]:
     """Cell gradients of u, v, p of the final state, for probes."""
     f = solver.fields
@@ -291,9 +300,12 @@ def solve(
         initial = ckpt.fields
     fields = _initial_fields(problem, initial)
     model = model_for_case(c, problem.mesh, problem.geom, problem.boundary)
+    mf = c.mean_flow
     solver = SimpleSolver(
         problem.mesh, problem.geom, problem.boundary, rho=c.fluid.density, mu=c.fluid.viscosity,
         controls=controls, fields=fields, model=model,
+        body_force=None if mf.pressure_gradient is None else -np.asarray(mf.pressure_gradient, dtype=float),
+        bulk_velocity=mf.bulk_velocity,
     )
     if ckpt is not None:
         if list(ckpt.history_names) != list(solver.history.names):
@@ -341,6 +353,7 @@ def solve(
             "raise solver.max_iterations or restart from this result"
         )
     extra: dict[str, Any] = {
+        "summary": _mean_flow_summary(solver) if mf.active else {},
         "gradients": _gradients(solver, grad_p),
         "cell_data": model.cell_outputs(solver.fields),
     }

@@ -50,7 +50,7 @@ def _cmd_run(args: argparse.Namespace) -> int:
     if stop.signal_name is not None and result.interrupted:
         result.message = (f"interrupted by {stop.signal_name} at iteration {result.iterations}; continue with: "
                           f"fvrans run {args.case} --out DIR --restart {out}")
-        result.extra["summary"] = {"interrupted_by": stop.signal_name}
+        result.extra.setdefault("summary", {})["interrupted_by"] = stop.signal_name
     if not result.converged or case.solver.checkpoint_every > 0 or checkpoint.exists():
         result.write_checkpoint(checkpoint)
     result.write(out)

@@ -15,8 +15,12 @@ from typing import Any
 import numpy as np
 
 # -- allowed values ------------------------------------------------------------------------
-TURBULENCE_MODELS = ("none", "spalart-allmaras")
+TURBULENCE_MODELS = ("none", "spalart-allmaras", "k-omega-sst")
 SA_VARIANTS = ("standard", "no-ft2")
+NONLINEAR_STRESSES = ("none", "qcr2000")
+#: defaults of the k-omega SST inflow and start values: turbulence intensity sqrt(2k/3)/|u| and nu_t / nu
+DEFAULT_TURBULENCE_INTENSITY = 0.001
+DEFAULT_EDDY_VISCOSITY_RATIO = 0.1
 BOUNDARY_KINDS = ("wall", "velocity-inlet", "pressure-outlet", "symmetry", "freestream")
 COUPLINGS = ("simple", "simplec")
 CONVECTION_SCHEMES = ("upwind", "linear-upwind")
@@ -26,10 +30,11 @@ LIMITERS = ("none", "venkatakrishnan", "barth-jespersen")
 #: keys each boundary kind takes (besides none else)
 BOUNDARY_KEYS: dict[str, tuple[str, ...]] = {
     "wall": ("kind", "velocity"),
-    "velocity-inlet": ("kind", "velocity", "profile", "profile_columns", "nut_ratio"),
+    "velocity-inlet": ("kind", "velocity", "profile", "profile_columns", "nut_ratio", "turbulence_intensity",
+                       "eddy_viscosity_ratio"),
     "pressure-outlet": ("kind", "pressure"),
     "symmetry": ("kind",),
-    "freestream": ("kind", "velocity", "pressure", "nut_ratio"),
+    "freestream": ("kind", "velocity", "pressure", "nut_ratio", "turbulence_intensity", "eddy_viscosity_ratio"),
 }
 PROFILE_COLUMN_KEYS = ("coordinate", "u", "v", "nut_ratio")
 #: column names used when ``profile_columns`` does not name them
@@ -54,6 +59,8 @@ class MeshSettings:
     generator: str | None = None
     parameters: dict[str, Any] = field(default_factory=dict)
     renumber: bool = False
+    #: pairs of patches (first, second = first moved by a translation) joined as periodic
+    periodic_pairs: tuple[tuple[str, str], ...] = ()
 
 
 @dataclass(frozen=True)
@@ -71,8 +78,13 @@ class Fluid:
 
 @dataclass(frozen=True)
 class ModelSettings:
+    """The turbulence model and its options (``sa_*`` only with Spalart-Allmaras;
+    ``nonlinear_stress`` with any eddy-viscosity model)."""
+
     turbulence: str = "none"
     sa_variant: str = "standard"
+    sa_rotation_curvature: bool = False
+    nonlinear_stress: str = "none"
 
 
 @dataclass(frozen=True)
@@ -80,6 +92,22 @@ class InitialState:
     velocity: tuple[float, float] = (0.0, 0.0)
     pressure: float = 0.0
     nut_ratio: float = 3.0
+    turbulence_intensity: float = DEFAULT_TURBULENCE_INTENSITY
+    eddy_viscosity_ratio: float = DEFAULT_EDDY_VISCOSITY_RATIO
+
+
+@dataclass(frozen=True)
+class MeanFlow:
+    """What drives the flow through periodic pairs: a fixed mean pressure gradient (dp/dx, dp/dy),
+    applied as the body force -grad p, or a fixed bulk (volume-mean) velocity, for which that
+    gradient is found each iteration. At most one is set."""
+
+    pressure_gradient: tuple[float, float] | None = None
+    bulk_velocity: tuple[float, float] | None = None
+
+    @property
+    def active(self) -> bool:
+        return self.pressure_gradient is not None or self.bulk_velocity is not None
 
 
 @dataclass(frozen=True)
@@ -99,6 +127,8 @@ class BoundarySpec:
     nut_ratio: float | None = None
     profile: Path | None = None
     profile_columns: dict[str, str] | None = None
+    turbulence_intensity: float | None = None
+    eddy_viscosity_ratio: float | None = None
 
     def velocity_at(self, x, y, label: str = "<in memory>: boundary") -> tuple[np.ndarray, np.ndarray]:
         """Velocity components at points ``(x, y)`` (face centres), as float arrays of x's shape.
@@ -196,6 +226,7 @@ class Case:
     solver: SolverSettings
     output: OutputSettings
     probes: dict[str, ProbeLine] = field(default_factory=dict)
+    mean_flow: MeanFlow = field(default_factory=MeanFlow)
     raw: dict[str, Any] | None = field(default=None, compare=False, repr=False)
 
     @property
@@ -299,6 +330,10 @@ def boundary_data(b: BoundarySpec, keep_callables: bool = False) -> dict[str, An
         out["pressure"] = float(b.pressure)
     if b.nut_ratio is not None:
         out["nut_ratio"] = float(b.nut_ratio)
+    if b.turbulence_intensity is not None:
+        out["turbulence_intensity"] = float(b.turbulence_intensity)
+    if b.eddy_viscosity_ratio is not None:
+        out["eddy_viscosity_ratio"] = float(b.eddy_viscosity_ratio)
     return out
 
 
@@ -311,6 +346,8 @@ def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
         mesh["generator"] = m.generator
         mesh["parameters"] = copy_data(m.parameters)
     mesh["renumber"] = bool(m.renumber)
+    if m.periodic_pairs:
+        mesh["periodic_pairs"] = [list(p) for p in m.periodic_pairs]
     s = case.solver
     output: dict[str, Any] = {
         "wall_patches": list(case.output.wall_patches),
@@ -326,11 +363,15 @@ def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
         "description": case.description,
         "mesh": mesh,
         "fluid": {"density": case.fluid.density, "viscosity": case.fluid.viscosity},
-        "model": {"turbulence": case.model.turbulence, "sa_variant": case.model.sa_variant},
+        "model": {"turbulence": case.model.turbulence, "sa_variant": case.model.sa_variant,
+                  "sa_rotation_curvature": case.model.sa_rotation_curvature,
+                  "nonlinear_stress": case.model.nonlinear_stress},
         "initial": {
             "velocity": _vec(case.initial.velocity),
             "pressure": case.initial.pressure,
             "nut_ratio": case.initial.nut_ratio,
+            "turbulence_intensity": case.initial.turbulence_intensity,
+            "eddy_viscosity_ratio": case.initial.eddy_viscosity_ratio,
         },
         "boundary": {name: boundary_data(b, keep_callables) for name, b in case.boundaries.items()},
         "solver": {
@@ -358,6 +399,10 @@ def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
         },
         "output": output,
     }
+    mf = case.mean_flow
+    if mf.active:
+        data["mean_flow"] = ({"pressure_gradient": _vec(mf.pressure_gradient)} if mf.pressure_gradient is not None
+                             else {"bulk_velocity": _vec(mf.bulk_velocity)})
     if case.probes:
         data["probes"] = {name: {"start": _vec(pr.start), "end": _vec(pr.end), "points": pr.points}
                           for name, pr in case.probes.items()}

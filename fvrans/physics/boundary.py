@@ -19,7 +19,7 @@ from typing import Any
 
 import numpy as np
 
-from fvrans.case.schema import BoundarySpec
+from fvrans.case.schema import DEFAULT_EDDY_VISCOSITY_RATIO, DEFAULT_TURBULENCE_INTENSITY, BoundarySpec
 from fvrans.errors import CaseError
 from fvrans.mesh.geometry import Geometry
 from fvrans.mesh.mesh import Mesh
@@ -37,6 +37,9 @@ class FlowBoundary:
     pressure: np.ndarray  # (nb,) fixed static pressure (outlet, freestream)
     nut_ratio: np.ndarray  # (nb,) inflow nu_tilde / nu (inlet, freestream)
     patch_kind: dict[str, str]  # patch name -> kind name
+    #: (nb,) inflow sqrt(2k/3) / |u| and nu_t / nu of two-equation models (inlet, freestream); None: defaults
+    turbulence_intensity: np.ndarray | None = None
+    eddy_viscosity_ratio: np.ndarray | None = None
 
     @property
     def has_fixed_pressure(self) -> bool:
@@ -67,6 +70,8 @@ def build_flow_boundary(mesh: Mesh, geom: Geometry, specs: Mapping[str, Any]) ->
     vel = np.zeros((nb, 2))
     pres = np.zeros(nb)
     nut = np.zeros(nb)
+    tu = np.full(nb, DEFAULT_TURBULENCE_INTENSITY)
+    ratio = np.full(nb, DEFAULT_EDDY_VISCOSITY_RATIO)
     patch_kind: dict[str, str] = {}
     for patch in mesh.patches:
         if patch.name not in specs:
@@ -95,6 +100,7 @@ def build_flow_boundary(mesh: Mesh, geom: Geometry, specs: Mapping[str, Any]) ->
         elif code == INLET:
             vel[sl] = np.stack(spec.velocity_at(xf[:, 0], xf[:, 1], f"boundary.{patch.name}"), axis=1)
             nut[sl] = _nut_ratio(spec, patch.name, xf)
+            tu[sl], ratio[sl] = _two_equation_inflow(spec)
         elif code == OUTLET:
             pres[sl] = float(spec.pressure or 0.0)
         elif code == FREESTREAM:
@@ -104,5 +110,15 @@ def build_flow_boundary(mesh: Mesh, geom: Geometry, specs: Mapping[str, Any]) ->
             vel[sl] = np.asarray(v, dtype=float)
             pres[sl] = float(spec.pressure or 0.0)
             nut[sl] = _nut_ratio(spec, patch.name, xf)
-    return FlowBoundary(kind=kind, velocity=vel, pressure=pres, nut_ratio=nut, patch_kind=patch_kind)
+            tu[sl], ratio[sl] = _two_equation_inflow(spec)
+    return FlowBoundary(kind=kind, velocity=vel, pressure=pres, nut_ratio=nut, patch_kind=patch_kind,
+                        turbulence_intensity=tu, eddy_viscosity_ratio=ratio)
+
+
+def _two_equation_inflow(spec: BoundarySpec) -> tuple[float, float]:
+    """(turbulence intensity, nu_t / nu) of an inflow condition, defaults where it gives none."""
+    tu = getattr(spec, "turbulence_intensity", None)
+    ratio = getattr(spec, "eddy_viscosity_ratio", None)
+    return (DEFAULT_TURBULENCE_INTENSITY if tu is None else float(tu),
+            DEFAULT_EDDY_VISCOSITY_RATIO if ratio is None else float(ratio))
 
