@@ -37,19 +37,14 @@ from __future__ import annotations
 
 import numpy as np
 
-from fvrans.errors import CaseError, DivergenceError
+from fvrans.errors import CaseError
 from fvrans.fields import Fields
-from fvrans.fv.assembly import Coefficients, CsrAssembler, under_relax
-from fvrans.fv.boundary import DIRICHLET, NEUMANN, BoundaryScalar, boundary_face_values
-from fvrans.fv.convection import convection_coefficients
-from fvrans.fv.diffusion import diffusion_coefficients
-from fvrans.fv.gradient import gradient_operator, limit_gradient
-from fvrans.linalg._smoother_kernels import gauss_seidel
-from fvrans.linalg.amg import AmgKrylovSolver
+from fvrans.fv.boundary import DIRICHLET, NEUMANN, BoundaryScalar
 from fvrans.mesh.geometry import Geometry
 from fvrans.mesh.mesh import Mesh
 from fvrans.models import _sa_kernels as K
 from fvrans.models.base import EDDY_VISCOSITY_RATIO, TurbulenceModel, case_wall_distance, checked_wall_distance
+from fvrans.models.transport import CONVECTION, LINEAR_SOLVERS, TransportEquation
 from fvrans.physics.boundary import FREESTREAM, INLET, WALL, FlowBoundary
 
 #: the model constants (see ``_sa_kernels``; SA 1994 and AJS 2012)
@@ -58,8 +53,6 @@ CONSTANTS = {
     "cw3": K.CW3, "cv1": K.CV1, "ct3": K.CT3, "ct4": K.CT4, "cv2": K.CV2, "cv3": K.CV3, "cn1": K.CN1,
 }
 VARIANTS = ("standard", "no-ft2")
-LINEAR_SOLVERS = ("amg", "gauss-seidel")
-CONVECTION = ("upwind", "linear-upwind")
 
 
 def eddy_viscosity(nu_tilde: np.ndarray, nu: float, rho: float = 1.0) -> np.ndarray:
@@ -118,12 +111,6 @@ class SpalartAllmaras(TurbulenceModel):
     ):
         if variant not in VARIANTS:
             raise CaseError(f"model.sa_variant = {variant!r} is not known; use one of {VARIANTS}")
-        if convection not in CONVECTION:
-            raise CaseError(f"solver.turbulence_convection = {convection!r} is not known; use one of {CONVECTION}")
-        if not 0.0 < relax <= 1.0:
-            raise CaseError(f"solver.relax_turbulence = {relax!r} must be in (0, 1]")
-        if linear_solver not in LINEAR_SOLVERS:
-            raise CaseError(f"solver.turbulence_solver = {linear_solver!r} is not known; use one of {LINEAR_SOLVERS}")
         self.mesh = mesh
         self.geom = geom
         self.bc_flow = boundary
@@ -131,45 +118,28 @@ class SpalartAllmaras(TurbulenceModel):
         self.nu = float(mu) / float(rho)
         self.use_ft2 = variant == "standard"
         self.variant = variant
-        self.relax = float(relax)
-        self.scheme = "linear_upwind" if convection == "linear-upwind" else "upwind"
-        self.limiter = None if limiter in ("none", None) else limiter.replace("-", "_")
         self.initial_nut_ratio = float(initial_nut_ratio)
-        self.linear_solver = linear_solver
-        self.linear_tolerance = float(linear_tolerance)
-        self.linear_max_iterations = int(linear_max_iterations)
-        self.ksolver = AmgKrylovSolver("bicgstab", rtol=self.linear_tolerance, rebuild_every=int(amg_rebuild_every),
-                                       max_iterations=self.linear_max_iterations)
-        nc, ni = mesh.n_cells, mesh.n_internal_faces
-        if wall_distance is None:
-            wall_distance = case_wall_distance(mesh, geom, boundary, "Spalart-Allmaras")
-        d = checked_wall_distance(wall_distance, nc)
-        self.wall_distance = d
+        nc = mesh.n_cells
         kind = boundary.kind
-        self.kind = kind
         self.inflow_value = self.nu * boundary.nut_ratio
         bkind = np.full(len(kind), NEUMANN, dtype=np.int8)
         bval = np.zeros(len(kind))
         bkind[kind == WALL] = DIRICHLET
         bkind[kind == INLET] = DIRICHLET
         bval[kind == INLET] = self.inflow_value[kind == INLET]
-        self.bc = BoundaryScalar(bkind, bval)
-        self.freestream = np.flatnonzero(kind == FREESTREAM)
-        self.grad = gradient_operator(mesh, geom, method=gradient.replace("-", "_"))
-        self.asm = CsrAssembler(mesh)
-        self.coeffs = Coefficients.zeros(mesh)
-        self.grad_nt = np.zeros((nc, 2))
-        self.nt_b = np.zeros(mesh.n_boundary_faces)
+        self.equation = TransportEquation(
+            mesh, geom, "nu_tilde", BoundaryScalar(bkind, bval), np.flatnonzero(kind == FREESTREAM),
+            self.inflow_value, relax=relax, convection=convection, gradient=gradient, limiter=limiter,
+            linear_solver=linear_solver, linear_tolerance=linear_tolerance,
+            linear_max_iterations=linear_max_iterations, amg_rebuild_every=amg_rebuild_every,
+        )
+        if wall_distance is None:
+            wall_distance = case_wall_distance(mesh, geom, boundary, "Spalart-Allmaras")
+        self.wall_distance = checked_wall_distance(wall_distance, nc)
         self.gamma_cell = np.zeros(nc)
         self.gamma_b = np.zeros(mesh.n_boundary_faces)
         self.gamma_f = np.zeros(mesh.n_faces)
         self.mu_t = np.zeros(nc)
-        self.ni = ni
-        self.own_i = mesh.face_owner[:ni]
-        self.nei_i = mesh.face_neighbour[:ni]
-        self.w_i = geom.face_weight[:ni]
-        #: iterations (amg) or sweeps (gauss-seidel) of the last linear solve
-        self.last_iterations = 0
 
     @classmethod
     def from_case(cls, case, mesh: Mesh, geom: Geometry, boundary: FlowBoundary,
@@ -207,63 +177,25 @@ class SpalartAllmaras(TurbulenceModel):
         corrected face fluxes; returns [scaled residual]."""
         nt = np.ascontiguousarray(self._ensure(fields), dtype=np.float64)
         F = np.ascontiguousarray(fields.face_flux, dtype=np.float64)
-        ni = self.ni
-        bc = self.bc
-        # freestream faces: inflow value where the flux enters, zero gradient where it leaves
-        fs = self.freestream
-        if len(fs):
-            inflow = F[ni + fs] < 0.0
-            bc.kind[fs] = np.where(inflow, DIRICHLET, NEUMANN)
-            bc.value[fs] = np.where(inflow, self.inflow_value[fs], 0.0)
-        nt_b = boundary_face_values(self.mesh, self.geom, bc, nt, self.grad_nt, out=self.nt_b)
-        g = self.grad(nt, nt_b, out=self.grad_nt)
+        eq = self.equation
+        g, nt_b = eq.gradient(nt, F)
         # face diffusivity rho (nu + nt f_n) / sigma
         K.cell_diffusivity(nt, self.nu, self.gamma_cell)
         K.cell_diffusivity(nt_b, self.nu, self.gamma_b)
-        s = self.rho / K.SIGMA
-        gf = self.gamma_f
-        gf[:ni] = s * (self.w_i * self.gamma_cell[self.own_i] + (1.0 - self.w_i) * self.gamma_cell[self.nei_i])
-        gf[ni:] = s * self.gamma_b
-        co = self.coeffs.clear()
-        diffusion_coefficients(self.mesh, self.geom, gf, bc, g, out=co)
-        if self.scheme == "linear_upwind" and self.limiter is not None:
-            gc, _ = limit_gradient(self.mesh, self.geom, nt, nt_b, g, self.limiter)
-        else:
-            gc = g
-        convection_coefficients(self.mesh, self.geom, F, nt_b, self.scheme, gc, out=co)
-        K.continuity_correction(self.mesh.face_owner, self.mesh.face_neighbour, ni, F, co.diag)
+        gf = eq.face_values(self.gamma_cell, self.gamma_b, self.gamma_f, self.rho / K.SIGMA)
+        co = eq.assemble(nt, F, gf, g, nt_b)
         gu = np.ascontiguousarray(grad_u, dtype=np.float64)
         K.assemble_sources(nt, self.nu, self.rho, self.geom.cell_area, self.wall_distance, gu, g,
                            self.use_ft2, co.diag, co.source)
-        A = self.asm.matrix(co.diag, co.off_owner, co.off_neighbour)
-        r, a_sum = K.residual_sums(A.indptr, A.indices, A.data, self.asm.diag_pos, co.source, nt)
         scale = max(float(np.max(np.abs(nt), initial=0.0)), float(np.max(self.inflow_value, initial=0.0)))
-        res = r / (scale * a_sum + 1e-300)
-        under_relax(co, nt, self.relax)
-        bad = np.flatnonzero(~(co.diag > 0.0))
-        if len(bad):  # only a flow field that is already running away can do this
-            c = int(bad[0])
-            x, y = self.geom.cell_centre[c]
-            raise DivergenceError(
-                f"the nu_tilde equation lost its diagonal at cell {c} (x = {x:.4g}, y = {y:.4g}; "
-                f"{len(bad)} cells): the velocity field is running away"
-            )
-        A = self.asm.matrix(co.diag, co.off_owner, co.off_neighbour)
-        x = nt.copy()
-        if self.linear_solver == "amg":
-            self.last_iterations = self.ksolver.solve(A, co.source, x)
-        else:
-            self.last_iterations, _, _ = gauss_seidel(A.indptr, A.indices, A.data, self.asm.diag_pos, co.source, x,
-                                                      self.linear_max_iterations, self.linear_tolerance)
+        x, res = eq.solve(nt, co, scale)
         fields.variables["nu_tilde"] = x
         return [res]
 
     # -- outputs --------------------------------------------------------------------------
     def nu_tilde_gradient(self, nu_tilde: np.ndarray) -> np.ndarray:
         """Cell gradient of nu_tilde with this model's boundary values."""
-        nt = np.ascontiguousarray(nu_tilde, dtype=float)
-        nt_b = boundary_face_values(self.mesh, self.geom, self.bc, nt, self.grad_nt)
-        return np.array(self.grad(nt, nt_b))
+        return self.equation.cell_gradient(nu_tilde)
 
     def cell_outputs(self, fields: Fields) -> dict[str, np.ndarray]:
         """nu_tilde, nu_t / nu and the wall distance."""
@@ -284,5 +216,5 @@ class SpalartAllmaras(TurbulenceModel):
         return {EDDY_VISCOSITY_RATIO: eddy_viscosity(sampled["nu_tilde"], self.nu) / self.nu}
 
 
-__all__ = ["CONSTANTS", "SpalartAllmaras", "eddy_viscosity", "source_terms"]
+__all__ = ["CONSTANTS", "CONVECTION", "LINEAR_SOLVERS", "SpalartAllmaras", "eddy_viscosity", "source_terms"]
 

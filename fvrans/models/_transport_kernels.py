@@ -1,0 +1,32 @@
+"""numba kernels shared by the transport equations of the turbulence models."""
+
+from __future__ import annotations
+
+from numba import njit
+
+
+@njit(cache=True)
+def continuity_correction(owner, neighbour, nfi, flux, diag):
+    """diag[c] -= sum of the face fluxes out of c: removes the mass-imbalance part of div(F phi)
+    (zero at convergence); with upwind convection the diagonal stays the sum of the inflows."""
+    nf = owner.shape[0]
+    for f in range(nfi):
+        diag[owner[f]] -= flux[f]
+        diag[neighbour[f]] += flux[f]
+    for f in range(nfi, nf):
+        diag[owner[f]] -= flux[f]
+
+
+@njit(cache=True)
+def residual_sums(indptr, indices, data, diag_pos, b, x):
+    """(sum |b - A x|, sum of the diagonal of A)."""
+    n = b.shape[0]
+    r = 0.0
+    a = 0.0
+    for i in range(n):
+        acc = b[i]
+        for k in range(indptr[i], indptr[i + 1]):
+            acc -= data[k] * x[indices[k]]
+        r += abs(acc)
+        a += data[diag_pos[i]]
+    return r, a
