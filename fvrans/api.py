@@ -49,13 +49,15 @@ from fvrans.post import (
     write_residuals_csv,
     write_vtu_atomic,
 )
+from fvrans.post.overlay import overlay_plots
 from fvrans.post.probes import sample_line, write_probe_csv
 from fvrans.solve.simple import History, SimpleSolver, SolverControls
 
 log = logging.getLogger(__name__)
 
 __all__ = [
-    "Problem", "Result", "apply_overrides", "case_from_dict", "load_case", "prepare", "residual_names", "solve",
+    "Problem", "Result", "apply_overrides", "case_from_dict", "load_case", "overlay_plots", "prepare", "residual_names",
+    "solve",
 ]
 
 

@@ -19,7 +19,7 @@ from pathlib import Path
 
 import numpy as np
 
-from fvrans.case.schema import DEFAULT_PROFILE_COLUMNS, BoundarySpec
+from fvrans.case.schema import DEFAULT_PROFILE_COLUMNS, OPTIONAL_PROFILE_COLUMNS, BoundarySpec
 from fvrans.errors import CaseError
 
 #: how far (as a fraction of the table's coordinate span) a point may lie beyond the table
@@ -120,9 +120,10 @@ def resolve_profile(
 ) -> dict[str, str]:
     """Check a profile file against its column mapping; return the resolved mapping.
 
-    ``coordinate``, ``u`` and ``v`` must exist (under the given or default names); ``nut_ratio``
-    is included when named explicitly (then it must exist) or when the file has the default
-    column ``nut_ratio``. ``fail(key_suffix, message)`` makes the error.
+    ``coordinate``, ``u`` and ``v`` must exist (under the given or default names); ``nut_ratio``,
+    ``k`` and ``omega`` are included when named explicitly (then they must exist) or when the file
+    has the default column; ``k`` and ``omega`` come together. ``fail(key_suffix, message)`` makes
+    the error.
     """
     for k, v in given.items():
         if not isinstance(v, str) or not v.strip():
@@ -136,11 +137,15 @@ def resolve_profile(
         raise fail(("profile_columns", "coordinate"),
                    f"must be 'x' or 'y', got {cols['coordinate']!r}: the profile is interpolated along "
                    "that mesh axis, and its CSV column carries the axis name")
-    nut_name = given.get("nut_ratio")
-    if nut_name is not None:
-        cols["nut_ratio"] = nut_name
-    elif DEFAULT_PROFILE_COLUMNS["nut_ratio"] in table.names:
-        cols["nut_ratio"] = DEFAULT_PROFILE_COLUMNS["nut_ratio"]
+    for key in OPTIONAL_PROFILE_COLUMNS:
+        if given.get(key) is not None:
+            cols[key] = given[key]
+        elif DEFAULT_PROFILE_COLUMNS[key] in table.names:
+            cols[key] = DEFAULT_PROFILE_COLUMNS[key]
+    if ("k" in cols) != ("omega" in cols):
+        has, lacks = ("k", "omega") if "k" in cols else ("omega", "k")
+        raise fail(("profile",), f"the profile file {path} gives {has} (column {cols[has]!r}) but not {lacks}; "
+                   f"the k-omega SST inflow needs both columns, or neither")
     for k, name in cols.items():
         if name not in table.names:
             how = (f"profile_columns.{k} names it" if k in given else
@@ -156,6 +161,11 @@ def resolve_profile(
     if "nut_ratio" in cols and np.any(table.columns[cols["nut_ratio"]] < 0):
         raise fail(("profile",), f"the profile file {path} has negative values in column "
                    f"{cols['nut_ratio']!r}; nu_tilde / nu must be >= 0")
+    if "k" in cols and np.any(table.columns[cols["k"]] < 0):
+        raise fail(("profile",), f"the profile file {path} has negative values in column {cols['k']!r}; k must be >= 0")
+    if "omega" in cols and np.any(table.columns[cols["omega"]] <= 0):
+        raise fail(("profile",), f"the profile file {path} has values <= 0 in column {cols['omega']!r}; "
+                   "omega must be > 0")
     return cols
 
 
@@ -214,6 +224,12 @@ def evaluate_velocity(
         raise CaseError(f"{label}.velocity: the Python function returned a non-finite velocity at "
                         f"({x.ravel()[i]:.6g}, {y.ravel()[i]:.6g})")
     return u, w
+
+
+def evaluate_column(spec: BoundarySpec, x: np.ndarray, y: np.ndarray, column: str, label: str) -> np.ndarray:
+    """A column of the condition's profile at points (x, y) (linear interpolation)."""
+    x, y = np.broadcast_arrays(x, y)
+    return _interpolate(spec, x, y, column, label)
 
 
 def evaluate_nut_ratio(spec: BoundarySpec, x: np.ndarray, y: np.ndarray, label: str) -> np.ndarray:

@@ -36,12 +36,18 @@ BOUNDARY_KEYS: dict[str, tuple[str, ...]] = {
     "symmetry": ("kind",),
     "freestream": ("kind", "velocity", "pressure", "nut_ratio", "turbulence_intensity", "eddy_viscosity_ratio"),
 }
-PROFILE_COLUMN_KEYS = ("coordinate", "u", "v", "nut_ratio")
+PROFILE_COLUMN_KEYS = ("coordinate", "u", "v", "nut_ratio", "k", "omega")
 #: column names used when ``profile_columns`` does not name them
-DEFAULT_PROFILE_COLUMNS = {"coordinate": "y", "u": "u", "v": "v", "nut_ratio": "nut_ratio"}
+DEFAULT_PROFILE_COLUMNS = {"coordinate": "y", "u": "u", "v": "v", "nut_ratio": "nut_ratio", "k": "k",
+                           "omega": "omega"}
+#: optional profile columns of the turbulence models (used when named or present under the default name)
+OPTIONAL_PROFILE_COLUMNS = ("nut_ratio", "k", "omega")
 #: default under-relaxation of the pressure correction for each coupling
 DEFAULT_RELAX_PRESSURE = {"simple": 0.3, "simplec": 1.0}
 DEFAULT_RELAX_VELOCITY = {"simple": 0.7, "simplec": 0.95}
+#: default relative tolerance of each turbulence solve, by model (others: 0.01): omega spans about
+#: ten decades between a wall and the free stream, and a looser solve leaves the free stream unsolved
+DEFAULT_TURBULENCE_TOLERANCE = {"k-omega-sst": 1e-6}
 MOMENTUM_SOLVERS = ("amg", "gauss-seidel")
 TURBULENCE_SOLVERS = ("amg", "gauss-seidel")
 #: text standing for a Python function in :meth:`Case.to_dict`
@@ -145,6 +151,14 @@ class BoundarySpec:
         from fvrans.case.profile import evaluate_nut_ratio
 
         return evaluate_nut_ratio(self, np.asarray(x, float), np.asarray(y, float), label)
+
+    def profile_column_at(self, column: str, x, y, label: str = "<in memory>: boundary") -> np.ndarray | None:
+        """An optional profile column (``"k"``, ``"omega"``) at points ``(x, y)``; None without it."""
+        if self.profile is None or self.profile_columns is None or column not in self.profile_columns:
+            return None
+        from fvrans.case.profile import evaluate_column
+
+        return evaluate_column(self, np.asarray(x, float), np.asarray(y, float), column, label)
 
 
 @dataclass(frozen=True)

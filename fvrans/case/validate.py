@@ -339,7 +339,7 @@ def case_from_dict(data: Mapping[str, Any], source: str | Path | None = None) ->
     )
     boundaries = _boundaries(ctx, top.table("boundary", hint=(
         'add one table per mesh patch, e.g. [boundary.walls] with kind = "wall"')))
-    solver = _solver(ctx, top.table("solver", {}))
+    solver = _solver(ctx, top.table("solver", {}), model.turbulence)
     output = _output(ctx, top.table("output", {}), boundaries)
     probes = _probes(ctx, top.table("probes", {}))
     mean_flow = _mean_flow(ctx, top.table("mean_flow", {}), mesh)
@@ -522,7 +522,7 @@ def _inlet(ctx: _Ctx, t: _Table) -> S.BoundarySpec:
                           **_sst_inflow(t))
 
 
-def _solver(ctx: _Ctx, data: Any) -> S.SolverSettings:
+def _solver(ctx: _Ctx, data: Any, turbulence: str = "none") -> S.SolverSettings:
     t = _Table(ctx, ("solver",), data, TABLE_KEYS["solver"], "[solver]")
     coupling = t.choice("coupling", S.COUPLINGS, "simplec")
     return S.SolverSettings(
@@ -545,7 +545,8 @@ def _solver(ctx: _Ctx, data: Any) -> S.SolverSettings:
                                           "Krylov iterations per momentum solve"),
         momentum_sweeps=t.integer("momentum_sweeps", 5, AT_LEAST_ONE, "sweeps per solve"),
         turbulence_solver=t.choice("turbulence_solver", S.TURBULENCE_SOLVERS, "amg"),
-        turbulence_tolerance=t.number("turbulence_tolerance", 0.01, OPEN_UNIT, "a relative tolerance"),
+        turbulence_tolerance=t.number("turbulence_tolerance", S.DEFAULT_TURBULENCE_TOLERANCE.get(turbulence, 0.01),
+                                      OPEN_UNIT, "a relative tolerance"),
         turbulence_max_iterations=t.integer("turbulence_max_iterations", 20, AT_LEAST_ONE,
                                             "Krylov iterations or sweeps per turbulence solve"),
         amg_rebuild_every=t.integer("amg_rebuild_every", 20, AT_LEAST_ONE, "outer iterations"),

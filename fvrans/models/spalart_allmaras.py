@@ -10,7 +10,12 @@ given by Allmaras, Johnson & Spalart 2012, ICCFD7-1902 (AJS 2012), for nu_tilde 
     S_tilde = Omega + S_bar (S_bar = nt f_v2 / (kappa d)^2) with the AJS 2012 safeguard that keeps
     S_tilde >= 0.3 Omega, r = min(nt / (S_tilde kappa^2 d^2), 10).
 
-Variant ``"no-ft2"`` sets f_t2 = 0. Negative nu_tilde (AJS 2012): production cb1 (1 - ct3) Omega nt,
+Variant ``"no-ft2"`` sets f_t2 = 0. ``rotation_curvature``: the production becomes
+cb1 (f_r1 - f_t2) S_tilde nt with f_r1 of Shur, Strelets, Travin & Spalart 2000 (AIAA J. 38,
+784-792; ``_sa_kernels.rotation_function``), the material derivative of the strain-rate tensor
+taken as its convective part u . grad S_ij (steady flow, frame at rest). ``nonlinear_stress``:
+``"qcr2000"`` adds the quadratic constitutive relation (:mod:`fvrans.models.nonlinear`).
+Negative nu_tilde (AJS 2012): production cb1 (1 - ct3) Omega nt,
 destruction -cw1 (nt/d)^2 (so the source is +cw1 (nt/d)^2), diffusivity nu + nt f_n,
 f_n = (cn1 + chi^3)/(cn1 - chi^3); nu_t = 0. Constants and scalar functions: ``_sa_kernels``.
 
@@ -43,6 +48,7 @@ from fvrans.fv.boundary import DIRICHLET, NEUMANN, BoundaryScalar
 from fvrans.mesh.geometry import Geometry
 from fvrans.mesh.mesh import Mesh
 from fvrans.models import _sa_kernels as K
+from fvrans.models import nonlinear
 from fvrans.models.base import EDDY_VISCOSITY_RATIO, TurbulenceModel, case_wall_distance, checked_wall_distance
 from fvrans.models.transport import CONVECTION, LINEAR_SOLVERS, TransportEquation
 from fvrans.physics.boundary import FREESTREAM, INLET, WALL, FlowBoundary
@@ -108,6 +114,8 @@ class SpalartAllmaras(TurbulenceModel):
         linear_tolerance: float = 0.01,
         linear_max_iterations: int = 20,
         amg_rebuild_every: int = 20,
+        rotation_curvature: bool = False,
+        nonlinear_stress: str = "none",
     ):
         if variant not in VARIANTS:
             raise CaseError(f"model.sa_variant = {variant!r} is not known; use one of {VARIANTS}")
@@ -118,6 +126,9 @@ class SpalartAllmaras(TurbulenceModel):
         self.nu = float(mu) / float(rho)
         self.use_ft2 = variant == "standard"
         self.variant = variant
+        self.rotation_curvature = bool(rotation_curvature)
+        self.nonlinear_stress = nonlinear_stress
+        nonlinear.extra_stress(nonlinear_stress, np.zeros(0), np.zeros((0, 2, 2)))  # checks the name
         self.initial_nut_ratio = float(initial_nut_ratio)
         nc = mesh.n_cells
         kind = boundary.kind
@@ -140,6 +151,8 @@ class SpalartAllmaras(TurbulenceModel):
         self.gamma_b = np.zeros(mesh.n_boundary_faces)
         self.gamma_f = np.zeros(mesh.n_faces)
         self.mu_t = np.zeros(nc)
+        self.fr1 = np.ones(nc)
+        self.owner_b = mesh.face_owner[mesh.n_internal_faces :]
 
     @classmethod
     def from_case(cls, case, mesh: Mesh, geom: Geometry, boundary: FlowBoundary,
@@ -152,6 +165,7 @@ class SpalartAllmaras(TurbulenceModel):
             wall_distance=wall_distance, gradient=s.gradient, limiter=s.limiter,
             linear_solver=s.turbulence_solver, linear_tolerance=s.turbulence_tolerance,
             linear_max_iterations=s.turbulence_max_iterations, amg_rebuild_every=s.amg_rebuild_every,
+            rotation_curvature=case.model.sa_rotation_curvature, nonlinear_stress=case.model.nonlinear_stress,
         )
 
     # -- interface of the solver -----------------------------------------------------------
@@ -172,6 +186,19 @@ class SpalartAllmaras(TurbulenceModel):
     def wall_eddy_viscosity(self) -> float:
         return 0.0  # nu_tilde = 0 on the wall
 
+    def extra_stress(self, fields: Fields, grad_u: np.ndarray) -> np.ndarray | None:
+        """The non-linear part of the Reynolds stress (QCR2000 when asked for), else None."""
+        return nonlinear.extra_stress(self.nonlinear_stress, self.mu_t, grad_u)
+
+    def rotation_function(self, velocity: np.ndarray, grad_u: np.ndarray) -> np.ndarray:
+        """f_r1 per cell (see ``_sa_kernels.rotation_function``); S_ij gradients with zero normal
+        gradient on the boundary."""
+        g = grad_u
+        strain = np.ascontiguousarray(np.stack([g[:, 0, 0], 0.5 * (g[:, 0, 1] + g[:, 1, 0]), g[:, 1, 1]], axis=1))
+        grad_strain = self.equation.grad(strain, strain[self.owner_b])
+        K.rotation_function(g, np.ascontiguousarray(velocity, dtype=float), grad_strain, self.fr1)
+        return self.fr1
+
     def update(self, fields: Fields, grad_u: np.ndarray) -> list[float]:
         """Assemble and solve the nu_tilde equation once with the new velocity gradient and the
         corrected face fluxes; returns [scaled residual]."""
@@ -185,8 +212,10 @@ class SpalartAllmaras(TurbulenceModel):
         gf = eq.face_values(self.gamma_cell, self.gamma_b, self.gamma_f, self.rho / K.SIGMA)
         co = eq.assemble(nt, F, gf, g, nt_b)
         gu = np.ascontiguousarray(grad_u, dtype=np.float64)
+        if self.rotation_curvature:
+            self.rotation_function(fields.velocity, gu)
         K.assemble_sources(nt, self.nu, self.rho, self.geom.cell_area, self.wall_distance, gu, g,
-                           self.use_ft2, co.diag, co.source)
+                           self.use_ft2, self.fr1, co.diag, co.source)
         scale = max(float(np.max(np.abs(nt), initial=0.0)), float(np.max(self.inflow_value, initial=0.0)))
         x, res = eq.solve(nt, co, scale)
         fields.variables["nu_tilde"] = x

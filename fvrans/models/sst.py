@@ -16,7 +16,8 @@ sources). The 2/3 rho k delta_ij part of the Reynolds stress is left in the pres
 Boundary values: k = 0 and w = 10 * 6 nu / (beta_1 d_1^2) on walls (Menter 1994, d_1 the wall
 distance of the wall cell's centre); on velocity inlets and where the mass flux enters through a
 freestream face k = 3/2 (Tu |u|)^2 and w = k / (r nu) from the case's turbulence intensity Tu and
-eddy-viscosity ratio r; zero normal gradient elsewhere. The start values take Tu and r of
+eddy-viscosity ratio r, or from the ``k`` and ``omega`` columns of an inlet profile; zero normal
+gradient elsewhere. The start values take Tu and r of
 ``[initial]`` with the largest speed of the case.
 
 Discretisation: :class:`fvrans.models.transport.TransportEquation` (upwind or linear-upwind
@@ -35,6 +36,7 @@ from fvrans.fv.boundary import DIRICHLET, NEUMANN, BoundaryScalar, boundary_face
 from fvrans.mesh.geometry import Geometry
 from fvrans.mesh.mesh import Mesh
 from fvrans.models import _sst_kernels as K
+from fvrans.models import nonlinear
 from fvrans.models.base import EDDY_VISCOSITY_RATIO, TurbulenceModel, case_wall_distance, checked_wall_distance
 from fvrans.models.transport import TransportEquation
 from fvrans.physics.boundary import FREESTREAM, INLET, WALL, FlowBoundary
@@ -93,7 +95,10 @@ class KOmegaSST(TurbulenceModel):
         linear_tolerance: float = 0.01,
         linear_max_iterations: int = 20,
         amg_rebuild_every: int = 20,
+        nonlinear_stress: str = "none",
     ):
+        nonlinear.extra_stress(nonlinear_stress, np.zeros(0), np.zeros((0, 2, 2)))  # checks the name
+        self.nonlinear_stress = nonlinear_stress
         self.mesh = mesh
         self.geom = geom
         self.rho = float(rho)
@@ -110,6 +115,10 @@ class KOmegaSST(TurbulenceModel):
         speed_b = np.hypot(boundary.velocity[:, 0], boundary.velocity[:, 1])
         speed_b = np.maximum(speed_b, 1e-6 * max(float(speed_b.max(initial=0.0)), float(speed)))
         k_in, w_in = turbulence_from_intensity(speed_b, tu, ratio, self.nu)
+        if boundary.inflow_k is not None:  # an inlet profile with k and omega columns
+            given = np.isfinite(boundary.inflow_k)
+            k_in[given] = boundary.inflow_k[given]
+            w_in[given] = boundary.inflow_omega[given]
         inflow = (kind == INLET) | (kind == FREESTREAM)
         self.k_inflow = np.where(inflow, k_in, 0.0)
         self.w_inflow = np.where(inflow, w_in, 0.0)
@@ -122,13 +131,17 @@ class KOmegaSST(TurbulenceModel):
         fs = np.flatnonzero(kind == FREESTREAM)
         opts = dict(relax=relax, convection=convection, gradient=gradient, limiter=limiter,
                     linear_solver=linear_solver, linear_tolerance=linear_tolerance,
-                    linear_max_iterations=linear_max_iterations, amg_rebuild_every=amg_rebuild_every)
+                    linear_max_iterations=linear_max_iterations, amg_rebuild_every=amg_rebuild_every,
+                    scale_rows=True)
         self.eq_k = TransportEquation(mesh, geom, "k", BoundaryScalar(kk, k_val), fs, self.k_inflow, **opts)
         self.eq_w = TransportEquation(mesh, geom, "omega", BoundaryScalar(kk.copy(), w_val), fs, self.w_inflow,
                                       **opts)
         self.wall_face = wall
-        self.k_floor = FLOOR * max(float(self.k_inflow.max(initial=0.0)), self.k0)
-        self.w_floor = FLOOR * max(float(self.w_inflow.max(initial=0.0)), self.w0)
+        #: free-stream (inflow or start) sizes: the row scaling's smallest value size, and the floors
+        self.k_reference = max(float(self.k_inflow.max(initial=0.0)), self.k0)
+        self.w_reference = max(float(self.w_inflow.max(initial=0.0)), self.w0)
+        self.k_floor = FLOOR * self.k_reference
+        self.w_floor = FLOOR * self.w_reference
         # work arrays
         self.f1 = np.ones(nc)
         self.strain = np.zeros(nc)
@@ -154,7 +167,7 @@ class KOmegaSST(TurbulenceModel):
             wall_distance=wall_distance, relax=s.relax_turbulence, convection=s.turbulence_convection,
             gradient=s.gradient, limiter=s.limiter, linear_solver=s.turbulence_solver,
             linear_tolerance=s.turbulence_tolerance, linear_max_iterations=s.turbulence_max_iterations,
-            amg_rebuild_every=s.amg_rebuild_every,
+            amg_rebuild_every=s.amg_rebuild_every, nonlinear_stress=case.model.nonlinear_stress,
         )
 
     # -- interface of the solver -----------------------------------------------------------
@@ -177,6 +190,10 @@ class KOmegaSST(TurbulenceModel):
     def wall_eddy_viscosity(self) -> float:
         return 0.0  # k = 0 on the wall
 
+    def extra_stress(self, fields: Fields, grad_u: np.ndarray) -> np.ndarray | None:
+        """The non-linear part of the Reynolds stress (QCR2000 when asked for), else None."""
+        return nonlinear.extra_stress(self.nonlinear_stress, self.mu_t, grad_u)
+
     def _face_diffusivity(self, sigma_1: float, sigma_2: float) -> np.ndarray:
         """rho (nu + sigma nu_t) on the faces (nu_t = 0 on walls, the owner's value on other boundaries)."""
         K.diffusivities(self.nut, self.f1, self.nu, sigma_1, sigma_2, self.gamma_cell)
@@ -197,11 +214,11 @@ class KOmegaSST(TurbulenceModel):
         co = self.eq_k.assemble(k, F, self._face_diffusivity(K.SIGMA_K1, K.SIGMA_K2), gk, k_b)
         K.k_sources(k, w, self.nut, self.strain, self.rho, vol, co.diag, co.source)
         k_scale = max(float(np.max(np.abs(k), initial=0.0)), float(self.k_inflow.max(initial=0.0)))
-        k_new, res_k = self.eq_k.solve(k, co, k_scale)
+        k_new, res_k = self.eq_k.solve(k, co, k_scale, self.k_reference)
         co = self.eq_w.assemble(w, F, self._face_diffusivity(K.SIGMA_W1, K.SIGMA_W2), gw, w_b)
         K.omega_sources(w, self.f1, self.strain, gk, gw, self.rho, vol, co.diag, co.source)
         w_scale = max(float(np.max(np.abs(w), initial=0.0)), float(self.w_inflow.max(initial=0.0)))
-        w_new, res_w = self.eq_w.solve(w, co, w_scale)
+        w_new, res_w = self.eq_w.solve(w, co, w_scale, self.w_reference)
         fields.variables["k"] = np.maximum(k_new, self.k_floor)
         fields.variables["omega"] = np.maximum(w_new, self.w_floor)
         return [res_k, res_w]

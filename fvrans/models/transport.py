@@ -51,7 +51,10 @@ class TransportEquation:
     """Assembly and solution of one model variable ``name`` (see the module docstring).
 
     ``bc``: the boundary kinds and values (freestream faces, ``freestream``, get theirs from
-    ``inflow_value`` each iteration). Use: ``g, phi_b = eq.gradient(phi, F)``; ``co =
+    ``inflow_value`` each iteration). ``scale_rows``: divide each row by its diagonal times the size of its
+    unknown before the linear solve, so that the solve's relative tolerance weighs every cell by its
+    relative change where the values span many decades (omega: 1e7 times larger at a wall than in
+    the free stream; without it the free stream is left unsolved). Use: ``g, phi_b = eq.gradient(phi, F)``; ``co =
     eq.assemble(phi, F, gamma_f, g, phi_b)``; add the sources to ``co``; ``new, res =
     eq.solve(phi, co, scale)``.
     """
@@ -72,6 +75,7 @@ class TransportEquation:
         linear_tolerance: float = 0.01,
         linear_max_iterations: int = 20,
         amg_rebuild_every: int = 20,
+        scale_rows: bool = False,
     ):
         check_turbulence_settings(relax, convection, linear_solver)
         self.mesh = mesh
@@ -81,6 +85,7 @@ class TransportEquation:
         self.freestream = np.zeros(0, dtype=np.int64) if freestream is None else np.asarray(freestream)
         self.inflow_value = np.zeros(mesh.n_boundary_faces) if inflow_value is None else inflow_value
         self.relax = float(relax)
+        self.scale_rows = bool(scale_rows)
         self.scheme = "linear_upwind" if convection == "linear-upwind" else "upwind"
         self.limiter = None if limiter in ("none", None) else limiter.replace("-", "_")
         self.linear_solver = linear_solver
@@ -131,8 +136,10 @@ class TransportEquation:
         K.continuity_correction(self.mesh.face_owner, self.mesh.face_neighbour, self.ni, flux, co.diag)
         return co
 
-    def solve(self, phi: np.ndarray, co: Coefficients, scale: float) -> tuple[np.ndarray, float]:
-        """Scaled residual of the unrelaxed system at ``phi``, then relax and solve: (new phi, residual)."""
+    def solve(self, phi: np.ndarray, co: Coefficients, scale: float,
+              reference: float = 0.0) -> tuple[np.ndarray, float]:
+        """Scaled residual of the unrelaxed system at ``phi``, then relax and solve: (new phi, residual).
+        ``reference``: the smallest value size the row scaling assumes (with ``scale_rows``)."""
         A = self.asm.matrix(co.diag, co.off_owner, co.off_neighbour)
         r, a_sum = K.residual_sums(A.indptr, A.indices, A.data, self.asm.diag_pos, co.source, phi)
         res = r / (scale * a_sum + 1e-300)
@@ -145,6 +152,15 @@ class TransportEquation:
                 f"the {self.name} equation lost its diagonal at cell {c} (x = {x:.4g}, y = {y:.4g}; "
                 f"{len(bad)} cells): the velocity field is running away"
             )
+        if self.scale_rows:
+            # each row divided by its diagonal times the size of its unknown (at least ``reference``):
+            # the solve's relative tolerance then weighs every cell by its relative change, however
+            # many decades the values span (row scaling leaves the multigrid hierarchy unchanged)
+            w = 1.0 / (co.diag * np.maximum(np.abs(phi), reference))
+            co.off_owner *= w[self.own_i]
+            co.off_neighbour *= w[self.nei_i]
+            co.source *= w
+            co.diag *= w
         A = self.asm.matrix(co.diag, co.off_owner, co.off_neighbour)
         x = phi.copy()
         if self.linear_solver == "amg":
