@@ -1,7 +1,7 @@
 """Turbulent flat plate (Spalart-Allmaras, Re = 5e6 per unit length) on the coarse, medium and fine
 grids of the bundled family: accuracy, iterations to converge and speed.
 
-Converged means: every scaled residual below 1e-6 and Cf(x = 0.97) within 0.1 % of its final
+Converged means: every normalised imbalance below 1e-6 and Cf(x = 0.97) within 0.1 % of its final
 value from that iteration on (the final value is taken from the same run carried on to
 ``--tight``). Printed per grid: cells, outer iterations to converge, wall seconds to that point
 (numba compilation excluded by a warm-up run), microseconds per cell per iteration and its ratio

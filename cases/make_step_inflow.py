@@ -48,7 +48,7 @@ CHANNEL_HEIGHT = 8.0  # upper wall at y = 8 H above the upstream floor
 
 
 def column_profiles(result: fa.Result, x: float) -> tuple[np.ndarray, np.ndarray, np.ndarray, dict[str, np.ndarray]]:
-    """Cell-centre y, u, v and the model columns (nut_ratio = nu_tilde/nu, or k and omega) of the
+    """Cell-centre y, u, v and the model columns (nu_tilde_ratio = nu_tilde/nu, or k and omega) of the
     column of cells that contains station x, sorted by y, with the wall point in front (zero,
     omega the first cell's value)."""
     cells = cell_column(result.problem.mesh, result.cell_centres, x)
@@ -58,7 +58,7 @@ def column_profiles(result: fa.Result, x: float) -> tuple[np.ndarray, np.ndarray
     v = np.concatenate([[0.0], result.velocity[cells, 1]])
     var = result.fields.variables
     if "nu_tilde" in var:
-        return y, u, v, {"nut_ratio": np.concatenate([[0.0], var["nu_tilde"][cells] / nu])}
+        return y, u, v, {"nu_tilde_ratio": np.concatenate([[0.0], var["nu_tilde"][cells] / nu])}
     w = var["omega"][cells]
     return y, u, v, {"k": np.concatenate([[0.0], var["k"][cells]]), "omega": np.concatenate([[w[0]], w])}
 

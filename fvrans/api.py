@@ -32,6 +32,7 @@ from fvrans.case.build import build_case_mesh
 from fvrans.checkpoint import Checkpoint, read_checkpoint, write_checkpoint
 from fvrans.errors import CaseError, DivergenceError
 from fvrans.fields import Fields
+from fvrans.jit import CompileWatch
 from fvrans.mesh.geometry import Geometry, compute_geometry
 from fvrans.mesh.locate import CellLocator
 from fvrans.mesh.mesh import Mesh
@@ -49,6 +50,7 @@ from fvrans.post import (
     write_residuals_csv,
     write_vtu_atomic,
 )
+from fvrans.post.filenames import output_file
 from fvrans.post.overlay import overlay_plots
 from fvrans.post.probes import sample_line, write_probe_csv
 from fvrans.solve.simple import History, SimpleSolver, SolverControls
@@ -95,12 +97,14 @@ class Result:
     extra: dict[str, Any] = field(default_factory=dict)
     #: stopped on request (a callback returning True, Ctrl-C, SIGTERM) before converging
     interrupted: bool = False
-    #: velocity scale of the scaled residuals (kept in checkpoints)
+    #: velocity scale of the divergence guard (kept in checkpoints)
     velocity_scale: float = 1.0
     #: outer iteration the fields belong to (one less than ``iterations`` after a divergence)
     fields_iteration: int | None = None
     #: the turbulence model of the run (its outputs and probe columns); None: none recorded
     model: TurbulenceModel | None = None
+    #: seconds of ``wall_seconds`` spent compiling kernels (0 with a warm numba cache)
+    compile_seconds: float = 0.0
 
     # -- arrays -----------------------------------------------------------------------------
     @property
@@ -127,7 +131,7 @@ class Result:
 
     @property
     def residuals(self) -> np.ndarray:
-        """Scaled residuals per iteration, columns named by ``history.names``."""
+        """Normalised imbalances per iteration, columns named by ``history.names``."""
         return self.history.as_array()
 
     # -- derived ----------------------------------------------------------------------------
@@ -153,6 +157,8 @@ class Result:
         extra = {"message": self.message} if self.message else {}
         extra["diverged"] = self.diverged
         extra["interrupted"] = self.interrupted
+        extra["compile_seconds"] = self.compile_seconds
+        extra["solve_seconds"] = max(self.wall_seconds - self.compile_seconds, 0.0)
         extra.update(self.extra.get("summary", {}))
         if self.case.output.map_window is not None:
             extra["map_window"] = list(self.case.output.map_window)
@@ -173,27 +179,31 @@ class Result:
         into ``out_dir`` (each file atomically)."""
         out = Path(out_dir)
         out.mkdir(parents=True, exist_ok=True)
-        if self.case.output.write_fields:
-            write_vtu_atomic(out / "fields.vtu", self.mesh, self.cell_data())
         walls = self.walls()
+        # names from the mesh and the case become file names only through output_file
+        wall_files = {n: output_file(out, n, ".csv", subfolder="wall", what=f"wall patch {n!r}") for n in walls}
+        probe_files = {n: output_file(out, n, ".csv", subfolder="profiles", what=f"probe {n!r}")
+                       for n in self.case.probes}
+        if self.case.output.write_fields:
+            write_vtu_atomic(out / "fields.vtu", self.mesh, self.cell_data(), within=out)
         if walls:
             (out / "wall").mkdir(exist_ok=True)
         for name, w in walls.items():
             header, cols = wall_columns(w)
-            write_csv_atomic(out / "wall" / f"{name}.csv", header, cols)
-        write_residuals_csv(out / "residuals.csv", self.history)
+            write_csv_atomic(wall_files[name], header, cols, within=out)
+        write_residuals_csv(out / "residuals.csv", self.history, within=out)
         if self.case.probes:
             (out / "profiles").mkdir(exist_ok=True)
-        for name in self.case.probes:
-            write_probe_csv(out / "profiles" / f"{name}.csv", self.probe(name))
-        write_json_atomic(out / "summary.json", self.summary())
+        for name, path in probe_files.items():
+            write_probe_csv(path, self.probe(name), within=out)
+        write_json_atomic(out / "summary.json", self.summary(), within=out)
         return out
 
     # -- line probes ------------------------------------------------------------------------
     def sample_line(self, start: Any, end: Any, points: int = 101, name: str = "line") -> dict[str, np.ndarray]:
         """Fields along a segment: columns ``s`` (distance from start), ``x``, ``y``, ``u``, ``v``,
         ``p`` and the turbulence model's probe columns (Spalart-Allmaras: ``nu_tilde`` and
-        ``nut_ratio``, the latter from the sampled nu_tilde). Each value is the containing cell's
+        ``eddy_viscosity_ratio``, the latter from the sampled nu_tilde). Each value is the containing cell's
         value plus its gradient times the offset from the cell centroid
         (:func:`fvrans.post.probes.sample_line`)."""
         values = {"u": self.velocity[:, 0], "v": self.velocity[:, 1], "p": self.pressure}
@@ -333,8 +343,10 @@ def solve(
     message = ""
     diverged = False
     fields_iteration = None
+    watch = CompileWatch()
     try:
-        converged = solver.run(callback=step)
+        with watch:
+            converged = solver.run(callback=step)
     except DivergenceError as exc:
         converged = False
         diverged = True
@@ -363,5 +375,5 @@ def solve(
         problem=problem, fields=solver.fields, history=solver.history, converged=bool(converged),
         iterations=solver.iteration, wall_seconds=seconds, grad_p=grad_p, message=message,
         diverged=diverged, extra=extra, interrupted=interrupted, velocity_scale=solver.u_scale,
-        fields_iteration=fields_iteration, model=model,
+        fields_iteration=fields_iteration, model=model, compile_seconds=watch.seconds,
     )

@@ -2,11 +2,12 @@
 
 A checkpoint holds the :class:`~fvrans.fields.Fields` (cell velocity and pressure, face
 mass fluxes, the turbulence model's variables by name), the cell pressure gradient of the last
-iteration, the number of outer iterations done, the residual history so far, the velocity scale
-of the scaled residuals (so the history continues on the same scale), and the identity of the
-problem: a SHA-256 of the mesh (points, cells, faces, patches) and the physical settings
-(fluid, model, boundary conditions). A restart with another mesh or other physics is refused with a message naming
-what differs; solver settings (iterations, tolerance, relaxation, ...) may change between runs.
+iteration, the number of outer iterations done, the residual history so far, the velocity scale of the run (the largest
+boundary or initial speed, against which the divergence guard measures speeds), and the
+identity of the problem: a SHA-256 of the mesh (points, cells, faces, patches) and the physical
+settings (fluid, model, boundary conditions). A restart with another mesh or other physics is
+refused with a message naming what differs; solver settings (iterations, tolerance, relaxation,
+...) may change between runs.
 
 The file is written to a temporary file in the same folder and renamed onto the target
 (:func:`fvrans.post.writers.atomic_write`), so an interrupted write leaves the previous

@@ -21,7 +21,7 @@ NONLINEAR_STRESSES = ("none", "qcr2000")
 #: defaults of the k-omega SST inflow and start values: turbulence intensity sqrt(2k/3)/|u| and nu_t / nu
 DEFAULT_TURBULENCE_INTENSITY = 0.001
 DEFAULT_EDDY_VISCOSITY_RATIO = 0.1
-BOUNDARY_KINDS = ("wall", "velocity-inlet", "pressure-outlet", "symmetry", "freestream")
+BOUNDARY_KINDS = ("wall", "inflow-velocity", "outflow-pressure", "symmetry", "outer-flow")
 COUPLINGS = ("simple", "simplec")
 CONVECTION_SCHEMES = ("upwind", "linear-upwind")
 GRADIENT_METHODS = ("least-squares", "green-gauss")
@@ -30,18 +30,16 @@ LIMITERS = ("none", "venkatakrishnan", "barth-jespersen")
 #: keys each boundary kind takes (besides none else)
 BOUNDARY_KEYS: dict[str, tuple[str, ...]] = {
     "wall": ("kind", "velocity"),
-    "velocity-inlet": ("kind", "velocity", "profile", "profile_columns", "nut_ratio", "turbulence_intensity",
-                       "eddy_viscosity_ratio"),
-    "pressure-outlet": ("kind", "pressure"),
+    "inflow-velocity": ("kind", "velocity", "profile", "profile_columns", "nu_tilde_ratio", "turbulence_intensity",
+                        "eddy_viscosity_ratio"),
+    "outflow-pressure": ("kind", "pressure"),
     "symmetry": ("kind",),
-    "freestream": ("kind", "velocity", "pressure", "nut_ratio", "turbulence_intensity", "eddy_viscosity_ratio"),
+    "outer-flow": ("kind", "velocity", "pressure", "nu_tilde_ratio", "turbulence_intensity", "eddy_viscosity_ratio"),
 }
-PROFILE_COLUMN_KEYS = ("coordinate", "u", "v", "nut_ratio", "k", "omega")
+PROFILE_COLUMN_KEYS = ("coordinate", "u", "v", "nu_tilde_ratio", "k", "omega")
 #: column names used when ``profile_columns`` does not name them
-DEFAULT_PROFILE_COLUMNS = {"coordinate": "y", "u": "u", "v": "v", "nut_ratio": "nut_ratio", "k": "k",
+DEFAULT_PROFILE_COLUMNS = {"coordinate": "y", "u": "u", "v": "v", "nu_tilde_ratio": "nu_tilde_ratio", "k": "k",
                            "omega": "omega"}
-#: optional profile columns of the turbulence models (used when named or present under the default name)
-OPTIONAL_PROFILE_COLUMNS = ("nut_ratio", "k", "omega")
 #: default under-relaxation of the pressure correction for each coupling
 DEFAULT_RELAX_PRESSURE = {"simple": 0.3, "simplec": 1.0}
 DEFAULT_RELAX_VELOCITY = {"simple": 0.7, "simplec": 0.95}
@@ -59,7 +57,12 @@ Velocity = tuple[float, float] | VelocityFunction
 
 @dataclass(frozen=True)
 class MeshSettings:
-    """Where the mesh comes from: a file (absolute path) or a generator in ``fvrans.mesh.generate``."""
+    """Where the mesh comes from: a file (absolute path) or a generator in ``fvrans.mesh.generate``.
+
+    For a file whose boundary lines carry no names (:func:`fvrans.mesh.io.read_mesh`):
+    ``edge_tags`` (tag -> patch) with ``edge_tag_array``, ``edge_boxes`` (patch -> xmin, xmax,
+    ymin, ymax) and ``unnamed_edges`` (the patch of the boundary edges left).
+    """
 
     file: Path | None = None
     generator: str | None = None
@@ -67,6 +70,10 @@ class MeshSettings:
     renumber: bool = False
     #: pairs of patches (first, second = first moved by a translation) joined as periodic
     periodic_pairs: tuple[tuple[str, str], ...] = ()
+    edge_tags: dict[int, str] = field(default_factory=dict)
+    edge_tag_array: str | None = None
+    edge_boxes: dict[str, tuple[float, float, float, float]] = field(default_factory=dict)
+    unnamed_edges: str | None = None
 
 
 @dataclass(frozen=True)
@@ -97,7 +104,7 @@ class ModelSettings:
 class InitialState:
     velocity: tuple[float, float] = (0.0, 0.0)
     pressure: float = 0.0
-    nut_ratio: float = 3.0
+    nu_tilde_ratio: float = 3.0
     turbulence_intensity: float = DEFAULT_TURBULENCE_INTENSITY
     eddy_viscosity_ratio: float = DEFAULT_EDDY_VISCOSITY_RATIO
 
@@ -122,15 +129,15 @@ class BoundarySpec:
 
     ``velocity`` is ``(u, v)`` or, for a velocity inlet built in Python, a function
     ``f(x, y) -> (u, v)`` of face-centre coordinates. ``profile`` is the absolute path of a CSV
-    inlet profile and ``profile_columns`` maps ``coordinate``, ``u``, ``v`` (and ``nut_ratio``
-    when the file has that column) to column names. ``nut_ratio`` is None when the profile
+    inlet profile and ``profile_columns`` maps ``coordinate``, ``u``, ``v`` (and ``nu_tilde_ratio``
+    when the file has that column) to column names. ``nu_tilde_ratio`` is None when the profile
     supplies it.
     """
 
     kind: str
     velocity: Velocity | None = None
     pressure: float | None = None
-    nut_ratio: float | None = None
+    nu_tilde_ratio: float | None = None
     profile: Path | None = None
     profile_columns: dict[str, str] | None = None
     turbulence_intensity: float | None = None
@@ -146,11 +153,11 @@ class BoundarySpec:
 
         return evaluate_velocity(self, np.asarray(x, float), np.asarray(y, float), label)
 
-    def nut_ratio_at(self, x, y, label: str = "<in memory>: boundary") -> np.ndarray:
+    def nu_tilde_ratio_at(self, x, y, label: str = "<in memory>: boundary") -> np.ndarray:
         """Inflow ratio nu_tilde / nu at points ``(x, y)`` (constant, or from the profile file)."""
-        from fvrans.case.profile import evaluate_nut_ratio
+        from fvrans.case.profile import evaluate_nu_tilde_ratio
 
-        return evaluate_nut_ratio(self, np.asarray(x, float), np.asarray(y, float), label)
+        return evaluate_nu_tilde_ratio(self, np.asarray(x, float), np.asarray(y, float), label)
 
     def profile_column_at(self, column: str, x, y, label: str = "<in memory>: boundary") -> np.ndarray | None:
         """An optional profile column (``"k"``, ``"omega"``) at points ``(x, y)``; None without it."""
@@ -283,7 +290,7 @@ class Case:
         """A new validated case with several dotted keys changed at once (validated together).
 
         A value ``None`` removes the key (its default applies again); a table value replaces
-        the whole table, e.g. ``{"boundary.inlet": {"kind": "pressure-outlet"}}``. Inlet
+        the whole table, e.g. ``{"boundary.inlet": {"kind": "outflow-pressure"}}``. Inlet
         velocities may be Python functions ``f(x, y) -> (u, v)``.
         """
         from fvrans.case.validate import apply_changes, case_from_dict
@@ -297,9 +304,9 @@ class Case:
         """Velocity prescribed on ``patch`` at points ``(x, y)`` (see :meth:`BoundarySpec.velocity_at`)."""
         return self._boundary(patch).velocity_at(x, y, self._boundary_label(patch))
 
-    def boundary_nut_ratio(self, patch: str, x, y) -> np.ndarray:
+    def boundary_nu_tilde_ratio(self, patch: str, x, y) -> np.ndarray:
         """Inflow nu_tilde / nu on ``patch`` at points ``(x, y)``."""
-        return self._boundary(patch).nut_ratio_at(x, y, self._boundary_label(patch))
+        return self._boundary(patch).nu_tilde_ratio_at(x, y, self._boundary_label(patch))
 
     def _boundary(self, patch: str) -> BoundarySpec:
         from fvrans.case.validate import unknown_patch_error
@@ -342,8 +349,8 @@ def boundary_data(b: BoundarySpec, keep_callables: bool = False) -> dict[str, An
         out["profile_columns"] = dict(b.profile_columns)
     if b.pressure is not None:
         out["pressure"] = float(b.pressure)
-    if b.nut_ratio is not None:
-        out["nut_ratio"] = float(b.nut_ratio)
+    if b.nu_tilde_ratio is not None:
+        out["nu_tilde_ratio"] = float(b.nu_tilde_ratio)
     if b.turbulence_intensity is not None:
         out["turbulence_intensity"] = float(b.turbulence_intensity)
     if b.eddy_viscosity_ratio is not None:
@@ -356,6 +363,14 @@ def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
     mesh: dict[str, Any] = {}
     if m.file is not None:
         mesh["file"] = str(m.file)
+        if m.edge_tags:
+            mesh["edge_tags"] = {str(k): v for k, v in m.edge_tags.items()}
+        if m.edge_tag_array is not None:
+            mesh["edge_tag_array"] = m.edge_tag_array
+        if m.edge_boxes:
+            mesh["edge_boxes"] = {k: [float(x) for x in v] for k, v in m.edge_boxes.items()}
+        if m.unnamed_edges is not None:
+            mesh["unnamed_edges"] = m.unnamed_edges
     if m.generator is not None:
         mesh["generator"] = m.generator
         mesh["parameters"] = copy_data(m.parameters)
@@ -383,7 +398,7 @@ def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
         "initial": {
             "velocity": _vec(case.initial.velocity),
             "pressure": case.initial.pressure,
-            "nut_ratio": case.initial.nut_ratio,
+            "nu_tilde_ratio": case.initial.nu_tilde_ratio,
             "turbulence_intensity": case.initial.turbulence_intensity,
             "eddy_viscosity_ratio": case.initial.eddy_viscosity_ratio,
         },

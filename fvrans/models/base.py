@@ -12,7 +12,7 @@ loop asks a model for
   stress). The momentum equation takes its divergence in conservative face form,
   sum_f T_f . S_f, as an explicit source (``fvrans.fv.stress.StressDivergence``);
 * ``update(fields, grad_u)``: advance the model's own equations once with the new velocity
-  gradient grad_u[c, i, j] = du_i/dx_j and face fluxes; return one scaled residual per name in
+  gradient grad_u[c, i, j] = du_i/dx_j and face fluxes; return one normalised imbalance per name in
   ``names``.
 
 Around the loop: ``variables`` are the transported variables the model keeps in
@@ -32,7 +32,7 @@ from fvrans.errors import CaseError
 from fvrans.fields import Fields
 
 #: column / cell-data name of the eddy-viscosity ratio nu_t / nu in every output
-EDDY_VISCOSITY_RATIO = "nut_ratio"
+EDDY_VISCOSITY_RATIO = "eddy_viscosity_ratio"
 
 
 class TurbulenceModel:
@@ -81,7 +81,7 @@ class TurbulenceModel:
         return None
 
     def update(self, fields: Fields, grad_u: np.ndarray) -> list[float]:
-        """Advance the model equations one outer iteration; return their scaled residuals."""
+        """Advance the model equations one outer iteration; return their normalised imbalances."""
         return []
 
     # -- outputs --------------------------------------------------------------------------

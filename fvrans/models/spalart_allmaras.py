@@ -30,12 +30,11 @@ stacks of thin cells to their old values); the linear system solved by BiCGStab 
 AMG V-cycle of ``fvrans.linalg.amg`` to ``linear_tolerance`` (default), or by symmetric
 Gauss-Seidel sweeps (``linear_solver = "gauss-seidel"``; at most ``linear_max_iterations`` either way).
 
-Boundary values: nt = 0 on walls; nt = nut_ratio nu on velocity inlets and on freestream faces
+Boundary values: nt = 0 on walls; nt = nu_tilde_ratio nu on velocity inlets and on freestream faces
 where the mass flux enters; zero normal gradient elsewhere (outlets, symmetry, freestream outflow).
 
-Scaled residual: sum_c |b - A nt|_c / (nt_scale sum_c a_P,c) of the unrelaxed linearised system at
-the current nt, with nt_scale = max(max_c |nt|, max inflow nt): the same form as the momentum
-residuals (sum |r| / (U sum a_P)).
+Normalised imbalance: sum_c |b - A nt|_c / sum_c (|A| |nt| + |b|)_c of the unrelaxed linearised system at
+the current nt, the definition every equation of the loop uses (``fvrans.fv.residual``).
 """
 
 from __future__ import annotations
@@ -88,7 +87,7 @@ class SpalartAllmaras(TurbulenceModel):
     """The SA model behind the interface :class:`fvrans.models.base.TurbulenceModel`.
 
     ``mu`` is the molecular dynamic viscosity (nu = mu / rho); ``wall_distance`` (n_cells,) is
-    computed from the wall patches when not given. ``initial_nut_ratio`` sets nu_tilde = ratio nu
+    computed from the wall patches when not given. ``initial_nu_tilde_ratio`` sets nu_tilde = ratio nu
     in a start without nu_tilde.
     """
 
@@ -106,7 +105,7 @@ class SpalartAllmaras(TurbulenceModel):
         variant: str = "standard",
         relax: float = 1.0,
         convection: str = "upwind",
-        initial_nut_ratio: float = 3.0,
+        initial_nu_tilde_ratio: float = 3.0,
         wall_distance: np.ndarray | None = None,
         gradient: str = "least-squares",
         limiter: str = "none",
@@ -129,10 +128,10 @@ class SpalartAllmaras(TurbulenceModel):
         self.rotation_curvature = bool(rotation_curvature)
         self.nonlinear_stress = nonlinear_stress
         nonlinear.extra_stress(nonlinear_stress, np.zeros(0), np.zeros((0, 2, 2)))  # checks the name
-        self.initial_nut_ratio = float(initial_nut_ratio)
+        self.initial_nu_tilde_ratio = float(initial_nu_tilde_ratio)
         nc = mesh.n_cells
         kind = boundary.kind
-        self.inflow_value = self.nu * boundary.nut_ratio
+        self.inflow_value = self.nu * boundary.nu_tilde_ratio
         bkind = np.full(len(kind), NEUMANN, dtype=np.int8)
         bval = np.zeros(len(kind))
         bkind[kind == WALL] = DIRICHLET
@@ -161,7 +160,8 @@ class SpalartAllmaras(TurbulenceModel):
         s = case.solver
         return cls(
             mesh, geom, boundary, rho=case.fluid.density, mu=case.fluid.viscosity, variant=case.model.sa_variant,
-            relax=s.relax_turbulence, convection=s.turbulence_convection, initial_nut_ratio=case.initial.nut_ratio,
+            relax=s.relax_turbulence, convection=s.turbulence_convection,
+            initial_nu_tilde_ratio=case.initial.nu_tilde_ratio,
             wall_distance=wall_distance, gradient=s.gradient, limiter=s.limiter,
             linear_solver=s.turbulence_solver, linear_tolerance=s.turbulence_tolerance,
             linear_max_iterations=s.turbulence_max_iterations, amg_rebuild_every=s.amg_rebuild_every,
@@ -170,7 +170,7 @@ class SpalartAllmaras(TurbulenceModel):
 
     # -- interface of the solver -----------------------------------------------------------
     def initial_values(self) -> dict[str, np.ndarray]:
-        return {"nu_tilde": np.full(self.mesh.n_cells, self.initial_nut_ratio * self.nu)}
+        return {"nu_tilde": np.full(self.mesh.n_cells, self.initial_nu_tilde_ratio * self.nu)}
 
     def _ensure(self, fields: Fields) -> np.ndarray:
         if fields.variables.get("nu_tilde") is None or fields.variables["nu_tilde"].shape != (self.mesh.n_cells,):
@@ -201,7 +201,7 @@ class SpalartAllmaras(TurbulenceModel):
 
     def update(self, fields: Fields, grad_u: np.ndarray) -> list[float]:
         """Assemble and solve the nu_tilde equation once with the new velocity gradient and the
-        corrected face fluxes; returns [scaled residual]."""
+        corrected face fluxes; returns [normalised imbalance]."""
         nt = np.ascontiguousarray(self._ensure(fields), dtype=np.float64)
         F = np.ascontiguousarray(fields.face_flux, dtype=np.float64)
         eq = self.equation
@@ -216,8 +216,7 @@ class SpalartAllmaras(TurbulenceModel):
             self.rotation_function(fields.velocity, gu)
         K.assemble_sources(nt, self.nu, self.rho, self.geom.cell_area, self.wall_distance, gu, g,
                            self.use_ft2, self.fr1, co.diag, co.source)
-        scale = max(float(np.max(np.abs(nt), initial=0.0)), float(np.max(self.inflow_value, initial=0.0)))
-        x, res = eq.solve(nt, co, scale)
+        x, res = eq.solve(nt, co)
         fields.variables["nu_tilde"] = x
         return [res]
 

@@ -15,7 +15,7 @@ sources). The 2/3 rho k delta_ij part of the Reynolds stress is left in the pres
 
 Boundary values: k = 0 and w = 10 * 6 nu / (beta_1 d_1^2) on walls (Menter 1994, d_1 the wall
 distance of the wall cell's centre); on velocity inlets and where the mass flux enters through a
-freestream face k = 3/2 (Tu |u|)^2 and w = k / (r nu) from the case's turbulence intensity Tu and
+outer-flow face k = 3/2 (Tu |u|)^2 and w = k / (r nu) from the case's turbulence intensity Tu and
 eddy-viscosity ratio r, or from the ``k`` and ``omega`` columns of an inlet profile; zero normal
 gradient elsewhere. The start values take Tu and r of
 ``[initial]`` with the largest speed of the case.
@@ -213,12 +213,10 @@ class KOmegaSST(TurbulenceModel):
         vol = self.geom.cell_area
         co = self.eq_k.assemble(k, F, self._face_diffusivity(K.SIGMA_K1, K.SIGMA_K2), gk, k_b)
         K.k_sources(k, w, self.nut, self.strain, self.rho, vol, co.diag, co.source)
-        k_scale = max(float(np.max(np.abs(k), initial=0.0)), float(self.k_inflow.max(initial=0.0)))
-        k_new, res_k = self.eq_k.solve(k, co, k_scale, self.k_reference)
+        k_new, res_k = self.eq_k.solve(k, co, self.k_reference)
         co = self.eq_w.assemble(w, F, self._face_diffusivity(K.SIGMA_W1, K.SIGMA_W2), gw, w_b)
         K.omega_sources(w, self.f1, self.strain, gk, gw, self.rho, vol, co.diag, co.source)
-        w_scale = max(float(np.max(np.abs(w), initial=0.0)), float(self.w_inflow.max(initial=0.0)))
-        w_new, res_w = self.eq_w.solve(w, co, w_scale, self.w_reference)
+        w_new, res_w = self.eq_w.solve(w, co, self.w_reference)
         fields.variables["k"] = np.maximum(k_new, self.k_floor)
         fields.variables["omega"] = np.maximum(w_new, self.w_floor)
         return [res_k, res_w]

@@ -10,11 +10,11 @@ the model adds its linearised cell sources to the coefficient set between :meth:
 :meth:`solve`. Patankar's implicit under-relaxation (``relax``, 1 = none); the linear system by
 BiCGStab with a reused AMG V-cycle (``fvrans.linalg.amg``) or symmetric Gauss-Seidel sweeps.
 
-Boundary values: a :class:`fvrans.fv.boundary.BoundaryScalar`; faces of kind ``freestream`` take
+Boundary values: a :class:`fvrans.fv.boundary.BoundaryScalar`; faces of kind ``outer-flow`` take
 the inflow value where the mass flux enters and a zero gradient where it leaves.
 
-Scaled residual: sum_c |b - A phi|_c / (phi_scale sum_c a_P,c) of the unrelaxed linearised system
-at the current phi, phi_scale given by the model: the form of the momentum residuals.
+Residual: the normalised imbalance sum_c |b - A phi|_c / sum_c (|A| |phi| + |b|)_c of the unrelaxed
+linearised system at the current phi (``fvrans.fv.residual``), as for every equation of the loop.
 """
 
 from __future__ import annotations
@@ -27,6 +27,7 @@ from fvrans.fv.boundary import DIRICHLET, NEUMANN, BoundaryScalar, boundary_face
 from fvrans.fv.convection import convection_coefficients
 from fvrans.fv.diffusion import diffusion_coefficients
 from fvrans.fv.gradient import gradient_operator, limit_gradient
+from fvrans.fv.residual import normalised_imbalance
 from fvrans.linalg._smoother_kernels import gauss_seidel
 from fvrans.linalg.amg import AmgKrylovSolver
 from fvrans.mesh.geometry import Geometry
@@ -56,7 +57,7 @@ class TransportEquation:
     relative change where the values span many decades (omega: 1e7 times larger at a wall than in
     the free stream; without it the free stream is left unsolved). Use: ``g, phi_b = eq.gradient(phi, F)``; ``co =
     eq.assemble(phi, F, gamma_f, g, phi_b)``; add the sources to ``co``; ``new, res =
-    eq.solve(phi, co, scale)``.
+    eq.solve(phi, co)``.
     """
 
     def __init__(
@@ -136,13 +137,11 @@ class TransportEquation:
         K.continuity_correction(self.mesh.face_owner, self.mesh.face_neighbour, self.ni, flux, co.diag)
         return co
 
-    def solve(self, phi: np.ndarray, co: Coefficients, scale: float,
-              reference: float = 0.0) -> tuple[np.ndarray, float]:
-        """Scaled residual of the unrelaxed system at ``phi``, then relax and solve: (new phi, residual).
-        ``reference``: the smallest value size the row scaling assumes (with ``scale_rows``)."""
+    def solve(self, phi: np.ndarray, co: Coefficients, reference: float = 0.0) -> tuple[np.ndarray, float]:
+        """Normalised imbalance of the unrelaxed system at ``phi``, then relax and solve: (new phi,
+        imbalance). ``reference``: the smallest value size the row scaling assumes (``scale_rows``)."""
         A = self.asm.matrix(co.diag, co.off_owner, co.off_neighbour)
-        r, a_sum = K.residual_sums(A.indptr, A.indices, A.data, self.asm.diag_pos, co.source, phi)
-        res = r / (scale * a_sum + 1e-300)
+        res = normalised_imbalance(A, co.source, phi)
         under_relax(co, phi, self.relax)
         bad = np.flatnonzero(~(co.diag > 0.0))
         if len(bad):  # only a flow field that is already running away can do this

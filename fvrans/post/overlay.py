@@ -30,6 +30,7 @@ from matplotlib.figure import Figure
 
 from fvrans.errors import CaseError
 from fvrans.post._plot_data import read_csv_columns, read_summary
+from fvrans.post.filenames import safe_file_name
 from fvrans.post.plots import B_LOG, KAPPA, _title, new_figure, save_figure
 
 __all__ = ["OverlayRun", "overlay_figures", "overlay_plots", "read_runs", "sweep_labels"]
@@ -263,7 +264,7 @@ def overlay_figures(runs: Sequence[OverlayRun]) -> Iterator[tuple[str, Figure]]:
             columns += [c for c in read_csv_columns(r.probes[probe]) if c not in _COORDINATES and c not in columns]
         for c in columns:
             if sum(c in read_csv_columns(r.probes[probe]) for r in have) >= 2:
-                yield f"probe_{probe}_{c}.png", probe_overlay(runs, probe, c)
+                yield f"probe_{probe}_{safe_file_name(c, 'a probe column')}.png", probe_overlay(runs, probe, c)
         fig = wall_units_overlay(runs, probe)
         if fig is not None:
             yield f"probe_{probe}_wall_units.png", fig
@@ -276,7 +277,9 @@ def overlay_plots(folders: Sequence[str | os.PathLike], out_dir: str | os.PathLi
     runs = read_runs(folders, labels)
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
-    paths = [save_figure(fig, out / name) for name, fig in overlay_figures(runs)]
+    # file stems of wall and probe files are safe names already (fvrans wrote them through
+    # fvrans.post.filenames.output_file); probe columns pass safe_file_name
+    paths = [save_figure(fig, out / name, within=out) for name, fig in overlay_figures(runs)]
     if not paths:
         raise CaseError(f"the folders {', '.join(str(r.folder) for r in runs)} share no quantity to overlay "
                         "(no common wall patch, probe or residual file)")

@@ -136,8 +136,8 @@ def developed_profile(y: np.ndarray) -> tuple[np.ndarray, float]:
 def test_explicit_extra_stress_gives_the_developed_channel_flow(model_cls):
     mesh = channel(L, H, 60, 40)
     geom = compute_geometry(mesh)
-    specs = {"inlet": {"kind": "velocity-inlet", "velocity": [U, 0.0]},
-             "outlet": {"kind": "pressure-outlet", "pressure": 0.0},
+    specs = {"inlet": {"kind": "inflow-velocity", "velocity": [U, 0.0]},
+             "outlet": {"kind": "outflow-pressure", "pressure": 0.0},
              "lower_wall": {"kind": "wall"}, "upper_wall": {"kind": "wall"}}
     bc = build_flow_boundary(mesh, geom, specs)
     solver = SimpleSolver(mesh, geom, bc, rho=1.0, mu=MU, controls=SolverControls(tolerance=1e-8),

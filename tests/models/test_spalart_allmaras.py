@@ -218,8 +218,8 @@ def _power_law_run(n: int, solver: str = "amg"):
         sl = slice(pt.start - ni, pt.stop - ni)
         kind[sl] = INLET
         ratio[sl] = A * geom.face_centre[pt.start : pt.stop, 1] ** p / nu
-    fb = FlowBoundary(kind=kind, velocity=np.zeros((nb, 2)), pressure=np.zeros(nb), nut_ratio=ratio,
-                      patch_kind={"bottom": "velocity-inlet", "top": "velocity-inlet", "sides": "symmetry"})
+    fb = FlowBoundary(kind=kind, velocity=np.zeros((nb, 2)), pressure=np.zeros(nb), nu_tilde_ratio=ratio,
+                      patch_kind={"bottom": "inflow-velocity", "top": "inflow-velocity", "sides": "symmetry"})
     yc = geom.cell_centre[:, 1]
     model = SpalartAllmaras(mesh, geom, fb, rho=1.0, mu=nu, relax=1.0, wall_distance=yc, linear_solver=solver,
                             linear_max_iterations=400, linear_tolerance=1e-12)
@@ -252,7 +252,7 @@ def test_a_case_without_walls_is_refused_with_a_clear_message():
     mesh, geom = _strip(4, 0.0, 1.0)
     nb = mesh.n_boundary_faces
     fb = FlowBoundary(kind=np.full(nb, SYMMETRY, dtype=np.int64), velocity=np.zeros((nb, 2)),
-                      pressure=np.zeros(nb), nut_ratio=np.zeros(nb),
+                      pressure=np.zeros(nb), nu_tilde_ratio=np.zeros(nb),
                       patch_kind={"bottom": "symmetry", "top": "symmetry", "sides": "symmetry"})
     with pytest.raises(CaseError, match="needs at least one wall patch"):
         SpalartAllmaras(mesh, geom, fb, rho=1.0, mu=1e-5)

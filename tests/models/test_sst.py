@@ -88,9 +88,9 @@ def _decay(n: int, scheme: str) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.
     size ~ k / U^2 = 4e-7 here, left out)."""
     mesh = channel(1.0, 0.05, n, 1)
     geom = compute_geometry(mesh)
-    specs = {"inlet": {"kind": "velocity-inlet", "velocity": [1.0, 0.0], "turbulence_intensity": 0.0005,
+    specs = {"inlet": {"kind": "inflow-velocity", "velocity": [1.0, 0.0], "turbulence_intensity": 0.0005,
                        "eddy_viscosity_ratio": 10.0},
-             "outlet": {"kind": "pressure-outlet"},
+             "outlet": {"kind": "outflow-pressure"},
              "lower_wall": {"kind": "symmetry"}, "upper_wall": {"kind": "symmetry"}}
     fb = build_flow_boundary(mesh, geom, specs)
     nu = 1e-8

@@ -113,9 +113,9 @@ def test_solve_returns_model_fields():
     r = fa.solve(case)
     d = r.cell_data()
     n = r.mesh.n_cells
-    for key in ("velocity", "pressure", "nu_tilde", "nut_ratio", "wall_distance"):
+    for key in ("velocity", "pressure", "nu_tilde", "eddy_viscosity_ratio", "wall_distance"):
         assert key in d and len(d[key]) == n
-    assert np.all(d["nut_ratio"] >= 0) and np.all(d["wall_distance"] > 0)
+    assert np.all(d["eddy_viscosity_ratio"] >= 0) and np.all(d["wall_distance"] > 0)
     assert r.history.names[-1] == "nu_tilde"
 
 

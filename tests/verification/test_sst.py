@@ -60,7 +60,7 @@ def test_sst_flat_plate_friction_and_law_of_the_wall():
     assert outside.max() < 0.05
     k, w_ = r.fields.variables["k"], r.fields.variables["omega"]
     assert np.all(k > 0) and np.all(w_ > 0)
-    assert {"k", "omega", "nut_ratio", "sst_blending"} <= set(r.cell_data())
+    assert {"k", "omega", "eddy_viscosity_ratio", "sst_blending"} <= set(r.cell_data())
     assert r.history.names[-2:] == ["k", "omega"]
 
 
@@ -83,8 +83,8 @@ def test_sst_inflow_from_profile_columns(tmp_path):
     data = {
         "mesh": {"generator": "channel", "parameters": {"length": 2.0, "height": 1.0, "nx": 4, "ny": 4}},
         "fluid": {"density": 1.0, "viscosity": 1e-3}, "model": {"turbulence": "k-omega-sst"},
-        "boundary": {"inlet": {"kind": "velocity-inlet", "profile": str(tmp_path / "p.csv")},
-                     "outlet": {"kind": "pressure-outlet"}, "lower_wall": {"kind": "wall"},
+        "boundary": {"inlet": {"kind": "inflow-velocity", "profile": str(tmp_path / "p.csv")},
+                     "outlet": {"kind": "outflow-pressure"}, "lower_wall": {"kind": "wall"},
                      "upper_wall": {"kind": "wall"}},
     }
     problem = fa.prepare(fa.case_from_dict(data))
