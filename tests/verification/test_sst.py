@@ -12,7 +12,7 @@ References
 * Law of the wall at x = 0.97: u+ = y+ below y+ = 1 and, in 30 < y+ < 300, u+ = ln(y+) / 0.41 + B
   with B between 5.0 and 5.5 (common practice) within 5 %, as for the channel (test_channel.py).
 * Backward-facing step (Driver & Seegmiller 1985, from memory): reattachment x_r / H = 6.26 +/- 0.10.
-  SST with its own inflow layer (cases/step_inflow_sst.csv): 6.56 on the coarse grid, 6.?? on the
+  SST with its own inflow layer (cases/step_inflow_sst.csv): 6.56 on the coarse grid, 6.53 on the
   medium grid (README). Band on the coarse grid: 5.8 .. 6.8 (the experiment within 8 %; SA's band in
   test_step.py is 5.8 .. 6.5).
 """
