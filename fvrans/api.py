@@ -51,6 +51,7 @@ from fvrans.post import (
     write_vtu_atomic,
 )
 from fvrans.post.filenames import output_file
+from fvrans.post.overlay import overlay_plots
 from fvrans.post.probes import sample_line, write_probe_csv
 from fvrans.reference import FieldSource, cell_source, read_result_folder
 from fvrans.solve.simple import History, SimpleSolver, SolverControls
@@ -58,8 +59,8 @@ from fvrans.solve.simple import History, SimpleSolver, SolverControls
 log = logging.getLogger(__name__)
 
 __all__ = [
-    "Problem", "Result", "apply_overrides", "case_from_dict", "load_case", "prepare", "residual_names",
-    "result_source", "solve", "start_fields",
+    "Problem", "Result", "apply_overrides", "case_from_dict", "load_case", "overlay_plots", "prepare",
+    "residual_names", "result_source", "solve", "start_fields",
 ]
 
 
@@ -301,6 +302,15 @@ def start_fields(problem: Problem, initial: Result | Fields | FieldSource | str 
     return fields.copy(), None
 
 
+def _mean_flow_summary(solver: SimpleSolver) -> dict[str, Any]:
+    """The mean pressure gradient that drives a periodic flow and its bulk (volume-mean) velocity."""
+    vol = solver.geom.cell_area
+    bulk = vol @ solver.fields.velocity / vol.sum()
+    g = -(vol @ solver.body) / vol.sum()
+    return {"mean_flow": {"pressure_gradient": [float(g[0]), float(g[1])],
+                          "bulk_velocity": [float(bulk[0]), float(bulk[1])]}}
+
+
 def _gradients(solver: SimpleSolver, grad_p: np.ndarray) -> dict[str, np.ndarray]:
     """Cell gradients of u, v, p of the final state, for probes."""
     f = solver.fields
@@ -349,9 +359,12 @@ def solve(
         initial = ckpt.fields
     fields, start = start_fields(problem, initial)
     model = model_for_case(c, problem.mesh, problem.geom, problem.boundary)
+    mf = c.mean_flow
     solver = SimpleSolver(
         problem.mesh, problem.geom, problem.boundary, rho=c.fluid.density, mu=c.fluid.viscosity,
         controls=controls, fields=fields, model=model,
+        body_force=None if mf.pressure_gradient is None else -np.asarray(mf.pressure_gradient, dtype=float),
+        bulk_velocity=mf.bulk_velocity,
     )
     if ckpt is not None:
         if list(ckpt.history_names) != list(solver.history.names):
@@ -401,6 +414,7 @@ def solve(
             "raise solver.max_iterations or restart from this result"
         )
     extra: dict[str, Any] = {
+        "summary": _mean_flow_summary(solver) if mf.active else {},
         "gradients": _gradients(solver, grad_p),
         "cell_data": model.cell_outputs(solver.fields),
     }

@@ -173,9 +173,29 @@ def _generate(case: Case) -> Mesh:
     return mesh
 
 
+def _join_periodic(case: Case, mesh: Mesh) -> Mesh:
+    from fvrans.mesh.periodic import join_periodic
+
+    key = f"{case.label}: mesh.periodic_pairs"
+    for pair in case.mesh.periodic_pairs:
+        for name in pair:
+            if name not in mesh.patch_names:
+                raise CaseError(f"{key}: the mesh {mesh.source} has no patch {name!r}"
+                                f"{did_you_mean(name, mesh.patch_names)}; its patches are: "
+                                f"{', '.join(repr(x) for x in mesh.patch_names)}")
+            if name in case.boundaries:
+                raise CaseError(f"{case.label}: {format_key(('boundary', name))}: patch {name!r} is joined by "
+                                "mesh.periodic_pairs and takes no boundary condition; remove the table")
+    try:
+        return join_periodic(mesh, case.mesh.periodic_pairs)
+    except MeshError as exc:
+        raise MeshError(f"{key}: {exc}") from None
+
+
 def build_case_mesh(case: Case, check: bool = True) -> Mesh:
     """Read or generate the case's mesh, renumber its cells if asked (reverse Cuthill-McKee,
-    :func:`fvrans.mesh.renumber.renumber_cells`) and, by default, check the case against it with
+    :func:`fvrans.mesh.renumber.renumber_cells`), join its periodic pairs
+    (:func:`fvrans.mesh.periodic.join_periodic`) and, by default, check the case against it with
     :func:`check_case_against_mesh`."""
     if case.mesh.file is not None:
         from fvrans.mesh.io import read_mesh
@@ -189,6 +209,8 @@ def build_case_mesh(case: Case, check: bool = True) -> Mesh:
         from fvrans.mesh.renumber import renumber_cells
 
         mesh, _ = renumber_cells(mesh)
+    if case.mesh.periodic_pairs:
+        mesh = _join_periodic(case, mesh)
     if check:
         check_case_against_mesh(case, mesh)
     return mesh

@@ -32,11 +32,13 @@ _BARE_KEY = re.compile(r"^[A-Za-z0-9_-]+$")
 
 #: keys of each table; ``None`` marks the table of boundary tables
 TABLE_KEYS: dict[str, tuple[str, ...]] = {
-    "mesh": ("file", "generator", "parameters", "renumber", "edge_tags", "edge_tag_array", "edge_boxes",
-             "unnamed_edges"),
+    "mesh": ("file", "generator", "parameters", "renumber", "periodic_pairs", "edge_tags", "edge_tag_array",
+             "edge_boxes", "unnamed_edges"),
     "fluid": ("density", "viscosity"),
-    "model": ("turbulence", "sa_variant"),
-    "initial": ("velocity", "pressure", "nu_tilde_ratio", "from_result"),
+    "model": ("turbulence", "sa_variant", "sa_rotation_curvature", "nonlinear_stress"),
+    "initial": ("velocity", "pressure", "nu_tilde_ratio", "turbulence_intensity", "eddy_viscosity_ratio",
+                "from_result"),
+    "mean_flow": ("pressure_gradient", "bulk_velocity"),
     "solver": (
         "coupling", "max_iterations", "tolerance", "relax_velocity", "relax_pressure",
         "relax_turbulence", "convection", "turbulence_convection", "gradient", "limiter",
@@ -50,7 +52,8 @@ TABLE_KEYS: dict[str, tuple[str, ...]] = {
         "map_window",
     ),
 }
-TOP_KEYS = ("title", "description", "mesh", "fluid", "model", "initial", "boundary", "solver", "output", "probes")
+TOP_KEYS = ("title", "description", "mesh", "fluid", "model", "initial", "boundary", "solver", "output", "probes",
+            "mean_flow")
 #: keys of a line probe [probes.<name>]
 PROBE_KEYS = ("start", "end", "points")
 _PROBE_NAME = re.compile(r"^[A-Za-z0-9_][A-Za-z0-9_.-]*$")
@@ -321,13 +324,19 @@ def case_from_dict(data: Mapping[str, Any], source: str | Path | None = None) ->
     model = S.ModelSettings(
         turbulence=model_t.choice("turbulence", S.TURBULENCE_MODELS, "none"),
         sa_variant=model_t.choice("sa_variant", S.SA_VARIANTS, "standard"),
+        sa_rotation_curvature=model_t.boolean("sa_rotation_curvature", False),
+        nonlinear_stress=model_t.choice("nonlinear_stress", S.NONLINEAR_STRESSES, "none"),
     )
+    if model.turbulence == "none" and model.nonlinear_stress != "none":
+        raise model_t.fail("nonlinear_stress", "a non-linear Reynolds stress needs a turbulence model; set "
+                           "model.turbulence or remove the key")
     initial = _initial(ctx, top.table("initial", {}))
     boundaries = _boundaries(ctx, top.table("boundary", hint=(
         'add one table per mesh patch, e.g. [boundary.walls] with kind = "wall"')))
-    solver = _solver(ctx, top.table("solver", {}))
+    solver = _solver(ctx, top.table("solver", {}), model.turbulence)
     output = _output(ctx, top.table("output", {}), boundaries)
     probes = _probes(ctx, top.table("probes", {}))
+    mean_flow = _mean_flow(ctx, top.table("mean_flow", {}), mesh)
     return S.Case(
         source=src,
         title=title,
@@ -340,6 +349,7 @@ def case_from_dict(data: Mapping[str, Any], source: str | Path | None = None) ->
         solver=solver,
         output=output,
         probes=probes,
+        mean_flow=mean_flow,
         raw=S.copy_data(data),
     )
 
@@ -355,6 +365,10 @@ def _initial(ctx: _Ctx, data: Any) -> S.InitialState:
         velocity=t.vector("velocity", (0.0, 0.0)),
         pressure=t.number("pressure", 0.0),
         nu_tilde_ratio=t.number("nu_tilde_ratio", 3.0, NON_NEGATIVE, "the initial ratio nu_tilde / nu"),
+        turbulence_intensity=t.number("turbulence_intensity", S.DEFAULT_TURBULENCE_INTENSITY, POSITIVE,
+                                      "the initial sqrt(2k/3) / |u| (k-omega SST)"),
+        eddy_viscosity_ratio=t.number("eddy_viscosity_ratio", S.DEFAULT_EDDY_VISCOSITY_RATIO, POSITIVE,
+                                      "the initial nu_t / nu (k-omega SST)"),
         from_result=from_result,
     )
 
@@ -387,12 +401,13 @@ def _mesh(ctx: _Ctx, data: Any) -> S.MeshSettings:
         raise ctx.error(("mesh",), 'needs file = "path/to/mesh.msh" (relative to the case file) '
                         'or generator = "<name of a function in fvrans.mesh.generate>"')
     renumber = t.boolean("renumber", False)
+    pairs = _periodic_pairs(t)
     if t.has("file"):
         if t.has("parameters"):
             raise t.fail("parameters", "only used with mesh.generator; remove it (or use a generator "
                          "instead of mesh.file)")
         return S.MeshSettings(file=_check_path(ctx, ("mesh", "file"), t.data["file"], "mesh file"),
-                              renumber=renumber, **_edge_names(t))
+                              renumber=renumber, periodic_pairs=pairs, **_edge_names(t))
     for k in ("edge_tags", "edge_tag_array", "edge_boxes", "unnamed_edges"):
         if t.has(k):
             raise t.fail(k, "only used with mesh.file (a generated mesh names its patches); remove it")
@@ -404,7 +419,46 @@ def _mesh(ctx: _Ctx, data: Any) -> S.MeshSettings:
     for k in params:
         if not isinstance(k, str):
             raise t.fail("parameters", f"keys must be strings, got {describe(k)}")
-    return S.MeshSettings(generator=gen, parameters=S.copy_data(params), renumber=renumber)
+    return S.MeshSettings(generator=gen, parameters=S.copy_data(params), renumber=renumber, periodic_pairs=pairs)
+
+
+def _periodic_pairs(t: _Table) -> tuple[tuple[str, str], ...]:
+    v = t._get("periodic_pairs", [], "")
+    if isinstance(v, np.ndarray):
+        v = v.tolist()
+    need = ('must be a list of patch-name pairs, e.g. periodic_pairs = [["left", "right"]] (the second patch '
+            "is the first moved by a translation)")
+    if not isinstance(v, (list, tuple)):
+        raise t.fail("periodic_pairs", f"{need}, got {describe(v)}")
+    out: list[tuple[str, str]] = []
+    seen: list[str] = []
+    for i, pair in enumerate(v):
+        if (not isinstance(pair, (list, tuple)) or len(pair) != 2
+                or not all(isinstance(n, str) and n for n in pair)):
+            raise t.fail("periodic_pairs", f"{need}; item {i + 1} is {describe(pair)}")
+        if pair[0] == pair[1] or pair[0] in seen or pair[1] in seen:
+            raise t.fail("periodic_pairs", f"item {i + 1} {list(pair)}: each patch may appear in one pair only, "
+                         "and a pair joins two different patches")
+        seen += list(pair)
+        out.append((pair[0], pair[1]))
+    return tuple(out)
+
+
+def _mean_flow(ctx: _Ctx, data: Any, mesh: S.MeshSettings) -> S.MeanFlow:
+    t = _Table(ctx, ("mean_flow",), data, TABLE_KEYS["mean_flow"], "[mean_flow]")
+    if not data:
+        return S.MeanFlow()
+    if not mesh.periodic_pairs:
+        raise ctx.error(("mean_flow",), "drives the flow through periodic pairs; add mesh.periodic_pairs "
+                        '(e.g. periodic_pairs = [["inlet", "outlet"]]) or remove [mean_flow]')
+    if t.has("pressure_gradient") and t.has("bulk_velocity"):
+        raise ctx.error(("mean_flow",), "give either pressure_gradient or bulk_velocity, not both; remove one")
+    if t.has("pressure_gradient"):
+        return S.MeanFlow(pressure_gradient=t.vector("pressure_gradient"))
+    bulk = t.vector("bulk_velocity")
+    if bulk == (0.0, 0.0):
+        raise t.fail("bulk_velocity", "must not be zero (it sets the flow direction); give e.g. [1.0, 0.0]")
+    return S.MeanFlow(bulk_velocity=bulk)
 
 
 def _edge_names(t: _Table) -> dict[str, Any]:
@@ -489,8 +543,19 @@ def _boundary(ctx: _Ctx, name: str, data: Any) -> S.BoundarySpec:
             velocity=t.vector("velocity", hint="add velocity = [u, v], the free-stream velocity"),
             pressure=t.number("pressure", 0.0),
             nu_tilde_ratio=t.number("nu_tilde_ratio", 3.0, NON_NEGATIVE, "the free-stream nu_tilde / nu"),
+            **_sst_inflow(t),
         )
     return _inlet(ctx, t)
+
+
+def _sst_inflow(t: _Table) -> dict[str, float]:
+    """Inflow keys of the k-omega SST model (defaults when absent)."""
+    return {
+        "turbulence_intensity": t.number("turbulence_intensity", S.DEFAULT_TURBULENCE_INTENSITY, NON_NEGATIVE,
+                                         "the inflow sqrt(2k/3) / |u| (k-omega SST)"),
+        "eddy_viscosity_ratio": t.number("eddy_viscosity_ratio", S.DEFAULT_EDDY_VISCOSITY_RATIO, POSITIVE,
+                                         "the inflow nu_t / nu (k-omega SST)"),
+    }
 
 
 def _inlet(ctx: _Ctx, t: _Table) -> S.BoundarySpec:
@@ -514,7 +579,7 @@ def _inlet(ctx: _Ctx, t: _Table) -> S.BoundarySpec:
         else:
             velocity = t.vector("velocity")
         ratio = t.number("nu_tilde_ratio", 3.0, NON_NEGATIVE, "the inflow nu_tilde / nu")
-        return S.BoundarySpec("inflow-velocity", velocity=velocity, nu_tilde_ratio=ratio)
+        return S.BoundarySpec("inflow-velocity", velocity=velocity, nu_tilde_ratio=ratio, **_sst_inflow(t))
     profile = _check_path(ctx, t.path + ("profile",), t.data["profile"], "inlet profile file")
     given = t.table("profile_columns", {})
     _Table(ctx, t.path + ("profile_columns",), given, S.PROFILE_COLUMN_KEYS, "profile_columns")
@@ -527,10 +592,11 @@ def _inlet(ctx: _Ctx, t: _Table) -> S.BoundarySpec:
         nut = None
     else:
         nut = t.number("nu_tilde_ratio", 3.0, NON_NEGATIVE, "the inflow nu_tilde / nu")
-    return S.BoundarySpec("inflow-velocity", profile=profile, profile_columns=columns, nu_tilde_ratio=nut)
+    return S.BoundarySpec("inflow-velocity", profile=profile, profile_columns=columns, nu_tilde_ratio=nut,
+                          **_sst_inflow(t))
 
 
-def _solver(ctx: _Ctx, data: Any) -> S.SolverSettings:
+def _solver(ctx: _Ctx, data: Any, turbulence: str = "none") -> S.SolverSettings:
     t = _Table(ctx, ("solver",), data, TABLE_KEYS["solver"], "[solver]")
     coupling = t.choice("coupling", S.COUPLINGS, "simplec")
     return S.SolverSettings(
@@ -553,7 +619,8 @@ def _solver(ctx: _Ctx, data: Any) -> S.SolverSettings:
                                           "Krylov iterations per momentum solve"),
         momentum_sweeps=t.integer("momentum_sweeps", 5, AT_LEAST_ONE, "sweeps per solve"),
         turbulence_solver=t.choice("turbulence_solver", S.TURBULENCE_SOLVERS, "amg"),
-        turbulence_tolerance=t.number("turbulence_tolerance", 0.01, OPEN_UNIT, "a relative tolerance"),
+        turbulence_tolerance=t.number("turbulence_tolerance", S.DEFAULT_TURBULENCE_TOLERANCE.get(turbulence, 0.01),
+                                      OPEN_UNIT, "a relative tolerance"),
         turbulence_max_iterations=t.integer("turbulence_max_iterations", 20, AT_LEAST_ONE,
                                             "Krylov iterations or sweeps per turbulence solve"),
         amg_rebuild_every=t.integer("amg_rebuild_every", 20, AT_LEAST_ONE, "outer iterations"),
