@@ -36,6 +36,17 @@ from fvrans.mesh.geometry import Geometry, compute_geometry
 from fvrans.mesh.locate import CellLocator
 from fvrans.mesh.mesh import Mesh
 from fvrans.mesh.morph import topology_difference
+from fvrans.monitor import (
+    MONITOR_CSV,
+    FlowState,
+    Monitor,
+    case_monitor,
+    derived_value,
+    probe_stencils,
+    sample_flow,
+    speed_scale,
+    stop_reason,
+)
 from fvrans.physics.boundary import FlowBoundary, build_flow_boundary
 from fvrans.physics.spalart_allmaras import eddy_viscosity as sa_eddy_viscosity
 from fvrans.physics.spalart_allmaras import model_for_case
@@ -49,13 +60,13 @@ from fvrans.post import (
     write_residuals_csv,
     write_vtu_atomic,
 )
-from fvrans.post.probes import sample_line, write_probe_csv
+from fvrans.post.probes import build_stencil, line_points, write_probe_csv
 from fvrans.solve.fields import Fields
 from fvrans.solve.simple import History, SimpleSolver, SolverControls
 
 log = logging.getLogger(__name__)
 
-__all__ = ["Problem", "Result", "apply_overrides", "case_from_dict", "load_case", "prepare", "solve"]
+__all__ = ["Problem", "Result", "apply_overrides", "build_monitor", "case_from_dict", "load_case", "prepare", "solve"]
 
 
 @dataclass(frozen=True)
@@ -96,6 +107,10 @@ class Result:
     velocity_scale: float = 1.0
     #: outer iteration the fields belong to (one less than ``iterations`` after a divergence)
     fields_iteration: int | None = None
+    #: the monitored quantities of every iteration and their stopping rule (None: not monitored)
+    monitor: Monitor | None = None
+    #: what ended the run, a key of :data:`fvrans.monitor.STOP_REASONS`
+    stopped_by: str = ""
 
     # -- arrays -----------------------------------------------------------------------------
     @property
@@ -151,11 +166,33 @@ class Result:
         extra.update(self.extra.get("summary", {}))
         if self.case.output.map_window is not None:
             extra["map_window"] = list(self.case.output.map_window)
+        extra.update(self._monitor_summary())
         return build_summary(
             self.case.title or self.case.label, self.converged, self.iterations, self.wall_seconds,
             self.mesh.n_cells, history=self.history, walls=self.walls(),
             l_ref=self.case.output.reference_length, extra=extra,
         )
+
+    def _monitor_summary(self) -> dict[str, Any]:
+        """stopped_by, the stopping settings, the monitored quantities' estimates, point probes and
+        derived scalars."""
+        c = self.case
+        out: dict[str, Any] = {}
+        if self.stopped_by:
+            out["stopped_by"] = self.stopped_by
+        if self.monitor is not None:
+            out["stopping"] = {
+                "residual_tolerance": c.solver.tolerance, "settle": c.monitor.settle,
+                "iteration_error": c.monitor.iteration_error, "window": c.monitor.window,
+                "speed_scale": self.monitor.speed,
+                "unsettled": [st.name for st in self.monitor.unsettled()],
+            }
+            out["monitors"] = self.monitor.summary()
+        if c.point_probes:
+            out["probes"] = {n: {k: float(v[0]) for k, v in self.probe(n).items()} for n in c.point_probes}
+        if c.derived:
+            out["derived"] = self.derived()
+        return out
 
     # -- writing ----------------------------------------------------------------------------
     def cell_data(self) -> dict[str, np.ndarray]:
@@ -177,38 +214,71 @@ class Result:
             header, cols = wall_columns(w)
             write_csv_atomic(out / "wall" / f"{name}.csv", header, cols)
         write_residuals_csv(out / "residuals.csv", self.history)
-        if self.case.probes:
+        if self.monitor is not None and self.monitor.rows:
+            header, cols = self.monitor.columns()
+            write_csv_atomic(out / MONITOR_CSV, header, cols)
+        lines = self.case.line_probes
+        if lines:
             (out / "profiles").mkdir(exist_ok=True)
-        for name in self.case.probes:
+        for name in lines:
             write_probe_csv(out / "profiles" / f"{name}.csv", self.probe(name))
         write_json_atomic(out / "summary.json", self.summary())
         return out
 
-    # -- line probes ------------------------------------------------------------------------
+    # -- probes -----------------------------------------------------------------------------
+    def flow_state(self) -> FlowState:
+        """The final fields and their gradients, as the monitors read them each iteration."""
+        grads = self.extra.get("gradients", {"p": self.grad_p})
+        return FlowState(self.velocity, self.pressure, self.grad_p, self.fields.nu_tilde, lambda: grads)
+
+    def _locator(self) -> CellLocator:
+        if "locator" not in self.extra:
+            self.extra["locator"] = CellLocator(self.mesh, centroids=self.problem.geom.cell_centre)
+        return self.extra["locator"]
+
     def sample_line(self, start: Any, end: Any, points: int = 101, name: str = "line") -> dict[str, np.ndarray]:
         """Fields along a segment: columns ``s`` (distance from start), ``x``, ``y``, ``u``, ``v``,
         ``p`` and, with Spalart-Allmaras, ``nu_tilde`` and ``nut_ratio`` (from the sampled nu_tilde).
-        Each value is the containing cell's value plus its gradient times the offset from the
-        cell centroid (:func:`fvrans.post.probes.sample_line`)."""
-        values = {"u": self.velocity[:, 0], "v": self.velocity[:, 1], "p": self.pressure}
-        if self.fields.nu_tilde is not None:
-            values["nu_tilde"] = self.fields.nu_tilde
-        if "locator" not in self.extra:
-            self.extra["locator"] = CellLocator(self.mesh, centroids=self.problem.geom.cell_centre)
-        cols = sample_line(self.extra["locator"], self.problem.geom.cell_centre, start, end, points, values,
-                           self.extra.get("gradients", {}), name=name)
-        if "nu_tilde" in cols:
-            nu = self.case.fluid.kinematic_viscosity
-            cols["nut_ratio"] = sa_eddy_viscosity(cols["nu_tilde"], nu) / nu
+        Each value is the average over the cells containing the point of the cell value plus its
+        gradient times the offset from the cell centroid (:mod:`fvrans.post.probes`)."""
+        pts = line_points(start, end, points)
+        stencil = build_stencil(self._locator(), self.problem.geom.cell_centre, pts, name)
+        cols = {"s": np.hypot(*(pts - pts[0]).T), "x": pts[:, 0], "y": pts[:, 1]}
+        cols.update(sample_flow(stencil, self.flow_state(), self.case.fluid.kinematic_viscosity))
+        return cols
+
+    def sample_point(self, at: Any, name: str = "point") -> dict[str, float]:
+        """Fields at a point: ``x``, ``y``, ``u``, ``v``, ``p`` (and ``nu_tilde``, ``nut_ratio``), the
+        average of the reconstructions of every cell containing the point."""
+        stencil = build_stencil(self._locator(), self.problem.geom.cell_centre, np.asarray(at, dtype=float), name)
+        cols = {"x": float(stencil.points[0, 0]), "y": float(stencil.points[0, 1])}
+        cols.update({k: float(v[0]) for k, v in
+                     sample_flow(stencil, self.flow_state(), self.case.fluid.kinematic_viscosity).items()})
         return cols
 
     def probe(self, name: str) -> dict[str, np.ndarray]:
-        """The columns of the case's line probe ``[probes.<name>]`` (see :meth:`sample_line`)."""
+        """The columns of the case's probe ``[probes.<name>]``: a line probe's table (see
+        :meth:`sample_line`), or a point probe's ``x``, ``y``, ``u``, ... as arrays of one value."""
         if name not in self.case.probes:
             raise CaseError(f"{self.case.label}: no probe {name!r}; the case has "
                             f"{', '.join(repr(n) for n in self.case.probes) or 'none'} ([probes.<name>] tables)")
         pr = self.case.probes[name]
+        if name in self.case.point_probes:
+            return {k: np.array([v]) for k, v in self.sample_point(pr.at, name).items()}
         return self.sample_line(pr.start, pr.end, pr.points, name=name)
+
+    def derived(self) -> dict[str, float]:
+        """The values of the case's derived scalars ``[derived.<name>]`` (NaN: undefined, e.g. no
+        reattachment along the line)."""
+        c = self.case
+        if not c.derived:
+            return {}
+        names = [n for n in c.probes if any(n in d.probes for d in c.derived.values())]
+        stencils = probe_stencils(c, self.mesh, self.problem.geom, names, self._locator())
+        lines = {n: np.hypot(*(st.points - st.points[0]).T) for n, st in stencils.items()}
+        state = self.flow_state()
+        nu = c.fluid.kinematic_viscosity
+        return {n: derived_value(d, stencils, lines, state, nu) for n, d in c.derived.items()}
 
     def write_checkpoint(self, path: str | Path) -> Path:
         """Save the state of this run to ``path`` (a ``.npz`` file, written atomically) so that
@@ -256,6 +326,21 @@ def _gradients(solver: SimpleSolver, model: Any, grad_p: np.ndarray) -> dict[str
     return out
 
 
+def build_monitor(problem: Problem, initial: Result | Fields | None = None) -> Monitor:
+    """The monitor of a prepared case (its wall forces, point probes, derived scalars and the
+    velocity change; :mod:`fvrans.monitor`); pass it to :func:`solve` to read it while the run goes."""
+    c = problem.case
+    start = (initial.fields if isinstance(initial, Result) else initial)
+    u0 = start.velocity if start is not None else np.asarray(c.initial.velocity, dtype=float)
+    return case_monitor(c, problem.mesh, problem.geom, problem.boundary, speed_scale(problem.boundary, u0))
+
+
+def _flow_state(solver: SimpleSolver, model: Any) -> FlowState:
+    f = solver.fields
+    return FlowState(f.velocity, f.pressure, solver.grad_p, f.nu_tilde,
+                     lambda: _gradients(solver, model, solver.grad_p))
+
+
 def solve(
     case: Case | Problem,
     initial: Result | Fields | None = None,
@@ -263,6 +348,7 @@ def solve(
     *,
     restart: Checkpoint | str | Path | None = None,
     checkpoint: str | Path | None = None,
+    monitor: Monitor | None = None,
 ) -> Result:
     """Solve a case (or a prepared Problem); ``initial`` warm-starts from a previous result on the
     same mesh or one of the same topology (a neighbouring design of a parametric generator with the
@@ -275,6 +361,9 @@ def solve(
     (or its file, or a result folder holding ``checkpoint.npz``) to continue: fields, iteration
     count and residual history carry on; ``solver.max_iterations`` counts the new iterations.
     ``checkpoint``: a file to save the state to every ``solver.checkpoint_every`` iterations.
+    ``monitor``: the run's :class:`fvrans.monitor.Monitor` (default: :func:`build_monitor`), which
+    records the watched quantities after every iteration and, with ``monitor.settle``, holds the
+    run until they have settled (``Result.stopped_by`` says what ended the run).
     """
     problem = case if isinstance(case, Problem) else prepare(case)
     c = problem.case
@@ -301,9 +390,13 @@ def solve(
         log.info("%s: resuming at iteration %d from %s", c.label, ckpt.iteration, ckpt.source)
     every = c.solver.checkpoint_every
     stopped = False
+    if monitor is None:
+        monitor = build_monitor(problem, initial)
+    monitor.state = lambda: _flow_state(solver, model)
 
     def step(it: int, res: list[float]) -> bool:
         nonlocal stopped
+        monitor.callback(it, res)
         if checkpoint is not None and every > 0 and it % every == 0:
             write_checkpoint(checkpoint, solver.fields, it, list(solver.history.names), solver.history.as_array(),
                              np.asarray(solver.history.seconds), solver.u_scale, c, problem.mesh, solver.grad_p)
@@ -317,7 +410,7 @@ def solve(
     diverged = False
     fields_iteration = None
     try:
-        converged = solver.run(callback=step)
+        converged = solver.run(callback=step, converged_when=monitor.converged_when)
     except DivergenceError as exc:
         converged = False
         diverged = True
@@ -333,8 +426,14 @@ def solve(
         message = (f"interrupted at iteration {solver.iteration} before converging; continue with "
                    "restart= (fvrans run ... --restart DIR)")
     elif not converged and not diverged:
+        waiting = monitor.unsettled() if solver.history.rows and max(solver.history.rows[-1]) < controls.tolerance \
+            else []
+        why = (f"every residual is below {controls.tolerance:g} but " + ", ".join(
+            f"{st.name} (estimated iteration error {st.error:.2g} > {st.allowed:.2g})" for st in waiting[:3])
+            + (" has" if len(waiting) == 1 else " have") + " not settled" if waiting
+            else f"tolerance {controls.tolerance:g}")
         message = (
-            f"not converged after {solver.iteration} iterations (tolerance {controls.tolerance:g}); "
+            f"not converged after {solver.iteration} iterations ({why}); "
             "raise solver.max_iterations or restart from this result"
         )
     extra: dict[str, Any] = {"gradients": _gradients(solver, model, grad_p)}
@@ -350,5 +449,6 @@ def solve(
         problem=problem, fields=solver.fields, history=solver.history, converged=bool(converged),
         iterations=solver.iteration, wall_seconds=seconds, grad_p=grad_p, message=message,
         diverged=diverged, extra=extra, interrupted=interrupted, velocity_scale=solver.u_scale,
-        fields_iteration=fields_iteration,
+        fields_iteration=fields_iteration, monitor=monitor,
+        stopped_by=stop_reason(bool(converged), diverged, interrupted, c.monitor.settle),
     )
