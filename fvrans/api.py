@@ -61,6 +61,7 @@ from fvrans.post import (
     write_vtu_atomic,
 )
 from fvrans.post.probes import build_stencil, line_points, write_probe_csv
+from fvrans.post.wall_resolution import WallResolution, wall_resolution
 from fvrans.solve.fields import Fields
 from fvrans.solve.simple import History, SimpleSolver, SolverControls
 
@@ -158,6 +159,18 @@ class Result:
             raise CaseError(f"{self.case.label}: {patch!r} is not a wall patch of this run; walls: {sorted(walls)}")
         return walls[patch]
 
+    def wall_resolution(self) -> dict[str, WallResolution]:
+        """First-cell y+ figures of each reported wall patch of a turbulent run
+        (:mod:`fvrans.post.wall_resolution`); empty for a laminar run."""
+        if not self.case.turbulent:
+            return {}
+        return {name: wall_resolution(w) for name, w in self.walls().items()}
+
+    def warnings(self) -> list[str]:
+        """What the run's outputs should be read with: wall patches too coarse for the model."""
+        model = "Spalart-Allmaras" if self.case.model.turbulence == "spalart-allmaras" else self.case.model.turbulence
+        return [text for r in self.wall_resolution().values() if (text := r.warning(model))]
+
     def summary(self) -> dict[str, Any]:
         """The content of summary.json."""
         extra = {"message": self.message} if self.message else {}
@@ -192,6 +205,10 @@ class Result:
             out["probes"] = {n: {k: float(v[0]) for k, v in self.probe(n).items()} for n in c.point_probes}
         if c.derived:
             out["derived"] = self.derived()
+        resolution = self.wall_resolution()
+        if resolution:
+            out["wall_resolution"] = {n: r.as_dict() for n, r in resolution.items()}
+        out["warnings"] = self.warnings()
         return out
 
     # -- writing ----------------------------------------------------------------------------
@@ -445,10 +462,14 @@ def solve(
             "nut_ratio": sa_eddy_viscosity(nt, nu) / nu,
             "wall_distance": model.wall_distance,
         }
-    return Result(
+    result = Result(
         problem=problem, fields=solver.fields, history=solver.history, converged=bool(converged),
         iterations=solver.iteration, wall_seconds=seconds, grad_p=grad_p, message=message,
         diverged=diverged, extra=extra, interrupted=interrupted, velocity_scale=solver.u_scale,
         fields_iteration=fields_iteration, monitor=monitor,
         stopped_by=stop_reason(bool(converged), diverged, interrupted, c.monitor.settle),
     )
+    if not diverged:
+        for text in result.warnings():
+            log.warning("%s: %s", c.label, text)
+    return result

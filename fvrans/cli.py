@@ -33,8 +33,10 @@ def _cmd_run(args: argparse.Namespace) -> int:
     out.mkdir(parents=True, exist_ok=True)
     checkpoint = out / CHECKPOINT_NAME
     names = ["u", "v", "continuity"] + (["nu_tilde"] if case.turbulent else [])
+    monitor = api.build_monitor(problem, restart.fields if restart else None)
     progress = RunProgress(names, case.solver.max_iterations, case.solver.tolerance,
-                           first_iteration=restart.iteration if restart else 0, quiet=args.quiet)
+                           first_iteration=restart.iteration if restart else 0, quiet=args.quiet,
+                           watch=monitor.progress_text)
     stop = StopRequest()
 
     def callback(it, res):
@@ -43,7 +45,7 @@ def _cmd_run(args: argparse.Namespace) -> int:
 
     stop.install()
     try:
-        result = api.solve(problem, callback=callback, restart=restart, checkpoint=checkpoint)
+        result = api.solve(problem, callback=callback, restart=restart, checkpoint=checkpoint, monitor=monitor)
     finally:
         stop.restore()
         progress.close()

@@ -23,6 +23,8 @@ log = logging.getLogger(__name__)
 
 #: iterations used for the decay rate and the seconds per iteration
 WINDOW = 50
+#: columns of a terminal line; the monitored quantity is shown only where it fits
+LINE_WIDTH = 80
 
 
 def format_seconds(s: float) -> str:
@@ -92,6 +94,8 @@ class RunProgress:
     from; ``max_iterations``: iterations allowed to this run. ``stream``: default stderr. On a
     terminal a rich progress bar (iteration, bar, residuals, time left); elsewhere a plain line
     at the first iteration and then every ``every_s`` seconds; nothing when ``quiet``.
+    ``watch()``: a short text of a monitored quantity (e.g. ``"plate.Cd 0.0028712"``), shown only
+    where the line has room for it within :data:`LINE_WIDTH` columns.
     """
 
     def __init__(
@@ -105,8 +109,10 @@ class RunProgress:
         every_s: float = 5.0,
         clock: Callable[[], float] = time.perf_counter,
         force_terminal: bool | None = None,
+        watch: Callable[[], str] | None = None,
     ):
         self.names = list(names)
+        self.watch = watch
         self.quiet = quiet
         self.stream = stream if stream is not None else sys.stderr
         self.first = int(first_iteration)
@@ -150,7 +156,11 @@ class RunProgress:
         eta = self.estimate.text(iteration)
         if eta:
             parts.append(eta)
-        return "  ".join(parts)
+        text = "  ".join(parts)
+        watched = self.watch() if self.watch is not None else ""
+        if watched and len(text) + 2 + len(watched) <= LINE_WIDTH:
+            text = f"{text}  {watched}"
+        return text
 
     def __call__(self, iteration: int, residuals: Sequence[float]) -> None:
         now = self.clock()
@@ -161,8 +171,13 @@ class RunProgress:
         if self.quiet:
             return
         if self._bar is not None:
-            self._bar.update(self._task, completed=iteration, res=self.residual_text(residuals),
-                             eta=self.estimate.text(iteration))
+            res = self.residual_text(residuals)
+            eta = self.estimate.text(iteration)
+            watched = self.watch() if self.watch is not None else ""
+            # the bar's other columns: "iteration n/N" (~20), the bar (24), elapsed time (~10)
+            if watched and 54 + len(res) + len(eta) + 2 + len(watched) <= LINE_WIDTH:
+                res = f"{res}  {watched}"
+            self._bar.update(self._task, completed=iteration, res=res, eta=eta)
             return
         if iteration == self.first + 1 or now - self.t_last_line >= self.every_s:
             self._write_line(iteration, residuals)

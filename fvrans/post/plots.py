@@ -697,7 +697,8 @@ def result_figures(
     ``window`` (xmin, xmax, ymin, ymax), or else the ``map_window`` of summary.json (the case's
     ``output.map_window``), adds zoomed maps ``field_<quantity>_zoom.png``.
 
-    ``residuals.png``; ``wall_<patch>_cf.png`` and ``wall_<patch>_cp.png`` per wall table, with
+    ``residuals.png``; ``monitored.png`` (:mod:`fvrans.post.monitor_plot`); ``wall_<patch>_cf.png``
+    and ``wall_<patch>_cp.png`` per wall table, with
     the zero-shear points of summary.json and the curves of ``references[patch]["cf" | "cp"]``
     (see :func:`wall_figure`); ``field_velocity.png`` (with streamlines), ``field_pressure.png``
     and ``field_nut_ratio.png`` (when present) from fields.vtu; ``profile_<name>.png`` for each
@@ -749,6 +750,10 @@ def _result_figures(rd: Path, title: str | None, reference: Mapping[str, Any] | 
                     ) -> Iterator[tuple[str, Figure]]:
     if have_res:
         yield "residuals.png", residual_figure(rd / "residuals.csv", title=title)
+    if (rd / "monitored.csv").is_file():
+        from fvrans.post.monitor_plot import monitor_figure
+
+        yield "monitored.png", monitor_figure(rd / "monitored.csv", title=title)
     for wf in wall_files:
         patch = wf.stem
         cols = read_csv_columns(wf)
