@@ -65,7 +65,7 @@ def iteration_error(changes, window: int, scale: float = 1.0) -> ErrorEstimate:
         return ErrorEstimate(math.inf, math.nan)
     d1 = float(np.max(d[-m:]))
     d0 = float(np.max(d[-2 * m:-m]))
-    if d1 <= ROUND_OFF * abs(scale):
+    if d1 == 0.0 or d1 <= ROUND_OFF * abs(scale):
         return ErrorEstimate(d1, d1 / d0 if d0 > 0 else 0.0)
     if d0 <= 0.0:
         return ErrorEstimate(math.inf, math.inf)

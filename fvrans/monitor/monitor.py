@@ -133,7 +133,8 @@ class Monitor:
                 est: ErrorEstimate = iteration_error(changes, window, 1.0)
                 value = float(col[-1])
             else:
-                est = iteration_error(_changes(col), window, max(abs(float(col[-1])), float(scales[j])))
+                size = abs(float(col[-1])) if np.isfinite(col[-1]) else 0.0
+                est = iteration_error(_changes(col), window, max(size, float(scales[j])))
                 value = float(col[-1])
             out.append(ColumnStatus(name, value, est.error, self.settings.iteration_error * float(scales[j]),
                                     est.ratio))
