@@ -31,11 +31,13 @@ from fvrans.case import Case, apply_overrides, case_from_dict, load_case
 from fvrans.case.build import build_case_mesh
 from fvrans.checkpoint import Checkpoint, read_checkpoint, write_checkpoint
 from fvrans.errors import CaseError, DivergenceError
-from fvrans.fv.boundary import boundary_face_values
+from fvrans.fields import Fields
 from fvrans.mesh.geometry import Geometry, compute_geometry
 from fvrans.mesh.locate import CellLocator
 from fvrans.mesh.mesh import Mesh
 from fvrans.mesh.morph import topology_difference
+from fvrans.models import model_for_case, residual_names
+from fvrans.models.base import TurbulenceModel
 from fvrans.monitor import (
     MONITOR_CSV,
     FlowState,
@@ -48,8 +50,6 @@ from fvrans.monitor import (
     stop_reason,
 )
 from fvrans.physics.boundary import FlowBoundary, build_flow_boundary
-from fvrans.physics.spalart_allmaras import eddy_viscosity as sa_eddy_viscosity
-from fvrans.physics.spalart_allmaras import model_for_case
 from fvrans.post import (
     WallData,
     all_wall_data,
@@ -60,14 +60,17 @@ from fvrans.post import (
     write_residuals_csv,
     write_vtu_atomic,
 )
+from fvrans.post.filenames import output_file
 from fvrans.post.probes import build_stencil, line_points, write_probe_csv
 from fvrans.post.wall_resolution import WallResolution, wall_resolution
-from fvrans.solve.fields import Fields
 from fvrans.solve.simple import History, SimpleSolver, SolverControls
 
 log = logging.getLogger(__name__)
 
-__all__ = ["Problem", "Result", "apply_overrides", "build_monitor", "case_from_dict", "load_case", "prepare", "solve"]
+__all__ = [
+    "Problem", "Result", "apply_overrides", "build_monitor", "case_from_dict", "load_case", "prepare",
+    "residual_names", "solve",
+]
 
 
 @dataclass(frozen=True)
@@ -104,10 +107,12 @@ class Result:
     extra: dict[str, Any] = field(default_factory=dict)
     #: stopped on request (a callback returning True, Ctrl-C, SIGTERM) before converging
     interrupted: bool = False
-    #: velocity scale of the scaled residuals (kept in checkpoints)
+    #: velocity scale of the divergence guard (kept in checkpoints)
     velocity_scale: float = 1.0
     #: outer iteration the fields belong to (one less than ``iterations`` after a divergence)
     fields_iteration: int | None = None
+    #: the turbulence model of the run (its outputs and probe columns); None: none recorded
+    model: TurbulenceModel | None = None
     #: the monitored quantities of every iteration and their stopping rule (None: not monitored)
     monitor: Monitor | None = None
     #: what ended the run, a key of :data:`fvrans.monitor.STOP_REASONS`
@@ -138,7 +143,7 @@ class Result:
 
     @property
     def residuals(self) -> np.ndarray:
-        """Scaled residuals per iteration, columns named by ``history.names``."""
+        """Normalised imbalances per iteration, columns named by ``history.names``."""
         return self.history.as_array()
 
     # -- derived ----------------------------------------------------------------------------
@@ -168,7 +173,7 @@ class Result:
 
     def warnings(self) -> list[str]:
         """What the run's outputs should be read with: wall patches too coarse for the model."""
-        model = "Spalart-Allmaras" if self.case.model.turbulence == "spalart-allmaras" else self.case.model.turbulence
+        model = f"the {self.case.model.turbulence} model"
         return [text for r in self.wall_resolution().values() if (text := r.warning(model))]
 
     def summary(self) -> dict[str, Any]:
@@ -222,31 +227,37 @@ class Result:
         into ``out_dir`` (each file atomically)."""
         out = Path(out_dir)
         out.mkdir(parents=True, exist_ok=True)
-        if self.case.output.write_fields:
-            write_vtu_atomic(out / "fields.vtu", self.mesh, self.cell_data())
         walls = self.walls()
+        # names from the mesh and the case become file names only through output_file
+        wall_files = {n: output_file(out, n, ".csv", subfolder="wall", what=f"wall patch {n!r}") for n in walls}
+        probe_files = {n: output_file(out, n, ".csv", subfolder="profiles", what=f"probe {n!r}")
+                       for n in self.case.line_probes}
+        if self.case.output.write_fields:
+            write_vtu_atomic(out / "fields.vtu", self.mesh, self.cell_data(), within=out)
         if walls:
             (out / "wall").mkdir(exist_ok=True)
         for name, w in walls.items():
             header, cols = wall_columns(w)
-            write_csv_atomic(out / "wall" / f"{name}.csv", header, cols)
-        write_residuals_csv(out / "residuals.csv", self.history)
+            write_csv_atomic(wall_files[name], header, cols, within=out)
+        write_residuals_csv(out / "residuals.csv", self.history, within=out)
         if self.monitor is not None and self.monitor.rows:
             header, cols = self.monitor.columns()
-            write_csv_atomic(out / MONITOR_CSV, header, cols)
-        lines = self.case.line_probes
-        if lines:
+            write_csv_atomic(out / MONITOR_CSV, header, cols, within=out)
+        if probe_files:
             (out / "profiles").mkdir(exist_ok=True)
-        for name in lines:
-            write_probe_csv(out / "profiles" / f"{name}.csv", self.probe(name))
-        write_json_atomic(out / "summary.json", self.summary())
+        for name, path in probe_files.items():
+            write_probe_csv(path, self.probe(name), within=out)
+        write_json_atomic(out / "summary.json", self.summary(), within=out)
         return out
 
     # -- probes -----------------------------------------------------------------------------
     def flow_state(self) -> FlowState:
         """The final fields and their gradients, as the monitors read them each iteration."""
-        grads = self.extra.get("gradients", {"p": self.grad_p})
-        return FlowState(self.velocity, self.pressure, self.grad_p, self.fields.nu_tilde, lambda: grads)
+        if "flow_state" not in self.extra:
+            grads = self.extra.get("gradients", {"p": self.grad_p})
+            self.extra["flow_state"] = FlowState(self.velocity, self.pressure, self.grad_p, lambda: grads,
+                                                 self.model, self.fields)
+        return self.extra["flow_state"]
 
     def _locator(self) -> CellLocator:
         if "locator" not in self.extra:
@@ -255,22 +266,22 @@ class Result:
 
     def sample_line(self, start: Any, end: Any, points: int = 101, name: str = "line") -> dict[str, np.ndarray]:
         """Fields along a segment: columns ``s`` (distance from start), ``x``, ``y``, ``u``, ``v``,
-        ``p`` and, with Spalart-Allmaras, ``nu_tilde`` and ``nut_ratio`` (from the sampled nu_tilde).
-        Each value is the average over the cells containing the point of the cell value plus its
-        gradient times the offset from the cell centroid (:mod:`fvrans.post.probes`)."""
+        ``p`` and the turbulence model's probe columns (Spalart-Allmaras: ``nu_tilde`` and
+        ``eddy_viscosity_ratio``, the latter from the sampled nu_tilde). Each value is the average over
+        the cells containing the point of the cell value plus its gradient times the offset from the
+        cell centroid (:mod:`fvrans.post.probes`)."""
         pts = line_points(start, end, points)
         stencil = build_stencil(self._locator(), self.problem.geom.cell_centre, pts, name)
         cols = {"s": np.hypot(*(pts - pts[0]).T), "x": pts[:, 0], "y": pts[:, 1]}
-        cols.update(sample_flow(stencil, self.flow_state(), self.case.fluid.kinematic_viscosity))
+        cols.update(sample_flow(stencil, self.flow_state()))
         return cols
 
     def sample_point(self, at: Any, name: str = "point") -> dict[str, float]:
-        """Fields at a point: ``x``, ``y``, ``u``, ``v``, ``p`` (and ``nu_tilde``, ``nut_ratio``), the
+        """Fields at a point: ``x``, ``y``, ``u``, ``v``, ``p`` and the model's probe columns, the
         average of the reconstructions of every cell containing the point."""
         stencil = build_stencil(self._locator(), self.problem.geom.cell_centre, np.asarray(at, dtype=float), name)
         cols = {"x": float(stencil.points[0, 0]), "y": float(stencil.points[0, 1])}
-        cols.update({k: float(v[0]) for k, v in
-                     sample_flow(stencil, self.flow_state(), self.case.fluid.kinematic_viscosity).items()})
+        cols.update({k: float(v[0]) for k, v in sample_flow(stencil, self.flow_state()).items()})
         return cols
 
     def probe(self, name: str) -> dict[str, np.ndarray]:
@@ -294,8 +305,7 @@ class Result:
         stencils = probe_stencils(c, self.mesh, self.problem.geom, names, self._locator())
         lines = {n: np.hypot(*(st.points - st.points[0]).T) for n, st in stencils.items()}
         state = self.flow_state()
-        nu = c.fluid.kinematic_viscosity
-        return {n: derived_value(d, stencils, lines, state, nu) for n, d in c.derived.items()}
+        return {n: derived_value(d, stencils, lines, state) for n, d in c.derived.items()}
 
     def write_checkpoint(self, path: str | Path) -> Path:
         """Save the state of this run to ``path`` (a ``.npz`` file, written atomically) so that
@@ -330,17 +340,12 @@ def _initial_fields(problem: Problem, initial: Result | Fields | None) -> Fields
     return fields.copy()
 
 
-def _gradients(solver: SimpleSolver, model: Any, grad_p: np.ndarray) -> dict[str, np.ndarray]:
-    """Cell gradients of u, v, p (and nu_tilde) of the final state, for probes."""
+def _gradients(solver: SimpleSolver, grad_p: np.ndarray) -> dict[str, np.ndarray]:
+    """Cell gradients of u, v, p of the final state, for probes."""
     f = solver.fields
     ub = solver._velocity_on_boundary(f.velocity, f.face_flux[solver.ni:])
     gu = solver.grad(np.ascontiguousarray(f.velocity, dtype=float), ub)
-    out = {"u": gu[:, 0, :].copy(), "v": gu[:, 1, :].copy(), "p": np.array(grad_p)}
-    if model is not None and f.nu_tilde is not None:
-        nt = np.ascontiguousarray(f.nu_tilde, dtype=float)
-        nt_b = boundary_face_values(model.mesh, model.geom, model.bc, nt, model.grad_nt)
-        out["nu_tilde"] = np.array(model.grad(nt, nt_b))
-    return out
+    return {"u": gu[:, 0, :].copy(), "v": gu[:, 1, :].copy(), "p": np.array(grad_p)}
 
 
 def build_monitor(problem: Problem, initial: Result | Fields | None = None) -> Monitor:
@@ -352,10 +357,9 @@ def build_monitor(problem: Problem, initial: Result | Fields | None = None) -> M
     return case_monitor(c, problem.mesh, problem.geom, problem.boundary, speed_scale(problem.boundary, u0))
 
 
-def _flow_state(solver: SimpleSolver, model: Any) -> FlowState:
+def _flow_state(solver: SimpleSolver, model: TurbulenceModel) -> FlowState:
     f = solver.fields
-    return FlowState(f.velocity, f.pressure, solver.grad_p, f.nu_tilde,
-                     lambda: _gradients(solver, model, solver.grad_p))
+    return FlowState(f.velocity, f.pressure, solver.grad_p, lambda: _gradients(solver, solver.grad_p), model, f)
 
 
 def solve(
@@ -453,20 +457,15 @@ def solve(
             f"not converged after {solver.iteration} iterations ({why}); "
             "raise solver.max_iterations or restart from this result"
         )
-    extra: dict[str, Any] = {"gradients": _gradients(solver, model, grad_p)}
-    if model is not None and solver.fields.nu_tilde is not None:
-        nt = solver.fields.nu_tilde
-        nu = c.fluid.kinematic_viscosity
-        extra["cell_data"] = {
-            "nu_tilde": nt,
-            "nut_ratio": sa_eddy_viscosity(nt, nu) / nu,
-            "wall_distance": model.wall_distance,
-        }
+    extra: dict[str, Any] = {
+        "gradients": _gradients(solver, grad_p),
+        "cell_data": model.cell_outputs(solver.fields),
+    }
     result = Result(
         problem=problem, fields=solver.fields, history=solver.history, converged=bool(converged),
         iterations=solver.iteration, wall_seconds=seconds, grad_p=grad_p, message=message,
         diverged=diverged, extra=extra, interrupted=interrupted, velocity_scale=solver.u_scale,
-        fields_iteration=fields_iteration, monitor=monitor,
+        fields_iteration=fields_iteration, model=model, monitor=monitor,
         stopped_by=stop_reason(bool(converged), diverged, interrupted, c.monitor.settle),
     )
     if not diverged:

@@ -32,7 +32,7 @@ def _cmd_run(args: argparse.Namespace) -> int:
     out = Path(args.out)
     out.mkdir(parents=True, exist_ok=True)
     checkpoint = out / CHECKPOINT_NAME
-    names = ["u", "v", "continuity"] + (["nu_tilde"] if case.turbulent else [])
+    names = api.residual_names(case)
     monitor = api.build_monitor(problem, restart.fields if restart else None)
     progress = RunProgress(names, case.solver.max_iterations, case.solver.tolerance,
                            first_iteration=restart.iteration if restart else 0, quiet=args.quiet,

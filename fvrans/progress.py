@@ -2,7 +2,7 @@
 seconds otherwise (log files, CI), nothing with ``quiet``; and :class:`StopRequest`, which turns
 SIGINT / SIGTERM into a stop at the end of the current iteration.
 
-The time left is estimated from the recent decay of the largest scaled residual: with the
+The time left is estimated from the recent decay of the largest normalised imbalance: with the
 least-squares slope s of log10(residual) per iteration over the last iterations, the run needs
 about (log10(tolerance) - log10(residual)) / s more iterations (when s < 0), never more than the
 iteration limit allows; times the mean seconds per iteration of the recent iterations.

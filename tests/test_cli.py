@@ -24,11 +24,11 @@ density = 1.0
 viscosity = 0.05
 
 [boundary.inlet]
-kind = "velocity-inlet"
+kind = "inflow-velocity"
 velocity = [1.0, 0.0]
 
 [boundary.outlet]
-kind = "pressure-outlet"
+kind = "outflow-pressure"
 
 [boundary.lower_wall]
 kind = "wall"

@@ -81,15 +81,15 @@ def _suggest_condition(name: str) -> str:
     """A table for patch ``name`` (kind guessed from the name), indented, for error messages."""
     low = name.lower()
     if "inlet" in low or "inflow" in low:
-        body = 'kind = "velocity-inlet"\nvelocity = [1.0, 0.0]   # the inflow velocity'
+        body = 'kind = "inflow-velocity"\nvelocity = [1.0, 0.0]   # the inflow velocity'
     elif "outlet" in low or "outflow" in low or "exit" in low:
-        body = 'kind = "pressure-outlet"\npressure = 0.0'
+        body = 'kind = "outflow-pressure"\npressure = 0.0'
     elif "sym" in low:
         body = 'kind = "symmetry"'
     elif "far" in low or "free" in low:
         body = 'kind = "freestream"\nvelocity = [1.0, 0.0]   # the free-stream velocity'
     else:
-        body = 'kind = "wall"   # or: velocity-inlet, pressure-outlet, symmetry, freestream'
+        body = 'kind = "wall"   # or: inflow-velocity, outflow-pressure, symmetry, freestream'
     lines = [f"[{format_key(('boundary', name))}]", *body.splitlines()]
     return "".join(f"  {line}\n" for line in lines)
 
@@ -115,15 +115,15 @@ def _check_values_on_mesh(case: Case, mesh: Mesh) -> None:
                         f"{label}.velocity: the wall velocity {list(map(float, u))} crosses the wall: "
                         f"{int(bad.sum())} of {len(un)} faces have a normal component (up to {abs(un[i]):.4g}"
                         f" at ({c[0]:.6g}, {c[1]:.6g})); a wall can only move along itself — give a "
-                        "velocity tangential to the wall, or use kind = \"velocity-inlet\" for flow "
+                        "velocity tangential to the wall, or use kind = \"inflow-velocity\" for flow "
                         "through it"
                     )
-        if spec.kind == "velocity-inlet":
+        if spec.kind == "inflow-velocity":
             # the profile range must cover the face end points; functions are tried on face centres
             if spec.profile is not None:
                 pts = np.concatenate([a, b])
                 spec.velocity_at(pts[:, 0], pts[:, 1], label)
-                spec.nut_ratio_at(pts[:, 0], pts[:, 1], label)
+                spec.nu_tilde_ratio_at(pts[:, 0], pts[:, 1], label)
             elif callable(spec.velocity):
                 c = 0.5 * (a + b)
                 spec.velocity_at(c[:, 0], c[:, 1], label)

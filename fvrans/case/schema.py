@@ -17,7 +17,7 @@ import numpy as np
 # -- allowed values ------------------------------------------------------------------------
 TURBULENCE_MODELS = ("none", "spalart-allmaras")
 SA_VARIANTS = ("standard", "no-ft2")
-BOUNDARY_KINDS = ("wall", "velocity-inlet", "pressure-outlet", "symmetry", "freestream")
+BOUNDARY_KINDS = ("wall", "inflow-velocity", "outflow-pressure", "symmetry", "freestream")
 COUPLINGS = ("simple", "simplec")
 CONVECTION_SCHEMES = ("upwind", "linear-upwind")
 GRADIENT_METHODS = ("least-squares", "green-gauss")
@@ -26,14 +26,14 @@ LIMITERS = ("none", "venkatakrishnan", "barth-jespersen")
 #: keys each boundary kind takes (besides none else)
 BOUNDARY_KEYS: dict[str, tuple[str, ...]] = {
     "wall": ("kind", "velocity"),
-    "velocity-inlet": ("kind", "velocity", "profile", "profile_columns", "nut_ratio"),
-    "pressure-outlet": ("kind", "pressure"),
+    "inflow-velocity": ("kind", "velocity", "profile", "profile_columns", "nu_tilde_ratio"),
+    "outflow-pressure": ("kind", "pressure"),
     "symmetry": ("kind",),
-    "freestream": ("kind", "velocity", "pressure", "nut_ratio"),
+    "freestream": ("kind", "velocity", "pressure", "nu_tilde_ratio"),
 }
-PROFILE_COLUMN_KEYS = ("coordinate", "u", "v", "nut_ratio")
+PROFILE_COLUMN_KEYS = ("coordinate", "u", "v", "nu_tilde_ratio")
 #: column names used when ``profile_columns`` does not name them
-DEFAULT_PROFILE_COLUMNS = {"coordinate": "y", "u": "u", "v": "v", "nut_ratio": "nut_ratio"}
+DEFAULT_PROFILE_COLUMNS = {"coordinate": "y", "u": "u", "v": "v", "nu_tilde_ratio": "nu_tilde_ratio"}
 #: default under-relaxation of the pressure correction for each coupling
 DEFAULT_RELAX_PRESSURE = {"simple": 0.3, "simplec": 1.0}
 DEFAULT_RELAX_VELOCITY = {"simple": 0.7, "simplec": 0.95}
@@ -79,7 +79,7 @@ class ModelSettings:
 class InitialState:
     velocity: tuple[float, float] = (0.0, 0.0)
     pressure: float = 0.0
-    nut_ratio: float = 3.0
+    nu_tilde_ratio: float = 3.0
 
 
 @dataclass(frozen=True)
@@ -88,15 +88,15 @@ class BoundarySpec:
 
     ``velocity`` is ``(u, v)`` or, for a velocity inlet built in Python, a function
     ``f(x, y) -> (u, v)`` of face-centre coordinates. ``profile`` is the absolute path of a CSV
-    inlet profile and ``profile_columns`` maps ``coordinate``, ``u``, ``v`` (and ``nut_ratio``
-    when the file has that column) to column names. ``nut_ratio`` is None when the profile
+    inlet profile and ``profile_columns`` maps ``coordinate``, ``u``, ``v`` (and ``nu_tilde_ratio``
+    when the file has that column) to column names. ``nu_tilde_ratio`` is None when the profile
     supplies it.
     """
 
     kind: str
     velocity: Velocity | None = None
     pressure: float | None = None
-    nut_ratio: float | None = None
+    nu_tilde_ratio: float | None = None
     profile: Path | None = None
     profile_columns: dict[str, str] | None = None
 
@@ -110,11 +110,11 @@ class BoundarySpec:
 
         return evaluate_velocity(self, np.asarray(x, float), np.asarray(y, float), label)
 
-    def nut_ratio_at(self, x, y, label: str = "<in memory>: boundary") -> np.ndarray:
+    def nu_tilde_ratio_at(self, x, y, label: str = "<in memory>: boundary") -> np.ndarray:
         """Inflow ratio nu_tilde / nu at points ``(x, y)`` (constant, or from the profile file)."""
-        from fvrans.case.profile import evaluate_nut_ratio
+        from fvrans.case.profile import evaluate_nu_tilde_ratio
 
-        return evaluate_nut_ratio(self, np.asarray(x, float), np.asarray(y, float), label)
+        return evaluate_nu_tilde_ratio(self, np.asarray(x, float), np.asarray(y, float), label)
 
 
 @dataclass(frozen=True)
@@ -284,7 +284,7 @@ class Case:
         """A new validated case with several dotted keys changed at once (validated together).
 
         A value ``None`` removes the key (its default applies again); a table value replaces
-        the whole table, e.g. ``{"boundary.inlet": {"kind": "pressure-outlet"}}``. Inlet
+        the whole table, e.g. ``{"boundary.inlet": {"kind": "outflow-pressure"}}``. Inlet
         velocities may be Python functions ``f(x, y) -> (u, v)``.
         """
         from fvrans.case.validate import apply_changes, case_from_dict
@@ -298,9 +298,9 @@ class Case:
         """Velocity prescribed on ``patch`` at points ``(x, y)`` (see :meth:`BoundarySpec.velocity_at`)."""
         return self._boundary(patch).velocity_at(x, y, self._boundary_label(patch))
 
-    def boundary_nut_ratio(self, patch: str, x, y) -> np.ndarray:
+    def boundary_nu_tilde_ratio(self, patch: str, x, y) -> np.ndarray:
         """Inflow nu_tilde / nu on ``patch`` at points ``(x, y)``."""
-        return self._boundary(patch).nut_ratio_at(x, y, self._boundary_label(patch))
+        return self._boundary(patch).nu_tilde_ratio_at(x, y, self._boundary_label(patch))
 
     def _boundary(self, patch: str) -> BoundarySpec:
         from fvrans.case.validate import unknown_patch_error
@@ -343,8 +343,8 @@ def boundary_data(b: BoundarySpec, keep_callables: bool = False) -> dict[str, An
         out["profile_columns"] = dict(b.profile_columns)
     if b.pressure is not None:
         out["pressure"] = float(b.pressure)
-    if b.nut_ratio is not None:
-        out["nut_ratio"] = float(b.nut_ratio)
+    if b.nu_tilde_ratio is not None:
+        out["nu_tilde_ratio"] = float(b.nu_tilde_ratio)
     return out
 
 
@@ -376,7 +376,7 @@ def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
         "initial": {
             "velocity": _vec(case.initial.velocity),
             "pressure": case.initial.pressure,
-            "nut_ratio": case.initial.nut_ratio,
+            "nu_tilde_ratio": case.initial.nu_tilde_ratio,
         },
         "boundary": {name: boundary_data(b, keep_callables) for name, b in case.boundaries.items()},
         "solver": {

@@ -35,7 +35,7 @@ TABLE_KEYS: dict[str, tuple[str, ...]] = {
     "mesh": ("file", "generator", "parameters", "renumber"),
     "fluid": ("density", "viscosity"),
     "model": ("turbulence", "sa_variant"),
-    "initial": ("velocity", "pressure", "nut_ratio"),
+    "initial": ("velocity", "pressure", "nu_tilde_ratio"),
     "solver": (
         "coupling", "max_iterations", "tolerance", "relax_velocity", "relax_pressure",
         "relax_turbulence", "convection", "turbulence_convection", "gradient", "limiter",
@@ -56,8 +56,8 @@ PROBE_KEYS = ("start", "end", "points", "at")
 #: keys of a derived scalar [derived.<name>] and of the [monitor] table
 DERIVED_KEYS = ("kind", "probes", "probe", "quantity")
 MONITOR_KEYS = ("settle", "iteration_error", "window", "show")
-#: what a probe samples (nu_tilde and nut_ratio with Spalart-Allmaras only)
-PROBE_QUANTITIES = ("u", "v", "p", "nu_tilde", "nut_ratio")
+#: what a probe samples besides the turbulence model's variables and eddy_viscosity_ratio
+PROBE_QUANTITIES = ("u", "v", "p")
 _PROBE_NAME = re.compile(r"^[A-Za-z0-9_][A-Za-z0-9_.-]*$")
 
 Rule = tuple[Callable[[float], bool], str]
@@ -267,7 +267,8 @@ def check_vector(v: Any, fail: Callable[[str], CaseError]) -> tuple[float, float
         v = v.tolist()
     need = "must be a list of 2 numbers [x component, y component]"
     if not isinstance(v, (list, tuple)):
-        extra = " (Python functions are accepted for velocity-inlet velocities only)" if callable(v) else ""
+        extra = (" (Python functions are accepted only for the velocity of an inflow-velocity patch)"
+                 if callable(v) else "")
         raise fail(f"{need}, got {describe(v)}{extra}")
     if len(v) != 2:
         raise fail(f"{need}, got {len(v)} item(s): {describe(v)}")
@@ -330,7 +331,7 @@ def case_from_dict(data: Mapping[str, Any], source: str | Path | None = None) ->
     initial = S.InitialState(
         velocity=init_t.vector("velocity", (0.0, 0.0)),
         pressure=init_t.number("pressure", 0.0),
-        nut_ratio=init_t.number("nut_ratio", 3.0, NON_NEGATIVE, "the initial ratio nu_tilde / nu"),
+        nu_tilde_ratio=init_t.number("nu_tilde_ratio", 3.0, NON_NEGATIVE, "the initial ratio nu_tilde / nu"),
     )
     boundaries = _boundaries(ctx, top.table("boundary", hint=(
         'add one table per mesh patch, e.g. [boundary.walls] with kind = "wall"')))
@@ -411,12 +412,12 @@ def _boundary(ctx: _Ctx, name: str, data: Any) -> S.BoundarySpec:
             users = [kd for kd, keys in S.BOUNDARY_KEYS.items() if k in keys]
             why = (f"; {k} is used by kind(s) {_quoted_list(users)} only" if users
                    else did_you_mean(str(k), allowed))
-            raise ctx.error(path + (str(k),), f"not a key of kind {kind!r}{why}; a {kind} patch takes: "
+            raise ctx.error(path + (str(k),), f"not a key of kind {kind!r}{why}; a patch of kind {kind!r} takes: "
                             f"{', '.join(allowed)} — remove the key or change the kind")
-    t = _Table(ctx, path, data, allowed, f"a {kind} patch")
+    t = _Table(ctx, path, data, allowed, f"a patch of kind {kind!r}")
     if kind == "wall":
         return S.BoundarySpec(kind, velocity=t.vector("velocity", (0.0, 0.0)))
-    if kind == "pressure-outlet":
+    if kind == "outflow-pressure":
         return S.BoundarySpec(kind, pressure=t.number("pressure", 0.0))
     if kind == "symmetry":
         return S.BoundarySpec(kind)
@@ -425,7 +426,7 @@ def _boundary(ctx: _Ctx, name: str, data: Any) -> S.BoundarySpec:
             kind,
             velocity=t.vector("velocity", hint="add velocity = [u, v], the free-stream velocity"),
             pressure=t.number("pressure", 0.0),
-            nut_ratio=t.number("nut_ratio", 3.0, NON_NEGATIVE, "the free-stream nu_tilde / nu"),
+            nu_tilde_ratio=t.number("nu_tilde_ratio", 3.0, NON_NEGATIVE, "the free-stream nu_tilde / nu"),
         )
     return _inlet(ctx, t)
 
@@ -450,20 +451,21 @@ def _inlet(ctx: _Ctx, t: _Table) -> S.BoundarySpec:
             velocity: S.Velocity = v
         else:
             velocity = t.vector("velocity")
-        return S.BoundarySpec("velocity-inlet", velocity=velocity,
-                              nut_ratio=t.number("nut_ratio", 3.0, NON_NEGATIVE, "the inflow nu_tilde / nu"))
+        ratio = t.number("nu_tilde_ratio", 3.0, NON_NEGATIVE, "the inflow nu_tilde / nu")
+        return S.BoundarySpec("inflow-velocity", velocity=velocity, nu_tilde_ratio=ratio)
     profile = _check_path(ctx, t.path + ("profile",), t.data["profile"], "inlet profile file")
     given = t.table("profile_columns", {})
     _Table(ctx, t.path + ("profile_columns",), given, S.PROFILE_COLUMN_KEYS, "profile_columns")
-    columns = resolve_profile(profile, given, lambda key, m: ctx.error(t.path + key, m))
-    if "nut_ratio" in columns:
-        if t.has("nut_ratio"):
-            raise t.fail("nut_ratio", f"the profile {profile} already gives nut_ratio in column "
-                         f"{columns['nut_ratio']!r}; remove this key (or the column)")
+    columns = resolve_profile(profile, given, lambda key, m: ctx.error(t.path + key, m),
+                              constant_given=t.has("nu_tilde_ratio"))
+    if "nu_tilde_ratio" in columns:
+        if t.has("nu_tilde_ratio"):
+            raise t.fail("nu_tilde_ratio", f"the profile {profile} already gives nu_tilde_ratio in column "
+                         f"{columns['nu_tilde_ratio']!r}; remove this key (or the column)")
         nut = None
     else:
-        nut = t.number("nut_ratio", 3.0, NON_NEGATIVE, "the inflow nu_tilde / nu")
-    return S.BoundarySpec("velocity-inlet", profile=profile, profile_columns=columns, nut_ratio=nut)
+        nut = t.number("nu_tilde_ratio", 3.0, NON_NEGATIVE, "the inflow nu_tilde / nu")
+    return S.BoundarySpec("inflow-velocity", profile=profile, profile_columns=columns, nu_tilde_ratio=nut)
 
 
 def _solver(ctx: _Ctx, data: Any) -> S.SolverSettings:
@@ -472,7 +474,7 @@ def _solver(ctx: _Ctx, data: Any) -> S.SolverSettings:
     return S.SolverSettings(
         coupling=coupling,
         max_iterations=t.integer("max_iterations", 5000, AT_LEAST_ONE, "the number of outer iterations"),
-        tolerance=t.number("tolerance", 1e-6, POSITIVE, "the scaled-residual tolerance"),
+        tolerance=t.number("tolerance", 1e-6, POSITIVE, "the normalised-imbalance tolerance"),
         relax_velocity=t.number("relax_velocity", S.DEFAULT_RELAX_VELOCITY[coupling], UNIT,
                                 "an under-relaxation factor"),
         relax_pressure=t.number("relax_pressure", S.DEFAULT_RELAX_PRESSURE[coupling], UNIT,
@@ -580,7 +582,7 @@ def _derived(ctx: _Ctx, data: Any, probes: Mapping[str, S.Probe],
     if not isinstance(data, Mapping):
         raise ctx.error(("derived",), f"must hold one table per scalar, [derived.<name>] with kind = one of "
                         f"{_quoted_list(S.DERIVED_KINDS)}, got {describe(data)}")
-    quantities = PROBE_QUANTITIES if model.turbulence != "none" else PROBE_QUANTITIES[:3]
+    quantities = _probe_quantities(model)
     points = [n for n, p in probes.items() if isinstance(p, S.ProbePoint)]
     lines = [n for n, p in probes.items() if isinstance(p, S.ProbeLine)]
     out: dict[str, S.DerivedScalar] = {}
@@ -618,6 +620,15 @@ def _derived(ctx: _Ctx, data: Any, probes: Mapping[str, S.Probe],
                              f"line probes ([probes.<name>] with start and end): {_quoted_list(lines) or 'none'}")
             out[name] = S.DerivedScalar(kind, (line,), t.choice("quantity", quantities, "u"))
     return out
+
+
+def _probe_quantities(model: S.ModelSettings) -> tuple[str, ...]:
+    """u, v, p and, for a turbulence model, its transported variables and the eddy-viscosity ratio."""
+    if model.turbulence == "none":
+        return PROBE_QUANTITIES
+    from fvrans.models import EDDY_VISCOSITY_RATIO, model_class
+
+    return (*PROBE_QUANTITIES, *model_class(model.turbulence).variables, EDDY_VISCOSITY_RATIO)
 
 
 def _monitor(ctx: _Ctx, data: Any) -> S.MonitorSettings:

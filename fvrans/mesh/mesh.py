@@ -230,6 +230,9 @@ def build_mesh(
 
     bnd_in: dict[str, np.ndarray] = {}
     for name, edges in boundary.items():
+        if not str(name).strip():
+            raise MeshError(f"{source}: a boundary patch has the empty name {str(name)!r}; patch names become "
+                            "case keys and file names — give the physical line group a name")
         e = np.asarray(edges, dtype=np.int64).reshape(-1, 2)
         if e.size and (e.min() < 0 or e.max() >= len(pts)):
             raise MeshError(f"{source}: patch {name!r} refers to a point index outside 0..{len(pts) - 1}")

@@ -22,12 +22,15 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from fvrans.case.schema import Case, DerivedScalar
+from fvrans.errors import CaseError
+from fvrans.fields import Fields
 from fvrans.mesh.geometry import Geometry
 from fvrans.mesh.locate import CellLocator, line_points
 from fvrans.mesh.mesh import Mesh
+from fvrans.models.base import EDDY_VISCOSITY_RATIO, TurbulenceModel
 from fvrans.physics.boundary import FlowBoundary
-from fvrans.physics.spalart_allmaras import eddy_viscosity as sa_eddy_viscosity
 from fvrans.post.derived import first_rise_through_zero
+from fvrans.post.filenames import safe_file_name
 from fvrans.post.probes import Stencil, build_stencil
 from fvrans.post.wall import PatchOrder, order_patch_faces, patch_forces, wall_data
 
@@ -40,40 +43,57 @@ WATCHED_PROBE_VALUES = ("u", "v", "p")
 
 @dataclass
 class FlowState:
-    """What the monitors read after an iteration: cell velocity (nc, 2), pressure (nc,), its
-    gradient (nc, 2), nu_tilde (nc,) or None, and a function giving the cell gradients of ``u``,
-    ``v``, ``p`` (and ``nu_tilde``), called only when a probe needs them (once per state)."""
+    """What the monitors read after an iteration: cell velocity (nc, 2), pressure (nc,) and its
+    gradient (nc, 2); ``gradient_function()`` gives the cell gradients of ``u``, ``v``, ``p``;
+    ``model`` and ``fields`` give the turbulence model's probe fields
+    (:meth:`fvrans.models.base.TurbulenceModel.probe_fields`). Gradients and model fields are
+    computed only when a probe asks for them, once per state."""
 
     velocity: np.ndarray
     pressure: np.ndarray
     grad_p: np.ndarray
-    nu_tilde: np.ndarray | None = None
     gradient_function: Callable[[], Mapping[str, np.ndarray]] | None = None
+    model: TurbulenceModel | None = None
+    fields: Fields | None = None
     _gradients: Mapping[str, np.ndarray] | None = field(default=None, repr=False)
+    _model_fields: dict[str, tuple[np.ndarray, np.ndarray | None]] | None = field(default=None, repr=False)
 
     def cell_values(self) -> dict[str, np.ndarray]:
-        out = {"u": self.velocity[:, 0], "v": self.velocity[:, 1], "p": self.pressure}
-        if self.nu_tilde is not None:
-            out["nu_tilde"] = self.nu_tilde
-        return out
+        return {"u": self.velocity[:, 0], "v": self.velocity[:, 1], "p": self.pressure}
 
     def gradients(self) -> Mapping[str, np.ndarray]:
         if self._gradients is None:
             self._gradients = self.gradient_function() if self.gradient_function is not None else {"p": self.grad_p}
         return self._gradients
 
+    def model_fields(self) -> dict[str, tuple[np.ndarray, np.ndarray | None]]:
+        """The model's probe fields with their gradients ({} for laminar flow)."""
+        if self._model_fields is None:
+            self._model_fields = {} if self.model is None or self.fields is None else \
+                self.model.probe_fields(self.fields)
+        return self._model_fields
 
-def sample_flow(stencil: Stencil, state: FlowState, nu: float,
-                quantities: Sequence[str] | None = None) -> dict[str, np.ndarray]:
-    """u, v, p (and nu_tilde, nut_ratio = nu_t / nu of the sampled nu_tilde, with Spalart-Allmaras)
-    at the stencil's points; ``quantities`` restricts the columns."""
+
+FLOW_QUANTITIES = ("u", "v", "p")
+
+
+def sample_flow(stencil: Stencil, state: FlowState, quantities: Sequence[str] | None = None) -> dict[str, np.ndarray]:
+    """u, v, p and the turbulence model's probe columns (Spalart-Allmaras: nu_tilde and
+    eddy_viscosity_ratio) at the stencil's points; ``quantities`` restricts the columns (the model's
+    fields are sampled only when one of them is asked for)."""
     values = state.cell_values()
-    want = list(values) + (["nut_ratio"] if "nu_tilde" in values else []) if quantities is None else list(quantities)
-    need = {"nu_tilde" if q == "nut_ratio" else q for q in want}
     grads = state.gradients()
-    out = {q: stencil.sample(values[q], grads.get(q)) for q in values if q in need}
-    if "nut_ratio" in want:
-        out["nut_ratio"] = sa_eddy_viscosity(out["nu_tilde"], nu) / nu
+    want = None if quantities is None else list(quantities)
+    out = {q: stencil.sample(values[q], grads.get(q)) for q in FLOW_QUANTITIES if want is None or q in want}
+    if state.model is not None and (want is None or any(q not in FLOW_QUANTITIES for q in want)):
+        sampled = {k: stencil.sample(v, g) for k, (v, g) in state.model_fields().items()}
+        out.update(sampled)
+        out.update(state.model.probe_columns(sampled))
+    if want is None:
+        return out
+    missing = [q for q in want if q not in out]
+    if missing:
+        raise CaseError(f"no probe quantity {missing[0]!r} in this run; it has {', '.join(out) or 'none'}")
     return {q: out[q] for q in want}
 
 
@@ -138,7 +158,9 @@ class WallForces(Watch):
     def __init__(self, mesh: Mesh, geom: Geometry, boundary: FlowBoundary, case: Case, patches: Sequence[str]):
         self.args = (mesh, geom, boundary, case, list(patches))
         self.orders = {p: order_patch_faces(mesh, geom, p) for p in patches}
-        self.columns = [f"{p}.{k}" for p in patches for k in FORCE_COLUMNS]
+        # patch names come from mesh files: in column names they take the form of their file names
+        # (wall/<name>.csv), which holds no comma, quote or line break
+        self.columns = [f"{safe_file_name(p, f'wall patch {p!r}')}.{k}" for p in patches for k in FORCE_COLUMNS]
 
     def values(self, state: FlowState) -> list[float]:
         co = force_coefficients(*self.args, state.velocity, state.pressure, state.grad_p, self.orders)
@@ -158,14 +180,15 @@ def _pressure_scale(case: Case, speed: float) -> float:
 
 
 def _quantity_scale(q: str, case: Case, speed: float, value: float) -> float:
-    """U for u, v; 1/2 rho U^2 for p; max(|nu_tilde|, nu) for nu_tilde; max(|ratio|, 1) for nut_ratio."""
+    """U for u, v; 1/2 rho U^2 for p; for a turbulence quantity its own size, at least nu for a
+    viscosity-like variable (nu_tilde) and 1 for a ratio."""
     if q == "p":
         return _pressure_scale(case, speed)
-    if q == "nu_tilde":
-        return max(abs(value), case.fluid.kinematic_viscosity)
-    if q == "nut_ratio":
+    if q in ("u", "v"):
+        return speed
+    if q == EDDY_VISCOSITY_RATIO:
         return max(abs(value), 1.0)
-    return speed
+    return max(abs(value), case.fluid.kinematic_viscosity)
 
 
 class PointProbes(Watch):
@@ -177,10 +200,9 @@ class PointProbes(Watch):
         self.columns = [f"{n}.{q}" for n in self.stencils for q in WATCHED_PROBE_VALUES]
 
     def values(self, state: FlowState) -> list[float]:
-        nu = self.case.fluid.kinematic_viscosity
         out: list[float] = []
         for st in self.stencils.values():
-            cols = sample_flow(st, state, nu, WATCHED_PROBE_VALUES)
+            cols = sample_flow(st, state, WATCHED_PROBE_VALUES)
             out += [float(cols[q][0]) for q in WATCHED_PROBE_VALUES]
         return out
 
@@ -190,13 +212,13 @@ class PointProbes(Watch):
 
 
 def derived_value(d: DerivedScalar, stencils: Mapping[str, Stencil], lines: Mapping[str, np.ndarray],
-                  state: FlowState, nu: float) -> float:
+                  state: FlowState) -> float:
     """The value of a derived scalar (``lines``: the arc length s of each line probe's points)."""
     if d.kind == "difference":
-        a, b = (float(sample_flow(stencils[n], state, nu, [d.quantity])[d.quantity][0]) for n in d.probes)
+        a, b = (float(sample_flow(stencils[n], state, [d.quantity])[d.quantity][0]) for n in d.probes)
         return a - b
     line = d.probes[0]
-    return first_rise_through_zero(lines[line], sample_flow(stencils[line], state, nu, [d.quantity])[d.quantity])
+    return first_rise_through_zero(lines[line], sample_flow(stencils[line], state, [d.quantity])[d.quantity])
 
 
 class DerivedScalars(Watch):
@@ -210,8 +232,7 @@ class DerivedScalars(Watch):
         self.columns = list(case.derived)
 
     def values(self, state: FlowState) -> list[float]:
-        nu = self.case.fluid.kinematic_viscosity
-        return [derived_value(d, self.stencils, self.lines, state, nu) for d in self.case.derived.values()]
+        return [derived_value(d, self.stencils, self.lines, state) for d in self.case.derived.values()]
 
     def scales(self, values: Sequence[float], speed: float) -> list[float]:
         out = []
@@ -254,6 +275,6 @@ def case_watches(case: Case, mesh: Mesh, geom: Geometry, boundary: FlowBoundary,
     return watches
 
 
-__all__ = ["FORCE_COLUMNS", "WATCHED_PROBE_VALUES", "DerivedScalars", "FlowState", "PointProbes", "VelocityChange",
-           "WallForces", "Watch", "case_watches", "derived_value", "force_coefficients", "probe_stencils",
-           "sample_flow"]
+__all__ = ["FLOW_QUANTITIES", "FORCE_COLUMNS", "WATCHED_PROBE_VALUES", "DerivedScalars", "FlowState", "PointProbes",
+           "VelocityChange", "WallForces", "Watch", "case_watches", "derived_value", "force_coefficients",
+           "probe_stencils", "sample_flow"]

@@ -3,8 +3,8 @@
 Kinds (integer codes shared with the solver kernels):
 
 * ``wall`` (0): no-slip; u = u_wall (tangential motion only), zero mass flux.
-* ``velocity-inlet`` (1): u = u_in (uniform, a table along a coordinate, or a Python callable).
-* ``pressure-outlet`` (2): fixed static pressure, zero-gradient velocity; reverse flow enters
+* ``inflow-velocity`` (1): u = u_in (uniform, a table along a coordinate, or a Python callable).
+* ``outflow-pressure`` (2): fixed static pressure, zero-gradient velocity; reverse flow enters
   normal to the boundary.
 * ``symmetry`` (3): zero normal velocity and zero shear.
 * ``freestream`` (4): fixed pressure; velocity u_inf where the flux enters, zero gradient where
@@ -24,7 +24,7 @@ from fvrans.errors import CaseError
 from fvrans.mesh.geometry import Geometry
 from fvrans.mesh.mesh import Mesh
 
-KIND_CODES = {"wall": 0, "velocity-inlet": 1, "pressure-outlet": 2, "symmetry": 3, "freestream": 4}
+KIND_CODES = {"wall": 0, "inflow-velocity": 1, "outflow-pressure": 2, "symmetry": 3, "freestream": 4}
 WALL, INLET, OUTLET, SYMMETRY, FREESTREAM = 0, 1, 2, 3, 4
 
 
@@ -35,7 +35,7 @@ class FlowBoundary:
     kind: np.ndarray  # (nb,) int64 codes above
     velocity: np.ndarray  # (nb, 2) wall / inlet / freestream velocity
     pressure: np.ndarray  # (nb,) fixed static pressure (outlet, freestream)
-    nut_ratio: np.ndarray  # (nb,) inflow nu_tilde / nu (inlet, freestream)
+    nu_tilde_ratio: np.ndarray  # (nb,) inflow nu_tilde / nu (inlet, freestream)
     patch_kind: dict[str, str]  # patch name -> kind name
 
     @property
@@ -50,17 +50,17 @@ def _as_spec(spec: Any) -> BoundarySpec:
     return spec
 
 
-def _nut_ratio(spec: BoundarySpec, patch: str, xf: np.ndarray) -> np.ndarray:
+def _nu_tilde_ratio(spec: BoundarySpec, patch: str, xf: np.ndarray) -> np.ndarray:
     """Inflow nu_tilde / nu: the condition's value or profile column, 3 when it gives none."""
-    if spec.nut_ratio is None and spec.profile is None:
+    if spec.nu_tilde_ratio is None and spec.profile is None:
         return np.full(len(xf), 3.0)
-    return np.asarray(spec.nut_ratio_at(xf[:, 0], xf[:, 1], f"boundary.{patch}"), dtype=float)
+    return np.asarray(spec.nu_tilde_ratio_at(xf[:, 0], xf[:, 1], f"boundary.{patch}"), dtype=float)
 
 
 def build_flow_boundary(mesh: Mesh, geom: Geometry, specs: Mapping[str, Any]) -> FlowBoundary:
     """Per-face boundary arrays from ``specs``: patch name -> a case BoundarySpec, or a dict of
     its fields (``kind``, ``velocity`` as a vector or a callable f(x, y) -> (u, v),
-    ``pressure``, ``nut_ratio``)."""
+    ``pressure``, ``nu_tilde_ratio``)."""
     nb = mesh.n_boundary_faces
     ni = mesh.n_internal_faces
     kind = np.full(nb, -1, dtype=np.int64)
@@ -94,7 +94,7 @@ def build_flow_boundary(mesh: Mesh, geom: Geometry, specs: Mapping[str, Any]) ->
                 vel[sl] = uw - un[:, None] * n  # tangential motion only
         elif code == INLET:
             vel[sl] = np.stack(spec.velocity_at(xf[:, 0], xf[:, 1], f"boundary.{patch.name}"), axis=1)
-            nut[sl] = _nut_ratio(spec, patch.name, xf)
+            nut[sl] = _nu_tilde_ratio(spec, patch.name, xf)
         elif code == OUTLET:
             pres[sl] = float(spec.pressure or 0.0)
         elif code == FREESTREAM:
@@ -103,6 +103,6 @@ def build_flow_boundary(mesh: Mesh, geom: Geometry, specs: Mapping[str, Any]) ->
                 raise CaseError(f"boundary.{patch.name}: a freestream boundary needs 'velocity'")
             vel[sl] = np.asarray(v, dtype=float)
             pres[sl] = float(spec.pressure or 0.0)
-            nut[sl] = _nut_ratio(spec, patch.name, xf)
-    return FlowBoundary(kind=kind, velocity=vel, pressure=pres, nut_ratio=nut, patch_kind=patch_kind)
+            nut[sl] = _nu_tilde_ratio(spec, patch.name, xf)
+    return FlowBoundary(kind=kind, velocity=vel, pressure=pres, nu_tilde_ratio=nut, patch_kind=patch_kind)
 

@@ -26,6 +26,12 @@ from fvrans.post.plots import _title, new_figure
 VALUE_PANELS = 3
 #: the column of the velocity change (a change per iteration, not a value)
 CHANGE_COLUMN = "velocity_change"
+#: most columns named in the legend (the rest are drawn, and counted in the legend)
+LEGEND_ENTRIES = 12
+
+
+def _short(name: str, n: int = 28) -> str:
+    return name if len(name) <= n else name[: n - 3] + "..."
 
 
 def monitor_figure(source: str | os.PathLike, summary: Mapping[str, Any] | None = None,
@@ -59,13 +65,17 @@ def monitor_figure(source: str | os.PathLike, summary: Mapping[str, Any] | None 
             scale = float(allowed) / tol if (tol and isinstance(allowed, (int, float)) and allowed > 0) else None
             y = np.abs(v - v[-1]) / (scale or max(float(np.max(np.abs(v))), 1e-300))
         y = np.where(np.isfinite(y) & (y > 0), y, np.nan)
-        ax.plot(it, y, lw=1.2, color=f"C{k % 10}", ls="-" if k < 10 else "--", label=name)
+        label = (_short(name) if k < LEGEND_ENTRIES else
+                 f"... and {len(cols) - LEGEND_ENTRIES} more" if k == LEGEND_ENTRIES else None)
+        ax.plot(it, y, lw=1.2, color=f"C{k % 10}", ls=("-", "--", ":")[(k // 10) % 3], label=label)
     if tol:
         ax.axhline(tol, color="0.3", ls="--", lw=1.0, label=f"allowed iteration error {tol:g}")
     ax.set_yscale("log")
     ax.set_ylabel("|q − q_last| / scale [-]")
     ax.grid(True, which="major", alpha=0.35)
     ax.legend(loc="best", fontsize=8, ncol=2 if len(cols) > 5 else 1)
+    if len(cols) > LEGEND_ENTRIES:
+        ax.text(0.01, 0.01, "every column: monitored.csv", transform=ax.transAxes, fontsize=7, color="0.35")
     stop = summary.get("stopped_by")
     what = "monitored quantities settling" + (f" (stopped: {stop})" if isinstance(stop, str) else "")
     ax.set_title(_title(title or summary.get("title"), what), fontsize=11)
@@ -78,7 +88,7 @@ def monitor_figure(source: str | os.PathLike, summary: Mapping[str, Any] | None 
             lo, hi = float(late.min()), float(late.max())
             pad = 0.08 * (hi - lo) if hi > lo else 1e-6 * max(abs(hi), 1e-300)
             a.set_ylim(lo - pad, hi + pad)
-        a.set_ylabel(name, fontsize=9)
+        a.set_ylabel(_short(name, 18), fontsize=9)
         a.grid(True, alpha=0.3)
         a.ticklabel_format(axis="y", useOffset=False, style="sci", scilimits=(-3, 4))
     axes[-1].set_xlabel("outer iteration")

@@ -27,7 +27,8 @@ from matplotlib.figure import Figure
 
 from fvrans.errors import CaseError
 from fvrans.post._plot_data import FieldData, read_csv_columns, read_fields, read_summary
-from fvrans.post.writers import atomic_path
+from fvrans.post.residuals import RESIDUAL_LABEL, RESIDUAL_NORMALISATION
+from fvrans.post.writers import atomic_path, safe_file_name
 
 __all__ = [
     "DPI",
@@ -75,10 +76,11 @@ def new_figure(size: tuple[float, float] = FIGSIZE) -> Figure:
     return fig
 
 
-def save_figure(fig: Figure, path: str | os.PathLike) -> Path:
-    """Save ``fig`` as PNG atomically (temporary file in the same directory, then os.replace)."""
+def save_figure(fig: Figure, path: str | os.PathLike, within: str | os.PathLike | None = None) -> Path:
+    """Save ``fig`` as PNG atomically (temporary file in the same directory, then os.replace);
+    ``within``: the folder the file must lie in."""
     target = Path(path)
-    with atomic_path(target, suffix=".png") as tmp:
+    with atomic_path(target, suffix=".png", within=within) as tmp:
         fig.savefig(tmp, format="png", dpi=DPI)
     return target
 
@@ -152,8 +154,10 @@ def residual_figure(
         ax.plot(it, y, label=name, lw=1.3, marker=marker)
     ax.set_yscale("log")
     ax.set_xlabel("outer iteration")
-    ax.set_ylabel("scaled residual [-]")
-    ax.set_title(_title(title, "residual history"), fontsize=11)
+    ax.set_ylabel(f"{RESIDUAL_LABEL} [-]")
+    ax.set_title(_title(title, f"{RESIDUAL_LABEL} per equation"), fontsize=11)
+    fig.text(0.01, 0.005, "\n".join(textwrap.wrap(RESIDUAL_NORMALISATION, 118)), fontsize=6.5, color="0.3",
+             ha="left", va="bottom")
     ax.grid(True, which="major", alpha=0.35)
     ax.grid(True, which="minor", axis="y", alpha=0.12)
     if len(it):
@@ -338,8 +342,8 @@ def _field_values(fields: FieldData, quantity: str, reference: Mapping[str, Any]
         if u_ref and rho:
             return (p - p_ref) / (0.5 * rho * u_ref**2), "Cp = (p − p_ref) / (½ ρ U_ref²) [-]", "pressure"
         return p, "p (units of the case)", "pressure"
-    if quantity == "nut_ratio":
-        return _get(fields, "nut_ratio"), "ν_t / ν [-]", "eddy-viscosity ratio"
+    if quantity == "eddy_viscosity_ratio":
+        return _get(fields, "eddy_viscosity_ratio"), "ν_t / ν [-]", "eddy-viscosity ratio"
     a = _get(fields, quantity)
     if a.ndim == 2:
         return np.hypot(a[:, 0], a[:, 1]), f"|{quantity}|", quantity
@@ -478,7 +482,7 @@ def field_figure(
 ) -> Figure:
     """A cell-data map on the mesh cells (flat colour per cell), equal aspect, with colour bar.
 
-    ``quantity``: ``"velocity"`` (magnitude, over U_ref), ``"pressure"`` (as Cp), ``"nut_ratio"``
+    ``quantity``: ``"velocity"`` (magnitude, over U_ref), ``"pressure"`` (as Cp), ``"eddy_viscosity_ratio"``
     or the name of any cell array (vectors as magnitudes). ``reference``: the ``reference``
     block of summary.json (rho, u_ref, p_ref, l_ref) for non-dimensional values; without it
     values are in the units of the case. ``window``: (xmin, xmax, ymin, ymax) in case units to
@@ -635,7 +639,7 @@ def probe_figure(
         label = "velocity / U_ref [-]" if u_ref else "velocity (units of the case)"
     elif len(quantities) == 1:
         q = quantities[0]
-        label = {"nut_ratio": "ν_t / ν [-]", "p": "p (units of the case)",
+        label = {"eddy_viscosity_ratio": "ν_t / ν [-]", "p": "p (units of the case)",
                  "nu_tilde": "ν̃ (units of the case)"}.get(q, q)
     else:
         label = ", ".join(quantities)
@@ -698,12 +702,12 @@ def result_figures(
     ``output.map_window``), adds zoomed maps ``field_<quantity>_zoom.png``.
 
     ``residuals.png``; ``monitored.png`` (:mod:`fvrans.post.monitor_plot`); ``wall_<patch>_cf.png``
-    and ``wall_<patch>_cp.png`` per wall table, with
-    the zero-shear points of summary.json and the curves of ``references[patch]["cf" | "cp"]``
-    (see :func:`wall_figure`); ``field_velocity.png`` (with streamlines), ``field_pressure.png``
-    and ``field_nut_ratio.png`` (when present) from fields.vtu; ``profile_<name>.png`` for each
-    ``profiles/<name>.csv`` with ``y_plus`` and ``u_plus`` columns, ``probe_<name>.png`` (u and v
-    along the probe) for each line-probe table. Input problems are checked
+    and ``wall_<patch>_cp.png`` per wall table, with the zero-shear points of summary.json and the
+    curves of ``references[patch]["cf" | "cp"]`` (see :func:`wall_figure`); ``field_velocity.png``
+    (with streamlines), ``field_pressure.png`` and ``field_eddy_viscosity_ratio.png`` (when
+    present) from fields.vtu; ``profile_<name>.png`` for each ``profiles/<name>.csv`` with
+    ``y_plus`` and ``u_plus`` columns, ``probe_<name>.png`` (u and v along the probe) for each
+    line-probe table. Input problems are checked
     before the first figure is made.
     """
     rd = Path(result_dir)
@@ -715,7 +719,8 @@ def result_figures(
     l_ref = _num((reference or {}).get("l_ref"), None)
     walls_info = summary.get("walls") if isinstance(summary.get("walls"), Mapping) else {}
     wall_files = sorted((rd / "wall").glob("*.csv")) if (rd / "wall").is_dir() else []
-    _check_references(references, [p.stem for p in wall_files], rd)
+    names = _patch_of_file(walls_info)
+    _check_references(references, [names.get(p.stem, p.stem) for p in wall_files], rd)
     profile_files = sorted((rd / "profiles").glob("*.csv")) if (rd / "profiles").is_dir() else []
     if window is None and summary.get("map_window") is not None:
         window = summary["map_window"]
@@ -730,6 +735,12 @@ def result_figures(
         )
     return _result_figures(rd, title, reference, l_ref, walls_info, wall_files, profile_files, have_res,
                            have_fields, references or {}, mesh_edges, streamlines, window)
+
+
+def _patch_of_file(walls_info: Mapping[str, Any]) -> dict[str, str]:
+    """File stem -> patch name of the walls of summary.json (a name mapped to a safe file name by
+    :func:`fvrans.post.filenames.safe_file_name` is shown as given)."""
+    return {safe_file_name(str(k)): str(k) for k in walls_info if str(k).strip()}
 
 
 def _check_window(window: Any, where: Path) -> tuple[float, float, float, float]:
@@ -754,8 +765,9 @@ def _result_figures(rd: Path, title: str | None, reference: Mapping[str, Any] | 
         from fvrans.post.monitor_plot import monitor_figure
 
         yield "monitored.png", monitor_figure(rd / "monitored.csv", title=title)
+    names = _patch_of_file(walls_info)
     for wf in wall_files:
-        patch = wf.stem
+        patch = names.get(wf.stem, wf.stem)
         cols = read_csv_columns(wf)
         along = _choose_along(cols, "auto")
         info = walls_info.get(patch) if isinstance(walls_info.get(patch), Mapping) else {}
@@ -763,17 +775,17 @@ def _result_figures(rd: Path, title: str | None, reference: Mapping[str, Any] | 
         refs = {str(k).lower(): v for k, v in (references.get(patch) or {}).items()}
         for q in ("cf", "cp"):
             if q in cols:
-                yield f"wall_{patch}_{q}.png", wall_figure(
+                yield f"wall_{wf.stem}_{q}.png", wall_figure(
                     cols, q, title=title, patch=patch, zero_shear=zs, references=refs.get(q, ()), l_ref=l_ref,
                     along=along)
     if have_fields:
         fields = read_fields(rd / "fields.vtu")
-        for q in ("velocity", "pressure", "nut_ratio"):
+        for q in ("velocity", "pressure", "eddy_viscosity_ratio"):
             if q in fields.data:
                 yield f"field_{q}.png", field_figure(fields, q, title=title, reference=reference,
                                                      mesh_edges=mesh_edges,
                                                      streamlines=streamlines and q == "velocity")
-        for q in ("velocity", "pressure", "nut_ratio") if window is not None else ():
+        for q in ("velocity", "pressure", "eddy_viscosity_ratio") if window is not None else ():
             if q in fields.data:
                 yield f"field_{q}_zoom.png", field_figure(fields, q, title=title, reference=reference,
                                                           mesh_edges=mesh_edges, window=window,
@@ -801,4 +813,4 @@ def make_plots(
     figures = result_figures(result_dir, references, mesh_edges=mesh_edges, streamlines=streamlines, window=window)
     out = Path(out_dir) if out_dir is not None else Path(result_dir) / "plots"
     out.mkdir(parents=True, exist_ok=True)
-    return [save_figure(fig, out / name) for name, fig in figures]
+    return [save_figure(fig, out / name, within=out) for name, fig in figures]

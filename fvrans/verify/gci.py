@@ -33,6 +33,7 @@ from typing import Any
 import numpy as np
 
 from fvrans.errors import CaseError
+from fvrans.post.filenames import safe_file_name
 
 SAFETY_FACTOR_THREE_GRIDS = 1.25  # Roache (1994) for three or more grids; 3.0 for two grids
 P_MAX = 20.0  # observed orders are searched in (0, P_MAX]
@@ -236,7 +237,7 @@ def quantity_value(result_dir: Any, quantity: str) -> float:
         at = float(m["at"])
     except ValueError:
         raise CaseError(f"quantity {quantity!r}: {m['at']!r} is not a number") from None
-    table = rd.table(f"wall/{m['patch']}.csv")
+    table = rd.table(f"wall/{safe_file_name(m['patch'], 'the wall patch')}.csv")
     curve = _monotonic(Curve(table.column(m["axis"]), table.column(m["column"]), table.path, table.lines))
     if not curve.x[0] <= at <= curve.x[-1]:
         raise CaseError(f"{table.path}: {m['axis']} = {at:g} lies outside the wall faces "
@@ -363,7 +364,7 @@ def grid_study_markdown(study: GridStudy) -> str:
 
 def write_grid_study(study: GridStudy, report_dir: str | os.PathLike, plots: bool = True) -> None:
     """grid_study.json, grid_study.md and plots/<quantity>.png (atomic writes)."""
-    from fvrans.post.writers import atomic_write, to_jsonable, write_json_atomic
+    from fvrans.post.writers import atomic_write, output_file, to_jsonable, write_json_atomic
 
     out = Path(report_dir)
     try:
@@ -375,8 +376,7 @@ def write_grid_study(study: GridStudy, report_dir: str | os.PathLike, plots: boo
     atomic_write(out / "grid_study.md", lambda f: f.write(md))
     if plots:
         for name, gc in study.quantities.items():
-            safe = "".join(c if c.isalnum() or c in "-_." else "_" for c in name)
-            plot_grid_convergence(gc, out / "plots" / f"{safe}.png")
+            plot_grid_convergence(gc, output_file(out, name, ".png", subfolder="plots", what=f"quantity {name!r}"))
 
 
 def grid_study_command(result_dirs: Sequence[str | os.PathLike], quantities: Sequence[str],

@@ -21,6 +21,7 @@ from typing import Any
 import numpy as np
 
 from fvrans.errors import CaseError
+from fvrans.post.filenames import output_file
 from fvrans.verify.gci import SAFETY_FACTOR_THREE_GRIDS, GridStudy, grid_study, write_grid_study
 
 FAMILY_LEVELS = ("coarse", "medium", "fine")
@@ -108,7 +109,7 @@ def run_grid_study(
         prob = problems[label]
         say(f"grid {label}: {prob.mesh.n_cells} cells ...")
         result = fa.solve(prob)
-        folder = result.write(out / RUNS_DIR / label)
+        folder = result.write(output_file(out, label, subfolder=RUNS_DIR, what=f"grid label {label!r}"))
         state = "converged" if result.converged else ("DIVERGED" if result.diverged else "NOT converged")
         say(f"grid {label}: {state} after {result.iterations} iterations in {result.wall_seconds:.1f} s -> {folder}")
         res_last = result.history.rows[-1] if len(result.history.rows) else []

@@ -16,7 +16,7 @@ from typing import Any
 import numpy as np
 
 from fvrans.errors import CaseError
-from fvrans.post.writers import atomic_path, atomic_write, to_jsonable, write_json_atomic
+from fvrans.post.writers import atomic_path, atomic_write, output_file, to_jsonable, write_json_atomic
 from fvrans.verify.compare import ItemResult, compare
 from fvrans.verify.spec import Spec, load_spec
 
@@ -144,8 +144,9 @@ def write_report(results: Sequence[ItemResult], spec: Spec, result_dir: str | os
         raise CaseError(f"cannot create the report directory {out}: {exc.strerror}") from None
     for r in results:
         if plots and r.status != "error":
-            rel = f"{PLOT_DIR}/{r.name}.png"
-            plot_item(r, out / rel)
+            path = output_file(out, r.name, ".png", subfolder=PLOT_DIR, what=f"item {r.name!r}")
+            rel = f"{PLOT_DIR}/{path.name}"
+            plot_item(r, path)
             r.plot = rel
     n_fail = sum(r.status == "fail" for r in results)
     n_err = sum(r.status == "error" for r in results)

@@ -50,9 +50,9 @@ def test_apply_overrides(base):
 def test_overrides_are_validated_together(base):
     # changing a boundary's kind needs the whole table at once
     c = apply_overrides(
-        case_from_dict(base), ['boundary.lid={ kind = "velocity-inlet", velocity = [0, -1] }']
+        case_from_dict(base), ['boundary.lid={ kind = "inflow-velocity", velocity = [0, -1] }']
     )
-    assert c.boundaries["lid"].kind == "velocity-inlet" and c.boundaries["lid"].velocity == (0.0, -1.0)
+    assert c.boundaries["lid"].kind == "inflow-velocity" and c.boundaries["lid"].velocity == (0.0, -1.0)
 
 
 @pytest.mark.parametrize(

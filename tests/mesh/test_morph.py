@@ -72,8 +72,8 @@ def bump_case(h: float, **extra) -> fa.Case:
         "fluid": {"density": 1.0, "viscosity": 0.01},  # Re_h = 100
         "initial": {"velocity": [1.0, 0.0]},
         "boundary": {
-            "inlet": {"kind": "velocity-inlet", "velocity": [1.0, 0.0]},
-            "outlet": {"kind": "pressure-outlet"},
+            "inlet": {"kind": "inflow-velocity", "velocity": [1.0, 0.0]},
+            "outlet": {"kind": "outflow-pressure"},
             "lower_wall": {"kind": "wall"},
             "upper_wall": {"kind": "wall"},
         },

@@ -24,6 +24,7 @@ from fvrans.post.plots import (
     wall_figure,
     wall_profile_figure,
 )
+from fvrans.post.residuals import RESIDUAL_LABEL, RESIDUAL_NORMALISATION
 from fvrans.post.writers import write_csv_atomic, write_json_atomic, write_vtu_atomic
 
 TITLE = "Synthetic plate"
@@ -54,7 +55,7 @@ def _write_result(d, nut: bool = True, zero_shear=(0.75,)) -> None:
     vel = np.stack([c[:, 1] * (1 - c[:, 1]) * 6.0, np.zeros(mesh.n_cells)], axis=1)
     data = {"velocity": vel, "pressure": 2.0 - c[:, 0]}
     if nut:
-        data["nut_ratio"] = 1.0 + c[:, 1]
+        data["eddy_viscosity_ratio"] = 1.0 + c[:, 1]
     write_vtu_atomic(d / "fields.vtu", mesh, data)
     write_json_atomic(d / "summary.json", {
         "title": TITLE,
@@ -75,7 +76,9 @@ def test_residual_figure_one_log_line_per_equation(tmp_path):
     ax = fig.axes[0]
     assert ax.get_yscale() == "log"
     assert sorted(_labelled_lines(ax)) == ["continuity", "u", "v"]
-    assert "iteration" in ax.get_xlabel() and "residual" in ax.get_ylabel()
+    assert "iteration" in ax.get_xlabel() and RESIDUAL_LABEL in ax.get_ylabel()
+    # the normalisation is stated on the figure
+    assert any(RESIDUAL_NORMALISATION[:40] in t.get_text().replace("\n", " ") for t in fig.texts)
     assert TITLE in ax.get_title()
     assert ax.get_legend() is not None
     u = _labelled_lines(ax)["u"]
@@ -170,7 +173,7 @@ def test_field_figure_velocity_magnitude_on_the_cells(tmp_path):
     assert not any(isinstance(c, LineCollection) for c in ax.collections)  # no streamlines asked
 
 
-def test_field_figure_pressure_as_cp_and_nut_ratio(tmp_path):
+def test_field_figure_pressure_as_cp_and_eddy_viscosity_ratio(tmp_path):
     _write_result(tmp_path)
     fields = read_fields(tmp_path / "fields.vtu")
     ref = {"rho": 1.0, "u_ref": 2.0, "p_ref": 0.5, "l_ref": 1.0}
@@ -179,7 +182,7 @@ def test_field_figure_pressure_as_cp_and_nut_ratio(tmp_path):
     np.testing.assert_allclose(coll.get_array(), (fields.data["pressure"] - 0.5) / (0.5 * 1.0 * 2.0**2))
     labels = {fig.axes[1].get_xlabel(), fig.axes[1].get_ylabel()}
     assert any(lb.startswith("Cp = (p − p_ref)") for lb in labels)
-    fig = field_figure(fields, "nut_ratio")
+    fig = field_figure(fields, "eddy_viscosity_ratio")
     assert "ν_t / ν [-]" in {fig.axes[1].get_xlabel(), fig.axes[1].get_ylabel()}
     # without reference values: the units of the case, said so
     fig = field_figure(fields, "pressure")
@@ -253,7 +256,7 @@ def test_make_plots_writes_every_plot(tmp_path):
     paths = make_plots(tmp_path, references=refs)
     names = sorted(p.name for p in paths)
     assert names == sorted(["residuals.png", "wall_plate_cf.png", "wall_plate_cp.png", "field_velocity.png",
-                            "field_pressure.png", "field_nut_ratio.png"])
+                            "field_pressure.png", "field_eddy_viscosity_ratio.png"])
     for p in paths:
         assert p.parent == tmp_path / "plots"
         head = p.read_bytes()[:8]
@@ -271,7 +274,7 @@ def test_make_plots_optional_parts_and_profiles(tmp_path):
     write_csv_atomic(tmp_path / "profiles" / "x1.csv", ["y_plus", "u_plus"], [yp, np.log(yp) / 0.41 + 5.0])
     out = tmp_path / "elsewhere"
     names = sorted(p.name for p in make_plots(tmp_path, out_dir=out))
-    assert "field_nut_ratio.png" not in names
+    assert "field_eddy_viscosity_ratio.png" not in names
     assert "profile_x1.png" in names
     assert all((out / n).is_file() for n in names)
 
@@ -311,7 +314,7 @@ def test_zoomed_maps_from_the_summary_window_and_a_thin_window_is_stretched(tmp_
     summary["map_window"] = [0.5, 1.5, 0.0, 0.5]
     write_json_atomic(tmp_path / "summary.json", summary)
     figs = dict(result_figures(tmp_path))
-    assert {"field_velocity_zoom.png", "field_pressure_zoom.png", "field_nut_ratio_zoom.png"} <= set(figs)
+    assert {"field_velocity_zoom.png", "field_pressure_zoom.png", "field_eddy_viscosity_ratio_zoom.png"} <= set(figs)
     ax = figs["field_pressure_zoom.png"].axes[0]
     assert ax.get_xlim() == (0.5, 1.5) and ax.get_ylim() == (0.0, 0.5)
     assert ax.get_aspect() == 1.0 and "stretched" not in ax.get_ylabel()

@@ -54,8 +54,8 @@ def _solve_channel(angle: float) -> tuple[fa.Result, np.ndarray]:
     case = case_from_dict({
         "mesh": {"generator": "channel"},
         "fluid": {"density": 1.0, "viscosity": 0.05},
-        "boundary": {"inlet": {"kind": "velocity-inlet", "velocity": list(R @ [1.0, 0.0])},
-                     "outlet": {"kind": "pressure-outlet"}, "bottom": {"kind": "wall"}, "top": {"kind": "wall"}},
+        "boundary": {"inlet": {"kind": "inflow-velocity", "velocity": list(R @ [1.0, 0.0])},
+                     "outlet": {"kind": "outflow-pressure"}, "bottom": {"kind": "wall"}, "top": {"kind": "wall"}},
         "solver": {"tolerance": 1e-12, "max_iterations": 3000},
         "monitor": {"settle": False},
     })

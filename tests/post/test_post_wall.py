@@ -236,7 +236,7 @@ def test_bad_requests_are_named():
     bc = channel_boundary(mesh, geom)
     nc = mesh.n_cells
     vel, gp = np.zeros((nc, 2)), np.zeros((nc, 2))
-    with pytest.raises(CaseError, match="'inlet' is a velocity-inlet boundary"):
+    with pytest.raises(CaseError, match="'inlet' is of kind 'inflow-velocity'"):
         wall_data(mesh, geom, bc, "inlet", vel, np.zeros(nc), gp, RHO, MU, 1.0)
     with pytest.raises(MeshError, match="no boundary patch named 'wing'"):
         wall_data(mesh, geom, bc, "wing", vel, np.zeros(nc), gp, RHO, MU, 1.0)

@@ -20,8 +20,8 @@ def test_symmetry_plane_half_channel_is_poiseuille():
     mu, U = 0.02, 1.0
     mesh = channel(10.0, 0.5, 100, 20)
     specs = {
-        "inlet": {"kind": "velocity-inlet", "velocity": [U, 0.0]},
-        "outlet": {"kind": "pressure-outlet", "pressure": 0.0},
+        "inlet": {"kind": "inflow-velocity", "velocity": [U, 0.0]},
+        "outlet": {"kind": "outflow-pressure", "pressure": 0.0},
         "lower_wall": {"kind": "wall"},
         "upper_wall": {"kind": "symmetry"},
     }
@@ -46,8 +46,8 @@ def test_moving_wall_and_callable_inlet_give_exact_couette_flow():
     U, h = 2.0, 1.0
     mesh = channel(4.0, h, 20, 10, triangles=True)
     specs = {
-        "inlet": {"kind": "velocity-inlet", "velocity": lambda x, y: (U * y / h, 0.0 * y)},
-        "outlet": {"kind": "pressure-outlet", "pressure": 0.0},
+        "inlet": {"kind": "inflow-velocity", "velocity": lambda x, y: (U * y / h, 0.0 * y)},
+        "outlet": {"kind": "outflow-pressure", "pressure": 0.0},
         "lower_wall": {"kind": "wall"},
         "upper_wall": {"kind": "wall", "velocity": [U, 0.0]},
     }
@@ -77,8 +77,8 @@ def test_reverse_flow_through_an_outlet_converges():
     mesh = backward_facing_step(x_in=-2.0, x_out=2.5, nx_up=12, nx_down=24, ny_upper=24, ny_lower=12,
                                 wall_spacing=0.01, outlet_spacing=0.1)
     specs = {
-        "inlet": {"kind": "velocity-inlet", "velocity": [1.0, 0.0]},
-        "outlet": {"kind": "pressure-outlet", "pressure": 0.0},
+        "inlet": {"kind": "inflow-velocity", "velocity": [1.0, 0.0]},
+        "outlet": {"kind": "outflow-pressure", "pressure": 0.0},
         "lower_wall": {"kind": "wall"},
         "step_face": {"kind": "wall"},
         "upper_wall": {"kind": "wall"},
