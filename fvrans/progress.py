@@ -94,8 +94,9 @@ class RunProgress:
     from; ``max_iterations``: iterations allowed to this run. ``stream``: default stderr. On a
     terminal a rich progress bar (iteration, bar, residuals, time left); elsewhere a plain line
     at the first iteration and then every ``every_s`` seconds; nothing when ``quiet``.
-    ``watch()``: a short text of a monitored quantity (e.g. ``"plate.Cd 0.0028712"``), shown only
-    where the line has room for it within :data:`LINE_WIDTH` columns.
+    ``watch()``: a short text of a monitored quantity (e.g. ``"plate.Cd 0.0028712"``), shown where
+    the line has room for it within :data:`LINE_WIDTH` columns, in place of the seconds per
+    iteration if need be.
     """
 
     def __init__(
@@ -156,11 +157,14 @@ class RunProgress:
         eta = self.estimate.text(iteration)
         if eta:
             parts.append(eta)
-        text = "  ".join(parts)
         watched = self.watch() if self.watch is not None else ""
-        if watched and len(text) + 2 + len(watched) <= LINE_WIDTH:
-            text = f"{text}  {watched}"
-        return text
+        if watched:
+            # the monitored quantity goes where it fits, in place of the seconds per iteration if need be
+            if len("  ".join(parts + [watched])) > LINE_WIDTH and rate is not None:
+                parts.pop(2)
+            if len("  ".join(parts + [watched])) <= LINE_WIDTH:
+                parts.append(watched)
+        return "  ".join(parts)
 
     def __call__(self, iteration: int, residuals: Sequence[float]) -> None:
         now = self.clock()

@@ -59,3 +59,18 @@ def test_quiet_writes_nothing_and_a_terminal_gets_a_bar():
     p.close()
     text = stream.getvalue()
     assert "iteration" in text and "/140" in text and "\x1b[" in text  # rich's live display
+
+
+def test_a_monitored_quantity_fits_in_80_columns_or_stays_out():
+    clock, stream = Clock(), io.StringIO()
+    p = RunProgress(["u"], max_iterations=1000, tolerance=1e-6, stream=stream, clock=clock,
+                    watch=lambda: "plate.Cd 0.0028712")
+    _drive(p, clock, 30)
+    line = p.line(30, [1e-3])
+    assert "plate.Cd 0.0028712" in line and len(line) <= 80 and "left" in line
+    assert "s/iteration" not in line  # it took the place of the seconds per iteration
+    p = RunProgress(["u", "v", "continuity", "nu_tilde"], max_iterations=1000, tolerance=1e-6, stream=stream,
+                    clock=clock, watch=lambda: "plate.Cd 0.0028712")
+    _drive(p, clock, 30)
+    line = p.line(30, [1e-3, 1e-3, 1e-4, 1e-4])
+    assert "plate.Cd" not in line  # four residuals leave no room
