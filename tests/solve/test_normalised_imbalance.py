@@ -25,8 +25,8 @@ from fvrans.solve.simple import SimpleSolver, SolverControls
 
 RE_H = 50.0
 SPECS = {
-    "inlet": {"kind": "velocity-inlet", "velocity": [1.0, 0.0]},
-    "outlet": {"kind": "pressure-outlet", "pressure": 0.0},
+    "inlet": {"kind": "inflow-velocity", "velocity": [1.0, 0.0]},
+    "outlet": {"kind": "outflow-pressure", "pressure": 0.0},
     "lower_wall": {"kind": "wall"},
     "upper_wall": {"kind": "wall"},
 }
