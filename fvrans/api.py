@@ -32,6 +32,7 @@ from fvrans.case.build import build_case_mesh
 from fvrans.checkpoint import Checkpoint, read_checkpoint, write_checkpoint
 from fvrans.errors import CaseError, DivergenceError
 from fvrans.fields import Fields
+from fvrans.jit import CompileWatch
 from fvrans.mesh.geometry import Geometry, compute_geometry
 from fvrans.mesh.locate import CellLocator
 from fvrans.mesh.mesh import Mesh
@@ -117,6 +118,8 @@ class Result:
     monitor: Monitor | None = None
     #: what ended the run, a key of :data:`fvrans.monitor.STOP_REASONS`
     stopped_by: str = ""
+    #: seconds of ``wall_seconds`` spent compiling kernels (0 with a warm numba cache)
+    compile_seconds: float = 0.0
 
     # -- arrays -----------------------------------------------------------------------------
     @property
@@ -181,6 +184,8 @@ class Result:
         extra = {"message": self.message} if self.message else {}
         extra["diverged"] = self.diverged
         extra["interrupted"] = self.interrupted
+        extra["compile_seconds"] = self.compile_seconds
+        extra["solve_seconds"] = max(self.wall_seconds - self.compile_seconds, 0.0)
         extra.update(self.extra.get("summary", {}))
         if self.case.output.map_window is not None:
             extra["map_window"] = list(self.case.output.map_window)
@@ -430,8 +435,10 @@ def solve(
     message = ""
     diverged = False
     fields_iteration = None
+    watch = CompileWatch()
     try:
-        converged = solver.run(callback=step, converged_when=monitor.converged_when)
+        with watch:
+            converged = solver.run(callback=step, converged_when=monitor.converged_when)
     except DivergenceError as exc:
         converged = False
         diverged = True
@@ -465,7 +472,7 @@ def solve(
         problem=problem, fields=solver.fields, history=solver.history, converged=bool(converged),
         iterations=solver.iteration, wall_seconds=seconds, grad_p=grad_p, message=message,
         diverged=diverged, extra=extra, interrupted=interrupted, velocity_scale=solver.u_scale,
-        fields_iteration=fields_iteration, model=model, monitor=monitor,
+        fields_iteration=fields_iteration, model=model, compile_seconds=watch.seconds, monitor=monitor,
         stopped_by=stop_reason(bool(converged), diverged, interrupted, c.monitor.settle),
     )
     if not diverged:

@@ -87,9 +87,9 @@ def _suggest_condition(name: str) -> str:
     elif "sym" in low:
         body = 'kind = "symmetry"'
     elif "far" in low or "free" in low:
-        body = 'kind = "freestream"\nvelocity = [1.0, 0.0]   # the free-stream velocity'
+        body = 'kind = "outer-flow"\nvelocity = [1.0, 0.0]   # the free-stream velocity'
     else:
-        body = 'kind = "wall"   # or: inflow-velocity, outflow-pressure, symmetry, freestream'
+        body = 'kind = "wall"   # or: inflow-velocity, outflow-pressure, symmetry, outer-flow'
     lines = [f"[{format_key(('boundary', name))}]", *body.splitlines()]
     return "".join(f"  {line}\n" for line in lines)
 
@@ -187,7 +187,9 @@ def build_case_mesh(case: Case, check: bool = True) -> Mesh:
     if case.mesh.file is not None:
         from fvrans.mesh.io import read_mesh
 
-        mesh = read_mesh(case.mesh.file)
+        m = case.mesh
+        mesh = read_mesh(m.file, edge_tags=m.edge_tags, edge_tag_array=m.edge_tag_array, edge_boxes=m.edge_boxes,
+                         unnamed_edges=m.unnamed_edges)
     else:
         mesh = _generate(case)
     if case.mesh.renumber:

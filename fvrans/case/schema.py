@@ -17,7 +17,7 @@ import numpy as np
 # -- allowed values ------------------------------------------------------------------------
 TURBULENCE_MODELS = ("none", "spalart-allmaras")
 SA_VARIANTS = ("standard", "no-ft2")
-BOUNDARY_KINDS = ("wall", "inflow-velocity", "outflow-pressure", "symmetry", "freestream")
+BOUNDARY_KINDS = ("wall", "inflow-velocity", "outflow-pressure", "symmetry", "outer-flow")
 COUPLINGS = ("simple", "simplec")
 CONVECTION_SCHEMES = ("upwind", "linear-upwind")
 GRADIENT_METHODS = ("least-squares", "green-gauss")
@@ -29,7 +29,7 @@ BOUNDARY_KEYS: dict[str, tuple[str, ...]] = {
     "inflow-velocity": ("kind", "velocity", "profile", "profile_columns", "nu_tilde_ratio"),
     "outflow-pressure": ("kind", "pressure"),
     "symmetry": ("kind",),
-    "freestream": ("kind", "velocity", "pressure", "nu_tilde_ratio"),
+    "outer-flow": ("kind", "velocity", "pressure", "nu_tilde_ratio"),
 }
 PROFILE_COLUMN_KEYS = ("coordinate", "u", "v", "nu_tilde_ratio")
 #: column names used when ``profile_columns`` does not name them
@@ -48,12 +48,21 @@ Velocity = tuple[float, float] | VelocityFunction
 
 @dataclass(frozen=True)
 class MeshSettings:
-    """Where the mesh comes from: a file (absolute path) or a generator in ``fvrans.mesh.generate``."""
+    """Where the mesh comes from: a file (absolute path) or a generator in ``fvrans.mesh.generate``.
+
+    For a file whose boundary lines carry no names (:func:`fvrans.mesh.io.read_mesh`):
+    ``edge_tags`` (tag -> patch) with ``edge_tag_array``, ``edge_boxes`` (patch -> xmin, xmax,
+    ymin, ymax) and ``unnamed_edges`` (the patch of the boundary edges left).
+    """
 
     file: Path | None = None
     generator: str | None = None
     parameters: dict[str, Any] = field(default_factory=dict)
     renumber: bool = False
+    edge_tags: dict[int, str] = field(default_factory=dict)
+    edge_tag_array: str | None = None
+    edge_boxes: dict[str, tuple[float, float, float, float]] = field(default_factory=dict)
+    unnamed_edges: str | None = None
 
 
 @dataclass(frozen=True)
@@ -353,6 +362,14 @@ def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
     mesh: dict[str, Any] = {}
     if m.file is not None:
         mesh["file"] = str(m.file)
+        if m.edge_tags:
+            mesh["edge_tags"] = {str(k): v for k, v in m.edge_tags.items()}
+        if m.edge_tag_array is not None:
+            mesh["edge_tag_array"] = m.edge_tag_array
+        if m.edge_boxes:
+            mesh["edge_boxes"] = {k: [float(x) for x in v] for k, v in m.edge_boxes.items()}
+        if m.unnamed_edges is not None:
+            mesh["unnamed_edges"] = m.unnamed_edges
     if m.generator is not None:
         mesh["generator"] = m.generator
         mesh["parameters"] = copy_data(m.parameters)

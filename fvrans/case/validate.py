@@ -32,7 +32,8 @@ _BARE_KEY = re.compile(r"^[A-Za-z0-9_-]+$")
 
 #: keys of each table; ``None`` marks the table of boundary tables
 TABLE_KEYS: dict[str, tuple[str, ...]] = {
-    "mesh": ("file", "generator", "parameters", "renumber"),
+    "mesh": ("file", "generator", "parameters", "renumber", "edge_tags", "edge_tag_array", "edge_boxes",
+             "unnamed_edges"),
     "fluid": ("density", "viscosity"),
     "model": ("turbulence", "sa_variant"),
     "initial": ("velocity", "pressure", "nu_tilde_ratio"),
@@ -371,7 +372,10 @@ def _mesh(ctx: _Ctx, data: Any) -> S.MeshSettings:
             raise t.fail("parameters", "only used with mesh.generator; remove it (or use a generator "
                          "instead of mesh.file)")
         return S.MeshSettings(file=_check_path(ctx, ("mesh", "file"), t.data["file"], "mesh file"),
-                              renumber=renumber)
+                              renumber=renumber, **_edge_names(t))
+    for k in ("edge_tags", "edge_tag_array", "edge_boxes", "unnamed_edges"):
+        if t.has(k):
+            raise t.fail(k, "only used with mesh.file (a generated mesh names its patches); remove it")
     gen = t.string("generator")
     if not gen.isidentifier():
         raise t.fail("generator", f"{gen!r} is not a generator name; give the name of a function in "
@@ -381,6 +385,44 @@ def _mesh(ctx: _Ctx, data: Any) -> S.MeshSettings:
         if not isinstance(k, str):
             raise t.fail("parameters", f"keys must be strings, got {describe(k)}")
     return S.MeshSettings(generator=gen, parameters=S.copy_data(params), renumber=renumber)
+
+
+def _edge_names(t: _Table) -> dict[str, Any]:
+    """The [mesh] keys that name the boundary edges of a file without names."""
+    out: dict[str, Any] = {}
+    tags = t.table("edge_tags", {})
+    names: dict[int, str] = {}
+    for k, v in tags.items():
+        try:
+            tag = int(str(k))
+        except ValueError:
+            raise t.fail("edge_tags", f"the key {k!r} is not an integer tag; write e.g. "
+                         'edge_tags = { 1 = "inlet", 2 = "walls" }') from None
+        if not isinstance(v, str) or not v.strip():
+            raise t.fail("edge_tags", f"tag {tag} must name a patch (a quoted string), got {describe(v)}")
+        names[tag] = v
+    out["edge_tags"] = names
+    if t.has("edge_tag_array"):
+        out["edge_tag_array"] = t.string("edge_tag_array")
+    boxes: dict[str, tuple[float, float, float, float]] = {}
+    for name, box in t.table("edge_boxes", {}).items():
+        if isinstance(box, np.ndarray):
+            box = box.tolist()
+        need = "must be [xmin, xmax, ymin, ymax], the box holding both ends of the patch's edges"
+        if not isinstance(box, (list, tuple)) or len(box) != 4:
+            raise t.fail("edge_boxes", f"{name!r} {need}, got {describe(box)}")
+        b = [check_number(c, lambda m, i=i, n=name: t.fail("edge_boxes", f"{n!r} item {i + 1} {m}")) for i, c in
+             enumerate(box)]
+        if not (b[0] <= b[1] and b[2] <= b[3]):
+            raise t.fail("edge_boxes", f"{name!r} {need} with xmin <= xmax and ymin <= ymax, got {b}")
+        boxes[str(name)] = (b[0], b[1], b[2], b[3])
+    out["edge_boxes"] = boxes
+    if t.has("unnamed_edges"):
+        v = t.string("unnamed_edges")
+        if not v.strip():
+            raise t.fail("unnamed_edges", "must name a patch, e.g. unnamed_edges = \"walls\"")
+        out["unnamed_edges"] = v
+    return out
 
 
 def _boundaries(ctx: _Ctx, data: Mapping[str, Any]) -> dict[str, S.BoundarySpec]:
@@ -421,7 +463,7 @@ def _boundary(ctx: _Ctx, name: str, data: Any) -> S.BoundarySpec:
         return S.BoundarySpec(kind, pressure=t.number("pressure", 0.0))
     if kind == "symmetry":
         return S.BoundarySpec(kind)
-    if kind == "freestream":
+    if kind == "outer-flow":
         return S.BoundarySpec(
             kind,
             velocity=t.vector("velocity", hint="add velocity = [u, v], the free-stream velocity"),

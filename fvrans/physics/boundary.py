@@ -7,7 +7,7 @@ Kinds (integer codes shared with the solver kernels):
 * ``outflow-pressure`` (2): fixed static pressure, zero-gradient velocity; reverse flow enters
   normal to the boundary.
 * ``symmetry`` (3): zero normal velocity and zero shear.
-* ``freestream`` (4): fixed pressure; velocity u_inf where the flux enters, zero gradient where
+* ``outer-flow`` (4): fixed pressure; velocity u_inf where the flux enters, zero gradient where
   it leaves.
 """
 
@@ -24,7 +24,7 @@ from fvrans.errors import CaseError
 from fvrans.mesh.geometry import Geometry
 from fvrans.mesh.mesh import Mesh
 
-KIND_CODES = {"wall": 0, "inflow-velocity": 1, "outflow-pressure": 2, "symmetry": 3, "freestream": 4}
+KIND_CODES = {"wall": 0, "inflow-velocity": 1, "outflow-pressure": 2, "symmetry": 3, "outer-flow": 4}
 WALL, INLET, OUTLET, SYMMETRY, FREESTREAM = 0, 1, 2, 3, 4
 
 
@@ -100,7 +100,7 @@ def build_flow_boundary(mesh: Mesh, geom: Geometry, specs: Mapping[str, Any]) ->
         elif code == FREESTREAM:
             v = spec.velocity
             if v is None:
-                raise CaseError(f"boundary.{patch.name}: a freestream boundary needs 'velocity'")
+                raise CaseError(f"boundary.{patch.name}: an outer-flow boundary needs 'velocity'")
             vel[sl] = np.asarray(v, dtype=float)
             pres[sl] = float(spec.pressure or 0.0)
             nut[sl] = _nu_tilde_ratio(spec, patch.name, xf)

@@ -156,8 +156,8 @@ def residual_figure(
     ax.set_xlabel("outer iteration")
     ax.set_ylabel(f"{RESIDUAL_LABEL} [-]")
     ax.set_title(_title(title, f"{RESIDUAL_LABEL} per equation"), fontsize=11)
-    fig.text(0.01, 0.005, "\n".join(textwrap.wrap(RESIDUAL_NORMALISATION, 118)), fontsize=6.5, color="0.3",
-             ha="left", va="bottom")
+    fig.supxlabel("\n".join(textwrap.wrap(RESIDUAL_NORMALISATION, 120)), fontsize=6.5, color="0.3", ha="left",
+                  x=0.01)  # below the axes, with room made by the constrained layout
     ax.grid(True, which="major", alpha=0.35)
     ax.grid(True, which="minor", axis="y", alpha=0.12)
     if len(it):
@@ -305,23 +305,43 @@ def wall_figure(
         lo, hi = min(lo, 0.0), max(hi, 0.0)
     pad = 0.06 * (hi - lo) if hi > lo else max(abs(hi), 1.0) * 0.1
     ax.set_ylim(lo - pad, hi + pad)
-    span = float(np.ptp(coord)) * scale if len(coord) else 1.0
-    last = -np.inf
-    for k, z in enumerate(sorted(float(v) for v in zero_shear)):
-        ax.axvline(z * scale, color="0.25", ls=":", lw=1.2, label=_ZERO_SHEAR_LABEL if k == 0 else None,
-                   zorder=2)
-        if z * scale - last > 0.04 * span:  # its position written at the top, unless crowded
-            ax.annotate(f"{z * scale:.3g}", (z * scale, 1.0), xycoords=("data", "axes fraction"),
-                        xytext=(2, -10), textcoords="offset points", fontsize=8, color="0.25")
-            last = z * scale
+    zs = sorted(float(v) * scale for v in zero_shear)
+    for k, z in enumerate(zs):
+        ax.axvline(z, color="0.25", ls=":", lw=1.2, label=_ZERO_SHEAR_LABEL if k == 0 else None, zorder=2)
     xlabel = _length_label("x" if along == "x" else "s (arc length along the wall)", l_ref)
     ax.set_xlabel(f"{xlabel}\n{clipped}" if clipped else xlabel)
     ax.set_ylabel(ylabel)
     ax.set_title(_title(title, f"{short} along {patch}" if patch else f"{short} along the wall"), fontsize=11)
     ax.grid(True, alpha=0.3)
+    _zero_shear_labels(ax, zs)
     if len(ax.get_legend_handles_labels()[1]) > 1:
         ax.legend(loc="best", fontsize=9)
     return fig
+
+
+def _zero_shear_labels(ax: Any, positions: Sequence[float], rows: int = 3) -> None:
+    """Write each zero-shear position at the top of the axes, beside its line. A label that would
+    overlap one already written (measured in display units) goes one row lower; when ``rows``
+    rows are taken there, it is left out (its line stays)."""
+    if not positions:
+        return
+    fig = ax.figure
+    ax.set_xlim(ax.get_xlim())  # freeze the limits the labels are placed against
+    fig.draw_without_rendering()  # the constrained layout: the axes at their final size
+    renderer = fig.canvas.get_renderer()
+    taken: list[list[Any]] = [[] for _ in range(rows)]
+    x0, x1 = ax.get_xlim()
+    for z in positions:
+        if not x0 <= z <= x1:
+            continue
+        for row in range(rows):
+            text = ax.annotate(f"{z:.3g}", (z, 1.0), xycoords=("data", "axes fraction"),
+                               xytext=(2, -10 - 10 * row), textcoords="offset points", fontsize=8, color="0.25")
+            box = text.get_window_extent(renderer).expanded(1.15, 1.0)
+            if not any(box.overlaps(b) for b in taken[row]):
+                taken[row].append(box)
+                break
+            text.remove()
 
 
 # ---------------------------------------------------------------------------------------------
@@ -357,24 +377,49 @@ def _get(fields: FieldData, name: str) -> np.ndarray:
     return a[:, 0] if a.ndim == 2 and a.shape[1] == 1 else a
 
 
-def _colour_limits(values: np.ndarray) -> tuple[float, float, str]:
-    """Colour range and colour-bar ``extend`` mode.
+#: colour limits: the area-weighted percentiles kept in colour, and how much wider the full range
+#: must be for the map to be clipped to them (a singular point, a stagnation point)
+COLOUR_PERCENTILES = (1.0, 99.0)
+CLIP_WHEN_WIDER = 1.5
 
-    The full range, unless a few cells hold extreme values (singular corners, stagnation
-    points) that would wash out the rest: when the 0.5-99.5 percentile range is less than
-    half of the full range, the colours span the percentiles and the bar gets arrows.
+
+def _weighted_percentile(values: np.ndarray, weights: np.ndarray, q: float) -> float:
+    order = np.argsort(values, kind="stable")
+    v, w = values[order], weights[order]
+    cw = np.cumsum(w)
+    return float(np.interp(q / 100.0 * cw[-1], cw - 0.5 * w, v))
+
+
+def _colour_limits(values: np.ndarray, weights: np.ndarray | None = None) -> tuple[float, float, str, str]:
+    """Colour range, colour-bar ``extend`` mode and a note on what the colours leave out.
+
+    The full range, unless a small part of the map holds values far outside the rest (a leading
+    edge, a corner, a stagnation point) that would wash out everything else: when the full range
+    exceeds :data:`CLIP_WHEN_WIDER` times the range between the :data:`COLOUR_PERCENTILES` of the
+    values weighted by cell area (what the eye sees; clustered small cells at a singular point
+    count little), the colours span those percentiles, the bar gets arrows and the note states
+    both ranges.
     """
-    finite = values[np.isfinite(values)]
+    ok = np.isfinite(values)
+    finite = values[ok]
     if not len(finite):
-        return 0.0, 1.0, "neither"
+        return 0.0, 1.0, "neither", ""
     lo, hi = float(finite.min()), float(finite.max())
-    if len(finite) < 200:
-        return lo, hi, "neither"
-    plo, phi = (float(v) for v in np.percentile(finite, [0.5, 99.5]))
-    if phi - plo >= 0.5 * (hi - lo):
-        return lo, hi, "neither"
-    extend = {(True, True): "both", (True, False): "min", (False, True): "max"}.get((lo < plo, hi > phi), "neither")
-    return plo, phi, extend
+    if len(finite) < 50:
+        return lo, hi, "neither", ""
+    w = np.ones(len(finite)) if weights is None else np.maximum(np.asarray(weights, float)[ok], 0.0)
+    if not w.sum() > 0:
+        w = np.ones(len(finite))
+    plo, phi = (_weighted_percentile(finite, w, q) for q in COLOUR_PERCENTILES)
+    if phi <= plo or hi - lo <= CLIP_WHEN_WIDER * (phi - plo):
+        return lo, hi, "neither", ""
+    pad = 0.05 * (phi - plo)
+    clo, chi = max(lo, plo - pad), min(hi, phi + pad)
+    extend = {(True, True): "both", (True, False): "min", (False, True): "max"}.get((lo < clo, hi > chi), "neither")
+    p0, p1 = COLOUR_PERCENTILES
+    note = (f"colours clipped to {clo:.3g} .. {chi:.3g} (area percentiles {p0:g}-{p1:g}); "
+            f"values reach {lo:.3g} .. {hi:.3g}")
+    return clo, chi, extend, note
 
 
 def _field_layout(w: float, h: float) -> tuple[tuple[float, float], str, tuple[float, float]]:
@@ -482,9 +527,11 @@ def field_figure(
 ) -> Figure:
     """A cell-data map on the mesh cells (flat colour per cell), equal aspect, with colour bar.
 
-    ``quantity``: ``"velocity"`` (magnitude, over U_ref), ``"pressure"`` (as Cp), ``"eddy_viscosity_ratio"``
-    or the name of any cell array (vectors as magnitudes). ``reference``: the ``reference``
-    block of summary.json (rho, u_ref, p_ref, l_ref) for non-dimensional values; without it
+    Lengths are in the units of the case (as in the wall plots of a run and the overlays of
+    ``fvrans compare``). ``quantity``: ``"velocity"`` (magnitude, over U_ref), ``"pressure"``
+    (as Cp), ``"eddy_viscosity_ratio"`` or the name of any cell array (vectors as magnitudes).
+    ``reference``: the ``reference`` block of summary.json (rho, u_ref, p_ref) for
+    non-dimensional values; without it
     values are in the units of the case. ``window``: (xmin, xmax, ymin, ymax) in case units to
     zoom in; a window less high than :data:`THIN_WINDOW` times its width (a boundary layer) is
     drawn with y stretched by a round factor, named in the y label. ``streamlines``: cell
@@ -494,21 +541,25 @@ def field_figure(
     if not isinstance(fields, FieldData):
         fields = read_fields(fields)
     values, label, name = _field_values(fields, quantity, reference)
-    l_ref = _num((reference or {}).get("l_ref"), None)
-    scale = 1.0 / l_ref if l_ref else 1.0
+    l_ref = None  # lengths in the units of the case, like the wall plots and the overlays of fvrans compare
+    scale = 1.0
     x0, x1, y0, y1 = window if window is not None else fields.bounds()
     if not (x1 > x0 and y1 > y0):
         raise CaseError(f"{fields.source}: empty plot window {(x0, x1, y0, y1)}; give xmin < xmax, ymin < ymax")
     stretch = _stretch_factor(x1 - x0, y1 - y0)
     size, cbar_loc, ax_in = _field_layout(x1 - x0, (y1 - y0) * stretch)
     title_text = _title(title, name)
-    size = (size[0], size[1] + 0.25 * title_text.count("\n"))  # room for a wrapped title
+    c = fields.centroids()
+    seen = (c[:, 0] >= x0) & (c[:, 0] <= x1) & (c[:, 1] >= y0) & (c[:, 1] <= y1)
+    shown = seen if seen.any() else np.ones(len(values), dtype=bool)
+    lo, hi, extend, clip_note = _colour_limits(values[shown], fields.areas()[shown])  # colours for what is shown
+    if clip_note:  # under the colour bar, wrapped to its length
+        clip_note = "\n".join(textwrap.wrap(clip_note, int(9.5 * size[0]) if cbar_loc == "bottom" else 34))
+    extra_lines = title_text.count("\n") + (clip_note.count("\n") + 1 if clip_note and cbar_loc == "bottom" else 0)
+    size = (size[0], size[1] + 0.25 * extra_lines)  # room for a wrapped title and the clipping note
     fig = new_figure(size)
     ax = fig.add_subplot()
     polys = [p * scale for p in fields.polygons()]
-    c = fields.centroids()
-    seen = (c[:, 0] >= x0) & (c[:, 0] <= x1) & (c[:, 1] >= y0) & (c[:, 1] <= y1)
-    lo, hi, extend = _colour_limits(values[seen] if seen.any() else values)  # colours for what is shown
     if hi - lo <= 1e-9 * max(abs(lo), abs(hi)) or hi <= lo:  # a uniform field: a readable band around it
         half = max(0.05 * abs(lo), 1e-12)
         lo, hi, extend = lo - half, hi + half, "neither"
@@ -536,6 +587,8 @@ def field_figure(
     ylabel = _length_label("y", l_ref) if l_ref is None else "y / L_ref"
     ax.set_ylabel(ylabel if stretch == 1.0 else f"{ylabel}\n(y stretched {stretch:g}×)")
     ax.set_title(title_text, fontsize=11)
+    if clip_note:
+        label = f"{label}\n{clip_note}"
     kw: dict[str, Any] = {"location": cbar_loc, "label": label, "extend": extend}
     if cbar_loc == "bottom":
         kw.update(aspect=45, fraction=0.08, pad=0.02)
@@ -716,7 +769,7 @@ def result_figures(
     summary = read_summary(rd / "summary.json")
     title = summary.get("title") if isinstance(summary.get("title"), str) else None
     reference = summary.get("reference") if isinstance(summary.get("reference"), Mapping) else None
-    l_ref = _num((reference or {}).get("l_ref"), None)
+    l_ref = None  # x in the units of the case in every plot of a run, as in fvrans compare's overlays
     walls_info = summary.get("walls") if isinstance(summary.get("walls"), Mapping) else {}
     wall_files = sorted((rd / "wall").glob("*.csv")) if (rd / "wall").is_dir() else []
     names = _patch_of_file(walls_info)

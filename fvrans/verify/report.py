@@ -170,7 +170,8 @@ def compare_command(result_dir: str | os.PathLike, spec_path: str | os.PathLike,
     """``fvrans compare``: exit status 0 when all items pass, 1 when any fails, 2 for bad input
     (unreadable spec, result directory or reference; the report is still written when the spec is
     readable, with the broken items marked "error")."""
-    stream = stream if stream is not None else sys.stderr
+    out = stream if stream is not None else sys.stdout  # results to stdout, errors to stderr
+    err = stream if stream is not None else sys.stderr
     try:
         spec = load_spec(spec_path)
         if not Path(result_dir).is_dir():
@@ -178,11 +179,11 @@ def compare_command(result_dir: str | os.PathLike, spec_path: str | os.PathLike,
         results = compare(result_dir, spec)
         write_report(results, spec, result_dir, report_dir)
     except CaseError as exc:
-        print(f"error: {exc}", file=stream)
+        print(f"error: {exc}", file=err)
         return 2
     for r in results:
         tag = {"pass": "pass ", "fail": "FAIL ", "error": "ERROR"}[r.status]
-        print(f"{tag} {r.name}: {r.message}", file=stream)
+        print(f"{tag} {r.name}: {r.message}", file=out)
     if any(r.status == "error" for r in results):
         return 2
     return 1 if any(r.status == "fail" for r in results) else 0

@@ -54,7 +54,7 @@ kind = "wall"
 kind = "symmetry"
 
 [boundary."far field"]
-kind = "freestream"
+kind = "outer-flow"
 velocity = [10.0, 0.0]
 
 [solver]
@@ -199,7 +199,7 @@ def _round_trip_cases(base, full_case_file) -> list[Case]:
     sa = dict(base)
     sa["model"] = {"turbulence": "spalart-allmaras"}
     sa["boundary"] = {
-        "far": {"kind": "freestream", "velocity": [1, 0.1], "nu_tilde_ratio": 0},
+        "far": {"kind": "outer-flow", "velocity": [1, 0.1], "nu_tilde_ratio": 0},
         "wing": {"kind": "wall"},
         "out": {"kind": "outflow-pressure"},
     }

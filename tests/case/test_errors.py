@@ -73,10 +73,10 @@ CASES = {
     "empty boundary table": (_set("boundary", {}), ["boundary", "is empty", 'kind = "wall"']),
     "missing kind": (
         _set("boundary.lid.kind", ...),
-        ["boundary.lid.kind", "missing required key", "'inflow-velocity'", "'freestream'"],
+        ["boundary.lid.kind", "missing required key", "'inflow-velocity'", "'outer-flow'"],
     ),
     "freestream without velocity": (
-        _set("boundary.far", {"kind": "freestream"}),
+        _set("boundary.far", {"kind": "outer-flow"}),
         ["boundary.far.velocity", "missing required key", "velocity = [u, v]"],
     ),
     "inlet without velocity or profile": (
@@ -175,7 +175,7 @@ CASES = {
         ["boundary.in.nu_tilde_ratio", ">= 0"],
     ),
     "negative freestream nu_tilde_ratio": (
-        _set("boundary.far", {"kind": "freestream", "velocity": [1, 0], "nu_tilde_ratio": -1}),
+        _set("boundary.far", {"kind": "outer-flow", "velocity": [1, 0], "nu_tilde_ratio": -1}),
         ["boundary.far.nu_tilde_ratio", ">= 0"],
     ),
     "zero tolerance": (_set("solver.tolerance", 0.0), ["solver.tolerance", "> 0"]),

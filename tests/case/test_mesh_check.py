@@ -63,7 +63,7 @@ def test_suggested_tables_are_valid_conditions(base, err):
         "inlet_1": "inflow-velocity",
         "Outlet": "outflow-pressure",
         "symmetry plane": "symmetry",
-        "far field": "freestream",
+        "far field": "outer-flow",
         "plate": "wall",
     }
     fixed = c.replace({f'boundary."{k}"': v for k, v in added.items()})

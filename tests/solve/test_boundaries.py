@@ -64,7 +64,7 @@ def test_freestream_on_every_side_keeps_an_oblique_uniform_flow():
     (inflow or outflow decided by the flux sign) is an exact solution: u = U_inf, p = p_inf."""
     mesh = cavity(12, triangles=True)
     u_inf = [np.cos(np.pi / 6), np.sin(np.pi / 6)]
-    specs = {name: {"kind": "freestream", "velocity": u_inf, "pressure": 0.5} for name in ("lid", "walls")}
+    specs = {name: {"kind": "outer-flow", "velocity": u_inf, "pressure": 0.5} for name in ("lid", "walls")}
     solver, converged = solve(mesh, specs, mu=0.01, tolerance=1e-10, max_iterations=2000)
     assert converged
     assert np.max(np.abs(solver.fields.velocity - u_inf)) < 1e-8
