@@ -39,6 +39,17 @@ from fvrans.mesh.mesh import Mesh
 from fvrans.mesh.morph import topology_difference
 from fvrans.models import model_class, model_for_case, residual_names
 from fvrans.models.base import TurbulenceModel
+from fvrans.monitor import (
+    MONITOR_CSV,
+    FlowState,
+    Monitor,
+    case_monitor,
+    derived_value,
+    probe_stencils,
+    sample_flow,
+    speed_scale,
+    stop_reason,
+)
 from fvrans.physics.boundary import FlowBoundary, build_flow_boundary
 from fvrans.post import (
     WallData,
@@ -52,15 +63,16 @@ from fvrans.post import (
 )
 from fvrans.post.filenames import output_file
 from fvrans.post.overlay import overlay_plots
-from fvrans.post.probes import sample_line, write_probe_csv
+from fvrans.post.probes import build_stencil, line_points, write_probe_csv
+from fvrans.post.wall_resolution import WallResolution, wall_resolution
 from fvrans.reference import FieldSource, cell_source, read_result_folder
 from fvrans.solve.simple import History, SimpleSolver, SolverControls
 
 log = logging.getLogger(__name__)
 
 __all__ = [
-    "Problem", "Result", "apply_overrides", "case_from_dict", "load_case", "overlay_plots", "prepare",
-    "residual_names", "result_source", "solve", "start_fields",
+    "Problem", "Result", "apply_overrides", "build_monitor", "case_from_dict", "load_case", "overlay_plots",
+    "prepare", "residual_names", "result_source", "solve", "start_fields",
 ]
 
 
@@ -104,6 +116,10 @@ class Result:
     fields_iteration: int | None = None
     #: the turbulence model of the run (its outputs and probe columns); None: none recorded
     model: TurbulenceModel | None = None
+    #: the monitored quantities of every iteration and their stopping rule (None: not monitored)
+    monitor: Monitor | None = None
+    #: what ended the run, a key of :data:`fvrans.monitor.STOP_REASONS`
+    stopped_by: str = ""
     #: seconds of ``wall_seconds`` spent compiling kernels (0 with a warm numba cache)
     compile_seconds: float = 0.0
 
@@ -153,6 +169,18 @@ class Result:
             raise CaseError(f"{self.case.label}: {patch!r} is not a wall patch of this run; walls: {sorted(walls)}")
         return walls[patch]
 
+    def wall_resolution(self) -> dict[str, WallResolution]:
+        """First-cell y+ figures of each reported wall patch of a turbulent run
+        (:mod:`fvrans.post.wall_resolution`); empty for a laminar run."""
+        if not self.case.turbulent:
+            return {}
+        return {name: wall_resolution(w) for name, w in self.walls().items()}
+
+    def warnings(self) -> list[str]:
+        """What the run's outputs should be read with: wall patches too coarse for the model."""
+        model = f"the {self.case.model.turbulence} model"
+        return [text for r in self.wall_resolution().values() if (text := r.warning(model))]
+
     def summary(self) -> dict[str, Any]:
         """The content of summary.json."""
         extra = {"message": self.message} if self.message else {}
@@ -163,11 +191,37 @@ class Result:
         extra.update(self.extra.get("summary", {}))
         if self.case.output.map_window is not None:
             extra["map_window"] = list(self.case.output.map_window)
+        extra.update(self._monitor_summary())
         return build_summary(
             self.case.title or self.case.label, self.converged, self.iterations, self.wall_seconds,
             self.mesh.n_cells, history=self.history, walls=self.walls(),
             l_ref=self.case.output.reference_length, extra=extra,
         )
+
+    def _monitor_summary(self) -> dict[str, Any]:
+        """stopped_by, the stopping settings, the monitored quantities' estimates, point probes and
+        derived scalars."""
+        c = self.case
+        out: dict[str, Any] = {}
+        if self.stopped_by:
+            out["stopped_by"] = self.stopped_by
+        if self.monitor is not None:
+            out["stopping"] = {
+                "residual_tolerance": c.solver.tolerance, "settle": c.monitor.settle,
+                "iteration_error": c.monitor.iteration_error, "window": c.monitor.window,
+                "speed_scale": self.monitor.speed,
+                "unsettled": [st.name for st in self.monitor.unsettled()],
+            }
+            out["monitors"] = self.monitor.summary()
+        if c.point_probes:
+            out["probes"] = {n: {k: float(v[0]) for k, v in self.probe(n).items()} for n in c.point_probes}
+        if c.derived:
+            out["derived"] = self.derived()
+        resolution = self.wall_resolution()
+        if resolution:
+            out["wall_resolution"] = {n: r.as_dict() for n, r in resolution.items()}
+        out["warnings"] = self.warnings()
+        return out
 
     # -- writing ----------------------------------------------------------------------------
     def cell_data(self) -> dict[str, np.ndarray]:
@@ -184,7 +238,7 @@ class Result:
         # names from the mesh and the case become file names only through output_file
         wall_files = {n: output_file(out, n, ".csv", subfolder="wall", what=f"wall patch {n!r}") for n in walls}
         probe_files = {n: output_file(out, n, ".csv", subfolder="profiles", what=f"probe {n!r}")
-                       for n in self.case.probes}
+                       for n in self.case.line_probes}
         if self.case.output.write_fields:
             write_vtu_atomic(out / "fields.vtu", self.mesh, self.cell_data(), within=out)
         if walls:
@@ -193,43 +247,72 @@ class Result:
             header, cols = wall_columns(w)
             write_csv_atomic(wall_files[name], header, cols, within=out)
         write_residuals_csv(out / "residuals.csv", self.history, within=out)
-        if self.case.probes:
+        if self.monitor is not None and self.monitor.rows:
+            header, cols = self.monitor.columns()
+            write_csv_atomic(out / MONITOR_CSV, header, cols, within=out)
+        if probe_files:
             (out / "profiles").mkdir(exist_ok=True)
         for name, path in probe_files.items():
             write_probe_csv(path, self.probe(name), within=out)
         write_json_atomic(out / "summary.json", self.summary(), within=out)
         return out
 
-    # -- line probes ------------------------------------------------------------------------
+    # -- probes -----------------------------------------------------------------------------
+    def flow_state(self) -> FlowState:
+        """The final fields and their gradients, as the monitors read them each iteration."""
+        if "flow_state" not in self.extra:
+            grads = self.extra.get("gradients", {"p": self.grad_p})
+            self.extra["flow_state"] = FlowState(self.velocity, self.pressure, self.grad_p, lambda: grads,
+                                                 self.model, self.fields)
+        return self.extra["flow_state"]
+
+    def _locator(self) -> CellLocator:
+        if "locator" not in self.extra:
+            self.extra["locator"] = CellLocator(self.mesh, centroids=self.problem.geom.cell_centre)
+        return self.extra["locator"]
+
     def sample_line(self, start: Any, end: Any, points: int = 101, name: str = "line") -> dict[str, np.ndarray]:
         """Fields along a segment: columns ``s`` (distance from start), ``x``, ``y``, ``u``, ``v``,
         ``p`` and the turbulence model's probe columns (Spalart-Allmaras: ``nu_tilde`` and
-        ``eddy_viscosity_ratio``, the latter from the sampled nu_tilde). Each value is the containing cell's
-        value plus its gradient times the offset from the cell centroid
-        (:func:`fvrans.post.probes.sample_line`)."""
-        values = {"u": self.velocity[:, 0], "v": self.velocity[:, 1], "p": self.pressure}
-        gradients = dict(self.extra.get("gradients", {}))
-        if "probe_fields" not in self.extra and self.model is not None:
-            self.extra["probe_fields"] = self.model.probe_fields(self.fields)
-        for key, (v, g) in self.extra.get("probe_fields", {}).items():
-            values[key] = v
-            if g is not None:
-                gradients[key] = g
-        if "locator" not in self.extra:
-            self.extra["locator"] = CellLocator(self.mesh, centroids=self.problem.geom.cell_centre)
-        cols = sample_line(self.extra["locator"], self.problem.geom.cell_centre, start, end, points, values,
-                           gradients, name=name)
-        if self.model is not None:
-            cols.update(self.model.probe_columns(cols))
+        ``eddy_viscosity_ratio``, the latter from the sampled nu_tilde). Each value is the average over
+        the cells containing the point of the cell value plus its gradient times the offset from the
+        cell centroid (:mod:`fvrans.post.probes`)."""
+        pts = line_points(start, end, points)
+        stencil = build_stencil(self._locator(), self.problem.geom.cell_centre, pts, name)
+        cols = {"s": np.hypot(*(pts - pts[0]).T), "x": pts[:, 0], "y": pts[:, 1]}
+        cols.update(sample_flow(stencil, self.flow_state()))
+        return cols
+
+    def sample_point(self, at: Any, name: str = "point") -> dict[str, float]:
+        """Fields at a point: ``x``, ``y``, ``u``, ``v``, ``p`` and the model's probe columns, the
+        average of the reconstructions of every cell containing the point."""
+        stencil = build_stencil(self._locator(), self.problem.geom.cell_centre, np.asarray(at, dtype=float), name)
+        cols = {"x": float(stencil.points[0, 0]), "y": float(stencil.points[0, 1])}
+        cols.update({k: float(v[0]) for k, v in sample_flow(stencil, self.flow_state()).items()})
         return cols
 
     def probe(self, name: str) -> dict[str, np.ndarray]:
-        """The columns of the case's line probe ``[probes.<name>]`` (see :meth:`sample_line`)."""
+        """The columns of the case's probe ``[probes.<name>]``: a line probe's table (see
+        :meth:`sample_line`), or a point probe's ``x``, ``y``, ``u``, ... as arrays of one value."""
         if name not in self.case.probes:
             raise CaseError(f"{self.case.label}: no probe {name!r}; the case has "
                             f"{', '.join(repr(n) for n in self.case.probes) or 'none'} ([probes.<name>] tables)")
         pr = self.case.probes[name]
+        if name in self.case.point_probes:
+            return {k: np.array([v]) for k, v in self.sample_point(pr.at, name).items()}
         return self.sample_line(pr.start, pr.end, pr.points, name=name)
+
+    def derived(self) -> dict[str, float]:
+        """The values of the case's derived scalars ``[derived.<name>]`` (NaN: undefined, e.g. no
+        reattachment along the line)."""
+        c = self.case
+        if not c.derived:
+            return {}
+        names = [n for n in c.probes if any(n in d.probes for d in c.derived.values())]
+        stencils = probe_stencils(c, self.mesh, self.problem.geom, names, self._locator())
+        lines = {n: np.hypot(*(st.points - st.points[0]).T) for n, st in stencils.items()}
+        state = self.flow_state()
+        return {n: derived_value(d, stencils, lines, state) for n, d in c.derived.items()}
 
     def write_checkpoint(self, path: str | Path) -> Path:
         """Save the state of this run to ``path`` (a ``.npz`` file, written atomically) so that
@@ -319,6 +402,20 @@ def _gradients(solver: SimpleSolver, grad_p: np.ndarray) -> dict[str, np.ndarray
     return {"u": gu[:, 0, :].copy(), "v": gu[:, 1, :].copy(), "p": np.array(grad_p)}
 
 
+def build_monitor(problem: Problem, initial: Result | Fields | None = None) -> Monitor:
+    """The monitor of a prepared case (its wall forces, point probes, derived scalars and the
+    velocity change; :mod:`fvrans.monitor`); pass it to :func:`solve` to read it while the run goes."""
+    c = problem.case
+    start = (initial.fields if isinstance(initial, Result) else initial)
+    u0 = start.velocity if start is not None else np.asarray(c.initial.velocity, dtype=float)
+    return case_monitor(c, problem.mesh, problem.geom, problem.boundary, speed_scale(problem.boundary, u0))
+
+
+def _flow_state(solver: SimpleSolver, model: TurbulenceModel) -> FlowState:
+    f = solver.fields
+    return FlowState(f.velocity, f.pressure, solver.grad_p, lambda: _gradients(solver, solver.grad_p), model, f)
+
+
 def solve(
     case: Case | Problem,
     initial: Result | Fields | FieldSource | str | Path | None = None,
@@ -326,6 +423,7 @@ def solve(
     *,
     restart: Checkpoint | str | Path | None = None,
     checkpoint: str | Path | None = None,
+    monitor: Monitor | None = None,
 ) -> Result:
     """Solve a case (or a prepared Problem). A diverging run returns a Result with ``diverged=True``
     holding the last good state and the message; it does not raise.
@@ -346,6 +444,9 @@ def solve(
     (or its file, or a result folder holding ``checkpoint.npz``) to continue: fields, iteration
     count and residual history carry on; ``solver.max_iterations`` counts the new iterations.
     ``checkpoint``: a file to save the state to every ``solver.checkpoint_every`` iterations.
+    ``monitor``: the run's :class:`fvrans.monitor.Monitor` (default: :func:`build_monitor`), which
+    records the watched quantities after every iteration and, with ``monitor.settle``, holds the
+    run until they have settled (``Result.stopped_by`` says what ended the run).
     """
     problem = case if isinstance(case, Problem) else prepare(case)
     c = problem.case
@@ -375,9 +476,13 @@ def solve(
         log.info("%s: resuming at iteration %d from %s", c.label, ckpt.iteration, ckpt.source)
     every = c.solver.checkpoint_every
     stopped = False
+    if monitor is None:
+        monitor = build_monitor(problem, initial)
+    monitor.state = lambda: _flow_state(solver, model)
 
     def step(it: int, res: list[float]) -> bool:
         nonlocal stopped
+        monitor.callback(it, res)
         if checkpoint is not None and every > 0 and it % every == 0:
             write_checkpoint(checkpoint, solver.fields, it, list(solver.history.names), solver.history.as_array(),
                              np.asarray(solver.history.seconds), solver.u_scale, c, problem.mesh, solver.grad_p)
@@ -393,7 +498,7 @@ def solve(
     watch = CompileWatch()
     try:
         with watch:
-            converged = solver.run(callback=step)
+            converged = solver.run(callback=step, converged_when=monitor.converged_when)
     except DivergenceError as exc:
         converged = False
         diverged = True
@@ -409,8 +514,14 @@ def solve(
         message = (f"interrupted at iteration {solver.iteration} before converging; continue with "
                    "restart= (fvrans run ... --restart DIR)")
     elif not converged and not diverged:
+        waiting = monitor.unsettled() if solver.history.rows and max(solver.history.rows[-1]) < controls.tolerance \
+            else []
+        why = (f"every residual is below {controls.tolerance:g} but " + ", ".join(
+            f"{st.name} (estimated iteration error {st.error:.2g} > {st.allowed:.2g})" for st in waiting[:3])
+            + (" has" if len(waiting) == 1 else " have") + " not settled" if waiting
+            else f"tolerance {controls.tolerance:g}")
         message = (
-            f"not converged after {solver.iteration} iterations (tolerance {controls.tolerance:g}); "
+            f"not converged after {solver.iteration} iterations ({why}); "
             "raise solver.max_iterations or restart from this result"
         )
     extra: dict[str, Any] = {
@@ -419,10 +530,15 @@ def solve(
         "cell_data": model.cell_outputs(solver.fields),
     }
     if start is not None:
-        extra["summary"] = {"start": start}
-    return Result(
+        extra["summary"]["start"] = start
+    result = Result(
         problem=problem, fields=solver.fields, history=solver.history, converged=bool(converged),
         iterations=solver.iteration, wall_seconds=seconds, grad_p=grad_p, message=message,
         diverged=diverged, extra=extra, interrupted=interrupted, velocity_scale=solver.u_scale,
-        fields_iteration=fields_iteration, model=model, compile_seconds=watch.seconds,
+        fields_iteration=fields_iteration, model=model, compile_seconds=watch.seconds, monitor=monitor,
+        stopped_by=stop_reason(bool(converged), diverged, interrupted, c.monitor.settle),
     )
+    if not diverged:
+        for text in result.warnings():
+            log.warning("%s: %s", c.label, text)
+    return result

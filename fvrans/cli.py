@@ -25,6 +25,7 @@ def _cmd_run(args: argparse.Namespace) -> int:
     from fvrans import api
     from fvrans.checkpoint import CHECKPOINT_NAME, read_checkpoint
     from fvrans.jit import COMPILE_MESSAGE, CompileWatch
+    from fvrans.monitor import MONITOR_CSV
     from fvrans.post.filenames import output_file
     from fvrans.post.outputs import clear_previous_outputs, record_outputs
     from fvrans.post.writers import atomic_write
@@ -63,8 +64,10 @@ def _cmd_run(args: argparse.Namespace) -> int:
     resolved = case.to_toml()
     atomic_write(out / RESOLVED_CASE, lambda f: f.write(resolved), within=out)
     names = api.residual_names(case)
+    monitor = api.build_monitor(problem, restart.fields if restart else None)
     progress = RunProgress(names, case.solver.max_iterations, case.solver.tolerance,
-                           first_iteration=restart.iteration if restart else 0, quiet=args.quiet)
+                           first_iteration=restart.iteration if restart else 0, quiet=args.quiet,
+                           watch=monitor.progress_text)
     stop = StopRequest()
 
     def callback(it, res):
@@ -74,7 +77,7 @@ def _cmd_run(args: argparse.Namespace) -> int:
     stop.install()
     try:
         with watch:
-            result = api.solve(problem, callback=callback, restart=restart, checkpoint=checkpoint)
+            result = api.solve(problem, callback=callback, restart=restart, checkpoint=checkpoint, monitor=monitor)
     finally:
         stop.restore()
         progress.close()
@@ -92,9 +95,9 @@ def _cmd_run(args: argparse.Namespace) -> int:
     if not result.converged or case.solver.checkpoint_every > 0 or checkpoint.exists():
         written.append(result.write_checkpoint(checkpoint))
     result.write(out)
-    written += [out / n for n in ("summary.json", "fields.vtu", "residuals.csv")]
+    written += [out / n for n in ("summary.json", "fields.vtu", "residuals.csv", MONITOR_CSV)]
     written += [output_file(out, n, ".csv", subfolder="wall") for n in result.walls()]  # as Result.write names them
-    written += [output_file(out, n, ".csv", subfolder="profiles") for n in case.probes]
+    written += [output_file(out, n, ".csv", subfolder="profiles") for n in case.line_probes]
     if not args.no_plots:
         written += _plots(out)
     record_outputs(out, written)

@@ -156,7 +156,7 @@ def test_a_reused_output_folder_loses_the_earlier_runs_files_and_keeps_the_users
     cavity.write_text(CAVITY)
     main(["run", str(cavity), "--out", str(out), "--quiet", "--no-plots"])
     left = sorted(p.relative_to(out).as_posix() for p in out.rglob("*") if p.is_file())
-    assert left == sorted(["case.toml", "checkpoint.npz", "fields.vtu", "notes.txt", "outputs.json",
+    assert left == sorted(["case.toml", "checkpoint.npz", "fields.vtu", "monitored.csv", "notes.txt", "outputs.json",
                            "plots/mine.png", "residuals.csv", "summary.json", "wall/lid.csv", "wall/measured.csv",
                            "wall/walls.csv"])
     assert not (out / "profiles").exists()

@@ -51,22 +51,29 @@ def check_case_against_mesh(case: Case, mesh: Mesh | Sequence[str]) -> None:
 
 
 def check_probes(case: Case, mesh: Mesh) -> None:
-    """Every sample point of every line probe must lie in a cell of the mesh (CaseError otherwise)."""
+    """Every point probe and every sample point of every line probe must lie in a cell of the mesh
+    (CaseError otherwise)."""
     if not case.probes:
         return
+    from fvrans.case.schema import ProbePoint
     from fvrans.mesh.locate import CellLocator, line_points
 
     locator = CellLocator(mesh)
     for name, pr in case.probes.items():
-        pts = line_points(pr.start, pr.end, pr.points)
+        pts = np.array([pr.at]) if isinstance(pr, ProbePoint) else line_points(pr.start, pr.end, pr.points)
         outside = np.flatnonzero(locator.find(pts) < 0)
         if len(outside):
             x, y = pts[outside[0]]
             lo, hi = mesh.points.min(axis=0), mesh.points.max(axis=0)
+            src = getattr(mesh, "source", "")
+            if isinstance(pr, ProbePoint):
+                what = f"the point ({x:.6g}, {y:.6g}) lies outside the mesh {src}; move it"
+            else:
+                what = (f"{len(outside)} of {pr.points} sample points lie outside the mesh {src}, the first at "
+                        f"({x:.6g}, {y:.6g}); move start / end")
             raise CaseError(
-                f"{case.label}: {format_key(('probes', name))}: {len(outside)} of {pr.points} sample points lie "
-                f"outside the mesh {getattr(mesh, 'source', '')}, the first at ({x:.6g}, {y:.6g}); move start / end "
-                f"inside the flow domain (its bounding box is x {lo[0]:.6g}..{hi[0]:.6g}, y {lo[1]:.6g}..{hi[1]:.6g})"
+                f"{case.label}: {format_key(('probes', name))}: {what} inside the flow domain (its bounding box is "
+                f"x {lo[0]:.6g}..{hi[0]:.6g}, y {lo[1]:.6g}..{hi[1]:.6g})"
             )
 
 

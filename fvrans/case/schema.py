@@ -233,6 +233,42 @@ class ProbeLine:
 
 
 @dataclass(frozen=True)
+class ProbePoint:
+    """A point probe ``[probes.<name>]`` with ``at = [x, y]``: values watched every iteration."""
+
+    at: tuple[float, float]
+
+
+Probe = ProbeLine | ProbePoint
+#: kinds of derived scalars ``[derived.<name>]``
+DERIVED_KINDS = ("difference", "recirculation-length")
+
+
+@dataclass(frozen=True)
+class DerivedScalar:
+    """A scalar computed from probes, ``[derived.<name>]``.
+
+    ``"difference"``: ``quantity`` at point probe ``probes[0]`` minus at ``probes[1]``;
+    ``"recirculation-length"``: the distance along line probe ``probes[0]`` from its start to
+    the first place where ``quantity`` turns from negative to positive.
+    """
+
+    kind: str
+    probes: tuple[str, ...]
+    quantity: str
+
+
+@dataclass(frozen=True)
+class MonitorSettings:
+    """The stopping rule on monitored quantities (see :mod:`fvrans.monitor`)."""
+
+    settle: bool = True
+    iteration_error: float = 1e-5
+    window: int = 20
+    show: str = ""
+
+
+@dataclass(frozen=True)
 class Case:
     """A complete, validated case. ``source`` is the case file (None for one built in memory).
 
@@ -251,9 +287,11 @@ class Case:
     boundaries: dict[str, BoundarySpec]
     solver: SolverSettings
     output: OutputSettings
-    probes: dict[str, ProbeLine] = field(default_factory=dict)
+    probes: dict[str, Probe] = field(default_factory=dict)
     mean_flow: MeanFlow = field(default_factory=MeanFlow)
     raw: dict[str, Any] | None = field(default=None, compare=False, repr=False)
+    derived: dict[str, DerivedScalar] = field(default_factory=dict)
+    monitor: MonitorSettings = field(default_factory=MonitorSettings)
 
     @property
     def label(self) -> str:
@@ -263,6 +301,14 @@ class Case:
     @property
     def turbulent(self) -> bool:
         return self.model.turbulence != "none"
+
+    @property
+    def line_probes(self) -> dict[str, ProbeLine]:
+        return {n: p for n, p in self.probes.items() if isinstance(p, ProbeLine)}
+
+    @property
+    def point_probes(self) -> dict[str, ProbePoint]:
+        return {n: p for n, p in self.probes.items() if isinstance(p, ProbePoint)}
 
     # -- export ----------------------------------------------------------------------------
     def to_dict(self) -> dict[str, Any]:
@@ -440,6 +486,19 @@ def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
         data["mean_flow"] = ({"pressure_gradient": _vec(mf.pressure_gradient)} if mf.pressure_gradient is not None
                              else {"bulk_velocity": _vec(mf.bulk_velocity)})
     if case.probes:
-        data["probes"] = {name: {"start": _vec(pr.start), "end": _vec(pr.end), "points": pr.points}
+        data["probes"] = {name: {"at": _vec(pr.at)} if isinstance(pr, ProbePoint) else
+                          {"start": _vec(pr.start), "end": _vec(pr.end), "points": pr.points}
                           for name, pr in case.probes.items()}
+    if case.derived:
+        data["derived"] = {name: _derived_data(d) for name, d in case.derived.items()}
+    m = case.monitor
+    data["monitor"] = {"settle": m.settle, "iteration_error": m.iteration_error, "window": m.window}
+    if m.show:
+        data["monitor"]["show"] = m.show
     return data
+
+
+def _derived_data(d: DerivedScalar) -> dict[str, Any]:
+    if d.kind == "difference":
+        return {"kind": d.kind, "probes": list(d.probes), "quantity": d.quantity}
+    return {"kind": d.kind, "probe": d.probes[0], "quantity": d.quantity}

@@ -53,9 +53,14 @@ TABLE_KEYS: dict[str, tuple[str, ...]] = {
     ),
 }
 TOP_KEYS = ("title", "description", "mesh", "fluid", "model", "initial", "boundary", "solver", "output", "probes",
-            "mean_flow")
-#: keys of a line probe [probes.<name>]
-PROBE_KEYS = ("start", "end", "points")
+            "mean_flow", "derived", "monitor")
+#: keys of a probe [probes.<name>]: a line (start, end, points) or a point (at)
+PROBE_KEYS = ("start", "end", "points", "at")
+#: keys of a derived scalar [derived.<name>] and of the [monitor] table
+DERIVED_KEYS = ("kind", "probes", "probe", "quantity")
+MONITOR_KEYS = ("settle", "iteration_error", "window", "show")
+#: what a probe samples besides the turbulence model's variables and eddy_viscosity_ratio
+PROBE_QUANTITIES = ("u", "v", "p")
 _PROBE_NAME = re.compile(r"^[A-Za-z0-9_][A-Za-z0-9_.-]*$")
 
 Rule = tuple[Callable[[float], bool], str]
@@ -337,6 +342,8 @@ def case_from_dict(data: Mapping[str, Any], source: str | Path | None = None) ->
     output = _output(ctx, top.table("output", {}), boundaries)
     probes = _probes(ctx, top.table("probes", {}))
     mean_flow = _mean_flow(ctx, top.table("mean_flow", {}), mesh)
+    derived = _derived(ctx, top.table("derived", {}), probes, model)
+    monitor = _monitor(ctx, top.table("monitor", {}))
     return S.Case(
         source=src,
         title=title,
@@ -351,6 +358,8 @@ def case_from_dict(data: Mapping[str, Any], source: str | Path | None = None) ->
         probes=probes,
         mean_flow=mean_flow,
         raw=S.copy_data(data),
+        derived=derived,
+        monitor=monitor,
     )
 
 
@@ -675,27 +684,101 @@ def _window(t: _Table) -> tuple[float, float, float, float] | None:
     return (w[0], w[1], w[2], w[3])
 
 
-def _probes(ctx: _Ctx, data: Any) -> dict[str, S.ProbeLine]:
+def _probes(ctx: _Ctx, data: Any) -> dict[str, S.Probe]:
     if not isinstance(data, Mapping):
-        raise ctx.error(("probes",), f"must hold one table per probe, [probes.<name>] with start = [x, y] and "
-                        f"end = [x, y], got {describe(data)}")
-    out: dict[str, S.ProbeLine] = {}
+        raise ctx.error(("probes",), f"must hold one table per probe, [probes.<name>] with at = [x, y] (a point) or "
+                        f"start = [x, y] and end = [x, y] (a line), got {describe(data)}")
+    out: dict[str, S.Probe] = {}
     for name, spec in data.items():
         path = ("probes", str(name))
         if not isinstance(name, str) or not _PROBE_NAME.match(name):
             raise ctx.error(path, "a probe name becomes a file name (profiles/<name>.csv): use letters, digits, "
                             "'_', '-' and '.', e.g. [probes.wake_x2]")
         if not isinstance(spec, Mapping):
-            raise ctx.error(path, f"must be a table [{format_key(path)}] with start = [x, y], end = [x, y] and "
-                            f"optionally points = 101, got {describe(spec)}")
+            raise ctx.error(path, f"must be a table [{format_key(path)}] with at = [x, y] (a point probe) or "
+                            f"start = [x, y], end = [x, y] and optionally points = 101 (a line probe), "
+                            f"got {describe(spec)}")
+        if "at" in spec:
+            t = _Table(ctx, path, spec, ("at",), "a point probe (at = [x, y]; a line probe has start, end, points "
+                       "instead)")
+            out[name] = S.ProbePoint(at=t.vector("at"))
+            continue
         t = _Table(ctx, path, spec, PROBE_KEYS, "a line probe")
-        start = t.vector("start", hint="add start = [x, y], the first point of the line")
+        start = t.vector("start", hint="add start = [x, y], the first point of the line (or at = [x, y] for a "
+                         "point probe)")
         end = t.vector("end", hint="add end = [x, y], the last point of the line")
         if start == end:
-            raise t.fail("end", f"equals start {list(start)}; a line probe needs two different points")
+            raise t.fail("end", f"equals start {list(start)}; a line probe needs two different points "
+                         "(a point probe takes at = [x, y])")
         points = t.integer("points", 101, (lambda v: v >= 2, ">= 2"), "the number of sample points")
         out[name] = S.ProbeLine(start=start, end=end, points=points)
     return out
+
+
+def _derived(ctx: _Ctx, data: Any, probes: Mapping[str, S.Probe],
+             model: S.ModelSettings) -> dict[str, S.DerivedScalar]:
+    if not isinstance(data, Mapping):
+        raise ctx.error(("derived",), f"must hold one table per scalar, [derived.<name>] with kind = one of "
+                        f"{_quoted_list(S.DERIVED_KINDS)}, got {describe(data)}")
+    quantities = _probe_quantities(model)
+    points = [n for n, p in probes.items() if isinstance(p, S.ProbePoint)]
+    lines = [n for n, p in probes.items() if isinstance(p, S.ProbeLine)]
+    out: dict[str, S.DerivedScalar] = {}
+    for name, spec in data.items():
+        path = ("derived", str(name))
+        if not isinstance(name, str) or not _PROBE_NAME.match(name):
+            raise ctx.error(path, "use letters, digits, '_', '-' and '.' in the name, e.g. [derived.dp_front_back]")
+        if name in probes:
+            raise ctx.error(path, f"a probe is also called {name!r}; give the derived scalar another name")
+        if not isinstance(spec, Mapping):
+            raise ctx.error(path, f"must be a table [{format_key(path)}] with kind = one of "
+                            f"{_quoted_list(S.DERIVED_KINDS)}, got {describe(spec)}")
+        if "kind" not in spec:
+            raise ctx.error(path + ("kind",),
+                            f"missing required key; add kind = one of {_quoted_list(S.DERIVED_KINDS)}")
+        kind = _Table(ctx, path, {"kind": spec["kind"]}, ("kind",), "").choice("kind", S.DERIVED_KINDS)
+        if kind == "difference":
+            t = _Table(ctx, path, spec, ("kind", "probes", "quantity"), "a difference")
+            given = t._get("probes", _REQUIRED, 'add probes = ["a", "b"], two point probes: the value at a minus at b')
+            if isinstance(given, np.ndarray):
+                given = given.tolist()
+            if not (isinstance(given, (list, tuple)) and len(given) == 2 and all(isinstance(g, str) for g in given)):
+                raise t.fail("probes", f"must be a list of two point-probe names [\"a\", \"b\"], got {describe(given)}")
+            for g in given:
+                if g not in points:
+                    raise t.fail("probes", f"{g!r} is not a point probe of this case{did_you_mean(g, points)}; "
+                                 f"point probes ([probes.<name>] with at = [x, y]): {_quoted_list(points) or 'none'}")
+            quantity = t.choice("quantity", quantities, "p")
+            out[name] = S.DerivedScalar(kind, (given[0], given[1]), quantity)
+        else:
+            t = _Table(ctx, path, spec, ("kind", "probe", "quantity"), "a recirculation length")
+            line = t.string("probe", hint='add probe = "<name of a line probe>" along which the flow reverses')
+            if line not in lines:
+                raise t.fail("probe", f"{line!r} is not a line probe of this case{did_you_mean(line, lines)}; "
+                             f"line probes ([probes.<name>] with start and end): {_quoted_list(lines) or 'none'}")
+            out[name] = S.DerivedScalar(kind, (line,), t.choice("quantity", quantities, "u"))
+    return out
+
+
+def _probe_quantities(model: S.ModelSettings) -> tuple[str, ...]:
+    """u, v, p and, for a turbulence model, its transported variables and the eddy-viscosity ratio."""
+    if model.turbulence == "none":
+        return PROBE_QUANTITIES
+    from fvrans.models import EDDY_VISCOSITY_RATIO, model_class
+
+    return (*PROBE_QUANTITIES, *model_class(model.turbulence).variables, EDDY_VISCOSITY_RATIO)
+
+
+def _monitor(ctx: _Ctx, data: Any) -> S.MonitorSettings:
+    t = _Table(ctx, ("monitor",), data, MONITOR_KEYS, "[monitor]")
+    d = S.MonitorSettings()
+    return S.MonitorSettings(
+        settle=t.boolean("settle", d.settle),
+        iteration_error=t.number("iteration_error", d.iteration_error, OPEN_UNIT,
+                                 "the estimated iteration error allowed, relative to each quantity's scale"),
+        window=t.integer("window", d.window, (lambda v: v >= 3, ">= 3"), "iterations"),
+        show=t.string("show", d.show),
+    )
 
 
 # ------------------------------------------------------------------------------------------

@@ -451,13 +451,15 @@ class SimpleSolver:
         max_iterations: int | None = None,
         tolerance: float | None = None,
         callback: Callable[[int, list[float]], bool | None] | None = None,
+        converged_when: Callable[[int, list[float]], bool] | None = None,
     ) -> bool:
         """Iterate until every normalised imbalance is below ``tolerance`` (True) or the limit (False).
 
         NaN/Inf, a speed above ``RUNAWAY_SPEED`` times the velocity scale, a linear system that
         lost its diagonal, or growth of a residual by ``divergence_factor`` above its minimum
         raises DivergenceError carrying the last good fields. ``callback(iteration, residuals)`` may
-        return True to stop early.
+        return True to stop early. ``converged_when(iteration, residuals)``, asked only when every
+        residual is below the tolerance, must also return True for the run to stop as converged.
         """
         n_max = self.ctl.max_iterations if max_iterations is None else max_iterations
         tol = self.ctl.tolerance if tolerance is None else tolerance
@@ -501,8 +503,9 @@ class SimpleSolver:
                     iteration=self.iteration - 1,
                 )
             last_good = self.fields.copy()
-            if callback is not None and callback(self.iteration, res):
-                return bool(np.all(arr < tol))
-            if np.all(arr < tol):
+            stop = callback is not None and bool(callback(self.iteration, res))
+            if np.all(arr < tol) and (converged_when is None or converged_when(self.iteration, res)):
                 return True
+            if stop:
+                return False
         return False
