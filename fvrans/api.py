@@ -38,8 +38,19 @@ from fvrans.mesh.geometry import Geometry, compute_geometry
 from fvrans.mesh.locate import CellLocator
 from fvrans.mesh.mesh import Mesh
 from fvrans.mesh.morph import topology_difference
-from fvrans.models import model_for_case, residual_names
+from fvrans.models import model_class, model_for_case, residual_names
 from fvrans.models.base import TurbulenceModel
+from fvrans.monitor import (
+    MONITOR_CSV,
+    FlowState,
+    Monitor,
+    case_monitor,
+    derived_value,
+    probe_stencils,
+    sample_flow,
+    speed_scale,
+    stop_reason,
+)
 from fvrans.physics.boundary import FlowBoundary, build_flow_boundary
 from fvrans.post import (
     WallData,
@@ -54,13 +65,17 @@ from fvrans.post import (
 )
 from fvrans.post.filenames import output_file
 from fvrans.post.outputs import output_set
-from fvrans.post.probes import sample_line, write_probe_csv
+from fvrans.post.overlay import overlay_plots
+from fvrans.post.probes import build_stencil, line_points, write_probe_csv
+from fvrans.post.wall_resolution import WallResolution, wall_resolution
+from fvrans.reference import FieldSource, cell_source, read_result_folder
 from fvrans.solve.simple import History, SimpleSolver, SolverControls
 
 log = logging.getLogger(__name__)
 
 __all__ = [
-    "Problem", "Result", "apply_overrides", "case_from_dict", "load_case", "prepare", "residual_names", "solve",
+    "Problem", "Result", "apply_overrides", "build_monitor", "case_from_dict", "load_case", "overlay_plots",
+    "prepare", "residual_names", "result_source", "solve", "start_fields",
 ]
 
 
@@ -109,6 +124,10 @@ class Result:
     fields_iteration: int | None = None
     #: the turbulence model of the run (its outputs and probe columns); None: none recorded
     model: TurbulenceModel | None = None
+    #: the monitored quantities of every iteration and their stopping rule (None: not monitored)
+    monitor: Monitor | None = None
+    #: what ended the run, a key of :data:`fvrans.monitor.STOP_REASONS`
+    stopped_by: str = ""
     #: seconds of ``wall_seconds`` spent compiling kernels (0 with a warm numba cache)
     compile_seconds: float = 0.0
 
@@ -158,6 +177,18 @@ class Result:
             raise CaseError(f"{self.case.label}: {patch!r} is not a wall patch of this run; walls: {sorted(walls)}")
         return walls[patch]
 
+    def wall_resolution(self) -> dict[str, WallResolution]:
+        """First-cell y+ figures of each reported wall patch of a turbulent run
+        (:mod:`fvrans.post.wall_resolution`); empty for a laminar run."""
+        if not self.case.turbulent:
+            return {}
+        return {name: wall_resolution(w) for name, w in self.walls().items()}
+
+    def warnings(self) -> list[str]:
+        """What the run's outputs should be read with: wall patches too coarse for the model."""
+        model = f"the {self.case.model.turbulence} model"
+        return [text for r in self.wall_resolution().values() if (text := r.warning(model))]
+
     def summary(self) -> dict[str, Any]:
         """The content of summary.json."""
         extra = {"message": self.message} if self.message else {}
@@ -168,11 +199,37 @@ class Result:
         extra.update(self.extra.get("summary", {}))
         if self.case.output.map_window is not None:
             extra["map_window"] = list(self.case.output.map_window)
+        extra.update(self._monitor_summary())
         return build_summary(
             self.case.title or self.case.label, self.converged, self.iterations, self.wall_seconds,
             self.mesh.n_cells, history=self.history, walls=self.walls(),
             l_ref=self.case.output.reference_length, extra=extra,
         )
+
+    def _monitor_summary(self) -> dict[str, Any]:
+        """stopped_by, the stopping settings, the monitored quantities' estimates, point probes and
+        derived scalars."""
+        c = self.case
+        out: dict[str, Any] = {}
+        if self.stopped_by:
+            out["stopped_by"] = self.stopped_by
+        if self.monitor is not None:
+            out["stopping"] = {
+                "residual_tolerance": c.solver.tolerance, "settle": c.monitor.settle,
+                "iteration_error": c.monitor.iteration_error, "window": c.monitor.window,
+                "speed_scale": self.monitor.speed,
+                "unsettled": [st.name for st in self.monitor.unsettled()],
+            }
+            out["monitors"] = self.monitor.summary()
+        if c.point_probes:
+            out["probes"] = {n: {k: float(v[0]) for k, v in self.probe(n).items()} for n in c.point_probes}
+        if c.derived:
+            out["derived"] = self.derived()
+        resolution = self.wall_resolution()
+        if resolution:
+            out["wall_resolution"] = {n: r.as_dict() for n, r in resolution.items()}
+        out["warnings"] = self.warnings()
+        return out
 
     # -- writing ----------------------------------------------------------------------------
     def cell_data(self) -> dict[str, np.ndarray]:
@@ -202,9 +259,12 @@ class Result:
                 path = output_file(stage, name, ".csv", subfolder="wall", what=f"wall patch {name!r}")
                 write_csv_atomic(path, header, cols, within=stage)
             write_residuals_csv(stage / "residuals.csv", self._finite_history(), within=stage)
-            if self.case.probes:
+            if self.monitor is not None and self.monitor.rows:
+                header, cols = self.monitor.columns()
+                write_csv_atomic(stage / MONITOR_CSV, header, cols, within=stage)
+            if self.case.line_probes:
                 (stage / "profiles").mkdir()
-            for name in self.case.probes:
+            for name in self.case.line_probes:
                 path = output_file(stage, name, ".csv", subfolder="profiles", what=f"probe {name!r}")
                 write_probe_csv(path, self.probe(name), within=stage)
             if checkpoint:
@@ -224,38 +284,62 @@ class Result:
             return SimpleNamespace(names=h.names, rows=rows[:n], seconds=h.seconds[:n])
         return h
 
-    # -- line probes ------------------------------------------------------------------------
+    # -- probes -----------------------------------------------------------------------------
+    def flow_state(self) -> FlowState:
+        """The final fields and their gradients, as the monitors read them each iteration."""
+        if "flow_state" not in self.extra:
+            grads = self.extra.get("gradients", {"p": self.grad_p})
+            self.extra["flow_state"] = FlowState(self.velocity, self.pressure, self.grad_p, lambda: grads,
+                                                 self.model, self.fields)
+        return self.extra["flow_state"]
+
+    def _locator(self) -> CellLocator:
+        if "locator" not in self.extra:
+            self.extra["locator"] = CellLocator(self.mesh, centroids=self.problem.geom.cell_centre)
+        return self.extra["locator"]
+
     def sample_line(self, start: Any, end: Any, points: int = 101, name: str = "line") -> dict[str, np.ndarray]:
         """Fields along a segment: columns ``s`` (distance from start), ``x``, ``y``, ``u``, ``v``,
         ``p`` and the turbulence model's probe columns (Spalart-Allmaras: ``nu_tilde`` and
-        ``eddy_viscosity_ratio``, the latter from the sampled nu_tilde). Each value is the containing cell's
-        value plus its gradient times the offset from the cell centroid
-        (:func:`fvrans.post.probes.sample_line`)."""
-        values = {"u": self.velocity[:, 0], "v": self.velocity[:, 1], "p": self.pressure}
-        gradients = dict(self.extra.get("gradients", {}))
-        if "probe_fields" not in self.extra and self.model is not None:
-            self.extra["probe_fields"] = self.model.probe_fields(self.fields)
-        for key, (v, g) in self.extra.get("probe_fields", {}).items():
-            values[key] = v
-            if g is not None:
-                gradients[key] = g
-        if "locator" not in self.extra:
-            self.extra["locator"] = CellLocator(self.mesh, centroids=self.problem.geom.cell_centre)
-        if self.diverged:  # gradients of the diverged iteration may linger in the model: last good values only
-            gradients = {k: np.where(np.isfinite(g), g, 0.0) for k, g in gradients.items()}
-        cols = sample_line(self.extra["locator"], self.problem.geom.cell_centre, start, end, points, values,
-                           gradients, name=name)
-        if self.model is not None:
-            cols.update(self.model.probe_columns(cols))
+        ``eddy_viscosity_ratio``, the latter from the sampled nu_tilde). Each value is the average over
+        the cells containing the point of the cell value plus its gradient times the offset from the
+        cell centroid (:mod:`fvrans.post.probes`)."""
+        pts = line_points(start, end, points)
+        stencil = build_stencil(self._locator(), self.problem.geom.cell_centre, pts, name)
+        cols = {"s": np.hypot(*(pts - pts[0]).T), "x": pts[:, 0], "y": pts[:, 1]}
+        cols.update(sample_flow(stencil, self.flow_state()))
+        return cols
+
+    def sample_point(self, at: Any, name: str = "point") -> dict[str, float]:
+        """Fields at a point: ``x``, ``y``, ``u``, ``v``, ``p`` and the model's probe columns, the
+        average of the reconstructions of every cell containing the point."""
+        stencil = build_stencil(self._locator(), self.problem.geom.cell_centre, np.asarray(at, dtype=float), name)
+        cols = {"x": float(stencil.points[0, 0]), "y": float(stencil.points[0, 1])}
+        cols.update({k: float(v[0]) for k, v in sample_flow(stencil, self.flow_state()).items()})
         return cols
 
     def probe(self, name: str) -> dict[str, np.ndarray]:
-        """The columns of the case's line probe ``[probes.<name>]`` (see :meth:`sample_line`)."""
+        """The columns of the case's probe ``[probes.<name>]``: a line probe's table (see
+        :meth:`sample_line`), or a point probe's ``x``, ``y``, ``u``, ... as arrays of one value."""
         if name not in self.case.probes:
             raise CaseError(f"{self.case.label}: no probe {name!r}; the case has "
                             f"{', '.join(repr(n) for n in self.case.probes) or 'none'} ([probes.<name>] tables)")
         pr = self.case.probes[name]
+        if name in self.case.point_probes:
+            return {k: np.array([v]) for k, v in self.sample_point(pr.at, name).items()}
         return self.sample_line(pr.start, pr.end, pr.points, name=name)
+
+    def derived(self) -> dict[str, float]:
+        """The values of the case's derived scalars ``[derived.<name>]`` (NaN: undefined, e.g. no
+        reattachment along the line)."""
+        c = self.case
+        if not c.derived:
+            return {}
+        names = [n for n in c.probes if any(n in d.probes for d in c.derived.values())]
+        stencils = probe_stencils(c, self.mesh, self.problem.geom, names, self._locator())
+        lines = {n: np.hypot(*(st.points - st.points[0]).T) for n, st in stencils.items()}
+        state = self.flow_state()
+        return {n: derived_value(d, stencils, lines, state) for n, d in c.derived.items()}
 
     def write_checkpoint(self, path: str | Path) -> Path:
         """Save the state of this run to ``path`` (a ``.npz`` file, written atomically) so that
@@ -267,27 +351,74 @@ class Result:
         )
 
 
-def _initial_fields(problem: Problem, initial: Result | Fields | None) -> Fields | None:
+def result_source(result: Result) -> FieldSource:
+    """The cell fields of a result (u, v, p and the turbulence model's variables, e.g. nu_tilde) as a
+    :class:`~fvrans.reference.FieldSource`, to interpolate onto another mesh."""
+    f = result.fields
+    values = {"u": f.velocity[:, 0], "v": f.velocity[:, 1], "p": f.pressure, **f.variables}
+    return cell_source(result.mesh, result.cell_centres, values, f"the result of {result.case.label}")
+
+
+def _interpolated_start(problem: Problem, source: FieldSource) -> tuple[Fields, dict[str, Any]]:
+    """The velocity and the case's model variables (those the source has, e.g. nu_tilde) of
+    ``source`` at the cell centres: linear, the nearest value outside its data. The pressure starts
+    uniform at initial.pressure and the face fluxes at zero, so the solver rebuilds them from the
+    velocity; a variable the source lacks starts as the model starts it (initial.nu_tilde_ratio).
+
+    The pressure is not carried over: with SIMPLEC the first pressure correction rebuilds it from the
+    velocity, consistent with the new grid, and an interpolated one slowed the convergence on the
+    laminar cases (coarse-to-fine laminar bump, Re_h 100, to 1e-7: 180 iterations with it, 137
+    without, 143 from the uniform start; DEVELOPERS.md has the table)."""
+    c, mesh = problem.case, problem.mesh
+    variables = [v for v in model_class(c.model.turbulence).variables if v in source]
+    wanted = ["u", "v", *variables]
+    got = source.interpolate(problem.geom.cell_centre, wanted, outside="nearest", estimate_error=False,
+                             target_label="cell")
+    fields = Fields(np.column_stack([got["u"], got["v"]]), np.full(mesh.n_cells, float(c.initial.pressure)),
+                    np.zeros(mesh.n_faces), {v: got[v].copy() for v in variables})
+    cov = got.coverage[0]
+    log.info("%s: start interpolated from %s: %s", c.label, source.label, cov)
+    report = {"from": source.label, "kind": source.kind, "quantities": wanted,
+              "cells_inside_data": cov.inside_share, "cells_nearest_value": cov.nearest,
+              "distance_max": cov.distance_max_outside}
+    return fields, report
+
+
+def start_fields(problem: Problem, initial: Result | Fields | FieldSource | str | Path | None
+                    ) -> tuple[Fields, dict[str, Any] | None]:
+    """The fields a run of ``problem`` starts from (see :func:`solve` for ``initial``) and, for a start
+    interpolated from elsewhere, what summary.json records about it under ``start`` (else None)."""
     mesh = problem.mesh
+    c = problem.case
+    if initial is None and c.initial.from_result is not None:
+        initial = c.initial.from_result
     if initial is None:
-        c = problem.case
-        f = Fields.uniform(mesh.n_cells, mesh.n_faces, c.initial.velocity, c.initial.pressure)
-        return f
+        return Fields.uniform(mesh.n_cells, mesh.n_faces, c.initial.velocity, c.initial.pressure), None
+    if isinstance(initial, (str, Path)):
+        initial = read_result_folder(initial)
+    if isinstance(initial, FieldSource):
+        return _interpolated_start(problem, initial)
     fields = initial.fields if isinstance(initial, Result) else initial
-    if fields.velocity.shape[0] != mesh.n_cells or fields.face_flux.shape[0] != mesh.n_faces:
+    same_size = fields.velocity.shape[0] == mesh.n_cells and fields.face_flux.shape[0] == mesh.n_faces
+    if isinstance(initial, Result) and (not same_size or topology_difference(initial.mesh, mesh) is not None):
+        return _interpolated_start(problem, result_source(initial))
+    if not same_size:
         raise CaseError(
             f"{problem.case.label}: the warm start has {fields.velocity.shape[0]} cells and "
             f"{fields.face_flux.shape[0]} faces but the mesh has {mesh.n_cells} and {mesh.n_faces}; "
-            "warm starts need the same mesh (or a morphed mesh with the same topology)"
+            "bare Fields need the same mesh: pass the Result (its mesh tells where the values are) to "
+            "interpolate them onto this one"
         )
-    diff = topology_difference(initial.mesh, mesh) if isinstance(initial, Result) else None
-    if diff is not None:
-        raise CaseError(
-            f"{problem.case.label}: the warm start's mesh has the same size but a different topology ({diff}); "
-            "warm starts need the same cells and faces: keep the generator's resolution parameters, "
-            "or morph the previous mesh (fvrans.mesh.morph)"
-        )
-    return fields.copy()
+    return fields.copy(), None
+
+
+def _mean_flow_summary(solver: SimpleSolver) -> dict[str, Any]:
+    """The mean pressure gradient that drives a periodic flow and its bulk (volume-mean) velocity."""
+    vol = solver.geom.cell_area
+    bulk = vol @ solver.fields.velocity / vol.sum()
+    g = -(vol @ solver.body) / vol.sum()
+    return {"mean_flow": {"pressure_gradient": [float(g[0]), float(g[1])],
+                          "bulk_velocity": [float(bulk[0]), float(bulk[1])]}}
 
 
 def _gradients(solver: SimpleSolver, grad_p: np.ndarray) -> dict[str, np.ndarray]:
@@ -310,25 +441,51 @@ def _last_good_gradient(solver: SimpleSolver, grad_p: np.ndarray) -> np.ndarray:
     return g if np.all(np.isfinite(g)) else np.zeros_like(g)
 
 
+def build_monitor(problem: Problem, initial: Result | Fields | None = None) -> Monitor:
+    """The monitor of a prepared case (its wall forces, point probes, derived scalars and the
+    velocity change; :mod:`fvrans.monitor`); pass it to :func:`solve` to read it while the run goes."""
+    c = problem.case
+    start = (initial.fields if isinstance(initial, Result) else initial)
+    u0 = start.velocity if start is not None else np.asarray(c.initial.velocity, dtype=float)
+    return case_monitor(c, problem.mesh, problem.geom, problem.boundary, speed_scale(problem.boundary, u0))
+
+
+def _flow_state(solver: SimpleSolver, model: TurbulenceModel) -> FlowState:
+    f = solver.fields
+    return FlowState(f.velocity, f.pressure, solver.grad_p, lambda: _gradients(solver, solver.grad_p), model, f)
+
+
 def solve(
     case: Case | Problem,
-    initial: Result | Fields | None = None,
+    initial: Result | Fields | FieldSource | str | Path | None = None,
     callback: Callable[[int, list[float]], bool | None] | None = None,
     *,
     restart: Checkpoint | str | Path | None = None,
     checkpoint: str | Path | None = None,
+    monitor: Monitor | None = None,
 ) -> Result:
-    """Solve a case (or a prepared Problem); ``initial`` warm-starts from a previous result on the
-    same mesh or one of the same topology (a neighbouring design of a parametric generator with the
-    same resolution, or a mesh morphed with :func:`fvrans.mesh.morph.morph`); a different cell or
-    face count, or (for a Result) a different topology, raises CaseError. A diverging run returns
-    a Result with ``diverged=True`` holding the last good state and the message; it does not raise.
+    """Solve a case (or a prepared Problem). A diverging run returns a Result with ``diverged=True``
+    holding the last good state and the message; it does not raise.
+
+    ``initial``: where the iterations start (default: the case's ``[initial]``, uniform values or
+    ``from_result``). A Result on the same mesh or one of the same topology (a neighbouring design
+    of a parametric generator with the same resolution, or a mesh morphed with
+    :func:`fvrans.mesh.morph.morph`) is copied as it is (fields and face fluxes). A Result on
+    another mesh, a result folder (path) or a :class:`~fvrans.reference.FieldSource` is
+    interpolated onto the cells (:mod:`fvrans.reference`: linear, the nearest value outside its
+    data): the velocity and the model's variables (nu_tilde) the source has; the pressure starts uniform at
+    ``initial.pressure`` and the face fluxes are rebuilt from the velocity;
+    summary.json then records the source and its coverage under ``start``. Bare Fields must
+    match the mesh in size.
 
     ``callback(iteration, residuals)`` is called after every outer iteration; returning True
     stops the run there (``interrupted=True`` unless it converged). ``restart``: a checkpoint
     (or its file, or a result folder holding ``checkpoint.npz``) to continue: fields, iteration
     count and residual history carry on; ``solver.max_iterations`` counts the new iterations.
     ``checkpoint``: a file to save the state to every ``solver.checkpoint_every`` iterations.
+    ``monitor``: the run's :class:`fvrans.monitor.Monitor` (default: :func:`build_monitor`), which
+    records the watched quantities after every iteration and, with ``monitor.settle``, holds the
+    run until they have settled (``Result.stopped_by`` says what ended the run).
     """
     problem = case if isinstance(case, Problem) else prepare(case)
     c = problem.case
@@ -340,11 +497,14 @@ def solve(
         ckpt = restart if isinstance(restart, Checkpoint) else read_checkpoint(restart)
         ckpt.check_matches(c, problem.mesh)
         initial = ckpt.fields
-    fields = _initial_fields(problem, initial)
+    fields, start = start_fields(problem, initial)
     model = model_for_case(c, problem.mesh, problem.geom, problem.boundary)
+    mf = c.mean_flow
     solver = SimpleSolver(
         problem.mesh, problem.geom, problem.boundary, rho=c.fluid.density, mu=c.fluid.viscosity,
         controls=controls, fields=fields, model=model,
+        body_force=None if mf.pressure_gradient is None else -np.asarray(mf.pressure_gradient, dtype=float),
+        bulk_velocity=mf.bulk_velocity,
     )
     if ckpt is not None:
         if list(ckpt.history_names) != list(solver.history.names):
@@ -355,9 +515,13 @@ def solve(
         log.info("%s: resuming at iteration %d from %s", c.label, ckpt.iteration, ckpt.source)
     every = c.solver.checkpoint_every
     stopped = False
+    if monitor is None:
+        monitor = build_monitor(problem, initial)
+    monitor.state = lambda: _flow_state(solver, model)
 
     def step(it: int, res: list[float]) -> bool:
         nonlocal stopped
+        monitor.callback(it, res)
         if checkpoint is not None and every > 0 and it % every == 0:
             write_checkpoint(checkpoint, solver.fields, it, list(solver.history.names), solver.history.as_array(),
                              np.asarray(solver.history.seconds), solver.u_scale, c, problem.mesh, solver.grad_p)
@@ -373,7 +537,7 @@ def solve(
     watch = CompileWatch()
     try:
         with watch:
-            converged = solver.run(callback=step)
+            converged = solver.run(callback=step, converged_when=monitor.converged_when)
     except DivergenceError as exc:
         converged = False
         diverged = True
@@ -389,17 +553,31 @@ def solve(
         message = (f"interrupted at iteration {solver.iteration} before converging; continue with "
                    "restart= (fvrans run ... --restart DIR)")
     elif not converged and not diverged:
+        waiting = monitor.unsettled() if solver.history.rows and max(solver.history.rows[-1]) < controls.tolerance \
+            else []
+        why = (f"every residual is below {controls.tolerance:g} but " + ", ".join(
+            f"{st.name} (estimated iteration error {st.error:.2g} > {st.allowed:.2g})" for st in waiting[:3])
+            + (" has" if len(waiting) == 1 else " have") + " not settled" if waiting
+            else f"tolerance {controls.tolerance:g}")
         message = (
-            f"not converged after {solver.iteration} iterations (tolerance {controls.tolerance:g}); "
+            f"not converged after {solver.iteration} iterations ({why}); "
             "raise solver.max_iterations or restart from this result"
         )
     extra: dict[str, Any] = {
+        "summary": _mean_flow_summary(solver) if mf.active else {},
         "gradients": _gradients(solver, grad_p),
         "cell_data": model.cell_outputs(solver.fields),
     }
-    return Result(
+    if start is not None:
+        extra["summary"]["start"] = start
+    result = Result(
         problem=problem, fields=solver.fields, history=solver.history, converged=bool(converged),
         iterations=solver.iteration, wall_seconds=seconds, grad_p=grad_p, message=message,
         diverged=diverged, extra=extra, interrupted=interrupted, velocity_scale=solver.u_scale,
-        fields_iteration=fields_iteration, model=model, compile_seconds=watch.seconds,
+        fields_iteration=fields_iteration, model=model, compile_seconds=watch.seconds, monitor=monitor,
+        stopped_by=stop_reason(bool(converged), diverged, interrupted, c.monitor.settle),
     )
+    if not diverged:
+        for text in result.warnings():
+            log.warning("%s: %s", c.label, text)
+    return result

@@ -98,6 +98,9 @@ def mesh_hash(mesh: Mesh) -> str:
         h.update(arr.tobytes())
     for p in mesh.patches:
         h.update(f"{p.name}:{p.start}:{p.stop};".encode())
+    for q in mesh.periodic:
+        t = q.translation
+        h.update(f"periodic {q.first}:{q.second}:{t[0]!r}:{t[1]!r}:{q.start}:{q.stop};".encode())
     return h.hexdigest()
 
 

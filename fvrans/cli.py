@@ -61,8 +61,10 @@ def _cmd_run(args: argparse.Namespace) -> int:
     open_folder(out)  # created, and a set of outputs half put in place by a killed run finished first
     checkpoint = out / CHECKPOINT_NAME
     names = api.residual_names(case)
+    monitor = api.build_monitor(problem, restart.fields if restart else None)
     progress = RunProgress(names, case.solver.max_iterations, case.solver.tolerance,
-                           first_iteration=restart.iteration if restart else 0, quiet=args.quiet)
+                           first_iteration=restart.iteration if restart else 0, quiet=args.quiet,
+                           watch=monitor.progress_text)
 
     def callback(it, res):
         progress(it, res)
@@ -71,7 +73,7 @@ def _cmd_run(args: argparse.Namespace) -> int:
     try:
         stop.enter("solving")
         with watch:
-            result = api.solve(problem, callback=callback, restart=restart, checkpoint=checkpoint)
+            result = api.solve(problem, callback=callback, restart=restart, checkpoint=checkpoint, monitor=monitor)
         stop.enter("writing")
     finally:
         progress.close()
@@ -82,7 +84,7 @@ def _cmd_run(args: argparse.Namespace) -> int:
                                                     "--restart", out))
     if stop.signal_name is not None and result.interrupted:
         result.message = f"interrupted by {stop.signal_name} at iteration {result.iterations}; continue with: {again}"
-        result.extra["summary"] = {"interrupted_by": stop.signal_name}
+        result.extra.setdefault("summary", {})["interrupted_by"] = stop.signal_name
     elif not result.converged and not result.diverged:
         result.message += f"; continue with: {again} (--set solver.max_iterations=N for N more)"
     # one set of outputs (fvrans.post.outputs): it replaces the previous run's set in a reused folder
@@ -302,6 +304,22 @@ def _cmd_grid_study(args: argparse.Namespace) -> int:
     )
 
 
+def _cmd_overlay(args: argparse.Namespace) -> int:
+    from fvrans.post.overlay import overlay_plots, sweep_labels
+
+    folders = [Path(f) for f in args.result_dirs]
+    labels = list(args.label)
+    if args.sweep:
+        if folders or labels:
+            print("error: give result folders (with --label) or --sweep SWEEP_DIR, not both", file=sys.stderr)
+            return 2
+        named = sweep_labels(args.sweep)
+        folders, labels = list(named), list(named.values())
+    for path in overlay_plots(folders, args.out, labels or None):
+        print(path)
+    return 0
+
+
 def _cmd_sweep(args: argparse.Namespace) -> int:
     from fvrans.sweep import sweep_command
 
@@ -390,6 +408,16 @@ def build_parser() -> argparse.ArgumentParser:
                    help="run on an existing dask cluster, e.g. tcp://10.0.0.5:8786")
     s.add_argument("--quiet", action="store_true", help="no progress bar or summary")
     s.set_defaults(func=_cmd_sweep)
+
+    o = sub.add_parser("overlay", help="draw several result folders on the same plots (walls, probes, "
+                                       "profiles in wall units, residuals)")
+    o.add_argument("result_dirs", nargs="*", help="folders written by 'fvrans run' (two or more)")
+    o.add_argument("--label", action="append", default=[], metavar="NAME",
+                   help="legend name of each folder, in order (default: the run's title, else the folder name)")
+    o.add_argument("--sweep", default=None, metavar="SWEEP_DIR",
+                   help="overlay every run of a sweep folder, named by its parameter values")
+    o.add_argument("--out", required=True, help="folder for the PNG files")
+    o.set_defaults(func=_cmd_overlay)
     return p
 
 

@@ -89,18 +89,21 @@ class Estimate:
 
 def fit_line(
     iteration: int, total: int, names: Sequence[str], residuals: Sequence[float], rate: float | None,
-    eta: str, width: int,
+    eta: str, width: int, watched: str = "",
 ) -> str:
     """The progress text, fitted into ``width`` characters by dropping fields by priority.
 
     In order of what goes first: the seconds per iteration, then the long words (``iteration``
     becomes ``it``, residual names are cut to four letters, ``about``/``at most`` become ``~``/``<=``),
-    then the time left, then every residual but the largest; the iteration count stays.
+    then the monitored quantity ``watched`` (e.g. ``"plate.Cd 0.0028712"``), then the time left,
+    then every residual but the largest; the iteration count stays.
 
     >>> fit_line(12, 500, ["u", "continuity"], [1e-3, 2e-4], 0.01, "about 5 s left", 100)
     'iteration     12/500  u 1.00e-03  continuity 2.00e-04  0.0100 s/iteration  about 5 s left'
     >>> fit_line(12, 500, ["u", "continuity"], [1e-3, 2e-4], 0.01, "about 5 s left", 40)
     'it 12/500  u 1.0e-03  cont 2.0e-04'
+    >>> fit_line(12, 500, ["u", "continuity"], [1e-3, 2e-4], 0.01, "about 5 s left", 80, "wall.Cd 0.01234")
+    'it 12/500  u 1.0e-03  cont 2.0e-04  ~5 s left  wall.Cd 0.01234'
     """
     width = max(int(width), 20)
     count = f"{iteration:6d}/{total}"
@@ -114,6 +117,9 @@ def fit_line(
         worst = f"max {names[k][:4]} {vals[k]:.1e}"
     rate_text = f"{rate:.4f} s/iteration" if rate is not None else ""
     candidates = (
+        [f"iteration {count}", full, rate_text, eta, watched],
+        [f"iteration {count}", full, eta, watched],
+        [f"it {iteration}/{total}", short, eta_short, watched],
         [f"iteration {count}", full, rate_text, eta],
         [f"iteration {count}", full, eta],
         [f"it {iteration}/{total}", short, eta_short],
@@ -151,6 +157,7 @@ class RunProgress:
     terminal a rich progress bar with the fields of :func:`fit_line`; elsewhere a plain line at
     the first iteration and then every ``every_s`` seconds; nothing when ``quiet``. Every line
     fits ``width`` columns (default: the terminal's, or 80 when the stream is not a terminal).
+    ``watch()``: a short text of a monitored quantity, shown where it fits (:func:`fit_line`).
     """
 
     #: columns of the bar on a terminal
@@ -168,8 +175,10 @@ class RunProgress:
         clock: Callable[[], float] = time.perf_counter,
         force_terminal: bool | None = None,
         width: int | None = None,
+        watch: Callable[[], str] | None = None,
     ):
         self.names = list(names)
+        self.watch = watch
         self.quiet = quiet
         self.stream = stream if stream is not None else sys.stderr
         self.first = int(first_iteration)
@@ -205,7 +214,8 @@ class RunProgress:
     def line(self, iteration: int, residuals: Sequence[float], width: int | None = None) -> str:
         """The progress text (see :func:`fit_line`) within ``width`` columns (default: the line's)."""
         return fit_line(iteration, self.total, self.names, residuals, self.estimate.seconds_per_iteration(),
-                        self.estimate.text(iteration), self.width if width is None else width)
+                        self.estimate.text(iteration), self.width if width is None else width,
+                        self.watch() if self.watch is not None else "")
 
     def __call__(self, iteration: int, residuals: Sequence[float]) -> None:
         now = self.clock()

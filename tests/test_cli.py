@@ -152,7 +152,7 @@ def test_a_reused_output_folder_loses_the_earlier_runs_files_and_keeps_the_users
     main(["run", str(case_file), "--out", str(out), "--quiet"])
     first = listed_outputs(out)["files"]
     assert {"wall/lower_wall.csv", "profiles/across.csv", "plots/wall_lower_wall_cf.png", "case.toml",
-            "summary.json", "checkpoint.npz"} <= set(first)
+            "summary.json", "monitored.csv", "checkpoint.npz"} <= set(first)
     assert all((out / f).is_file() for f in first)
     mine = [out / "notes.txt", out / "plots" / "mine.png", out / "wall" / "measured.csv"]
     for f in mine:
@@ -160,8 +160,8 @@ def test_a_reused_output_folder_loses_the_earlier_runs_files_and_keeps_the_users
     cavity = tmp_path / "cavity.toml"
     cavity.write_text(CAVITY)
     main(["run", str(cavity), "--out", str(out), "--quiet", "--no-plots"])
-    second = ["case.toml", "checkpoint.npz", "fields.vtu", "residuals.csv", "summary.json", "wall/lid.csv",
-              "wall/walls.csv"]
+    second = ["case.toml", "checkpoint.npz", "fields.vtu", "monitored.csv", "residuals.csv", "summary.json",
+              "wall/lid.csv", "wall/walls.csv"]
     assert sorted(listed_outputs(out)["files"]) == second
     left = sorted(p.relative_to(out).as_posix() for p in out.rglob("*") if p.is_file())
     assert left == sorted(second + [MANIFEST, "notes.txt", "plots/mine.png", "wall/measured.csv"])

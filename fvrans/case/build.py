@@ -52,22 +52,29 @@ def check_case_against_mesh(case: Case, mesh: Mesh | Sequence[str]) -> None:
 
 
 def check_probes(case: Case, mesh: Mesh) -> None:
-    """Every sample point of every line probe must lie in a cell of the mesh (CaseError otherwise)."""
+    """Every point probe and every sample point of every line probe must lie in a cell of the mesh
+    (CaseError otherwise)."""
     if not case.probes:
         return
+    from fvrans.case.schema import ProbePoint
     from fvrans.mesh.locate import CellLocator, line_points
 
     locator = CellLocator(mesh)
     for name, pr in case.probes.items():
-        pts = line_points(pr.start, pr.end, pr.points)
+        pts = np.array([pr.at]) if isinstance(pr, ProbePoint) else line_points(pr.start, pr.end, pr.points)
         outside = np.flatnonzero(locator.find(pts) < 0)
         if len(outside):
             x, y = pts[outside[0]]
             lo, hi = mesh.points.min(axis=0), mesh.points.max(axis=0)
+            src = getattr(mesh, "source", "")
+            if isinstance(pr, ProbePoint):
+                what = f"the point ({x:.6g}, {y:.6g}) lies outside the mesh {src}; move it"
+            else:
+                what = (f"{len(outside)} of {pr.points} sample points lie outside the mesh {src}, the first at "
+                        f"({x:.6g}, {y:.6g}); move start / end")
             raise CaseError(
-                f"{case.label}: {format_key(('probes', name))}: {len(outside)} of {pr.points} sample points lie "
-                f"outside the mesh {getattr(mesh, 'source', '')}, the first at ({x:.6g}, {y:.6g}); move start / end "
-                f"inside the flow domain (its bounding box is x {lo[0]:.6g}..{hi[0]:.6g}, y {lo[1]:.6g}..{hi[1]:.6g})"
+                f"{case.label}: {format_key(('probes', name))}: {what} inside the flow domain (its bounding box is "
+                f"x {lo[0]:.6g}..{hi[0]:.6g}, y {lo[1]:.6g}..{hi[1]:.6g})"
             )
 
 
@@ -273,9 +280,29 @@ def _check_size(case: Case, name: str, mod: object, params: dict) -> None:
             f"than the {have / 2**30:.3g} GiB of memory available; reduce the cell counts")
 
 
+def _join_periodic(case: Case, mesh: Mesh) -> Mesh:
+    from fvrans.mesh.periodic import join_periodic
+
+    key = f"{case.label}: mesh.periodic_pairs"
+    for pair in case.mesh.periodic_pairs:
+        for name in pair:
+            if name not in mesh.patch_names:
+                raise CaseError(f"{key}: the mesh {mesh.source} has no patch {name!r}"
+                                f"{did_you_mean(name, mesh.patch_names)}; its patches are: "
+                                f"{', '.join(repr(x) for x in mesh.patch_names)}")
+            if name in case.boundaries:
+                raise CaseError(f"{case.label}: {format_key(('boundary', name))}: patch {name!r} is joined by "
+                                "mesh.periodic_pairs and takes no boundary condition; remove the table")
+    try:
+        return join_periodic(mesh, case.mesh.periodic_pairs)
+    except MeshError as exc:
+        raise MeshError(f"{key}: {exc}") from None
+
+
 def build_case_mesh(case: Case, check: bool = True) -> Mesh:
     """Read or generate the case's mesh, renumber its cells if asked (reverse Cuthill-McKee,
-    :func:`fvrans.mesh.renumber.renumber_cells`) and, by default, check the case against it with
+    :func:`fvrans.mesh.renumber.renumber_cells`), join its periodic pairs
+    (:func:`fvrans.mesh.periodic.join_periodic`) and, by default, check the case against it with
     :func:`check_case_against_mesh`."""
     if case.mesh.file is not None:
         from fvrans.mesh.io import read_mesh
@@ -289,6 +316,8 @@ def build_case_mesh(case: Case, check: bool = True) -> Mesh:
         from fvrans.mesh.renumber import renumber_cells
 
         mesh, _ = renumber_cells(mesh)
+    if case.mesh.periodic_pairs:
+        mesh = _join_periodic(case, mesh)
     if check:
         check_case_against_mesh(case, mesh)
     return mesh

@@ -130,7 +130,8 @@ def resolve_profile(
     ``eddy_viscosity_ratio`` holds nu_t / nu (what fvrans writes in its outputs) and a column
     ``nut_ratio`` could mean either; a file with such a column is refused unless the mapping
     names the nu_tilde / nu column, or (for ``eddy_viscosity_ratio`` alone) the inlet gives its
-    ``nu_tilde_ratio`` as a constant (``constant_given``). ``fail(key_suffix, message)`` makes the error.
+    ``nu_tilde_ratio`` as a constant (``constant_given``). ``k`` and ``omega`` (k-omega SST) are
+    included like ``nu_tilde_ratio`` and come together. ``fail(key_suffix, message)`` makes the error.
     """
     for k, v in given.items():
         if not isinstance(v, str) or not v.strip():
@@ -156,6 +157,15 @@ def resolve_profile(
         _refuse_ambiguous(path, table.names, constant_given, fail)
         if DEFAULT_PROFILE_COLUMNS["nu_tilde_ratio"] in table.names:
             cols["nu_tilde_ratio"] = DEFAULT_PROFILE_COLUMNS["nu_tilde_ratio"]
+    for key in ("k", "omega"):
+        if given.get(key) is not None:
+            cols[key] = given[key]
+        elif DEFAULT_PROFILE_COLUMNS[key] in table.names:
+            cols[key] = DEFAULT_PROFILE_COLUMNS[key]
+    if ("k" in cols) != ("omega" in cols):
+        has, lacks = ("k", "omega") if "k" in cols else ("omega", "k")
+        raise fail(("profile",), f"the profile file {path} gives {has} (column {cols[has]!r}) but not {lacks}; "
+                   f"the k-omega SST inflow needs both columns, or neither")
     for k, name in cols.items():
         if name not in table.names:
             how = (f"profile_columns.{k} names it" if k in given else
@@ -171,6 +181,11 @@ def resolve_profile(
     if "nu_tilde_ratio" in cols and np.any(table.columns[cols["nu_tilde_ratio"]] < 0):
         raise fail(("profile",), f"the profile file {path} has negative values in column "
                    f"{cols['nu_tilde_ratio']!r}; nu_tilde / nu must be >= 0")
+    if "k" in cols and np.any(table.columns[cols["k"]] < 0):
+        raise fail(("profile",), f"the profile file {path} has negative values in column {cols['k']!r}; k must be >= 0")
+    if "omega" in cols and np.any(table.columns[cols["omega"]] <= 0):
+        raise fail(("profile",), f"the profile file {path} has values <= 0 in column {cols['omega']!r}; "
+                   "omega must be > 0")
     return cols
 
 
@@ -251,6 +266,12 @@ def evaluate_velocity(
         raise CaseError(f"{label}.velocity: the Python function returned a non-finite velocity at "
                         f"({x.ravel()[i]:.6g}, {y.ravel()[i]:.6g})")
     return u, w
+
+
+def evaluate_column(spec: BoundarySpec, x: np.ndarray, y: np.ndarray, column: str, label: str) -> np.ndarray:
+    """A column of the condition's profile at points (x, y) (linear interpolation)."""
+    x, y = np.broadcast_arrays(x, y)
+    return _interpolate(spec, x, y, column, label)
 
 
 def evaluate_nu_tilde_ratio(spec: BoundarySpec, x: np.ndarray, y: np.ndarray, label: str) -> np.ndarray:

@@ -40,6 +40,24 @@ class Patch:
 
 
 @dataclass(frozen=True)
+class PeriodicPair:
+    """Two boundary patches joined into internal faces: patch ``second`` is patch ``first`` moved
+    by ``translation``. Internal faces ``start .. stop-1`` are the joined faces, stored as seen from
+    the cell on the ``first`` side (owner) with the neighbour on the ``second`` side, whose image
+    beside the owner lies at x_N - translation."""
+
+    first: str
+    second: str
+    translation: tuple[float, float]
+    start: int
+    stop: int
+
+    @property
+    def size(self) -> int:
+        return self.stop - self.start
+
+
+@dataclass(frozen=True)
 class Mesh:
     """Unstructured 2D polygon mesh with face topology and named boundary patches.
 
@@ -56,6 +74,8 @@ class Mesh:
     patches : named boundary patches, in face order.
     source : where the mesh came from (a file name or a description), used in messages.
     notes : what was repaired while building (re-oriented cells, merged points).
+    periodic : translational periodic pairs joined into internal faces
+        (:func:`fvrans.mesh.periodic.join_periodic`); empty for an ordinary mesh.
     """
 
     points: np.ndarray
@@ -68,13 +88,23 @@ class Mesh:
     patches: tuple[Patch, ...]
     source: str = "<in memory>"
     notes: tuple[str, ...] = field(default_factory=tuple)
+    periodic: tuple[PeriodicPair, ...] = field(default_factory=tuple)
 
     def __repr__(self) -> str:
+        joined = f", periodic {[(p.first, p.second) for p in self.periodic]}" if self.periodic else ""
         return (
             f"Mesh({self.source!r}: {self.n_cells} cells, {self.n_faces} faces "
             f"({self.n_internal_faces} internal), {self.n_points} points, "
-            f"patches {[(p.name, p.size) for p in self.patches]})"
+            f"patches {[(p.name, p.size) for p in self.patches]}{joined})"
         )
+
+    def face_shift(self) -> np.ndarray:
+        """(n_faces, 2): the vector that moves each face's neighbour beside its owner (minus the
+        translation of its periodic pair on joined faces, zero elsewhere)."""
+        shift = np.zeros((self.n_faces, 2))
+        for p in self.periodic:
+            shift[p.start : p.stop] = -np.asarray(p.translation, dtype=float)
+        return shift
 
     # -- sizes ---------------------------------------------------------------------------
     @property
@@ -152,6 +182,8 @@ class Mesh:
         order = np.asarray(order, dtype=np.int64)
         if sorted(order.tolist()) != list(range(self.n_cells)):
             raise MeshError(f"{self.source}: a cell permutation must contain each cell index once")
+        if self.periodic:
+            raise MeshError(f"{self.source}: renumber the cells before joining periodic patches")
         cells = [self.cell(c) for c in order]
         boundary = {p.name: self.face_points[p.start : p.stop] for p in self.patches}
         return build_mesh(self.points, cells, boundary, source=self.source, quiet=True, check_overlaps=False)

@@ -771,12 +771,13 @@ def result_figures(
     ``window`` (xmin, xmax, ymin, ymax), or else the ``map_window`` of summary.json (the case's
     ``output.map_window``), adds zoomed maps ``field_<quantity>_zoom.png``.
 
-    ``residuals.png``; ``wall_<patch>_cf.png`` and ``wall_<patch>_cp.png`` per wall table, with
-    the zero-shear points of summary.json and the curves of ``references[patch]["cf" | "cp"]``
-    (see :func:`wall_figure`); ``field_velocity.png`` (with streamlines), ``field_pressure.png``
-    and ``field_eddy_viscosity_ratio.png`` (when present) from fields.vtu; ``profile_<name>.png`` for each
-    ``profiles/<name>.csv`` with ``y_plus`` and ``u_plus`` columns, ``probe_<name>.png`` (u and v
-    along the probe) for each line-probe table. Input problems are checked
+    ``residuals.png``; ``monitored.png`` (:mod:`fvrans.post.monitor_plot`); ``wall_<patch>_cf.png``
+    and ``wall_<patch>_cp.png`` per wall table, with the zero-shear points of summary.json and the
+    curves of ``references[patch]["cf" | "cp"]`` (see :func:`wall_figure`); ``field_velocity.png``
+    (with streamlines), ``field_pressure.png`` and ``field_eddy_viscosity_ratio.png`` (when
+    present) from fields.vtu; ``profile_<name>.png`` for each ``profiles/<name>.csv`` with
+    ``y_plus`` and ``u_plus`` columns, ``probe_<name>.png`` (u and v along the probe) for each
+    line-probe table. Input problems are checked
     before the first figure is made.
     """
     rd = Path(result_dir)
@@ -830,6 +831,10 @@ def _result_figures(rd: Path, title: str | None, reference: Mapping[str, Any] | 
                     ) -> Iterator[tuple[str, Figure]]:
     if have_res:
         yield "residuals.png", residual_figure(rd / "residuals.csv", title=title)
+    if (rd / "monitored.csv").is_file():
+        from fvrans.post.monitor_plot import monitor_figure
+
+        yield "monitored.png", monitor_figure(rd / "monitored.csv", title=title)
     names = _patch_of_file(walls_info)
     for wf in wall_files:
         patch = names.get(wf.stem, wf.stem)

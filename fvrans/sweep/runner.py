@@ -447,6 +447,7 @@ def run_sweep(
     table = ResultsTable(
         table_columns([p.name for p in sweep.parameters], [o.name for o in sweep.outputs]), rows,
         meta={"title": sweep.title, "spec": sweep.label, "base_case": base.label, "fvrans": _version(),
+              "parameters": [p.name for p in sweep.parameters],
               "sampling": sweep.sampling, "runs_done": len(todo), "runs_reused": reused, "runs_refused": refused,
               "seconds": time.perf_counter() - t0, "stopped": stopped is not None},
     )

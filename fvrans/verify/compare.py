@@ -27,7 +27,8 @@ from fvrans.errors import CaseError
 from fvrans.post.filenames import safe_file_name
 from fvrans.post.outputs import recover
 from fvrans.post.summary import summary_value
-from fvrans.verify.readers import FieldFile, Table, read_csv, read_field, read_table
+from fvrans.reference.meshfile import FieldFile, read_field
+from fvrans.reference.tables import Table, read_csv, read_table
 from fvrans.verify.spec import Item, Spec, Transform
 
 
