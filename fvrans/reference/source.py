@@ -108,7 +108,7 @@ class FieldSource:
             out.coverage.append(Coverage.of(ds, st, outside))
             for q in names:
                 out.values[q] = st.apply(ds.values[q])
-            if estimate_error:
+            if estimate_error and not np.all(st.distance == 0.0):  # (targets on the sites: nothing interpolated)
                 out.errors.update(holdout_error(ds, names))
         out.values = {q: out.values[q] for q in wanted}
         return out
