@@ -98,6 +98,8 @@ def _cmd_run(args: argparse.Namespace) -> int:
     written += [out / n for n in ("summary.json", "fields.vtu", "residuals.csv", MONITOR_CSV)]
     written += [output_file(out, n, ".csv", subfolder="wall") for n in result.walls()]  # as Result.write names them
     written += [output_file(out, n, ".csv", subfolder="profiles") for n in case.line_probes]
+    if case.reference.write_features:
+        written += [out / f"{api.FEATURES}.csv", out / f"{api.FEATURES}.npz"]
     if not args.no_plots:
         written += _plots(out)
     record_outputs(out, written)
