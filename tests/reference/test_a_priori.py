@@ -86,3 +86,13 @@ def test_bundled_demo_on_invented_data(tmp_path):
     assert np.isfinite(table["b_xy"][stressed]).all() and np.isnan(table["b_xy"][~stressed]).all()
     files = json.loads((out / "outputs.json").read_text())["files"]
     assert "features.csv" in files and "features.npz" in files
+
+
+def test_demo_data_are_made_by_their_script(tmp_path):
+    """The committed invented data are exactly what make_demo_reference.py writes (not hand-edited)."""
+    import runpy
+
+    script = runpy.run_path(str(ROOT / "cases" / "reference" / "make_demo_reference.py"))
+    assert script["main"](["--out", str(tmp_path)]) == 0
+    name = "demo_plate_invented.csv"
+    assert (tmp_path / name).read_text() == (ROOT / "cases" / "reference" / name).read_text()
