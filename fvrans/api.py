@@ -23,13 +23,14 @@ import time
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
+from types import SimpleNamespace
 from typing import Any
 
 import numpy as np
 
 from fvrans.case import Case, apply_overrides, case_from_dict, load_case
 from fvrans.case.build import build_case_mesh
-from fvrans.checkpoint import Checkpoint, read_checkpoint, write_checkpoint
+from fvrans.checkpoint import CHECKPOINT_NAME, Checkpoint, read_checkpoint, write_checkpoint
 from fvrans.errors import CaseError, DivergenceError
 from fvrans.fields import Fields
 from fvrans.jit import CompileWatch
@@ -55,6 +56,7 @@ from fvrans.physics.boundary import FlowBoundary, build_flow_boundary
 from fvrans.post import (
     WallData,
     all_wall_data,
+    atomic_write,
     build_summary,
     wall_columns,
     write_csv_atomic,
@@ -63,6 +65,7 @@ from fvrans.post import (
     write_vtu_atomic,
 )
 from fvrans.post.filenames import output_file
+from fvrans.post.outputs import output_set
 from fvrans.post.overlay import overlay_plots
 from fvrans.post.probes import build_stencil, line_points, write_probe_csv
 from fvrans.post.wall_resolution import WallResolution, wall_resolution
@@ -82,6 +85,11 @@ __all__ = [
 
 #: the per-cell feature table a run writes with ``[reference] write_features`` (CSV and numpy archive)
 FEATURES = "features"
+
+
+#: the resolved case (every override applied, every default filled in) that ``fvrans run``
+#: writes into a result folder; the "continue with" hint runs it
+RESOLVED_CASE = "case.toml"
 
 
 @dataclass(frozen=True)
@@ -237,35 +245,55 @@ class Result:
         d.update(self.extra.get("cell_data", {}))
         return d
 
-    def write(self, out_dir: str | Path) -> Path:
-        """Write summary.json, fields.vtu, wall/<patch>.csv, residuals.csv and profiles/<probe>.csv
-        into ``out_dir`` (each file atomically)."""
+    def write(self, out_dir: str | Path, checkpoint: bool = False, resolved_case: bool = False) -> Path:
+        """Write summary.json, fields.vtu, wall/<patch>.csv, residuals.csv, profiles/<probe>.csv
+        (and checkpoint.npz when ``checkpoint``, case.toml, the resolved case, when
+        ``resolved_case``) into ``out_dir`` as one set: written aside and put in place together,
+        replacing the previous set of fvrans outputs there (its files the new set lacks are
+        removed; :func:`fvrans.post.outputs.output_set`), so a reader never sees files of two runs."""
         out = Path(out_dir)
-        out.mkdir(parents=True, exist_ok=True)
         walls = self.walls()
-        # names from the mesh and the case become file names only through output_file
-        wall_files = {n: output_file(out, n, ".csv", subfolder="wall", what=f"wall patch {n!r}") for n in walls}
-        probe_files = {n: output_file(out, n, ".csv", subfolder="profiles", what=f"probe {n!r}")
-                       for n in self.case.line_probes}
-        if self.case.output.write_fields:
-            write_vtu_atomic(out / "fields.vtu", self.mesh, self.cell_data(), within=out)
-        if walls:
-            (out / "wall").mkdir(exist_ok=True)
-        for name, w in walls.items():
-            header, cols = wall_columns(w)
-            write_csv_atomic(wall_files[name], header, cols, within=out)
-        write_residuals_csv(out / "residuals.csv", self.history, within=out)
-        if self.monitor is not None and self.monitor.rows:
-            header, cols = self.monitor.columns()
-            write_csv_atomic(out / MONITOR_CSV, header, cols, within=out)
-        if probe_files:
-            (out / "profiles").mkdir(exist_ok=True)
-        for name, path in probe_files.items():
-            write_probe_csv(path, self.probe(name), within=out)
-        if self.case.reference.write_features:
-            write_feature_table(self.features(), out, FEATURES)
-        write_json_atomic(out / "summary.json", self.summary(), within=out)
+        summary = self.summary()
+        case_text = self.case.to_toml() if resolved_case else None
+        features = self.features() if self.case.reference.write_features else None
+        n = self.iterations if self.fields_iteration is None else self.fields_iteration
+        with output_set(out, iteration=n) as stage:
+            # names from the mesh and the case become file names only through output_file
+            if self.case.output.write_fields:
+                write_vtu_atomic(stage / "fields.vtu", self.mesh, self.cell_data(), within=stage)
+            if walls:
+                (stage / "wall").mkdir()
+            for name, w in walls.items():
+                header, cols = wall_columns(w)
+                path = output_file(stage, name, ".csv", subfolder="wall", what=f"wall patch {name!r}")
+                write_csv_atomic(path, header, cols, within=stage)
+            write_residuals_csv(stage / "residuals.csv", self._finite_history(), within=stage)
+            if self.monitor is not None and self.monitor.rows:
+                header, cols = self.monitor.columns()
+                write_csv_atomic(stage / MONITOR_CSV, header, cols, within=stage)
+            if self.case.line_probes:
+                (stage / "profiles").mkdir()
+            for name in self.case.line_probes:
+                path = output_file(stage, name, ".csv", subfolder="profiles", what=f"probe {name!r}")
+                write_probe_csv(path, self.probe(name), within=stage)
+            if checkpoint:
+                self.write_checkpoint(stage / CHECKPOINT_NAME)
+            if case_text is not None:
+                atomic_write(stage / RESOLVED_CASE, lambda f: f.write(case_text), within=stage)
+            if features is not None:
+                write_feature_table(features, stage, FEATURES)
+            write_json_atomic(stage / "summary.json", summary, within=stage)
         return out
+
+    def _finite_history(self) -> Any:
+        """The residual history without a diverged last iteration whose residuals are not finite
+        (the outputs hold the last good state; the message says how the run ended)."""
+        h = self.history
+        rows = h.rows
+        if self.diverged and rows and not np.all(np.isfinite(np.asarray(rows[-1], dtype=float))):
+            n = len(rows) - 1
+            return SimpleNamespace(names=h.names, rows=rows[:n], seconds=h.seconds[:n])
+        return h
 
     # -- reference data -----------------------------------------------------------------------
     @property
@@ -555,6 +583,18 @@ def _gradients(solver: SimpleSolver, grad_p: np.ndarray) -> dict[str, np.ndarray
     return {"u": gu[:, 0, :].copy(), "v": gu[:, 1, :].copy(), "p": np.array(grad_p)}
 
 
+def _last_good_gradient(solver: SimpleSolver, grad_p: np.ndarray) -> np.ndarray:
+    """The pressure gradient of the last good state after a divergence. The boundary pressures it
+    needs are extrapolated with a gradient: the diverged iteration's may be non-finite (a
+    divergence at iteration 1 leaves the initial state), so start from zero where it is not
+    finite and refine twice; a gradient that stays non-finite is zero (a uniform start)."""
+    p = solver.fields.pressure
+    g = np.where(np.isfinite(grad_p), grad_p, 0.0)
+    for _ in range(2):
+        g = np.array(solver.grad_pressure(p, solver._pressure_on_boundary(g)))
+    return g if np.all(np.isfinite(g)) else np.zeros_like(g)
+
+
 def build_monitor(problem: Problem, initial: Result | Fields | None = None) -> Monitor:
     """The monitor of a prepared case (its wall forces, point probes, derived scalars and the
     velocity change; :mod:`fvrans.monitor`); pass it to :func:`solve` to read it while the run goes."""
@@ -679,8 +719,8 @@ def solve(
         log.error("%s: %s", c.label, message)
     seconds = time.perf_counter() - t0
     grad_p = solver.grad_p
-    if diverged:  # the gradient of the last good pressure
-        grad_p = solver.grad_pressure(solver.fields.pressure, solver._pressure_on_boundary(grad_p))
+    if diverged:
+        grad_p = _last_good_gradient(solver, grad_p)
     interrupted = stopped and not converged
     if interrupted:
         message = (f"interrupted at iteration {solver.iteration} before converging; continue with "

@@ -1,6 +1,6 @@
 """Progress of a run on the terminal: a live bar (rich) on a terminal, a plain line every few
-seconds otherwise (log files, CI), nothing with ``quiet``; and :class:`StopRequest`, which turns
-SIGINT / SIGTERM into a stop at the end of the current iteration.
+seconds otherwise (log files, CI), nothing with ``quiet``. (:class:`StopRequest`, which turns
+SIGINT / SIGTERM into a stop at the end of the current iteration, lives in :mod:`fvrans.stop`.)
 
 The time left is estimated from the recent decay of the largest normalised imbalance: with the
 least-squares slope s of log10(residual) per iteration over the last iterations, the run needs
@@ -13,12 +13,13 @@ from __future__ import annotations
 import io
 import logging
 import math
-import signal
 import sys
 import time
 from collections import deque
 from collections.abc import Callable, Sequence
 from typing import IO, Any
+
+from fvrans.stop import StopRequest
 
 log = logging.getLogger(__name__)
 
@@ -257,39 +258,6 @@ class RunProgress:
             self._bar = None
         elif not self.quiet and self.last is not None and self.last[0] != self.last_printed:
             self._write_line(*self.last)
-
-class StopRequest:
-    """SIGINT (Ctrl-C) and SIGTERM ask the run to stop at the end of the current iteration; a
-    second signal aborts at once (KeyboardInterrupt, nothing more is written)."""
-
-    SIGNALS = (signal.SIGINT, signal.SIGTERM)
-
-    def __init__(self) -> None:
-        self.signal_name: str | None = None
-        self._old: dict[int, Any] = {}
-
-    def install(self) -> None:
-        try:
-            for sig in self.SIGNALS:
-                self._old[sig] = signal.signal(sig, self._handler)
-        except ValueError:  # not the main thread: keep the default handlers
-            self.restore()
-
-    def restore(self) -> None:
-        for sig, old in self._old.items():
-            signal.signal(sig, old)
-        self._old = {}
-
-    def _handler(self, signum: int, frame: Any) -> None:
-        if self.signal_name is not None:
-            self.restore()
-            raise KeyboardInterrupt
-        self.signal_name = signal.Signals(signum).name
-        log.warning("%s received: stopping after this iteration and saving the state (send it again to abort "
-                    "without saving)", self.signal_name)
-
-    def __call__(self, it: int, res: list[float]) -> bool:
-        return self.signal_name is not None
 
 
 __all__ = ["Estimate", "RunProgress", "StopRequest", "fit_line", "format_seconds", "terminal_width"]

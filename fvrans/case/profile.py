@@ -21,9 +21,12 @@ import numpy as np
 
 from fvrans.case.schema import DEFAULT_PROFILE_COLUMNS, BoundarySpec
 from fvrans.errors import CaseError
+from fvrans.files import input_file, read_text
 
 #: how far (as a fraction of the table's coordinate span) a point may lie beyond the table
 RANGE_TOLERANCE = 1e-3
+#: largest inlet profile file read (a profile of a million stations is about 50 MiB)
+MAX_PROFILE_BYTES = 64 * 2**20
 #: mesh axes a profile can run along; the coordinate column carries the axis name
 AXES = ("x", "y")
 #: the column of nu_t / nu in fvrans's outputs (probe files, fields.vtu); never an inlet input
@@ -55,19 +58,16 @@ def read_profile_table(path: str | Path) -> ProfileTable:
     >>> t.names, t.columns["u"].tolist()
     (('y', 'u', 'v'), [0.0, 2.5])
     """
-    p = Path(path)
+    p = input_file(path, "inlet profile file", max_bytes=MAX_PROFILE_BYTES,
+                   fail=lambda msg: ProfileFileError(f"{path}: {msg}"))
     st = p.stat()
     return _read_cached(str(p), st.st_mtime_ns, st.st_size)
 
 
 @functools.lru_cache(maxsize=32)
 def _read_cached(path: str, mtime_ns: int, size: int) -> ProfileTable:
-    try:
-        text = Path(path).read_text(encoding="utf-8-sig")
-    except UnicodeDecodeError:
-        raise ProfileFileError(f"{path} is not UTF-8 text; save it as a plain CSV file") from None
-    except OSError as exc:
-        raise ProfileFileError(f"{path} cannot be read ({exc})") from None
+    text = read_text(path, "inlet profile file", max_bytes=MAX_PROFILE_BYTES,
+                     fail=lambda msg: ProfileFileError(f"{path}: {msg}"))
     names: tuple[str, ...] | None = None
     rows: list[list[float]] = []
     for lineno, line in enumerate(text.splitlines(), 1):
@@ -86,24 +86,23 @@ def _read_cached(path: str, mtime_ns: int, size: int) -> ProfileTable:
             else:
                 raise ProfileFileError(f"{path} line {lineno}: the first line holds numbers; the file "
                                        "needs a header line naming the columns, e.g. y, u, v")
-            dup = sorted({n for n in names if names.count(n) > 1})
+            dup = [j + 1 for j, n in enumerate(names) if names.count(n) > 1]
             if dup:
-                raise ProfileFileError(f"{path} line {lineno}: column name(s) {dup} appear twice in "
-                                       "the header")
+                raise ProfileFileError(f"{path} line {lineno}: the header names columns {dup} alike; give "
+                                       "each column its own name")
             continue
         if len(cells) != len(names):
             raise ProfileFileError(f"{path} line {lineno}: {len(cells)} value(s) but the header names "
                                    f"{len(names)} columns")
         row = []
-        for name, c in zip(names, cells):
+        # messages name the file, line and column number only: no file content goes into them
+        for j, c in enumerate(cells, 1):
             try:
                 x = float(c)
             except ValueError:
-                raise ProfileFileError(
-                    f"{path} line {lineno}, column {name!r}: {c!r} is not a number"
-                ) from None
+                raise ProfileFileError(f"{path} line {lineno}, column {j}: not a number") from None
             if not math.isfinite(x):
-                raise ProfileFileError(f"{path} line {lineno}, column {name!r}: {c!r} is not a finite number")
+                raise ProfileFileError(f"{path} line {lineno}, column {j}: not a finite number")
             row.append(x)
         rows.append(row)
     if names is None:

@@ -21,6 +21,7 @@ import numpy as np
 
 from fvrans.case import schema as S
 from fvrans.errors import CaseError
+from fvrans.files import MAX_NESTING, check_path_text, input_file, nesting_depth
 
 if sys.version_info >= (3, 11):
     import tomllib
@@ -76,6 +77,15 @@ UNIT: Rule = (lambda v: 0 < v <= 1, "in (0, 1]")
 OPEN_UNIT: Rule = (lambda v: 0 < v < 1, "in (0, 1)")
 ABOVE_ONE: Rule = (lambda v: v > 1, "> 1")
 AT_LEAST_ONE: Rule = (lambda v: v >= 1, ">= 1")
+#: largest magnitude of any number of a case: beyond it squares and products overflow floats
+MAX_MAGNITUDE = 1e30
+#: a positive physical property or reference value: between 1e-30 and 1e30 (so that products
+#: such as 1/2 rho U^2 L stay normal floats)
+PHYSICAL: Rule = (lambda v: 1e-30 <= v <= 1e30, "> 0 (between 1e-30 and 1e30)")
+#: largest magnitude of an integer of a case (iteration counts and the like)
+MAX_INTEGER = 10**15
+#: most sample points of a line probe
+MAX_PROBE_POINTS = 100_000
 
 
 # ------------------------------------------------------------------------------------------
@@ -242,9 +252,16 @@ def check_number(
             except ValueError:
                 pass
         raise fail(f"must be {need}, got {describe(v)}{extra}")
-    x = float(v)
+    try:
+        x = float(v)
+    except OverflowError:  # an integer beyond the float range
+        x = math.inf
     if not math.isfinite(x):
-        raise fail(f"must be a finite number, got {x!r}")
+        got = repr(float(v)) if isinstance(v, float) else f"an integer of {len(str(int(v)))} digits"
+        raise fail(f"must be a finite number, got {got}")
+    if abs(x) > MAX_MAGNITUDE:
+        raise fail(f"must be at most {MAX_MAGNITUDE:g} in magnitude, got {x!r}; give the value in units that keep "
+                   "it within that range")
     if rule and not rule[0](x):
         what = f" ({meaning})" if meaning else ""
         raise fail(f"must be {rule[1]}{what}, got {x!r}; give a value {rule[1]}")
@@ -264,6 +281,8 @@ def check_integer(
         n = int(float(v))
     else:
         raise fail(f"must be {need}, got {describe(v)}")
+    if abs(n) > MAX_INTEGER:
+        raise fail(f"must be {need} of at most {MAX_INTEGER:.0e} in magnitude, got {describe(v)[:40]}")
     if rule and not rule[0](n):
         what = f" ({meaning})" if meaning else ""
         raise fail(f"must be {rule[1]}{what}, got {n}; give an integer {rule[1]}")
@@ -287,19 +306,26 @@ def check_vector(v: Any, fail: Callable[[str], CaseError]) -> tuple[float, float
     return (out[0], out[1])
 
 
-def _check_path(ctx: _Ctx, path: tuple[str, ...], v: Any, what: str) -> Path:
+def _check_path(ctx: _Ctx, path: tuple[str, ...], v: Any, what: str, max_bytes: int | None = None) -> Path:
+    """An existing regular file (not a pipe or device; no NUL, overlong name or link loop)."""
     if isinstance(v, os.PathLike):
         v = os.fspath(v)
     if not isinstance(v, str) or not v.strip():
         raise ctx.error(path, f"must be a file path (a quoted string), got {describe(v)}")
-    p = Path(v).expanduser()
-    full = (p if p.is_absolute() else ctx.base / p).resolve()
-    if not full.exists():
+
+    def fail(msg: str) -> CaseError:
+        return ctx.error(path, msg)
+
+    p = check_path_text(v, fail, what).expanduser()
+    full = p if p.is_absolute() else ctx.base / p
+    try:
+        full = full.resolve()
+    except (OSError, RuntimeError):  # a symbolic-link loop: input_file names it
+        pass
+    if not full.exists() and not full.is_symlink():
         rel = "" if p.is_absolute() else f" (relative paths start from {ctx.base})"
         raise ctx.error(path, f"the {what} {full} does not exist{rel}; correct the path")
-    if full.is_dir():
-        raise ctx.error(path, f"{full} is a directory; give the {what} itself")
-    return full
+    return input_file(full, what, max_bytes=max_bytes, fail=fail)
 
 
 # ------------------------------------------------------------------------------------------
@@ -315,6 +341,9 @@ def case_from_dict(data: Mapping[str, Any], source: str | Path | None = None) ->
     src = Path(source) if source is not None else None
     ctx = _Ctx(str(src) if src is not None else "<in memory>",
                src.absolute().parent if src is not None else Path.cwd())
+    if nesting_depth(data) > MAX_NESTING:
+        raise ctx.error((), f"tables and lists are nested more than {MAX_NESTING} deep; a case nests a few levels "
+                        "(e.g. [boundary.inlet] with profile_columns = { ... })")
     top = _Table(ctx, (), data, TOP_KEYS, "the top level of a case")
     title = top.string("title", "")
     description = top.string("description", "")
@@ -326,9 +355,9 @@ def case_from_dict(data: Mapping[str, Any], source: str | Path | None = None) ->
         "add a [fluid] table with density = ... and viscosity = ... (dynamic viscosity)")),
         TABLE_KEYS["fluid"], "[fluid]")
     fluid = S.Fluid(
-        density=fluid_t.number("density", rule=POSITIVE, meaning="the fluid density",
+        density=fluid_t.number("density", rule=PHYSICAL, meaning="the fluid density",
                                hint="add density = <rho>, e.g. density = 1.0"),
-        viscosity=fluid_t.number("viscosity", rule=POSITIVE, meaning="the dynamic viscosity mu = rho nu",
+        viscosity=fluid_t.number("viscosity", rule=PHYSICAL, meaning="the dynamic viscosity mu = rho nu",
                                  hint="add viscosity = <dynamic viscosity mu>, e.g. viscosity = 0.01"),
     )
     model_t = _Table(ctx, ("model",), top.table("model", {}), TABLE_KEYS["model"], "[model]")
@@ -456,13 +485,22 @@ def _reference_path(ctx: _Ctx, v: Any) -> Path:
     if not isinstance(v, str) or not v.strip():
         raise ctx.error(("reference", "data"), "must be the path of a CSV point cloud, a mesh file with data or a "
                         f"result folder (a quoted string), got {describe(v)}")
-    p = Path(v).expanduser()
-    full = (p if p.is_absolute() else ctx.base / p).resolve()
-    if not full.exists():
+    def fail(msg: str) -> CaseError:
+        return ctx.error(("reference", "data"), msg)
+
+    p = check_path_text(v, fail, "reference data").expanduser()
+    full = p if p.is_absolute() else ctx.base / p
+    try:
+        full = full.resolve()
+    except (OSError, RuntimeError):  # a symbolic-link loop: input_file names it
+        pass
+    if not full.exists() and not full.is_symlink():
         rel = "" if p.is_absolute() else f" (relative paths start from {ctx.base})"
-        raise ctx.error(("reference", "data"), f"{full} does not exist{rel}; give a CSV point cloud, a mesh file "
-                        "with point or cell data, or the output folder of a run")
-    return full
+        raise fail(f"{full} does not exist{rel}; give a CSV point cloud, a mesh file with point or cell data, or "
+                   "the output folder of a run")
+    if full.is_dir():
+        return full  # a result folder (its fields.vtu is checked when read)
+    return input_file(full, "reference data", fail=fail)
 
 
 def _four_numbers(t: _Table, key: str, form: str) -> tuple[float, float, float, float]:
@@ -701,7 +739,9 @@ def _inlet(ctx: _Ctx, t: _Table) -> S.BoundarySpec:
             velocity = t.vector("velocity")
         ratio = t.number("nu_tilde_ratio", 3.0, NON_NEGATIVE, "the inflow nu_tilde / nu")
         return S.BoundarySpec("inflow-velocity", velocity=velocity, nu_tilde_ratio=ratio, **_sst_inflow(t))
-    profile = _check_path(ctx, t.path + ("profile",), t.data["profile"], "inlet profile file")
+    from fvrans.case.profile import MAX_PROFILE_BYTES
+
+    profile = _check_path(ctx, t.path + ("profile",), t.data["profile"], "inlet profile file", MAX_PROFILE_BYTES)
     given = t.table("profile_columns", {})
     _Table(ctx, t.path + ("profile_columns",), given, S.PROFILE_COLUMN_KEYS, "profile_columns")
     columns = resolve_profile(profile, given, lambda key, m: ctx.error(t.path + key, m),
@@ -773,9 +813,9 @@ def _output(ctx: _Ctx, data: Any, boundaries: Mapping[str, S.BoundarySpec]) -> S
             names.append(n)
     return S.OutputSettings(
         wall_patches=tuple(names or walls),
-        reference_velocity=t.number("reference_velocity", 1.0, POSITIVE, "the velocity U in 1/2 rho U^2"),
+        reference_velocity=t.number("reference_velocity", 1.0, PHYSICAL, "the velocity U in 1/2 rho U^2"),
         reference_pressure=t.number("reference_pressure", 0.0),
-        reference_length=t.number("reference_length", 1.0, POSITIVE, "the length of force coefficients"),
+        reference_length=t.number("reference_length", 1.0, PHYSICAL, "the length of force coefficients"),
         write_fields=t.boolean("write_fields", True),
         map_window=_window(t),
     )
@@ -822,7 +862,8 @@ def _probes(ctx: _Ctx, data: Any) -> dict[str, S.Probe]:
         if start == end:
             raise t.fail("end", f"equals start {list(start)}; a line probe needs two different points "
                          "(a point probe takes at = [x, y])")
-        points = t.integer("points", 101, (lambda v: v >= 2, ">= 2"), "the number of sample points")
+        points = t.integer("points", 101, (lambda v: 2 <= v <= MAX_PROBE_POINTS, f">= 2 and <= {MAX_PROBE_POINTS}"),
+                           "the number of sample points")
         out[name] = S.ProbeLine(start=start, end=end, points=points)
     return out
 

@@ -29,6 +29,7 @@ from fvrans.mesh.shapes import bump_channel, planar_diffuser
 
 __all__ = [
     "LEVELS",
+    "estimate_cells",
     "backward_facing_step",
     "bump_channel",
     "cavity",
@@ -595,3 +596,59 @@ def step_mixed(
         + ")"
     )
     return asm.to_mesh(src)
+
+
+# ------------------------------------------------------------------------------------------
+# sizes before building
+# ------------------------------------------------------------------------------------------
+def _tri(p: dict) -> float:
+    return 2.0 if p.get("triangles") else 1.0
+
+
+def _step_mixed_cells(p: dict) -> float:
+    """Layer quads along the walls plus core triangles of size ``core_size`` (an over-estimate of
+    about 1.5 at the defaults)."""
+    length = float(p["x_out"]) - float(p["x_in"])
+    core = float(p["core_size"])
+    along = int(p["nx_up"]) + int(p["nx_down"]) + length / core
+    return int(p["n_layers"]) * (along + 40) + 4.0 * length * 3.0 / core**2 + 20.0 * along
+
+
+#: the cell count of each generator from its (bound) keyword arguments, before anything is built
+_CELLS = {
+    "channel": lambda p: float(p["nx"]) * float(p["ny"]) * _tri(p),
+    "cavity": lambda p: float(p["n"]) ** 2 * _tri(p),
+    "flat_plate": lambda p: (float(p["nx_plate"]) + float(p["nx_ahead"])) * float(p["ny"]) * _tri(p),
+    "flat_plate_family": lambda p: 272 * 192 * _tri(p),
+    "backward_facing_step": lambda p: (float(p["nx_up"]) * float(p["ny_upper"])
+                                       + float(p["nx_down"]) * (float(p["ny_upper"]) + float(p["ny_lower"]))) * _tri(p),
+    "step_family": lambda p: 2 * 110_592 * _tri(p),
+    "step_mixed": _step_mixed_cells,
+    "bump_channel": lambda p: (float(p["nx_up"]) + float(p["nx_bump"]) + float(p["nx_down"])) * float(p["ny"])
+    * _tri(p),
+    "planar_diffuser": lambda p: (float(p["nx_in"]) + float(p["nx_div"]) + float(p["nx_out"])) * float(p["ny"])
+    * _tri(p),
+}
+
+
+def estimate_cells(name: str, **params) -> float | None:
+    """About how many cells generator ``name`` would build with ``params`` (its defaults filled
+    in), or None when unknown; cheap, so that an impossible size is refused before it is built.
+
+    >>> estimate_cells("cavity", n=1000), estimate_cells("channel", length=1, height=1, nx=10, ny=4, triangles=True)
+    (1000000.0, 80.0)
+    """
+    func, rule = globals().get(name), _CELLS.get(name)
+    if func is None or rule is None:
+        return None
+    import inspect
+
+    try:
+        bound = inspect.signature(func).bind(**params)
+    except TypeError:
+        return None
+    bound.apply_defaults()
+    try:
+        return float(rule(dict(bound.arguments)))
+    except (TypeError, ValueError, KeyError, OverflowError, ZeroDivisionError):
+        return None

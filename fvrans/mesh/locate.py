@@ -13,6 +13,7 @@ from __future__ import annotations
 import numpy as np
 from scipy.spatial import cKDTree
 
+from fvrans.errors import CaseError
 from fvrans.mesh.mesh import Mesh
 
 #: a point this close to a cell's edges, relative to the cell's size, lies in that cell (see
@@ -41,8 +42,18 @@ def _distance_to_polygon(px: float, py: float, poly: np.ndarray) -> float:
     return float(np.min(np.hypot(d[:, 0], d[:, 1])))
 
 
+#: most points of a sampled line
+MAX_LINE_POINTS = 100_000
+
+
 def line_points(start, end, n: int) -> np.ndarray:
-    """``n`` evenly spaced points from ``start`` to ``end`` (both included), shape (n, 2)."""
+    """``n`` evenly spaced points from ``start`` to ``end`` (both included), shape (n, 2);
+    ``n`` from 2 to :data:`MAX_LINE_POINTS`, the ends finite (CaseError otherwise)."""
+    if isinstance(n, bool) or not isinstance(n, (int, np.integer)) or not 2 <= n <= MAX_LINE_POINTS:
+        raise CaseError(f"a line of sample points needs an integer count from 2 to {MAX_LINE_POINTS}, got {n!r}")
+    a, b = np.asarray(start, dtype=float), np.asarray(end, dtype=float)
+    if a.shape != (2,) or b.shape != (2,) or not (np.all(np.isfinite(a)) and np.all(np.isfinite(b))):
+        raise CaseError(f"a line of sample points needs finite ends (x, y), got {start!r} and {end!r}")
     t = np.linspace(0.0, 1.0, int(n))[:, None]
     return (1.0 - t) * np.asarray(start, dtype=float) + t * np.asarray(end, dtype=float)
 

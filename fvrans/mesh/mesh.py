@@ -18,6 +18,9 @@ from fvrans.errors import MeshError
 
 log = logging.getLogger(__name__)
 
+#: largest coordinate magnitude of a point used by a cell (beyond it areas overflow floats)
+MAX_COORDINATE = 1e30
+
 
 @dataclass(frozen=True)
 class Patch:
@@ -183,7 +186,7 @@ class Mesh:
             raise MeshError(f"{self.source}: renumber the cells before joining periodic patches")
         cells = [self.cell(c) for c in order]
         boundary = {p.name: self.face_points[p.start : p.stop] for p in self.patches}
-        return build_mesh(self.points, cells, boundary, source=self.source, quiet=True)
+        return build_mesh(self.points, cells, boundary, source=self.source, quiet=True, check_overlaps=False)
 
 
 # ----------------------------------------------------------------------------------------
@@ -236,12 +239,15 @@ def build_mesh(
     source: str = "<in memory>",
     quiet: bool = False,
     unnamed: Callable[[np.ndarray, np.ndarray], Mapping[str, np.ndarray]] | None = None,
+    check_overlaps: bool = True,
 ) -> Mesh:
     """Build faces, owners, neighbours and patches; check and repair the input (see Mesh).
 
     ``unnamed(points, edges)``, if given, is asked for the boundary edges (point-index pairs) that
     no patch of ``boundary`` names: it returns new patch names with boolean masks over those edges
-    (see :func:`fvrans.mesh.io.unnamed_edge_rule`); edges left over are an error as without it."""
+    (see :func:`fvrans.mesh.io.unnamed_edge_rule`); edges left over are an error as without it.
+    ``check_overlaps``: also refuse self-intersecting and overlapping cells
+    (:func:`fvrans.mesh.folds.check_folds`; skipped when the points are those of a checked mesh)."""
     notes: list[str] = []
     pts = np.asarray(points, dtype=np.float64)
     if pts.ndim != 2 or pts.shape[1] not in (2, 3):
@@ -275,11 +281,22 @@ def build_mesh(
             raise MeshError(f"{source}: patch {name!r} refers to a point index outside 0..{len(pts) - 1}")
         bnd_in[str(name)] = e
 
-    # -- merge duplicate points (exact, after rounding to a tolerance of the bounding box) --
-    span = float(np.ptp(pts, axis=0).max()) or 1.0
+    # -- merge duplicate points (exact, after rounding to a tolerance of the bounding box of the
+    # points the cells use: an unused far-away point neither sets the tolerance nor merges) --
+    in_cells = np.zeros(len(pts), dtype=bool)
+    in_cells[flat] = True
+    upts = pts[in_cells]
+    if np.abs(upts).max() > MAX_COORDINATE:
+        i = int(np.flatnonzero(in_cells & (np.abs(pts) > MAX_COORDINATE).any(axis=1))[0])
+        raise MeshError(f"{source}: point {i} at {_fmt_pt(pts, i)} lies beyond {MAX_COORDINATE:g}; give the "
+                        "coordinates in units that keep them within that range")
+    span = float(np.ptp(upts, axis=0).max()) or 1.0
     tol = 1e-12 * span
     # relative to the lower-left corner, so far-from-origin coordinates cannot overflow int64
-    keys = np.round((pts - pts.min(axis=0)) / tol).astype(np.int64)
+    keys = np.empty((len(pts), 2), dtype=np.int64)
+    keys[in_cells] = np.round((upts - upts.min(axis=0)) / tol).astype(np.int64)
+    keys[~in_cells, 0] = -1 - np.arange(int((~in_cells).sum()))  # unused points: never merged
+    keys[~in_cells, 1] = 0
     _, first, inverse = np.unique(keys, axis=0, return_index=True, return_inverse=True)
     inverse = inverse.ravel()
     if len(first) < len(pts):
@@ -448,6 +465,9 @@ def build_mesh(
             loc = loc[assigned[loc] < 0]
             if not len(loc):
                 continue
+            if not str(name).strip():
+                raise MeshError(f"{source}: the unnamed boundary edges would go into a patch with the empty name "
+                                f"{str(name)!r}; patch names become case keys and file names — name the patch")
             if name in bnd_in:
                 raise MeshError(f"{source}: the unnamed boundary edges would go into patch {name!r}, which the "
                                 "mesh file already names; choose another patch name for them")
@@ -472,7 +492,7 @@ def build_mesh(
     face_owner = np.ascontiguousarray(np.concatenate(owners).astype(np.int64))
     face_neighbour = np.full(len(face_owner), -1, dtype=np.int64)
     face_neighbour[:n_int] = neigh_i
-    return Mesh(
+    mesh = Mesh(
         points=pts,
         cell_offsets=np.ascontiguousarray(offsets.astype(np.int64)),
         cell_points=np.ascontiguousarray(flat.astype(np.int64)),
@@ -484,3 +504,8 @@ def build_mesh(
         source=source,
         notes=tuple(notes),
     )
+    if check_overlaps:
+        from fvrans.mesh.folds import check_folds
+
+        check_folds(mesh)
+    return mesh

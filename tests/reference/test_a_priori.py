@@ -24,6 +24,7 @@ from reference_runs import sa_run
 import fvrans.api as fa
 from fvrans.cli import main
 from fvrans.models.spalart_allmaras import eddy_viscosity
+from fvrans.post.outputs import listed_outputs
 
 ROOT = Path(__file__).resolve().parents[2]
 
@@ -84,7 +85,7 @@ def test_bundled_demo_on_invented_data(tmp_path):
     stressed = table["k"] > 0  # the invented data have no stress outside the boundary layer: b undefined there
     assert len(table["x"]) == s["n_cells"] and stressed.sum() > 1000
     assert np.isfinite(table["b_xy"][stressed]).all() and np.isnan(table["b_xy"][~stressed]).all()
-    files = json.loads((out / "outputs.json").read_text())["files"]
+    files = listed_outputs(out)["files"]
     assert "features.csv" in files and "features.npz" in files
 
 

@@ -208,3 +208,13 @@ def test_laminar_run_compared_and_features_written(tmp_path):
     np.testing.assert_allclose(table["R_xy"], ref.stress[:, 1])
     header = (tmp_path / "out" / "features.csv").read_text().splitlines()[0].split(",")
     assert header[:6] == ["x", "y", "wall_distance", "time_scale", "lambda_1", "lambda_2"]
+
+
+def test_reference_data_must_be_a_regular_file(tmp_path):
+    import os
+
+    if not hasattr(os, "mkfifo"):
+        pytest.skip("no named pipes here")
+    os.mkfifo(tmp_path / "pipe.csv")
+    with pytest.raises(CaseError, match=r"reference.data: .*pipe.csv is a named pipe"):
+        case(reference={"data": str(tmp_path / "pipe.csv")})
