@@ -1,8 +1,8 @@
 """Progress of a run on the terminal: a live bar (rich) on a terminal, a plain line every few
-seconds otherwise (log files, CI), nothing with ``quiet``; and :class:`StopRequest`, which turns
-SIGINT / SIGTERM into a stop at the end of the current iteration.
+seconds otherwise (log files, CI), nothing with ``quiet``. (:class:`StopRequest`, which turns
+SIGINT / SIGTERM into a stop at the end of the current iteration, lives in :mod:`fvrans.stop`.)
 
-The time left is estimated from the recent decay of the largest scaled residual: with the
+The time left is estimated from the recent decay of the largest normalised imbalance: with the
 least-squares slope s of log10(residual) per iteration over the last iterations, the run needs
 about (log10(tolerance) - log10(residual)) / s more iterations (when s < 0), never more than the
 iteration limit allows; times the mean seconds per iteration of the recent iterations.
@@ -10,14 +10,16 @@ iteration limit allows; times the mean seconds per iteration of the recent itera
 
 from __future__ import annotations
 
+import io
 import logging
 import math
-import signal
 import sys
 import time
 from collections import deque
 from collections.abc import Callable, Sequence
 from typing import IO, Any
+
+from fvrans.stop import StopRequest
 
 log = logging.getLogger(__name__)
 
@@ -85,14 +87,81 @@ class Estimate:
         return f"at most {when} left (iteration limit)" if at_limit else f"about {when} left"
 
 
+def fit_line(
+    iteration: int, total: int, names: Sequence[str], residuals: Sequence[float], rate: float | None,
+    eta: str, width: int, watched: str = "",
+) -> str:
+    """The progress text, fitted into ``width`` characters by dropping fields by priority.
+
+    In order of what goes first: the seconds per iteration, then the long words (``iteration``
+    becomes ``it``, residual names are cut to four letters, ``about``/``at most`` become ``~``/``<=``),
+    then the monitored quantity ``watched`` (e.g. ``"plate.Cd 0.0028712"``), then the time left,
+    then every residual but the largest; the iteration count stays.
+
+    >>> fit_line(12, 500, ["u", "continuity"], [1e-3, 2e-4], 0.01, "about 5 s left", 100)
+    'iteration     12/500  u 1.00e-03  continuity 2.00e-04  0.0100 s/iteration  about 5 s left'
+    >>> fit_line(12, 500, ["u", "continuity"], [1e-3, 2e-4], 0.01, "about 5 s left", 40)
+    'it 12/500  u 1.0e-03  cont 2.0e-04'
+    >>> fit_line(12, 500, ["u", "continuity"], [1e-3, 2e-4], 0.01, "about 5 s left", 80, "wall.Cd 0.01234")
+    'it 12/500  u 1.0e-03  cont 2.0e-04  ~5 s left  wall.Cd 0.01234'
+    """
+    width = max(int(width), 20)
+    count = f"{iteration:6d}/{total}"
+    full = "  ".join(f"{n} {r:8.2e}" for n, r in zip(names, residuals))
+    short = "  ".join(f"{n[:4]} {r:.1e}" for n, r in zip(names, residuals))
+    eta_short = eta.replace("about ", "~").replace("at most ", "<=").replace(" (iteration limit)", " (limit)")
+    vals = [float(r) for r in residuals]
+    worst = ""
+    if vals:
+        k = max(range(len(vals)), key=lambda i: vals[i] if math.isfinite(vals[i]) else math.inf)
+        worst = f"max {names[k][:4]} {vals[k]:.1e}"
+    rate_text = f"{rate:.4f} s/iteration" if rate is not None else ""
+    candidates = (
+        [f"iteration {count}", full, rate_text, eta, watched],
+        [f"iteration {count}", full, eta, watched],
+        [f"it {iteration}/{total}", short, eta_short, watched],
+        [f"iteration {count}", full, rate_text, eta],
+        [f"iteration {count}", full, eta],
+        [f"it {iteration}/{total}", short, eta_short],
+        [f"it {iteration}/{total}", short],
+        [f"it {iteration}/{total}", worst, eta_short],
+        [f"it {iteration}/{total}", worst],
+    )
+    for parts in candidates:
+        text = "  ".join(p for p in parts if p)
+        if len(text) <= width:
+            return text
+    return text[:width]
+
+
+def terminal_width(stream: IO[str] | None = None, default: int = 80) -> int:
+    """Columns of the terminal behind ``stream`` (``COLUMNS`` if set), else ``default``."""
+    import os
+    import shutil
+
+    env = os.environ.get("COLUMNS", "")
+    if env.isdigit() and int(env) > 0:
+        return int(env)
+    try:
+        fd = stream.fileno() if stream is not None else sys.stderr.fileno()
+        return os.get_terminal_size(fd).columns or default
+    except (AttributeError, OSError, ValueError, io.UnsupportedOperation):
+        return shutil.get_terminal_size((default, 24)).columns if stream is None else default
+
+
 class RunProgress:
     """Called after every outer iteration as ``progress(iteration, residuals)``.
 
     ``names``: residual names; ``first_iteration``: the iteration count a restarted run starts
     from; ``max_iterations``: iterations allowed to this run. ``stream``: default stderr. On a
-    terminal a rich progress bar (iteration, bar, residuals, time left); elsewhere a plain line
-    at the first iteration and then every ``every_s`` seconds; nothing when ``quiet``.
+    terminal a rich progress bar with the fields of :func:`fit_line`; elsewhere a plain line at
+    the first iteration and then every ``every_s`` seconds; nothing when ``quiet``. Every line
+    fits ``width`` columns (default: the terminal's, or 80 when the stream is not a terminal).
+    ``watch()``: a short text of a monitored quantity, shown where it fits (:func:`fit_line`).
     """
+
+    #: columns of the bar on a terminal
+    BAR_WIDTH = 16
 
     def __init__(
         self,
@@ -105,8 +174,11 @@ class RunProgress:
         every_s: float = 5.0,
         clock: Callable[[], float] = time.perf_counter,
         force_terminal: bool | None = None,
+        width: int | None = None,
+        watch: Callable[[], str] | None = None,
     ):
         self.names = list(names)
+        self.watch = watch
         self.quiet = quiet
         self.stream = stream if stream is not None else sys.stderr
         self.first = int(first_iteration)
@@ -116,6 +188,7 @@ class RunProgress:
         self.estimate = Estimate(tolerance, self.total)
         tty = bool(getattr(self.stream, "isatty", lambda: False)())
         self.tty = tty if force_terminal is None else force_terminal
+        self.width = int(width) if width is not None else (terminal_width(self.stream) if tty else 80)
         self.t_prev = clock()
         self.t_last_line = -math.inf
         self.last: tuple[int, list[float]] | None = None
@@ -127,30 +200,22 @@ class RunProgress:
 
     def _start_bar(self) -> None:
         from rich.console import Console
-        from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
+        from rich.progress import BarColumn, Progress, TextColumn
 
-        console = Console(file=self.stream, force_terminal=True, highlight=False)
+        console = Console(file=self.stream, force_terminal=True, highlight=False, width=self.width)
         self._bar = Progress(
-            TextColumn("iteration"), MofNCompleteColumn(), BarColumn(bar_width=24), TextColumn("{task.fields[res]}"),
-            TimeElapsedColumn(), TextColumn("{task.fields[eta]}"),
+            BarColumn(bar_width=self.BAR_WIDTH), TextColumn("{task.fields[text]}"),
             console=console, transient=False, refresh_per_second=4, redirect_stdout=False, redirect_stderr=False,
         )
-        self._task = self._bar.add_task("run", total=self.total, completed=self.first, res="", eta="")
+        self._task = self._bar.add_task("run", total=self.total, completed=self.first,
+                                        text=f"iteration {self.first}/{self.total}")
         self._bar.start()
 
-    def residual_text(self, residuals: Sequence[float]) -> str:
-        return "  ".join(f"{n} {r:8.2e}" for n, r in zip(self.names, residuals))
-
-    def line(self, iteration: int, residuals: Sequence[float]) -> str:
-        """The plain progress line."""
-        rate = self.estimate.seconds_per_iteration()
-        parts = [f"iteration {iteration:6d}/{self.total}", self.residual_text(residuals)]
-        if rate is not None:
-            parts.append(f"{rate:.4f} s/iteration")
-        eta = self.estimate.text(iteration)
-        if eta:
-            parts.append(eta)
-        return "  ".join(parts)
+    def line(self, iteration: int, residuals: Sequence[float], width: int | None = None) -> str:
+        """The progress text (see :func:`fit_line`) within ``width`` columns (default: the line's)."""
+        return fit_line(iteration, self.total, self.names, residuals, self.estimate.seconds_per_iteration(),
+                        self.estimate.text(iteration), self.width if width is None else width,
+                        self.watch() if self.watch is not None else "")
 
     def __call__(self, iteration: int, residuals: Sequence[float]) -> None:
         now = self.clock()
@@ -161,12 +226,22 @@ class RunProgress:
         if self.quiet:
             return
         if self._bar is not None:
-            self._bar.update(self._task, completed=iteration, res=self.residual_text(residuals),
-                             eta=self.estimate.text(iteration))
+            self._bar.update(self._task, completed=iteration,
+                             text=self.line(iteration, residuals, self.width - self.BAR_WIDTH - 2))
             return
         if iteration == self.first + 1 or now - self.t_last_line >= self.every_s:
             self._write_line(iteration, residuals)
             self.t_last_line = now
+
+    def note(self, text: str) -> None:
+        """A message between progress lines (above the bar on a terminal); nothing when quiet."""
+        if self.quiet:
+            return
+        if self._bar is not None:
+            self._bar.console.print(text, highlight=False, markup=False)
+        else:
+            self.stream.write(text + "\n")
+            self.stream.flush()
 
     def _write_line(self, iteration: int, residuals: Sequence[float]) -> None:
         self.stream.write(self.line(iteration, residuals) + "\n")
@@ -185,38 +260,4 @@ class RunProgress:
             self._write_line(*self.last)
 
 
-class StopRequest:
-    """SIGINT (Ctrl-C) and SIGTERM ask the run to stop at the end of the current iteration; a
-    second signal aborts at once (KeyboardInterrupt, nothing more is written)."""
-
-    SIGNALS = (signal.SIGINT, signal.SIGTERM)
-
-    def __init__(self) -> None:
-        self.signal_name: str | None = None
-        self._old: dict[int, Any] = {}
-
-    def install(self) -> None:
-        try:
-            for sig in self.SIGNALS:
-                self._old[sig] = signal.signal(sig, self._handler)
-        except ValueError:  # not the main thread: keep the default handlers
-            self.restore()
-
-    def restore(self) -> None:
-        for sig, old in self._old.items():
-            signal.signal(sig, old)
-        self._old = {}
-
-    def _handler(self, signum: int, frame: Any) -> None:
-        if self.signal_name is not None:
-            self.restore()
-            raise KeyboardInterrupt
-        self.signal_name = signal.Signals(signum).name
-        log.warning("%s received: stopping after this iteration and saving the state (send it again to abort "
-                    "without saving)", self.signal_name)
-
-    def __call__(self, it: int, res: list[float]) -> bool:
-        return self.signal_name is not None
-
-
-__all__ = ["Estimate", "RunProgress", "StopRequest", "format_seconds"]
+__all__ = ["Estimate", "RunProgress", "StopRequest", "fit_line", "format_seconds", "terminal_width"]

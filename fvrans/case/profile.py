@@ -21,11 +21,18 @@ import numpy as np
 
 from fvrans.case.schema import DEFAULT_PROFILE_COLUMNS, BoundarySpec
 from fvrans.errors import CaseError
+from fvrans.files import input_file, read_text
 
 #: how far (as a fraction of the table's coordinate span) a point may lie beyond the table
 RANGE_TOLERANCE = 1e-3
+#: largest inlet profile file read (a profile of a million stations is about 50 MiB)
+MAX_PROFILE_BYTES = 64 * 2**20
 #: mesh axes a profile can run along; the coordinate column carries the axis name
 AXES = ("x", "y")
+#: the column of nu_t / nu in fvrans's outputs (probe files, fields.vtu); never an inlet input
+OUTPUT_RATIO_COLUMN = "eddy_viscosity_ratio"
+#: column names that could mean nu_tilde / nu or nu_t / nu; refused unless named in profile_columns
+AMBIGUOUS_RATIO_COLUMNS = ("nut_ratio",)
 
 
 @dataclass(frozen=True, eq=False)
@@ -51,19 +58,16 @@ def read_profile_table(path: str | Path) -> ProfileTable:
     >>> t.names, t.columns["u"].tolist()
     (('y', 'u', 'v'), [0.0, 2.5])
     """
-    p = Path(path)
+    p = input_file(path, "inlet profile file", max_bytes=MAX_PROFILE_BYTES,
+                   fail=lambda msg: ProfileFileError(f"{path}: {msg}"))
     st = p.stat()
     return _read_cached(str(p), st.st_mtime_ns, st.st_size)
 
 
 @functools.lru_cache(maxsize=32)
 def _read_cached(path: str, mtime_ns: int, size: int) -> ProfileTable:
-    try:
-        text = Path(path).read_text(encoding="utf-8-sig")
-    except UnicodeDecodeError:
-        raise ProfileFileError(f"{path} is not UTF-8 text; save it as a plain CSV file") from None
-    except OSError as exc:
-        raise ProfileFileError(f"{path} cannot be read ({exc})") from None
+    text = read_text(path, "inlet profile file", max_bytes=MAX_PROFILE_BYTES,
+                     fail=lambda msg: ProfileFileError(f"{path}: {msg}"))
     names: tuple[str, ...] | None = None
     rows: list[list[float]] = []
     for lineno, line in enumerate(text.splitlines(), 1):
@@ -82,24 +86,23 @@ def _read_cached(path: str, mtime_ns: int, size: int) -> ProfileTable:
             else:
                 raise ProfileFileError(f"{path} line {lineno}: the first line holds numbers; the file "
                                        "needs a header line naming the columns, e.g. y, u, v")
-            dup = sorted({n for n in names if names.count(n) > 1})
+            dup = [j + 1 for j, n in enumerate(names) if names.count(n) > 1]
             if dup:
-                raise ProfileFileError(f"{path} line {lineno}: column name(s) {dup} appear twice in "
-                                       "the header")
+                raise ProfileFileError(f"{path} line {lineno}: the header names columns {dup} alike; give "
+                                       "each column its own name")
             continue
         if len(cells) != len(names):
             raise ProfileFileError(f"{path} line {lineno}: {len(cells)} value(s) but the header names "
                                    f"{len(names)} columns")
         row = []
-        for name, c in zip(names, cells):
+        # messages name the file, line and column number only: no file content goes into them
+        for j, c in enumerate(cells, 1):
             try:
                 x = float(c)
             except ValueError:
-                raise ProfileFileError(
-                    f"{path} line {lineno}, column {name!r}: {c!r} is not a number"
-                ) from None
+                raise ProfileFileError(f"{path} line {lineno}, column {j}: not a number") from None
             if not math.isfinite(x):
-                raise ProfileFileError(f"{path} line {lineno}, column {name!r}: {c!r} is not a finite number")
+                raise ProfileFileError(f"{path} line {lineno}, column {j}: not a finite number")
             row.append(x)
         rows.append(row)
     if names is None:
@@ -116,13 +119,19 @@ def _read_cached(path: str, mtime_ns: int, size: int) -> ProfileTable:
 
 
 def resolve_profile(
-    path: Path, given: Mapping[str, str], fail: Callable[[tuple[str, ...], str], CaseError]
+    path: Path, given: Mapping[str, str], fail: Callable[[tuple[str, ...], str], CaseError],
+    constant_given: bool = False,
 ) -> dict[str, str]:
     """Check a profile file against its column mapping; return the resolved mapping.
 
-    ``coordinate``, ``u`` and ``v`` must exist (under the given or default names); ``nut_ratio``
-    is included when named explicitly (then it must exist) or when the file has the default
-    column ``nut_ratio``. ``fail(key_suffix, message)`` makes the error.
+    ``coordinate``, ``u`` and ``v`` must exist (under the given or default names);
+    ``nu_tilde_ratio`` (nu_tilde / nu) is included when named explicitly (then it must exist) or
+    when the file has the default column ``nu_tilde_ratio``. One meaning per name: a column
+    ``eddy_viscosity_ratio`` holds nu_t / nu (what fvrans writes in its outputs) and a column
+    ``nut_ratio`` could mean either; a file with such a column is refused unless the mapping
+    names the nu_tilde / nu column, or (for ``eddy_viscosity_ratio`` alone) the inlet gives its
+    ``nu_tilde_ratio`` as a constant (``constant_given``). ``k`` and ``omega`` (k-omega SST) are
+    included like ``nu_tilde_ratio`` and come together. ``fail(key_suffix, message)`` makes the error.
     """
     for k, v in given.items():
         if not isinstance(v, str) or not v.strip():
@@ -136,11 +145,27 @@ def resolve_profile(
         raise fail(("profile_columns", "coordinate"),
                    f"must be 'x' or 'y', got {cols['coordinate']!r}: the profile is interpolated along "
                    "that mesh axis, and its CSV column carries the axis name")
-    nut_name = given.get("nut_ratio")
+    nut_name = given.get("nu_tilde_ratio")
+    if nut_name == OUTPUT_RATIO_COLUMN:
+        raise fail(("profile_columns", "nu_tilde_ratio"),
+                   f"names the column {OUTPUT_RATIO_COLUMN!r}, which holds nu_t / nu (the eddy-viscosity ratio "
+                   "fvrans writes in its outputs), while the inlet takes nu_tilde / nu; give a column of "
+                   "nu_tilde / nu (from a probe file of fvrans: its column nu_tilde divided by nu)")
     if nut_name is not None:
-        cols["nut_ratio"] = nut_name
-    elif DEFAULT_PROFILE_COLUMNS["nut_ratio"] in table.names:
-        cols["nut_ratio"] = DEFAULT_PROFILE_COLUMNS["nut_ratio"]
+        cols["nu_tilde_ratio"] = nut_name
+    else:
+        _refuse_ambiguous(path, table.names, constant_given, fail)
+        if DEFAULT_PROFILE_COLUMNS["nu_tilde_ratio"] in table.names:
+            cols["nu_tilde_ratio"] = DEFAULT_PROFILE_COLUMNS["nu_tilde_ratio"]
+    for key in ("k", "omega"):
+        if given.get(key) is not None:
+            cols[key] = given[key]
+        elif DEFAULT_PROFILE_COLUMNS[key] in table.names:
+            cols[key] = DEFAULT_PROFILE_COLUMNS[key]
+    if ("k" in cols) != ("omega" in cols):
+        has, lacks = ("k", "omega") if "k" in cols else ("omega", "k")
+        raise fail(("profile",), f"the profile file {path} gives {has} (column {cols[has]!r}) but not {lacks}; "
+                   f"the k-omega SST inflow needs both columns, or neither")
     for k, name in cols.items():
         if name not in table.names:
             how = (f"profile_columns.{k} names it" if k in given else
@@ -153,10 +178,37 @@ def resolve_profile(
         dup = float(ss[1:][np.diff(ss) <= 0][0])
         raise fail(("profile",), f"the profile file {path} has the coordinate {cols['coordinate']} = "
                    f"{dup:.6g} twice; give each station once")
-    if "nut_ratio" in cols and np.any(table.columns[cols["nut_ratio"]] < 0):
+    if "nu_tilde_ratio" in cols and np.any(table.columns[cols["nu_tilde_ratio"]] < 0):
         raise fail(("profile",), f"the profile file {path} has negative values in column "
-                   f"{cols['nut_ratio']!r}; nu_tilde / nu must be >= 0")
+                   f"{cols['nu_tilde_ratio']!r}; nu_tilde / nu must be >= 0")
+    if "k" in cols and np.any(table.columns[cols["k"]] < 0):
+        raise fail(("profile",), f"the profile file {path} has negative values in column {cols['k']!r}; k must be >= 0")
+    if "omega" in cols and np.any(table.columns[cols["omega"]] <= 0):
+        raise fail(("profile",), f"the profile file {path} has values <= 0 in column {cols['omega']!r}; "
+                   "omega must be > 0")
     return cols
+
+
+def _refuse_ambiguous(path: Path, names: tuple[str, ...], constant_given: bool,
+                      fail: Callable[[tuple[str, ...], str], CaseError]) -> None:
+    """Refuse a profile whose turbulence column cannot be told apart (see :func:`resolve_profile`)."""
+    fix_map = 'or name the nu_tilde / nu column with profile_columns = { nu_tilde_ratio = "<column>" }'
+    for name in AMBIGUOUS_RATIO_COLUMNS:
+        if name in names:
+            raise fail(("profile",), f"the profile file {path} has a column {name!r}, which could mean nu_tilde / nu "
+                       f"or nu_t / nu; rename it to 'nu_tilde_ratio' if it holds nu_tilde / nu (what the inlet "
+                       f"takes) or to {OUTPUT_RATIO_COLUMN!r} if it holds nu_t / nu, {fix_map}")
+    if OUTPUT_RATIO_COLUMN not in names:
+        return
+    if DEFAULT_PROFILE_COLUMNS["nu_tilde_ratio"] in names:
+        raise fail(("profile",), f"the profile file {path} has both 'nu_tilde_ratio' (nu_tilde / nu) and "
+                   f"{OUTPUT_RATIO_COLUMN!r} (nu_t / nu) columns; say which the inlet takes: remove one of them "
+                   f"{fix_map}")
+    if not constant_given:
+        raise fail(("profile",), f"the profile file {path} has a column {OUTPUT_RATIO_COLUMN!r} (nu_t / nu, as "
+                   "fvrans writes in probe files) but no 'nu_tilde_ratio' column, and the inlet takes nu_tilde / nu; "
+                   "add a column nu_tilde_ratio (from a probe file of fvrans: its column nu_tilde divided by nu), "
+                   f"{fix_map}, or give this inlet a constant nu_tilde_ratio = <value>")
 
 
 def _interpolate(spec: BoundarySpec, x: np.ndarray, y: np.ndarray, what: str, label: str) -> np.ndarray:
@@ -194,7 +246,7 @@ def evaluate_velocity(
         return _interpolate(spec, x, y, "u", label), _interpolate(spec, x, y, "v", label)
     v = spec.velocity
     if v is None:
-        raise CaseError(f"{label}: a {spec.kind} patch prescribes no velocity")
+        raise CaseError(f"{label}: the patch of kind {spec.kind!r} prescribes no velocity")
     if not callable(v):
         return np.full(x.shape, float(v[0])), np.full(x.shape, float(v[1]))
     try:
@@ -216,11 +268,17 @@ def evaluate_velocity(
     return u, w
 
 
-def evaluate_nut_ratio(spec: BoundarySpec, x: np.ndarray, y: np.ndarray, label: str) -> np.ndarray:
+def evaluate_column(spec: BoundarySpec, x: np.ndarray, y: np.ndarray, column: str, label: str) -> np.ndarray:
+    """A column of the condition's profile at points (x, y) (linear interpolation)."""
+    x, y = np.broadcast_arrays(x, y)
+    return _interpolate(spec, x, y, column, label)
+
+
+def evaluate_nu_tilde_ratio(spec: BoundarySpec, x: np.ndarray, y: np.ndarray, label: str) -> np.ndarray:
     """nu_tilde / nu of the condition at points (x, y)."""
     x, y = np.broadcast_arrays(x, y)
-    if spec.profile_columns is not None and "nut_ratio" in spec.profile_columns:
-        return _interpolate(spec, x, y, "nut_ratio", label)
-    if spec.nut_ratio is None:
-        raise CaseError(f"{label}: a {spec.kind} patch prescribes no nut_ratio")
-    return np.full(x.shape, float(spec.nut_ratio))
+    if spec.profile_columns is not None and "nu_tilde_ratio" in spec.profile_columns:
+        return _interpolate(spec, x, y, "nu_tilde_ratio", label)
+    if spec.nu_tilde_ratio is None:
+        raise CaseError(f"{label}: the patch of kind {spec.kind!r} prescribes no nu_tilde_ratio")
+    return np.full(x.shape, float(spec.nu_tilde_ratio))

@@ -15,9 +15,21 @@ from typing import Any
 import numpy as np
 
 # -- allowed values ------------------------------------------------------------------------
-TURBULENCE_MODELS = ("none", "spalart-allmaras")
+TURBULENCE_MODELS = ("none", "spalart-allmaras", "k-omega-sst", "reference-stress")
+#: how the reference-stress model hands the reference Reynolds stress to the momentum equation
+STRESS_FORMS = ("implicit", "explicit")
+#: models whose eddy viscosity the reference-stress model may blend in (``[model] blend_model``)
+BLEND_MODELS = ("none", "spalart-allmaras", "k-omega-sst")
+#: default cap of the optimal eddy viscosity of the implicit form, as nu_t / nu
+DEFAULT_EDDY_VISCOSITY_CAP = 1e5
+#: rules for cells outside the reference data (``[reference] outside``)
+REFERENCE_OUTSIDE = ("nearest", "refuse", "zero-stress")
 SA_VARIANTS = ("standard", "no-ft2")
-BOUNDARY_KINDS = ("wall", "velocity-inlet", "pressure-outlet", "symmetry", "freestream")
+NONLINEAR_STRESSES = ("none", "qcr2000")
+#: defaults of the k-omega SST inflow and start values: turbulence intensity sqrt(2k/3)/|u| and nu_t / nu
+DEFAULT_TURBULENCE_INTENSITY = 0.001
+DEFAULT_EDDY_VISCOSITY_RATIO = 0.1
+BOUNDARY_KINDS = ("wall", "inflow-velocity", "outflow-pressure", "symmetry", "outer-flow")
 COUPLINGS = ("simple", "simplec")
 CONVECTION_SCHEMES = ("upwind", "linear-upwind")
 GRADIENT_METHODS = ("least-squares", "green-gauss")
@@ -26,17 +38,22 @@ LIMITERS = ("none", "venkatakrishnan", "barth-jespersen")
 #: keys each boundary kind takes (besides none else)
 BOUNDARY_KEYS: dict[str, tuple[str, ...]] = {
     "wall": ("kind", "velocity"),
-    "velocity-inlet": ("kind", "velocity", "profile", "profile_columns", "nut_ratio"),
-    "pressure-outlet": ("kind", "pressure"),
+    "inflow-velocity": ("kind", "velocity", "profile", "profile_columns", "nu_tilde_ratio", "turbulence_intensity",
+                        "eddy_viscosity_ratio"),
+    "outflow-pressure": ("kind", "pressure"),
     "symmetry": ("kind",),
-    "freestream": ("kind", "velocity", "pressure", "nut_ratio"),
+    "outer-flow": ("kind", "velocity", "pressure", "nu_tilde_ratio", "turbulence_intensity", "eddy_viscosity_ratio"),
 }
-PROFILE_COLUMN_KEYS = ("coordinate", "u", "v", "nut_ratio")
+PROFILE_COLUMN_KEYS = ("coordinate", "u", "v", "nu_tilde_ratio", "k", "omega")
 #: column names used when ``profile_columns`` does not name them
-DEFAULT_PROFILE_COLUMNS = {"coordinate": "y", "u": "u", "v": "v", "nut_ratio": "nut_ratio"}
+DEFAULT_PROFILE_COLUMNS = {"coordinate": "y", "u": "u", "v": "v", "nu_tilde_ratio": "nu_tilde_ratio", "k": "k",
+                           "omega": "omega"}
 #: default under-relaxation of the pressure correction for each coupling
 DEFAULT_RELAX_PRESSURE = {"simple": 0.3, "simplec": 1.0}
 DEFAULT_RELAX_VELOCITY = {"simple": 0.7, "simplec": 0.95}
+#: default relative tolerance of each turbulence solve, by model (others: 0.01): omega spans about
+#: ten decades between a wall and the free stream, and a looser solve leaves the free stream unsolved
+DEFAULT_TURBULENCE_TOLERANCE = {"k-omega-sst": 1e-6}
 MOMENTUM_SOLVERS = ("amg", "gauss-seidel")
 TURBULENCE_SOLVERS = ("amg", "gauss-seidel")
 #: text standing for a Python function in :meth:`Case.to_dict`
@@ -48,12 +65,23 @@ Velocity = tuple[float, float] | VelocityFunction
 
 @dataclass(frozen=True)
 class MeshSettings:
-    """Where the mesh comes from: a file (absolute path) or a generator in ``fvrans.mesh.generate``."""
+    """Where the mesh comes from: a file (absolute path) or a generator in ``fvrans.mesh.generate``.
+
+    For a file whose boundary lines carry no names (:func:`fvrans.mesh.io.read_mesh`):
+    ``edge_tags`` (tag -> patch) with ``edge_tag_array``, ``edge_boxes`` (patch -> xmin, xmax,
+    ymin, ymax) and ``unnamed_edges`` (the patch of the boundary edges left).
+    """
 
     file: Path | None = None
     generator: str | None = None
     parameters: dict[str, Any] = field(default_factory=dict)
     renumber: bool = False
+    #: pairs of patches (first, second = first moved by a translation) joined as periodic
+    periodic_pairs: tuple[tuple[str, str], ...] = ()
+    edge_tags: dict[int, str] = field(default_factory=dict)
+    edge_tag_array: str | None = None
+    edge_boxes: dict[str, tuple[float, float, float, float]] = field(default_factory=dict)
+    unnamed_edges: str | None = None
 
 
 @dataclass(frozen=True)
@@ -70,16 +98,89 @@ class Fluid:
 
 
 @dataclass(frozen=True)
+class StressInjection:
+    """How ``[model] turbulence = "reference-stress"`` injects the reference Reynolds stress
+    (:mod:`fvrans.models.injected`): ``stress_form`` "implicit" (the optimal eddy viscosity,
+    clipped to [0, ``eddy_viscosity_cap`` nu], implicit; the remainder explicit) or "explicit" (all
+    of it as a source); ``blend_model`` (a model run alongside) and ``blend_share`` (its share of the
+    implicit eddy viscosity)."""
+
+    stress_form: str = "implicit"
+    eddy_viscosity_cap: float = DEFAULT_EDDY_VISCOSITY_CAP
+    blend_model: str = "none"
+    blend_share: float = 0.0
+
+
+@dataclass(frozen=True)
 class ModelSettings:
+    """The turbulence model and its options (``sa_*`` only with Spalart-Allmaras;
+    ``nonlinear_stress`` with any eddy-viscosity model)."""
+
     turbulence: str = "none"
     sa_variant: str = "standard"
+    sa_rotation_curvature: bool = False
+    nonlinear_stress: str = "none"
+    #: settings of ``turbulence = "reference-stress"`` (the Reynolds stress of ``[reference] data``)
+    injection: StressInjection = field(default_factory=StressInjection)
+
+
+@dataclass(frozen=True)
+class Region:
+    """A region of the comparison with the reference data ``[reference.regions.<name>]``: the cells
+    inside ``box`` (xmin, xmax, ymin, ymax) and with a wall distance in ``wall_distance`` (dmin, dmax);
+    either may be None (no limit)."""
+
+    box: tuple[float, float, float, float] | None = None
+    wall_distance: tuple[float, float] | None = None
+
+
+@dataclass(frozen=True)
+class ReferenceSettings:
+    """A reference mean flow ``[reference]`` (:mod:`fvrans.reference`): ``data`` (a CSV point cloud, a
+    mesh file with data or a result folder; absolute path), ``names`` (quantity -> column or field),
+    ``outside`` (cells outside the data: "nearest" value, "refuse" the run, or "zero-stress": the
+    nearest velocity but no reference stress there), ``regions`` of the comparison,
+    ``freeze_velocity`` (an a-priori test: only the model's equations, on the reference velocity)
+    and ``write_features`` (the per-cell feature table of :mod:`fvrans.reference.features`)."""
+
+    data: Path | None = None
+    names: dict[str, str] = field(default_factory=dict)
+    outside: str = "nearest"
+    regions: dict[str, Region] = field(default_factory=dict)
+    freeze_velocity: bool = False
+    write_features: bool = False
+
+    @property
+    def active(self) -> bool:
+        return self.data is not None
 
 
 @dataclass(frozen=True)
 class InitialState:
+    """The start: uniform values, or the velocity and nu_tilde of a result folder (absolute path)
+    interpolated onto the cells (``pressure`` still sets the uniform start pressure; ``nu_tilde_ratio``
+    applies only when that result carries no nu_tilde)."""
+
     velocity: tuple[float, float] = (0.0, 0.0)
     pressure: float = 0.0
-    nut_ratio: float = 3.0
+    nu_tilde_ratio: float = 3.0
+    turbulence_intensity: float = DEFAULT_TURBULENCE_INTENSITY
+    eddy_viscosity_ratio: float = DEFAULT_EDDY_VISCOSITY_RATIO
+    from_result: Path | None = None
+
+
+@dataclass(frozen=True)
+class MeanFlow:
+    """What drives the flow through periodic pairs: a fixed mean pressure gradient (dp/dx, dp/dy),
+    applied as the body force -grad p, or a fixed bulk (volume-mean) velocity, for which that
+    gradient is found each iteration. At most one is set."""
+
+    pressure_gradient: tuple[float, float] | None = None
+    bulk_velocity: tuple[float, float] | None = None
+
+    @property
+    def active(self) -> bool:
+        return self.pressure_gradient is not None or self.bulk_velocity is not None
 
 
 @dataclass(frozen=True)
@@ -88,17 +189,19 @@ class BoundarySpec:
 
     ``velocity`` is ``(u, v)`` or, for a velocity inlet built in Python, a function
     ``f(x, y) -> (u, v)`` of face-centre coordinates. ``profile`` is the absolute path of a CSV
-    inlet profile and ``profile_columns`` maps ``coordinate``, ``u``, ``v`` (and ``nut_ratio``
-    when the file has that column) to column names. ``nut_ratio`` is None when the profile
+    inlet profile and ``profile_columns`` maps ``coordinate``, ``u``, ``v`` (and ``nu_tilde_ratio``
+    when the file has that column) to column names. ``nu_tilde_ratio`` is None when the profile
     supplies it.
     """
 
     kind: str
     velocity: Velocity | None = None
     pressure: float | None = None
-    nut_ratio: float | None = None
+    nu_tilde_ratio: float | None = None
     profile: Path | None = None
     profile_columns: dict[str, str] | None = None
+    turbulence_intensity: float | None = None
+    eddy_viscosity_ratio: float | None = None
 
     def velocity_at(self, x, y, label: str = "<in memory>: boundary") -> tuple[np.ndarray, np.ndarray]:
         """Velocity components at points ``(x, y)`` (face centres), as float arrays of x's shape.
@@ -110,11 +213,19 @@ class BoundarySpec:
 
         return evaluate_velocity(self, np.asarray(x, float), np.asarray(y, float), label)
 
-    def nut_ratio_at(self, x, y, label: str = "<in memory>: boundary") -> np.ndarray:
+    def nu_tilde_ratio_at(self, x, y, label: str = "<in memory>: boundary") -> np.ndarray:
         """Inflow ratio nu_tilde / nu at points ``(x, y)`` (constant, or from the profile file)."""
-        from fvrans.case.profile import evaluate_nut_ratio
+        from fvrans.case.profile import evaluate_nu_tilde_ratio
 
-        return evaluate_nut_ratio(self, np.asarray(x, float), np.asarray(y, float), label)
+        return evaluate_nu_tilde_ratio(self, np.asarray(x, float), np.asarray(y, float), label)
+
+    def profile_column_at(self, column: str, x, y, label: str = "<in memory>: boundary") -> np.ndarray | None:
+        """An optional profile column (``"k"``, ``"omega"``) at points ``(x, y)``; None without it."""
+        if self.profile is None or self.profile_columns is None or column not in self.profile_columns:
+            return None
+        from fvrans.case.profile import evaluate_column
+
+        return evaluate_column(self, np.asarray(x, float), np.asarray(y, float), column, label)
 
 
 @dataclass(frozen=True)
@@ -179,6 +290,42 @@ class ProbeLine:
 
 
 @dataclass(frozen=True)
+class ProbePoint:
+    """A point probe ``[probes.<name>]`` with ``at = [x, y]``: values watched every iteration."""
+
+    at: tuple[float, float]
+
+
+Probe = ProbeLine | ProbePoint
+#: kinds of derived scalars ``[derived.<name>]``
+DERIVED_KINDS = ("difference", "recirculation-length")
+
+
+@dataclass(frozen=True)
+class DerivedScalar:
+    """A scalar computed from probes, ``[derived.<name>]``.
+
+    ``"difference"``: ``quantity`` at point probe ``probes[0]`` minus at ``probes[1]``;
+    ``"recirculation-length"``: the distance along line probe ``probes[0]`` from its start to
+    the first place where ``quantity`` turns from negative to positive.
+    """
+
+    kind: str
+    probes: tuple[str, ...]
+    quantity: str
+
+
+@dataclass(frozen=True)
+class MonitorSettings:
+    """The stopping rule on monitored quantities (see :mod:`fvrans.monitor`)."""
+
+    settle: bool = True
+    iteration_error: float = 1e-5
+    window: int = 20
+    show: str = ""
+
+
+@dataclass(frozen=True)
 class Case:
     """A complete, validated case. ``source`` is the case file (None for one built in memory).
 
@@ -197,8 +344,12 @@ class Case:
     boundaries: dict[str, BoundarySpec]
     solver: SolverSettings
     output: OutputSettings
-    probes: dict[str, ProbeLine] = field(default_factory=dict)
+    probes: dict[str, Probe] = field(default_factory=dict)
+    mean_flow: MeanFlow = field(default_factory=MeanFlow)
     raw: dict[str, Any] | None = field(default=None, compare=False, repr=False)
+    derived: dict[str, DerivedScalar] = field(default_factory=dict)
+    monitor: MonitorSettings = field(default_factory=MonitorSettings)
+    reference: ReferenceSettings = field(default_factory=ReferenceSettings)
 
     @property
     def label(self) -> str:
@@ -208,6 +359,14 @@ class Case:
     @property
     def turbulent(self) -> bool:
         return self.model.turbulence != "none"
+
+    @property
+    def line_probes(self) -> dict[str, ProbeLine]:
+        return {n: p for n, p in self.probes.items() if isinstance(p, ProbeLine)}
+
+    @property
+    def point_probes(self) -> dict[str, ProbePoint]:
+        return {n: p for n, p in self.probes.items() if isinstance(p, ProbePoint)}
 
     # -- export ----------------------------------------------------------------------------
     def to_dict(self) -> dict[str, Any]:
@@ -240,7 +399,7 @@ class Case:
         """A new validated case with several dotted keys changed at once (validated together).
 
         A value ``None`` removes the key (its default applies again); a table value replaces
-        the whole table, e.g. ``{"boundary.inlet": {"kind": "pressure-outlet"}}``. Inlet
+        the whole table, e.g. ``{"boundary.inlet": {"kind": "outflow-pressure"}}``. Inlet
         velocities may be Python functions ``f(x, y) -> (u, v)``.
         """
         from fvrans.case.validate import apply_changes, case_from_dict
@@ -254,9 +413,9 @@ class Case:
         """Velocity prescribed on ``patch`` at points ``(x, y)`` (see :meth:`BoundarySpec.velocity_at`)."""
         return self._boundary(patch).velocity_at(x, y, self._boundary_label(patch))
 
-    def boundary_nut_ratio(self, patch: str, x, y) -> np.ndarray:
+    def boundary_nu_tilde_ratio(self, patch: str, x, y) -> np.ndarray:
         """Inflow nu_tilde / nu on ``patch`` at points ``(x, y)``."""
-        return self._boundary(patch).nut_ratio_at(x, y, self._boundary_label(patch))
+        return self._boundary(patch).nu_tilde_ratio_at(x, y, self._boundary_label(patch))
 
     def _boundary(self, patch: str) -> BoundarySpec:
         from fvrans.case.validate import unknown_patch_error
@@ -299,9 +458,21 @@ def boundary_data(b: BoundarySpec, keep_callables: bool = False) -> dict[str, An
         out["profile_columns"] = dict(b.profile_columns)
     if b.pressure is not None:
         out["pressure"] = float(b.pressure)
-    if b.nut_ratio is not None:
-        out["nut_ratio"] = float(b.nut_ratio)
+    if b.nu_tilde_ratio is not None:
+        out["nu_tilde_ratio"] = float(b.nu_tilde_ratio)
+    if b.turbulence_intensity is not None:
+        out["turbulence_intensity"] = float(b.turbulence_intensity)
+    if b.eddy_viscosity_ratio is not None:
+        out["eddy_viscosity_ratio"] = float(b.eddy_viscosity_ratio)
     return out
+
+
+def _initial_data(i: InitialState) -> dict[str, Any]:
+    turbulence = {"nu_tilde_ratio": i.nu_tilde_ratio, "turbulence_intensity": i.turbulence_intensity,
+                  "eddy_viscosity_ratio": i.eddy_viscosity_ratio}
+    if i.from_result is not None:
+        return {"from_result": str(i.from_result), "pressure": i.pressure, **turbulence}
+    return {"velocity": _vec(i.velocity), "pressure": i.pressure, **turbulence}
 
 
 def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
@@ -309,10 +480,20 @@ def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
     mesh: dict[str, Any] = {}
     if m.file is not None:
         mesh["file"] = str(m.file)
+        if m.edge_tags:
+            mesh["edge_tags"] = {str(k): v for k, v in m.edge_tags.items()}
+        if m.edge_tag_array is not None:
+            mesh["edge_tag_array"] = m.edge_tag_array
+        if m.edge_boxes:
+            mesh["edge_boxes"] = {k: [float(x) for x in v] for k, v in m.edge_boxes.items()}
+        if m.unnamed_edges is not None:
+            mesh["unnamed_edges"] = m.unnamed_edges
     if m.generator is not None:
         mesh["generator"] = m.generator
         mesh["parameters"] = copy_data(m.parameters)
     mesh["renumber"] = bool(m.renumber)
+    if m.periodic_pairs:
+        mesh["periodic_pairs"] = [list(p) for p in m.periodic_pairs]
     s = case.solver
     output: dict[str, Any] = {
         "wall_patches": list(case.output.wall_patches),
@@ -328,12 +509,8 @@ def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
         "description": case.description,
         "mesh": mesh,
         "fluid": {"density": case.fluid.density, "viscosity": case.fluid.viscosity},
-        "model": {"turbulence": case.model.turbulence, "sa_variant": case.model.sa_variant},
-        "initial": {
-            "velocity": _vec(case.initial.velocity),
-            "pressure": case.initial.pressure,
-            "nut_ratio": case.initial.nut_ratio,
-        },
+        "model": _model_data(case.model),
+        "initial": _initial_data(case.initial),
         "boundary": {name: boundary_data(b, keep_callables) for name, b in case.boundaries.items()},
         "solver": {
             "coupling": s.coupling,
@@ -362,7 +539,54 @@ def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
         },
         "output": output,
     }
+    mf = case.mean_flow
+    if mf.active:
+        data["mean_flow"] = ({"pressure_gradient": _vec(mf.pressure_gradient)} if mf.pressure_gradient is not None
+                             else {"bulk_velocity": _vec(mf.bulk_velocity)})
     if case.probes:
-        data["probes"] = {name: {"start": _vec(pr.start), "end": _vec(pr.end), "points": pr.points}
+        data["probes"] = {name: {"at": _vec(pr.at)} if isinstance(pr, ProbePoint) else
+                          {"start": _vec(pr.start), "end": _vec(pr.end), "points": pr.points}
                           for name, pr in case.probes.items()}
+    if case.derived:
+        data["derived"] = {name: _derived_data(d) for name, d in case.derived.items()}
+    if case.reference != ReferenceSettings():
+        data["reference"] = _reference_data(case.reference)
+    m = case.monitor
+    data["monitor"] = {"settle": m.settle, "iteration_error": m.iteration_error, "window": m.window}
+    if m.show:
+        data["monitor"]["show"] = m.show
     return data
+
+
+def _model_data(m: ModelSettings) -> dict[str, Any]:
+    out: dict[str, Any] = {"turbulence": m.turbulence, "sa_variant": m.sa_variant,
+                           "sa_rotation_curvature": m.sa_rotation_curvature, "nonlinear_stress": m.nonlinear_stress}
+    if m.turbulence == "reference-stress":
+        i = m.injection
+        out.update({"stress_form": i.stress_form, "eddy_viscosity_cap": i.eddy_viscosity_cap,
+                    "blend_model": i.blend_model, "blend_share": i.blend_share})
+    return out
+
+
+def _reference_data(r: ReferenceSettings) -> dict[str, Any]:
+    out: dict[str, Any] = {}
+    if r.data is not None:
+        out["data"] = str(r.data)
+    if r.names:
+        out["names"] = dict(r.names)
+    out.update({"outside": r.outside, "freeze_velocity": r.freeze_velocity, "write_features": r.write_features})
+    if r.regions:
+        out["regions"] = {}
+        for name, g in r.regions.items():
+            out["regions"][name] = {}
+            if g.box is not None:
+                out["regions"][name]["box"] = [float(v) for v in g.box]
+            if g.wall_distance is not None:
+                out["regions"][name]["wall_distance"] = [float(v) for v in g.wall_distance]
+    return out
+
+
+def _derived_data(d: DerivedScalar) -> dict[str, Any]:
+    if d.kind == "difference":
+        return {"kind": d.kind, "probes": list(d.probes), "quantity": d.quantity}
+    return {"kind": d.kind, "probe": d.probes[0], "quantity": d.quantity}

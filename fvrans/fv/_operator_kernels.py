@@ -67,12 +67,13 @@ def diffusion(owner, neighbour, nfi, sf, delta, weight, gamma_f, bkind, bvalue, 
 
 
 @njit(cache=True)
-def convection(owner, neighbour, nfi, flux, phi_b, face_centre, cell_centre, grad, high_order,
+def convection(owner, neighbour, nfi, flux, phi_b, face_centre, cell_centre, shift, grad, high_order,
                diag, off_owner, off_neighbour, source):
     """div(F phi) with face mass fluxes F (> 0 out of the owner). Implicit first-order upwind;
     if ``high_order``, the linear-upwind value phi_U + g_U . (x_f - x_U) by deferred correction
-    (the difference to upwind goes to the source). Boundary: inflow (F < 0) takes phi_b, outflow
-    the upwind (owner) value, reconstructed with g_O if ``high_order``."""
+    (the difference to upwind goes to the source; the neighbour at x_N + ``shift[f]``, its image
+    across a periodic face). Boundary: inflow (F < 0) takes phi_b, outflow the upwind (owner)
+    value, reconstructed with g_O if ``high_order``."""
     nf = owner.shape[0]
     for f in range(nfi):
         o = owner[f]
@@ -90,8 +91,8 @@ def convection(owner, neighbour, nfi, flux, phi_b, face_centre, cell_centre, gra
             off_owner[f] += F
             diag[n] -= F
             if high_order:
-                q = F * (grad[n, 0] * (face_centre[f, 0] - cell_centre[n, 0])
-                         + grad[n, 1] * (face_centre[f, 1] - cell_centre[n, 1]))
+                q = F * (grad[n, 0] * (face_centre[f, 0] - cell_centre[n, 0] - shift[f, 0])
+                         + grad[n, 1] * (face_centre[f, 1] - cell_centre[n, 1] - shift[f, 1]))
                 source[o] -= q
                 source[n] += q
     for f in range(nfi, nf):
@@ -104,3 +105,47 @@ def convection(owner, neighbour, nfi, flux, phi_b, face_centre, cell_centre, gra
                                   + grad[o, 1] * (face_centre[f, 1] - cell_centre[o, 1]))
         else:
             source[o] -= F * phi_b[f - nfi]
+
+
+@njit(cache=True)
+def stress_divergence(owner, neighbour, nfi, sf, weight, normal, bmode, stress, out):
+    """out[c] = sum_f T_f . S_f over the faces of c (outward S): the integral of div T over the
+    cell, T symmetric given per cell as (T_xx, T_xy, T_yy). Inside T_f = w T_O + (1-w) T_N;
+    boundary faces by ``bmode``: 0 zero stress, 1 the owner value, 2 the owner's normal-normal
+    part only, (n . T_O . n) n (no shear along the face)."""
+    nc = out.shape[0]
+    nf = owner.shape[0]
+    for c in range(nc):
+        out[c, 0] = 0.0
+        out[c, 1] = 0.0
+    for f in range(nfi):
+        o = owner[f]
+        n = neighbour[f]
+        w = weight[f]
+        txx = w * stress[o, 0] + (1.0 - w) * stress[n, 0]
+        txy = w * stress[o, 1] + (1.0 - w) * stress[n, 1]
+        tyy = w * stress[o, 2] + (1.0 - w) * stress[n, 2]
+        fx = txx * sf[f, 0] + txy * sf[f, 1]
+        fy = txy * sf[f, 0] + tyy * sf[f, 1]
+        out[o, 0] += fx
+        out[o, 1] += fy
+        out[n, 0] -= fx
+        out[n, 1] -= fy
+    for f in range(nfi, nf):
+        mode = bmode[f - nfi]
+        if mode == 0:
+            continue
+        o = owner[f]
+        txx = stress[o, 0]
+        txy = stress[o, 1]
+        tyy = stress[o, 2]
+        fx = txx * sf[f, 0] + txy * sf[f, 1]
+        fy = txy * sf[f, 0] + tyy * sf[f, 1]
+        if mode == 2:
+            n0 = normal[f, 0]
+            n1 = normal[f, 1]
+            fn = fx * n0 + fy * n1
+            fx = fn * n0
+            fy = fn * n1
+        out[o, 0] += fx
+        out[o, 1] += fy

@@ -1,4 +1,4 @@
-"""The scaled residual of a discretised equation: its imbalance as a fraction of its terms.
+"""The normalised imbalance of a discretised equation: its imbalance as a fraction of its terms.
 
 For every equation the loop solves (momentum, continuity, turbulence)::
 
@@ -27,7 +27,7 @@ stays converged). At convergence the reference does not depend on the relaxation
 Floor: the residual cannot fall below the round-off of the equation's terms. In cells of aspect
 ratio R the pressure differences across the long faces, which double precision resolves to about
 1e-16 of the pressure level, drive flux errors ~R^2 times larger (channel of 25 x 8 cells, Re_h 50:
-continuity floor about 1e-6 at R = 3e5, 1e-5 at R = 1e6, 1e-4 at R = 3e6; tests/solve/test_scaled_residual.py).
+continuity floor about 1e-6 at R = 3e5, 1e-5 at R = 1e6, 1e-4 at R = 3e6; tests/solve/test_normalised_imbalance.py).
 """
 
 from __future__ import annotations
@@ -37,13 +37,13 @@ import scipy.sparse as sp
 
 from fvrans.fv import _assembly_kernels as _k
 
-#: one line describing the scaled residual for outputs (plots, README, summary)
+#: one line describing the normalised imbalance for outputs (plots, README, summary)
 RESIDUAL_DESCRIPTION = (
     "each equation's summed imbalance over the summed magnitudes of its terms (1 = nothing balanced)"
 )
 
 
-def scaled_residual(A: sp.csr_matrix, b: np.ndarray, x: np.ndarray) -> float:
+def normalised_imbalance(A: sp.csr_matrix, b: np.ndarray, x: np.ndarray) -> float:
     """sum |b - A x| / sum (|A| |x| + |b|) of a scalar system (0 when both vanish)."""
     r, m = _k.residual_and_terms(A.indptr, A.indices, A.data, np.ascontiguousarray(b, dtype=float),
                                  np.ascontiguousarray(x, dtype=float))

@@ -15,6 +15,13 @@ Boundary patches come from line elements:
 Vertex (dimension 0) and surface (dimension 2) groups are ignored. Line elements without any
 group are ignored too, so a boundary edge that ends up in no patch is reported by
 :func:`fvrans.mesh.mesh.build_mesh`, with the file name in the message.
+
+A file without names (another tool's VTU, fvrans's own ``fields.vtu``, meshio's conversion of a
+Gmsh file to VTU, which keeps the tags but drops their names) can still be read: ``edge_tags``
+names the integer tags of the line elements (array ``edge_tag_array``, by default
+``gmsh:physical``), ``edge_boxes`` puts the boundary edges no group names, whose two ends lie in a
+box ``[xmin, xmax, ymin, ymax]``, into a patch, and ``unnamed_edges`` names a patch for every such
+edge left (:func:`unnamed_edge_rule`).
 """
 
 from __future__ import annotations
@@ -22,6 +29,7 @@ from __future__ import annotations
 import io
 import logging
 import warnings
+from collections.abc import Mapping
 from contextlib import redirect_stderr, redirect_stdout
 from pathlib import Path
 
@@ -29,6 +37,7 @@ import meshio
 import numpy as np
 
 from fvrans.errors import MeshError
+from fvrans.files import input_file
 from fvrans.mesh.mesh import Mesh, build_mesh
 
 log = logging.getLogger(__name__)
@@ -51,20 +60,32 @@ _SUFFIX_FORMAT = {".msh": "gmsh", ".vtu": "vtu"}
 # ----------------------------------------------------------------------------------------
 # reading
 # ----------------------------------------------------------------------------------------
-def read_mesh(path: str | Path, file_format: str | None = None) -> Mesh:
+#: the per-element tag array read by default
+DEFAULT_TAG_ARRAY = "gmsh:physical"
+
+
+def read_mesh(
+    path: str | Path,
+    file_format: str | None = None,
+    *,
+    edge_tags: Mapping[int, str] | None = None,
+    edge_tag_array: str | None = None,
+    edge_boxes: Mapping[str, tuple[float, float, float, float]] | None = None,
+    unnamed_edges: str | None = None,
+) -> Mesh:
     """Read a planar 2D mesh file and build a :class:`Mesh` with named boundary patches.
 
     ``file_format`` is a meshio format name (e.g. ``"gmsh"``, ``"vtu"``); by default the file
-    suffix decides. Every problem is raised as :class:`MeshError` naming the file.
+    suffix decides. ``edge_tags``, ``edge_tag_array``, ``edge_boxes`` and ``unnamed_edges`` name
+    the patches of a file whose boundary lines carry no names (module docstring). Every problem is
+    raised as :class:`MeshError` naming the file.
     """
-    p = Path(path)
+    p = input_file(path, "mesh file", MeshError)  # a regular file: no pipe, device, link loop
     src = str(p)
-    if not p.exists():
-        raise MeshError(f"{src}: file not found; check the path (working directory {Path.cwd()})")
-    if p.is_dir():
-        raise MeshError(f"{src}: is a directory, not a mesh file")
     if file_format is None and p.suffix.lower() == ".msh":
         file_format = "gmsh"  # meshio would try another format first and print its failure
+    if file_format in (None, "gmsh"):
+        check_gmsh41_node_count(p)  # meshio trusts the declared count (uninitialised memory beyond it)
     out = io.StringIO()
     try:
         # meshio prints read failures and may call sys.exit: keep both away from the caller
@@ -82,10 +103,103 @@ def read_mesh(path: str | Path, file_format: str | None = None) -> Mesh:
             "write it as a Gmsh .msh (version 2.2 or 4.1, ASCII or binary) or a .vtu file, "
             "or pass file_format= if the suffix does not say the format"
         ) from exc
-    return from_meshio(mm, source=src)
+    return from_meshio(mm, source=src, edge_tags=edge_tags, edge_tag_array=edge_tag_array, edge_boxes=edge_boxes,
+                       unnamed_edges=unnamed_edges)
 
 
-def from_meshio(mm: meshio.Mesh, source: str = "<meshio mesh>") -> Mesh:
+def _token_count(data: bytes) -> int:
+    """Whitespace-separated tokens of ``data`` (counted without splitting: starts of non-blank runs)."""
+    a = np.frombuffer(data, dtype=np.uint8)
+    blank = (a == 32) | ((a >= 9) & (a <= 13))
+    return int(np.count_nonzero(~blank[1:] & blank[:-1])) + int(len(a) > 0 and not blank[0])
+
+
+def check_gmsh41_node_count(path: Path) -> None:
+    """Refuse a Gmsh 4.1 file whose ``$Nodes`` header declares another number of nodes than its
+    blocks hold (meshio allocates the declared number and leaves the rest uninitialised). ASCII:
+    the section holds 4 + 4 (blocks) + 4 (nodes) numbers; binary: its length follows from the
+    counts. Other formats and versions pass untouched."""
+    with open(path, "rb") as f:
+        head = f.read(64)
+        if not head.startswith(b"$MeshFormat"):
+            return
+        lines = head.split(b"\n")
+        fmt = lines[1].split() if len(lines) > 1 else []
+        if len(fmt) < 3 or not fmt[0].startswith(b"4.1"):
+            return
+        data = head + f.read()
+    src = str(path)
+    start = data.find(b"\n$Nodes")
+    if start < 0:
+        return
+    start += len(b"\n$Nodes")
+    start = data.index(b"\n", start) + 1
+    binary = fmt[1] == b"1"
+    if not binary:
+        end = data.find(b"$EndNodes", start)
+        if end < 0:
+            raise MeshError(f"{src}: the $Nodes section has no $EndNodes; the file is cut short — write it again")
+        section = data[start:end]
+        head_tokens = section.split(None, 4)[:4]
+        try:
+            n_blocks, n_nodes = int(head_tokens[0]), int(head_tokens[1])
+        except (ValueError, IndexError):
+            raise MeshError(f"{src}: the $Nodes section does not start with its counts") from None
+        held = (_token_count(section) - 4 - 4 * n_blocks) / 4
+    else:
+        size = int(fmt[2]) if fmt[2].isdigit() else 8
+        import struct
+
+        code = {4: "i", 8: "q"}.get(size)
+        if code is None or len(data) < start + 4 * size:
+            raise MeshError(f"{src}: the $Nodes section is cut short or has an unknown data size {size}")
+        n_blocks, n_nodes = struct.unpack_from(f"<2{code}", data, start)
+        if not (0 <= n_blocks <= len(data) and 0 <= n_nodes <= len(data)):
+            raise MeshError(f"{src}: the $Nodes section declares {n_nodes} nodes in {n_blocks} blocks, more than a "
+                            f"file of {len(data)} bytes can hold")
+        end = start + 4 * size + n_blocks * (12 + size) + n_nodes * (size + 24)
+        held = n_nodes if data[end:end + 12].lstrip().startswith(b"$EndNodes") else None
+    if held != n_nodes:
+        what = f"its blocks hold {held:g}" if held is not None else "the section's length does not match"
+        raise MeshError(f"{src}: the $Nodes section declares {n_nodes} nodes but {what}; the file is damaged or "
+                        "was edited by hand — write it again from the mesher")
+
+
+def unnamed_edge_rule(edge_boxes: Mapping[str, tuple[float, float, float, float]] | None = None,
+                      unnamed_edges: str | None = None):
+    """The rule :func:`fvrans.mesh.mesh.build_mesh` asks about boundary edges no group names:
+    an edge goes to the first patch of ``edge_boxes`` whose box holds both its ends (to 1e-9 of
+    the mesh's extent), else to ``unnamed_edges`` (when given)."""
+    boxes = dict(edge_boxes or {})
+
+    def rule(points, edges):
+        span = float(np.ptp(points, axis=0).max()) or 1.0
+        tol = 1e-9 * span
+        free = np.ones(len(edges), dtype=bool)
+        out = {}
+        for name, (x0, x1, y0, y1) in boxes.items():
+            inside = np.ones(len(edges), dtype=bool)
+            for k in (0, 1):
+                p = points[edges[:, k]]
+                inside &= (p[:, 0] >= x0 - tol) & (p[:, 0] <= x1 + tol) & (p[:, 1] >= y0 - tol) & (p[:, 1] <= y1 + tol)
+            out[name] = inside & free
+            free &= ~inside
+        if unnamed_edges:
+            out[unnamed_edges] = free
+        return out
+
+    return rule if (boxes or unnamed_edges) else None
+
+
+def from_meshio(
+    mm: meshio.Mesh,
+    source: str = "<meshio mesh>",
+    *,
+    edge_tags: Mapping[int, str] | None = None,
+    edge_tag_array: str | None = None,
+    edge_boxes: Mapping[str, tuple[float, float, float, float]] | None = None,
+    unnamed_edges: str | None = None,
+) -> Mesh:
     """Turn a ``meshio.Mesh`` into a :class:`Mesh` (see the module docstring for the rules)."""
     pts = np.asarray(mm.points, dtype=np.float64)
     if pts.ndim != 2 or pts.shape[1] not in (2, 3) or len(pts) == 0:
@@ -127,10 +241,10 @@ def from_meshio(mm: meshio.Mesh, source: str = "<meshio mesh>") -> Mesh:
     if pts.shape[1] == 3:
         used = np.unique(np.concatenate(cells + [e.ravel() for _, e in line_blocks]))
         _check_planar(pts, used, source)
-    boundary = _patches_from_meshio(mm, line_blocks, source)
+    boundary = _patches_from_meshio(mm, line_blocks, source, edge_tags, edge_tag_array)
     sizes = {len(c) for c in cells}
     cell_arg = np.stack(cells) if len(sizes) == 1 else cells
-    return build_mesh(pts, cell_arg, boundary, source=source)
+    return build_mesh(pts, cell_arg, boundary, source=source, unnamed=unnamed_edge_rule(edge_boxes, unnamed_edges))
 
 
 def _check_planar(pts: np.ndarray, used: np.ndarray, source: str) -> None:
@@ -155,7 +269,8 @@ def _as_int_tags(values) -> np.ndarray:
 
 
 def _patches_from_meshio(
-    mm: meshio.Mesh, line_blocks: list[tuple[int, np.ndarray]], source: str
+    mm: meshio.Mesh, line_blocks: list[tuple[int, np.ndarray]], source: str,
+    edge_tags: Mapping[int, str] | None = None, edge_tag_array: str | None = None,
 ) -> dict[str, np.ndarray]:
     """Named edge lists ``{patch: (m, 2) point pairs}`` from physical tags, cell sets and patch arrays."""
     parts: dict[str, list[np.ndarray]] = {}
@@ -170,8 +285,15 @@ def _patches_from_meshio(
         if len(v) >= 2 and v[1] == 1:
             line_names[int(v[0])] = name
 
+    for tag, name in (edge_tags or {}).items():
+        line_names[int(tag)] = str(name)
     # -- physical tags per element, in tag order --
-    phys = (mm.cell_data or {}).get("gmsh:physical")
+    array = edge_tag_array or DEFAULT_TAG_ARRAY
+    phys = (mm.cell_data or {}).get(array)
+    if edge_tag_array and phys is None:
+        have = ", ".join(repr(str(k)) for k in (mm.cell_data or {})) or "none"
+        raise MeshError(f"{source}: no cell-data array {edge_tag_array!r} to read edge tags from (edge_tag_array); "
+                        f"the file's cell-data arrays: {have}")
     if phys is not None:
         tagged: dict[int, list[np.ndarray]] = {}
         for k, edges in line_blocks:
@@ -185,9 +307,11 @@ def _patches_from_meshio(
                 n = sum(len(e) for e in tagged[tag])
                 known = ", ".join(f"{t} = {nm!r}" for t, nm in sorted(line_names.items())) or "none"
                 raise MeshError(
-                    f"{source}: {n} line element(s) carry physical tag {tag}, which has no name "
+                    f"{source}: {n} line element(s) carry physical tag {tag}"
+                    f"{'' if array == DEFAULT_TAG_ARRAY else f' (array {array!r})'}, which has no name "
                     f"(named line groups: {known}); give physical line group {tag} a name in the "
-                    "mesh file so it can serve as a boundary patch"
+                    f"mesh file, or name the tags in the case file: [mesh] edge_tags = {{ {tag} = \"<patch>\" }} "
+                    "(README, [mesh])"
                 )
             for e in tagged[tag]:
                 add(line_names[tag], e)

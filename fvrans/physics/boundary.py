@@ -3,11 +3,11 @@
 Kinds (integer codes shared with the solver kernels):
 
 * ``wall`` (0): no-slip; u = u_wall (tangential motion only), zero mass flux.
-* ``velocity-inlet`` (1): u = u_in (uniform, a table along a coordinate, or a Python callable).
-* ``pressure-outlet`` (2): fixed static pressure, zero-gradient velocity; reverse flow enters
+* ``inflow-velocity`` (1): u = u_in (uniform, a table along a coordinate, or a Python callable).
+* ``outflow-pressure`` (2): fixed static pressure, zero-gradient velocity; reverse flow enters
   normal to the boundary.
 * ``symmetry`` (3): zero normal velocity and zero shear.
-* ``freestream`` (4): fixed pressure; velocity u_inf where the flux enters, zero gradient where
+* ``outer-flow`` (4): fixed pressure; velocity u_inf where the flux enters, zero gradient where
   it leaves.
 """
 
@@ -19,12 +19,12 @@ from typing import Any
 
 import numpy as np
 
-from fvrans.case.schema import BoundarySpec
+from fvrans.case.schema import DEFAULT_EDDY_VISCOSITY_RATIO, DEFAULT_TURBULENCE_INTENSITY, BoundarySpec
 from fvrans.errors import CaseError
 from fvrans.mesh.geometry import Geometry
 from fvrans.mesh.mesh import Mesh
 
-KIND_CODES = {"wall": 0, "velocity-inlet": 1, "pressure-outlet": 2, "symmetry": 3, "freestream": 4}
+KIND_CODES = {"wall": 0, "inflow-velocity": 1, "outflow-pressure": 2, "symmetry": 3, "outer-flow": 4}
 WALL, INLET, OUTLET, SYMMETRY, FREESTREAM = 0, 1, 2, 3, 4
 
 
@@ -35,8 +35,14 @@ class FlowBoundary:
     kind: np.ndarray  # (nb,) int64 codes above
     velocity: np.ndarray  # (nb, 2) wall / inlet / freestream velocity
     pressure: np.ndarray  # (nb,) fixed static pressure (outlet, freestream)
-    nut_ratio: np.ndarray  # (nb,) inflow nu_tilde / nu (inlet, freestream)
+    nu_tilde_ratio: np.ndarray  # (nb,) inflow nu_tilde / nu (inlet, freestream)
     patch_kind: dict[str, str]  # patch name -> kind name
+    #: (nb,) inflow sqrt(2k/3) / |u| and nu_t / nu of two-equation models (inlet, freestream); None: defaults
+    turbulence_intensity: np.ndarray | None = None
+    eddy_viscosity_ratio: np.ndarray | None = None
+    #: (nb,) inflow k and omega of an inlet profile that gives them (NaN elsewhere); None: no such profile
+    inflow_k: np.ndarray | None = None
+    inflow_omega: np.ndarray | None = None
 
     @property
     def has_fixed_pressure(self) -> bool:
@@ -50,24 +56,28 @@ def _as_spec(spec: Any) -> BoundarySpec:
     return spec
 
 
-def _nut_ratio(spec: BoundarySpec, patch: str, xf: np.ndarray) -> np.ndarray:
+def _nu_tilde_ratio(spec: BoundarySpec, patch: str, xf: np.ndarray) -> np.ndarray:
     """Inflow nu_tilde / nu: the condition's value or profile column, 3 when it gives none."""
-    if spec.nut_ratio is None and spec.profile is None:
+    if spec.nu_tilde_ratio is None and spec.profile is None:
         return np.full(len(xf), 3.0)
-    return np.asarray(spec.nut_ratio_at(xf[:, 0], xf[:, 1], f"boundary.{patch}"), dtype=float)
+    return np.asarray(spec.nu_tilde_ratio_at(xf[:, 0], xf[:, 1], f"boundary.{patch}"), dtype=float)
 
 
 def build_flow_boundary(mesh: Mesh, geom: Geometry, specs: Mapping[str, Any]) -> FlowBoundary:
     """Per-face boundary arrays from ``specs``: patch name -> a case BoundarySpec, or a dict of
     its fields (``kind``, ``velocity`` as a vector or a callable f(x, y) -> (u, v),
-    ``pressure``, ``nut_ratio``)."""
+    ``pressure``, ``nu_tilde_ratio``)."""
     nb = mesh.n_boundary_faces
     ni = mesh.n_internal_faces
     kind = np.full(nb, -1, dtype=np.int64)
     vel = np.zeros((nb, 2))
     pres = np.zeros(nb)
     nut = np.zeros(nb)
+    tu = np.full(nb, DEFAULT_TURBULENCE_INTENSITY)
+    ratio = np.full(nb, DEFAULT_EDDY_VISCOSITY_RATIO)
     patch_kind: dict[str, str] = {}
+    k_in = np.full(nb, np.nan)
+    w_in = np.full(nb, np.nan)
     for patch in mesh.patches:
         if patch.name not in specs:
             raise CaseError(
@@ -94,15 +104,31 @@ def build_flow_boundary(mesh: Mesh, geom: Geometry, specs: Mapping[str, Any]) ->
                 vel[sl] = uw - un[:, None] * n  # tangential motion only
         elif code == INLET:
             vel[sl] = np.stack(spec.velocity_at(xf[:, 0], xf[:, 1], f"boundary.{patch.name}"), axis=1)
-            nut[sl] = _nut_ratio(spec, patch.name, xf)
+            nut[sl] = _nu_tilde_ratio(spec, patch.name, xf)
+            tu[sl], ratio[sl] = _two_equation_inflow(spec)
+            if isinstance(spec, BoundarySpec) and spec.profile_columns and "k" in spec.profile_columns:
+                k_in[sl] = spec.profile_column_at("k", xf[:, 0], xf[:, 1], f"boundary.{patch.name}")
+                w_in[sl] = spec.profile_column_at("omega", xf[:, 0], xf[:, 1], f"boundary.{patch.name}")
         elif code == OUTLET:
             pres[sl] = float(spec.pressure or 0.0)
         elif code == FREESTREAM:
             v = spec.velocity
             if v is None:
-                raise CaseError(f"boundary.{patch.name}: a freestream boundary needs 'velocity'")
+                raise CaseError(f"boundary.{patch.name}: an outer-flow boundary needs 'velocity'")
             vel[sl] = np.asarray(v, dtype=float)
             pres[sl] = float(spec.pressure or 0.0)
-            nut[sl] = _nut_ratio(spec, patch.name, xf)
-    return FlowBoundary(kind=kind, velocity=vel, pressure=pres, nut_ratio=nut, patch_kind=patch_kind)
+            nut[sl] = _nu_tilde_ratio(spec, patch.name, xf)
+            tu[sl], ratio[sl] = _two_equation_inflow(spec)
+    given = bool(np.any(np.isfinite(k_in)))
+    return FlowBoundary(kind=kind, velocity=vel, pressure=pres, nu_tilde_ratio=nut, patch_kind=patch_kind,
+                        turbulence_intensity=tu, eddy_viscosity_ratio=ratio, inflow_k=k_in if given else None,
+                        inflow_omega=w_in if given else None)
+
+
+def _two_equation_inflow(spec: BoundarySpec) -> tuple[float, float]:
+    """(turbulence intensity, nu_t / nu) of an inflow condition, defaults where it gives none."""
+    tu = getattr(spec, "turbulence_intensity", None)
+    ratio = getattr(spec, "eddy_viscosity_ratio", None)
+    return (DEFAULT_TURBULENCE_INTENSITY if tu is None else float(tu),
+            DEFAULT_EDDY_VISCOSITY_RATIO if ratio is None else float(ratio))
 

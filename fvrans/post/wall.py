@@ -235,11 +235,13 @@ def wall_data(
     mu: float,
     u_ref: float,
     p_ref: float = 0.0,
+    order: PatchOrder | None = None,
 ) -> WallData:
     """Shear stress, skin friction, wall pressure and y+ on the wall patch ``patch_name``.
 
     ``velocity`` (nc, 2), ``pressure`` (nc,) and ``grad_p`` (nc, 2) are cell values; ``mu`` is
-    the molecular dynamic viscosity. Formulas in the module docstring.
+    the molecular dynamic viscosity. Formulas in the module docstring. ``order``: the patch's
+    :func:`order_patch_faces`, when already known (evaluations every iteration reuse it).
     """
     _check_reference(rho, mu, u_ref)
     patch = mesh.patch(patch_name)
@@ -248,7 +250,7 @@ def wall_data(
     if np.any(kinds != WALL):
         other = _KIND_NAMES.get(int(kinds[kinds != WALL][0]), str(int(kinds[kinds != WALL][0])))
         raise CaseError(
-            f"patch {patch_name!r} is a {other} boundary, not a wall; wall shear stress and "
+            f"patch {patch_name!r} is of kind {other!r}, not a wall; wall shear stress and "
             "forces are evaluated on wall patches only"
         )
     nc = mesh.n_cells
@@ -260,7 +262,8 @@ def wall_data(
         if a.shape != shape:
             raise ValueError(f"{name} has shape {a.shape}, expected {shape} (one per cell)")
 
-    order = order_patch_faces(mesh, geom, patch_name)
+    if order is None:
+        order = order_patch_faces(mesh, geom, patch_name)
     f = patch.start + order.faces
     b = f - ni
     P = mesh.face_owner[f]

@@ -11,6 +11,8 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
+from fvrans.linalg._smoother_kernels import csr_residual_l1, gauss_seidel  # noqa: F401 (used as K.gauss_seidel)
+
 WALL = 0
 INLET = 1
 OUTLET = 2
@@ -20,14 +22,15 @@ FREESTREAM = 4
 
 @njit(cache=True)
 def assemble_momentum(
-    owner, neigh, n_int, S, dcoef, kvec, w, xf, xc, F, mu_f, u, gu, gc, bkind, bvel, second_order,
+    owner, neigh, n_int, S, dcoef, kvec, w, xf, xc, shift, F, mu_f, u, gu, gc, bkind, bvel, second_order,
     diag_u, diag_v, off_own, off_nei, bu, bv,
 ):
     """Coefficients of sum_f [F u_f - mu_f (grad u + grad u^T)_f . S_f] = 0 for both components.
 
     Implicit: first-order upwind convection and orthogonal diffusion. Explicit (deferred):
     linear-upwind correction F (u_f^LUD - u_f^UD) = F gc_U . (x_f - x_U) with the upwind cell's
-    gradient ``gc`` (the solver passes the face-sum gradient, see ``SimpleSolver``), non-orthogonal
+    gradient ``gc`` (the solver passes the face-sum gradient, see ``SimpleSolver``; the neighbour
+    at x_N + ``shift[f]``, its image across a periodic face), non-orthogonal
     diffusion mu k . grad u_f and the transpose-gradient stress mu (grad u)^T_f . S_f with ``gu``.
     ``off_own[f]`` multiplies u_N in row P, ``off_nei[f]`` multiplies u_P in row N.
     """
@@ -64,9 +67,14 @@ def assemble_momentum(
         su = mu * (k0 * g00 + k1 * g01 + g00 * s0 + g10 * s1)
         sv = mu * (k0 * g10 + k1 * g11 + g01 * s0 + g11 * s1)
         if second_order:
-            U = P if Ff >= 0.0 else N
-            r0 = xf[f, 0] - xc[U, 0]
-            r1 = xf[f, 1] - xc[U, 1]
+            if Ff >= 0.0:
+                U = P
+                r0 = xf[f, 0] - xc[P, 0]
+                r1 = xf[f, 1] - xc[P, 1]
+            else:
+                U = N
+                r0 = xf[f, 0] - xc[N, 0] - shift[f, 0]
+                r1 = xf[f, 1] - xc[N, 1] - shift[f, 1]
             su -= Ff * (gc[U, 0, 0] * r0 + gc[U, 0, 1] * r1)
             sv -= Ff * (gc[U, 1, 0] * r0 + gc[U, 1, 1] * r1)
         bu[P] += su
@@ -271,49 +279,6 @@ def correct_fluxes(owner, neigh, n_int, dcoef, rho, dp, bkind, pc, F):
         if kind == OUTLET or kind == FREESTREAM:
             P = owner[f]
             F[f] -= rho * dp[P] * dcoef[f] * (0.0 - pc[P])
-
-
-@njit(cache=True)
-def csr_residual_l1(indptr, indices, data, x, b):
-    """sum_i |b_i - (A x)_i|."""
-    n = b.shape[0]
-    total = 0.0
-    for i in range(n):
-        s = b[i]
-        for k in range(indptr[i], indptr[i + 1]):
-            s -= data[k] * x[indices[k]]
-        total += abs(s)
-    return total
-
-
-@njit(cache=True)
-def gauss_seidel(indptr, indices, data, diag_pos, b, x, max_sweeps, rtol):
-    """Symmetric Gauss-Seidel sweeps on A x = b until the L1 residual falls by ``rtol``.
-
-    Returns (sweeps, initial residual, final residual).
-    """
-    n = b.shape[0]
-    r0 = csr_residual_l1(indptr, indices, data, x, b)
-    r = r0
-    sweeps = 0
-    if r0 == 0.0:
-        return 0, r0, r0
-    for s in range(max_sweeps):
-        for i in range(n):
-            acc = b[i]
-            for k in range(indptr[i], indptr[i + 1]):
-                acc -= data[k] * x[indices[k]]
-            x[i] += acc / data[diag_pos[i]]
-        for i in range(n - 1, -1, -1):
-            acc = b[i]
-            for k in range(indptr[i], indptr[i + 1]):
-                acc -= data[k] * x[indices[k]]
-            x[i] += acc / data[diag_pos[i]]
-        sweeps = s + 1
-        r = csr_residual_l1(indptr, indices, data, x, b)
-        if r <= rtol * r0:
-            break
-    return sweeps, r0, r
 
 
 @njit(cache=True)

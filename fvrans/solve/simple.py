@@ -19,7 +19,7 @@ Start-up (``SolverControls.conservative_start``): a start without face fluxes (a
 field) is first made mass-conserving by adding the potential flow that carries what the inflow
 boundaries bring in to the fixed-pressure boundaries (``SimpleSolver._project_start``).
 
-Each iteration reports the scaled residuals of ``fvrans.fv.residual`` (summed imbalance over the
+Each iteration reports the normalised imbalances of ``fvrans.fv.residual`` (summed imbalance over the
 summed magnitudes of the equation's terms) of the state it started from.
 
 The converged solution does not depend on the relaxation factors: every deferred term is
@@ -39,15 +39,19 @@ from typing import Any
 import numpy as np
 
 from fvrans.errors import DivergenceError
+from fvrans.fields import Fields
+from fvrans.fv import stress as stress_modes
 from fvrans.fv.assembly import CsrAssembler
 from fvrans.fv.gradient import GaussLeastSquaresGradient, QuadraticFit, gradient_operator
+from fvrans.fv.stress import StressDivergence
 from fvrans.linalg.amg import AmgKrylovSolver
 from fvrans.linalg.pressure import PressureSolver
 from fvrans.mesh.geometry import Geometry
 from fvrans.mesh.mesh import Mesh
+from fvrans.models.base import EddyViscosityModel, TurbulenceModel  # noqa: F401 (the interface's old home)
 from fvrans.physics.boundary import SYMMETRY, WALL, FlowBoundary
 from fvrans.solve import _kernels as K
-from fvrans.solve.fields import Fields
+from fvrans.solve.mean_flow import BulkVelocityControl
 
 log = logging.getLogger(__name__)
 
@@ -142,7 +146,7 @@ class SolverControls:
 
 @dataclass
 class History:
-    """Scaled residuals per outer iteration (columns named in ``names``)."""
+    """Normalised imbalances per outer iteration (columns named in ``names``)."""
 
     names: list[str] = field(default_factory=lambda: ["u", "v", "continuity"])
     rows: list[list[float]] = field(default_factory=list)
@@ -152,29 +156,15 @@ class History:
         return np.asarray(self.rows, dtype=float).reshape(-1, len(self.names))
 
 
-class EddyViscosityModel:
-    """Interface of a turbulence model seen by the loop (laminar flow: this class as is)."""
-
-    names: tuple[str, ...] = ()
-
-    def eddy_viscosity(self, fields: Fields) -> np.ndarray | None:
-        """mu_t per cell, or None for laminar flow."""
-        return None
-
-    def wall_eddy_viscosity(self) -> float:
-        return 0.0
-
-    def update(self, fields: Fields, grad_u: np.ndarray, pseudo_time: np.ndarray | None = None) -> list[float]:
-        """Advance the model equations one outer iteration; return their scaled residuals.
-        ``pseudo_time`` (rho V / dt per cell, or None): the loop's local pseudo-time term, to be
-        added to the model equations' diagonals with its old-value source."""
-        return []
-
-
 class SimpleSolver:
     """Steady incompressible solver (SIMPLE/SIMPLEC, Rhie-Chow) on a fixed mesh.
 
-    ``mu`` is the dynamic viscosity, ``rho`` the density. ``model`` supplies the eddy viscosity.
+    ``mu`` is the dynamic viscosity, ``rho`` the density. ``model`` (a
+    :class:`fvrans.models.base.TurbulenceModel`; laminar when None) supplies the eddy viscosity,
+    an optional explicit extra stress and its own equations, advanced once per outer iteration.
+    ``body_force`` (per unit volume; a periodic flow's -dp/dx) and ``bulk_velocity`` (the volume-mean
+    velocity a periodic flow must carry; its uniform driving force is found each iteration, see
+    :mod:`fvrans.solve.mean_flow`) drive the flow.
     """
 
     def __init__(
@@ -186,8 +176,9 @@ class SimpleSolver:
         mu: float,
         controls: SolverControls | None = None,
         fields: Fields | None = None,
-        model: EddyViscosityModel | None = None,
+        model: TurbulenceModel | None = None,
         body_force: Callable[[np.ndarray], np.ndarray] | np.ndarray | None = None,
+        bulk_velocity: Any = None,
     ):
         self.mesh = mesh
         self.geom = geom
@@ -195,7 +186,7 @@ class SimpleSolver:
         self.rho = float(rho)
         self.mu = float(mu)
         self.ctl = controls or SolverControls()
-        self.model = model or EddyViscosityModel()
+        self.model = model if model is not None else TurbulenceModel()
         nc, nf, ni = mesh.n_cells, mesh.n_faces, mesh.n_internal_faces
         self.nc, self.nf, self.ni = nc, nf, ni
         # geometry for the kernels
@@ -296,15 +287,26 @@ class SimpleSolver:
             self.body = np.asarray(body_force(geom.cell_centre), dtype=float).reshape(nc, 2)
         else:
             self.body = np.broadcast_to(np.asarray(body_force, dtype=float), (nc, 2)).copy()
+        self.bulk = None if bulk_velocity is None else BulkVelocityControl(bulk_velocity, geom.cell_area)
         self.history = History(names=["u", "v", "continuity", *self.model.names])
         self.iteration = 0
         self.fields = fields.copy() if fields is not None else Fields.uniform(nc, nf)
         self.u_scale = self._velocity_scale()
+        self.model.initialise(self.fields)
+        # the explicit extra stress of the model (non-linear relations, injected stresses): its
+        # divergence is a momentum source; zero on walls, normal part only on symmetry planes
+        bmode = np.full(nf - ni, stress_modes.OWNER, dtype=np.int64)
+        bmode[boundary.kind == WALL] = stress_modes.ZERO
+        bmode[boundary.kind == SYMMETRY] = stress_modes.NORMAL
+        self.stress_divergence = StressDivergence(mesh, geom, bmode)
+        self.div_stress = np.zeros((nc, 2))
         if fields is None or not np.any(fields.face_flux):
             self.fields.face_flux = self._interpolated_fluxes(self.fields.velocity)
             if self.ctl.conservative_start:
                 self._project_start()
         self.grad_p = self.grad_pressure(self.fields.pressure, self._pressure_on_boundary(np.zeros((nc, 2))))
+        # models that need the gradient of a field other than the current one (an injected stress)
+        self.model.prepare(self.velocity_gradient)
 
     def _project_start(self) -> None:
         """Make the start's face fluxes conservative: F = F0 - rho dcoef (phi_N - phi_P) with
@@ -332,10 +334,32 @@ class SimpleSolver:
         phib = np.where(fixed, 0.0, phi[self.owner[ni:]])
         self.fields.velocity = self.fields.velocity - self.grad(phi, phib)
 
+    def velocity_gradient(self, velocity: np.ndarray, face_flux: np.ndarray | None = None) -> np.ndarray:
+        """The loop's cell gradient grad u[c, i, j] = du_i/dx_j of a velocity field, with boundary
+        values by the flow's conditions (``_velocity_on_boundary``; boundary fluxes ``face_flux`` or
+        rho u_b . S). The boundary values depend on the gradient (tangential extrapolation), as in the
+        loop, where they take the previous iteration's: here a few passes reach that fixed point."""
+        u = np.ascontiguousarray(velocity, dtype=float)
+        ni, nb = self.ni, self.nf - self.ni
+        g = np.zeros((self.nc, 2, 2))
+        F = np.zeros(self.nf)
+        ub = np.empty((nb, 2))
+        for it in range(4):
+            if face_flux is not None:
+                F[:] = face_flux
+            elif it:
+                F[ni:] = self.rho * np.einsum("ij,ij->i", ub, self.S[ni:])
+            K.boundary_velocity(self.owner, ni, self.geom.face_normal, self.geom.face_delta, self.bc.kind,
+                                self.bc.velocity, u, g, F, ub)
+            g = self.grad(u, ub)
+        return g
+
     # -- boundary values -----------------------------------------------------------------
     def _velocity_scale(self) -> float:
         s = float(np.abs(self.bc.velocity).max(initial=0.0))
         s = max(s, float(np.abs(self.fields.velocity).max(initial=0.0)))
+        if self.bulk is not None:
+            s = max(s, self.bulk.speed)
         return s if s > 0 else 1.0
 
     def _interpolated_fluxes(self, u: np.ndarray) -> np.ndarray:
@@ -372,7 +396,7 @@ class SimpleSolver:
 
     # -- one outer iteration ---------------------------------------------------------------
     def iterate(self) -> list[float]:
-        """One SIMPLE(C) outer iteration; returns the scaled residuals [u, v, continuity, ...]."""
+        """One SIMPLE(C) outer iteration; returns the normalised imbalances [u, v, continuity, ...]."""
         fl = self.fields
         ctl = self.ctl
         rho = self.rho
@@ -401,10 +425,16 @@ class SimpleSolver:
         t2 = time.perf_counter()
         K.assemble_momentum(
             self.owner, self.neigh, ni, self.S, self.dcoef, self.kvec, g.face_weight,
-            g.face_centre, g.cell_centre, F_old, self.muf, u_old, gu, gc, kind,
+            g.face_centre, g.cell_centre, g.face_shift, F_old, self.muf, u_old, gu, gc, kind,
             self.bc.velocity, ctl.convection == "linear-upwind",
             self.diag_u, self.diag_v, self.off_own, self.off_nei, self.bu, self.bv,
         )
+        # the model's explicit extra stress T (beside 2 mu_t S): + sum_f T_f . S_f on the right
+        extra = self.model.extra_stress(fl, gu)
+        if extra is not None:
+            div = self.stress_divergence(extra, out=self.div_stress)
+            self.bu += div[:, 0]
+            self.bv += div[:, 1]
         # body force and pressure gradient (cell gradient, Rhie-Chow handles the coupling),
         # residuals of the current velocity, implicit under-relaxation (Patankar 1980, sec. 4.2-5)
         gp = self.grad_p
@@ -436,6 +466,10 @@ class SimpleSolver:
                            ctl.momentum_sweeps, ctl.momentum_tolerance)
             K.gauss_seidel(mv_.indptr, mv_.indices, mv_.data, self.asm_v.diag_pos, self.rhs_v, vs,
                            ctl.momentum_sweeps, ctl.momentum_tolerance)
+        if self.bulk is not None:  # the uniform force that makes the predicted velocity carry the bulk
+            df = self.bulk.adjust(mu_, mv_, us, vs)
+            self.body += df
+            self.b_np += self.vol[:, None] * df
         t4 = time.perf_counter()
         # H/a = (b - N u*) / a_P, V / a_P and the relaxation share beta of the diagonal; D for p'
         K.interpolation_coefficients(
@@ -506,16 +540,13 @@ class SimpleSolver:
         callback: Callable[[int, list[float]], bool | None] | None = None,
         converged_when: Callable[[int, list[float]], bool] | None = None,
     ) -> bool:
-        """Iterate until every scaled residual is below ``tolerance`` (True) or the limit (False).
-
-        ``converged_when(iteration, residuals)``, if given, is asked only once every residual is
-        below the tolerance, and must also return True for the run to stop as converged (e.g. a
-        monitored quantity that has settled); otherwise the run goes on.
+        """Iterate until every normalised imbalance is below ``tolerance`` (True) or the limit (False).
 
         NaN/Inf, a speed above ``RUNAWAY_SPEED`` times the velocity scale, a linear system that
         lost its diagonal, or growth of a residual by ``divergence_factor`` above its minimum
         raises DivergenceError carrying the last good fields. ``callback(iteration, residuals)`` may
-        return True to stop early.
+        return True to stop early. ``converged_when(iteration, residuals)``, asked only when every
+        residual is below the tolerance, must also return True for the run to stop as converged.
         """
         n_max = self.ctl.max_iterations if max_iterations is None else max_iterations
         tol = self.ctl.tolerance if tolerance is None else tolerance
@@ -559,10 +590,9 @@ class SimpleSolver:
                     iteration=self.iteration - 1,
                 )
             last_good = self.fields.copy()
-            converged = bool(np.all(arr < tol)) and (
-                converged_when is None or bool(converged_when(self.iteration, res)))
-            if callback is not None and callback(self.iteration, res):
-                return converged
-            if converged:
+            stop = callback is not None and bool(callback(self.iteration, res))
+            if np.all(arr < tol) and (converged_when is None or converged_when(self.iteration, res)):
                 return True
+            if stop:
+                return False
         return False

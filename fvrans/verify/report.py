@@ -16,7 +16,8 @@ from typing import Any
 import numpy as np
 
 from fvrans.errors import CaseError
-from fvrans.post.writers import atomic_path, atomic_write, to_jsonable, write_json_atomic
+from fvrans.post._plot_data import cap_text
+from fvrans.post.writers import atomic_path, atomic_write, output_file, to_jsonable, write_json_atomic
 from fvrans.verify.compare import ItemResult, compare
 from fvrans.verify.spec import Spec, load_spec
 
@@ -56,16 +57,16 @@ def plot_item(res: ItemResult, path: str | os.PathLike) -> None:
             if ys.size and np.all(np.isfinite(ys)):
                 pad = 0.15 * max(float(ys.max() - ys.min()), 1e-12 * max(1.0, float(np.abs(ys).max())))
                 ax.set_ylim(float(ys.min()) - pad, float(ys.max()) + pad)
-        ax.set_xlabel(res.x_label)
+        ax.set_xlabel(cap_text(res.x_label))
         if res.log_x and rc.x.size and rc.x.max() > 0:
             ax.set_xscale("log")
-        ax.set_ylabel(res.label or res.name)
+        ax.set_ylabel(cap_text(res.label or res.name))
     elif res.compared is not None:
         _, ours, ref = res.compared
         if res.kind == "scalar":
             ax.bar([0, 1], [float(ours[0]), float(ref[0])], color=["C0", "C1"])
             ax.set_xticks([0, 1], ["result", "reference"])
-            ax.set_ylabel(res.label or res.name)
+            ax.set_ylabel(cap_text(res.label or res.name))
         else:
             ax.plot(ref, ours, ".", ms=2, label="cells")
             if len(ref):
@@ -74,7 +75,7 @@ def plot_item(res: ItemResult, path: str | os.PathLike) -> None:
             ax.set_xlabel("reference")
             ax.set_ylabel("result")
     value = f"{res.metric} = {res.value:.4g}" if res.value is not None else res.metric
-    ax.set_title(f"{res.name}: {value} (tolerance {res.tolerance:.4g}) {ok}", fontsize=10)
+    ax.set_title(f"{cap_text(res.name)}: {value} (tolerance {res.tolerance:.4g}) {ok}", fontsize=10)
     if ax.get_legend_handles_labels()[0]:
         ax.legend(fontsize=8)
     ax.grid(True, lw=0.3)
@@ -144,8 +145,9 @@ def write_report(results: Sequence[ItemResult], spec: Spec, result_dir: str | os
         raise CaseError(f"cannot create the report directory {out}: {exc.strerror}") from None
     for r in results:
         if plots and r.status != "error":
-            rel = f"{PLOT_DIR}/{r.name}.png"
-            plot_item(r, out / rel)
+            path = output_file(out, r.name, ".png", subfolder=PLOT_DIR, what=f"item {r.name!r}")
+            rel = f"{PLOT_DIR}/{path.name}"
+            plot_item(r, path)
             r.plot = rel
     n_fail = sum(r.status == "fail" for r in results)
     n_err = sum(r.status == "error" for r in results)
@@ -169,7 +171,8 @@ def compare_command(result_dir: str | os.PathLike, spec_path: str | os.PathLike,
     """``fvrans compare``: exit status 0 when all items pass, 1 when any fails, 2 for bad input
     (unreadable spec, result directory or reference; the report is still written when the spec is
     readable, with the broken items marked "error")."""
-    stream = stream if stream is not None else sys.stderr
+    out = stream if stream is not None else sys.stdout  # results to stdout, errors to stderr
+    err = stream if stream is not None else sys.stderr
     try:
         spec = load_spec(spec_path)
         if not Path(result_dir).is_dir():
@@ -177,11 +180,11 @@ def compare_command(result_dir: str | os.PathLike, spec_path: str | os.PathLike,
         results = compare(result_dir, spec)
         write_report(results, spec, result_dir, report_dir)
     except CaseError as exc:
-        print(f"error: {exc}", file=stream)
+        print(f"error: {exc}", file=err)
         return 2
     for r in results:
         tag = {"pass": "pass ", "fail": "FAIL ", "error": "ERROR"}[r.status]
-        print(f"{tag} {r.name}: {r.message}", file=stream)
+        print(f"{tag} {r.name}: {r.message}", file=out)
     if any(r.status == "error" for r in results):
         return 2
     return 1 if any(r.status == "fail" for r in results) else 0

@@ -77,6 +77,11 @@ def test_face_sum_gradient_keeps_the_reconstruction_bounded_in_stretched_wall_ce
     assert face_sum.max() < 2.0
 
 
+# At Re_h = 1e6 the run was a limit cycle (the velocity of some cell flipping by 8e-3 U every
+# iteration, so the monitors never settled) until the turbulence equation got local pseudo-time steps
+# (solver.turbulence_cfl; issue #14, item 1): see test_bump_at_re_1e6_converges_without_a_limit_cycle.
+
+
 @pytest.mark.parametrize("turbulence, mu", [("spalart-allmaras", 1e-5), ("spalart-allmaras", 1e-6), ("none", 1e-3)])
 def test_bump_with_stretched_wall_cells_converges_at_default_settings(turbulence, mu):
     r = fa.solve(bump_case(mu, turbulence))
@@ -102,7 +107,7 @@ def test_bump_at_re_1e6_converges_without_a_limit_cycle():
     """Re_h = 1e6 at the defaults, on to residuals 1e-9. Without the turbulence equation's local
     pseudo-time steps (turbulence_cfl = 0, relax_turbulence 1.0) this run stalls in a limit cycle
     with residuals between 4e-7 and 4e-6 (1 200 iterations, measured); Patankar relaxation of
-    nu_tilde (0.95) also ends it, but ties the stacks of thin cells of the step (coarse step 845
-    iterations instead of 584)."""
+    nu_tilde (0.95) also ends it, but ties the stacks of thin cells of the step (coarse step 901
+    iterations instead of 632)."""
     r = fa.solve(bump_case(1e-6, "spalart-allmaras").set("solver.tolerance", 1e-9))
     assert r.converged, r.message

@@ -30,10 +30,10 @@ parameters = { length = 4.0, height = 1.0, nx = 12, ny = 4 }
 density = 1.0
 viscosity = 0.05
 [boundary.inlet]
-kind = "velocity-inlet"
+kind = "inflow-velocity"
 velocity = [1.0, 0.0]
 [boundary.outlet]
-kind = "pressure-outlet"
+kind = "outflow-pressure"
 [boundary.lower_wall]
 kind = "wall"
 [boundary.upper_wall]
@@ -73,11 +73,11 @@ def test_grid_study_runs_a_case_on_mesh_files(tmp_path):
     assert abs(g["phi_ext21"] - CF_POISEUILLE) < 0.2 * abs(g["phi"][0] - CF_POISEUILLE)
     md = (out / "grid_study.md").read_text()
     assert f"| {STATION} |" in md and "| 1 (channel_24) | yes |" in md
-    assert (out / "plots" / f"{STATION.replace('@', '_').replace('=', '_')}.png").is_file()
-    # the drag of the whole lower wall includes the inlet corner (singular shear): the exit code
-    # follows the behaviour of the quantities (0 only when every one converges monotonically)
+    assert (out / "plots" / f"{STATION}.png").is_file()  # a plain name (no separator) keeps its form
+    # the drag of the whole lower wall includes the inlet corner (singular shear): its order falls
+    # far below the formal 2 (0.52) with a GCI of 17 %, which flags it, and the exit code is 1
     cd = data["quantities"]["walls.lower_wall.forces.Cd"]["finest"]
-    assert code == (0 if cd["behaviour"] == "monotone" and cd["p"] is not None else 1)
+    assert not g["flagged"] and cd["flagged"] and cd["p"] < 1.0 and code == 1
 
 
 def test_family_levels_give_the_bundled_meshes():

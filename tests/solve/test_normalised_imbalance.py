@@ -1,4 +1,4 @@
-"""Scaled residuals that depend neither on the cell size nor on the cell aspect ratio (#13, item 3).
+"""Normalised imbalances that depend neither on the cell size nor on the cell aspect ratio (#13, item 3).
 
 A channel of 25 x 8 cells at Re_h = 50 (rho U h / mu), started from rest, on copies scaled as a
 whole (absolute size x 1e3 and x 1e-3) and stretched (height 1e-4 to 1e-5 and 1e-6 of a length 1
@@ -16,7 +16,7 @@ import numpy as np
 import pytest
 import scipy.sparse as sp
 
-from fvrans.fv.residual import scaled_residual
+from fvrans.fv.residual import normalised_imbalance
 from fvrans.mesh import compute_geometry
 from fvrans.mesh.generate import channel
 from fvrans.physics.boundary import build_flow_boundary
@@ -25,8 +25,8 @@ from fvrans.solve.simple import SimpleSolver, SolverControls
 
 RE_H = 50.0
 SPECS = {
-    "inlet": {"kind": "velocity-inlet", "velocity": [1.0, 0.0]},
-    "outlet": {"kind": "pressure-outlet", "pressure": 0.0},
+    "inlet": {"kind": "inflow-velocity", "velocity": [1.0, 0.0]},
+    "outlet": {"kind": "outflow-pressure", "pressure": 0.0},
     "lower_wall": {"kind": "wall"},
     "upper_wall": {"kind": "wall"},
 }
@@ -102,15 +102,15 @@ def test_a_start_from_rest_reads_one_and_does_not_stop_as_converged():
     assert s.history.rows[-1][2] < 1e-4
 
 
-def test_scaled_residual_of_a_scalar_system():
+def test_normalised_imbalance_of_a_scalar_system():
     """sum |b - A x| / sum (|A||x| + |b|): in [0, 1], 1 at x = 0, 0 at the solution, invariant
     under scaling of the equation."""
     A = sp.csr_matrix(np.array([[4.0, -1.0, 0.0], [-1.0, 4.0, -1.0], [0.0, -1.0, 4.0]]))
     b = np.array([1.0, 2.0, 3.0])
     x = np.linalg.solve(A.toarray(), b)
-    assert scaled_residual(A, b, np.zeros(3)) == 1.0
-    assert scaled_residual(A, b, x) < 1e-15
+    assert normalised_imbalance(A, b, np.zeros(3)) == 1.0
+    assert normalised_imbalance(A, b, x) < 1e-15
     y = np.array([0.3, -0.2, 0.9])
-    r = scaled_residual(A, b, y)
+    r = normalised_imbalance(A, b, y)
     assert r == pytest.approx(np.abs(b - A @ y).sum() / (np.abs(A.toarray()) @ np.abs(y) + np.abs(b)).sum())
-    assert scaled_residual(1e-9 * A, 1e-9 * b, y) == pytest.approx(r)
+    assert normalised_imbalance(1e-9 * A, 1e-9 * b, y) == pytest.approx(r)
