@@ -24,15 +24,18 @@ from fvrans.mesh._blocks import (
     triangulate_region,
     uniform_points,
 )
+from fvrans.mesh.bodies import annulus, cylinder_channel
 from fvrans.mesh.mesh import Mesh
 from fvrans.mesh.shapes import bump_channel, planar_diffuser
 
 __all__ = [
     "LEVELS",
+    "annulus",
     "backward_facing_step",
     "bump_channel",
     "cavity",
     "channel",
+    "cylinder_channel",
     "flat_plate",
     "flat_plate_family",
     "flat_plate_lines",
