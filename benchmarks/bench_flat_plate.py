@@ -24,7 +24,8 @@ import numpy as np
 
 import fvrans.api as fa
 from fvrans.physics.spalart_allmaras import model_for_case
-from fvrans.post.wall import order_patch_faces, patch_forces
+from fvrans.post.forces import patch_forces
+from fvrans.post.wall import order_patch_faces
 from fvrans.solve.fields import Fields
 from fvrans.solve.simple import SimpleSolver, SolverControls
 

@@ -40,9 +40,12 @@ from fvrans.physics.boundary import FlowBoundary, build_flow_boundary
 from fvrans.physics.spalart_allmaras import eddy_viscosity as sa_eddy_viscosity
 from fvrans.physics.spalart_allmaras import model_for_case
 from fvrans.post import (
+    PatchForces,
     WallData,
     all_wall_data,
     build_summary,
+    forces_summary,
+    inflow_reference,
     wall_columns,
     write_csv_atomic,
     write_json_atomic,
@@ -50,12 +53,14 @@ from fvrans.post import (
     write_vtu_atomic,
 )
 from fvrans.post.probes import sample_line, write_probe_csv
+from fvrans.post.wall import zero_shear_columns
 from fvrans.solve.fields import Fields
 from fvrans.solve.simple import History, SimpleSolver, SolverControls
 
 log = logging.getLogger(__name__)
 
-__all__ = ["Problem", "Result", "apply_overrides", "case_from_dict", "load_case", "prepare", "solve"]
+__all__ = ["Problem", "Reference", "Result", "apply_overrides", "case_from_dict", "load_case", "prepare",
+           "reference_values", "solve"]
 
 
 @dataclass(frozen=True)
@@ -126,16 +131,28 @@ class Result:
         return self.history.as_array()
 
     # -- derived ----------------------------------------------------------------------------
+    def reference(self) -> Reference:
+        """The reference values of the coefficients and forces of this run (:func:`reference_values`)."""
+        return reference_values(self.problem)
+
     def walls(self) -> dict[str, WallData]:
         """Wall data (shear stress, Cf, Cp, y+) of every wall patch the output asks for."""
-        c = self.case
-        out = all_wall_data(
-            self.mesh, self.problem.geom, self.problem.boundary, self.velocity, self.pressure,
-            self.grad_p, c.fluid.density, c.fluid.viscosity, c.output.reference_velocity,
-            c.output.reference_pressure,
-        )
-        wanted = c.output.wall_patches
-        return {k: v for k, v in out.items() if not wanted or k in wanted}
+        if "walls" not in self.extra:
+            c = self.case
+            ref = self.reference()
+            self.extra["walls"] = all_wall_data(
+                self.mesh, self.problem.geom, self.problem.boundary, self.velocity, self.pressure,
+                self.grad_p, c.fluid.density, c.fluid.viscosity, ref.velocity, c.output.reference_pressure,
+                rho_ref=ref.density, patches=list(c.output.wall_patches),
+            )
+        return dict(self.extra["walls"])
+
+    def forces(self) -> tuple[dict[str, PatchForces], dict[str, PatchForces]]:
+        """Forces and moments of every reported wall patch and of every force group of the case
+        (``output.force_groups``), in the frame of the free stream (:mod:`fvrans.post.forces`)."""
+        ref = self.reference()
+        o = self.case.output
+        return forces_summary(self.walls(), o.reference_length, ref.direction, o.moment_centre, o.force_groups)
 
     def wall(self, patch: str) -> WallData:
         walls = self.walls()
@@ -151,10 +168,14 @@ class Result:
         extra.update(self.extra.get("summary", {}))
         if self.case.output.map_window is not None:
             extra["map_window"] = list(self.case.output.map_window)
+        ref = self.reference()
+        o = self.case.output
         return build_summary(
             self.case.title or self.case.label, self.converged, self.iterations, self.wall_seconds,
             self.mesh.n_cells, history=self.history, walls=self.walls(),
-            l_ref=self.case.output.reference_length, extra=extra,
+            l_ref=o.reference_length, flow_direction=ref.direction, extra=extra, moment_centre=o.moment_centre,
+            groups=o.force_groups, reference_notes={"u_ref_from": ref.velocity_from, "flow_direction_from":
+                                                    ref.direction_from},
         )
 
     # -- writing ----------------------------------------------------------------------------
@@ -164,8 +185,8 @@ class Result:
         return d
 
     def write(self, out_dir: str | Path) -> Path:
-        """Write summary.json, fields.vtu, wall/<patch>.csv, residuals.csv and profiles/<probe>.csv
-        into ``out_dir`` (each file atomically)."""
+        """Write summary.json, fields.vtu, wall/<patch>.csv, wall/zero_shear/<patch>.csv,
+        residuals.csv and profiles/<probe>.csv into ``out_dir`` (each file atomically)."""
         out = Path(out_dir)
         out.mkdir(parents=True, exist_ok=True)
         if self.case.output.write_fields:
@@ -176,6 +197,9 @@ class Result:
         for name, w in walls.items():
             header, cols = wall_columns(w)
             write_csv_atomic(out / "wall" / f"{name}.csv", header, cols)
+            header, cols = zero_shear_columns(w)
+            (out / "wall" / "zero_shear").mkdir(exist_ok=True)
+            write_csv_atomic(out / "wall" / "zero_shear" / f"{name}.csv", header, cols)
         write_residuals_csv(out / "residuals.csv", self.history)
         if self.case.probes:
             (out / "profiles").mkdir(exist_ok=True)
@@ -218,6 +242,42 @@ class Result:
             path, self.fields, n, list(self.history.names), self.history.as_array()[:n],
             np.asarray(self.history.seconds[:n]), self.velocity_scale, self.case, self.mesh, self.grad_p,
         )
+
+
+@dataclass(frozen=True)
+class Reference:
+    """Reference values of a run's coefficients: velocity U_ref, density, free-stream direction
+    (unit vector) and where the velocity and direction came from (``"case"``, ``"freestream"``,
+    ``"velocity-inlet"`` or ``"default"``)."""
+
+    velocity: float
+    density: float
+    direction: tuple[float, float]
+    velocity_from: str
+    direction_from: str
+
+
+def reference_values(problem: Problem) -> Reference:
+    """The case's reference values, the missing ones taken from its inflow
+    (:func:`fvrans.post.forces.inflow_reference`): U_ref the inflow's speed, the free-stream
+    direction the inflow's; without an inflow U_ref = 1 and the direction +x."""
+    o = problem.case.output
+    inflow = inflow_reference(problem.geom, problem.boundary, problem.mesh.n_internal_faces)
+    if o.reference_velocity is not None:
+        u, u_from = float(o.reference_velocity), "case"
+    elif inflow is not None:
+        u, u_from = inflow.speed, inflow.source
+    else:
+        u, u_from = 1.0, "default"
+    given = o.direction()
+    if given is not None:
+        e, e_from = given, "case"
+    elif inflow is not None:
+        e, e_from = inflow.direction, inflow.source
+    else:
+        e, e_from = (1.0, 0.0), "default"
+    rho = problem.case.fluid.density if o.reference_density is None else float(o.reference_density)
+    return Reference(u, rho, e, u_from, e_from)
 
 
 def _initial_fields(problem: Problem, initial: Result | Fields | None) -> Fields | None:

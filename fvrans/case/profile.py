@@ -19,6 +19,7 @@ from pathlib import Path
 
 import numpy as np
 
+from fvrans.case.formula import VectorFormula, values_at
 from fvrans.case.schema import DEFAULT_PROFILE_COLUMNS, BoundarySpec
 from fvrans.errors import CaseError
 
@@ -195,6 +196,8 @@ def evaluate_velocity(
     v = spec.velocity
     if v is None:
         raise CaseError(f"{label}: a {spec.kind} patch prescribes no velocity")
+    if isinstance(v, VectorFormula):
+        return v(x, y)
     if not callable(v):
         return np.full(x.shape, float(v[0])), np.full(x.shape, float(v[1]))
     try:
@@ -223,4 +226,9 @@ def evaluate_nut_ratio(spec: BoundarySpec, x: np.ndarray, y: np.ndarray, label: 
         return _interpolate(spec, x, y, "nut_ratio", label)
     if spec.nut_ratio is None:
         raise CaseError(f"{label}: a {spec.kind} patch prescribes no nut_ratio")
-    return np.full(x.shape, float(spec.nut_ratio))
+    out = values_at(spec.nut_ratio, x, y, "nut_ratio")
+    if np.any(out < 0):
+        i = int(np.argmin(out))
+        raise CaseError(f"{label}.nut_ratio: the formula {spec.nut_ratio.text!r} gives {out.ravel()[i]:.6g} < 0 at "
+                        f"({x.ravel()[i]:.6g}, {y.ravel()[i]:.6g}); nu_tilde / nu must be >= 0")
+    return out

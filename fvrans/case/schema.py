@@ -41,9 +41,15 @@ MOMENTUM_SOLVERS = ("amg", "gauss-seidel")
 TURBULENCE_SOLVERS = ("amg", "gauss-seidel")
 #: text standing for a Python function in :meth:`Case.to_dict`
 CALLABLE_TEXT = "<python callable>"
+#: ``output.reference_velocity`` value meaning "the inflow's speed" (the default)
+INFLOW = "inflow"
 
 VelocityFunction = Callable[[np.ndarray, np.ndarray], Any]
+#: a constant vector, a Python function f(x, y) -> (u, v), or a
+#: :class:`fvrans.case.formula.VectorFormula` (components as formulas in x, y)
 Velocity = tuple[float, float] | VelocityFunction
+#: a number or a :class:`fvrans.case.formula.Formula` in x, y (a per-face boundary value)
+Scalar = Any
 
 
 @dataclass(frozen=True)
@@ -86,8 +92,10 @@ class InitialState:
 class BoundarySpec:
     """The condition on one patch. Keys a kind does not use are ``None``.
 
-    ``velocity`` is ``(u, v)`` or, for a velocity inlet built in Python, a function
-    ``f(x, y) -> (u, v)`` of face-centre coordinates. ``profile`` is the absolute path of a CSV
+    ``velocity`` is ``(u, v)``, a :class:`~fvrans.case.formula.VectorFormula` (components given as
+    formulas in x, y) or, built in Python, a function ``f(x, y) -> (u, v)`` of face-centre
+    coordinates. ``pressure`` and ``nut_ratio`` are numbers or
+    :class:`~fvrans.case.formula.Formula` objects. ``profile`` is the absolute path of a CSV
     inlet profile and ``profile_columns`` maps ``coordinate``, ``u``, ``v`` (and ``nut_ratio``
     when the file has that column) to column names. ``nut_ratio`` is None when the profile
     supplies it.
@@ -95,8 +103,8 @@ class BoundarySpec:
 
     kind: str
     velocity: Velocity | None = None
-    pressure: float | None = None
-    nut_ratio: float | None = None
+    pressure: Scalar | None = None
+    nut_ratio: Scalar | None = None
     profile: Path | None = None
     profile_columns: dict[str, str] | None = None
 
@@ -156,15 +164,38 @@ class SolverSettings:
 
 @dataclass(frozen=True)
 class OutputSettings:
-    """Reference values for coefficients and which patches get wall quantities."""
+    """Reference values for coefficients, the free-stream direction and moment centre of forces,
+    groups of wall patches whose forces are summed, and which patches get wall quantities.
+
+    ``reference_velocity`` None: the inflow's speed (see :func:`fvrans.post.forces.inflow_reference`);
+    ``reference_density`` None: the fluid's; ``flow_direction`` / ``flow_angle`` (degrees from +x)
+    None: the inflow's direction (at most one of the two is given).
+    """
 
     wall_patches: tuple[str, ...] = ()
-    reference_velocity: float = 1.0
+    reference_velocity: float | None = None
     reference_pressure: float = 0.0
     reference_length: float = 1.0
     write_fields: bool = True
     #: (xmin, xmax, ymin, ymax) of the zoomed field maps, or None
     map_window: tuple[float, float, float, float] | None = None
+    reference_density: float | None = None
+    flow_direction: tuple[float, float] | None = None
+    flow_angle: float | None = None
+    moment_centre: tuple[float, float] = (0.0, 0.0)
+    force_groups: dict[str, tuple[str, ...]] = field(default_factory=dict)
+
+    def direction(self) -> tuple[float, float] | None:
+        """The free-stream unit vector the case gives (from flow_direction or flow_angle), or None."""
+        import math
+
+        if self.flow_angle is not None:
+            a = math.radians(self.flow_angle)
+            return (math.cos(a), math.sin(a))
+        if self.flow_direction is not None:
+            n = math.hypot(*self.flow_direction)
+            return (self.flow_direction[0] / n, self.flow_direction[1] / n)
+        return None
 
 
 @dataclass(frozen=True)
@@ -197,6 +228,8 @@ class Case:
     output: OutputSettings
     probes: dict[str, ProbeLine] = field(default_factory=dict)
     raw: dict[str, Any] | None = field(default=None, compare=False, repr=False)
+    #: the named constants of the case's formulas (``[formula_constants]``)
+    constants: dict[str, float] = field(default_factory=dict)
 
     @property
     def label(self) -> str:
@@ -285,8 +318,12 @@ def _vec(v) -> list[float]:
 
 def boundary_data(b: BoundarySpec, keep_callables: bool = False) -> dict[str, Any]:
     """One boundary condition as plain data (None fields left out)."""
+    from fvrans.case.formula import Formula, VectorFormula
+
     out: dict[str, Any] = {"kind": b.kind}
-    if b.velocity is not None:
+    if isinstance(b.velocity, VectorFormula):
+        out["velocity"] = b.velocity.data()
+    elif b.velocity is not None:
         if callable(b.velocity):
             out["velocity"] = b.velocity if keep_callables else CALLABLE_TEXT
         else:
@@ -295,10 +332,10 @@ def boundary_data(b: BoundarySpec, keep_callables: bool = False) -> dict[str, An
         out["profile"] = str(b.profile)
     if b.profile_columns is not None:
         out["profile_columns"] = dict(b.profile_columns)
-    if b.pressure is not None:
-        out["pressure"] = float(b.pressure)
-    if b.nut_ratio is not None:
-        out["nut_ratio"] = float(b.nut_ratio)
+    for key in ("pressure", "nut_ratio"):
+        v = getattr(b, key)
+        if v is not None:
+            out[key] = v.text if isinstance(v, Formula) else float(v)
     return out
 
 
@@ -312,15 +349,25 @@ def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
         mesh["parameters"] = copy_data(m.parameters)
     mesh["renumber"] = bool(m.renumber)
     s = case.solver
+    o = case.output
     output: dict[str, Any] = {
-        "wall_patches": list(case.output.wall_patches),
-        "reference_velocity": case.output.reference_velocity,
-        "reference_pressure": case.output.reference_pressure,
-        "reference_length": case.output.reference_length,
-        "write_fields": case.output.write_fields,
+        "wall_patches": list(o.wall_patches),
+        "reference_velocity": INFLOW if o.reference_velocity is None else o.reference_velocity,
+        "reference_pressure": o.reference_pressure,
+        "reference_length": o.reference_length,
+        "write_fields": o.write_fields,
+        "moment_centre": _vec(o.moment_centre),
     }
-    if case.output.map_window is not None:
-        output["map_window"] = [float(v) for v in case.output.map_window]
+    if o.reference_density is not None:
+        output["reference_density"] = o.reference_density
+    if o.flow_angle is not None:
+        output["flow_angle"] = o.flow_angle
+    if o.flow_direction is not None:
+        output["flow_direction"] = _vec(o.flow_direction)
+    if o.force_groups:
+        output["force_groups"] = {g: list(m) for g, m in o.force_groups.items()}
+    if o.map_window is not None:
+        output["map_window"] = [float(v) for v in o.map_window]
     data = {
         "title": case.title,
         "description": case.description,
@@ -358,6 +405,8 @@ def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
         },
         "output": output,
     }
+    if case.constants:
+        data["formula_constants"] = dict(case.constants)
     if case.probes:
         data["probes"] = {name: {"start": _vec(pr.start), "end": _vec(pr.end), "points": pr.points}
                           for name, pr in case.probes.items()}

@@ -2,8 +2,10 @@
 
 Kinds (integer codes shared with the solver kernels):
 
-* ``wall`` (0): no-slip; u = u_wall (tangential motion only), zero mass flux.
-* ``velocity-inlet`` (1): u = u_in (uniform, a table along a coordinate, or a Python callable).
+* ``wall`` (0): no-slip; u = u_wall (tangential motion only; constant, a formula or a Python
+  function of the face centres, e.g. a rotating cylinder), zero mass flux.
+* ``velocity-inlet`` (1): u = u_in (uniform, a table along a coordinate, a formula or a Python
+  callable; formulas and callables are averaged over each face by Simpson's rule).
 * ``pressure-outlet`` (2): fixed static pressure, zero-gradient velocity; reverse flow enters
   normal to the boundary.
 * ``symmetry`` (3): zero normal velocity and zero shear.
@@ -19,6 +21,7 @@ from typing import Any
 
 import numpy as np
 
+from fvrans.case.formula import values_at
 from fvrans.case.schema import BoundarySpec
 from fvrans.errors import CaseError
 from fvrans.mesh.geometry import Geometry
@@ -60,7 +63,7 @@ def _nut_ratio(spec: BoundarySpec, patch: str, xf: np.ndarray) -> np.ndarray:
 def build_flow_boundary(mesh: Mesh, geom: Geometry, specs: Mapping[str, Any]) -> FlowBoundary:
     """Per-face boundary arrays from ``specs``: patch name -> a case BoundarySpec, or a dict of
     its fields (``kind``, ``velocity`` as a vector or a callable f(x, y) -> (u, v),
-    ``pressure``, ``nut_ratio``)."""
+    ``pressure``, ``nut_ratio``; numbers or :class:`fvrans.case.formula.Formula` objects)."""
     nb = mesh.n_boundary_faces
     ni = mesh.n_internal_faces
     kind = np.full(nb, -1, dtype=np.int64)
@@ -88,21 +91,34 @@ def build_flow_boundary(mesh: Mesh, geom: Geometry, specs: Mapping[str, Any]) ->
         if code == WALL:
             v = spec.velocity
             if v is not None:
-                uw = np.broadcast_to(np.asarray(v, dtype=float), (patch.size, 2))
+                if callable(v):  # a Python function or a formula of the face centres
+                    uw = np.stack(spec.velocity_at(xf[:, 0], xf[:, 1], f"boundary.{patch.name}"), axis=1)
+                else:
+                    uw = np.broadcast_to(np.asarray(v, dtype=float), (patch.size, 2))
                 n = geom.face_normal[patch.start : patch.stop]
                 un = np.einsum("ij,ij->i", uw, n)
                 vel[sl] = uw - un[:, None] * n  # tangential motion only
         elif code == INLET:
-            vel[sl] = np.stack(spec.velocity_at(xf[:, 0], xf[:, 1], f"boundary.{patch.name}"), axis=1)
+            where = f"boundary.{patch.name}"
+            vel[sl] = np.stack(spec.velocity_at(xf[:, 0], xf[:, 1], where), axis=1)
+            if spec.profile is None and callable(spec.velocity):
+                # a formula or function: the face average by Simpson's rule, so that the inflow
+                # rate is exact for profiles up to cubic (a parabola at its centre values carries
+                # 1/(2 n^2) too much flow on n faces)
+                fp = mesh.face_points[patch.start : patch.stop]
+                pa, pb = mesh.points[fp[:, 0]], mesh.points[fp[:, 1]]
+                ua = np.stack(spec.velocity_at(pa[:, 0], pa[:, 1], where), axis=1)
+                ub = np.stack(spec.velocity_at(pb[:, 0], pb[:, 1], where), axis=1)
+                vel[sl] = (ua + 4.0 * vel[sl] + ub) / 6.0
             nut[sl] = _nut_ratio(spec, patch.name, xf)
         elif code == OUTLET:
-            pres[sl] = float(spec.pressure or 0.0)
+            pres[sl] = values_at(0.0 if spec.pressure is None else spec.pressure, xf[:, 0], xf[:, 1], "pressure")
         elif code == FREESTREAM:
             v = spec.velocity
             if v is None:
                 raise CaseError(f"boundary.{patch.name}: a freestream boundary needs 'velocity'")
             vel[sl] = np.asarray(v, dtype=float)
-            pres[sl] = float(spec.pressure or 0.0)
+            pres[sl] = values_at(0.0 if spec.pressure is None else spec.pressure, xf[:, 0], xf[:, 1], "pressure")
             nut[sl] = _nut_ratio(spec, patch.name, xf)
     return FlowBoundary(kind=kind, velocity=vel, pressure=pres, nut_ratio=nut, patch_kind=patch_kind)
 
