@@ -69,7 +69,7 @@ def main() -> None:
 
     cells = "squares split into triangles" if args.triangles else "uniform quads"
     print(f"lid-driven cavity Re=100, {cells}, SIMPLEC, controls {SolverControls(**controls)}")
-    print(f"converged = every scaled residual < {args.tolerance:g}")
+    print(f"converged = every normalised imbalance < {args.tolerance:g}")
     head = f"{'mesh':>8} {'cells':>7} {'conv':>5} {'iters':>6} {'total s':>8} {'s/iter':>8} {'us/cell/it':>10} "
     head += f"{'triad us':>9} {'/triad':>7} {'p CG/it':>7} {'mom Kr/it':>9}"
     rows = []

@@ -37,10 +37,10 @@ from scipy.spatial import cKDTree
 
 import fvrans.api as fa
 from fvrans.errors import CaseError
+from fvrans.fields import Fields
 from fvrans.mesh.generate import step_family
 from fvrans.post.plots import field_figure, make_plots, save_figure
 from fvrans.post.separation import cell_column, layer_thickness, reattachment_x, streamwise_points
-from fvrans.solve.fields import Fields
 
 ROOT = Path(__file__).resolve().parents[1]
 CASE = ROOT / "cases" / "step_medium.toml"
@@ -74,8 +74,8 @@ def injected(start: fa.Result, problem: fa.Problem) -> Fields:
     (the face fluxes are then interpolated from the velocity by the solver)."""
     idx = cKDTree(start.cell_centres).query(problem.geom.cell_centre)[1]
     f = start.fields
-    nt = None if f.nu_tilde is None else f.nu_tilde[idx].copy()
-    return Fields(f.velocity[idx].copy(), f.pressure[idx].copy(), np.zeros(problem.mesh.n_faces), nt)
+    variables = {k: v[idx].copy() for k, v in f.variables.items()}
+    return Fields(f.velocity[idx].copy(), f.pressure[idx].copy(), np.zeros(problem.mesh.n_faces), variables)
 
 
 def run_level(level: str, tolerance: float | None = None, start: fa.Result | None = None) -> tuple[dict, fa.Result]:

@@ -52,10 +52,10 @@ viscosity = 0.02
 [initial]
 velocity = [1.0, 0.0]
 [boundary.inlet]
-kind = "velocity-inlet"
+kind = "inflow-velocity"
 velocity = [1.0, 0.0]
 [boundary.outlet]
-kind = "pressure-outlet"
+kind = "outflow-pressure"
 [boundary.lower_wall]
 kind = "wall"
 [boundary.upper_wall]

@@ -28,7 +28,7 @@ ROOT = HERE.parent
 DPI = 100
 #: case -> plots kept (file names of fvrans.post.plots.result_figures)
 SELECTION: dict[str, tuple[str, ...]] = {
-    "flat_plate_turbulent": ("wall_plate_cf.png", "field_nut_ratio_zoom.png", "residuals.png"),
+    "flat_plate_turbulent": ("wall_plate_cf.png", "field_eddy_viscosity_ratio_zoom.png", "residuals.png"),
     "flat_plate_laminar": ("wall_plate_cf.png",),
     "step_coarse": ("field_velocity_zoom.png", "wall_lower_wall_cf.png", "probe_x_4.png"),
     "cavity_re100": ("field_velocity.png",),

@@ -50,7 +50,7 @@ def column_profiles(result: fa.Result, x: float) -> tuple[np.ndarray, np.ndarray
     y = np.concatenate([[0.0], result.cell_centres[cells, 1]])
     u = np.concatenate([[0.0], result.velocity[cells, 0]])
     v = np.concatenate([[0.0], result.velocity[cells, 1]])
-    nt = np.concatenate([[0.0], result.fields.nu_tilde[cells] / nu])
+    nt = np.concatenate([[0.0], result.fields.variables["nu_tilde"][cells] / nu])
     return y, u, v, nt
 
 
@@ -101,7 +101,7 @@ def main(argv: list[str] | None = None) -> int:
         f"# from flat_plate_turbulent.toml ({args.level} grid, SA) at x = {x_s:.5f}, lengths x {scale:.4f};",
         f"# Re_theta = {u_e * th / nu:.0f}, delta99 = {d99 * scale:.4f} H (edge velocity u(4 H) = {u_e:.5f});",
         "# upper half mirrored about y = 4 H",
-        "y,u,v,nut_ratio",
+        "y,u,v,nu_tilde_ratio",
     ]
     lines += [f"{a:.8e},{b:.8e},0.0,{c:.8e}" for a, b, c in zip(y_all, u_all, nt_all)]
     Path(args.out).write_text("\n".join(lines) + "\n")

@@ -31,14 +31,15 @@ from fvrans.case import Case, apply_overrides, case_from_dict, load_case
 from fvrans.case.build import build_case_mesh
 from fvrans.checkpoint import Checkpoint, read_checkpoint, write_checkpoint
 from fvrans.errors import CaseError, DivergenceError
-from fvrans.fv.boundary import boundary_face_values
+from fvrans.fields import Fields
+from fvrans.jit import CompileWatch
 from fvrans.mesh.geometry import Geometry, compute_geometry
 from fvrans.mesh.locate import CellLocator
 from fvrans.mesh.mesh import Mesh
 from fvrans.mesh.morph import topology_difference
+from fvrans.models import model_class, model_for_case, residual_names
+from fvrans.models.base import TurbulenceModel
 from fvrans.physics.boundary import FlowBoundary, build_flow_boundary
-from fvrans.physics.spalart_allmaras import eddy_viscosity as sa_eddy_viscosity
-from fvrans.physics.spalart_allmaras import model_for_case
 from fvrans.post import (
     PatchForces,
     WallData,
@@ -52,15 +53,21 @@ from fvrans.post import (
     write_residuals_csv,
     write_vtu_atomic,
 )
+from fvrans.post.filenames import output_file
 from fvrans.post.probes import sample_line, write_probe_csv
 from fvrans.post.wall import zero_shear_columns
-from fvrans.solve.fields import Fields
+from fvrans.reference import FieldSource, cell_source, read_result_folder
 from fvrans.solve.simple import History, SimpleSolver, SolverControls
 
 log = logging.getLogger(__name__)
 
-__all__ = ["Problem", "Reference", "Result", "apply_overrides", "case_from_dict", "load_case", "prepare",
-           "reference_values", "solve"]
+#: sub-folder of a result folder holding the zero-shear points of each wall patch (one CSV each)
+ZERO_SHEAR_FOLDER = "wall/zero_shear"
+
+__all__ = [
+    "Problem", "Reference", "Result", "apply_overrides", "case_from_dict", "load_case", "prepare",
+    "reference_values", "residual_names", "result_source", "solve", "start_fields",
+]
 
 
 @dataclass(frozen=True)
@@ -97,10 +104,14 @@ class Result:
     extra: dict[str, Any] = field(default_factory=dict)
     #: stopped on request (a callback returning True, Ctrl-C, SIGTERM) before converging
     interrupted: bool = False
-    #: velocity scale of the scaled residuals (kept in checkpoints)
+    #: velocity scale of the divergence guard (kept in checkpoints)
     velocity_scale: float = 1.0
     #: outer iteration the fields belong to (one less than ``iterations`` after a divergence)
     fields_iteration: int | None = None
+    #: the turbulence model of the run (its outputs and probe columns); None: none recorded
+    model: TurbulenceModel | None = None
+    #: seconds of ``wall_seconds`` spent compiling kernels (0 with a warm numba cache)
+    compile_seconds: float = 0.0
 
     # -- arrays -----------------------------------------------------------------------------
     @property
@@ -127,7 +138,7 @@ class Result:
 
     @property
     def residuals(self) -> np.ndarray:
-        """Scaled residuals per iteration, columns named by ``history.names``."""
+        """Normalised imbalances per iteration, columns named by ``history.names``."""
         return self.history.as_array()
 
     # -- derived ----------------------------------------------------------------------------
@@ -165,6 +176,8 @@ class Result:
         extra = {"message": self.message} if self.message else {}
         extra["diverged"] = self.diverged
         extra["interrupted"] = self.interrupted
+        extra["compile_seconds"] = self.compile_seconds
+        extra["solve_seconds"] = max(self.wall_seconds - self.compile_seconds, 0.0)
         extra.update(self.extra.get("summary", {}))
         if self.case.output.map_window is not None:
             extra["map_window"] = list(self.case.output.map_window)
@@ -189,41 +202,52 @@ class Result:
         residuals.csv and profiles/<probe>.csv into ``out_dir`` (each file atomically)."""
         out = Path(out_dir)
         out.mkdir(parents=True, exist_ok=True)
-        if self.case.output.write_fields:
-            write_vtu_atomic(out / "fields.vtu", self.mesh, self.cell_data())
         walls = self.walls()
+        # names from the mesh and the case become file names only through output_file
+        wall_files = {n: output_file(out, n, ".csv", subfolder="wall", what=f"wall patch {n!r}") for n in walls}
+        zero_shear_files = {n: output_file(out, n, ".csv", subfolder=ZERO_SHEAR_FOLDER, what=f"wall patch {n!r}")
+                            for n in walls}
+        probe_files = {n: output_file(out, n, ".csv", subfolder="profiles", what=f"probe {n!r}")
+                       for n in self.case.probes}
+        if self.case.output.write_fields:
+            write_vtu_atomic(out / "fields.vtu", self.mesh, self.cell_data(), within=out)
         if walls:
             (out / "wall").mkdir(exist_ok=True)
         for name, w in walls.items():
             header, cols = wall_columns(w)
-            write_csv_atomic(out / "wall" / f"{name}.csv", header, cols)
+            write_csv_atomic(wall_files[name], header, cols, within=out)
             header, cols = zero_shear_columns(w)
-            (out / "wall" / "zero_shear").mkdir(exist_ok=True)
-            write_csv_atomic(out / "wall" / "zero_shear" / f"{name}.csv", header, cols)
-        write_residuals_csv(out / "residuals.csv", self.history)
+            zero_shear_files[name].parent.mkdir(exist_ok=True)
+            write_csv_atomic(zero_shear_files[name], header, cols, within=out)
+        write_residuals_csv(out / "residuals.csv", self.history, within=out)
         if self.case.probes:
             (out / "profiles").mkdir(exist_ok=True)
-        for name in self.case.probes:
-            write_probe_csv(out / "profiles" / f"{name}.csv", self.probe(name))
-        write_json_atomic(out / "summary.json", self.summary())
+        for name, path in probe_files.items():
+            write_probe_csv(path, self.probe(name), within=out)
+        write_json_atomic(out / "summary.json", self.summary(), within=out)
         return out
 
     # -- line probes ------------------------------------------------------------------------
     def sample_line(self, start: Any, end: Any, points: int = 101, name: str = "line") -> dict[str, np.ndarray]:
         """Fields along a segment: columns ``s`` (distance from start), ``x``, ``y``, ``u``, ``v``,
-        ``p`` and, with Spalart-Allmaras, ``nu_tilde`` and ``nut_ratio`` (from the sampled nu_tilde).
-        Each value is the containing cell's value plus its gradient times the offset from the
-        cell centroid (:func:`fvrans.post.probes.sample_line`)."""
+        ``p`` and the turbulence model's probe columns (Spalart-Allmaras: ``nu_tilde`` and
+        ``eddy_viscosity_ratio``, the latter from the sampled nu_tilde). Each value is the containing cell's
+        value plus its gradient times the offset from the cell centroid
+        (:func:`fvrans.post.probes.sample_line`)."""
         values = {"u": self.velocity[:, 0], "v": self.velocity[:, 1], "p": self.pressure}
-        if self.fields.nu_tilde is not None:
-            values["nu_tilde"] = self.fields.nu_tilde
+        gradients = dict(self.extra.get("gradients", {}))
+        if "probe_fields" not in self.extra and self.model is not None:
+            self.extra["probe_fields"] = self.model.probe_fields(self.fields)
+        for key, (v, g) in self.extra.get("probe_fields", {}).items():
+            values[key] = v
+            if g is not None:
+                gradients[key] = g
         if "locator" not in self.extra:
             self.extra["locator"] = CellLocator(self.mesh, centroids=self.problem.geom.cell_centre)
         cols = sample_line(self.extra["locator"], self.problem.geom.cell_centre, start, end, points, values,
-                           self.extra.get("gradients", {}), name=name)
-        if "nu_tilde" in cols:
-            nu = self.case.fluid.kinematic_viscosity
-            cols["nut_ratio"] = sa_eddy_viscosity(cols["nu_tilde"], nu) / nu
+                           gradients, name=name)
+        if self.model is not None:
+            cols.update(self.model.probe_columns(cols))
         return cols
 
     def probe(self, name: str) -> dict[str, np.ndarray]:
@@ -247,8 +271,8 @@ class Result:
 @dataclass(frozen=True)
 class Reference:
     """Reference values of a run's coefficients: velocity U_ref, density, free-stream direction
-    (unit vector) and where the velocity and direction came from (``"case"``, ``"freestream"``,
-    ``"velocity-inlet"`` or ``"default"``)."""
+    (unit vector) and where the velocity and direction came from (``"case"``, ``"outer-flow"``,
+    ``"inflow-velocity"`` or ``"default"``)."""
 
     velocity: float
     density: float
@@ -280,55 +304,96 @@ def reference_values(problem: Problem) -> Reference:
     return Reference(u, rho, e, u_from, e_from)
 
 
-def _initial_fields(problem: Problem, initial: Result | Fields | None) -> Fields | None:
+def result_source(result: Result) -> FieldSource:
+    """The cell fields of a result (u, v, p and the turbulence model's variables, e.g. nu_tilde) as a
+    :class:`~fvrans.reference.FieldSource`, to interpolate onto another mesh."""
+    f = result.fields
+    values = {"u": f.velocity[:, 0], "v": f.velocity[:, 1], "p": f.pressure, **f.variables}
+    return cell_source(result.mesh, result.cell_centres, values, f"the result of {result.case.label}")
+
+
+def _interpolated_start(problem: Problem, source: FieldSource) -> tuple[Fields, dict[str, Any]]:
+    """The velocity and the case's model variables (those the source has, e.g. nu_tilde) of
+    ``source`` at the cell centres: linear, the nearest value outside its data. The pressure starts
+    uniform at initial.pressure and the face fluxes at zero, so the solver rebuilds them from the
+    velocity; a variable the source lacks starts as the model starts it (initial.nu_tilde_ratio).
+
+    The pressure is not carried over: with SIMPLEC the first pressure correction rebuilds it from the
+    velocity, consistent with the new grid, and an interpolated one slowed the convergence on the
+    laminar cases (coarse-to-fine laminar bump, Re_h 100, to 1e-7: 180 iterations with it, 137
+    without, 143 from the uniform start; DEVELOPERS.md has the table)."""
+    c, mesh = problem.case, problem.mesh
+    variables = [v for v in model_class(c.model.turbulence).variables if v in source]
+    wanted = ["u", "v", *variables]
+    got = source.interpolate(problem.geom.cell_centre, wanted, outside="nearest", estimate_error=False,
+                             target_label="cell")
+    fields = Fields(np.column_stack([got["u"], got["v"]]), np.full(mesh.n_cells, float(c.initial.pressure)),
+                    np.zeros(mesh.n_faces), {v: got[v].copy() for v in variables})
+    cov = got.coverage[0]
+    log.info("%s: start interpolated from %s: %s", c.label, source.label, cov)
+    report = {"from": source.label, "kind": source.kind, "quantities": wanted,
+              "cells_inside_data": cov.inside_share, "cells_nearest_value": cov.nearest,
+              "distance_max": cov.distance_max_outside}
+    return fields, report
+
+
+def start_fields(problem: Problem, initial: Result | Fields | FieldSource | str | Path | None
+                    ) -> tuple[Fields, dict[str, Any] | None]:
+    """The fields a run of ``problem`` starts from (see :func:`solve` for ``initial``) and, for a start
+    interpolated from elsewhere, what summary.json records about it under ``start`` (else None)."""
     mesh = problem.mesh
+    c = problem.case
+    if initial is None and c.initial.from_result is not None:
+        initial = c.initial.from_result
     if initial is None:
-        c = problem.case
-        f = Fields.uniform(mesh.n_cells, mesh.n_faces, c.initial.velocity, c.initial.pressure)
-        return f
+        return Fields.uniform(mesh.n_cells, mesh.n_faces, c.initial.velocity, c.initial.pressure), None
+    if isinstance(initial, (str, Path)):
+        initial = read_result_folder(initial)
+    if isinstance(initial, FieldSource):
+        return _interpolated_start(problem, initial)
     fields = initial.fields if isinstance(initial, Result) else initial
-    if fields.velocity.shape[0] != mesh.n_cells or fields.face_flux.shape[0] != mesh.n_faces:
+    same_size = fields.velocity.shape[0] == mesh.n_cells and fields.face_flux.shape[0] == mesh.n_faces
+    if isinstance(initial, Result) and (not same_size or topology_difference(initial.mesh, mesh) is not None):
+        return _interpolated_start(problem, result_source(initial))
+    if not same_size:
         raise CaseError(
             f"{problem.case.label}: the warm start has {fields.velocity.shape[0]} cells and "
             f"{fields.face_flux.shape[0]} faces but the mesh has {mesh.n_cells} and {mesh.n_faces}; "
-            "warm starts need the same mesh (or a morphed mesh with the same topology)"
+            "bare Fields need the same mesh: pass the Result (its mesh tells where the values are) to "
+            "interpolate them onto this one"
         )
-    diff = topology_difference(initial.mesh, mesh) if isinstance(initial, Result) else None
-    if diff is not None:
-        raise CaseError(
-            f"{problem.case.label}: the warm start's mesh has the same size but a different topology ({diff}); "
-            "warm starts need the same cells and faces: keep the generator's resolution parameters, "
-            "or morph the previous mesh (fvrans.mesh.morph)"
-        )
-    return fields.copy()
+    return fields.copy(), None
 
 
-def _gradients(solver: SimpleSolver, model: Any, grad_p: np.ndarray) -> dict[str, np.ndarray]:
-    """Cell gradients of u, v, p (and nu_tilde) of the final state, for probes."""
+def _gradients(solver: SimpleSolver, grad_p: np.ndarray) -> dict[str, np.ndarray]:
+    """Cell gradients of u, v, p of the final state, for probes."""
     f = solver.fields
     ub = solver._velocity_on_boundary(f.velocity, f.face_flux[solver.ni:])
     gu = solver.grad(np.ascontiguousarray(f.velocity, dtype=float), ub)
-    out = {"u": gu[:, 0, :].copy(), "v": gu[:, 1, :].copy(), "p": np.array(grad_p)}
-    if model is not None and f.nu_tilde is not None:
-        nt = np.ascontiguousarray(f.nu_tilde, dtype=float)
-        nt_b = boundary_face_values(model.mesh, model.geom, model.bc, nt, model.grad_nt)
-        out["nu_tilde"] = np.array(model.grad(nt, nt_b))
-    return out
+    return {"u": gu[:, 0, :].copy(), "v": gu[:, 1, :].copy(), "p": np.array(grad_p)}
 
 
 def solve(
     case: Case | Problem,
-    initial: Result | Fields | None = None,
+    initial: Result | Fields | FieldSource | str | Path | None = None,
     callback: Callable[[int, list[float]], bool | None] | None = None,
     *,
     restart: Checkpoint | str | Path | None = None,
     checkpoint: str | Path | None = None,
 ) -> Result:
-    """Solve a case (or a prepared Problem); ``initial`` warm-starts from a previous result on the
-    same mesh or one of the same topology (a neighbouring design of a parametric generator with the
-    same resolution, or a mesh morphed with :func:`fvrans.mesh.morph.morph`); a different cell or
-    face count, or (for a Result) a different topology, raises CaseError. A diverging run returns
-    a Result with ``diverged=True`` holding the last good state and the message; it does not raise.
+    """Solve a case (or a prepared Problem). A diverging run returns a Result with ``diverged=True``
+    holding the last good state and the message; it does not raise.
+
+    ``initial``: where the iterations start (default: the case's ``[initial]``, uniform values or
+    ``from_result``). A Result on the same mesh or one of the same topology (a neighbouring design
+    of a parametric generator with the same resolution, or a mesh morphed with
+    :func:`fvrans.mesh.morph.morph`) is copied as it is (fields and face fluxes). A Result on
+    another mesh, a result folder (path) or a :class:`~fvrans.reference.FieldSource` is
+    interpolated onto the cells (:mod:`fvrans.reference`: linear, the nearest value outside its
+    data): the velocity and the model's variables (nu_tilde) the source has; the pressure starts uniform at
+    ``initial.pressure`` and the face fluxes are rebuilt from the velocity;
+    summary.json then records the source and its coverage under ``start``. Bare Fields must
+    match the mesh in size.
 
     ``callback(iteration, residuals)`` is called after every outer iteration; returning True
     stops the run there (``interrupted=True`` unless it converged). ``restart``: a checkpoint
@@ -346,7 +411,7 @@ def solve(
         ckpt = restart if isinstance(restart, Checkpoint) else read_checkpoint(restart)
         ckpt.check_matches(c, problem.mesh)
         initial = ckpt.fields
-    fields = _initial_fields(problem, initial)
+    fields, start = start_fields(problem, initial)
     model = model_for_case(c, problem.mesh, problem.geom, problem.boundary)
     solver = SimpleSolver(
         problem.mesh, problem.geom, problem.boundary, rho=c.fluid.density, mu=c.fluid.viscosity,
@@ -376,8 +441,10 @@ def solve(
     message = ""
     diverged = False
     fields_iteration = None
+    watch = CompileWatch()
     try:
-        converged = solver.run(callback=step)
+        with watch:
+            converged = solver.run(callback=step)
     except DivergenceError as exc:
         converged = False
         diverged = True
@@ -397,18 +464,15 @@ def solve(
             f"not converged after {solver.iteration} iterations (tolerance {controls.tolerance:g}); "
             "raise solver.max_iterations or restart from this result"
         )
-    extra: dict[str, Any] = {"gradients": _gradients(solver, model, grad_p)}
-    if model is not None and solver.fields.nu_tilde is not None:
-        nt = solver.fields.nu_tilde
-        nu = c.fluid.kinematic_viscosity
-        extra["cell_data"] = {
-            "nu_tilde": nt,
-            "nut_ratio": sa_eddy_viscosity(nt, nu) / nu,
-            "wall_distance": model.wall_distance,
-        }
+    extra: dict[str, Any] = {
+        "gradients": _gradients(solver, grad_p),
+        "cell_data": model.cell_outputs(solver.fields),
+    }
+    if start is not None:
+        extra["summary"] = {"start": start}
     return Result(
         problem=problem, fields=solver.fields, history=solver.history, converged=bool(converged),
         iterations=solver.iteration, wall_seconds=seconds, grad_p=grad_p, message=message,
         diverged=diverged, extra=extra, interrupted=interrupted, velocity_scale=solver.u_scale,
-        fields_iteration=fields_iteration,
+        fields_iteration=fields_iteration, model=model, compile_seconds=watch.seconds,
     )

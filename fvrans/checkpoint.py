@@ -1,12 +1,13 @@
 """Checkpoints: the state of a run in one ``.npz`` file, written atomically, read back to resume.
 
-A checkpoint holds the :class:`~fvrans.solve.fields.Fields` (cell velocity and pressure, face
-mass fluxes, nu_tilde), the cell pressure gradient of the last iteration, the number of outer
-iterations done, the residual history so far, the velocity scale of the scaled residuals (so
-the history continues on the same scale), and the identity of the problem: a SHA-256 of the
-mesh (points, cells, faces, patches) and the physical settings (fluid, model, boundary
-conditions). A restart with another mesh or other physics is refused with a message naming
-what differs; solver settings (iterations, tolerance, relaxation, ...) may change between runs.
+A checkpoint holds the :class:`~fvrans.fields.Fields` (cell velocity and pressure, face
+mass fluxes, the turbulence model's variables by name), the cell pressure gradient of the last
+iteration, the number of outer iterations done, the residual history so far, the velocity scale of the run (the largest
+boundary or initial speed, against which the divergence guard measures speeds), and the
+identity of the problem: a SHA-256 of the mesh (points, cells, faces, patches) and the physical
+settings (fluid, model, boundary conditions). A restart with another mesh or other physics is
+refused with a message naming what differs; solver settings (iterations, tolerance, relaxation,
+...) may change between runs.
 
 The file is written to a temporary file in the same folder and renamed onto the target
 (:func:`fvrans.post.writers.atomic_write`), so an interrupted write leaves the previous
@@ -27,13 +28,17 @@ import numpy as np
 
 from fvrans.case import Case
 from fvrans.errors import CaseError
+from fvrans.fields import Fields
 from fvrans.mesh.mesh import Mesh
 from fvrans.post.writers import atomic_write
-from fvrans.solve.fields import Fields
 
 #: file name of the checkpoint inside a result folder
 CHECKPOINT_NAME = "checkpoint.npz"
-FORMAT_VERSION = 1
+FORMAT_VERSION = 2
+#: formats this version reads (1: the model variable stored under its own name)
+READABLE_VERSIONS = (1, 2)
+#: prefix of the arrays of the model variables (``variable.<name>``)
+VARIABLE_PREFIX = "variable."
 #: setting tables that define the problem (a restart must match them)
 PHYSICS_TABLES = ("fluid", "model", "boundary", "formula_constants")
 
@@ -152,8 +157,8 @@ def write_checkpoint(
         "mesh_hash": np.array(mesh_hash(mesh)),
         "physics": np.array(json.dumps(physics_settings(case), sort_keys=True)),
     }
-    if fields.nu_tilde is not None:
-        arrays["nu_tilde"] = np.asarray(fields.nu_tilde, dtype=float)
+    for name, values in fields.variables.items():
+        arrays[VARIABLE_PREFIX + name] = np.asarray(values, dtype=float)
     if pressure_gradient is not None:
         arrays["pressure_gradient"] = np.asarray(pressure_gradient, dtype=float)
     target = Path(path)
@@ -185,11 +190,14 @@ def read_checkpoint(path: str | os.PathLike) -> Checkpoint:
     missing = [k for k in need if k not in data]
     if missing:
         raise CaseError(f"{p}: not an fvrans checkpoint (missing {', '.join(missing)})")
-    if int(data["format_version"]) != FORMAT_VERSION:
+    if int(data["format_version"]) not in READABLE_VERSIONS:
         raise CaseError(f"{p}: checkpoint format {int(data['format_version'])}, this fvrans reads "
-                        f"{FORMAT_VERSION}; restart with the fvrans version that wrote it")
+                        f"{', '.join(map(str, READABLE_VERSIONS))}; restart with the fvrans version that wrote it")
     names = [str(n) for n in data["history_names"].tolist()]
-    fields = Fields(data["velocity"], data["pressure"], data["face_flux"], data.get("nu_tilde"))
+    variables = {k[len(VARIABLE_PREFIX):]: v for k, v in data.items() if k.startswith(VARIABLE_PREFIX)}
+    if int(data["format_version"]) == 1:  # the model variable under its own name
+        variables = {k: v for k, v in data.items() if k not in need and k != "pressure_gradient"}
+    fields = Fields(data["velocity"], data["pressure"], data["face_flux"], variables)
     return Checkpoint(
         fields=fields,
         iteration=int(data["iteration"]),

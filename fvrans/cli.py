@@ -6,25 +6,49 @@ from __future__ import annotations
 
 import argparse
 import logging
+import os
+import shlex
 import sys
 from pathlib import Path
 
+from fvrans.case.load import OVERRIDE_RULE
 from fvrans.errors import FvransError
 
 log = logging.getLogger(__name__)
 
 
+#: the resolved case (every override applied, every default filled in) inside a result folder
+RESOLVED_CASE = "case.toml"
+
+
 def _cmd_run(args: argparse.Namespace) -> int:
     from fvrans import api
     from fvrans.checkpoint import CHECKPOINT_NAME, read_checkpoint
+    from fvrans.jit import COMPILE_MESSAGE, CompileWatch
+    from fvrans.post.filenames import output_file
+    from fvrans.post.outputs import clear_previous_outputs, record_outputs
+    from fvrans.post.writers import atomic_write
     from fvrans.progress import RunProgress, StopRequest
 
     case = api.load_case(args.case)
     if args.set:
         case = api.apply_overrides(case, args.set)
-    problem = api.prepare(case)
+    progress: RunProgress | None = None
+
+    def compiling() -> None:  # once, when numba starts compiling (a cold cache)
+        if not args.quiet:
+            if progress is not None:
+                progress.note(COMPILE_MESSAGE)
+            else:
+                print(COMPILE_MESSAGE, file=sys.stderr, flush=True)
+
+    watch = CompileWatch(on_first=compiling)
+    with watch:
+        problem = api.prepare(case)
     log.info("%s: %d cells, %d faces, patches %s", case.label, problem.mesh.n_cells, problem.mesh.n_faces,
              ", ".join(problem.mesh.patch_names))
+    if log.isEnabledFor(logging.DEBUG):
+        _log_details(case, problem)
     restart = None
     if args.restart:
         restart = read_checkpoint(args.restart)
@@ -32,7 +56,13 @@ def _cmd_run(args: argparse.Namespace) -> int:
     out = Path(args.out)
     out.mkdir(parents=True, exist_ok=True)
     checkpoint = out / CHECKPOINT_NAME
-    names = ["u", "v", "continuity"] + (["nu_tilde"] if case.turbulent else [])
+    keep = [checkpoint] if restart is not None and Path(restart.source).resolve() == checkpoint.resolve() else []
+    removed = clear_previous_outputs(out, keep=keep)  # the input is good: the earlier run's files go now
+    if removed:
+        log.info("%s: removed the %d output files of the earlier run there", out, len(removed))
+    resolved = case.to_toml()
+    atomic_write(out / RESOLVED_CASE, lambda f: f.write(resolved), within=out)
+    names = api.residual_names(case)
     progress = RunProgress(names, case.solver.max_iterations, case.solver.tolerance,
                            first_iteration=restart.iteration if restart else 0, quiet=args.quiet)
     stop = StopRequest()
@@ -43,38 +73,72 @@ def _cmd_run(args: argparse.Namespace) -> int:
 
     stop.install()
     try:
-        result = api.solve(problem, callback=callback, restart=restart, checkpoint=checkpoint)
+        with watch:
+            result = api.solve(problem, callback=callback, restart=restart, checkpoint=checkpoint)
     finally:
         stop.restore()
         progress.close()
+    if watch.count:
+        log.info("compiled %d kernels in %.1f s (kept out of the solve time: summary.json's compile_seconds)",
+                 watch.count, watch.seconds)
+    again = " ".join(shlex.quote(str(a)) for a in ("fvrans", "run", out / RESOLVED_CASE, "--out", out,
+                                                    "--restart", out))
     if stop.signal_name is not None and result.interrupted:
-        result.message = (f"interrupted by {stop.signal_name} at iteration {result.iterations}; continue with: "
-                          f"fvrans run {args.case} --out DIR --restart {out}")
+        result.message = f"interrupted by {stop.signal_name} at iteration {result.iterations}; continue with: {again}"
         result.extra["summary"] = {"interrupted_by": stop.signal_name}
+    elif not result.converged and not result.diverged:
+        result.message += f"; continue with: {again} (--set solver.max_iterations=N for N more)"
+    written = [out / RESOLVED_CASE]
     if not result.converged or case.solver.checkpoint_every > 0 or checkpoint.exists():
-        result.write_checkpoint(checkpoint)
+        written.append(result.write_checkpoint(checkpoint))
     result.write(out)
+    written += [out / n for n in ("summary.json", "fields.vtu", "residuals.csv")]
+    written += [output_file(out, n, ".csv", subfolder=sub) for n in result.walls()  # as Result.write names them
+                for sub in ("wall", api.ZERO_SHEAR_FOLDER)]
+    written += [output_file(out, n, ".csv", subfolder="profiles") for n in case.probes]
     if not args.no_plots:
-        _plots(out)
+        written += _plots(out)
+    record_outputs(out, written)
+    log.debug("wrote %s", ", ".join(sorted(p.relative_to(out).as_posix() for p in written if p.is_file())))
+    log.debug("solve %.2f s, of which compiling kernels %.2f s", result.wall_seconds, result.compile_seconds)
     state = "converged" if result.converged else ("DIVERGED" if result.diverged else (
         "interrupted" if result.interrupted else "not converged"))
-    print(
-        f"{state} after {result.iterations} iterations in {result.wall_seconds:.1f} s; results in {out}",
-        file=sys.stderr,
-    )
+    print(f"{state} after {result.iterations} iterations in {result.wall_seconds:.1f} s; results in {out}")
     if result.message:
         print(result.message, file=sys.stderr)
     return 0 if result.converged else 1
 
 
-def _plots(out: Path) -> None:
+def _log_details(case, problem) -> None:
+    """What ``-v`` adds before a run: the boundary conditions, the model, the solver settings and
+    the mesh's quality figures."""
+    from fvrans.mesh.quality import mesh_quality
+
+    for name, b in case.boundaries.items():
+        keys = {k: v for k, v in vars(b).items() if v is not None and k != "kind"}
+        log.debug("boundary %s: %s %s", name, b.kind, keys or "")
+    log.debug("model: %s%s", case.model.turbulence,
+              f" ({case.model.sa_variant})" if case.turbulent else "")
+    s = case.solver
+    log.debug("solver: %s, relax u %g p %g turbulence %g, %s convection, %s gradient, limiter %s, tolerance %g, "
+              "at most %d iterations, momentum solver %s", s.coupling, s.relax_velocity, s.relax_pressure,
+              s.relax_turbulence, s.convection, s.gradient, s.limiter, s.tolerance, s.max_iterations,
+              s.momentum_solver)
+    q = mesh_quality(problem.mesh, problem.geom)
+    log.debug("mesh: %d triangles, %d quads, %d polygons; largest non-orthogonality %.1f deg, skewness %.3g, "
+              "aspect ratio %.3g%s", q.n_triangles, q.n_quads, q.n_polygons, q.max_nonorth_deg, q.max_skewness,
+              q.max_aspect_ratio, "".join(f"; warning: {w}" for w in q.warnings))
+
+
+def _plots(out: Path) -> list[Path]:
     """Plots of a result folder; a failure to plot is reported but does not fail the run."""
     from fvrans.post.plots import make_plots
 
     try:
-        make_plots(out)
+        return make_plots(out)
     except Exception as exc:  # noqa: BLE001 - the results are written; plotting is a convenience
         log.warning("plots of %s could not be made: %s", out, exc)
+        return []
 
 
 def _cmd_plot(args: argparse.Namespace) -> int:
@@ -96,6 +160,10 @@ def _cmd_info(args: argparse.Namespace) -> int:
         from fvrans.case import load_case
         from fvrans.case.build import build_case_mesh
 
+        spec = _spec_kind(path)
+        if spec is not None:
+            print(_spec_description(path, spec))
+            return 0
         case = load_case(path)
         print(f"# {case.label}: resolved settings (every default filled in)")
         print(case.to_toml())
@@ -108,33 +176,101 @@ def _cmd_info(args: argparse.Namespace) -> int:
 
 
 def _cmd_cases(args: argparse.Namespace) -> int:
+    from fvrans.bundled import bundled_cases_dir
     from fvrans.case import load_case
 
-    folder = Path(args.dir)
+    folder = Path(args.dir) if args.dir is not None else bundled_cases_dir()
     files = sorted(folder.glob("*.toml"))
+    if args.dir is None:
+        files += sorted(folder.glob("*/*.toml"))
     if not files:
         print(f"no case files (*.toml) in {folder.resolve()}; pass the folder with --dir", file=sys.stderr)
         return 2
-    width = max(len(f.name) for f in files)
+    if args.dir is None:
+        print(f"# the bundled cases ({folder}); copy one to start from: fvrans copy-case NAME DIR", file=sys.stderr)
+    names = {f: f.relative_to(folder).as_posix() for f in files}
+    width = max(len(n) for n in names.values())
     for f in files:
         try:
             c = load_case(f)
             text = c.description or c.title
         except FvransError as exc:
             text = _spec_title(f) or f"(cannot be loaded: {exc})"
-        print(f"{f.name:<{width}}  {text}")
+        print(f"{names[f]:<{width}}  {text}")
+    return 0
+
+
+def _cmd_copy_case(args: argparse.Namespace) -> int:
+    from fvrans.bundled import copy_case
+
+    written = copy_case(args.name, args.dir, overwrite=args.overwrite)
+    for p in written:
+        print(p)
+    first, out = shlex.quote(str(written[0])), shlex.quote(str(Path(args.dir) / "run"))
+    kind = _spec_kind(written[0])
+    hint = {"comparison": f"compare a result folder with it: fvrans compare RESULT_DIR {first} --report OUT",
+            "sweep": f"run it with: fvrans sweep {first} --out {out}"}.get(kind or "",
+                                                                         f"run it with: fvrans run {first} --out {out}")
+    print(hint, file=sys.stderr)
     return 0
 
 
 def _spec_title(path: Path) -> str | None:
-    """'comparison spec: <title>' for a file 'fvrans compare' reads, None for anything else."""
-    from fvrans.verify import load_spec
+    """'comparison spec: <title>' or 'sweep spec: <title>' for a spec file, None for anything else."""
+    kind = _spec_kind(path)
+    if kind is None:
+        return None
+    try:
+        loaded = _load_spec(path, kind)
+    except FvransError as exc:
+        return f"{kind} spec (cannot be loaded: {exc})"
+    return f"{kind} spec: {loaded.title}"
+
+
+#: top-level tables that mark a spec file: comparison specs list [[item]], sweep specs [[parameter]]
+_SPEC_MARKS = {"comparison": ("item",), "sweep": ("parameter", "plan", "output")}
+
+
+def _spec_kind(path: Path) -> str | None:
+    """``"comparison"`` or ``"sweep"`` when the TOML file at ``path`` is a spec rather than a case
+    (told by its top-level tables), else None."""
+    from fvrans.case.load import read_toml
 
     try:
-        spec = load_spec(path)
+        data = read_toml(path)
     except FvransError:
         return None
-    return f"comparison spec: {spec.title}"
+    for kind, marks in _SPEC_MARKS.items():
+        if any(m in data for m in marks) and "mesh" not in data:
+            return kind
+    return None
+
+
+def _load_spec(path: Path, kind: str):
+    if kind == "comparison":
+        from fvrans.verify import load_spec
+
+        return load_spec(path)
+    from fvrans.sweep import load_sweep
+
+    return load_sweep(path)
+
+
+def _spec_description(path: Path, kind: str) -> str:
+    """What ``fvrans info`` says about a spec file: what it is, what it holds, which command takes it."""
+    spec = _load_spec(path, kind)
+    if kind == "comparison":
+        names = ", ".join(i.name for i in spec.items)
+        return (f"{path}: a comparison spec, not a case file: {spec.title or '(no title)'}; {len(spec.items)} "
+                f"item(s): {names}\ncompare a result folder with it: fvrans compare RESULT_DIR {path} --report OUT")
+    from fvrans.sweep import design_points
+
+    runs = len(design_points(spec))
+    params = ", ".join(p.name for p in spec.parameters)
+    base = spec.case if not hasattr(spec.case, "label") else spec.case.label
+    return (f"{path}: a sweep spec, not a case file: {spec.title or '(no title)'}; base case {base}; "
+            f"{runs} run(s) varying {params}; {len(spec.outputs)} output(s)\n"
+            f"run it with: fvrans sweep {path} --out DIR")
 
 
 def _cmd_compare(args: argparse.Namespace) -> int:
@@ -152,7 +288,8 @@ def _cmd_grid_study(args: argparse.Namespace) -> int:
             print("error: --meshes, --family and --set need --case CASE.toml", file=sys.stderr)
             return 2
         return grid_study_command(
-            args.result_dirs, args.quantity, args.report, area=args.area, safety_factor=args.safety_factor
+            args.result_dirs, args.quantity, args.report, area=args.area, safety_factor=args.safety_factor,
+            formal_order=args.formal_order, gci_limit=args.gci_limit / 100.0,
         )
     if args.result_dirs or (args.meshes is None) == (args.family is None):
         print("error: with --case give the grids either as --meshes M1 M2 M3 or as --family NAME "
@@ -160,7 +297,8 @@ def _cmd_grid_study(args: argparse.Namespace) -> int:
         return 2
     return run_grid_study_command(
         args.case, args.quantity, args.report, meshes=args.meshes, family=args.family, levels=args.levels,
-        overrides=args.set, safety_factor=args.safety_factor,
+        overrides=args.set, safety_factor=args.safety_factor, formal_order=args.formal_order,
+        gci_limit=args.gci_limit / 100.0,
     )
 
 
@@ -183,7 +321,7 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--out", required=True, help="output folder (created if missing)")
     r.add_argument(
         "--set", action="append", default=[], metavar="KEY=VALUE",
-        help="override a setting, value in TOML syntax, e.g. --set solver.max_iterations=200 (repeatable)",
+        help=f"override a setting (repeatable), e.g. --set solver.max_iterations=200: {OVERRIDE_RULE}",
     )
     r.add_argument("--quiet", action="store_true", help="no progress bar, only errors and the final line")
     r.add_argument("--restart", metavar="DIR",
@@ -203,9 +341,15 @@ def build_parser() -> argparse.ArgumentParser:
     i.add_argument("path", help="mesh file (any format meshio reads) or case file (.toml)")
     i.set_defaults(func=_cmd_info)
 
-    c = sub.add_parser("cases", help="list the case files of a folder with their descriptions")
-    c.add_argument("--dir", default="cases", help="folder of case files (default: ./cases)")
+    c = sub.add_parser("cases", help="list the bundled case files (or those of a folder) with their descriptions")
+    c.add_argument("--dir", default=None, help="folder of case files (default: the cases bundled with fvrans)")
     c.set_defaults(func=_cmd_cases)
+    cc = sub.add_parser("copy-case", help="copy a bundled case with its mesh and the files it refers to into a "
+                                          "folder, to start from")
+    cc.add_argument("name", help="a bundled case or spec as 'fvrans cases' lists it, e.g. cavity_re100")
+    cc.add_argument("dir", help="folder to copy into (created if missing)")
+    cc.add_argument("--overwrite", action="store_true", help="replace files of the same name in DIR")
+    cc.set_defaults(func=_cmd_copy_case)
     k = sub.add_parser("compare", help="compare a result folder with reference data as a TOML spec describes")
     k.add_argument("result_dir", help="folder written by 'fvrans run'")
     k.add_argument("spec", help="comparison spec (TOML)")
@@ -226,10 +370,14 @@ def build_parser() -> argparse.ArgumentParser:
                    help="with --case: a generator family of fvrans.mesh.generate, e.g. flat_plate_family")
     g.add_argument("--levels", nargs="+", default=["coarse", "medium", "fine"], help="levels of --family")
     g.add_argument("--set", action="append", default=[], metavar="KEY=VALUE",
-                   help="with --case: override a setting on every grid (repeatable)")
+                   help=f"with --case: override a setting on every grid (repeatable); {OVERRIDE_RULE}")
     g.add_argument("--report", required=True, help="output folder")
     g.add_argument("--area", type=float, default=None, help="domain area for h = sqrt(area / N)")
     g.add_argument("--safety-factor", type=float, default=1.25, help="GCI safety factor (default 1.25)")
+    g.add_argument("--formal-order", type=float, default=2.0,
+                   help="formal order of the scheme (default 2); an observed order below half of it is flagged")
+    g.add_argument("--gci-limit", type=float, default=10.0, metavar="PERCENT",
+                   help="a GCI_fine above this is flagged (default 10 %%, common practice)")
     g.set_defaults(func=_cmd_grid_study)
 
     s = sub.add_parser("sweep", help="run a parameter sweep (a spec file) and write a results table")
@@ -293,6 +441,9 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("interrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:  # the reader went away (fvrans info ... | head): no traceback
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return 0
 
 
 if __name__ == "__main__":  # pragma: no cover

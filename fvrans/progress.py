@@ -2,7 +2,7 @@
 seconds otherwise (log files, CI), nothing with ``quiet``; and :class:`StopRequest`, which turns
 SIGINT / SIGTERM into a stop at the end of the current iteration.
 
-The time left is estimated from the recent decay of the largest scaled residual: with the
+The time left is estimated from the recent decay of the largest normalised imbalance: with the
 least-squares slope s of log10(residual) per iteration over the last iterations, the run needs
 about (log10(tolerance) - log10(residual)) / s more iterations (when s < 0), never more than the
 iteration limit allows; times the mean seconds per iteration of the recent iterations.
@@ -10,6 +10,7 @@ iteration limit allows; times the mean seconds per iteration of the recent itera
 
 from __future__ import annotations
 
+import io
 import logging
 import math
 import signal
@@ -85,14 +86,74 @@ class Estimate:
         return f"at most {when} left (iteration limit)" if at_limit else f"about {when} left"
 
 
+def fit_line(
+    iteration: int, total: int, names: Sequence[str], residuals: Sequence[float], rate: float | None,
+    eta: str, width: int,
+) -> str:
+    """The progress text, fitted into ``width`` characters by dropping fields by priority.
+
+    In order of what goes first: the seconds per iteration, then the long words (``iteration``
+    becomes ``it``, residual names are cut to four letters, ``about``/``at most`` become ``~``/``<=``),
+    then the time left, then every residual but the largest; the iteration count stays.
+
+    >>> fit_line(12, 500, ["u", "continuity"], [1e-3, 2e-4], 0.01, "about 5 s left", 100)
+    'iteration     12/500  u 1.00e-03  continuity 2.00e-04  0.0100 s/iteration  about 5 s left'
+    >>> fit_line(12, 500, ["u", "continuity"], [1e-3, 2e-4], 0.01, "about 5 s left", 40)
+    'it 12/500  u 1.0e-03  cont 2.0e-04'
+    """
+    width = max(int(width), 20)
+    count = f"{iteration:6d}/{total}"
+    full = "  ".join(f"{n} {r:8.2e}" for n, r in zip(names, residuals))
+    short = "  ".join(f"{n[:4]} {r:.1e}" for n, r in zip(names, residuals))
+    eta_short = eta.replace("about ", "~").replace("at most ", "<=").replace(" (iteration limit)", " (limit)")
+    vals = [float(r) for r in residuals]
+    worst = ""
+    if vals:
+        k = max(range(len(vals)), key=lambda i: vals[i] if math.isfinite(vals[i]) else math.inf)
+        worst = f"max {names[k][:4]} {vals[k]:.1e}"
+    rate_text = f"{rate:.4f} s/iteration" if rate is not None else ""
+    candidates = (
+        [f"iteration {count}", full, rate_text, eta],
+        [f"iteration {count}", full, eta],
+        [f"it {iteration}/{total}", short, eta_short],
+        [f"it {iteration}/{total}", short],
+        [f"it {iteration}/{total}", worst, eta_short],
+        [f"it {iteration}/{total}", worst],
+    )
+    for parts in candidates:
+        text = "  ".join(p for p in parts if p)
+        if len(text) <= width:
+            return text
+    return text[:width]
+
+
+def terminal_width(stream: IO[str] | None = None, default: int = 80) -> int:
+    """Columns of the terminal behind ``stream`` (``COLUMNS`` if set), else ``default``."""
+    import os
+    import shutil
+
+    env = os.environ.get("COLUMNS", "")
+    if env.isdigit() and int(env) > 0:
+        return int(env)
+    try:
+        fd = stream.fileno() if stream is not None else sys.stderr.fileno()
+        return os.get_terminal_size(fd).columns or default
+    except (AttributeError, OSError, ValueError, io.UnsupportedOperation):
+        return shutil.get_terminal_size((default, 24)).columns if stream is None else default
+
+
 class RunProgress:
     """Called after every outer iteration as ``progress(iteration, residuals)``.
 
     ``names``: residual names; ``first_iteration``: the iteration count a restarted run starts
     from; ``max_iterations``: iterations allowed to this run. ``stream``: default stderr. On a
-    terminal a rich progress bar (iteration, bar, residuals, time left); elsewhere a plain line
-    at the first iteration and then every ``every_s`` seconds; nothing when ``quiet``.
+    terminal a rich progress bar with the fields of :func:`fit_line`; elsewhere a plain line at
+    the first iteration and then every ``every_s`` seconds; nothing when ``quiet``. Every line
+    fits ``width`` columns (default: the terminal's, or 80 when the stream is not a terminal).
     """
+
+    #: columns of the bar on a terminal
+    BAR_WIDTH = 16
 
     def __init__(
         self,
@@ -105,6 +166,7 @@ class RunProgress:
         every_s: float = 5.0,
         clock: Callable[[], float] = time.perf_counter,
         force_terminal: bool | None = None,
+        width: int | None = None,
     ):
         self.names = list(names)
         self.quiet = quiet
@@ -116,6 +178,7 @@ class RunProgress:
         self.estimate = Estimate(tolerance, self.total)
         tty = bool(getattr(self.stream, "isatty", lambda: False)())
         self.tty = tty if force_terminal is None else force_terminal
+        self.width = int(width) if width is not None else (terminal_width(self.stream) if tty else 80)
         self.t_prev = clock()
         self.t_last_line = -math.inf
         self.last: tuple[int, list[float]] | None = None
@@ -127,30 +190,21 @@ class RunProgress:
 
     def _start_bar(self) -> None:
         from rich.console import Console
-        from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
+        from rich.progress import BarColumn, Progress, TextColumn
 
-        console = Console(file=self.stream, force_terminal=True, highlight=False)
+        console = Console(file=self.stream, force_terminal=True, highlight=False, width=self.width)
         self._bar = Progress(
-            TextColumn("iteration"), MofNCompleteColumn(), BarColumn(bar_width=24), TextColumn("{task.fields[res]}"),
-            TimeElapsedColumn(), TextColumn("{task.fields[eta]}"),
+            BarColumn(bar_width=self.BAR_WIDTH), TextColumn("{task.fields[text]}"),
             console=console, transient=False, refresh_per_second=4, redirect_stdout=False, redirect_stderr=False,
         )
-        self._task = self._bar.add_task("run", total=self.total, completed=self.first, res="", eta="")
+        self._task = self._bar.add_task("run", total=self.total, completed=self.first,
+                                        text=f"iteration {self.first}/{self.total}")
         self._bar.start()
 
-    def residual_text(self, residuals: Sequence[float]) -> str:
-        return "  ".join(f"{n} {r:8.2e}" for n, r in zip(self.names, residuals))
-
-    def line(self, iteration: int, residuals: Sequence[float]) -> str:
-        """The plain progress line."""
-        rate = self.estimate.seconds_per_iteration()
-        parts = [f"iteration {iteration:6d}/{self.total}", self.residual_text(residuals)]
-        if rate is not None:
-            parts.append(f"{rate:.4f} s/iteration")
-        eta = self.estimate.text(iteration)
-        if eta:
-            parts.append(eta)
-        return "  ".join(parts)
+    def line(self, iteration: int, residuals: Sequence[float], width: int | None = None) -> str:
+        """The progress text (see :func:`fit_line`) within ``width`` columns (default: the line's)."""
+        return fit_line(iteration, self.total, self.names, residuals, self.estimate.seconds_per_iteration(),
+                        self.estimate.text(iteration), self.width if width is None else width)
 
     def __call__(self, iteration: int, residuals: Sequence[float]) -> None:
         now = self.clock()
@@ -161,12 +215,22 @@ class RunProgress:
         if self.quiet:
             return
         if self._bar is not None:
-            self._bar.update(self._task, completed=iteration, res=self.residual_text(residuals),
-                             eta=self.estimate.text(iteration))
+            self._bar.update(self._task, completed=iteration,
+                             text=self.line(iteration, residuals, self.width - self.BAR_WIDTH - 2))
             return
         if iteration == self.first + 1 or now - self.t_last_line >= self.every_s:
             self._write_line(iteration, residuals)
             self.t_last_line = now
+
+    def note(self, text: str) -> None:
+        """A message between progress lines (above the bar on a terminal); nothing when quiet."""
+        if self.quiet:
+            return
+        if self._bar is not None:
+            self._bar.console.print(text, highlight=False, markup=False)
+        else:
+            self.stream.write(text + "\n")
+            self.stream.flush()
 
     def _write_line(self, iteration: int, residuals: Sequence[float]) -> None:
         self.stream.write(self.line(iteration, residuals) + "\n")
@@ -183,7 +247,6 @@ class RunProgress:
             self._bar = None
         elif not self.quiet and self.last is not None and self.last[0] != self.last_printed:
             self._write_line(*self.last)
-
 
 class StopRequest:
     """SIGINT (Ctrl-C) and SIGTERM ask the run to stop at the end of the current iteration; a
@@ -219,4 +282,4 @@ class StopRequest:
         return self.signal_name is not None
 
 
-__all__ = ["Estimate", "RunProgress", "StopRequest", "format_seconds"]
+__all__ = ["Estimate", "RunProgress", "StopRequest", "fit_line", "format_seconds", "terminal_width"]

@@ -79,7 +79,7 @@ def test_stopped_and_restarted_run_equals_the_uninterrupted_run(tmp_path, capsys
     # the first resumed iteration continues the trend (same state, same residual scale)
     full_res = np.genfromtxt(full / "residuals.csv", delimiter=",", names=True)
     assert res_res["u"][37] == pytest.approx(full_res["u"][37], rel=1e-3)
-    # same converged fields: both runs are at scaled residuals < 1e-10
+    # same converged fields: both runs are at normalised imbalances < 1e-10
     u_full, u_res = _cell_data(full, "velocity"), _cell_data(resumed, "velocity")
     p_full, p_res = _cell_data(full, "pressure"), _cell_data(resumed, "pressure")
     assert np.max(np.abs(u_res - u_full)) < 1e-8
@@ -158,7 +158,7 @@ def test_an_inlet_profile_is_identified_by_its_content_not_its_folder(tmp_path):
     data = {
         "mesh": {"generator": "channel", "parameters": {"nx": 4, "ny": 3}},
         "fluid": {"density": 1.0, "viscosity": 0.1},
-        "boundary": {"inlet": {"kind": "velocity-inlet", "profile": "in.csv"}, "outlet": {"kind": "pressure-outlet"},
+        "boundary": {"inlet": {"kind": "inflow-velocity", "profile": "in.csv"}, "outlet": {"kind": "outflow-pressure"},
                      "lower_wall": {"kind": "wall"}, "upper_wall": {"kind": "wall"}},
     }
     settings = []

@@ -25,7 +25,7 @@ def _drive(progress: RunProgress, clock: Clock, n: int, rate: float = 0.9, dt: f
 def test_plain_lines_every_few_seconds_with_residuals_and_time_left():
     clock, stream = Clock(), io.StringIO()
     p = RunProgress(["u", "v", "continuity"], max_iterations=1000, tolerance=1e-6, stream=stream, every_s=5.0,
-                    clock=clock)
+                    clock=clock, width=120)
     assert not p.tty
     _drive(p, clock, 40)  # 0.5 s per iteration: a line at iteration 1, then every 10 iterations
     lines = stream.getvalue().splitlines()
@@ -59,3 +59,42 @@ def test_quiet_writes_nothing_and_a_terminal_gets_a_bar():
     p.close()
     text = stream.getvalue()
     assert "iteration" in text and "/140" in text and "\x1b[" in text  # rich's live display
+
+
+NAMES = ["u", "v", "continuity", "nu_tilde"]
+
+
+def test_lines_fit_80_columns_dropping_fields_by_priority():
+    """Issue #12 item 12: every progress line fits 80 columns, plain or with the bar; fields go in
+    the order: seconds per iteration, long words, time left, all residuals but the largest."""
+    clock, stream = Clock(), io.StringIO()
+    p = RunProgress(NAMES, max_iterations=99999, tolerance=1e-12, stream=stream, clock=clock, every_s=0.0)
+    assert p.width == 80  # not a terminal: 80 columns
+    for it in range(1, 60):
+        clock.t += 12.3
+        p(it, [1.234e-3 * 0.99**it, 2e-4, 3.3e-5, 4.4e-7])
+    p.close()
+    lines = stream.getvalue().splitlines()
+    assert lines and max(len(ln) for ln in lines) <= 80
+    last = lines[-1]
+    # the residuals and the time left stay; the seconds per iteration went first
+    assert "s/iteration" not in last and all(n[:4] in last for n in NAMES) and "left" in last
+    # narrower: the time left goes, then all residuals but the largest
+    assert p.line(59, [1e-3, 2e-4, 3e-5, 4e-7], 70) == "it 59/99999  u 1.0e-03  v 2.0e-04  cont 3.0e-05  nu_t 4.0e-07"
+    assert p.line(59, [1e-3, 2e-4, 3e-5, 4e-7], 30) == "it 59/99999  max u 1.0e-03"
+
+
+def test_bar_lines_fit_80_columns():
+    clock, stream = Clock(), io.StringIO()
+    p = RunProgress(NAMES, max_iterations=99999, tolerance=1e-12, stream=stream, clock=clock, force_terminal=True,
+                    width=80)
+    for it in range(1, 30):
+        clock.t += 12.3
+        p(it, [1.234e-3, 2e-4, 3.3e-5, 4.4e-7])
+    p.close()
+    import re
+
+    visible = re.sub(r"\x1b\[[0-9;?]*[A-Za-z]", "", stream.getvalue())
+    lines = [ln for chunk in visible.split("\r") for ln in chunk.split("\n") if ln.strip()]
+    assert lines and max(len(ln) for ln in lines) <= 80, max(lines, key=len)
+    assert any("nu_t" in ln for ln in lines)

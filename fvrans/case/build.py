@@ -27,7 +27,7 @@ def check_case_against_mesh(case: Case, mesh: Mesh | Sequence[str]) -> None:
 
     With a :class:`~fvrans.mesh.mesh.Mesh` (rather than a list of patch names) it also checks
     that moving walls move along themselves, that inlet profiles cover their patches and that
-    Python inlet functions and formulas give finite values there (a nut_ratio formula also >= 0).
+    Python inlet functions and formulas give finite values there (a nu_tilde_ratio formula also >= 0).
     Raises CaseError listing all problems.
     """
     is_mesh = hasattr(mesh, "patches")
@@ -76,15 +76,15 @@ def _suggest_condition(name: str) -> str:
     """A table for patch ``name`` (kind guessed from the name), indented, for error messages."""
     low = name.lower()
     if "inlet" in low or "inflow" in low:
-        body = 'kind = "velocity-inlet"\nvelocity = [1.0, 0.0]   # the inflow velocity'
+        body = 'kind = "inflow-velocity"\nvelocity = [1.0, 0.0]   # the inflow velocity'
     elif "outlet" in low or "outflow" in low or "exit" in low:
-        body = 'kind = "pressure-outlet"\npressure = 0.0'
+        body = 'kind = "outflow-pressure"\npressure = 0.0'
     elif "sym" in low:
         body = 'kind = "symmetry"'
     elif "far" in low or "free" in low:
-        body = 'kind = "freestream"\nvelocity = [1.0, 0.0]   # the free-stream velocity'
+        body = 'kind = "outer-flow"\nvelocity = [1.0, 0.0]   # the free-stream velocity'
     else:
-        body = 'kind = "wall"   # or: velocity-inlet, pressure-outlet, symmetry, freestream'
+        body = 'kind = "wall"   # or: inflow-velocity, outflow-pressure, symmetry, outer-flow'
     lines = [f"[{format_key(('boundary', name))}]", *body.splitlines()]
     return "".join(f"  {line}\n" for line in lines)
 
@@ -115,21 +115,21 @@ def _check_values_on_mesh(case: Case, mesh: Mesh) -> None:
                         f"{label}.velocity: {shown} crosses the wall: "
                         f"{int(bad.sum())} of {len(un)} faces have a normal component (up to {abs(un[i]):.4g}"
                         f" at ({c[i, 0]:.6g}, {c[i, 1]:.6g})); a wall can only move along itself — give a "
-                        "velocity tangential to the wall, or use kind = \"velocity-inlet\" for flow "
+                        "velocity tangential to the wall, or use kind = \"inflow-velocity\" for flow "
                         "through it"
                     )
-        if spec.kind == "velocity-inlet":
+        if spec.kind == "inflow-velocity":
             # the profile range must cover the face end points; functions are tried on face centres
             if spec.profile is not None:
                 pts = np.concatenate([a, b])
                 spec.velocity_at(pts[:, 0], pts[:, 1], label)
-                spec.nut_ratio_at(pts[:, 0], pts[:, 1], label)
+                spec.nu_tilde_ratio_at(pts[:, 0], pts[:, 1], label)
             elif callable(spec.velocity):
                 c = 0.5 * (a + b)
                 spec.velocity_at(c[:, 0], c[:, 1], label)
         c = 0.5 * (a + b)
-        if spec.nut_ratio is not None and spec.profile is None:
-            spec.nut_ratio_at(c[:, 0], c[:, 1], label)
+        if spec.nu_tilde_ratio is not None and spec.profile is None:
+            spec.nu_tilde_ratio_at(c[:, 0], c[:, 1], label)
         if spec.pressure is not None:
             values_at(spec.pressure, c[:, 0], c[:, 1], "pressure")
 
@@ -192,7 +192,9 @@ def build_case_mesh(case: Case, check: bool = True) -> Mesh:
     if case.mesh.file is not None:
         from fvrans.mesh.io import read_mesh
 
-        mesh = read_mesh(case.mesh.file)
+        m = case.mesh
+        mesh = read_mesh(m.file, edge_tags=m.edge_tags, edge_tag_array=m.edge_tag_array, edge_boxes=m.edge_boxes,
+                         unnamed_edges=m.unnamed_edges)
     else:
         mesh = _generate(case)
     if case.mesh.renumber:

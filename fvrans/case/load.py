@@ -61,9 +61,21 @@ def load_case(path: str | Path) -> Case:
     return case_from_dict(read_toml(path), source=Path(path))
 
 
+#: the rule for ``--set`` (shown by ``fvrans run --help`` and in the README)
+OVERRIDE_RULE = (
+    "KEY=VALUE sets a dotted key, the value read as TOML (a bare word that is not TOML is a string); "
+    "KEY= (nothing after '=') removes the key so that its default applies; relative paths in a value "
+    "(mesh.file, boundary.<patch>.profile) start from the current directory, not from the case file"
+)
+#: dotted keys whose values are file paths (``*`` stands for any patch name)
+PATH_KEYS = (("mesh", "file"), ("boundary", "*", "profile"))
+
+
 def parse_override(item: str, label: str = "<in memory>") -> tuple[str, Any]:
     """Split ``"dotted.key=value"``; the value is read as TOML, and a bare word that is not
-    valid TOML is taken as a string.
+    valid TOML is taken as a string. An empty value (``"key="``) gives None: the key is removed.
+    Relative paths in path keys (:data:`PATH_KEYS`, also inside a table value) are made absolute
+    against the current directory.
 
     >>> parse_override("solver.max_iterations=100")
     ('solver.max_iterations', 100)
@@ -71,6 +83,8 @@ def parse_override(item: str, label: str = "<in memory>") -> tuple[str, Any]:
     ('boundary.lid.velocity', [2.0, 0.0])
     >>> parse_override("model.turbulence=spalart-allmaras")
     ('model.turbulence', 'spalart-allmaras')
+    >>> parse_override("solver.relax_velocity=")
+    ('solver.relax_velocity', None)
     """
     if not isinstance(item, str) or "=" not in item:
         raise CaseError(f"{label}: override {item!r} must look like key=value, "
@@ -90,7 +104,7 @@ def parse_override(item: str, label: str = "<in memory>") -> tuple[str, Any]:
     text = item[i + 1 :].strip()
     key = format_key(path)
     if not text:
-        raise CaseError(f"{label}: override {item!r} has no value after '='; write {key}=<value>")
+        return key, None
     try:
         value = tomllib.loads(f"v = {text}")["v"]
     except tomllib.TOMLDecodeError as exc:
@@ -98,7 +112,21 @@ def parse_override(item: str, label: str = "<in memory>") -> tuple[str, Any]:
             raise CaseError(f"{label}: override {item!r}: the value is not valid TOML ({exc}); "
                             'write lists as [2.0, 0.0], tables as { n = 64 }, strings as "text"') from None
         value = text
-    return key, value
+    return key, _absolute_paths(path, value)
+
+
+def _absolute_paths(path: tuple[str, ...], value: Any) -> Any:
+    """``value`` with relative paths of :data:`PATH_KEYS` below ``path`` made absolute (cwd)."""
+    for pattern in PATH_KEYS:
+        if len(path) > len(pattern) or any(p != q and q != "*" for p, q in zip(path, pattern)):
+            continue
+        if len(path) == len(pattern):
+            if isinstance(value, str) and value.strip() and not Path(value).expanduser().is_absolute():
+                return str(Path.cwd() / Path(value).expanduser())
+            return value
+        if isinstance(value, dict):
+            return {k: _absolute_paths((*path, str(k)), v) for k, v in value.items()}
+    return value
 
 
 def apply_overrides(case: Case, overrides: Sequence[str]) -> Case:

@@ -27,6 +27,10 @@ from fvrans.errors import CaseError
 RANGE_TOLERANCE = 1e-3
 #: mesh axes a profile can run along; the coordinate column carries the axis name
 AXES = ("x", "y")
+#: the column of nu_t / nu in fvrans's outputs (probe files, fields.vtu); never an inlet input
+OUTPUT_RATIO_COLUMN = "eddy_viscosity_ratio"
+#: column names that could mean nu_tilde / nu or nu_t / nu; refused unless named in profile_columns
+AMBIGUOUS_RATIO_COLUMNS = ("nut_ratio",)
 
 
 @dataclass(frozen=True, eq=False)
@@ -117,13 +121,18 @@ def _read_cached(path: str, mtime_ns: int, size: int) -> ProfileTable:
 
 
 def resolve_profile(
-    path: Path, given: Mapping[str, str], fail: Callable[[tuple[str, ...], str], CaseError]
+    path: Path, given: Mapping[str, str], fail: Callable[[tuple[str, ...], str], CaseError],
+    constant_given: bool = False,
 ) -> dict[str, str]:
     """Check a profile file against its column mapping; return the resolved mapping.
 
-    ``coordinate``, ``u`` and ``v`` must exist (under the given or default names); ``nut_ratio``
-    is included when named explicitly (then it must exist) or when the file has the default
-    column ``nut_ratio``. ``fail(key_suffix, message)`` makes the error.
+    ``coordinate``, ``u`` and ``v`` must exist (under the given or default names);
+    ``nu_tilde_ratio`` (nu_tilde / nu) is included when named explicitly (then it must exist) or
+    when the file has the default column ``nu_tilde_ratio``. One meaning per name: a column
+    ``eddy_viscosity_ratio`` holds nu_t / nu (what fvrans writes in its outputs) and a column
+    ``nut_ratio`` could mean either; a file with such a column is refused unless the mapping
+    names the nu_tilde / nu column, or (for ``eddy_viscosity_ratio`` alone) the inlet gives its
+    ``nu_tilde_ratio`` as a constant (``constant_given``). ``fail(key_suffix, message)`` makes the error.
     """
     for k, v in given.items():
         if not isinstance(v, str) or not v.strip():
@@ -137,11 +146,18 @@ def resolve_profile(
         raise fail(("profile_columns", "coordinate"),
                    f"must be 'x' or 'y', got {cols['coordinate']!r}: the profile is interpolated along "
                    "that mesh axis, and its CSV column carries the axis name")
-    nut_name = given.get("nut_ratio")
+    nut_name = given.get("nu_tilde_ratio")
+    if nut_name == OUTPUT_RATIO_COLUMN:
+        raise fail(("profile_columns", "nu_tilde_ratio"),
+                   f"names the column {OUTPUT_RATIO_COLUMN!r}, which holds nu_t / nu (the eddy-viscosity ratio "
+                   "fvrans writes in its outputs), while the inlet takes nu_tilde / nu; give a column of "
+                   "nu_tilde / nu (from a probe file of fvrans: its column nu_tilde divided by nu)")
     if nut_name is not None:
-        cols["nut_ratio"] = nut_name
-    elif DEFAULT_PROFILE_COLUMNS["nut_ratio"] in table.names:
-        cols["nut_ratio"] = DEFAULT_PROFILE_COLUMNS["nut_ratio"]
+        cols["nu_tilde_ratio"] = nut_name
+    else:
+        _refuse_ambiguous(path, table.names, constant_given, fail)
+        if DEFAULT_PROFILE_COLUMNS["nu_tilde_ratio"] in table.names:
+            cols["nu_tilde_ratio"] = DEFAULT_PROFILE_COLUMNS["nu_tilde_ratio"]
     for k, name in cols.items():
         if name not in table.names:
             how = (f"profile_columns.{k} names it" if k in given else
@@ -154,10 +170,32 @@ def resolve_profile(
         dup = float(ss[1:][np.diff(ss) <= 0][0])
         raise fail(("profile",), f"the profile file {path} has the coordinate {cols['coordinate']} = "
                    f"{dup:.6g} twice; give each station once")
-    if "nut_ratio" in cols and np.any(table.columns[cols["nut_ratio"]] < 0):
+    if "nu_tilde_ratio" in cols and np.any(table.columns[cols["nu_tilde_ratio"]] < 0):
         raise fail(("profile",), f"the profile file {path} has negative values in column "
-                   f"{cols['nut_ratio']!r}; nu_tilde / nu must be >= 0")
+                   f"{cols['nu_tilde_ratio']!r}; nu_tilde / nu must be >= 0")
     return cols
+
+
+def _refuse_ambiguous(path: Path, names: tuple[str, ...], constant_given: bool,
+                      fail: Callable[[tuple[str, ...], str], CaseError]) -> None:
+    """Refuse a profile whose turbulence column cannot be told apart (see :func:`resolve_profile`)."""
+    fix_map = 'or name the nu_tilde / nu column with profile_columns = { nu_tilde_ratio = "<column>" }'
+    for name in AMBIGUOUS_RATIO_COLUMNS:
+        if name in names:
+            raise fail(("profile",), f"the profile file {path} has a column {name!r}, which could mean nu_tilde / nu "
+                       f"or nu_t / nu; rename it to 'nu_tilde_ratio' if it holds nu_tilde / nu (what the inlet "
+                       f"takes) or to {OUTPUT_RATIO_COLUMN!r} if it holds nu_t / nu, {fix_map}")
+    if OUTPUT_RATIO_COLUMN not in names:
+        return
+    if DEFAULT_PROFILE_COLUMNS["nu_tilde_ratio"] in names:
+        raise fail(("profile",), f"the profile file {path} has both 'nu_tilde_ratio' (nu_tilde / nu) and "
+                   f"{OUTPUT_RATIO_COLUMN!r} (nu_t / nu) columns; say which the inlet takes: remove one of them "
+                   f"{fix_map}")
+    if not constant_given:
+        raise fail(("profile",), f"the profile file {path} has a column {OUTPUT_RATIO_COLUMN!r} (nu_t / nu, as "
+                   "fvrans writes in probe files) but no 'nu_tilde_ratio' column, and the inlet takes nu_tilde / nu; "
+                   "add a column nu_tilde_ratio (from a probe file of fvrans: its column nu_tilde divided by nu), "
+                   f"{fix_map}, or give this inlet a constant nu_tilde_ratio = <value>")
 
 
 def _interpolate(spec: BoundarySpec, x: np.ndarray, y: np.ndarray, what: str, label: str) -> np.ndarray:
@@ -195,7 +233,7 @@ def evaluate_velocity(
         return _interpolate(spec, x, y, "u", label), _interpolate(spec, x, y, "v", label)
     v = spec.velocity
     if v is None:
-        raise CaseError(f"{label}: a {spec.kind} patch prescribes no velocity")
+        raise CaseError(f"{label}: the patch of kind {spec.kind!r} prescribes no velocity")
     if isinstance(v, VectorFormula):
         return v(x, y)
     if not callable(v):
@@ -219,16 +257,17 @@ def evaluate_velocity(
     return u, w
 
 
-def evaluate_nut_ratio(spec: BoundarySpec, x: np.ndarray, y: np.ndarray, label: str) -> np.ndarray:
+def evaluate_nu_tilde_ratio(spec: BoundarySpec, x: np.ndarray, y: np.ndarray, label: str) -> np.ndarray:
     """nu_tilde / nu of the condition at points (x, y)."""
     x, y = np.broadcast_arrays(x, y)
-    if spec.profile_columns is not None and "nut_ratio" in spec.profile_columns:
-        return _interpolate(spec, x, y, "nut_ratio", label)
-    if spec.nut_ratio is None:
-        raise CaseError(f"{label}: a {spec.kind} patch prescribes no nut_ratio")
-    out = values_at(spec.nut_ratio, x, y, "nut_ratio")
+    if spec.profile_columns is not None and "nu_tilde_ratio" in spec.profile_columns:
+        return _interpolate(spec, x, y, "nu_tilde_ratio", label)
+    if spec.nu_tilde_ratio is None:
+        raise CaseError(f"{label}: the patch of kind {spec.kind!r} prescribes no nu_tilde_ratio")
+    out = values_at(spec.nu_tilde_ratio, x, y, "nu_tilde_ratio")
     if np.any(out < 0):
         i = int(np.argmin(out))
-        raise CaseError(f"{label}.nut_ratio: the formula {spec.nut_ratio.text!r} gives {out.ravel()[i]:.6g} < 0 at "
-                        f"({x.ravel()[i]:.6g}, {y.ravel()[i]:.6g}); nu_tilde / nu must be >= 0")
+        raise CaseError(f"{label}.nu_tilde_ratio: the formula {spec.nu_tilde_ratio.text!r} gives "
+                        f"{out.ravel()[i]:.6g} < 0 at ({x.ravel()[i]:.6g}, {y.ravel()[i]:.6g}); "
+                        "nu_tilde / nu must be >= 0")
     return out

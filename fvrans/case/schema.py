@@ -17,7 +17,7 @@ import numpy as np
 # -- allowed values ------------------------------------------------------------------------
 TURBULENCE_MODELS = ("none", "spalart-allmaras")
 SA_VARIANTS = ("standard", "no-ft2")
-BOUNDARY_KINDS = ("wall", "velocity-inlet", "pressure-outlet", "symmetry", "freestream")
+BOUNDARY_KINDS = ("wall", "inflow-velocity", "outflow-pressure", "symmetry", "outer-flow")
 COUPLINGS = ("simple", "simplec")
 CONVECTION_SCHEMES = ("upwind", "linear-upwind")
 GRADIENT_METHODS = ("least-squares", "green-gauss")
@@ -26,14 +26,14 @@ LIMITERS = ("none", "venkatakrishnan", "barth-jespersen")
 #: keys each boundary kind takes (besides none else)
 BOUNDARY_KEYS: dict[str, tuple[str, ...]] = {
     "wall": ("kind", "velocity"),
-    "velocity-inlet": ("kind", "velocity", "profile", "profile_columns", "nut_ratio"),
-    "pressure-outlet": ("kind", "pressure"),
+    "inflow-velocity": ("kind", "velocity", "profile", "profile_columns", "nu_tilde_ratio"),
+    "outflow-pressure": ("kind", "pressure"),
     "symmetry": ("kind",),
-    "freestream": ("kind", "velocity", "pressure", "nut_ratio"),
+    "outer-flow": ("kind", "velocity", "pressure", "nu_tilde_ratio"),
 }
-PROFILE_COLUMN_KEYS = ("coordinate", "u", "v", "nut_ratio")
+PROFILE_COLUMN_KEYS = ("coordinate", "u", "v", "nu_tilde_ratio")
 #: column names used when ``profile_columns`` does not name them
-DEFAULT_PROFILE_COLUMNS = {"coordinate": "y", "u": "u", "v": "v", "nut_ratio": "nut_ratio"}
+DEFAULT_PROFILE_COLUMNS = {"coordinate": "y", "u": "u", "v": "v", "nu_tilde_ratio": "nu_tilde_ratio"}
 #: default under-relaxation of the pressure correction for each coupling
 DEFAULT_RELAX_PRESSURE = {"simple": 0.3, "simplec": 1.0}
 DEFAULT_RELAX_VELOCITY = {"simple": 0.7, "simplec": 0.95}
@@ -54,12 +54,21 @@ Scalar = Any
 
 @dataclass(frozen=True)
 class MeshSettings:
-    """Where the mesh comes from: a file (absolute path) or a generator in ``fvrans.mesh.generate``."""
+    """Where the mesh comes from: a file (absolute path) or a generator in ``fvrans.mesh.generate``.
+
+    For a file whose boundary lines carry no names (:func:`fvrans.mesh.io.read_mesh`):
+    ``edge_tags`` (tag -> patch) with ``edge_tag_array``, ``edge_boxes`` (patch -> xmin, xmax,
+    ymin, ymax) and ``unnamed_edges`` (the patch of the boundary edges left).
+    """
 
     file: Path | None = None
     generator: str | None = None
     parameters: dict[str, Any] = field(default_factory=dict)
     renumber: bool = False
+    edge_tags: dict[int, str] = field(default_factory=dict)
+    edge_tag_array: str | None = None
+    edge_boxes: dict[str, tuple[float, float, float, float]] = field(default_factory=dict)
+    unnamed_edges: str | None = None
 
 
 @dataclass(frozen=True)
@@ -83,9 +92,14 @@ class ModelSettings:
 
 @dataclass(frozen=True)
 class InitialState:
+    """The start: uniform values, or the velocity and nu_tilde of a result folder (absolute path)
+    interpolated onto the cells (``pressure`` still sets the uniform start pressure; ``nu_tilde_ratio``
+    applies only when that result carries no nu_tilde)."""
+
     velocity: tuple[float, float] = (0.0, 0.0)
     pressure: float = 0.0
-    nut_ratio: float = 3.0
+    nu_tilde_ratio: float = 3.0
+    from_result: Path | None = None
 
 
 @dataclass(frozen=True)
@@ -94,17 +108,17 @@ class BoundarySpec:
 
     ``velocity`` is ``(u, v)``, a :class:`~fvrans.case.formula.VectorFormula` (components given as
     formulas in x, y) or, built in Python, a function ``f(x, y) -> (u, v)`` of face-centre
-    coordinates. ``pressure`` and ``nut_ratio`` are numbers or
+    coordinates. ``pressure`` and ``nu_tilde_ratio`` are numbers or
     :class:`~fvrans.case.formula.Formula` objects. ``profile`` is the absolute path of a CSV
-    inlet profile and ``profile_columns`` maps ``coordinate``, ``u``, ``v`` (and ``nut_ratio``
-    when the file has that column) to column names. ``nut_ratio`` is None when the profile
+    inlet profile and ``profile_columns`` maps ``coordinate``, ``u``, ``v`` (and ``nu_tilde_ratio``
+    when the file has that column) to column names. ``nu_tilde_ratio`` is None when the profile
     supplies it.
     """
 
     kind: str
     velocity: Velocity | None = None
     pressure: Scalar | None = None
-    nut_ratio: Scalar | None = None
+    nu_tilde_ratio: Scalar | None = None
     profile: Path | None = None
     profile_columns: dict[str, str] | None = None
 
@@ -118,11 +132,11 @@ class BoundarySpec:
 
         return evaluate_velocity(self, np.asarray(x, float), np.asarray(y, float), label)
 
-    def nut_ratio_at(self, x, y, label: str = "<in memory>: boundary") -> np.ndarray:
+    def nu_tilde_ratio_at(self, x, y, label: str = "<in memory>: boundary") -> np.ndarray:
         """Inflow ratio nu_tilde / nu at points ``(x, y)`` (constant, or from the profile file)."""
-        from fvrans.case.profile import evaluate_nut_ratio
+        from fvrans.case.profile import evaluate_nu_tilde_ratio
 
-        return evaluate_nut_ratio(self, np.asarray(x, float), np.asarray(y, float), label)
+        return evaluate_nu_tilde_ratio(self, np.asarray(x, float), np.asarray(y, float), label)
 
 
 @dataclass(frozen=True)
@@ -271,7 +285,7 @@ class Case:
         """A new validated case with several dotted keys changed at once (validated together).
 
         A value ``None`` removes the key (its default applies again); a table value replaces
-        the whole table, e.g. ``{"boundary.inlet": {"kind": "pressure-outlet"}}``. Inlet
+        the whole table, e.g. ``{"boundary.inlet": {"kind": "outflow-pressure"}}``. Inlet
         velocities may be Python functions ``f(x, y) -> (u, v)``.
         """
         from fvrans.case.validate import apply_changes, case_from_dict
@@ -285,9 +299,9 @@ class Case:
         """Velocity prescribed on ``patch`` at points ``(x, y)`` (see :meth:`BoundarySpec.velocity_at`)."""
         return self._boundary(patch).velocity_at(x, y, self._boundary_label(patch))
 
-    def boundary_nut_ratio(self, patch: str, x, y) -> np.ndarray:
+    def boundary_nu_tilde_ratio(self, patch: str, x, y) -> np.ndarray:
         """Inflow nu_tilde / nu on ``patch`` at points ``(x, y)``."""
-        return self._boundary(patch).nut_ratio_at(x, y, self._boundary_label(patch))
+        return self._boundary(patch).nu_tilde_ratio_at(x, y, self._boundary_label(patch))
 
     def _boundary(self, patch: str) -> BoundarySpec:
         from fvrans.case.validate import unknown_patch_error
@@ -332,11 +346,17 @@ def boundary_data(b: BoundarySpec, keep_callables: bool = False) -> dict[str, An
         out["profile"] = str(b.profile)
     if b.profile_columns is not None:
         out["profile_columns"] = dict(b.profile_columns)
-    for key in ("pressure", "nut_ratio"):
+    for key in ("pressure", "nu_tilde_ratio"):
         v = getattr(b, key)
         if v is not None:
             out[key] = v.text if isinstance(v, Formula) else float(v)
     return out
+
+
+def _initial_data(i: InitialState) -> dict[str, Any]:
+    if i.from_result is not None:
+        return {"from_result": str(i.from_result), "pressure": i.pressure, "nu_tilde_ratio": i.nu_tilde_ratio}
+    return {"velocity": _vec(i.velocity), "pressure": i.pressure, "nu_tilde_ratio": i.nu_tilde_ratio}
 
 
 def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
@@ -344,6 +364,14 @@ def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
     mesh: dict[str, Any] = {}
     if m.file is not None:
         mesh["file"] = str(m.file)
+        if m.edge_tags:
+            mesh["edge_tags"] = {str(k): v for k, v in m.edge_tags.items()}
+        if m.edge_tag_array is not None:
+            mesh["edge_tag_array"] = m.edge_tag_array
+        if m.edge_boxes:
+            mesh["edge_boxes"] = {k: [float(x) for x in v] for k, v in m.edge_boxes.items()}
+        if m.unnamed_edges is not None:
+            mesh["unnamed_edges"] = m.unnamed_edges
     if m.generator is not None:
         mesh["generator"] = m.generator
         mesh["parameters"] = copy_data(m.parameters)
@@ -374,11 +402,7 @@ def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
         "mesh": mesh,
         "fluid": {"density": case.fluid.density, "viscosity": case.fluid.viscosity},
         "model": {"turbulence": case.model.turbulence, "sa_variant": case.model.sa_variant},
-        "initial": {
-            "velocity": _vec(case.initial.velocity),
-            "pressure": case.initial.pressure,
-            "nut_ratio": case.initial.nut_ratio,
-        },
+        "initial": _initial_data(case.initial),
         "boundary": {name: boundary_data(b, keep_callables) for name, b in case.boundaries.items()},
         "solver": {
             "coupling": s.coupling,

@@ -32,10 +32,11 @@ _BARE_KEY = re.compile(r"^[A-Za-z0-9_-]+$")
 
 #: keys of each table; ``None`` marks the table of boundary tables
 TABLE_KEYS: dict[str, tuple[str, ...]] = {
-    "mesh": ("file", "generator", "parameters", "renumber"),
+    "mesh": ("file", "generator", "parameters", "renumber", "edge_tags", "edge_tag_array", "edge_boxes",
+             "unnamed_edges"),
     "fluid": ("density", "viscosity"),
     "model": ("turbulence", "sa_variant"),
-    "initial": ("velocity", "pressure", "nut_ratio"),
+    "initial": ("velocity", "pressure", "nu_tilde_ratio", "from_result"),
     "solver": (
         "coupling", "max_iterations", "tolerance", "relax_velocity", "relax_pressure",
         "relax_turbulence", "convection", "turbulence_convection", "gradient", "limiter",
@@ -314,7 +315,8 @@ def check_vector(v: Any, fail: Callable[[str], CaseError]) -> tuple[float, float
         v = v.tolist()
     need = "must be a list of 2 numbers [x component, y component]"
     if not isinstance(v, (list, tuple)):
-        extra = " (Python functions are accepted for velocity-inlet velocities only)" if callable(v) else ""
+        extra = (" (Python functions are accepted only for the velocity of an inflow-velocity patch)"
+                 if callable(v) else "")
         raise fail(f"{need}, got {describe(v)}{extra}")
     if len(v) != 2:
         raise fail(f"{need}, got {len(v)} item(s): {describe(v)}")
@@ -376,12 +378,7 @@ def case_from_dict(data: Mapping[str, Any], source: str | Path | None = None) ->
         turbulence=model_t.choice("turbulence", S.TURBULENCE_MODELS, "none"),
         sa_variant=model_t.choice("sa_variant", S.SA_VARIANTS, "standard"),
     )
-    init_t = _Table(ctx, ("initial",), top.table("initial", {}), TABLE_KEYS["initial"], "[initial]")
-    initial = S.InitialState(
-        velocity=init_t.vector("velocity", (0.0, 0.0)),
-        pressure=init_t.number("pressure", 0.0),
-        nut_ratio=init_t.number("nut_ratio", 3.0, NON_NEGATIVE, "the initial ratio nu_tilde / nu"),
-    )
+    initial = _initial(ctx, top.table("initial", {}))
     boundaries = _boundaries(ctx, top.table("boundary", hint=(
         'add one table per mesh patch, e.g. [boundary.walls] with kind = "wall"')))
     solver = _solver(ctx, top.table("solver", {}))
@@ -404,6 +401,41 @@ def case_from_dict(data: Mapping[str, Any], source: str | Path | None = None) ->
     )
 
 
+def _initial(ctx: _Ctx, data: Any) -> S.InitialState:
+    t = _Table(ctx, ("initial",), data, TABLE_KEYS["initial"], "[initial]")
+    from_result = None
+    if t.has("from_result"):
+        if t.has("velocity"):
+            raise t.fail("velocity", "the start velocity comes from from_result; remove initial.velocity")
+        from_result = _check_result_folder(ctx, ("initial", "from_result"), t.data["from_result"])
+    return S.InitialState(
+        velocity=t.vector("velocity", (0.0, 0.0)),
+        pressure=t.number("pressure", 0.0),
+        nu_tilde_ratio=t.number("nu_tilde_ratio", 3.0, NON_NEGATIVE, "the initial ratio nu_tilde / nu"),
+        from_result=from_result,
+    )
+
+
+def _check_result_folder(ctx: _Ctx, path: tuple[str, ...], v: Any) -> Path:
+    """An existing folder holding fields.vtu (the output folder of a run)."""
+    from fvrans.reference.source import RESULT_FIELDS
+
+    if isinstance(v, os.PathLike):
+        v = os.fspath(v)
+    if not isinstance(v, str) or not v.strip():
+        raise ctx.error(path, f"must be the path of a result folder (a quoted string), got {describe(v)}")
+    p = Path(v).expanduser()
+    full = (p if p.is_absolute() else ctx.base / p).resolve()
+    rel = "" if p.is_absolute() else f" (relative paths start from {ctx.base})"
+    if not full.is_dir():
+        raise ctx.error(path, f"the result folder {full} does not exist{rel}; give the folder a run wrote "
+                        "(fvrans run ... --out FOLDER)")
+    if not (full / RESULT_FIELDS).is_file():
+        raise ctx.error(path, f"{full} holds no {RESULT_FIELDS}; give the output folder of a run that wrote "
+                        "its fields (output.write_fields = true)")
+    return full
+
+
 def _mesh(ctx: _Ctx, data: Any) -> S.MeshSettings:
     t = _Table(ctx, ("mesh",), data, TABLE_KEYS["mesh"], "[mesh]")
     if t.has("file") and t.has("generator"):
@@ -417,7 +449,10 @@ def _mesh(ctx: _Ctx, data: Any) -> S.MeshSettings:
             raise t.fail("parameters", "only used with mesh.generator; remove it (or use a generator "
                          "instead of mesh.file)")
         return S.MeshSettings(file=_check_path(ctx, ("mesh", "file"), t.data["file"], "mesh file"),
-                              renumber=renumber)
+                              renumber=renumber, **_edge_names(t))
+    for k in ("edge_tags", "edge_tag_array", "edge_boxes", "unnamed_edges"):
+        if t.has(k):
+            raise t.fail(k, "only used with mesh.file (a generated mesh names its patches); remove it")
     gen = t.string("generator")
     if not gen.isidentifier():
         raise t.fail("generator", f"{gen!r} is not a generator name; give the name of a function in "
@@ -427,6 +462,44 @@ def _mesh(ctx: _Ctx, data: Any) -> S.MeshSettings:
         if not isinstance(k, str):
             raise t.fail("parameters", f"keys must be strings, got {describe(k)}")
     return S.MeshSettings(generator=gen, parameters=S.copy_data(params), renumber=renumber)
+
+
+def _edge_names(t: _Table) -> dict[str, Any]:
+    """The [mesh] keys that name the boundary edges of a file without names."""
+    out: dict[str, Any] = {}
+    tags = t.table("edge_tags", {})
+    names: dict[int, str] = {}
+    for k, v in tags.items():
+        try:
+            tag = int(str(k))
+        except ValueError:
+            raise t.fail("edge_tags", f"the key {k!r} is not an integer tag; write e.g. "
+                         'edge_tags = { 1 = "inlet", 2 = "walls" }') from None
+        if not isinstance(v, str) or not v.strip():
+            raise t.fail("edge_tags", f"tag {tag} must name a patch (a quoted string), got {describe(v)}")
+        names[tag] = v
+    out["edge_tags"] = names
+    if t.has("edge_tag_array"):
+        out["edge_tag_array"] = t.string("edge_tag_array")
+    boxes: dict[str, tuple[float, float, float, float]] = {}
+    for name, box in t.table("edge_boxes", {}).items():
+        if isinstance(box, np.ndarray):
+            box = box.tolist()
+        need = "must be [xmin, xmax, ymin, ymax], the box holding both ends of the patch's edges"
+        if not isinstance(box, (list, tuple)) or len(box) != 4:
+            raise t.fail("edge_boxes", f"{name!r} {need}, got {describe(box)}")
+        b = [check_number(c, lambda m, i=i, n=name: t.fail("edge_boxes", f"{n!r} item {i + 1} {m}")) for i, c in
+             enumerate(box)]
+        if not (b[0] <= b[1] and b[2] <= b[3]):
+            raise t.fail("edge_boxes", f"{name!r} {need} with xmin <= xmax and ymin <= ymax, got {b}")
+        boxes[str(name)] = (b[0], b[1], b[2], b[3])
+    out["edge_boxes"] = boxes
+    if t.has("unnamed_edges"):
+        v = t.string("unnamed_edges")
+        if not v.strip():
+            raise t.fail("unnamed_edges", "must name a patch, e.g. unnamed_edges = \"walls\"")
+        out["unnamed_edges"] = v
+    return out
 
 
 def _boundaries(ctx: _Ctx, data: Mapping[str, Any]) -> dict[str, S.BoundarySpec]:
@@ -458,24 +531,24 @@ def _boundary(ctx: _Ctx, name: str, data: Any) -> S.BoundarySpec:
             users = [kd for kd, keys in S.BOUNDARY_KEYS.items() if k in keys]
             why = (f"; {k} is used by kind(s) {_quoted_list(users)} only" if users
                    else did_you_mean(str(k), allowed))
-            raise ctx.error(path + (str(k),), f"not a key of kind {kind!r}{why}; a {kind} patch takes: "
+            raise ctx.error(path + (str(k),), f"not a key of kind {kind!r}{why}; a patch of kind {kind!r} takes: "
                             f"{', '.join(allowed)} — remove the key or change the kind")
-    t = _Table(ctx, path, data, allowed, f"a {kind} patch")
+    t = _Table(ctx, path, data, allowed, f"a patch of kind {kind!r}")
     if kind == "wall":
         v = t.data.get("velocity")
         if callable(v) and not isinstance(v, (list, tuple, np.ndarray)) and not hasattr(v, "data"):
             return S.BoundarySpec(kind, velocity=v)  # a Python function of the face centres
         return S.BoundarySpec(kind, velocity=t.vector_or_formula("velocity", (0.0, 0.0)))
-    if kind == "pressure-outlet":
+    if kind == "outflow-pressure":
         return S.BoundarySpec(kind, pressure=t.number_or_formula("pressure", 0.0))
     if kind == "symmetry":
         return S.BoundarySpec(kind)
-    if kind == "freestream":
+    if kind == "outer-flow":
         return S.BoundarySpec(
             kind,
             velocity=t.vector("velocity", hint="add velocity = [u, v], the free-stream velocity"),
             pressure=t.number_or_formula("pressure", 0.0),
-            nut_ratio=t.number_or_formula("nut_ratio", 3.0, NON_NEGATIVE, "the free-stream nu_tilde / nu"),
+            nu_tilde_ratio=t.number_or_formula("nu_tilde_ratio", 3.0, NON_NEGATIVE, "the free-stream nu_tilde / nu"),
         )
     return _inlet(ctx, t)
 
@@ -500,20 +573,21 @@ def _inlet(ctx: _Ctx, t: _Table) -> S.BoundarySpec:
             velocity: S.Velocity = v
         else:
             velocity = t.vector_or_formula("velocity")
-        return S.BoundarySpec("velocity-inlet", velocity=velocity,
-                              nut_ratio=t.number_or_formula("nut_ratio", 3.0, NON_NEGATIVE, "the inflow nu_tilde / nu"))
+        ratio = t.number_or_formula("nu_tilde_ratio", 3.0, NON_NEGATIVE, "the inflow nu_tilde / nu")
+        return S.BoundarySpec("inflow-velocity", velocity=velocity, nu_tilde_ratio=ratio)
     profile = _check_path(ctx, t.path + ("profile",), t.data["profile"], "inlet profile file")
     given = t.table("profile_columns", {})
     _Table(ctx, t.path + ("profile_columns",), given, S.PROFILE_COLUMN_KEYS, "profile_columns")
-    columns = resolve_profile(profile, given, lambda key, m: ctx.error(t.path + key, m))
-    if "nut_ratio" in columns:
-        if t.has("nut_ratio"):
-            raise t.fail("nut_ratio", f"the profile {profile} already gives nut_ratio in column "
-                         f"{columns['nut_ratio']!r}; remove this key (or the column)")
+    columns = resolve_profile(profile, given, lambda key, m: ctx.error(t.path + key, m),
+                              constant_given=t.has("nu_tilde_ratio"))
+    if "nu_tilde_ratio" in columns:
+        if t.has("nu_tilde_ratio"):
+            raise t.fail("nu_tilde_ratio", f"the profile {profile} already gives nu_tilde_ratio in column "
+                         f"{columns['nu_tilde_ratio']!r}; remove this key (or the column)")
         nut = None
     else:
-        nut = t.number_or_formula("nut_ratio", 3.0, NON_NEGATIVE, "the inflow nu_tilde / nu")
-    return S.BoundarySpec("velocity-inlet", profile=profile, profile_columns=columns, nut_ratio=nut)
+        nut = t.number_or_formula("nu_tilde_ratio", 3.0, NON_NEGATIVE, "the inflow nu_tilde / nu")
+    return S.BoundarySpec("inflow-velocity", profile=profile, profile_columns=columns, nu_tilde_ratio=nut)
 
 
 def _solver(ctx: _Ctx, data: Any) -> S.SolverSettings:
@@ -522,7 +596,7 @@ def _solver(ctx: _Ctx, data: Any) -> S.SolverSettings:
     return S.SolverSettings(
         coupling=coupling,
         max_iterations=t.integer("max_iterations", 5000, AT_LEAST_ONE, "the number of outer iterations"),
-        tolerance=t.number("tolerance", 1e-6, POSITIVE, "the scaled-residual tolerance"),
+        tolerance=t.number("tolerance", 1e-6, POSITIVE, "the normalised-imbalance tolerance"),
         relax_velocity=t.number("relax_velocity", S.DEFAULT_RELAX_VELOCITY[coupling], UNIT,
                                 "an under-relaxation factor"),
         relax_pressure=t.number("relax_pressure", S.DEFAULT_RELAX_PRESSURE[coupling], UNIT,

@@ -28,3 +28,20 @@ def residual(owner, neighbour, diag, off_owner, off_neighbour, source, phi, out)
         n = neighbour[f]
         out[o] -= off_owner[f] * phi[n]
         out[n] -= off_neighbour[f] * phi[o]
+
+
+@njit(cache=True)
+def residual_and_terms(indptr, indices, data, b, x):
+    """(sum_i |b_i - (A x)_i|, sum_i (sum_j |a_ij x_j| + |b_i|)) of a CSR system."""
+    r = 0.0
+    m = 0.0
+    for i in range(b.shape[0]):
+        acc = b[i]
+        mag = abs(b[i])
+        for k in range(indptr[i], indptr[i + 1]):
+            t = data[k] * x[indices[k]]
+            acc -= t
+            mag += abs(t)
+        r += abs(acc)
+        m += mag
+    return r, m

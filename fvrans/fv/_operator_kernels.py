@@ -104,3 +104,47 @@ def convection(owner, neighbour, nfi, flux, phi_b, face_centre, cell_centre, gra
                                   + grad[o, 1] * (face_centre[f, 1] - cell_centre[o, 1]))
         else:
             source[o] -= F * phi_b[f - nfi]
+
+
+@njit(cache=True)
+def stress_divergence(owner, neighbour, nfi, sf, weight, normal, bmode, stress, out):
+    """out[c] = sum_f T_f . S_f over the faces of c (outward S): the integral of div T over the
+    cell, T symmetric given per cell as (T_xx, T_xy, T_yy). Inside T_f = w T_O + (1-w) T_N;
+    boundary faces by ``bmode``: 0 zero stress, 1 the owner value, 2 the owner's normal-normal
+    part only, (n . T_O . n) n (no shear along the face)."""
+    nc = out.shape[0]
+    nf = owner.shape[0]
+    for c in range(nc):
+        out[c, 0] = 0.0
+        out[c, 1] = 0.0
+    for f in range(nfi):
+        o = owner[f]
+        n = neighbour[f]
+        w = weight[f]
+        txx = w * stress[o, 0] + (1.0 - w) * stress[n, 0]
+        txy = w * stress[o, 1] + (1.0 - w) * stress[n, 1]
+        tyy = w * stress[o, 2] + (1.0 - w) * stress[n, 2]
+        fx = txx * sf[f, 0] + txy * sf[f, 1]
+        fy = txy * sf[f, 0] + tyy * sf[f, 1]
+        out[o, 0] += fx
+        out[o, 1] += fy
+        out[n, 0] -= fx
+        out[n, 1] -= fy
+    for f in range(nfi, nf):
+        mode = bmode[f - nfi]
+        if mode == 0:
+            continue
+        o = owner[f]
+        txx = stress[o, 0]
+        txy = stress[o, 1]
+        tyy = stress[o, 2]
+        fx = txx * sf[f, 0] + txy * sf[f, 1]
+        fy = txy * sf[f, 0] + tyy * sf[f, 1]
+        if mode == 2:
+            n0 = normal[f, 0]
+            n1 = normal[f, 1]
+            fn = fx * n0 + fy * n1
+            fx = fn * n0
+            fy = fn * n1
+        out[o, 0] += fx
+        out[o, 1] += fy

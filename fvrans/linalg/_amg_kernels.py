@@ -252,17 +252,33 @@ def refresh_fine(src, a_dat, a_ptr, a_idx, n0, dinv):
 
 
 @njit(cache=True)
-def dense_inverse(a, out):
+def dense_inverse(a, out, singular):
     """out = generalised inverse of the square matrix ``a`` (overwritten) by Gauss-Jordan
     elimination without pivoting: the coarsest-level solver of the cycle.
 
-    For the matrices met here (symmetric positive semi-definite, or diagonally dominant) no
-    pivoting is needed. A pivot that vanishes relative to its row's original diagonal marks a
-    null direction (the constant vector of a singular pressure system): that unknown is pinned
-    to zero, i.e. ``out`` is the inverse of the remaining principal submatrix padded with zeros
-    (symmetric for a symmetric ``a``). Returns the number of pinned unknowns.
+    For the matrices met here (symmetric positive (semi-)definite, or diagonally dominant) no
+    pivoting is needed. ``singular``: ``a`` has the constant vector as its null space (pressure
+    correction without a fixed-pressure boundary; the Galerkin operators of such a matrix keep
+    it); ``out`` is then the inverse of a + s 1 1^T (s the mean diagonal), a symmetric generalised
+    inverse (a out a = a). No pivot is judged by its size relative to the diagonal otherwise: in
+    cells of aspect ratio R the weak coupling, and so the smallest pivot, is ~R^-2 of the diagonal
+    (8e-13 in a channel of 25 x 8 cells of aspect ratio 3e6), and dropping it pinned p' there (no
+    flow through the channel). Only a pivot below 2e-15 of its diagonal, which double precision
+    cannot tell from zero (aspect ratios above ~3e7), marks a null direction: that unknown is
+    pinned to zero (``out`` is then the inverse of the remaining principal submatrix padded with
+    zeros). Returns the number of null directions (1 for ``singular``).
     """
     m = a.shape[0]
+    n_dropped = 0
+    if singular and m > 0:
+        s = 0.0
+        for i in range(m):
+            s += abs(a[i, i])
+        s /= m
+        for i in range(m):
+            for j in range(m):
+                a[i, j] += s
+        n_dropped = 1
     scale = np.empty(m)
     for i in range(m):
         scale[i] = abs(a[i, i])
@@ -270,10 +286,9 @@ def dense_inverse(a, out):
         for j in range(m):
             out[i, j] = 1.0 if i == j else 0.0
     dropped = np.zeros(m, dtype=np.bool_)
-    n_dropped = 0
     for k in range(m):
         piv = a[k, k]
-        if abs(piv) <= 1e-10 * scale[k] or scale[k] == 0.0:
+        if abs(piv) <= 2e-15 * scale[k] or scale[k] == 0.0:
             dropped[k] = True
             n_dropped += 1
             continue

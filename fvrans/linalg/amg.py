@@ -100,7 +100,7 @@ class AmgKrylovSolver:
         # badly on a busy machine)
         coarse = np.ascontiguousarray(As[-1].toarray(), dtype=np.float64)
         cinv2 = np.empty_like(coarse)
-        _k.dense_inverse(coarse, cinv2)
+        _k.dense_inverse(coarse, cinv2, self.singular)
         cinv = cinv2.ravel()
         n0 = int(n[0])
         self._fine_nnz = As[0].nnz

@@ -8,10 +8,10 @@ R (1 - cos(pi / n)) ~ R pi^2 / (2 n^2), a second-order geometric error.
 - :func:`annulus`: ``cells = "quads"`` (a polar grid), ``"triangles"`` (each polar quad split in two,
   the diagonal alternating in a checker pattern) or ``"mixed"`` (``wall_layers`` rings of quads on
   each wall, split quads between). Radial points uniform or geometric from both walls.
-- :func:`cylinder_channel`: a rectangular channel with a cylinder, filled with triangles by
-  :func:`fvrans.mesh._blocks.triangulate_region` (the domain is cut in two simple polygons along
-  the horizontal line through the cylinder centre); the defaults are the geometry of the
-  cylinder-in-channel benchmark of Schaefer & Turek (1996).
+- :func:`cylinder_channel`: a rectangular channel with a cylinder: a polar ring of split quads
+  round the cylinder, then triangles by :func:`fvrans.mesh._blocks.triangulate_region` (the domain
+  is cut in two simple polygons along the horizontal line through the cylinder centre); the
+  defaults are the geometry of the cylinder-in-channel benchmark of Schaefer & Turek (1996).
 
 Invalid parameters raise :class:`~fvrans.errors.MeshError` naming the parameter and its range.
 
@@ -28,10 +28,10 @@ import math
 import numpy as np
 
 from fvrans.errors import MeshError
-from fvrans.mesh._blocks import geometric_points, triangulate_region, uniform_points
+from fvrans.mesh._blocks import BlockAssembly, geometric_points, rectangle_points, triangulate_region, uniform_points
 from fvrans.mesh.mesh import Mesh
 
-__all__ = ["ANNULUS_CELLS", "annulus", "cylinder_channel"]
+__all__ = ["ANNULUS_CELLS", "annulus", "cylinder_channel", "cylinder_channel_grid"]
 
 #: cell kinds of :func:`annulus`
 ANNULUS_CELLS = ("quads", "triangles", "mixed")
@@ -81,6 +81,27 @@ def _radii(gen: str, r_inner: float, r_outer: float, n_r: int, wall_spacing: flo
     return np.concatenate([lo, hi])
 
 
+def _ring_cells(idx: np.ndarray, split: np.ndarray) -> list[np.ndarray]:
+    """Cells between the closed rings of points ``idx`` (n_rings + 1, n_around), counter-clockwise when
+    the rings run counter-clockwise and outwards: a quad per pair of neighbouring points on two
+    rings, or two triangles where ``split[j]`` is set for the layer j (the diagonal alternating in a
+    checker pattern)."""
+    nr = idx.shape[0] - 1
+    nxt = np.roll(idx, -1, axis=1)
+    p00, p10, p11, p01 = idx[:-1], idx[1:], nxt[1:], nxt[:-1]  # out along r, then on along theta
+    jj, ii = np.meshgrid(np.arange(nr), np.arange(idx.shape[1]), indexing="ij")
+    sp = np.broadcast_to(np.asarray(split, dtype=bool)[:, None], p00.shape)
+    even = (ii + jj) % 2 == 0
+    cell_list: list[np.ndarray] = [np.stack([p00, p10, p11, p01], -1)[~sp]]
+    for mask, diag in ((sp & even, 0), (sp & ~even, 1)):
+        a, b, c, d = p00[mask], p10[mask], p11[mask], p01[mask]
+        if diag == 0:
+            cell_list += [np.stack([a, b, c], -1), np.stack([a, c, d], -1)]
+        else:
+            cell_list += [np.stack([a, b, d], -1), np.stack([b, c, d], -1)]
+    return [row for block in cell_list for row in block]
+
+
 def annulus(
     r_inner: float = 1.0,
     r_outer: float = 2.0,
@@ -128,22 +149,10 @@ def annulus(
 
     pts = np.stack([cx + R * np.cos(T), cy + R * np.sin(T)], axis=-1).reshape(-1, 2)
     idx = np.arange((nr + 1) * nt).reshape(nr + 1, nt)
-    nxt = np.roll(idx, -1, axis=1)
-    # counter-clockwise: out along r, then on along theta
-    p00, p10, p11, p01 = idx[:-1], idx[1:], nxt[1:], nxt[:-1]
-    jj, ii = np.meshgrid(np.arange(nr), np.arange(nt), indexing="ij")
-    split = np.ones((nr, nt), dtype=bool) if cells == "triangles" else np.zeros((nr, nt), dtype=bool)
+    split = np.ones(nr, dtype=bool) if cells == "triangles" else np.zeros(nr, dtype=bool)
     if cells == "mixed":
         split[layers : nr - layers] = True
-    even = (ii + jj) % 2 == 0
-    cell_list: list[np.ndarray] = [np.stack([p00, p10, p11, p01], -1)[~split]]
-    for mask, diag in ((split & even, 0), (split & ~even, 1)):
-        a, b, c, d = p00[mask], p10[mask], p11[mask], p01[mask]
-        if diag == 0:
-            cell_list += [np.stack([a, b, c], -1), np.stack([a, c, d], -1)]
-        else:
-            cell_list += [np.stack([a, b, d], -1), np.stack([b, c, d], -1)]
-    flat_cells = [row for block in cell_list for row in block]
+    flat_cells = _ring_cells(idx, split)
     ring = np.arange(nt)
     boundary = {
         "inner": np.stack([idx[0, (ring + 1) % nt], idx[0, ring]], axis=1),
@@ -182,16 +191,24 @@ def cylinder_channel(
     grading: float = 0.15,
     max_size: float | None = None,
     n_smooth: int = 40,
+    ring_radius: float | None = None,
+    ring_layers: int | None = None,
+    cells: str = "triangles",
 ) -> Mesh:
     """Triangles in the channel [0, length] x [0, height] around a circular cylinder.
 
     ``n_cylinder`` points on the circle (a multiple of 4: points at its front, back, top and
-    bottom). Spacing along the channel walls ``wall_spacing`` (default: 4 x the cylinder's), on
-    the inlet the same, on the outlet ``outlet_spacing`` (default 2 x the walls'); the triangle
-    size grows away from the boundary at the rate ``grading`` up to ``max_size`` (default:
-    height / 8). The cut along y = centre[1] is a line of mesh points spaced like its ends, so
-    the two halves conform. Patches: "inlet" (x = 0), "outlet" (x = length), "walls" (y = 0 and
-    y = height), "cylinder".
+    bottom). Round the cylinder out to ``ring_radius`` (default: the diameter) a polar ring of
+    ``ring_layers`` layers (default: cells about as long as high, n_cylinder ln(ring_radius /
+    radius) / (2 pi)), radii growing geometrically; ``cells = "triangles"`` splits its quads in two
+    (diagonals alternating), ``"mixed"`` keeps them. Beyond the ring, triangles: spacing along the
+    channel walls ``wall_spacing`` (default: 4 x the cylinder's), on the inlet the same, on the
+    outlet ``outlet_spacing`` (default 2 x the walls'); the triangle size grows away from the
+    boundary at the rate ``grading`` up to ``max_size`` (default: height / 8). The cut along
+    y = centre[1] is a line of mesh points spaced like its ends, so the two halves conform. The
+    ring refines with the cylinder spacing in both directions, so a family of n_cylinder = n, 2n,
+    4n refines the cells next to the cylinder systematically. Patches: "inlet" (x = 0),
+    "outlet" (x = length), "walls" (y = 0 and y = height), "cylinder".
 
     Defaults: the geometry of Schaefer & Turek (1996), cylinder of diameter 0.1 centred at
     (0.2, 0.2) in a channel 2.2 x 0.41.
@@ -208,7 +225,16 @@ def cylinder_channel(
     if not (rad < xc < L - rad and rad < yc < H - rad):
         raise MeshError(f"{gen}: parameter centre = {tuple(centre)!r} is out of range; the cylinder must lie "
                         f"inside the channel: {rad:g} < x < {L - rad:g}, {rad:g} < y < {H - rad:g}")
-    h_cyl = math.pi * D / nc
+    r_ring = 2.0 * rad if ring_radius is None else _positive(gen, "ring_radius", ring_radius)
+    room = min(xc, L - xc, yc, H - yc)
+    if not rad < r_ring < room:
+        raise MeshError(f"{gen}: parameter ring_radius = {ring_radius!r} is out of range; allowed: "
+                        f"{rad:g} < ring_radius < {room:g} (the ring must stay inside the channel)")
+    layers = max(1, round(nc * math.log(r_ring / rad) / (2 * math.pi))) if ring_layers is None else (
+        _count(gen, "ring_layers", ring_layers, 1))
+    if cells not in ("triangles", "mixed"):
+        raise MeshError(f"{gen}: parameter cells = {cells!r} is not allowed; use 'triangles' or 'mixed'")
+    h_cyl = 2.0 * math.pi * r_ring / nc  # the spacing on the ring's outer circle
     h_wall = 4.0 * h_cyl if wall_spacing is None else _positive(gen, "wall_spacing", wall_spacing)
     h_out = 2.0 * h_wall if outlet_spacing is None else _positive(gen, "outlet_spacing", outlet_spacing)
     h_max = H / 8.0 if max_size is None else _positive(gen, "max_size", max_size)
@@ -223,11 +249,12 @@ def cylinder_channel(
         return a + (b - a) * w / w[-1]
 
     ang = np.pi + 2.0 * np.pi * np.arange(nc) / nc
-    circ = np.stack([xc + rad * np.cos(ang), yc + rad * np.sin(ang)], axis=1)
+    radii = rad * (r_ring / rad) ** (np.arange(layers + 1) / layers)
+    ring_xy = np.stack([xc + radii[:, None] * np.cos(ang)[None, :], yc + radii[:, None] * np.sin(ang)[None, :]], -1)
     q = nc // 2  # index of the back point (angle 0 / 2 pi)
-    # the cut: inlet -> front point, back point -> outlet
-    cut_in = line(0.0, xc - rad, h_wall, h_cyl)
-    cut_out = line(xc + rad, L, h_cyl, h_out)
+    # the cut: inlet -> front point of the ring, its back point -> outlet
+    cut_in = line(0.0, xc - r_ring, h_wall, h_cyl)
+    cut_out = line(xc + r_ring, L, h_cyl, h_out)
     bottom = line(0.0, L, h_wall, h_out)
     top = bottom.copy()
     inlet_lo = line(0.0, yc, h_wall, h_wall)
@@ -246,7 +273,8 @@ def cylinder_channel(
         count += len(xy)
         return ids
 
-    c_ids = add(circ)
+    ring_ids = add(ring_xy.reshape(-1, 2)).reshape(layers + 1, nc)
+    c_ids = ring_ids[-1]  # the ring's outer circle, where the triangles start
     # circle point k lies at the angle pi + 2 pi k / nc: k = 0 the front, 0 < k < q below the
     # centre, k = q the back, q < k < nc above
     cut_in_ids = add(np.stack([cut_in[:-1], np.full(len(cut_in) - 1, yc)], axis=1))  # x = 0 .. before the front
@@ -267,12 +295,13 @@ def cylinder_channel(
     lower = np.r_[bot_ids, out_lo_ids, cut_out_ids[::-1], lower_arc, cut_in_ids[::-1], in_lo_ids[::-1]]
     upper = np.r_[cut_in_ids, upper_arc, cut_out_ids, out_hi_ids, top_ids[::-1], in_hi_ids[::-1]]
     all_pts = np.concatenate(pts)
-    tris_all: list[np.ndarray] = []
+    cells_all: list[np.ndarray] = list(_ring_cells(ring_ids, np.full(layers, cells == "triangles")))
     for loop in (lower, upper):
         new_pts, tris = triangulate_region(all_pts, loop, h_max=h_max, grading=g, n_smooth=n_smooth)
         all_pts = np.concatenate([all_pts, new_pts])
-        tris_all.append(tris)
+        cells_all.extend(tris)
     ring = np.arange(nc)
+    wall_ids = ring_ids[0]
     inlet_line = np.r_[bot_ids[:1], in_lo_ids, [inlet_mid], in_hi_ids, top_ids[:1]]
     outlet_line = np.r_[bot_ids[-1:], out_lo_ids, [outlet_mid], out_hi_ids, top_ids[-1:]]
     bnd = {
@@ -280,18 +309,114 @@ def cylinder_channel(
         "outlet": np.stack([outlet_line[:-1], outlet_line[1:]], axis=1),
         "walls": np.concatenate([np.stack([bot_ids[:-1], bot_ids[1:]], axis=1),
                                  np.stack([top_ids[1:], top_ids[:-1]], axis=1)]),
-        "cylinder": np.stack([c_ids[(ring + 1) % nc], c_ids[ring]], axis=1),
+        "cylinder": np.stack([wall_ids[(ring + 1) % nc], wall_ids[ring]], axis=1),
     }
-    kw = dict(n_cylinder=nc)
+    kw: dict = dict(n_cylinder=nc)
+    if cells != "triangles":
+        kw["cells"] = cells
     for k, v, d in (("length", L, 2.2), ("height", H, 0.41), ("diameter", D, 0.1), ("grading", g, 0.15)):
         if v != d:
             kw[k] = v
     if (xc, yc) != (0.2, 0.2):
         kw["centre"] = (xc, yc)
-    for k, v in (("wall_spacing", wall_spacing), ("outlet_spacing", outlet_spacing), ("max_size", max_size)):
+    for k, v in (("wall_spacing", wall_spacing), ("outlet_spacing", outlet_spacing), ("max_size", max_size),
+                 ("ring_radius", ring_radius), ("ring_layers", ring_layers)):
         if v is not None:
-            kw[k] = float(v)
-    mesh = Mesh.from_arrays(all_pts, np.concatenate(tris_all), bnd, source=_fmt(gen, **kw))
+            kw[k] = float(v) if k != "ring_layers" else int(v)
+    mesh = Mesh.from_arrays(all_pts, cells_all, bnd, source=_fmt(gen, **kw))
     if mesh.notes:
         raise MeshError(f"{mesh.source}: internal error in the generator: {'; '.join(mesh.notes)}")
     return mesh
+
+
+def cylinder_channel_grid(
+    n_cylinder: int = 64,
+    cells: str = "triangles",
+    length: float = 2.2,
+    height: float = 0.41,
+    centre: tuple[float, float] = (0.2, 0.2),
+    diameter: float = 0.1,
+    outlet_stretch: float = 2.5,
+) -> Mesh:
+    """The channel with a circular cylinder as a block-structured grid that refines systematically:
+    an O-grid in the square [0, height] x [0, height] round the cylinder (four blocks from the
+    quarter arcs to the square's sides, points on straight rays from the centre, radii growing
+    geometrically so the cells stay about as long as high) and a rectangle from x = height to the
+    outlet (spacing growing exponentially by ``outlet_stretch`` from its first to its last column).
+    ``cells = "triangles"`` splits every quad in two (diagonals alternating), ``"quads"`` keeps them.
+
+    ``n_cylinder`` (a multiple of 16) points on the circle, n_cylinder / 4 along each side of the
+    square, 3 n_cylinder / 16 layers across the O-grid and 3 n_cylinder / 4 columns in the
+    rectangle: doubling ``n_cylinder`` halves every spacing and keeps every point of the coarser grid
+    (nested grids). Patches as :func:`cylinder_channel`. Defaults: the geometry of Schaefer & Turek
+    (1996).
+
+    >>> m = cylinder_channel_grid(16)
+    >>> m.n_cells, m.patch("cylinder").size, m.patch("inlet").size
+    (192, 16, 4)
+    """
+    gen = "cylinder_channel_grid"
+    nc = _count(gen, "n_cylinder", n_cylinder, 16)
+    if nc % 16:
+        raise MeshError(f"{gen}: parameter n_cylinder = {n_cylinder!r} is out of range; allowed: a multiple of 16")
+    if cells not in ("triangles", "quads"):
+        raise MeshError(f"{gen}: parameter cells = {cells!r} is not allowed; use 'triangles' or 'quads'")
+    L = _positive(gen, "length", length)
+    H = _positive(gen, "height", height)
+    D = _positive(gen, "diameter", diameter)
+    beta = math.log(_positive(gen, "outlet_stretch", outlet_stretch))
+    xc, yc = float(centre[0]), float(centre[1])
+    rad = 0.5 * D
+    if not (L > H and rad < xc < H - rad and rad < yc < H - rad):
+        raise MeshError(f"{gen}: parameter centre = {tuple(centre)!r} is out of range; the cylinder must lie inside "
+                        f"the square [0, {H:g}]^2 at the channel's inlet ({rad:g} < x, y < {H - rad:g}) and the "
+                        "channel must be longer than high")
+    q = nc // 4
+    m = 3 * nc // 16
+    # square corners, counter-clockwise from the lower left, and the sides between them
+    corners = np.array([[0.0, 0.0], [H, 0.0], [H, H], [0.0, H]])
+    ang_c = np.unwrap(np.arctan2(corners[:, 1] - yc, corners[:, 0] - xc))
+    blocks = []
+    for k in range(4):
+        a0, a1 = ang_c[k], ang_c[(k + 1) % 4]
+        if a1 < a0:
+            a1 += 2 * np.pi
+        t = np.arange(q + 1) / q
+        circ = np.stack([xc + rad * np.cos(a0 + t * (a1 - a0)), yc + rad * np.sin(a0 + t * (a1 - a0))], axis=1)
+        side = corners[k] + t[:, None] * (corners[(k + 1) % 4] - corners[k])
+        reach = np.hypot(side[:, 0] - xc, side[:, 1] - yc)
+        # on each ray: radius rad (reach / rad)^(j / m), as a fraction of the way from circle to side
+        frac = (rad * (reach[:, None] / rad) ** (np.arange(m + 1)[None, :] / m) - rad) / (reach[:, None] - rad)
+        xy = circ[:, None, :] + frac[..., None] * (side - circ)[:, None, :]
+        blocks.append(xy)  # (q + 1, m + 1, 2): i along the arc, j outwards
+    asm = BlockAssembly()
+    split = cells == "triangles"
+    asm.add_block("o0", blocks[0], triangles=split)
+    asm.add_block("o1", blocks[1], same=(("left", "o0", "right"),), triangles=split)
+    asm.add_block("o2", blocks[2], same=(("left", "o1", "right"),), triangles=split)
+    asm.add_block("o3", blocks[3], same=(("left", "o2", "right"), ("right", "o0", "left")), triangles=split)
+    # the rectangle: columns from x = H to L, exponential stretching; rows = the square's right side
+    nx = 3 * nc // 4
+    xi = np.arange(nx + 1) / nx
+    xs = H + (L - H) * np.expm1(beta * xi) / np.expm1(beta) if beta > 0 else H + (L - H) * xi
+    ys = blocks[1][:, -1, 1]  # the square's right side, bottom to top
+    asm.add_block("rect", rectangle_points(xs, ys), same=(("left", "o1", "top"),), triangles=split)
+    asm.add_patch("cylinder", "o0", "bottom")
+    for b in ("o1", "o2", "o3"):
+        asm.add_patch("cylinder", b, "bottom")
+    asm.add_patch("walls", "o0", "top")
+    asm.add_patch("walls", "o2", "top")
+    asm.add_patch("walls", "rect", "bottom")
+    asm.add_patch("walls", "rect", "top")
+    asm.add_patch("inlet", "o3", "top")
+    asm.add_patch("outlet", "rect", "right")
+    kw: dict = dict(n_cylinder=nc)
+    if cells != "triangles":
+        kw["cells"] = cells
+    for k, v, d in (("length", L, 2.2), ("height", H, 0.41), ("diameter", D, 0.1),
+                    ("outlet_stretch", float(outlet_stretch), 2.5)):
+        if v != d:
+            kw[k] = v
+    if (xc, yc) != (0.2, 0.2):
+        kw["centre"] = (xc, yc)
+    return asm.to_mesh(_fmt(gen, **kw))

@@ -24,7 +24,7 @@ from fvrans.mesh._blocks import (
     triangulate_region,
     uniform_points,
 )
-from fvrans.mesh.bodies import annulus, cylinder_channel
+from fvrans.mesh.bodies import annulus, cylinder_channel, cylinder_channel_grid
 from fvrans.mesh.mesh import Mesh
 from fvrans.mesh.shapes import bump_channel, planar_diffuser
 
@@ -36,6 +36,7 @@ __all__ = [
     "cavity",
     "channel",
     "cylinder_channel",
+    "cylinder_channel_grid",
     "flat_plate",
     "flat_plate_family",
     "flat_plate_lines",

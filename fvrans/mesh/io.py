@@ -15,6 +15,13 @@ Boundary patches come from line elements:
 Vertex (dimension 0) and surface (dimension 2) groups are ignored. Line elements without any
 group are ignored too, so a boundary edge that ends up in no patch is reported by
 :func:`fvrans.mesh.mesh.build_mesh`, with the file name in the message.
+
+A file without names (another tool's VTU, fvrans's own ``fields.vtu``, meshio's conversion of a
+Gmsh file to VTU, which keeps the tags but drops their names) can still be read: ``edge_tags``
+names the integer tags of the line elements (array ``edge_tag_array``, by default
+``gmsh:physical``), ``edge_boxes`` puts the boundary edges no group names, whose two ends lie in a
+box ``[xmin, xmax, ymin, ymax]``, into a patch, and ``unnamed_edges`` names a patch for every such
+edge left (:func:`unnamed_edge_rule`).
 """
 
 from __future__ import annotations
@@ -22,6 +29,7 @@ from __future__ import annotations
 import io
 import logging
 import warnings
+from collections.abc import Mapping
 from contextlib import redirect_stderr, redirect_stdout
 from pathlib import Path
 
@@ -51,11 +59,25 @@ _SUFFIX_FORMAT = {".msh": "gmsh", ".vtu": "vtu"}
 # ----------------------------------------------------------------------------------------
 # reading
 # ----------------------------------------------------------------------------------------
-def read_mesh(path: str | Path, file_format: str | None = None) -> Mesh:
+#: the per-element tag array read by default
+DEFAULT_TAG_ARRAY = "gmsh:physical"
+
+
+def read_mesh(
+    path: str | Path,
+    file_format: str | None = None,
+    *,
+    edge_tags: Mapping[int, str] | None = None,
+    edge_tag_array: str | None = None,
+    edge_boxes: Mapping[str, tuple[float, float, float, float]] | None = None,
+    unnamed_edges: str | None = None,
+) -> Mesh:
     """Read a planar 2D mesh file and build a :class:`Mesh` with named boundary patches.
 
     ``file_format`` is a meshio format name (e.g. ``"gmsh"``, ``"vtu"``); by default the file
-    suffix decides. Every problem is raised as :class:`MeshError` naming the file.
+    suffix decides. ``edge_tags``, ``edge_tag_array``, ``edge_boxes`` and ``unnamed_edges`` name
+    the patches of a file whose boundary lines carry no names (module docstring). Every problem is
+    raised as :class:`MeshError` naming the file.
     """
     p = Path(path)
     src = str(p)
@@ -82,10 +104,45 @@ def read_mesh(path: str | Path, file_format: str | None = None) -> Mesh:
             "write it as a Gmsh .msh (version 2.2 or 4.1, ASCII or binary) or a .vtu file, "
             "or pass file_format= if the suffix does not say the format"
         ) from exc
-    return from_meshio(mm, source=src)
+    return from_meshio(mm, source=src, edge_tags=edge_tags, edge_tag_array=edge_tag_array, edge_boxes=edge_boxes,
+                       unnamed_edges=unnamed_edges)
 
 
-def from_meshio(mm: meshio.Mesh, source: str = "<meshio mesh>") -> Mesh:
+def unnamed_edge_rule(edge_boxes: Mapping[str, tuple[float, float, float, float]] | None = None,
+                      unnamed_edges: str | None = None):
+    """The rule :func:`fvrans.mesh.mesh.build_mesh` asks about boundary edges no group names:
+    an edge goes to the first patch of ``edge_boxes`` whose box holds both its ends (to 1e-9 of
+    the mesh's extent), else to ``unnamed_edges`` (when given)."""
+    boxes = dict(edge_boxes or {})
+
+    def rule(points, edges):
+        span = float(np.ptp(points, axis=0).max()) or 1.0
+        tol = 1e-9 * span
+        free = np.ones(len(edges), dtype=bool)
+        out = {}
+        for name, (x0, x1, y0, y1) in boxes.items():
+            inside = np.ones(len(edges), dtype=bool)
+            for k in (0, 1):
+                p = points[edges[:, k]]
+                inside &= (p[:, 0] >= x0 - tol) & (p[:, 0] <= x1 + tol) & (p[:, 1] >= y0 - tol) & (p[:, 1] <= y1 + tol)
+            out[name] = inside & free
+            free &= ~inside
+        if unnamed_edges:
+            out[unnamed_edges] = free
+        return out
+
+    return rule if (boxes or unnamed_edges) else None
+
+
+def from_meshio(
+    mm: meshio.Mesh,
+    source: str = "<meshio mesh>",
+    *,
+    edge_tags: Mapping[int, str] | None = None,
+    edge_tag_array: str | None = None,
+    edge_boxes: Mapping[str, tuple[float, float, float, float]] | None = None,
+    unnamed_edges: str | None = None,
+) -> Mesh:
     """Turn a ``meshio.Mesh`` into a :class:`Mesh` (see the module docstring for the rules)."""
     pts = np.asarray(mm.points, dtype=np.float64)
     if pts.ndim != 2 or pts.shape[1] not in (2, 3) or len(pts) == 0:
@@ -127,10 +184,10 @@ def from_meshio(mm: meshio.Mesh, source: str = "<meshio mesh>") -> Mesh:
     if pts.shape[1] == 3:
         used = np.unique(np.concatenate(cells + [e.ravel() for _, e in line_blocks]))
         _check_planar(pts, used, source)
-    boundary = _patches_from_meshio(mm, line_blocks, source)
+    boundary = _patches_from_meshio(mm, line_blocks, source, edge_tags, edge_tag_array)
     sizes = {len(c) for c in cells}
     cell_arg = np.stack(cells) if len(sizes) == 1 else cells
-    return build_mesh(pts, cell_arg, boundary, source=source)
+    return build_mesh(pts, cell_arg, boundary, source=source, unnamed=unnamed_edge_rule(edge_boxes, unnamed_edges))
 
 
 def _check_planar(pts: np.ndarray, used: np.ndarray, source: str) -> None:
@@ -155,7 +212,8 @@ def _as_int_tags(values) -> np.ndarray:
 
 
 def _patches_from_meshio(
-    mm: meshio.Mesh, line_blocks: list[tuple[int, np.ndarray]], source: str
+    mm: meshio.Mesh, line_blocks: list[tuple[int, np.ndarray]], source: str,
+    edge_tags: Mapping[int, str] | None = None, edge_tag_array: str | None = None,
 ) -> dict[str, np.ndarray]:
     """Named edge lists ``{patch: (m, 2) point pairs}`` from physical tags, cell sets and patch arrays."""
     parts: dict[str, list[np.ndarray]] = {}
@@ -170,8 +228,15 @@ def _patches_from_meshio(
         if len(v) >= 2 and v[1] == 1:
             line_names[int(v[0])] = name
 
+    for tag, name in (edge_tags or {}).items():
+        line_names[int(tag)] = str(name)
     # -- physical tags per element, in tag order --
-    phys = (mm.cell_data or {}).get("gmsh:physical")
+    array = edge_tag_array or DEFAULT_TAG_ARRAY
+    phys = (mm.cell_data or {}).get(array)
+    if edge_tag_array and phys is None:
+        have = ", ".join(repr(str(k)) for k in (mm.cell_data or {})) or "none"
+        raise MeshError(f"{source}: no cell-data array {edge_tag_array!r} to read edge tags from (edge_tag_array); "
+                        f"the file's cell-data arrays: {have}")
     if phys is not None:
         tagged: dict[int, list[np.ndarray]] = {}
         for k, edges in line_blocks:
@@ -185,9 +250,11 @@ def _patches_from_meshio(
                 n = sum(len(e) for e in tagged[tag])
                 known = ", ".join(f"{t} = {nm!r}" for t, nm in sorted(line_names.items())) or "none"
                 raise MeshError(
-                    f"{source}: {n} line element(s) carry physical tag {tag}, which has no name "
+                    f"{source}: {n} line element(s) carry physical tag {tag}"
+                    f"{'' if array == DEFAULT_TAG_ARRAY else f' (array {array!r})'}, which has no name "
                     f"(named line groups: {known}); give physical line group {tag} a name in the "
-                    "mesh file so it can serve as a boundary patch"
+                    f"mesh file, or name the tags in the case file: [mesh] edge_tags = {{ {tag} = \"<patch>\" }} "
+                    "(README, [mesh])"
                 )
             for e in tagged[tag]:
                 add(line_names[tag], e)

@@ -9,7 +9,7 @@ normal of the owner is ``(dy, -dx) / length``.
 from __future__ import annotations
 
 import logging
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -203,8 +203,13 @@ def build_mesh(
     boundary: Mapping[str, object],
     source: str = "<in memory>",
     quiet: bool = False,
+    unnamed: Callable[[np.ndarray, np.ndarray], Mapping[str, np.ndarray]] | None = None,
 ) -> Mesh:
-    """Build faces, owners, neighbours and patches; check and repair the input (see Mesh)."""
+    """Build faces, owners, neighbours and patches; check and repair the input (see Mesh).
+
+    ``unnamed(points, edges)``, if given, is asked for the boundary edges (point-index pairs) that
+    no patch of ``boundary`` names: it returns new patch names with boolean masks over those edges
+    (see :func:`fvrans.mesh.io.unnamed_edge_rule`); edges left over are an error as without it."""
     notes: list[str] = []
     pts = np.asarray(points, dtype=np.float64)
     if pts.ndim != 2 or pts.shape[1] not in (2, 3):
@@ -230,6 +235,9 @@ def build_mesh(
 
     bnd_in: dict[str, np.ndarray] = {}
     for name, edges in boundary.items():
+        if not str(name).strip():
+            raise MeshError(f"{source}: a boundary patch has the empty name {str(name)!r}; patch names become "
+                            "case keys and file names — give the physical line group a name")
         e = np.asarray(edges, dtype=np.int64).reshape(-1, 2)
         if e.size and (e.min() < 0 or e.max() >= len(pts)):
             raise MeshError(f"{source}: patch {name!r} refers to a point index outside 0..{len(pts) - 1}")
@@ -401,13 +409,31 @@ def build_mesh(
         owners.append(b_owner[loc])
         patches.append(Patch(name, pos_f, pos_f + len(loc)))
         pos_f += len(loc)
-    if np.any(assigned < 0):
+    miss = np.nonzero(assigned < 0)[0]
+    if len(miss) and unnamed is not None:
+        for name, mask in unnamed(pts, b_fp[miss]).items():
+            loc = miss[np.asarray(mask, dtype=bool)]
+            loc = loc[assigned[loc] < 0]
+            if not len(loc):
+                continue
+            if name in bnd_in:
+                raise MeshError(f"{source}: the unnamed boundary edges would go into patch {name!r}, which the "
+                                "mesh file already names; choose another patch name for them")
+            assigned[loc] = len(patches)
+            loc = loc[np.argsort(b_owner[loc], kind="stable")]
+            face_pts_list.append(b_fp[loc])
+            owners.append(b_owner[loc])
+            patches.append(Patch(name, pos_f, pos_f + len(loc)))
+            pos_f += len(loc)
         miss = np.nonzero(assigned < 0)[0]
+    if len(miss):
         k0 = int(bkey[miss[0]])
         raise MeshError(
             f"{source}: {len(miss)} boundary edge(s) belong to no named patch, e.g. the edge "
             f"{_fmt_pt(pts, k0 // npts)}-{_fmt_pt(pts, k0 % npts)} of cell {int(b_owner[miss[0]])}; "
-            "tag every boundary line with a physical group (or name it in the boundary mapping)"
+            "tag every boundary line with a physical group (or name it in the boundary mapping), or in a "
+            'case file give them patches with [mesh] unnamed_edges = "<patch>" and edge_boxes = '
+            "{ <patch> = [xmin, xmax, ymin, ymax] } (README, [mesh])"
         )
 
     face_points = np.ascontiguousarray(np.concatenate(face_pts_list).astype(np.int64))

@@ -8,10 +8,19 @@ Definitions follow :mod:`fvrans.mesh.geometry`:
   line; a cell's value is the largest over its internal faces;
 * aspect ratio of a cell: L_max^2 / (k A), k = 2 for triangles, 1 otherwise.
 
-Warning thresholds: non-orthogonality above 70 degrees (common practice: the explicit
-non-orthogonal correction becomes unreliable there), skewness above 0.5 (this project's
-choice: the face-value interpolation error is then half the change between the cell centres),
-and aspect ratio above 1e4 (this project's choice; stretched wall cells are expected below that).
+Warnings mark what lies beyond fvrans's own tests (the largest value on a mesh that a test of
+the suite solves and checks), not a customary checker's limits:
+
+* non-orthogonality above 63.5 deg: ``tests/solve/test_poiseuille.py`` (triangles) solves the
+  channel on right triangles of 63.4 deg and checks the developed profile and dp/dx;
+* skewness above 0.71: ``tests/solve/test_bump_robustness.py`` converges the turbulent bump on a
+  mesh of skewness 0.709 (accuracy against a published table is checked up to 0.25, the skewed
+  triangles of ``tests/solve/test_cavity.py``);
+* aspect ratio above 2.0e4: ``tests/verification/test_flat_plate.py`` checks Cf and drag on the
+  medium flat-plate grid, whose wall cells reach 1.97e4.
+
+Values below round-off (skewness under 1e-8, non-orthogonality under 1e-6 deg, from coordinates
+in double precision) are reported as 0.
 """
 
 from __future__ import annotations
@@ -23,9 +32,11 @@ import numpy as np
 from fvrans.mesh.geometry import Geometry
 from fvrans.mesh.mesh import Mesh
 
-NONORTH_WARN_DEG = 70.0  # common practice
-SKEWNESS_WARN = 0.5  # this project's choice, see the module docstring
-ASPECT_WARN = 1.0e4  # this project's choice
+NONORTH_WARN_DEG = 63.5  # tests/solve/test_poiseuille.py, triangles (63.4 deg); see the module docstring
+SKEWNESS_WARN = 0.71  # tests/solve/test_bump_robustness.py (0.709)
+ASPECT_WARN = 2.0e4  # tests/verification/test_flat_plate.py, medium grid (1.97e4)
+SKEWNESS_ROUNDOFF = 1e-8  # below: reported as 0
+NONORTH_ROUNDOFF_DEG = 1e-6  # below: reported as 0
 N_WORST = 5
 
 
@@ -89,8 +100,10 @@ def mesh_quality(mesh: Mesh, geom: Geometry, n_worst: int = N_WORST) -> MeshQual
     area = geom.cell_area
     nonorth_f = geom.face_nonorth_deg[:ni]
     skew_f = geom.face_skewness[:ni]
-    cell_no = cell_max_over_faces(mesh, geom.face_nonorth_deg)
-    cell_sk = cell_max_over_faces(mesh, geom.face_skewness)
+    nonorth_f = np.where(nonorth_f < NONORTH_ROUNDOFF_DEG, 0.0, nonorth_f)
+    skew_f = np.where(skew_f < SKEWNESS_ROUNDOFF, 0.0, skew_f)
+    cell_no = cell_max_over_faces(mesh, nonorth_f)
+    cell_sk = cell_max_over_faces(mesh, skew_f)
     ar = geom.cell_aspect_ratio
     centre = geom.cell_centre
 
@@ -103,22 +116,23 @@ def mesh_quality(mesh: Mesh, geom: Geometry, n_worst: int = N_WORST) -> MeshQual
         warn.append(
             f"{n_bad} internal face(s) are more than {NONORTH_WARN_DEG:g} degrees non-orthogonal "
             f"(worst {q_max_no:.1f} degrees at cell {c} near ({centre[c, 0]:.6g}, {centre[c, 1]:.6g})); "
-            "expect slow or failed convergence — smooth or re-mesh that region"
+            "beyond what fvrans's tests cover (63.4 deg); expect slow convergence — smooth or re-mesh that region"
         )
     n_bad = int(np.count_nonzero(skew_f > SKEWNESS_WARN))
     if n_bad:
         c = int(np.argmax(cell_sk))
         warn.append(
             f"{n_bad} internal face(s) have skewness above {SKEWNESS_WARN:g} (worst {q_max_sk:.3g} at "
-            f"cell {c} near ({centre[c, 0]:.6g}, {centre[c, 1]:.6g})); face values there are "
-            "interpolated poorly"
+            f"cell {c} near ({centre[c, 0]:.6g}, {centre[c, 1]:.6g})), beyond what fvrans's tests cover (0.709); "
+            "face values there are interpolated poorly"
         )
     n_bad = int(np.count_nonzero(ar > ASPECT_WARN))
     if n_bad:
         c = int(np.argmax(ar))
         warn.append(
             f"{n_bad} cell(s) have aspect ratio above {ASPECT_WARN:g} (worst {float(ar[c]):.3g} at cell {c} "
-            f"near ({centre[c, 0]:.6g}, {centre[c, 1]:.6g})); check that this stretching is intended"
+            f"near ({centre[c, 0]:.6g}, {centre[c, 1]:.6g})), beyond what fvrans's tests cover (1.97e4); check that "
+            "this stretching is intended"
         )
 
     return MeshQuality(
@@ -175,6 +189,9 @@ def format_report(quality: MeshQuality, source: str = "") -> str:
         ("largest skewness", q.worst_skewness, ".4g"),
     ):
         lines.append("")
+        if worst and worst[0].value == 0.0:
+            lines.append(f"  {title}: 0 in every cell")
+            continue
         lines.append(f"  cells with the {title}:")
         for w in worst:
             lines.append(f"    cell {w.cell:>8d} at ({w.x:.6g}, {w.y:.6g}): {w.value:{fmt}}")

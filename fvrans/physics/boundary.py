@@ -4,12 +4,12 @@ Kinds (integer codes shared with the solver kernels):
 
 * ``wall`` (0): no-slip; u = u_wall (tangential motion only; constant, a formula or a Python
   function of the face centres, e.g. a rotating cylinder), zero mass flux.
-* ``velocity-inlet`` (1): u = u_in (uniform, a table along a coordinate, a formula or a Python
+* ``inflow-velocity`` (1): u = u_in (uniform, a table along a coordinate, a formula or a Python
   callable; formulas and callables are averaged over each face by Simpson's rule).
-* ``pressure-outlet`` (2): fixed static pressure, zero-gradient velocity; reverse flow enters
+* ``outflow-pressure`` (2): fixed static pressure, zero-gradient velocity; reverse flow enters
   normal to the boundary.
 * ``symmetry`` (3): zero normal velocity and zero shear.
-* ``freestream`` (4): fixed pressure; velocity u_inf where the flux enters, zero gradient where
+* ``outer-flow`` (4): fixed pressure; velocity u_inf where the flux enters, zero gradient where
   it leaves.
 """
 
@@ -27,7 +27,7 @@ from fvrans.errors import CaseError
 from fvrans.mesh.geometry import Geometry
 from fvrans.mesh.mesh import Mesh
 
-KIND_CODES = {"wall": 0, "velocity-inlet": 1, "pressure-outlet": 2, "symmetry": 3, "freestream": 4}
+KIND_CODES = {"wall": 0, "inflow-velocity": 1, "outflow-pressure": 2, "symmetry": 3, "outer-flow": 4}
 WALL, INLET, OUTLET, SYMMETRY, FREESTREAM = 0, 1, 2, 3, 4
 
 
@@ -38,7 +38,7 @@ class FlowBoundary:
     kind: np.ndarray  # (nb,) int64 codes above
     velocity: np.ndarray  # (nb, 2) wall / inlet / freestream velocity
     pressure: np.ndarray  # (nb,) fixed static pressure (outlet, freestream)
-    nut_ratio: np.ndarray  # (nb,) inflow nu_tilde / nu (inlet, freestream)
+    nu_tilde_ratio: np.ndarray  # (nb,) inflow nu_tilde / nu (inlet, freestream)
     patch_kind: dict[str, str]  # patch name -> kind name
 
     @property
@@ -53,17 +53,17 @@ def _as_spec(spec: Any) -> BoundarySpec:
     return spec
 
 
-def _nut_ratio(spec: BoundarySpec, patch: str, xf: np.ndarray) -> np.ndarray:
+def _nu_tilde_ratio(spec: BoundarySpec, patch: str, xf: np.ndarray) -> np.ndarray:
     """Inflow nu_tilde / nu: the condition's value or profile column, 3 when it gives none."""
-    if spec.nut_ratio is None and spec.profile is None:
+    if spec.nu_tilde_ratio is None and spec.profile is None:
         return np.full(len(xf), 3.0)
-    return np.asarray(spec.nut_ratio_at(xf[:, 0], xf[:, 1], f"boundary.{patch}"), dtype=float)
+    return np.asarray(spec.nu_tilde_ratio_at(xf[:, 0], xf[:, 1], f"boundary.{patch}"), dtype=float)
 
 
 def build_flow_boundary(mesh: Mesh, geom: Geometry, specs: Mapping[str, Any]) -> FlowBoundary:
     """Per-face boundary arrays from ``specs``: patch name -> a case BoundarySpec, or a dict of
     its fields (``kind``, ``velocity`` as a vector or a callable f(x, y) -> (u, v),
-    ``pressure``, ``nut_ratio``; numbers or :class:`fvrans.case.formula.Formula` objects)."""
+    ``pressure``, ``nu_tilde_ratio``; numbers or :class:`fvrans.case.formula.Formula` objects)."""
     nb = mesh.n_boundary_faces
     ni = mesh.n_internal_faces
     kind = np.full(nb, -1, dtype=np.int64)
@@ -110,15 +110,15 @@ def build_flow_boundary(mesh: Mesh, geom: Geometry, specs: Mapping[str, Any]) ->
                 ua = np.stack(spec.velocity_at(pa[:, 0], pa[:, 1], where), axis=1)
                 ub = np.stack(spec.velocity_at(pb[:, 0], pb[:, 1], where), axis=1)
                 vel[sl] = (ua + 4.0 * vel[sl] + ub) / 6.0
-            nut[sl] = _nut_ratio(spec, patch.name, xf)
+            nut[sl] = _nu_tilde_ratio(spec, patch.name, xf)
         elif code == OUTLET:
             pres[sl] = values_at(0.0 if spec.pressure is None else spec.pressure, xf[:, 0], xf[:, 1], "pressure")
         elif code == FREESTREAM:
             v = spec.velocity
             if v is None:
-                raise CaseError(f"boundary.{patch.name}: a freestream boundary needs 'velocity'")
+                raise CaseError(f"boundary.{patch.name}: an outer-flow boundary needs 'velocity'")
             vel[sl] = np.asarray(v, dtype=float)
             pres[sl] = values_at(0.0 if spec.pressure is None else spec.pressure, xf[:, 0], xf[:, 1], "pressure")
-            nut[sl] = _nut_ratio(spec, patch.name, xf)
-    return FlowBoundary(kind=kind, velocity=vel, pressure=pres, nut_ratio=nut, patch_kind=patch_kind)
+            nut[sl] = _nu_tilde_ratio(spec, patch.name, xf)
+    return FlowBoundary(kind=kind, velocity=vel, pressure=pres, nu_tilde_ratio=nut, patch_kind=patch_kind)
 

@@ -88,6 +88,15 @@ class FieldData:
             out.extend(self.points[b])
         return out
 
+    def areas(self) -> np.ndarray:
+        """Cell areas (shoelace formula, absolute), shape (n,)."""
+        parts = []
+        for b in self.blocks:
+            p = self.points[b]
+            q = np.roll(p, -1, axis=1)
+            parts.append(np.abs(0.5 * (p[..., 0] * q[..., 1] - q[..., 0] * p[..., 1]).sum(axis=1)))
+        return np.concatenate(parts) if parts else np.zeros(0)
+
     def centroids(self) -> np.ndarray:
         """Area centroids of the cells (shoelace formula), shape (n, 2)."""
         parts = []

@@ -160,8 +160,8 @@ def group_forces(name: str, parts: Sequence[PatchForces]) -> PatchForces:
 
 @dataclass(frozen=True)
 class InflowReference:
-    """Speed and direction of the inflow, and where they came from (``"freestream"``,
-    ``"velocity-inlet"``)."""
+    """Speed and direction of the inflow, and where they came from (``"outer-flow"``,
+    ``"inflow-velocity"``)."""
 
     speed: float
     direction: tuple[float, float]
@@ -170,11 +170,11 @@ class InflowReference:
 
 def inflow_reference(geom: Geometry, boundary: FlowBoundary, n_internal_faces: int) -> InflowReference | None:
     """The inflow of a case: the length-weighted mean free-stream velocity when the case has
-    free-stream faces; otherwise the velocity inlets' flow rate over their length,
+    outer-flow faces; otherwise the velocity inlets' flow rate over their length,
     U = sum(-u . n_out |S|) / sum |S|, along their length-weighted mean velocity. None when the
     case has neither (or no net inflow)."""
     length = geom.face_length[n_internal_faces:]
-    for code, name in ((FREESTREAM, "freestream"), (INLET, "velocity-inlet")):
+    for code, name in ((FREESTREAM, "outer-flow"), (INLET, "inflow-velocity")):
         on = boundary.kind == code
         if not np.any(on):
             continue

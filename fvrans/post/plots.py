@@ -27,7 +27,8 @@ from matplotlib.figure import Figure
 
 from fvrans.errors import CaseError
 from fvrans.post._plot_data import FieldData, read_csv_columns, read_fields, read_summary
-from fvrans.post.writers import atomic_path
+from fvrans.post.residuals import RESIDUAL_LABEL, RESIDUAL_NORMALISATION
+from fvrans.post.writers import atomic_path, safe_file_name
 
 __all__ = [
     "DPI",
@@ -75,10 +76,11 @@ def new_figure(size: tuple[float, float] = FIGSIZE) -> Figure:
     return fig
 
 
-def save_figure(fig: Figure, path: str | os.PathLike) -> Path:
-    """Save ``fig`` as PNG atomically (temporary file in the same directory, then os.replace)."""
+def save_figure(fig: Figure, path: str | os.PathLike, within: str | os.PathLike | None = None) -> Path:
+    """Save ``fig`` as PNG atomically (temporary file in the same directory, then os.replace);
+    ``within``: the folder the file must lie in."""
     target = Path(path)
-    with atomic_path(target, suffix=".png") as tmp:
+    with atomic_path(target, suffix=".png", within=within) as tmp:
         fig.savefig(tmp, format="png", dpi=DPI)
     return target
 
@@ -152,8 +154,10 @@ def residual_figure(
         ax.plot(it, y, label=name, lw=1.3, marker=marker)
     ax.set_yscale("log")
     ax.set_xlabel("outer iteration")
-    ax.set_ylabel("scaled residual [-]")
-    ax.set_title(_title(title, "residual history"), fontsize=11)
+    ax.set_ylabel(f"{RESIDUAL_LABEL} [-]")
+    ax.set_title(_title(title, f"{RESIDUAL_LABEL} per equation"), fontsize=11)
+    fig.supxlabel("\n".join(textwrap.wrap(RESIDUAL_NORMALISATION, 120)), fontsize=6.5, color="0.3", ha="left",
+                  x=0.01)  # below the axes, with room made by the constrained layout
     ax.grid(True, which="major", alpha=0.35)
     ax.grid(True, which="minor", axis="y", alpha=0.12)
     if len(it):
@@ -301,23 +305,43 @@ def wall_figure(
         lo, hi = min(lo, 0.0), max(hi, 0.0)
     pad = 0.06 * (hi - lo) if hi > lo else max(abs(hi), 1.0) * 0.1
     ax.set_ylim(lo - pad, hi + pad)
-    span = float(np.ptp(coord)) * scale if len(coord) else 1.0
-    last = -np.inf
-    for k, z in enumerate(sorted(float(v) for v in zero_shear)):
-        ax.axvline(z * scale, color="0.25", ls=":", lw=1.2, label=_ZERO_SHEAR_LABEL if k == 0 else None,
-                   zorder=2)
-        if z * scale - last > 0.04 * span:  # its position written at the top, unless crowded
-            ax.annotate(f"{z * scale:.3g}", (z * scale, 1.0), xycoords=("data", "axes fraction"),
-                        xytext=(2, -10), textcoords="offset points", fontsize=8, color="0.25")
-            last = z * scale
+    zs = sorted(float(v) * scale for v in zero_shear)
+    for k, z in enumerate(zs):
+        ax.axvline(z, color="0.25", ls=":", lw=1.2, label=_ZERO_SHEAR_LABEL if k == 0 else None, zorder=2)
     xlabel = _length_label("x" if along == "x" else "s (arc length along the wall)", l_ref)
     ax.set_xlabel(f"{xlabel}\n{clipped}" if clipped else xlabel)
     ax.set_ylabel(ylabel)
     ax.set_title(_title(title, f"{short} along {patch}" if patch else f"{short} along the wall"), fontsize=11)
     ax.grid(True, alpha=0.3)
+    _zero_shear_labels(ax, zs)
     if len(ax.get_legend_handles_labels()[1]) > 1:
         ax.legend(loc="best", fontsize=9)
     return fig
+
+
+def _zero_shear_labels(ax: Any, positions: Sequence[float], rows: int = 3) -> None:
+    """Write each zero-shear position at the top of the axes, beside its line. A label that would
+    overlap one already written (measured in display units) goes one row lower; when ``rows``
+    rows are taken there, it is left out (its line stays)."""
+    if not positions:
+        return
+    fig = ax.figure
+    ax.set_xlim(ax.get_xlim())  # freeze the limits the labels are placed against
+    fig.draw_without_rendering()  # the constrained layout: the axes at their final size
+    renderer = fig.canvas.get_renderer()
+    taken: list[list[Any]] = [[] for _ in range(rows)]
+    x0, x1 = ax.get_xlim()
+    for z in positions:
+        if not x0 <= z <= x1:
+            continue
+        for row in range(rows):
+            text = ax.annotate(f"{z:.3g}", (z, 1.0), xycoords=("data", "axes fraction"),
+                               xytext=(2, -10 - 10 * row), textcoords="offset points", fontsize=8, color="0.25")
+            box = text.get_window_extent(renderer).expanded(1.15, 1.0)
+            if not any(box.overlaps(b) for b in taken[row]):
+                taken[row].append(box)
+                break
+            text.remove()
 
 
 # ---------------------------------------------------------------------------------------------
@@ -338,8 +362,8 @@ def _field_values(fields: FieldData, quantity: str, reference: Mapping[str, Any]
         if u_ref and rho:
             return (p - p_ref) / (0.5 * rho * u_ref**2), "Cp = (p − p_ref) / (½ ρ U_ref²) [-]", "pressure"
         return p, "p (units of the case)", "pressure"
-    if quantity == "nut_ratio":
-        return _get(fields, "nut_ratio"), "ν_t / ν [-]", "eddy-viscosity ratio"
+    if quantity == "eddy_viscosity_ratio":
+        return _get(fields, "eddy_viscosity_ratio"), "ν_t / ν [-]", "eddy-viscosity ratio"
     a = _get(fields, quantity)
     if a.ndim == 2:
         return np.hypot(a[:, 0], a[:, 1]), f"|{quantity}|", quantity
@@ -353,24 +377,49 @@ def _get(fields: FieldData, name: str) -> np.ndarray:
     return a[:, 0] if a.ndim == 2 and a.shape[1] == 1 else a
 
 
-def _colour_limits(values: np.ndarray) -> tuple[float, float, str]:
-    """Colour range and colour-bar ``extend`` mode.
+#: colour limits: the area-weighted percentiles kept in colour, and how much wider the full range
+#: must be for the map to be clipped to them (a singular point, a stagnation point)
+COLOUR_PERCENTILES = (1.0, 99.0)
+CLIP_WHEN_WIDER = 1.5
 
-    The full range, unless a few cells hold extreme values (singular corners, stagnation
-    points) that would wash out the rest: when the 0.5-99.5 percentile range is less than
-    half of the full range, the colours span the percentiles and the bar gets arrows.
+
+def _weighted_percentile(values: np.ndarray, weights: np.ndarray, q: float) -> float:
+    order = np.argsort(values, kind="stable")
+    v, w = values[order], weights[order]
+    cw = np.cumsum(w)
+    return float(np.interp(q / 100.0 * cw[-1], cw - 0.5 * w, v))
+
+
+def _colour_limits(values: np.ndarray, weights: np.ndarray | None = None) -> tuple[float, float, str, str]:
+    """Colour range, colour-bar ``extend`` mode and a note on what the colours leave out.
+
+    The full range, unless a small part of the map holds values far outside the rest (a leading
+    edge, a corner, a stagnation point) that would wash out everything else: when the full range
+    exceeds :data:`CLIP_WHEN_WIDER` times the range between the :data:`COLOUR_PERCENTILES` of the
+    values weighted by cell area (what the eye sees; clustered small cells at a singular point
+    count little), the colours span those percentiles, the bar gets arrows and the note states
+    both ranges.
     """
-    finite = values[np.isfinite(values)]
+    ok = np.isfinite(values)
+    finite = values[ok]
     if not len(finite):
-        return 0.0, 1.0, "neither"
+        return 0.0, 1.0, "neither", ""
     lo, hi = float(finite.min()), float(finite.max())
-    if len(finite) < 200:
-        return lo, hi, "neither"
-    plo, phi = (float(v) for v in np.percentile(finite, [0.5, 99.5]))
-    if phi - plo >= 0.5 * (hi - lo):
-        return lo, hi, "neither"
-    extend = {(True, True): "both", (True, False): "min", (False, True): "max"}.get((lo < plo, hi > phi), "neither")
-    return plo, phi, extend
+    if len(finite) < 50:
+        return lo, hi, "neither", ""
+    w = np.ones(len(finite)) if weights is None else np.maximum(np.asarray(weights, float)[ok], 0.0)
+    if not w.sum() > 0:
+        w = np.ones(len(finite))
+    plo, phi = (_weighted_percentile(finite, w, q) for q in COLOUR_PERCENTILES)
+    if phi <= plo or hi - lo <= CLIP_WHEN_WIDER * (phi - plo):
+        return lo, hi, "neither", ""
+    pad = 0.05 * (phi - plo)
+    clo, chi = max(lo, plo - pad), min(hi, phi + pad)
+    extend = {(True, True): "both", (True, False): "min", (False, True): "max"}.get((lo < clo, hi > chi), "neither")
+    p0, p1 = COLOUR_PERCENTILES
+    note = (f"colours clipped to {clo:.3g} .. {chi:.3g} (area percentiles {p0:g}-{p1:g}); "
+            f"values reach {lo:.3g} .. {hi:.3g}")
+    return clo, chi, extend, note
 
 
 def _field_layout(w: float, h: float) -> tuple[tuple[float, float], str, tuple[float, float]]:
@@ -478,9 +527,11 @@ def field_figure(
 ) -> Figure:
     """A cell-data map on the mesh cells (flat colour per cell), equal aspect, with colour bar.
 
-    ``quantity``: ``"velocity"`` (magnitude, over U_ref), ``"pressure"`` (as Cp), ``"nut_ratio"``
-    or the name of any cell array (vectors as magnitudes). ``reference``: the ``reference``
-    block of summary.json (rho, u_ref, p_ref, l_ref) for non-dimensional values; without it
+    Lengths are in the units of the case (as in the wall plots of a run and the overlays of
+    ``fvrans compare``). ``quantity``: ``"velocity"`` (magnitude, over U_ref), ``"pressure"``
+    (as Cp), ``"eddy_viscosity_ratio"`` or the name of any cell array (vectors as magnitudes).
+    ``reference``: the ``reference`` block of summary.json (rho, u_ref, p_ref) for
+    non-dimensional values; without it
     values are in the units of the case. ``window``: (xmin, xmax, ymin, ymax) in case units to
     zoom in; a window less high than :data:`THIN_WINDOW` times its width (a boundary layer) is
     drawn with y stretched by a round factor, named in the y label. ``streamlines``: cell
@@ -490,21 +541,25 @@ def field_figure(
     if not isinstance(fields, FieldData):
         fields = read_fields(fields)
     values, label, name = _field_values(fields, quantity, reference)
-    l_ref = _num((reference or {}).get("l_ref"), None)
-    scale = 1.0 / l_ref if l_ref else 1.0
+    l_ref = None  # lengths in the units of the case, like the wall plots and the overlays of fvrans compare
+    scale = 1.0
     x0, x1, y0, y1 = window if window is not None else fields.bounds()
     if not (x1 > x0 and y1 > y0):
         raise CaseError(f"{fields.source}: empty plot window {(x0, x1, y0, y1)}; give xmin < xmax, ymin < ymax")
     stretch = _stretch_factor(x1 - x0, y1 - y0)
     size, cbar_loc, ax_in = _field_layout(x1 - x0, (y1 - y0) * stretch)
     title_text = _title(title, name)
-    size = (size[0], size[1] + 0.25 * title_text.count("\n"))  # room for a wrapped title
+    c = fields.centroids()
+    seen = (c[:, 0] >= x0) & (c[:, 0] <= x1) & (c[:, 1] >= y0) & (c[:, 1] <= y1)
+    shown = seen if seen.any() else np.ones(len(values), dtype=bool)
+    lo, hi, extend, clip_note = _colour_limits(values[shown], fields.areas()[shown])  # colours for what is shown
+    if clip_note:  # under the colour bar, wrapped to its length
+        clip_note = "\n".join(textwrap.wrap(clip_note, int(9.5 * size[0]) if cbar_loc == "bottom" else 34))
+    extra_lines = title_text.count("\n") + (clip_note.count("\n") + 1 if clip_note and cbar_loc == "bottom" else 0)
+    size = (size[0], size[1] + 0.25 * extra_lines)  # room for a wrapped title and the clipping note
     fig = new_figure(size)
     ax = fig.add_subplot()
     polys = [p * scale for p in fields.polygons()]
-    c = fields.centroids()
-    seen = (c[:, 0] >= x0) & (c[:, 0] <= x1) & (c[:, 1] >= y0) & (c[:, 1] <= y1)
-    lo, hi, extend = _colour_limits(values[seen] if seen.any() else values)  # colours for what is shown
     if hi - lo <= 1e-9 * max(abs(lo), abs(hi)) or hi <= lo:  # a uniform field: a readable band around it
         half = max(0.05 * abs(lo), 1e-12)
         lo, hi, extend = lo - half, hi + half, "neither"
@@ -532,6 +587,8 @@ def field_figure(
     ylabel = _length_label("y", l_ref) if l_ref is None else "y / L_ref"
     ax.set_ylabel(ylabel if stretch == 1.0 else f"{ylabel}\n(y stretched {stretch:g}×)")
     ax.set_title(title_text, fontsize=11)
+    if clip_note:
+        label = f"{label}\n{clip_note}"
     kw: dict[str, Any] = {"location": cbar_loc, "label": label, "extend": extend}
     if cbar_loc == "bottom":
         kw.update(aspect=45, fraction=0.08, pad=0.02)
@@ -635,7 +692,7 @@ def probe_figure(
         label = "velocity / U_ref [-]" if u_ref else "velocity (units of the case)"
     elif len(quantities) == 1:
         q = quantities[0]
-        label = {"nut_ratio": "ν_t / ν [-]", "p": "p (units of the case)",
+        label = {"eddy_viscosity_ratio": "ν_t / ν [-]", "p": "p (units of the case)",
                  "nu_tilde": "ν̃ (units of the case)"}.get(q, q)
     else:
         label = ", ".join(quantities)
@@ -700,7 +757,7 @@ def result_figures(
     ``residuals.png``; ``wall_<patch>_cf.png`` and ``wall_<patch>_cp.png`` per wall table, with
     the zero-shear points of summary.json and the curves of ``references[patch]["cf" | "cp"]``
     (see :func:`wall_figure`); ``field_velocity.png`` (with streamlines), ``field_pressure.png``
-    and ``field_nut_ratio.png`` (when present) from fields.vtu; ``profile_<name>.png`` for each
+    and ``field_eddy_viscosity_ratio.png`` (when present) from fields.vtu; ``profile_<name>.png`` for each
     ``profiles/<name>.csv`` with ``y_plus`` and ``u_plus`` columns, ``probe_<name>.png`` (u and v
     along the probe) for each line-probe table. Input problems are checked
     before the first figure is made.
@@ -711,10 +768,11 @@ def result_figures(
     summary = read_summary(rd / "summary.json")
     title = summary.get("title") if isinstance(summary.get("title"), str) else None
     reference = summary.get("reference") if isinstance(summary.get("reference"), Mapping) else None
-    l_ref = _num((reference or {}).get("l_ref"), None)
+    l_ref = None  # x in the units of the case in every plot of a run, as in fvrans compare's overlays
     walls_info = summary.get("walls") if isinstance(summary.get("walls"), Mapping) else {}
     wall_files = sorted((rd / "wall").glob("*.csv")) if (rd / "wall").is_dir() else []
-    _check_references(references, [p.stem for p in wall_files], rd)
+    names = _patch_of_file(walls_info)
+    _check_references(references, [names.get(p.stem, p.stem) for p in wall_files], rd)
     profile_files = sorted((rd / "profiles").glob("*.csv")) if (rd / "profiles").is_dir() else []
     if window is None and summary.get("map_window") is not None:
         window = summary["map_window"]
@@ -729,6 +787,12 @@ def result_figures(
         )
     return _result_figures(rd, title, reference, l_ref, walls_info, wall_files, profile_files, have_res,
                            have_fields, references or {}, mesh_edges, streamlines, window)
+
+
+def _patch_of_file(walls_info: Mapping[str, Any]) -> dict[str, str]:
+    """File stem -> patch name of the walls of summary.json (a name mapped to a safe file name by
+    :func:`fvrans.post.filenames.safe_file_name` is shown as given)."""
+    return {safe_file_name(str(k)): str(k) for k in walls_info if str(k).strip()}
 
 
 def _check_window(window: Any, where: Path) -> tuple[float, float, float, float]:
@@ -749,8 +813,9 @@ def _result_figures(rd: Path, title: str | None, reference: Mapping[str, Any] | 
                     ) -> Iterator[tuple[str, Figure]]:
     if have_res:
         yield "residuals.png", residual_figure(rd / "residuals.csv", title=title)
+    names = _patch_of_file(walls_info)
     for wf in wall_files:
-        patch = wf.stem
+        patch = names.get(wf.stem, wf.stem)
         cols = read_csv_columns(wf)
         along = _choose_along(cols, "auto")
         info = walls_info.get(patch) if isinstance(walls_info.get(patch), Mapping) else {}
@@ -758,17 +823,17 @@ def _result_figures(rd: Path, title: str | None, reference: Mapping[str, Any] | 
         refs = {str(k).lower(): v for k, v in (references.get(patch) or {}).items()}
         for q in ("cf", "cp"):
             if q in cols:
-                yield f"wall_{patch}_{q}.png", wall_figure(
+                yield f"wall_{wf.stem}_{q}.png", wall_figure(
                     cols, q, title=title, patch=patch, zero_shear=zs, references=refs.get(q, ()), l_ref=l_ref,
                     along=along)
     if have_fields:
         fields = read_fields(rd / "fields.vtu")
-        for q in ("velocity", "pressure", "nut_ratio"):
+        for q in ("velocity", "pressure", "eddy_viscosity_ratio"):
             if q in fields.data:
                 yield f"field_{q}.png", field_figure(fields, q, title=title, reference=reference,
                                                      mesh_edges=mesh_edges,
                                                      streamlines=streamlines and q == "velocity")
-        for q in ("velocity", "pressure", "nut_ratio") if window is not None else ():
+        for q in ("velocity", "pressure", "eddy_viscosity_ratio") if window is not None else ():
             if q in fields.data:
                 yield f"field_{q}_zoom.png", field_figure(fields, q, title=title, reference=reference,
                                                           mesh_edges=mesh_edges, window=window,
@@ -796,4 +861,4 @@ def make_plots(
     figures = result_figures(result_dir, references, mesh_edges=mesh_edges, streamlines=streamlines, window=window)
     out = Path(out_dir) if out_dir is not None else Path(result_dir) / "plots"
     out.mkdir(parents=True, exist_ok=True)
-    return [save_figure(fig, out / name) for name, fig in figures]
+    return [save_figure(fig, out / name, within=out) for name, fig in figures]

@@ -52,9 +52,10 @@ def sample_line(
     return out
 
 
-def write_probe_csv(path: str | os.PathLike, columns: Mapping[str, np.ndarray]) -> None:
-    """Write a probe table (header ``s,x,y,...``) atomically."""
-    write_csv_atomic(path, list(columns), [np.asarray(c) for c in columns.values()])
+def write_probe_csv(path: str | os.PathLike, columns: Mapping[str, np.ndarray],
+                    within: str | os.PathLike | None = None) -> None:
+    """Write a probe table (header ``s,x,y,...``) atomically (``within``: the output folder it must lie in)."""
+    write_csv_atomic(path, list(columns), [np.asarray(c) for c in columns.values()], within=within)
 
 
 __all__ = ["PROBE_COORDINATES", "line_points", "sample_line", "write_probe_csv"]

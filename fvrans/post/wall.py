@@ -268,7 +268,7 @@ def wall_data(
     if np.any(kinds != WALL):
         other = _KIND_NAMES.get(int(kinds[kinds != WALL][0]), str(int(kinds[kinds != WALL][0])))
         raise CaseError(
-            f"patch {patch_name!r} is a {other} boundary, not a wall; wall shear stress and "
+            f"patch {patch_name!r} is of kind {other!r}, not a wall; wall shear stress and "
             "forces are evaluated on wall patches only"
         )
     nc = mesh.n_cells

@@ -4,6 +4,10 @@ Every file is written to a temporary file in the destination directory, flushed 
 then moved over the destination with ``os.replace`` (atomic on POSIX and Windows). A reader
 therefore sees either the old complete file or the new complete file, never a partial one, and
 an error while writing leaves the old file (if any) untouched and no temporary file behind.
+
+Each writer takes ``within=``, the output folder the file must lie in: a target that resolves
+outside it is refused (a second line of defence behind :func:`safe_file_name`, the one function
+that turns names into file names; see :mod:`fvrans.post.filenames`).
 """
 
 from __future__ import annotations
@@ -21,6 +25,9 @@ import numpy as np
 
 from fvrans.errors import CaseError
 from fvrans.mesh.mesh import Mesh
+from fvrans.post.filenames import check_inside, output_file, safe_file_name
+
+PathLike = str | os.PathLike
 
 # the process umask, read once (os.umask can only be read by setting it)
 _UMASK = os.umask(0)
@@ -42,13 +49,13 @@ def _fsync_dir(directory: Path) -> None:
 
 
 @contextlib.contextmanager
-def atomic_path(path: str | os.PathLike, suffix: str | None = None) -> Iterator[Path]:
+def atomic_path(path: PathLike, suffix: str | None = None, within: PathLike | None = None) -> Iterator[Path]:
     """Yield a temporary path next to ``path``; on success fsync it and move it onto ``path``.
 
     For writers that insist on opening the file themselves. On an exception the temporary file
-    is removed and ``path`` is left as it was.
+    is removed and ``path`` is left as it was. ``within``: refuse a ``path`` outside this folder.
     """
-    target = Path(path)
+    target = Path(path) if within is None else check_inside(path, within)
     directory = target.parent if str(target.parent) else Path(".")
     if not directory.is_dir():
         raise CaseError(f"cannot write {target}: the directory {directory} does not exist")
@@ -72,9 +79,10 @@ def atomic_path(path: str | os.PathLike, suffix: str | None = None) -> Iterator[
     _fsync_dir(directory)
 
 
-def atomic_write(path: str | os.PathLike, write: Callable[[IO[Any]], None], binary: bool = False) -> None:
+def atomic_write(path: PathLike, write: Callable[[IO[Any]], None], binary: bool = False,
+                 within: PathLike | None = None) -> None:
     """Call ``write(f)`` on a temporary file object, then fsync and move it onto ``path``."""
-    with atomic_path(path) as tmp:
+    with atomic_path(path, within=within) as tmp:
         mode = "wb" if binary else "w"
         kw = {} if binary else {"encoding": "utf-8", "newline": "\n"}
         with open(tmp, mode, **kw) as f:
@@ -120,7 +128,7 @@ def to_jsonable(obj: Any) -> Any:
     raise TypeError(f"an object of type {type(obj).__name__} cannot be written to JSON")
 
 
-def write_json_atomic(path: str | os.PathLike, obj: Any) -> None:
+def write_json_atomic(path: PathLike, obj: Any, within: PathLike | None = None) -> None:
     """Write ``obj`` as indented JSON (numpy scalars/arrays converted; NaN/inf refused, since
     they are not JSON — pass the object through :func:`to_jsonable` to turn them into null).
 
@@ -132,7 +140,7 @@ def write_json_atomic(path: str | os.PathLike, obj: Any) -> None:
     """
     # serialise first: an unserialisable object fails before any file is touched
     text = json.dumps(obj, indent=2, default=_json_default, allow_nan=False) + "\n"
-    atomic_write(path, lambda f: f.write(text))
+    atomic_write(path, lambda f: f.write(text), within=within)
 
 
 def _format_column(col: np.ndarray) -> list[str]:
@@ -144,7 +152,8 @@ def _format_column(col: np.ndarray) -> list[str]:
     return [repr(v) for v in col.astype(np.float64).tolist()]
 
 
-def write_csv_atomic(path: str | os.PathLike, header: Sequence[str], columns: Sequence[np.ndarray]) -> None:
+def write_csv_atomic(path: PathLike, header: Sequence[str], columns: Sequence[np.ndarray],
+                     within: PathLike | None = None) -> None:
     """Comma-separated columns under a one-line header; floats at full precision (shortest
     round-trip representation), so ``np.loadtxt(path, delimiter=",", skiprows=1)`` gives the
     values back exactly.
@@ -175,7 +184,7 @@ def write_csv_atomic(path: str | os.PathLike, header: Sequence[str], columns: Se
     lines = [",".join(header)]
     lines.extend(",".join(row) for row in zip(*text_cols))
     text = "\n".join(lines) + "\n"
-    atomic_write(path, lambda f: f.write(text))
+    atomic_write(path, lambda f: f.write(text), within=within)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -219,10 +228,11 @@ def _vtu_array(name: str, data: np.ndarray, n_cells: int) -> np.ndarray:
 
 
 def write_vtu_atomic(
-    path: str | os.PathLike,
+    path: PathLike,
     mesh: Mesh,
     cell_data: Mapping[str, np.ndarray],
     point_data: Mapping[str, np.ndarray] | None = None,
+    within: PathLike | None = None,
 ) -> None:
     """Write the mesh with per-cell data as a VTK unstructured grid (``.vtu``, via meshio).
 
@@ -251,5 +261,11 @@ def write_vtu_atomic(
         pd[str(name)] = a
     points = np.column_stack([mesh.points, np.zeros(mesh.n_points)])
     out = meshio.Mesh(points, blocks, cell_data=cd, point_data=pd)
-    with atomic_path(path, suffix=".vtu") as tmp:
+    with atomic_path(path, suffix=".vtu", within=within) as tmp:
         meshio.write(tmp, out, file_format="vtu")
+
+
+__all__ = [
+    "atomic_path", "atomic_write", "check_inside", "output_file", "safe_file_name", "to_jsonable",
+    "vtu_cell_blocks", "write_csv_atomic", "write_json_atomic", "write_vtu_atomic",
+]

@@ -11,6 +11,8 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
+from fvrans.linalg._smoother_kernels import csr_residual_l1, gauss_seidel  # noqa: F401 (used as K.gauss_seidel)
+
 WALL = 0
 INLET = 1
 OUTLET = 2
@@ -93,8 +95,9 @@ def assemble_momentum(
             g01 = gwall[b, 0, 1]
             g10 = gwall[b, 1, 0]
             g11 = gwall[b, 1, 1]
-            bu[P] += D * bvel[b, 0] + mu * (g00 * s0 + g01 * s1 + g00 * s0 + g10 * s1) - D * (bvel[b, 0] - u[P, 0])
-            bv[P] += D * bvel[b, 1] + mu * (g10 * s0 + g11 * s1 + g01 * s0 + g11 * s1) - D * (bvel[b, 1] - u[P, 1])
+            # D (u_wall - u_P) implicit; the flux mu (G + G^T) . S less the same with u_P now
+            bu[P] += mu * (g00 * s0 + g01 * s1 + g00 * s0 + g10 * s1) + D * u[P, 0]
+            bv[P] += mu * (g10 * s0 + g11 * s1 + g01 * s0 + g11 * s1) + D * u[P, 1]
         elif kind == INLET:
             D = mu * dcoef[f]
             diag_u[P] += D
@@ -237,11 +240,12 @@ def rhie_chow_fluxes(
 @njit(cache=True)
 def assemble_pressure_correction(owner, neigh, n_int, dcoef, rho, dp, bkind, F, diag, off, rhs):
     """Pressure correction: sum_f rho D_f dcoef (p'_P - p'_N) = -sum_f F*_f, p' = 0 on fixed-pressure
-    faces. ``off[f]`` is the (symmetric) coefficient of face f; returns the scaled mass imbalance
-    numerator sum_P |sum_f F*_f|.
+    faces. ``off[f]`` is the (symmetric) coefficient of face f; returns the mass imbalance
+    sum_P |sum_f F*_f| and the magnitude of its terms sum_P sum_f |F*_f| (see ``fvrans.solve.residuals``).
     """
     nc = diag.shape[0]
     nf = owner.shape[0]
+    mag = 0.0
     for c in range(nc):
         diag[c] = 0.0
         rhs[c] = 0.0
@@ -255,17 +259,19 @@ def assemble_pressure_correction(owner, neigh, n_int, dcoef, rho, dp, bkind, F, 
         diag[N] += a
         rhs[P] -= F[f]
         rhs[N] += F[f]
+        mag += 2.0 * abs(F[f])
     for f in range(n_int, nf):
         b = f - n_int
         P = owner[f]
         rhs[P] -= F[f]
+        mag += abs(F[f])
         kind = bkind[b]
         if kind == OUTLET or kind == FREESTREAM:
             diag[P] += rho * dp[P] * dcoef[f]
     total = 0.0
     for c in range(nc):
         total += abs(rhs[c])
-    return total
+    return total, mag
 
 
 @njit(cache=True)
@@ -283,49 +289,6 @@ def correct_fluxes(owner, neigh, n_int, dcoef, rho, dp, bkind, pc, F):
         if kind == OUTLET or kind == FREESTREAM:
             P = owner[f]
             F[f] -= rho * dp[P] * dcoef[f] * (0.0 - pc[P])
-
-
-@njit(cache=True)
-def csr_residual_l1(indptr, indices, data, x, b):
-    """sum_i |b_i - (A x)_i|."""
-    n = b.shape[0]
-    total = 0.0
-    for i in range(n):
-        s = b[i]
-        for k in range(indptr[i], indptr[i + 1]):
-            s -= data[k] * x[indices[k]]
-        total += abs(s)
-    return total
-
-
-@njit(cache=True)
-def gauss_seidel(indptr, indices, data, diag_pos, b, x, max_sweeps, rtol):
-    """Symmetric Gauss-Seidel sweeps on A x = b until the L1 residual falls by ``rtol``.
-
-    Returns (sweeps, initial residual, final residual).
-    """
-    n = b.shape[0]
-    r0 = csr_residual_l1(indptr, indices, data, x, b)
-    r = r0
-    sweeps = 0
-    if r0 == 0.0:
-        return 0, r0, r0
-    for s in range(max_sweeps):
-        for i in range(n):
-            acc = b[i]
-            for k in range(indptr[i], indptr[i + 1]):
-                acc -= data[k] * x[indices[k]]
-            x[i] += acc / data[diag_pos[i]]
-        for i in range(n - 1, -1, -1):
-            acc = b[i]
-            for k in range(indptr[i], indptr[i + 1]):
-                acc -= data[k] * x[indices[k]]
-            x[i] += acc / data[diag_pos[i]]
-        sweeps = s + 1
-        r = csr_residual_l1(indptr, indices, data, x, b)
-        if r <= rtol * r0:
-            break
-    return sweeps, r0, r
 
 
 @njit(cache=True)
@@ -392,11 +355,15 @@ def momentum_sources(
     """Complete the momentum equations and under-relax them.
 
     b_np = b + V f_body (sources without the pressure force, kept for H/A); the unrelaxed
-    residuals b_np - V grad p - a_P u - sum a_nb u_nb of the current velocity; the relaxed
+    residuals r = b_np - V grad p - a_P u - sum a_nb u_nb of the current velocity; the relaxed
     diagonals a_rel = a_P / alpha (Patankar 1980, sec. 4.2-5) and right-hand sides
-    b_np - V grad p + (1 - alpha) a_rel u. Returns (sum |r_u|, sum |r_v|, sum a_P(u), sum a_P(v)).
+    b_np - V grad p + (1 - alpha) a_rel u. Returns (sum |r_u|, sum |r_v|, sum of the term
+    magnitudes): per cell |(a_P^u u_P, a_P^v v_P)| + sum_nb |a_nb| |u_nb| + |b| + V |f_body|
+    + V |grad p| (vector magnitudes; ``b`` the boundary and deferred terms), the reference of
+    ``fvrans.solve.residuals``.
     """
     nc = u.shape[0]
+    mag = 0.0
     for c in range(nc):
         V = vol[c]
         b0 = bu[c] + V * body[c, 0]
@@ -407,6 +374,11 @@ def momentum_sources(
         rhs_v[c] = b1 - V * gp[c, 1]
         work[c, 0] = rhs_u[c] - diag_u[c] * u[c, 0]
         work[c, 1] = rhs_v[c] - diag_v[c] * u[c, 1]
+        a0 = diag_u[c] * u[c, 0]
+        a1 = diag_v[c] * u[c, 1]
+        mag += (np.sqrt(a0 * a0 + a1 * a1) + np.sqrt(bu[c] * bu[c] + bv[c] * bv[c])
+                + V * (np.sqrt(body[c, 0] * body[c, 0] + body[c, 1] * body[c, 1])
+                       + np.sqrt(gp[c, 0] * gp[c, 0] + gp[c, 1] * gp[c, 1])))
     for f in range(off_own.shape[0]):
         P = owner[f]
         N = neigh[f]
@@ -414,23 +386,21 @@ def momentum_sources(
         work[P, 1] -= off_own[f] * u[N, 1]
         work[N, 0] -= off_nei[f] * u[P, 0]
         work[N, 1] -= off_nei[f] * u[P, 1]
+        mag += (abs(off_own[f]) * np.sqrt(u[N, 0] * u[N, 0] + u[N, 1] * u[N, 1])
+                + abs(off_nei[f]) * np.sqrt(u[P, 0] * u[P, 0] + u[P, 1] * u[P, 1]))
     ru = 0.0
     rv = 0.0
-    su = 0.0
-    sv = 0.0
     a = 1.0 - alpha
     for c in range(nc):
         ru += abs(work[c, 0])
         rv += abs(work[c, 1])
-        su += diag_u[c]
-        sv += diag_v[c]
         au = diag_u[c] / alpha
         av = diag_v[c] / alpha
         a_rel[c, 0] = au
         a_rel[c, 1] = av
         rhs_u[c] += a * au * u[c, 0]
         rhs_v[c] += a * av * u[c, 1]
-    return ru, rv, su, sv
+    return ru, rv, mag
 
 
 @njit(cache=True)

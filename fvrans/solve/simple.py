@@ -14,6 +14,9 @@ Van Doormaal & Raithby 1984, Numer. Heat Transfer 7, 147-163):
    (u -= D grad p');
 5. the turbulence model, if any, updates the eddy viscosity.
 
+Each iteration reports the normalised imbalances of ``fvrans.fv.residual`` (summed imbalance over the
+summed magnitudes of the equation's terms) of the state it started from.
+
 The converged solution does not depend on the relaxation factors: every deferred term is
 evaluated at the converged state, and the relaxation term enters the face flux only through
 (1 - alpha) F_old, see ``_kernels.rhie_chow_fluxes``.
@@ -30,16 +33,19 @@ from typing import Any
 import numpy as np
 
 from fvrans.errors import DivergenceError
+from fvrans.fields import Fields
+from fvrans.fv import stress as stress_modes
 from fvrans.fv.assembly import CsrAssembler
 from fvrans.fv.gradient import GaussLeastSquaresGradient, QuadraticFit, gradient_operator
+from fvrans.fv.stress import StressDivergence
 from fvrans.fv.wall_gradient import WallGradient
 from fvrans.linalg.amg import AmgKrylovSolver
 from fvrans.linalg.pressure import PressureSolver
 from fvrans.mesh.geometry import Geometry
 from fvrans.mesh.mesh import Mesh
+from fvrans.models.base import EddyViscosityModel, TurbulenceModel  # noqa: F401 (the interface's old home)
 from fvrans.physics.boundary import SYMMETRY, WALL, FlowBoundary
 from fvrans.solve import _kernels as K
-from fvrans.solve.fields import Fields
 
 log = logging.getLogger(__name__)
 
@@ -119,7 +125,7 @@ class SolverControls:
 
 @dataclass
 class History:
-    """Scaled residuals per outer iteration (columns named in ``names``)."""
+    """Normalised imbalances per outer iteration (columns named in ``names``)."""
 
     names: list[str] = field(default_factory=lambda: ["u", "v", "continuity"])
     rows: list[list[float]] = field(default_factory=list)
@@ -129,27 +135,12 @@ class History:
         return np.asarray(self.rows, dtype=float).reshape(-1, len(self.names))
 
 
-class EddyViscosityModel:
-    """Interface of a turbulence model seen by the loop (laminar flow: this class as is)."""
-
-    names: tuple[str, ...] = ()
-
-    def eddy_viscosity(self, fields: Fields) -> np.ndarray | None:
-        """mu_t per cell, or None for laminar flow."""
-        return None
-
-    def wall_eddy_viscosity(self) -> float:
-        return 0.0
-
-    def update(self, fields: Fields, grad_u: np.ndarray) -> list[float]:
-        """Advance the model equations one outer iteration; return their scaled residuals."""
-        return []
-
-
 class SimpleSolver:
     """Steady incompressible solver (SIMPLE/SIMPLEC, Rhie-Chow) on a fixed mesh.
 
-    ``mu`` is the dynamic viscosity, ``rho`` the density. ``model`` supplies the eddy viscosity.
+    ``mu`` is the dynamic viscosity, ``rho`` the density. ``model`` (a
+    :class:`fvrans.models.base.TurbulenceModel`; laminar when None) supplies the eddy viscosity,
+    an optional explicit extra stress and its own equations, advanced once per outer iteration.
     """
 
     def __init__(
@@ -161,7 +152,7 @@ class SimpleSolver:
         mu: float,
         controls: SolverControls | None = None,
         fields: Fields | None = None,
-        model: EddyViscosityModel | None = None,
+        model: TurbulenceModel | None = None,
         body_force: Callable[[np.ndarray], np.ndarray] | np.ndarray | None = None,
     ):
         self.mesh = mesh
@@ -170,7 +161,7 @@ class SimpleSolver:
         self.rho = float(rho)
         self.mu = float(mu)
         self.ctl = controls or SolverControls()
-        self.model = model or EddyViscosityModel()
+        self.model = model if model is not None else TurbulenceModel()
         nc, nf, ni = mesh.n_cells, mesh.n_faces, mesh.n_internal_faces
         self.nc, self.nf, self.ni = nc, nf, ni
         # geometry for the kernels
@@ -273,12 +264,18 @@ class SimpleSolver:
         self.history = History(names=["u", "v", "continuity", *self.model.names])
         self.iteration = 0
         self.fields = fields.copy() if fields is not None else Fields.uniform(nc, nf)
+        self.model.initialise(self.fields)
+        # the explicit extra stress of the model (non-linear relations, injected stresses): its
+        # divergence is a momentum source; zero on walls, normal part only on symmetry planes
+        bmode = np.full(nf - ni, stress_modes.OWNER, dtype=np.int64)
+        bmode[boundary.kind == WALL] = stress_modes.ZERO
+        bmode[boundary.kind == SYMMETRY] = stress_modes.NORMAL
+        self.stress_divergence = StressDivergence(mesh, geom, bmode)
+        self.div_stress = np.zeros((nc, 2))
         if fields is None or not np.any(fields.face_flux):
             self.fields.face_flux = self._interpolated_fluxes(self.fields.velocity)
         self.grad_p = self.grad_pressure(self.fields.pressure, self._pressure_on_boundary(np.zeros((nc, 2))))
         self.u_scale = self._velocity_scale()
-        # sum over cells of half their perimeter: the continuity residual's scale
-        self.perimeter_sum = float(np.sum(geom.face_length[:ni]) + 0.5 * np.sum(geom.face_length[ni:]))
 
     # -- boundary values -----------------------------------------------------------------
     def _velocity_scale(self) -> float:
@@ -320,7 +317,7 @@ class SimpleSolver:
 
     # -- one outer iteration ---------------------------------------------------------------
     def iterate(self) -> list[float]:
-        """One SIMPLE(C) outer iteration; returns the scaled residuals [u, v, continuity, ...]."""
+        """One SIMPLE(C) outer iteration; returns the normalised imbalances [u, v, continuity, ...]."""
         fl = self.fields
         ctl = self.ctl
         rho = self.rho
@@ -354,16 +351,22 @@ class SimpleSolver:
             self.bc.velocity, ctl.convection == "linear-upwind",
             self.diag_u, self.diag_v, self.off_own, self.off_nei, self.bu, self.bv,
         )
+        # the model's explicit extra stress T (beside 2 mu_t S): + sum_f T_f . S_f on the right
+        extra = self.model.extra_stress(fl, gu)
+        if extra is not None:
+            div = self.stress_divergence(extra, out=self.div_stress)
+            self.bu += div[:, 0]
+            self.bv += div[:, 1]
         # body force and pressure gradient (cell gradient, Rhie-Chow handles the coupling),
         # residuals of the current velocity, implicit under-relaxation (Patankar 1980, sec. 4.2-5)
         gp = self.grad_p
-        ru, rv, su, sv = K.momentum_sources(
+        ru, rv, mag = K.momentum_sources(
             self.owner, self.neigh, self.vol, self.body, gp, u_old, alpha, self.diag_u, self.diag_v,
             self.off_own, self.off_nei, self.bu, self.bv, self.b_np, self.a_rel, self.rhs_u, self.rhs_v,
             self.work2,
         )
-        res_u = ru / (self.u_scale * su + 1e-300)
-        res_v = rv / (self.u_scale * sv + 1e-300)
+        res_u = ru / (mag + 1e-300)
+        res_v = rv / (mag + 1e-300)
         mu_ = self.asm_u.matrix(self.a_rel[:, 0], self.off_own, self.off_nei)
         mv_ = self.asm_v.matrix(self.a_rel[:, 1], self.off_own, self.off_nei)
         t3 = time.perf_counter()
@@ -392,10 +395,10 @@ class SimpleSolver:
             g.face_skew, g.face_delta, gu, hu, self.hess is not None, rho, self.hbya, self.rau, fl.pressure, gp,
             self.pb, kind, self.bc.velocity, alpha, F_old, F,
         )
-        imbalance = K.assemble_pressure_correction(
+        imbalance, throughput = K.assemble_pressure_correction(
             self.owner, self.neigh, ni, self.dcoef, rho, dp, kind, F, self.p_diag, self.p_off, self.p_rhs
         )
-        res_c = imbalance / (rho * self.u_scale * self.perimeter_sum + 1e-300)
+        res_c = imbalance / (throughput + 1e-300)
         t5 = time.perf_counter()
         pc = self.psolver.solve(self.p_diag, self.p_off, self.p_rhs, out=self.pc)
         t6 = time.perf_counter()
@@ -428,8 +431,8 @@ class SimpleSolver:
 
     def resume(self, iteration: int, rows: Any, seconds: Any, velocity_scale: float,
                pressure_gradient: np.ndarray | None = None) -> None:
-        """Continue a saved run: its iteration count, residual history, residual velocity scale
-        (so the history continues on the same scale) and the pressure gradient of its last
+        """Continue a saved run: its iteration count, residual history, velocity scale (of the
+        divergence guard) and the pressure gradient of its last
         iteration (the boundary pressure extrapolation depends on it); see :mod:`fvrans.checkpoint`."""
         rows = np.asarray(rows, dtype=float).reshape(-1, len(self.history.names))
         self.iteration = int(iteration)
@@ -446,7 +449,7 @@ class SimpleSolver:
         tolerance: float | None = None,
         callback: Callable[[int, list[float]], bool | None] | None = None,
     ) -> bool:
-        """Iterate until every scaled residual is below ``tolerance`` (True) or the limit (False).
+        """Iterate until every normalised imbalance is below ``tolerance`` (True) or the limit (False).
 
         NaN/Inf, a speed above ``RUNAWAY_SPEED`` times the velocity scale, a linear system that
         lost its diagonal, or growth of a residual by ``divergence_factor`` above its minimum

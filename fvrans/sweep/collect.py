@@ -15,6 +15,7 @@ from typing import Any
 import numpy as np
 
 from fvrans.errors import CaseError
+from fvrans.post.filenames import output_file
 from fvrans.post.summary import summary_value
 from fvrans.sweep.spec import Output
 
@@ -66,7 +67,7 @@ def collect_outputs(run_dir: str | Path, outputs: Sequence[Output]) -> tuple[dic
                     summary = json.loads((run / "summary.json").read_text(encoding="utf-8"))
                 v = summary_value(summary, o.summary, f"{where}: {run / 'summary.json'}", none_as_nan=True)
             else:
-                path = run / "wall" / f"{o.wall}.csv"
+                path = output_file(run, o.wall, ".csv", subfolder="wall", what=f"{where}: wall")
                 if o.wall not in walls:
                     if not path.is_file():
                         raise CaseError(f"{where}: {path} does not exist; is {o.wall!r} a wall patch of "

@@ -445,7 +445,7 @@ def sweep_command(spec: str | Path, out_dir: str | Path, workers: int | None = N
         meta = table.meta
         refused = f", {meta['runs_refused']} refused by the case" if meta["runs_refused"] else ""
         print(f"{len(table)} runs ({meta['runs_done']} run now, {meta['runs_reused']} from earlier{refused}), "
-              f"{len(bad)} not ok; table in {Path(out_dir) / 'results.csv'}", file=sys.stderr)
+              f"{len(bad)} not ok; table in {Path(out_dir) / 'results.csv'}")
         for r in bad[:10]:
             print(f"  run {r['run']} ({r['key']}): {r['status']}: {r['error']}", file=sys.stderr)
         if len(bad) > 10:

@@ -1,5 +1,7 @@
 """Verification against references: readers, comparison specs and reports, grid-convergence studies."""
 
+from fvrans.reference.meshfile import FieldFile, read_field
+from fvrans.reference.tables import Table, ZonedTable, read_columns, read_csv, read_table
 from fvrans.verify.compare import Curve, ItemResult, ResultDir, compare, compare_item, curve_metric
 from fvrans.verify.gci import (
     GciResult,
@@ -16,7 +18,6 @@ from fvrans.verify.gci import (
     write_grid_study,
 )
 from fvrans.verify.grid_runs import grid_changes, run_grid_study, run_grid_study_command
-from fvrans.verify.readers import FieldFile, Table, ZonedTable, read_columns, read_csv, read_field, read_table
 from fvrans.verify.report import compare_command, junit_xml, markdown_table, write_report
 from fvrans.verify.spec import Item, Spec, Transform, load_spec, parse_spec
 

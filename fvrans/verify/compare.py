@@ -24,8 +24,10 @@ from typing import Any
 import numpy as np
 
 from fvrans.errors import CaseError
+from fvrans.post.filenames import safe_file_name
 from fvrans.post.summary import summary_value
-from fvrans.verify.readers import FieldFile, Table, read_csv, read_field, read_table
+from fvrans.reference.meshfile import FieldFile, read_field
+from fvrans.reference.tables import Table, read_csv, read_table
 from fvrans.verify.spec import Item, Spec, Transform
 
 
@@ -176,9 +178,9 @@ def _result_curve(rd: ResultDir, item: Item) -> Curve:
     r = item.result
     tr = item.result_transform
     if item.kind == "wall":
-        raw = _table_curve(rd.table(f"wall/{r['patch']}.csv"), r["x"], r["y"], tr)
+        raw = _table_curve(rd.table(f"wall/{safe_file_name(r['patch'], 'the wall patch')}.csv"), r["x"], r["y"], tr)
     elif item.kind == "profile":
-        raw = _table_curve(rd.table(f"profiles/{r['profile']}.csv"), r["x"], r["y"], tr)
+        raw = _table_curve(rd.table(f"profiles/{safe_file_name(r['profile'], 'the profile')}.csv"), r["x"], r["y"], tr)
     else:  # line probe through fields.vtu
         a, b = np.array(r["start"]), np.array(r["end"])
         ff = rd.fields()
@@ -224,7 +226,7 @@ def _wall_units(rd: ResultDir, patch: str, curve: Curve, start: np.ndarray | Non
     except (TypeError, KeyError, ValueError, ZeroDivisionError):
         raise CaseError(f"{rd.path / 'summary.json'}: wall units need reference.mu and reference.rho "
                         "(written by runs with wall patches)") from None
-    wall = rd.table(f"wall/{patch}.csv")
+    wall = rd.table(f"wall/{safe_file_name(patch, 'the wall patch')}.csv")
     o = np.argsort(wall.column("s"), kind="stable")
     pts = np.column_stack([wall.column("x"), wall.column("y")])[o]
     ut = wall.column("u_tau")[o]

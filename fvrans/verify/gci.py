@@ -17,6 +17,14 @@ does not shrink as the grid is refined), larger ratios are *monotone* convergenc
 ratios the divergence test is the usual |eps21| >= |eps32|.)
 
 Representative cell size in 2D: h = sqrt(total area / N).
+
+Flags (exit status 1 of ``fvrans grid-study``): besides oscillatory, divergent or undetermined
+behaviour, an observed order below :data:`ORDER_FRACTION` times the formal order of the scheme
+(default :data:`FORMAL_ORDER`, fvrans's second-order discretisation), and a GCI_fine21 above
+:data:`GCI_LIMIT`. The three-grid GCI with Fs = 1.25 presumes an observed order that confirms the
+formal one (Roache 1998, Verification and Validation in Computational Science and Engineering,
+from memory); how far below counts as "far" and which GCI is too large to report a number are
+common practice, not published thresholds: half the formal order, and 10 %.
 """
 
 from __future__ import annotations
@@ -26,15 +34,19 @@ import os
 import re
 import sys
 from collections.abc import Sequence
-from dataclasses import asdict, dataclass, field
+from dataclasses import asdict, dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
 from fvrans.errors import CaseError
+from fvrans.post.filenames import safe_file_name
 
 SAFETY_FACTOR_THREE_GRIDS = 1.25  # Roache (1994) for three or more grids; 3.0 for two grids
+FORMAL_ORDER = 2.0  # fvrans's discretisation (linear-upwind convection, central diffusion)
+ORDER_FRACTION = 0.5  # an observed order below this times the formal one is flagged (common practice)
+GCI_LIMIT = 0.10  # a GCI_fine21 above 10 % is flagged (common practice)
 P_MAX = 20.0  # observed orders are searched in (0, P_MAX]
 
 
@@ -69,15 +81,34 @@ class GciResult:
     safety_factor: float
     iterations: int
     notes: tuple[str, ...] = field(default_factory=tuple)
+    formal_order: float = FORMAL_ORDER
+    gci_limit: float = GCI_LIMIT
+
+    @property
+    def flags(self) -> tuple[str, ...]:
+        """Why this estimate is not to be trusted (empty when it is): not a monotone convergence,
+        no observed order, an order far below the formal one, or a GCI above the limit."""
+        out = []
+        if self.behaviour != "monotone":
+            out.append(self.behaviour)
+        if not math.isfinite(self.p):
+            out.append("no observed order")
+        elif self.p < ORDER_FRACTION * self.formal_order:
+            out.append(f"order {self.p:.3g} far below the formal {self.formal_order:g}")
+        if math.isfinite(self.gci_fine21) and self.gci_fine21 > self.gci_limit:
+            out.append(f"GCI {100 * self.gci_fine21:.3g} % above {100 * self.gci_limit:g} %")
+        return tuple(out)
 
     @property
     def flagged(self) -> bool:
-        """True unless the three grids show monotone convergence with a determined order."""
-        return self.behaviour != "monotone" or not math.isfinite(self.p)
+        """True unless the three grids show monotone convergence with an order near the formal
+        one and a GCI within the limit (see the module docstring)."""
+        return bool(self.flags)
 
     def to_json(self) -> dict[str, Any]:
         d = asdict(self)
         d["flagged"] = self.flagged
+        d["flags"] = list(self.flags)
         return d
 
 
@@ -123,8 +154,14 @@ def _observed_order(r21: float, r32: float, eps21: float, eps32: float, tol: flo
     return float("nan"), max_iter, f"the equation for the observed order has no solution in (0, {P_MAX:g}]"
 
 
-def gci_three(h: Sequence[float], phi: Sequence[float], safety_factor: float = SAFETY_FACTOR_THREE_GRIDS) -> GciResult:
-    """Celik et al. (2008) for three grids; ``h`` and ``phi`` in any order (sorted fine to coarse)."""
+def gci_three(h: Sequence[float], phi: Sequence[float], safety_factor: float = SAFETY_FACTOR_THREE_GRIDS,
+              formal_order: float = FORMAL_ORDER, gci_limit: float = GCI_LIMIT) -> GciResult:
+    """Celik et al. (2008) for three grids; ``h`` and ``phi`` in any order (sorted fine to coarse).
+    ``formal_order`` and ``gci_limit`` set the flags of :attr:`GciResult.flags`."""
+    return replace(_gci_three(h, phi, safety_factor), formal_order=float(formal_order), gci_limit=float(gci_limit))
+
+
+def _gci_three(h: Sequence[float], phi: Sequence[float], safety_factor: float) -> GciResult:
     if len(h) != 3 or len(phi) != 3:
         raise CaseError(f"three grids are needed, got {len(h)} sizes and {len(phi)} values")
     hs = np.asarray(h, dtype=np.float64)
@@ -199,7 +236,8 @@ class GridConvergence:
 
 
 def grid_convergence(h: Sequence[float], phi: Sequence[float], name: str = "phi",
-                     safety_factor: float = SAFETY_FACTOR_THREE_GRIDS) -> GridConvergence:
+                     safety_factor: float = SAFETY_FACTOR_THREE_GRIDS, formal_order: float = FORMAL_ORDER,
+                     gci_limit: float = GCI_LIMIT) -> GridConvergence:
     """Values ``phi`` on grids of representative size ``h`` (3 or more, any order)."""
     if len(h) != len(phi):
         raise CaseError(f"{name}: {len(h)} cell sizes but {len(phi)} values")
@@ -208,7 +246,8 @@ def grid_convergence(h: Sequence[float], phi: Sequence[float], name: str = "phi"
     order = np.argsort(np.asarray(h, dtype=np.float64))
     hs = tuple(float(h[i]) for i in order)
     ps = tuple(float(phi[i]) for i in order)
-    triplets = tuple(gci_three(hs[k:k + 3], ps[k:k + 3], safety_factor) for k in range(len(hs) - 2))
+    triplets = tuple(gci_three(hs[k:k + 3], ps[k:k + 3], safety_factor, formal_order, gci_limit)
+                     for k in range(len(hs) - 2))
     return GridConvergence(name, hs, ps, triplets[0], triplets)
 
 
@@ -236,7 +275,7 @@ def quantity_value(result_dir: Any, quantity: str) -> float:
         at = float(m["at"])
     except ValueError:
         raise CaseError(f"quantity {quantity!r}: {m['at']!r} is not a number") from None
-    table = rd.table(f"wall/{m['patch']}.csv")
+    table = rd.table(f"wall/{safe_file_name(m['patch'], 'the wall patch')}.csv")
     curve = _monotonic(Curve(table.column(m["axis"]), table.column(m["column"]), table.path, table.lines))
     if not curve.x[0] <= at <= curve.x[-1]:
         raise CaseError(f"{table.path}: {m['axis']} = {at:g} lies outside the wall faces "
@@ -276,7 +315,8 @@ class GridStudy:
 
 
 def grid_study(result_dirs: Sequence[str | os.PathLike], quantities: Sequence[str], area: float | None = None,
-               safety_factor: float = SAFETY_FACTOR_THREE_GRIDS) -> GridStudy:
+               safety_factor: float = SAFETY_FACTOR_THREE_GRIDS, formal_order: float = FORMAL_ORDER,
+               gci_limit: float = GCI_LIMIT) -> GridStudy:
     """GCI of scalar quantities (dotted paths into summary.json) over existing result directories."""
     from fvrans.verify.compare import ResultDir
 
@@ -296,7 +336,7 @@ def grid_study(result_dirs: Sequence[str | os.PathLike], quantities: Sequence[st
     out: dict[str, GridConvergence] = {}
     for q in quantities:
         vals = [quantity_value(ResultDir(d), q) for d in dirs]
-        out[q] = grid_convergence(hs, vals, q, safety_factor)
+        out[q] = grid_convergence(hs, vals, q, safety_factor, formal_order, gci_limit)
     return GridStudy(dirs, tuple(sizes[i][0] for i in order), tuple(hs), out)
 
 
@@ -344,14 +384,17 @@ def grid_study_markdown(study: GridStudy) -> str:
             ok = "yes" if r.get("converged") else "**no**"
             lines.append(f"| {k + 1} ({r.get('label', '')}) | {ok} | {r.get('iterations', '-')} | "
                          f"{r.get('wall_seconds', float('nan')):.1f} | {res} |")
+    first = next(iter(study.quantities.values())).finest
     lines += ["", "Finest three grids (Celik et al. 2008; GCI with safety factor "
-              f"{next(iter(study.quantities.values())).finest.safety_factor:g}):", "",
+              f"{first.safety_factor:g}). Flagged: not monotone, an observed order below "
+              f"{ORDER_FRACTION:g} x the formal order {first.formal_order:g}, or GCI_fine21 above "
+              f"{100 * first.gci_limit:g} % (common practice):", "",
               "| quantity | phi1 | phi2 | phi3 | r21 | r32 | p | phi_ext21 | e_a21 | e_ext21 | GCI_fine21 "
               "| behaviour |",
               "|---|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---|"]
     for name, gc in study.quantities.items():
         g = gc.finest
-        beh = g.behaviour if not g.flagged else f"**{g.behaviour}**"
+        beh = g.behaviour if not g.flagged else f"**{g.behaviour}; flagged: {', '.join(g.flags)}**"
         lines.append(f"| {name} | {_fmt(g.phi[0])} | {_fmt(g.phi[1])} | {_fmt(g.phi[2])} | {g.r21:.4g} | "
                      f"{g.r32:.4g} | {_fmt(g.p)} | {_fmt(g.phi_ext21)} | {_fmt(g.e_a21, True)} | "
                      f"{_fmt(g.e_ext21, True)} | {_fmt(g.gci_fine21, True)} | {beh} |")
@@ -361,9 +404,22 @@ def grid_study_markdown(study: GridStudy) -> str:
     return "\n".join(lines) + "\n"
 
 
+def study_line(name: str, g: GciResult) -> str:
+    """One line per quantity: order, extrapolated value, GCI, behaviour and the flags."""
+    flags = f"; FLAGGED: {', '.join(g.flags)}" if g.flagged else ""
+    return (f"{name}: p = {_fmt(g.p)}, extrapolated {_fmt(g.phi_ext21)}, GCI_fine = {_fmt(g.gci_fine21, True)} "
+            f"({g.behaviour}{flags})")
+
+
+def print_study(study: GridStudy, stream: Any) -> None:
+    """The lines of :func:`study_line` for every quantity of a study."""
+    for name, gc in study.quantities.items():
+        print(study_line(name, gc.finest), file=stream)
+
+
 def write_grid_study(study: GridStudy, report_dir: str | os.PathLike, plots: bool = True) -> None:
     """grid_study.json, grid_study.md and plots/<quantity>.png (atomic writes)."""
-    from fvrans.post.writers import atomic_write, to_jsonable, write_json_atomic
+    from fvrans.post.writers import atomic_write, output_file, to_jsonable, write_json_atomic
 
     out = Path(report_dir)
     try:
@@ -375,24 +431,23 @@ def write_grid_study(study: GridStudy, report_dir: str | os.PathLike, plots: boo
     atomic_write(out / "grid_study.md", lambda f: f.write(md))
     if plots:
         for name, gc in study.quantities.items():
-            safe = "".join(c if c.isalnum() or c in "-_." else "_" for c in name)
-            plot_grid_convergence(gc, out / "plots" / f"{safe}.png")
+            plot_grid_convergence(gc, output_file(out, name, ".png", subfolder="plots", what=f"quantity {name!r}"))
 
 
 def grid_study_command(result_dirs: Sequence[str | os.PathLike], quantities: Sequence[str],
                        report_dir: str | os.PathLike, area: float | None = None,
-                       safety_factor: float = SAFETY_FACTOR_THREE_GRIDS, stream: Any = None) -> int:
-    """``fvrans grid-study``: exit 0 when every quantity converges monotonically, 1 when any is
-    oscillatory, divergent or undetermined, 2 for bad input."""
-    stream = stream if stream is not None else sys.stderr
+                       safety_factor: float = SAFETY_FACTOR_THREE_GRIDS, stream: Any = None,
+                       formal_order: float = FORMAL_ORDER, gci_limit: float = GCI_LIMIT) -> int:
+    """``fvrans grid-study``: exit 0 when every quantity converges monotonically with an order near
+    the formal one and a GCI within the limit, 1 when any is flagged (:attr:`GciResult.flags`),
+    2 for bad input."""
+    out = stream if stream is not None else sys.stdout  # results to stdout, errors to stderr
+    err = stream if stream is not None else sys.stderr
     try:
-        study = grid_study(result_dirs, quantities, area, safety_factor)
+        study = grid_study(result_dirs, quantities, area, safety_factor, formal_order, gci_limit)
         write_grid_study(study, report_dir)
     except CaseError as exc:
-        print(f"error: {exc}", file=stream)
+        print(f"error: {exc}", file=err)
         return 2
-    for name, gc in study.quantities.items():
-        g = gc.finest
-        print(f"{name}: p = {_fmt(g.p)}, extrapolated {_fmt(g.phi_ext21)}, GCI_fine = {_fmt(g.gci_fine21, True)} "
-              f"({g.behaviour})", file=stream)
+    print_study(study, out)
     return 1 if any(gc.finest.flagged for gc in study.quantities.values()) else 0

@@ -21,7 +21,15 @@ from typing import Any
 import numpy as np
 
 from fvrans.errors import CaseError
-from fvrans.verify.gci import SAFETY_FACTOR_THREE_GRIDS, GridStudy, grid_study, write_grid_study
+from fvrans.post.filenames import output_file
+from fvrans.verify.gci import (
+    FORMAL_ORDER,
+    GCI_LIMIT,
+    SAFETY_FACTOR_THREE_GRIDS,
+    GridStudy,
+    grid_study,
+    write_grid_study,
+)
 
 FAMILY_LEVELS = ("coarse", "medium", "fine")
 RUNS_DIR = "runs"
@@ -78,6 +86,8 @@ def run_grid_study(
     levels: Sequence[str] = FAMILY_LEVELS,
     grids: Mapping[str, Mapping[str, Any]] | None = None,
     safety_factor: float = SAFETY_FACTOR_THREE_GRIDS,
+    formal_order: float = FORMAL_ORDER,
+    gci_limit: float = GCI_LIMIT,
     plots: bool = True,
     log: Callable[[str], None] | None = None,
 ) -> GridStudy:
@@ -115,7 +125,7 @@ def run_grid_study(
         prob = problems[label]
         say(f"grid {label}: {prob.mesh.n_cells} cells ...")
         result = fa.solve(prob)
-        folder = result.write(out / RUNS_DIR / label)
+        folder = result.write(output_file(out, label, subfolder=RUNS_DIR, what=f"grid label {label!r}"))
         state = "converged" if result.converged else ("DIVERGED" if result.diverged else "NOT converged")
         say(f"grid {label}: {state} after {result.iterations} iterations in {result.wall_seconds:.1f} s -> {folder}")
         res_last = result.history.rows[-1] if len(result.history.rows) else []
@@ -126,7 +136,8 @@ def run_grid_study(
             "final_residuals": {str(n): float(v) for n, v in zip(result.history.names, res_last)},
         }
         del result
-    study = grid_study(list(runs), quantities, area=a0, safety_factor=safety_factor)
+    study = grid_study(list(runs), quantities, area=a0, safety_factor=safety_factor, formal_order=formal_order,
+                       gci_limit=gci_limit)
     study = GridStudy(study.result_dirs, study.n_cells, study.h, study.quantities,
                       tuple(runs[d] for d in study.result_dirs))
     write_grid_study(study, out, plots=plots)
@@ -136,31 +147,31 @@ def run_grid_study(
 def run_grid_study_command(case_path: str | os.PathLike, quantities: Sequence[str], report_dir: str | os.PathLike,
                            *, meshes: Sequence[str] | None = None, family: str | None = None,
                            levels: Sequence[str] = FAMILY_LEVELS, overrides: Sequence[str] = (),
-                           safety_factor: float = SAFETY_FACTOR_THREE_GRIDS, stream: Any = None) -> int:
+                           safety_factor: float = SAFETY_FACTOR_THREE_GRIDS, stream: Any = None,
+                           formal_order: float = FORMAL_ORDER, gci_limit: float = GCI_LIMIT) -> int:
     """``fvrans grid-study --case``: exit 0 when every run converged and every quantity converges
     monotonically, 1 when a run did not converge or a quantity is oscillatory, divergent or
     undetermined, 2 for bad input."""
     import sys
 
     import fvrans.api as fa
-    from fvrans.verify.gci import _fmt
+    from fvrans.verify.gci import print_study
 
-    stream = stream if stream is not None else sys.stderr
+    out = stream if stream is not None else sys.stdout  # results to stdout, progress and errors to stderr
+    err = stream if stream is not None else sys.stderr
     try:
         case = fa.load_case(case_path)
         if overrides:
             case = fa.apply_overrides(case, list(overrides))
         study = run_grid_study(case, quantities, report_dir, meshes=meshes, family=family, levels=levels,
-                               safety_factor=safety_factor, log=lambda m: print(m, file=stream, flush=True))
+                               safety_factor=safety_factor, formal_order=formal_order, gci_limit=gci_limit,
+                               log=lambda m: print(m, file=err, flush=True))
     except CaseError as exc:
-        print(f"error: {exc}", file=stream)
+        print(f"error: {exc}", file=err)
         return 2
-    for name, gc in study.quantities.items():
-        g = gc.finest
-        print(f"{name}: p = {_fmt(g.p)}, extrapolated {_fmt(g.phi_ext21)}, GCI_fine = {_fmt(g.gci_fine21, True)} "
-              f"({g.behaviour})", file=stream)
-    print(f"report in {Path(report_dir) / 'grid_study.md'}", file=stream)
+    print_study(study, out)
+    print(f"report in {Path(report_dir) / 'grid_study.md'}", file=out)
     bad_runs = [r["label"] for r in study.runs if not r["converged"]]
     if bad_runs:
-        print(f"not converged: {', '.join(bad_runs)} (the estimate assumes converged runs)", file=stream)
+        print(f"not converged: {', '.join(bad_runs)} (the estimate assumes converged runs)", file=out)
     return 1 if bad_runs or any(gc.finest.flagged for gc in study.quantities.values()) else 0

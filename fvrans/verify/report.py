@@ -16,7 +16,7 @@ from typing import Any
 import numpy as np
 
 from fvrans.errors import CaseError
-from fvrans.post.writers import atomic_path, atomic_write, to_jsonable, write_json_atomic
+from fvrans.post.writers import atomic_path, atomic_write, output_file, to_jsonable, write_json_atomic
 from fvrans.verify.compare import ItemResult, compare
 from fvrans.verify.spec import Spec, load_spec
 
@@ -144,8 +144,9 @@ def write_report(results: Sequence[ItemResult], spec: Spec, result_dir: str | os
         raise CaseError(f"cannot create the report directory {out}: {exc.strerror}") from None
     for r in results:
         if plots and r.status != "error":
-            rel = f"{PLOT_DIR}/{r.name}.png"
-            plot_item(r, out / rel)
+            path = output_file(out, r.name, ".png", subfolder=PLOT_DIR, what=f"item {r.name!r}")
+            rel = f"{PLOT_DIR}/{path.name}"
+            plot_item(r, path)
             r.plot = rel
     n_fail = sum(r.status == "fail" for r in results)
     n_err = sum(r.status == "error" for r in results)
@@ -169,7 +170,8 @@ def compare_command(result_dir: str | os.PathLike, spec_path: str | os.PathLike,
     """``fvrans compare``: exit status 0 when all items pass, 1 when any fails, 2 for bad input
     (unreadable spec, result directory or reference; the report is still written when the spec is
     readable, with the broken items marked "error")."""
-    stream = stream if stream is not None else sys.stderr
+    out = stream if stream is not None else sys.stdout  # results to stdout, errors to stderr
+    err = stream if stream is not None else sys.stderr
     try:
         spec = load_spec(spec_path)
         if not Path(result_dir).is_dir():
@@ -177,11 +179,11 @@ def compare_command(result_dir: str | os.PathLike, spec_path: str | os.PathLike,
         results = compare(result_dir, spec)
         write_report(results, spec, result_dir, report_dir)
     except CaseError as exc:
-        print(f"error: {exc}", file=stream)
+        print(f"error: {exc}", file=err)
         return 2
     for r in results:
         tag = {"pass": "pass ", "fail": "FAIL ", "error": "ERROR"}[r.status]
-        print(f"{tag} {r.name}: {r.message}", file=stream)
+        print(f"{tag} {r.name}: {r.message}", file=out)
     if any(r.status == "error" for r in results):
         return 2
     return 1 if any(r.status == "fail" for r in results) else 0

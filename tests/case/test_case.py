@@ -35,16 +35,16 @@ sa_variant = "no-ft2"
 [initial]
 velocity = [10, 0]
 pressure = 0.0
-nut_ratio = 5
+nu_tilde_ratio = 5
 
 [boundary.inlet]
-kind = "velocity-inlet"
+kind = "inflow-velocity"
 profile = "inlet.csv"
 profile_columns = { coordinate = "y", u = "U", v = "V" }
-nut_ratio = 4.0
+nu_tilde_ratio = 4.0
 
 [boundary.outlet]
-kind = "pressure-outlet"
+kind = "outflow-pressure"
 pressure = 0.5
 
 [boundary.bottom]
@@ -54,7 +54,7 @@ kind = "wall"
 kind = "symmetry"
 
 [boundary."far field"]
-kind = "freestream"
+kind = "outer-flow"
 velocity = [10.0, 0.0]
 
 [solver]
@@ -105,7 +105,7 @@ def test_defaults_of_a_minimal_case(base):
     assert c.mesh.generator == "cavity" and c.mesh.file is None and c.mesh.parameters == {"n": 8}
     assert c.mesh.renumber is False
     assert (c.model.turbulence, c.model.sa_variant) == ("none", "standard")
-    assert (c.initial.velocity, c.initial.pressure, c.initial.nut_ratio) == ((0.0, 0.0), 0.0, 3.0)
+    assert (c.initial.velocity, c.initial.pressure, c.initial.nu_tilde_ratio) == ((0.0, 0.0), 0.0, 3.0)
     assert c.boundaries["walls"].velocity == (0.0, 0.0)  # resting wall by default
     s = c.solver
     assert (s.coupling, s.max_iterations, s.tolerance) == ("simplec", 5000, 1e-6)
@@ -164,11 +164,11 @@ def test_full_case_file(full_case_file, tmp_path, monkeypatch):
     inlet = c.boundaries["inlet"]
     assert inlet.profile == (tmp_path / "inlet.csv").resolve()
     assert inlet.profile_columns == {"coordinate": "y", "u": "U", "v": "V"}
-    assert inlet.nut_ratio == 4.0
+    assert inlet.nu_tilde_ratio == 4.0
     assert c.boundaries["outlet"].pressure == 0.5
     assert c.boundaries["top"].kind == "symmetry"
     ff = c.boundaries["far field"]
-    assert (ff.velocity, ff.pressure, ff.nut_ratio) == ((10.0, 0.0), 0.0, 3.0)
+    assert (ff.velocity, ff.pressure, ff.nu_tilde_ratio) == ((10.0, 0.0), 0.0, 3.0)
     assert list(c.boundaries) == ["inlet", "outlet", "bottom", "top", "far field"]  # file order
     assert c.solver.coupling == "simple" and c.solver.relax_pressure == 0.3
     assert c.solver.limiter == "venkatakrishnan" and c.solver.checkpoint_every == 50
@@ -183,7 +183,7 @@ def test_inlet_profile_is_interpolated_linearly(full_case_file):
     u, v = c.boundary_velocity("inlet", np.zeros(4), np.array([0.0, 0.25, 0.75, 1.0]))
     np.testing.assert_allclose(u, [0.0, 4.0, 9.0, 10.0])
     np.testing.assert_allclose(v, [0.0, 0.0, 0.05, 0.1])
-    np.testing.assert_allclose(c.boundary_nut_ratio("inlet", 0.0, np.array([0.1, 0.9])), [4.0, 4.0])
+    np.testing.assert_allclose(c.boundary_nu_tilde_ratio("inlet", 0.0, np.array([0.1, 0.9])), [4.0, 4.0])
 
 
 def test_relative_paths_in_memory_start_from_cwd(base, tmp_path, monkeypatch):
@@ -202,9 +202,9 @@ def _round_trip_cases(base, full_case_file) -> list[Case]:
     sa = dict(base)
     sa["model"] = {"turbulence": "spalart-allmaras"}
     sa["boundary"] = {
-        "far": {"kind": "freestream", "velocity": [1, 0.1], "nut_ratio": 0},
+        "far": {"kind": "outer-flow", "velocity": [1, 0.1], "nu_tilde_ratio": 0},
         "wing": {"kind": "wall"},
-        "out": {"kind": "pressure-outlet"},
+        "out": {"kind": "outflow-pressure"},
     }
     return [case_from_dict(base), case_from_dict(sa), load_case(full_case_file)]
 
@@ -221,14 +221,14 @@ def test_round_trip_through_dict_and_toml(base, full_case_file):
         assert c.set("solver.relax_velocity", 0.55) != c
 
 
-def test_round_trip_with_defaulted_profile_nut_ratio(tmp_path, base):
-    (tmp_path / "p.csv").write_text("y,u,v,nut_ratio\n0,1,0,2\n1,1,0,6\n")
-    base["boundary"]["inlet"] = {"kind": "velocity-inlet", "profile": "p.csv"}
+def test_round_trip_with_defaulted_profile_nu_tilde_ratio(tmp_path, base):
+    (tmp_path / "p.csv").write_text("y,u,v,nu_tilde_ratio\n0,1,0,2\n1,1,0,6\n")
+    base["boundary"]["inlet"] = {"kind": "inflow-velocity", "profile": "p.csv"}
     c = case_from_dict(base, source=tmp_path / "c.toml")
     spec = c.boundaries["inlet"]
-    assert spec.nut_ratio is None and spec.profile_columns["nut_ratio"] == "nut_ratio"
+    assert spec.nu_tilde_ratio is None and spec.profile_columns["nu_tilde_ratio"] == "nu_tilde_ratio"
     np.testing.assert_allclose(
-        c.boundary_nut_ratio("inlet", 0.0, np.array([0.0, 0.25, 1.0])), [2.0, 3.0, 6.0]
+        c.boundary_nu_tilde_ratio("inlet", 0.0, np.array([0.0, 0.25, 1.0])), [2.0, 3.0, 6.0]
     )
     assert case_from_dict(c.to_dict()) == c
 
@@ -238,8 +238,8 @@ def test_python_velocity_function(base, make_mesh):
         return 6.0 * y * (1.0 - y), 0.0 * x
 
     base["boundary"] = {
-        "left": {"kind": "velocity-inlet", "velocity": parabola},
-        "right": {"kind": "pressure-outlet"},
+        "left": {"kind": "inflow-velocity", "velocity": parabola},
+        "right": {"kind": "outflow-pressure"},
         "top": {"kind": "wall"},
         "bottom": {"kind": "wall"},
     }
@@ -258,7 +258,7 @@ def test_python_velocity_function(base, make_mesh):
 
 
 def test_python_velocity_function_errors(base, err):
-    base["boundary"] = {"in": {"kind": "velocity-inlet", "velocity": lambda x, y: (x,)}}
+    base["boundary"] = {"in": {"kind": "inflow-velocity", "velocity": lambda x, y: (x,)}}
     msg = err(case_from_dict(base).boundary_velocity, "in", [0.0], [0.0])
     assert "boundary.in.velocity" in msg and "return (u, v)" in msg
     c = case_from_dict(base).set("boundary.in.velocity", lambda x, y: (np.nan * x, x))
@@ -272,8 +272,8 @@ def test_set_makes_a_new_validated_case(base, err):
     assert c.solver.relax_velocity == 0.95 and c2.solver.relax_velocity == 0.5
     c3 = c.set("boundary.lid.velocity", [2, 0])
     assert c3.boundaries["lid"].velocity == (2.0, 0.0)
-    c4 = c.set("boundary.inlet", {"kind": "velocity-inlet", "velocity": [1, 0]})
-    assert c4.boundaries["inlet"].kind == "velocity-inlet" and "inlet" not in c.boundaries
+    c4 = c.set("boundary.inlet", {"kind": "inflow-velocity", "velocity": [1, 0]})
+    assert c4.boundaries["inlet"].kind == "inflow-velocity" and "inlet" not in c.boundaries
     assert c.set("boundary.walls", None).boundaries.keys() == {"lid"}
     assert c.set('boundary."outer wall"', {"kind": "wall"}).boundaries["outer wall"].kind == "wall"
     msg = err(c.set, "solver.relax_velocity", 0)

@@ -52,7 +52,7 @@ CASES = {
     ),
     "key of another boundary kind": (
         _set("boundary.lid.pressure", 1.0),
-        ["boundary.lid.pressure", "kind 'wall'", "'pressure-outlet'", "takes: kind, velocity"],
+        ["boundary.lid.pressure", "kind 'wall'", "'outflow-pressure'", "takes: kind, velocity"],
     ),
     "misspelt boundary key": (
         _set("boundary.lid.velocty", [1, 0]),
@@ -73,22 +73,22 @@ CASES = {
     "empty boundary table": (_set("boundary", {}), ["boundary", "is empty", 'kind = "wall"']),
     "missing kind": (
         _set("boundary.lid.kind", ...),
-        ["boundary.lid.kind", "missing required key", "'velocity-inlet'", "'freestream'"],
+        ["boundary.lid.kind", "missing required key", "'inflow-velocity'", "'outer-flow'"],
     ),
     "freestream without velocity": (
-        _set("boundary.far", {"kind": "freestream"}),
+        _set("boundary.far", {"kind": "outer-flow"}),
         ["boundary.far.velocity", "missing required key", "velocity = [u, v]"],
     ),
     "inlet without velocity or profile": (
-        _set("boundary.in", {"kind": "velocity-inlet"}),
+        _set("boundary.in", {"kind": "inflow-velocity"}),
         ["boundary.in", "velocity = [u, v]", "profile ="],
     ),
     "inlet with velocity and profile": (
-        _set("boundary.in", {"kind": "velocity-inlet", "velocity": [1, 0], "profile": "p.csv"}),
+        _set("boundary.in", {"kind": "inflow-velocity", "velocity": [1, 0], "profile": "p.csv"}),
         ["boundary.in", "either velocity or profile, not both"],
     ),
     "profile_columns without profile": (
-        _set("boundary.in", {"kind": "velocity-inlet", "velocity": [1, 0], "profile_columns": {"u": "U"}}),
+        _set("boundary.in", {"kind": "inflow-velocity", "velocity": [1, 0], "profile_columns": {"u": "U"}}),
         ["boundary.in.profile_columns", "only used with profile"],
     ),
     # -- wrong types --
@@ -142,7 +142,7 @@ CASES = {
     "bad SA variant": (_set("model.sa_variant", "noft2"), ["model.sa_variant", "'standard', 'no-ft2'"]),
     "bad boundary kind": (
         _set("boundary.lid.kind", "inlet"),
-        ["boundary.lid.kind", "'inlet'", "'wall', 'velocity-inlet', 'pressure-outlet'"],
+        ["boundary.lid.kind", "'inlet'", "'wall', 'inflow-velocity', 'outflow-pressure'"],
     ),
     "bad coupling": (_set("solver.coupling", "piso"), ["solver.coupling", "'simple', 'simplec'"]),
     "bad convection": (
@@ -169,14 +169,14 @@ CASES = {
         _set("solver.relax_turbulence", -0.2),
         ["solver.relax_turbulence", "(0, 1]"],
     ),
-    "negative initial nut_ratio": (_set("initial.nut_ratio", -1.0), ["initial.nut_ratio", ">= 0"]),
-    "negative inlet nut_ratio": (
-        _set("boundary.in", {"kind": "velocity-inlet", "velocity": [1, 0], "nut_ratio": -3}),
-        ["boundary.in.nut_ratio", ">= 0"],
+    "negative initial nu_tilde_ratio": (_set("initial.nu_tilde_ratio", -1.0), ["initial.nu_tilde_ratio", ">= 0"]),
+    "negative inlet nu_tilde_ratio": (
+        _set("boundary.in", {"kind": "inflow-velocity", "velocity": [1, 0], "nu_tilde_ratio": -3}),
+        ["boundary.in.nu_tilde_ratio", ">= 0"],
     ),
-    "negative freestream nut_ratio": (
-        _set("boundary.far", {"kind": "freestream", "velocity": [1, 0], "nut_ratio": -1}),
-        ["boundary.far.nut_ratio", ">= 0"],
+    "negative freestream nu_tilde_ratio": (
+        _set("boundary.far", {"kind": "outer-flow", "velocity": [1, 0], "nu_tilde_ratio": -1}),
+        ["boundary.far.nu_tilde_ratio", ">= 0"],
     ),
     "zero tolerance": (_set("solver.tolerance", 0.0), ["solver.tolerance", "> 0"]),
     "pressure tolerance of 1": (
@@ -256,10 +256,10 @@ def test_error_names_the_case_file(base, err, tmp_path):
 
 
 def test_wall_patch_of_another_kind(base, err):
-    base["boundary"]["out"] = {"kind": "pressure-outlet"}
+    base["boundary"]["out"] = {"kind": "outflow-pressure"}
     base["output"] = {"wall_patches": ["out"]}
     msg = err(case_from_dict, base)
-    assert "output.wall_patches" in msg and "'pressure-outlet'" in msg and 'kind = "wall"' in msg
+    assert "output.wall_patches" in msg and "'outflow-pressure'" in msg and 'kind = "wall"' in msg
 
 
 def test_quoted_patch_name_in_message(base, err):
@@ -285,7 +285,7 @@ def test_mesh_file_is_a_directory(base, err, tmp_path):
 def _inlet(tmp_path: Path, base: dict, csv_text: str | None, **keys) -> dict:
     if csv_text is not None:
         (tmp_path / "p.csv").write_text(csv_text)
-    base["boundary"]["in"] = {"kind": "velocity-inlet", "profile": "p.csv", **keys}
+    base["boundary"]["in"] = {"kind": "inflow-velocity", "profile": "p.csv", **keys}
     return base
 
 
@@ -301,9 +301,9 @@ PROFILE_ERRORS = {
         {"profile_columns": {"v": "vel_y"}},
         ["no column 'vel_y'", "profile_columns.v names it"],
     ),
-    "missing named nut_ratio column": (
+    "missing named nu_tilde_ratio column": (
         "y,u,v\n0,0,0\n1,1,0\n",
-        {"profile_columns": {"nut_ratio": "nr"}},
+        {"profile_columns": {"nu_tilde_ratio": "nr"}},
         ["no column 'nr'"],
     ),
     "not a number": ("y,u,v\n0,0,0\n1,abc,0\n", {}, ["boundary.in.profile", "line 3", "column 'u'", "'abc'"]),
@@ -319,13 +319,38 @@ PROFILE_ERRORS = {
     "unknown column key": (
         "y,u,v\n0,0,0\n1,1,0\n",
         {"profile_columns": {"w": "w"}},
-        ["boundary.in.profile_columns.w", "unknown key", "coordinate, u, v, nut_ratio"],
+        ["boundary.in.profile_columns.w", "unknown key", "coordinate, u, v, nu_tilde_ratio"],
     ),
-    "negative nut_ratio column": ("y,u,v,nut_ratio\n0,0,0,1\n1,1,0,-1\n", {}, ["negative", "'nut_ratio'"]),
-    "nut_ratio twice": (
+    "negative nu_tilde_ratio column": (
+        "y,u,v,nu_tilde_ratio\n0,0,0,1\n1,1,0,-1\n", {}, ["negative", "'nu_tilde_ratio'"]
+    ),
+    "nu_tilde_ratio twice": (
+        "y,u,v,nu_tilde_ratio\n0,0,0,1\n1,1,0,1\n",
+        {"nu_tilde_ratio": 2.0},
+        ["boundary.in.nu_tilde_ratio", "already gives nu_tilde_ratio"],
+    ),
+    # one name, one meaning (issue #12 item 4): nut_ratio could be either ratio
+    "ambiguous nut_ratio column": (
         "y,u,v,nut_ratio\n0,0,0,1\n1,1,0,1\n",
-        {"nut_ratio": 2.0},
-        ["boundary.in.nut_ratio", "already gives nut_ratio"],
+        {},
+        ["boundary.in.profile", "p.csv", "'nut_ratio'", "could mean", "rename it to 'nu_tilde_ratio'",
+         "profile_columns = { nu_tilde_ratio"],
+    ),
+    "both ratios": (
+        "y,u,v,nu_tilde_ratio,eddy_viscosity_ratio\n0,0,0,1,1\n1,1,0,1,1\n",
+        {},
+        ["boundary.in.profile", "both 'nu_tilde_ratio'", "'eddy_viscosity_ratio'", "profile_columns"],
+    ),
+    "eddy-viscosity ratio only": (
+        "y,u,v,eddy_viscosity_ratio\n0,0,0,1\n1,1,0,1\n",
+        {},
+        ["boundary.in.profile", "'eddy_viscosity_ratio' (nu_t / nu", "add a column nu_tilde_ratio",
+         "constant nu_tilde_ratio"],
+    ),
+    "eddy-viscosity ratio named as the input": (
+        "y,u,v,eddy_viscosity_ratio\n0,0,0,1\n1,1,0,1\n",
+        {"profile_columns": {"nu_tilde_ratio": "eddy_viscosity_ratio"}},
+        ["boundary.in.profile_columns.nu_tilde_ratio", "holds nu_t / nu"],
     ),
 }
 

@@ -60,10 +60,10 @@ def test_suggested_tables_are_valid_conditions(base, err):
     added = tomllib.loads("\n".join(line.strip() for line in snippet.splitlines()))["boundary"]
     kinds = {k: v["kind"] for k, v in added.items()}
     assert kinds == {
-        "inlet_1": "velocity-inlet",
-        "Outlet": "pressure-outlet",
+        "inlet_1": "inflow-velocity",
+        "Outlet": "outflow-pressure",
         "symmetry plane": "symmetry",
-        "far field": "freestream",
+        "far field": "outer-flow",
         "plate": "wall",
     }
     fixed = c.replace({f'boundary."{k}"': v for k, v in added.items()})
@@ -91,7 +91,7 @@ def test_wall_moving_through_itself_is_refused(make_mesh, err):
     mesh = make_mesh(4, SQUARE)
     c = case_from_dict(_square_case(top={"kind": "wall", "velocity": [1.0, 0.1]}))
     msg = err(check_case_against_mesh, c, mesh)
-    assert "boundary.top.velocity" in msg and "4 of 4 faces" in msg and "velocity-inlet" in msg
+    assert "boundary.top.velocity" in msg and "4 of 4 faces" in msg and "inflow-velocity" in msg
     assert "0.1" in msg  # the normal component u . n = 0.1 on the top wall y = 1
 
 
@@ -102,9 +102,9 @@ def test_profile_must_cover_the_patch(make_mesh, err, tmp_path):
     (tmp_path / "nearly.csv").write_text("y,u,v\n0.0001,0,0\n0.9999,1,0\n")  # within 1e-3 of the span
     src = tmp_path / "c.toml"
     for ok in ("full.csv", "nearly.csv"):
-        c = case_from_dict(_square_case(left={"kind": "velocity-inlet", "profile": ok}), source=src)
+        c = case_from_dict(_square_case(left={"kind": "inflow-velocity", "profile": ok}), source=src)
         check_case_against_mesh(c, mesh)
-    c = case_from_dict(_square_case(left={"kind": "velocity-inlet", "profile": "short.csv"}), source=src)
+    c = case_from_dict(_square_case(left={"kind": "inflow-velocity", "profile": "short.csv"}), source=src)
     msg = err(check_case_against_mesh, c, mesh)
     assert msg.startswith(f"{src}: boundary.left.profile") and "y = 1" in msg and "[0, 0.9]" in msg
 
@@ -113,7 +113,7 @@ def test_profile_along_x(make_mesh, tmp_path):
     (tmp_path / "p.csv").write_text("x,u,v\n0,0,-1\n1,0,-3\n")
     c = case_from_dict(
         _square_case(
-            top={"kind": "velocity-inlet", "profile": "p.csv", "profile_columns": {"coordinate": "x"}}
+            top={"kind": "inflow-velocity", "profile": "p.csv", "profile_columns": {"coordinate": "x"}}
         ),
         source=tmp_path / "c.toml",
     )
@@ -124,7 +124,7 @@ def test_profile_along_x(make_mesh, tmp_path):
 
 def test_python_inlet_function_tried_on_the_mesh(make_mesh, err):
     c = case_from_dict(
-        _square_case(left={"kind": "velocity-inlet", "velocity": lambda x, y: (1.0 / y, 0.0 * y)})
+        _square_case(left={"kind": "inflow-velocity", "velocity": lambda x, y: (1.0 / y, 0.0 * y)})
     )
     check_case_against_mesh(c, make_mesh(4, SQUARE))  # face centres have y > 0
     c = c.set("boundary.left.velocity", lambda x, y: (np.log(y - 0.5), 0.0))

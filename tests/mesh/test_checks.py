@@ -106,7 +106,7 @@ def test_no_2d_cells(tmp_path: Path) -> None:
 
 def test_unnamed_physical_tag(tmp_path: Path) -> None:
     names = [n for n in NAMES if n[2] != "outlet"]  # tag 2 loses its name
-    raises(write(tmp_path, msh22(names=names)), "physical tag 2", "no name", "'wall'")
+    raises(write(tmp_path, msh22(names=names)), "physical tag 2", "no name", "'wall'", "edge_tags = { 2 =")
 
 
 def test_dim2_name_does_not_name_lines(tmp_path: Path) -> None:

@@ -12,12 +12,19 @@ Closed forms (worked out in the comments, plane geometry only):
 from __future__ import annotations
 
 import re
+from pathlib import Path
 
 import numpy as np
 import pytest
 
-from fvrans.mesh import Mesh, compute_geometry
-from fvrans.mesh.quality import NONORTH_WARN_DEG, format_report, mesh_quality
+from fvrans.mesh import Mesh, compute_geometry, read_mesh
+from fvrans.mesh.quality import (
+    ASPECT_WARN,
+    NONORTH_WARN_DEG,
+    SKEWNESS_WARN,
+    format_report,
+    mesh_quality,
+)
 
 
 def sheared_block(nx: int, ny: int, h: float, theta_deg: float, move=None) -> Mesh:
@@ -67,14 +74,14 @@ def test_sheared_block(theta: float) -> None:
 
 
 def test_strong_shear_warns() -> None:
-    theta = 75.0  # beyond the 70 degree limit (common practice)
+    theta = 75.0  # beyond the 63.5 degree limit (what the tests cover)
     assert theta > NONORTH_WARN_DEG
     m = sheared_block(3, 3, 1.0, theta)
     q = mesh_quality(m, compute_geometry(m))
     assert q.max_nonorth_deg == pytest.approx(theta, abs=1e-9)
     assert len(q.warnings) == 1
     # 12 internal faces, all 75 degrees
-    assert q.warnings[0].startswith("12 internal face(s) are more than 70 degrees non-orthogonal (worst 75.0")
+    assert q.warnings[0].startswith("12 internal face(s) are more than 63.5 degrees non-orthogonal (worst 75.0")
     report = format_report(q, "sheared block")
     assert "WARNINGS" in report and q.warnings[0] in report
 
@@ -138,3 +145,43 @@ def test_mixed_cell_kinds_and_report() -> None:
     assert re.search(r"faces +11 \(4 between cells, 7 on the boundary\)", report)
     assert "south" in report and "rest" in report
     assert "no quality warnings" in report
+
+
+ROOT = Path(__file__).resolve().parents[2]
+
+
+def test_round_off_is_reported_as_zero():
+    """Issue #12 item 3: the flat-plate grid (Cartesian) has no skewness; its round-off (4.5e-11)
+    is reported as 0, and no worst cells are listed for a measure that is 0 everywhere."""
+    mesh = read_mesh(ROOT / "meshes" / "flat_plate_coarse.msh")
+    geom = compute_geometry(mesh)
+    assert 0 < geom.face_skewness[: mesh.n_internal_faces].max() < 1e-8  # round-off in the geometry
+    q = mesh_quality(mesh, geom)
+    assert q.max_skewness == 0.0 and q.max_nonorth_deg == 0.0
+    text = format_report(q)
+    assert "skewness           largest 0\n" in text and "largest skewness: 0 in every cell" in text
+    assert "e-1" not in text  # no round-off figures anywhere
+    assert "no quality warnings" in text  # its aspect ratio, 1.86e4, is covered by the tests
+
+
+def test_warning_thresholds_are_the_largest_values_the_tests_cover(monkeypatch):
+    """The thresholds are the largest values of the meshes the named tests solve (module docstring
+    of fvrans.mesh.quality): each mesh is just inside its threshold."""
+    monkeypatch.syspath_prepend(str(ROOT / "tests" / "solve"))
+    from flows import split_same_diagonal
+    from test_bump_robustness import COARSER
+
+    import fvrans.api as fa
+    from fvrans.mesh.generate import channel
+
+    tri = split_same_diagonal(channel(10.0, 1.0, 100, 40))  # tests/solve/test_poiseuille.py
+    q = mesh_quality(tri, compute_geometry(tri))
+    assert NONORTH_WARN_DEG - 0.5 < q.max_nonorth_deg <= NONORTH_WARN_DEG and not q.warnings
+    case = fa.load_case(ROOT / "cases" / "bump_turbulent.toml")
+    params = {**case.mesh.parameters, **COARSER}  # tests/solve/test_bump_robustness.py
+    bump = fa.prepare(case.set("mesh.parameters", params)).mesh
+    q = mesh_quality(bump, compute_geometry(bump))
+    assert SKEWNESS_WARN - 0.01 < q.max_skewness <= SKEWNESS_WARN
+    plate = read_mesh(ROOT / "meshes" / "flat_plate_medium.msh")  # tests/verification/test_flat_plate.py
+    q = mesh_quality(plate, compute_geometry(plate))
+    assert 0.98 * ASPECT_WARN < q.max_aspect_ratio <= ASPECT_WARN and not q.warnings

@@ -149,8 +149,8 @@ def test_generators_from_a_case_file_and_bad_parameter_reported():
         "mesh": {"generator": "bump_channel", "parameters": {"bump_height": 0.2, **SMALL_BUMP}},
         "fluid": {"density": 1.0, "viscosity": 0.01},
         "boundary": {
-            "inlet": {"kind": "velocity-inlet", "velocity": [1.0, 0.0]},
-            "outlet": {"kind": "pressure-outlet"},
+            "inlet": {"kind": "inflow-velocity", "velocity": [1.0, 0.0]},
+            "outlet": {"kind": "outflow-pressure"},
             "lower_wall": {"kind": "wall"},
             "upper_wall": {"kind": "wall"},
         },

@@ -72,8 +72,8 @@ def channel_boundary(mesh, geom, top_velocity=(0.0, 0.0), specs=None, inlet_velo
     specs = specs or {
         "bottom": {"kind": "wall"},
         "top": {"kind": "wall", "velocity": top_velocity},
-        "inlet": {"kind": "velocity-inlet", "velocity": inlet_velocity},
-        "outlet": {"kind": "pressure-outlet", "pressure": 0.0},
+        "inlet": {"kind": "inflow-velocity", "velocity": inlet_velocity},
+        "outlet": {"kind": "outflow-pressure", "pressure": 0.0},
     }
     return build_flow_boundary(mesh, geom, specs)
 

@@ -24,6 +24,7 @@ from fvrans.post.plots import (
     wall_figure,
     wall_profile_figure,
 )
+from fvrans.post.residuals import RESIDUAL_LABEL, RESIDUAL_NORMALISATION
 from fvrans.post.writers import write_csv_atomic, write_json_atomic, write_vtu_atomic
 
 TITLE = "Synthetic plate"
@@ -54,7 +55,7 @@ def _write_result(d, nut: bool = True, zero_shear=(0.75,)) -> None:
     vel = np.stack([c[:, 1] * (1 - c[:, 1]) * 6.0, np.zeros(mesh.n_cells)], axis=1)
     data = {"velocity": vel, "pressure": 2.0 - c[:, 0]}
     if nut:
-        data["nut_ratio"] = 1.0 + c[:, 1]
+        data["eddy_viscosity_ratio"] = 1.0 + c[:, 1]
     write_vtu_atomic(d / "fields.vtu", mesh, data)
     write_json_atomic(d / "summary.json", {
         "title": TITLE,
@@ -75,7 +76,9 @@ def test_residual_figure_one_log_line_per_equation(tmp_path):
     ax = fig.axes[0]
     assert ax.get_yscale() == "log"
     assert sorted(_labelled_lines(ax)) == ["continuity", "u", "v"]
-    assert "iteration" in ax.get_xlabel() and "residual" in ax.get_ylabel()
+    assert "iteration" in ax.get_xlabel() and RESIDUAL_LABEL in ax.get_ylabel()
+    # the normalisation is stated on the figure
+    assert RESIDUAL_NORMALISATION[:40] in fig.get_supxlabel().replace("\n", " ")
     assert TITLE in ax.get_title()
     assert ax.get_legend() is not None
     u = _labelled_lines(ax)["u"]
@@ -165,12 +168,12 @@ def test_field_figure_velocity_magnitude_on_the_cells(tmp_path):
     np.testing.assert_allclose(coll.get_array(), np.hypot(u[:, 0], u[:, 1]) / 2.0)
     assert cax.get_xlabel() == "|U| / U_ref [-]" or cax.get_ylabel() == "|U| / U_ref [-]"
     assert ax.get_aspect() == 1.0
-    assert ax.get_xlabel().startswith("x / L_ref") and ax.get_ylabel().startswith("y")
+    assert ax.get_xlabel() == "x" and ax.get_ylabel() == "y"  # the units of the case, as in compare overlays
     assert np.all(coll.get_linewidths() > 0)  # mesh edges drawn
     assert not any(isinstance(c, LineCollection) for c in ax.collections)  # no streamlines asked
 
 
-def test_field_figure_pressure_as_cp_and_nut_ratio(tmp_path):
+def test_field_figure_pressure_as_cp_and_eddy_viscosity_ratio(tmp_path):
     _write_result(tmp_path)
     fields = read_fields(tmp_path / "fields.vtu")
     ref = {"rho": 1.0, "u_ref": 2.0, "p_ref": 0.5, "l_ref": 1.0}
@@ -179,7 +182,7 @@ def test_field_figure_pressure_as_cp_and_nut_ratio(tmp_path):
     np.testing.assert_allclose(coll.get_array(), (fields.data["pressure"] - 0.5) / (0.5 * 1.0 * 2.0**2))
     labels = {fig.axes[1].get_xlabel(), fig.axes[1].get_ylabel()}
     assert any(lb.startswith("Cp = (p − p_ref)") for lb in labels)
-    fig = field_figure(fields, "nut_ratio")
+    fig = field_figure(fields, "eddy_viscosity_ratio")
     assert "ν_t / ν [-]" in {fig.axes[1].get_xlabel(), fig.axes[1].get_ylabel()}
     # without reference values: the units of the case, said so
     fig = field_figure(fields, "pressure")
@@ -253,7 +256,7 @@ def test_make_plots_writes_every_plot(tmp_path):
     paths = make_plots(tmp_path, references=refs)
     names = sorted(p.name for p in paths)
     assert names == sorted(["residuals.png", "wall_plate_cf.png", "wall_plate_cp.png", "field_velocity.png",
-                            "field_pressure.png", "field_nut_ratio.png"])
+                            "field_pressure.png", "field_eddy_viscosity_ratio.png"])
     for p in paths:
         assert p.parent == tmp_path / "plots"
         head = p.read_bytes()[:8]
@@ -271,7 +274,7 @@ def test_make_plots_optional_parts_and_profiles(tmp_path):
     write_csv_atomic(tmp_path / "profiles" / "x1.csv", ["y_plus", "u_plus"], [yp, np.log(yp) / 0.41 + 5.0])
     out = tmp_path / "elsewhere"
     names = sorted(p.name for p in make_plots(tmp_path, out_dir=out))
-    assert "field_nut_ratio.png" not in names
+    assert "field_eddy_viscosity_ratio.png" not in names
     assert "profile_x1.png" in names
     assert all((out / n).is_file() for n in names)
 
@@ -311,7 +314,7 @@ def test_zoomed_maps_from_the_summary_window_and_a_thin_window_is_stretched(tmp_
     summary["map_window"] = [0.5, 1.5, 0.0, 0.5]
     write_json_atomic(tmp_path / "summary.json", summary)
     figs = dict(result_figures(tmp_path))
-    assert {"field_velocity_zoom.png", "field_pressure_zoom.png", "field_nut_ratio_zoom.png"} <= set(figs)
+    assert {"field_velocity_zoom.png", "field_pressure_zoom.png", "field_eddy_viscosity_ratio_zoom.png"} <= set(figs)
     ax = figs["field_pressure_zoom.png"].axes[0]
     assert ax.get_xlim() == (0.5, 1.5) and ax.get_ylim() == (0.0, 0.5)
     assert ax.get_aspect() == 1.0 and "stretched" not in ax.get_ylabel()
@@ -346,3 +349,68 @@ def test_plot_command_window(tmp_path, capsys):
     _write_result(tmp_path)
     assert main(["plot", str(tmp_path), "--window", "0", "1", "0", "0.5", "--no-streamlines"]) == 0
     assert (tmp_path / "plots" / "field_velocity_zoom.png").is_file()
+
+
+# ---------------------------------------------------------------------------------------------
+def test_zero_shear_labels_never_overlap(tmp_path):
+    """Issue #12 item 8: close zero-shear points once gave the label "0.001060.0806". Labels that
+    would overlap go a row lower (or are left out beyond three rows); every line is drawn."""
+    _write_result(tmp_path)
+    zs = [0.00106, 0.0806, 0.09, 0.1, 0.5, 1.2]
+    fig = wall_figure(tmp_path / "wall" / "plate.csv", "cf", zero_shear=zs)
+    ax = fig.axes[0]
+    renderer = fig.canvas.get_renderer()
+    fig.draw(renderer)
+    texts = [t for t in ax.texts if t.get_text() in {f"{z:.3g}" for z in zs}]
+    boxes = [t.get_window_extent(renderer) for t in texts]
+    assert len(texts) >= 4 and "0.00106" in [t.get_text() for t in texts]
+    assert not any(a.overlaps(b) for i, a in enumerate(boxes) for b in boxes[i + 1:])
+    vlines = [ln for ln in ax.get_lines() if ln.get_linestyle() == ":" and np.ptp(ln.get_xdata()) == 0]
+    assert len(vlines) == len(zs)
+
+
+def test_colours_clipped_to_what_most_of_the_map_holds_and_said_so(tmp_path):
+    """Issue #12 item 8: a singular point (a leading edge, here one small cell of 1000) once set the
+    whole colour range; the colours now span the area-weighted 1st-99th percentiles when the
+    full range is 1.5 times wider, and the colour bar says so."""
+    mesh, geom = channel(40, 20)
+    p = 2.0 - geom.cell_centre[:, 0]
+    write_vtu_atomic(tmp_path / "fields.vtu", mesh, {"pressure": p})
+    fields = read_fields(tmp_path / "fields.vtu")
+    fig = field_figure(fields, "pressure")  # smooth: the full range
+    assert "clipped" not in fig.axes[1].get_xlabel() + fig.axes[1].get_ylabel()
+    fields.data["pressure"] = np.where(np.arange(len(p)) == 0, 1000.0, fields.data["pressure"])
+    fig = field_figure(fields, "pressure")
+    (coll,) = [c for c in fig.axes[0].collections if isinstance(c, PolyCollection)]
+    lo, hi = coll.norm.vmin, coll.norm.vmax
+    assert hi < 2.2 and lo < 0.1  # the linear field 2 - x spans 0.025 .. 1.975 on the other cells
+    label = fig.axes[1].get_xlabel() + fig.axes[1].get_ylabel()
+    label = label.replace("\n", " ")
+    assert "colours clipped to" in label and "values reach 0.025 .. 1e+03" in label
+
+
+def test_run_plots_and_compare_overlays_share_the_x_axis(tmp_path, monkeypatch):
+    """Issue #12 item 8: wall plots of a run once showed x / L_ref while fvrans compare drew x."""
+    import io
+
+    import fvrans.verify.report as report
+    from fvrans.verify import compare_command
+
+    _write_result(tmp_path)
+    s = json.loads((tmp_path / "summary.json").read_text())
+    s["reference"]["l_ref"] = 2.0
+    write_json_atomic(tmp_path / "summary.json", s)
+    figs = dict(result_figures(tmp_path, streamlines=False))
+    ax = figs["wall_plate_cf.png"].axes[0]
+    assert ax.get_xlabel() == "x" and figs["field_pressure.png"].axes[0].get_xlabel() == "x"
+    run_line = _labelled_lines(ax)["computed"]
+    (tmp_path / "ref.csv").write_text("x,cf\n0.5,-0.0025\n1.5,0.0075\n")
+    (tmp_path / "spec.toml").write_text('[[item]]\nname = "cf"\nkind = "wall"\nmetric = "max_abs"\n'
+                                        'tolerance = 1e-3\n[item.result]\npatch = "plate"\ny = "cf"\n'
+                                        '[item.reference]\nfile = "ref.csv"\nx = "x"\ny = "cf"\n')
+    drawn = []
+    monkeypatch.setattr(report, "save_figure", lambda fig, path: drawn.append(fig))
+    assert compare_command(tmp_path, tmp_path / "spec.toml", tmp_path / "report", stream=io.StringIO()) == 0
+    overlay = drawn[0].axes[0]
+    assert overlay.get_xlabel() == ax.get_xlabel()
+    np.testing.assert_allclose(overlay.get_lines()[0].get_xdata(), run_line.get_xdata())  # same x values

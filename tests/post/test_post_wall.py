@@ -133,7 +133,7 @@ def test_pressure_extrapolation_on_skewed_triangles():
 
 def test_closed_body_archimedes_and_constant_pressure():
     mesh, geom = square_with_hole(3)
-    bc = build_flow_boundary(mesh, geom, {"outer": {"kind": "freestream", "velocity": (1.0, 0.0)},
+    bc = build_flow_boundary(mesh, geom, {"outer": {"kind": "outer-flow", "velocity": (1.0, 0.0)},
                                           "body": {"kind": "wall"}})
     nc = mesh.n_cells
     vel = np.zeros((nc, 2))
@@ -158,7 +158,7 @@ def test_rigid_rotation_round_a_body_has_no_zero_shear_point():
     """Fluid turning round the square body: the shear along the wall keeps its sign although the
     x-positive tangent flips at two corners."""
     mesh, geom = square_with_hole(2)
-    bc = build_flow_boundary(mesh, geom, {"outer": {"kind": "freestream", "velocity": (1.0, 0.0)},
+    bc = build_flow_boundary(mesh, geom, {"outer": {"kind": "outer-flow", "velocity": (1.0, 0.0)},
                                           "body": {"kind": "wall"}})
     r = geom.cell_centre - 2.0
     vel = np.stack([-r[:, 1], r[:, 0]], axis=1)
@@ -247,7 +247,7 @@ def test_bad_requests_are_named():
     bc = channel_boundary(mesh, geom)
     nc = mesh.n_cells
     vel, gp = np.zeros((nc, 2)), np.zeros((nc, 2))
-    with pytest.raises(CaseError, match="'inlet' is a velocity-inlet boundary"):
+    with pytest.raises(CaseError, match="'inlet' is of kind 'inflow-velocity'"):
         wall_data(mesh, geom, bc, "inlet", vel, np.zeros(nc), gp, RHO, MU, 1.0)
     with pytest.raises(MeshError, match="no boundary patch named 'wing'"):
         wall_data(mesh, geom, bc, "wing", vel, np.zeros(nc), gp, RHO, MU, 1.0)

@@ -59,8 +59,8 @@ def _channel_case(**probes) -> dict:
         "title": "probe channel",
         "mesh": {"generator": "channel", "parameters": {"length": 4.0, "height": 1.0, "nx": 24, "ny": 10}},
         "fluid": {"density": 1.0, "viscosity": 0.05},
-        "boundary": {"inlet": {"kind": "velocity-inlet", "velocity": [1.0, 0.0]},
-                     "outlet": {"kind": "pressure-outlet"}, "lower_wall": {"kind": "wall"},
+        "boundary": {"inlet": {"kind": "inflow-velocity", "velocity": [1.0, 0.0]},
+                     "outlet": {"kind": "outflow-pressure"}, "lower_wall": {"kind": "wall"},
                      "upper_wall": {"kind": "wall"}},
         "solver": {"tolerance": 1e-7},
         "probes": probes,
@@ -106,13 +106,49 @@ def _labelled(ax) -> dict:
 
 
 def test_spalart_allmaras_probe_has_model_columns(tmp_path):
-    data = _channel_case(mid={"start": [2.0, 0.05], "end": [2.0, 0.95], "points": 5})
+    data = _channel_case(mid={"start": [2.0, 0.0], "end": [2.0, 1.0], "points": 5})
     data["model"] = {"turbulence": "spalart-allmaras"}
     data["solver"] = {"max_iterations": 3}
     result = api.solve(case_from_dict(data))
     result.write(tmp_path)
     header = (tmp_path / "profiles" / "mid.csv").read_text().splitlines()[0]
-    assert header == "s,x,y,u,v,p,nu_tilde,nut_ratio"
+    assert header == "s,x,y,u,v,p,nu_tilde,eddy_viscosity_ratio"
+
+
+def test_probe_file_as_inlet_profile_is_not_read_as_the_wrong_ratio(tmp_path):
+    """Regression (issue #12 item 4): a probe file's nu_t / nu column once passed for the inlet's
+    nu_tilde / nu (14x too little turbulence near nu_tilde = 3 nu, where f_v1 = 27 / (27 + 7.1^3)).
+    Now it is refused with the file, the column and the fix; following the fix gives the inflow
+    nu_tilde / nu of the probe."""
+    data = _channel_case(mid={"start": [2.0, 0.0], "end": [2.0, 1.0], "points": 5})
+    data["model"] = {"turbulence": "spalart-allmaras"}
+    data["solver"] = {"max_iterations": 3}
+    api.solve(case_from_dict(data)).write(tmp_path / "run")
+    probe = tmp_path / "run" / "profiles" / "mid.csv"
+    second = _channel_case()
+    second["model"] = {"turbulence": "spalart-allmaras"}
+    second["boundary"]["inlet"] = {"kind": "inflow-velocity", "profile": str(probe)}
+    with pytest.raises(CaseError) as exc:
+        case_from_dict(second)
+    msg = str(exc.value)
+    assert "boundary.inlet.profile" in msg and str(probe) in msg and "'eddy_viscosity_ratio'" in msg
+    assert "add a column nu_tilde_ratio" in msg
+    # the fix the message names: a column nu_tilde_ratio = nu_tilde / nu
+    nu = 0.05
+    lines = probe.read_text().splitlines()
+    cols = lines[0].split(",")
+    rows = [[float(v) for v in ln.split(",")] for ln in lines[1:]]
+    fixed = tmp_path / "inflow.csv"
+    fixed.write_text(",".join(c for c in cols if c != "eddy_viscosity_ratio") + ",nu_tilde_ratio\n" + "".join(
+        ",".join(repr(v) for c, v in zip(cols, r) if c != "eddy_viscosity_ratio")
+        + f",{r[cols.index('nu_tilde')] / nu!r}\n" for r in rows))
+    second["boundary"]["inlet"]["profile"] = str(fixed)
+    case = case_from_dict(second)
+    y = np.array([r[cols.index("y")] for r in rows])
+    ratio = case.boundary_nu_tilde_ratio("inlet", np.zeros_like(y), y)
+    np.testing.assert_allclose(ratio, [r[cols.index("nu_tilde")] / nu for r in rows], rtol=1e-12)
+    eddy = np.array([r[cols.index("eddy_viscosity_ratio")] for r in rows])
+    assert np.all(ratio[1:-1] > 5 * eddy[1:-1])  # the two ratios differ several-fold away from the walls
 
 
 @pytest.mark.parametrize(

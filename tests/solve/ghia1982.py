@@ -1,17 +1,19 @@
 """Lid-driven cavity, Re = 100: centreline velocities of Ghia, Ghia & Shin (1982),
 J. Comput. Phys. 48, 387-411, Table I (u along the vertical centreline x = 0.5) and Table II
 (v along the horizontal centreline y = 0.5), the Re = 100 columns (129 x 129 multigrid solution).
+
+The table lives once, in cases/reference/ (with its source), read by the bundled check spec
+cases/cavity_checks.toml and by these tests.
 """
+
+from pathlib import Path
 
 import numpy as np
 
+_REF = Path(__file__).resolve().parents[2] / "cases" / "reference"
 # Table I: y, u(0.5, y)
-Y = np.array([1.0, 0.9766, 0.9688, 0.9609, 0.9531, 0.8516, 0.7344, 0.6172, 0.5, 0.4531, 0.2813,
-              0.1719, 0.1016, 0.0703, 0.0625, 0.0547, 0.0])
-U = np.array([1.0, 0.84123, 0.78871, 0.73722, 0.68717, 0.23151, 0.00332, -0.13641, -0.20581,
-              -0.21090, -0.15662, -0.10150, -0.06434, -0.04775, -0.04192, -0.03717, 0.0])
+Y, U = np.loadtxt(_REF / "ghia1982_re100_u_vertical_centreline.csv", delimiter=",", comments="#", skiprows=4,
+                  unpack=True)
 # Table II: x, v(x, 0.5)
-X = np.array([1.0, 0.9688, 0.9609, 0.9531, 0.9453, 0.9063, 0.8594, 0.8047, 0.5, 0.2344, 0.2266,
-              0.1563, 0.0938, 0.0781, 0.0703, 0.0625, 0.0])
-V = np.array([0.0, -0.05906, -0.07391, -0.08864, -0.10313, -0.16914, -0.22445, -0.24533, 0.05454,
-              0.17527, 0.17507, 0.16077, 0.12317, 0.10890, 0.10091, 0.09233, 0.0])
+X, V = np.loadtxt(_REF / "ghia1982_re100_v_horizontal_centreline.csv", delimiter=",", comments="#", skiprows=4,
+                  unpack=True)

@@ -20,8 +20,8 @@ def test_symmetry_plane_half_channel_is_poiseuille():
     mu, U = 0.02, 1.0
     mesh = channel(10.0, 0.5, 100, 20)
     specs = {
-        "inlet": {"kind": "velocity-inlet", "velocity": [U, 0.0]},
-        "outlet": {"kind": "pressure-outlet", "pressure": 0.0},
+        "inlet": {"kind": "inflow-velocity", "velocity": [U, 0.0]},
+        "outlet": {"kind": "outflow-pressure", "pressure": 0.0},
         "lower_wall": {"kind": "wall"},
         "upper_wall": {"kind": "symmetry"},
     }
@@ -46,8 +46,8 @@ def test_moving_wall_and_callable_inlet_give_exact_couette_flow():
     U, h = 2.0, 1.0
     mesh = channel(4.0, h, 20, 10, triangles=True)
     specs = {
-        "inlet": {"kind": "velocity-inlet", "velocity": lambda x, y: (U * y / h, 0.0 * y)},
-        "outlet": {"kind": "pressure-outlet", "pressure": 0.0},
+        "inlet": {"kind": "inflow-velocity", "velocity": lambda x, y: (U * y / h, 0.0 * y)},
+        "outlet": {"kind": "outflow-pressure", "pressure": 0.0},
         "lower_wall": {"kind": "wall"},
         "upper_wall": {"kind": "wall", "velocity": [U, 0.0]},
     }
@@ -64,7 +64,7 @@ def test_freestream_on_every_side_keeps_an_oblique_uniform_flow():
     (inflow or outflow decided by the flux sign) is an exact solution: u = U_inf, p = p_inf."""
     mesh = cavity(12, triangles=True)
     u_inf = [np.cos(np.pi / 6), np.sin(np.pi / 6)]
-    specs = {name: {"kind": "freestream", "velocity": u_inf, "pressure": 0.5} for name in ("lid", "walls")}
+    specs = {name: {"kind": "outer-flow", "velocity": u_inf, "pressure": 0.5} for name in ("lid", "walls")}
     solver, converged = solve(mesh, specs, mu=0.01, tolerance=1e-10, max_iterations=2000)
     assert converged
     assert np.max(np.abs(solver.fields.velocity - u_inf)) < 1e-8
@@ -77,8 +77,8 @@ def test_reverse_flow_through_an_outlet_converges():
     mesh = backward_facing_step(x_in=-2.0, x_out=2.5, nx_up=12, nx_down=24, ny_upper=24, ny_lower=12,
                                 wall_spacing=0.01, outlet_spacing=0.1)
     specs = {
-        "inlet": {"kind": "velocity-inlet", "velocity": [1.0, 0.0]},
-        "outlet": {"kind": "pressure-outlet", "pressure": 0.0},
+        "inlet": {"kind": "inflow-velocity", "velocity": [1.0, 0.0]},
+        "outlet": {"kind": "outflow-pressure", "pressure": 0.0},
         "lower_wall": {"kind": "wall"},
         "step_face": {"kind": "wall"},
         "upper_wall": {"kind": "wall"},

@@ -78,7 +78,7 @@ def body_force(xc):
 
 def solve_errors(mesh):
     geom = compute_geometry(mesh)
-    spec = {"kind": "velocity-inlet", "velocity": exact_velocity}
+    spec = {"kind": "inflow-velocity", "velocity": exact_velocity}
     bc = build_flow_boundary(mesh, geom, {p: spec for p in mesh.patch_names})
     ni = mesh.n_internal_faces
     a, b = mesh.points[mesh.face_points[ni:, 0]], mesh.points[mesh.face_points[ni:, 1]]

@@ -19,8 +19,8 @@ def test_developed_channel_flow(triangles):
     if triangles:
         mesh = split_same_diagonal(mesh)
     specs = {
-        "inlet": {"kind": "velocity-inlet", "velocity": [U, 0.0]},
-        "outlet": {"kind": "pressure-outlet", "pressure": 0.0},
+        "inlet": {"kind": "inflow-velocity", "velocity": [U, 0.0]},
+        "outlet": {"kind": "outflow-pressure", "pressure": 0.0},
         "lower_wall": {"kind": "wall"},
         "upper_wall": {"kind": "wall"},
     }

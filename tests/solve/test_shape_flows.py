@@ -26,8 +26,8 @@ def bump_case(mu: float, **params) -> fa.Case:
         "fluid": {"density": 1.0, "viscosity": mu},
         "initial": {"velocity": [U, 0.0]},
         "boundary": {
-            "inlet": {"kind": "velocity-inlet", "velocity": [U, 0.0]},
-            "outlet": {"kind": "pressure-outlet"},
+            "inlet": {"kind": "inflow-velocity", "velocity": [U, 0.0]},
+            "outlet": {"kind": "outflow-pressure"},
             "lower_wall": {"kind": "wall"},
             "upper_wall": {"kind": "wall"},
         },
@@ -74,8 +74,8 @@ def test_symmetric_diffuser_flow_is_mirror_symmetric_and_conserves_mass():
         "fluid": {"density": 1.0, "viscosity": 0.1},
         "initial": {"velocity": [U, 0.0]},
         "boundary": {
-            "inlet": {"kind": "velocity-inlet", "velocity": [U, 0.0]},
-            "outlet": {"kind": "pressure-outlet"},
+            "inlet": {"kind": "inflow-velocity", "velocity": [U, 0.0]},
+            "outlet": {"kind": "outflow-pressure"},
             "lower_wall": {"kind": "wall"},
             "upper_wall": {"kind": "wall"},
         },

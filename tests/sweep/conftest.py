@@ -21,11 +21,11 @@ density = 1.0
 viscosity = 0.02
 
 [boundary.inlet]
-kind = "velocity-inlet"
+kind = "inflow-velocity"
 velocity = [1.0, 0.0]
 
 [boundary.outlet]
-kind = "pressure-outlet"
+kind = "outflow-pressure"
 
 [boundary.lower_wall]
 kind = "wall"
@@ -65,11 +65,11 @@ viscosity = 0.02
 velocity = [1.0, 0.0]
 
 [boundary.inlet]
-kind = "velocity-inlet"
+kind = "inflow-velocity"
 velocity = [1.0, 0.0]
 
 [boundary.outlet]
-kind = "pressure-outlet"
+kind = "outflow-pressure"
 
 [boundary.lower_wall]
 kind = "wall"

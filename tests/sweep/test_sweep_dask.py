@@ -73,7 +73,7 @@ def test_failures_on_workers_are_recorded(tmp_path, channel_case, dask_client):
 def test_warm_start_chains_on_workers(tmp_path, bump_case, dask_client):
     """plan.warm_start on the cluster: chains of neighbouring bump heights per task (the generator
     keeps its topology); outputs agree with cold in-process solves to the solver tolerance (1e-7
-    scaled residuals: 1e-5 relative asked) in fewer iterations."""
+    normalised imbalances: 1e-5 relative asked) in fewer iterations."""
     base = load_case(bump_case)
     heights = HEIGHTS[:4]
     sweep = Sweep(case=base, warm_start=True, outputs=OUTPUTS,

@@ -162,7 +162,7 @@ def test_rerun_executes_only_missing_runs(tmp_path, channel_case, monkeypatch):
 
 def test_warm_starts_agree_with_cold_starts_in_fewer_iterations(tmp_path, channel_case):
     """plan.warm_start: each run starts from its converged neighbour (same mesh); the outputs agree
-    with cold starts to the solver tolerance (1e-7 scaled residuals: 1e-5 relative asked) and the
+    with cold starts to the solver tolerance (1e-7 normalised imbalances: 1e-5 relative asked) and the
     sweep takes fewer iterations (measured: 517 against 728 for 6 viscosities, ratio 0.71)."""
     spec = tmp_path / "sweep.toml"
     spec.write_text(RE_SPEC, encoding="utf-8")

@@ -13,9 +13,9 @@ from pathlib import Path
 import numpy as np
 
 import fvrans.api as fa
-from fvrans.physics.spalart_allmaras import model_for_case
+from fvrans.fields import Fields
+from fvrans.models import model_for_case
 from fvrans.post.wall import order_patch_faces
-from fvrans.solve.fields import Fields
 from fvrans.solve.simple import SimpleSolver, SolverControls
 
 ROOT = Path(__file__).resolve().parents[2]
@@ -69,7 +69,7 @@ def run_case(case: fa.Case, tolerance: float, max_iterations: int) -> PlateRun:
                            callback=lambda i, r: hist.append(cf(solver.fields.velocity)) and False)
     result = fa.Result(problem=problem, fields=solver.fields, history=solver.history, converged=converged,
                        iterations=solver.iteration, wall_seconds=float(np.sum(solver.history.seconds)),
-                       grad_p=solver.grad_p)
+                       grad_p=solver.grad_p, model=model)
     return PlateRun(result, np.asarray(hist), solver.history.as_array())
 
 

@@ -42,7 +42,7 @@ import pytest
 from scipy.spatial import cKDTree
 
 import fvrans.api as fa
-from fvrans.solve.fields import Fields
+from fvrans.fields import Fields
 
 TOL = 1e-11
 R1, R2, OMEGA, MU = 1.0, 2.0, 1.0, 0.1  # Re = Omega R1 (R2 - R1) / nu = 10

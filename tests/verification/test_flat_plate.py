@@ -50,7 +50,7 @@ def test_turbulent_converges_from_uniform_start(level):
     assert run.result.converged  # residuals below 1e-8
     n_conv = converged_iteration(run)
     assert 0 <= n_conv < len(run.cf_history) - 10
-    nt = run.result.fields.nu_tilde
+    nt = run.result.fields.variables["nu_tilde"]
     assert np.all(np.isfinite(nt)) and nt.min() >= 0.0  # no negative nu_tilde, so no negative nu_t
 
 
@@ -97,7 +97,7 @@ def test_law_of_the_wall_at_x_097():
 def test_eddy_viscosity_is_zero_at_the_wall_and_large_in_the_layer():
     run = turbulent("medium")
     r = run.result
-    nt = r.fields.nu_tilde
+    nt = r.fields.variables["nu_tilde"]
     nu = r.case.fluid.kinematic_viscosity
     # inflow value nu_tilde = 3 nu far from the plate (upstream, top corner)
     x = r.cell_centres
@@ -113,9 +113,9 @@ def test_solve_returns_model_fields():
     r = fa.solve(case)
     d = r.cell_data()
     n = r.mesh.n_cells
-    for key in ("velocity", "pressure", "nu_tilde", "nut_ratio", "wall_distance"):
+    for key in ("velocity", "pressure", "nu_tilde", "eddy_viscosity_ratio", "wall_distance"):
         assert key in d and len(d[key]) == n
-    assert np.all(d["nut_ratio"] >= 0) and np.all(d["wall_distance"] > 0)
+    assert np.all(d["eddy_viscosity_ratio"] >= 0) and np.all(d["wall_distance"] > 0)
     assert r.history.names[-1] == "nu_tilde"
 
 
@@ -163,4 +163,4 @@ def test_turbulent_options_on_the_coarse_grid(change):
     o = np.argsort(w.x)
     assert float(np.interp(STATION, w.x[o], w.cf[o])) == pytest.approx(CF_097, rel=0.03)
     assert patch_forces(w, l_ref=2.0).coefficients()["Cd"] == pytest.approx(CD_PLATE, rel=0.03)
-    assert r.fields.nu_tilde.min() >= 0.0
+    assert r.fields.variables["nu_tilde"].min() >= 0.0

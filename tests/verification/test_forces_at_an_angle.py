@@ -31,10 +31,10 @@ def turned_case(angle_deg: float) -> fa.Problem:
         "fluid": {"density": 1.0, "viscosity": 1e-3},
         "formula_constants": {"U_max": U_MAX, "H": H, "a": np.radians(angle_deg)},
         "boundary": {
-            "inlet": {"kind": "velocity-inlet", "velocity": [
+            "inlet": {"kind": "inflow-velocity", "velocity": [
                 "4 * U_max * (-x * sin(a) + y * cos(a)) * (H + x * sin(a) - y * cos(a)) / H**2 * cos(a)",
                 "4 * U_max * (-x * sin(a) + y * cos(a)) * (H + x * sin(a) - y * cos(a)) / H**2 * sin(a)"]},
-            "outlet": {"kind": "pressure-outlet"},
+            "outlet": {"kind": "outflow-pressure"},
             "walls": {"kind": "wall"},
             "cylinder": {"kind": "wall"},
         },

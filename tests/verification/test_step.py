@@ -62,7 +62,7 @@ def test_step_converges_from_uniform_start():
     r = coarse()
     assert r.converged
     assert np.all(r.residuals[-1] < 1e-6)
-    nt = r.fields.nu_tilde
+    nt = r.fields.variables["nu_tilde"]
     assert np.all(np.isfinite(nt)) and nt.min() >= 0.0
 
 

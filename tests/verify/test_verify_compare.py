@@ -416,7 +416,7 @@ def test_cells_along_a_line_on_a_cell_edge(tmp_path):
 
 
 def test_probe_profile_file_in_wall_units(tmp_path, make_result_dir):
-    """A line-probe file profiles/<name>.csv (columns s, x, y, u, v, p, nu_tilde, nut_ratio) along
+    """A line-probe file profiles/<name>.csv (columns s, x, y, u, v, p, nu_tilde, eddy_viscosity_ratio) along
     the normal of a wall y = x tan(30 deg): the start is found from s and the points, u_tau from
     the wall table at that start (linear between face centres), nu from summary.json."""
     c, sn = np.cos(np.pi / 6), np.sin(np.pi / 6)
@@ -429,7 +429,7 @@ def test_probe_profile_file_in_wall_units(tmp_path, make_result_dir):
     u = 4.0 * s
     (d / "profiles").mkdir()
     rows = [",".join(repr(float(v)) for v in (a, x, y, b, 0.0, 0.0, 0.0, 0.0)) for a, (x, y), b in zip(s, pts, u)]
-    (d / "profiles" / "normal.csv").write_text("s,x,y,u,v,p,nu_tilde,nut_ratio\n" + "\n".join(rows) + "\n")
+    (d / "profiles" / "normal.csv").write_text("s,x,y,u,v,p,nu_tilde,eddy_viscosity_ratio\n" + "\n".join(rows) + "\n")
     # y+ = s 0.5 / 1e-3 = 500 s, u+ = 4 s / 0.5 = 8 s = 0.016 y+
     (tmp_path / "ref.csv").write_text("y_plus,u_plus\n10,0.16\n25,0.4\n50,0.8\n")
     spec = tmp_path / "s.toml"

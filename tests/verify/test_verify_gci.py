@@ -95,6 +95,39 @@ def test_flags():
         grid_convergence([1.0, 2.0], [1.0, 2.0])
 
 
+def test_far_below_the_formal_order_or_a_large_gci_is_flagged(tmp_path, make_result_dir):
+    """Issue #12 item 7: a cavity lid force once came out "monotone" with order 0.02 and GCI 1126 %
+    and exit 0. A series with the same figures (ratio 2: eps32 / eps21 = 2^0.02; then
+    GCI = 1.25 e_a21 / (2^0.02 - 1) = 11.26 gives e_a21 = 11.26 (2^0.02 - 1) / 1.25) is flagged."""
+    k = 2.0**0.02
+    e_a21 = 11.26 * (k - 1.0) / 1.25
+    phi1 = 1.0
+    phi2 = phi1 * (1.0 - e_a21)
+    phi3 = phi2 - k * (phi1 - phi2)
+    g = gci_three([1.0, 2.0, 4.0], [phi1, phi2, phi3])
+    assert g.behaviour == "monotone" and g.p == pytest.approx(0.02, rel=1e-6)
+    assert g.gci_fine21 == pytest.approx(11.26, rel=1e-6)
+    assert g.flagged and g.flags == ("order 0.02 far below the formal 2", "GCI 1.13e+03 % above 10 %")
+    # each flag alone, on power laws phi = 1 + C h^p over h = 1, 2, 4
+    low = gci_three([1.0, 2.0, 4.0], [1.0 + 0.001 * h**0.9 for h in (1.0, 2.0, 4.0)])  # GCI 0.125 %
+    assert low.p == pytest.approx(0.9, rel=1e-9) and low.flags == ("order 0.9 far below the formal 2",)
+    assert not gci_three([1.0, 2.0, 4.0], [1.0 + 0.001 * h**0.9 for h in (1.0, 2.0, 4.0)], formal_order=1.0).flagged
+    # p = 2 and GCI = 1.25 C / (1 + C) = 8.33 % for C = 1/14: within 10 %, above 5 %
+    c = 1.0 / 14.0
+    second = [1.0 + c * h**2 for h in (1.0, 2.0, 4.0)]
+    assert not gci_three([1.0, 2.0, 4.0], second).flagged
+    assert gci_three([1.0, 2.0, 4.0], second, gci_limit=0.05).flags == ("GCI 8.33 % above 5 %",)
+    # over result folders: exit 1 and the flags on the result line
+    dirs = [make_result_dir(f"g{n}", n_cells=n, summary_extra={"walls": {"lid": {"forces": {"Fx": v}}}},
+                            field=(m, m, 1.0, 1.0, lambda x, y: x))
+            for n, m, v in ((4096, 64, phi1), (1024, 32, phi2), (256, 16, phi3))]
+    out = io.StringIO()
+    assert grid_study_command(dirs, ["walls.lid.forces.Fx"], tmp_path / "gs", stream=out) == 1
+    assert "FLAGGED: order 0.02 far below the formal 2, GCI 1.13e+03 % above 10 %" in out.getvalue()
+    md = (tmp_path / "gs" / "grid_study.md").read_text()
+    assert "flagged: order 0.02" in md and "common practice" in md
+
+
 def test_more_than_three_grids():
     h = [0.05, 0.1, 0.2, 0.4]
     gc = grid_convergence(h[::-1], [1.0 + x**2 for x in h[::-1]], "q")

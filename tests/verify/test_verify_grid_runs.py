@@ -34,10 +34,10 @@ parameters = { length = 4.0, height = 1.0, nx = 12, ny = 4 }
 density = 1.0
 viscosity = 0.05
 [boundary.inlet]
-kind = "velocity-inlet"
+kind = "inflow-velocity"
 velocity = [1.0, 0.0]
 [boundary.outlet]
-kind = "pressure-outlet"
+kind = "outflow-pressure"
 [boundary.lower_wall]
 kind = "wall"
 [boundary.upper_wall]
@@ -75,10 +75,11 @@ def test_grid_study_runs_a_case_on_mesh_files(tmp_path):
     assert g["phi"] == pytest.approx([CF_POISEUILLE] * 3, rel=1e-5)
     md = (out / "grid_study.md").read_text()
     assert f"| {STATION} |" in md and "| 1 (channel_24) | yes |" in md
-    assert (out / "plots" / f"{STATION.replace('@', '_').replace('=', '_')}.png").is_file()
-    # the exit code follows the behaviour of the quantities (0 only when every one converges monotonically)
-    behaviours = [data["quantities"][q]["finest"] for q in (STATION, "walls.lower_wall.forces.Cd")]
-    assert code == (0 if all(b["behaviour"] == "monotone" and b["p"] is not None for b in behaviours) else 1)
+    assert (out / "plots" / f"{STATION}.png").is_file()  # a plain name (no separator) keeps its form
+    # the drag of the whole lower wall includes the inlet corner (singular shear): its order falls far
+    # below the formal 2, which flags it, and the exit code is 1
+    cd = data["quantities"]["walls.lower_wall.forces.Cd"]["finest"]
+    assert cd["flagged"] and code == 1
 
 
 COUETTE = """

@@ -170,18 +170,3 @@ def continuity_correction(owner, neighbour, nfi, flux, diag):
         diag[neighbour[f]] += flux[f]
     for f in range(nfi, nf):
         diag[owner[f]] -= flux[f]
-
-
-@njit(cache=True)
-def residual_sums(indptr, indices, data, diag_pos, b, x):
-    """(sum |b - A x|, sum of the diagonal of A)."""
-    n = b.shape[0]
-    r = 0.0
-    a = 0.0
-    for i in range(n):
-        acc = b[i]
-        for k in range(indptr[i], indptr[i + 1]):
-            acc -= data[k] * x[indices[k]]
-        r += abs(acc)
-        a += data[diag_pos[i]]
-    return r, a

@@ -14,12 +14,12 @@ import math
 import numpy as np
 import pytest
 
+from fvrans.fields import Fields
 from fvrans.mesh.geometry import compute_geometry
 from fvrans.mesh.mesh import Mesh
-from fvrans.physics import _sa_kernels as K
+from fvrans.models import _sa_kernels as K
+from fvrans.models.spalart_allmaras import CONSTANTS, SpalartAllmaras, eddy_viscosity, source_terms
 from fvrans.physics.boundary import INLET, SYMMETRY, FlowBoundary
-from fvrans.physics.spalart_allmaras import CONSTANTS, SpalartAllmaras, eddy_viscosity, source_terms
-from fvrans.solve.fields import Fields
 
 # published constants (SA 1994; AJS 2012), typed in independently of the code
 CB1, SIGMA, CB2, KAPPA = 0.1355, 2.0 / 3.0, 0.622, 0.41
@@ -218,20 +218,20 @@ def _power_law_run(n: int, solver: str = "amg"):
         sl = slice(pt.start - ni, pt.stop - ni)
         kind[sl] = INLET
         ratio[sl] = A * geom.face_centre[pt.start : pt.stop, 1] ** p / nu
-    fb = FlowBoundary(kind=kind, velocity=np.zeros((nb, 2)), pressure=np.zeros(nb), nut_ratio=ratio,
-                      patch_kind={"bottom": "velocity-inlet", "top": "velocity-inlet", "sides": "symmetry"})
+    fb = FlowBoundary(kind=kind, velocity=np.zeros((nb, 2)), pressure=np.zeros(nb), nu_tilde_ratio=ratio,
+                      patch_kind={"bottom": "inflow-velocity", "top": "inflow-velocity", "sides": "symmetry"})
     yc = geom.cell_centre[:, 1]
     model = SpalartAllmaras(mesh, geom, fb, rho=1.0, mu=nu, relax=1.0, wall_distance=yc, linear_solver=solver,
                             linear_max_iterations=400, linear_tolerance=1e-12)
     fields = Fields.uniform(mesh.n_cells, mesh.n_faces)
-    fields.nu_tilde = np.full(mesh.n_cells, 1.5)
+    fields.variables["nu_tilde"] = np.full(mesh.n_cells, 1.5)
     grad_u = np.zeros((mesh.n_cells, 2, 2))
     for _ in range(200):
         res = model.update(fields, grad_u)[0]
         if res < 1e-12:
             break
     assert res < 1e-11
-    return fields.nu_tilde, A * yc**p, p
+    return fields.variables["nu_tilde"], A * yc**p, p
 
 
 @pytest.mark.parametrize("solver", ["amg", "gauss-seidel"])
@@ -252,7 +252,7 @@ def test_a_case_without_walls_is_refused_with_a_clear_message():
     mesh, geom = _strip(4, 0.0, 1.0)
     nb = mesh.n_boundary_faces
     fb = FlowBoundary(kind=np.full(nb, SYMMETRY, dtype=np.int64), velocity=np.zeros((nb, 2)),
-                      pressure=np.zeros(nb), nut_ratio=np.zeros(nb),
+                      pressure=np.zeros(nb), nu_tilde_ratio=np.zeros(nb),
                       patch_kind={"bottom": "symmetry", "top": "symmetry", "sides": "symmetry"})
     with pytest.raises(CaseError, match="needs at least one wall patch"):
         SpalartAllmaras(mesh, geom, fb, rho=1.0, mu=1e-5)

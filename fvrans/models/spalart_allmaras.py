@@ -25,12 +25,11 @@ stacks of thin cells to their old values); the linear system solved by BiCGStab 
 AMG V-cycle of ``fvrans.linalg.amg`` to ``linear_tolerance`` (default), or by symmetric
 Gauss-Seidel sweeps (``linear_solver = "gauss-seidel"``; at most ``linear_max_iterations`` either way).
 
-Boundary values: nt = 0 on walls; nt = nut_ratio nu on velocity inlets and on freestream faces
+Boundary values: nt = 0 on walls; nt = nu_tilde_ratio nu on velocity inlets and on freestream faces
 where the mass flux enters; zero normal gradient elsewhere (outlets, symmetry, freestream outflow).
 
-Scaled residual: sum_c |b - A nt|_c / (nt_scale sum_c a_P,c) of the unrelaxed linearised system at
-the current nt, with nt_scale = max(max_c |nt|, max inflow nt): the same form as the momentum
-residuals (sum |r| / (U sum a_P)).
+Normalised imbalance: sum_c |b - A nt|_c / sum_c (|A| |nt| + |b|)_c of the unrelaxed linearised system at
+the current nt, the definition every equation of the loop uses (``fvrans.fv.residual``).
 """
 
 from __future__ import annotations
@@ -38,19 +37,20 @@ from __future__ import annotations
 import numpy as np
 
 from fvrans.errors import CaseError, DivergenceError
+from fvrans.fields import Fields
 from fvrans.fv.assembly import Coefficients, CsrAssembler, under_relax
 from fvrans.fv.boundary import DIRICHLET, NEUMANN, BoundaryScalar, boundary_face_values
 from fvrans.fv.convection import convection_coefficients
 from fvrans.fv.diffusion import diffusion_coefficients
 from fvrans.fv.gradient import gradient_operator, limit_gradient
+from fvrans.fv.residual import normalised_imbalance
+from fvrans.linalg._smoother_kernels import gauss_seidel
 from fvrans.linalg.amg import AmgKrylovSolver
 from fvrans.mesh.geometry import Geometry
 from fvrans.mesh.mesh import Mesh
-from fvrans.physics import _sa_kernels as K
+from fvrans.models import _sa_kernels as K
+from fvrans.models.base import EDDY_VISCOSITY_RATIO, TurbulenceModel, case_wall_distance, checked_wall_distance
 from fvrans.physics.boundary import FREESTREAM, INLET, WALL, FlowBoundary
-from fvrans.solve._kernels import gauss_seidel
-from fvrans.solve.fields import Fields
-from fvrans.solve.simple import EddyViscosityModel
 
 #: the model constants (see ``_sa_kernels``; SA 1994 and AJS 2012)
 CONSTANTS = {
@@ -85,15 +85,17 @@ def source_terms(
     return P, D
 
 
-class SpalartAllmaras(EddyViscosityModel):
-    """The SA model as seen by :class:`fvrans.solve.simple.SimpleSolver`.
+class SpalartAllmaras(TurbulenceModel):
+    """The SA model behind the interface :class:`fvrans.models.base.TurbulenceModel`.
 
     ``mu`` is the molecular dynamic viscosity (nu = mu / rho); ``wall_distance`` (n_cells,) is
-    computed from the wall patches when not given. ``initial_nut_ratio`` sets nu_tilde = ratio nu
+    computed from the wall patches when not given. ``initial_nu_tilde_ratio`` sets nu_tilde = ratio nu
     in a start without nu_tilde.
     """
 
+    key = "spalart-allmaras"
     names = ("nu_tilde",)
+    variables = ("nu_tilde",)
 
     def __init__(
         self,
@@ -105,7 +107,7 @@ class SpalartAllmaras(EddyViscosityModel):
         variant: str = "standard",
         relax: float = 1.0,
         convection: str = "upwind",
-        initial_nut_ratio: float = 3.0,
+        initial_nu_tilde_ratio: float = 3.0,
         wall_distance: np.ndarray | None = None,
         gradient: str = "least-squares",
         limiter: str = "none",
@@ -132,7 +134,7 @@ class SpalartAllmaras(EddyViscosityModel):
         self.relax = float(relax)
         self.scheme = "linear_upwind" if convection == "linear-upwind" else "upwind"
         self.limiter = None if limiter in ("none", None) else limiter.replace("-", "_")
-        self.initial_nut_ratio = float(initial_nut_ratio)
+        self.initial_nu_tilde_ratio = float(initial_nu_tilde_ratio)
         self.linear_solver = linear_solver
         self.linear_tolerance = float(linear_tolerance)
         self.linear_max_iterations = int(linear_max_iterations)
@@ -140,22 +142,12 @@ class SpalartAllmaras(EddyViscosityModel):
                                        max_iterations=self.linear_max_iterations)
         nc, ni = mesh.n_cells, mesh.n_internal_faces
         if wall_distance is None:
-            walls = [name for name, kind in boundary.patch_kind.items() if kind == "wall"]
-            if not walls:
-                raise CaseError(
-                    f"{mesh.source}: the Spalart-Allmaras model needs at least one wall patch (kind = 'wall') "
-                    "to measure the wall distance; add one or use model.turbulence = 'none'"
-                )
-            from fvrans.physics.wall_distance import cell_wall_distance
-
-            wall_distance = cell_wall_distance(mesh, geom, walls)
-        d = np.ascontiguousarray(wall_distance, dtype=np.float64)
-        if d.shape != (nc,) or not np.all(d > 0.0):
-            raise ValueError(f"wall distance must be positive with shape ({nc},), got shape {d.shape}")
+            wall_distance = case_wall_distance(mesh, geom, boundary, "Spalart-Allmaras")
+        d = checked_wall_distance(wall_distance, nc)
         self.wall_distance = d
         kind = boundary.kind
         self.kind = kind
-        self.inflow_value = self.nu * boundary.nut_ratio
+        self.inflow_value = self.nu * boundary.nu_tilde_ratio
         bkind = np.full(len(kind), NEUMANN, dtype=np.int8)
         bval = np.zeros(len(kind))
         bkind[kind == WALL] = DIRICHLET
@@ -179,14 +171,28 @@ class SpalartAllmaras(EddyViscosityModel):
         #: iterations (amg) or sweeps (gauss-seidel) of the last linear solve
         self.last_iterations = 0
 
+    @classmethod
+    def from_case(cls, case, mesh: Mesh, geom: Geometry, boundary: FlowBoundary,
+                  wall_distance: np.ndarray | None = None) -> SpalartAllmaras:
+        """The model with the case's ``[model]`` and ``[solver]`` turbulence settings."""
+        s = case.solver
+        return cls(
+            mesh, geom, boundary, rho=case.fluid.density, mu=case.fluid.viscosity, variant=case.model.sa_variant,
+            relax=s.relax_turbulence, convection=s.turbulence_convection,
+            initial_nu_tilde_ratio=case.initial.nu_tilde_ratio,
+            wall_distance=wall_distance, gradient=s.gradient, limiter=s.limiter,
+            linear_solver=s.turbulence_solver, linear_tolerance=s.turbulence_tolerance,
+            linear_max_iterations=s.turbulence_max_iterations, amg_rebuild_every=s.amg_rebuild_every,
+        )
+
     # -- interface of the solver -----------------------------------------------------------
-    def initial_nu_tilde(self) -> np.ndarray:
-        return np.full(self.mesh.n_cells, self.initial_nut_ratio * self.nu)
+    def initial_values(self) -> dict[str, np.ndarray]:
+        return {"nu_tilde": np.full(self.mesh.n_cells, self.initial_nu_tilde_ratio * self.nu)}
 
     def _ensure(self, fields: Fields) -> np.ndarray:
-        if fields.nu_tilde is None or fields.nu_tilde.shape != (self.mesh.n_cells,):
-            fields.nu_tilde = self.initial_nu_tilde()
-        return fields.nu_tilde
+        if fields.variables.get("nu_tilde") is None or fields.variables["nu_tilde"].shape != (self.mesh.n_cells,):
+            self.initialise(fields)
+        return fields.variables["nu_tilde"]
 
     def eddy_viscosity(self, fields: Fields) -> np.ndarray:
         """mu_t = rho nu_tilde f_v1 per cell (0 where nu_tilde < 0)."""
@@ -199,7 +205,7 @@ class SpalartAllmaras(EddyViscosityModel):
 
     def update(self, fields: Fields, grad_u: np.ndarray) -> list[float]:
         """Assemble and solve the nu_tilde equation once with the new velocity gradient and the
-        corrected face fluxes; returns [scaled residual]."""
+        corrected face fluxes; returns [normalised imbalance]."""
         nt = np.ascontiguousarray(self._ensure(fields), dtype=np.float64)
         F = np.ascontiguousarray(fields.face_flux, dtype=np.float64)
         ni = self.ni
@@ -231,9 +237,7 @@ class SpalartAllmaras(EddyViscosityModel):
         K.assemble_sources(nt, self.nu, self.rho, self.geom.cell_area, self.wall_distance, gu, g,
                            self.use_ft2, co.diag, co.source)
         A = self.asm.matrix(co.diag, co.off_owner, co.off_neighbour)
-        r, a_sum = K.residual_sums(A.indptr, A.indices, A.data, self.asm.diag_pos, co.source, nt)
-        scale = max(float(np.max(np.abs(nt), initial=0.0)), float(np.max(self.inflow_value, initial=0.0)))
-        res = r / (scale * a_sum + 1e-300)
+        res = normalised_imbalance(A, co.source, nt)
         under_relax(co, nt, self.relax)
         bad = np.flatnonzero(~(co.diag > 0.0))
         if len(bad):  # only a flow field that is already running away can do this
@@ -250,24 +254,34 @@ class SpalartAllmaras(EddyViscosityModel):
         else:
             self.last_iterations, _, _ = gauss_seidel(A.indptr, A.indices, A.data, self.asm.diag_pos, co.source, x,
                                                       self.linear_max_iterations, self.linear_tolerance)
-        fields.nu_tilde = x
+        fields.variables["nu_tilde"] = x
         return [res]
 
+    # -- outputs --------------------------------------------------------------------------
+    def nu_tilde_gradient(self, nu_tilde: np.ndarray) -> np.ndarray:
+        """Cell gradient of nu_tilde with this model's boundary values."""
+        nt = np.ascontiguousarray(nu_tilde, dtype=float)
+        nt_b = boundary_face_values(self.mesh, self.geom, self.bc, nt, self.grad_nt)
+        return np.array(self.grad(nt, nt_b))
 
-def model_for_case(case, mesh: Mesh, geom: Geometry, boundary: FlowBoundary,
-                   wall_distance: np.ndarray | None = None) -> SpalartAllmaras | None:
-    """The model a case asks for (None for laminar flow)."""
-    if case.model.turbulence == "none":
-        return None
-    s = case.solver
-    return SpalartAllmaras(
-        mesh, geom, boundary, rho=case.fluid.density, mu=case.fluid.viscosity, variant=case.model.sa_variant,
-        relax=s.relax_turbulence, convection=s.turbulence_convection, initial_nut_ratio=case.initial.nut_ratio,
-        wall_distance=wall_distance, gradient=s.gradient, limiter=s.limiter,
-        linear_solver=s.turbulence_solver, linear_tolerance=s.turbulence_tolerance,
-        linear_max_iterations=s.turbulence_max_iterations, amg_rebuild_every=s.amg_rebuild_every,
-    )
+    def cell_outputs(self, fields: Fields) -> dict[str, np.ndarray]:
+        """nu_tilde, nu_t / nu and the wall distance."""
+        nt = self._ensure(fields)
+        return {
+            "nu_tilde": nt,
+            EDDY_VISCOSITY_RATIO: eddy_viscosity(nt, self.nu) / self.nu,
+            "wall_distance": self.wall_distance,
+        }
+
+    def probe_fields(self, fields: Fields) -> dict[str, tuple[np.ndarray, np.ndarray | None]]:
+        """nu_tilde with its gradient."""
+        nt = self._ensure(fields)
+        return {"nu_tilde": (nt, self.nu_tilde_gradient(nt))}
+
+    def probe_columns(self, sampled: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
+        """nu_t / nu from the sampled nu_tilde."""
+        return {EDDY_VISCOSITY_RATIO: eddy_viscosity(sampled["nu_tilde"], self.nu) / self.nu}
 
 
-__all__ = ["CONSTANTS", "SpalartAllmaras", "eddy_viscosity", "model_for_case", "source_terms"]
+__all__ = ["CONSTANTS", "SpalartAllmaras", "eddy_viscosity", "source_terms"]
 
