@@ -644,9 +644,11 @@ def _output(ctx: _Ctx, data: Any, boundaries: Mapping[str, S.BoundarySpec]) -> S
         if n not in names:
             names.append(n)
     u_ref = t._get("reference_velocity", S.INFLOW, "")
+    if isinstance(u_ref, str) and u_ref != S.INFLOW:
+        raise t.fail("reference_velocity", f'must be a number > 0 (the velocity U in 1/2 rho U^2) or "{S.INFLOW}" '
+                     f"(the speed of the case's inflow), got {describe(u_ref)}")
     if u_ref != S.INFLOW:
-        u_ref = t.number("reference_velocity", rule=POSITIVE,
-                         meaning=f'the velocity U in 1/2 rho U^2, or "{S.INFLOW}" for the inflow\'s speed')
+        u_ref = t.number("reference_velocity", rule=POSITIVE, meaning="the velocity U in 1/2 rho U^2")
     if t.has("flow_angle") and t.has("flow_direction"):
         raise t.fail("flow_angle", "give flow_angle (degrees from the x axis) or flow_direction = [x, y], not both")
     direction = None
