@@ -10,7 +10,9 @@ Modeling Resource, from memory), the corner-eddy extent and, at x = -4 H, the in
 medium to fine and between the mixed and the medium grid (acceptance: both below 3 %).
 
 Run:  python benchmarks/bench_step.py [--levels coarse medium mixed fine] [--fine-start medium]
-       [--tolerance 1e-6] [--out DIR]
+       [--tolerance 1e-6] [--out DIR] [--model k-omega-sst]
+``--model k-omega-sst`` runs the k-omega SST model with its own inflow layer (cases/step_inflow_sst.csv,
+k and omega of fvrans' SST flat plate, made by ``python cases/make_step_inflow.py --model k-omega-sst``).
 ``--out DIR`` writes each grid's result to DIR/<grid> (summary.json with the zero-shear points, wall
 tables, fields, the plots; the zero-shear lines on the Cf and Cp plots carry their x) and a map of
 the velocity near the step with streamlines, DIR/<grid>/plots/field_velocity_near_step.png.
@@ -59,8 +61,11 @@ def write_result(r: fa.Result, out: Path) -> None:
     save_figure(fig, out / "plots" / "field_velocity_near_step.png")
 
 
-def problem_for(level: str, tolerance: float | None = None) -> fa.Problem:
+def problem_for(level: str, tolerance: float | None = None, model: str = "spalart-allmaras") -> fa.Problem:
     case = fa.load_case(CASE)
+    if model == "k-omega-sst":
+        case = case.replace({"model.turbulence": model, "boundary.inlet.profile": "step_inflow_sst.csv",
+                             "title": case.title.replace("Spalart-Allmaras", "k-omega SST")})
     case = case.set("title", case.title.replace("(medium grid)", f"({level} grid)"))
     if tolerance is not None:
         case = case.set("solver.tolerance", tolerance)
@@ -78,8 +83,9 @@ def injected(start: fa.Result, problem: fa.Problem) -> Fields:
     return Fields(f.velocity[idx].copy(), f.pressure[idx].copy(), np.zeros(problem.mesh.n_faces), variables)
 
 
-def run_level(level: str, tolerance: float | None = None, start: fa.Result | None = None) -> tuple[dict, fa.Result]:
-    problem = problem_for(level, tolerance)
+def run_level(level: str, tolerance: float | None = None, start: fa.Result | None = None,
+              model: str = "spalart-allmaras") -> tuple[dict, fa.Result]:
+    problem = problem_for(level, tolerance, model)
     r = fa.solve(problem, initial=None if start is None else injected(start, problem))
     lower = r.wall("lower_wall")
     try:
@@ -106,6 +112,7 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--fine-start", choices=["uniform", "medium"], default="uniform")
     ap.add_argument("--tolerance", type=float, default=None)
     ap.add_argument("--out", type=Path, default=None, help="write each grid's result and plots here")
+    ap.add_argument("--model", default="spalart-allmaras", choices=["spalart-allmaras", "k-omega-sst"])
     args = ap.parse_args(argv)
     levels = list(args.levels)
     if "fine" in levels and args.fine_start == "medium" and "medium" not in levels:
@@ -120,7 +127,7 @@ def main(argv: list[str] | None = None) -> int:
           "upper zeros")
     for level in levels:
         start = results.get("medium") if level == "fine" and args.fine_start == "medium" else None
-        q, results[level] = run_level(level, args.tolerance, start)
+        q, results[level] = run_level(level, args.tolerance, start, args.model)
         rows[level] = q
         print(f"{level:7s} {q['cells']:7d}  {q['start']:7s} {q['iterations']:6d} {int(q['converged']):4d} "
               f"{q['wall']:8.1f} {q['us']:10.2f}   {q['xr']:6.3f} {100 * (q['xr'] / XR_EXP - 1):+6.2f}%  "

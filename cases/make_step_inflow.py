@@ -20,7 +20,12 @@ The step channel has a viscous upper wall 8 H above the upstream floor; its inco
 not specified by the issue, so the same layer is put on it (the profile mirrored about y = 4 H,
 the channel mid-height, where both halves reach the free-stream values u = U, nu_tilde = 3 nu).
 
-Run from the repository root:  python cases/make_step_inflow.py [--level medium]
+With ``--model k-omega-sst`` the plate is run with that model and the file
+(``cases/step_inflow_sst.csv``) holds k and omega instead of nu_tilde / nu: k keeps its value
+(a velocity squared) and omega scales as a velocity over a length, omega_step = omega_plate /
+(lengths factor); at the wall k = 0 and omega takes the first cell's value.
+
+Run from the repository root:  python cases/make_step_inflow.py [--level medium] [--model k-omega-sst]
 """
 
 from __future__ import annotations
@@ -42,25 +47,32 @@ DELTA99_TARGET = 1.5  # H; Driver & Seegmiller (1985) via NASA TMR, from memory
 CHANNEL_HEIGHT = 8.0  # upper wall at y = 8 H above the upstream floor
 
 
-def column_profiles(result: fa.Result, x: float) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """Cell-centre y, u, v, nu_tilde/nu of the column of cells that contains station x, sorted by
-    y, with the wall point (0, 0, 0, 0) in front."""
+def column_profiles(result: fa.Result, x: float) -> tuple[np.ndarray, np.ndarray, np.ndarray, dict[str, np.ndarray]]:
+    """Cell-centre y, u, v and the model columns (nu_tilde_ratio = nu_tilde/nu, or k and omega) of the
+    column of cells that contains station x, sorted by y, with the wall point in front (zero,
+    omega the first cell's value)."""
     cells = cell_column(result.problem.mesh, result.cell_centres, x)
     nu = result.case.fluid.viscosity / result.case.fluid.density
     y = np.concatenate([[0.0], result.cell_centres[cells, 1]])
     u = np.concatenate([[0.0], result.velocity[cells, 0]])
     v = np.concatenate([[0.0], result.velocity[cells, 1]])
-    nt = np.concatenate([[0.0], result.fields.variables["nu_tilde"][cells] / nu])
-    return y, u, v, nt
+    var = result.fields.variables
+    if "nu_tilde" in var:
+        return y, u, v, {"nu_tilde_ratio": np.concatenate([[0.0], var["nu_tilde"][cells] / nu])}
+    w = var["omega"][cells]
+    return y, u, v, {"k": np.concatenate([[0.0], var["k"][cells]]), "omega": np.concatenate([[w[0]], w])}
 
 
 def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--level", default="medium", help="flat-plate grid level (coarse, medium, fine)")
-    ap.add_argument("--out", default=str(HERE / "step_inflow.csv"))
+    ap.add_argument("--model", default="spalart-allmaras", choices=("spalart-allmaras", "k-omega-sst"))
+    ap.add_argument("--out", default=None, help="default: step_inflow.csv (SA) or step_inflow_sst.csv")
     args = ap.parse_args(argv)
-    case = fa.load_case(HERE / "flat_plate_turbulent.toml").set(
-        "mesh.file", str(HERE.parent / "meshes" / f"flat_plate_{args.level}.msh"))
+    sst = args.model == "k-omega-sst"
+    out = args.out or str(HERE / ("step_inflow_sst.csv" if sst else "step_inflow.csv"))
+    case = fa.load_case(HERE / "flat_plate_turbulent.toml").replace(
+        {"mesh.file": str(HERE.parent / "meshes" / f"flat_plate_{args.level}.msh"), "model.turbulence": args.model})
     res = fa.solve(case)
     print(f"flat plate ({args.level}): converged={res.converged}, {res.iterations} iterations, "
           f"{res.wall_seconds:.1f} s", flush=True)
@@ -79,7 +91,7 @@ def main(argv: list[str] | None = None) -> int:
         err.append(max(abs(u_e * th / nu / RE_THETA_TARGET - 1), abs(d99 * scale / DELTA99_TARGET - 1)))
     i = int(np.argmin(err))
     x_s = float(xs[i])
-    y, u, v, nt = column_profiles(res, x_s)
+    y, u, v, extra = column_profiles(res, x_s)
     u_e = float(np.interp(half / scale, y, u))
     d99, ds, th = layer_thickness(y, u, u_e)
     print(f"station x = {x_s:.4f} (Re_x = {x_s / nu:.3g}): Re_theta = {u_e * th / nu:.0f}, "
@@ -87,25 +99,29 @@ def main(argv: list[str] | None = None) -> int:
           f"H12 = {ds / th:.3f}; cells {mesh.n_cells}")
     ys = y * scale
     m = ys < half
+    if sst:
+        extra["omega"] = extra["omega"] / scale  # 1 / time: velocity over length
     # lower half from the plate profile, the point y = 4 H interpolated, upper half mirrored
-    u4, nt4 = float(np.interp(half, ys, u)), float(np.interp(half, ys, nt))
-    yl = np.concatenate([ys[m], [half]])
-    ul = np.concatenate([u[m], [u4]])
-    ntl = np.concatenate([nt[m], [nt4]])
-    y_all = np.concatenate([yl, CHANNEL_HEIGHT - yl[-2::-1]])
-    u_all = np.concatenate([ul, ul[-2::-1]])
-    nt_all = np.concatenate([ntl, ntl[-2::-1]])
+    def mirrored(c: np.ndarray) -> np.ndarray:
+        lower = np.concatenate([c[m], [float(np.interp(half, ys, c))]])
+        return np.concatenate([lower, lower[-2::-1]])
+
+    y_all = np.concatenate([np.concatenate([ys[m], [half]]), CHANNEL_HEIGHT - np.concatenate([ys[m], [half]])[-2::-1]])
     y_all[-1] = CHANNEL_HEIGHT
+    u_all = mirrored(u)
+    cols = {k: mirrored(c) for k, c in extra.items()}
     lines = [
         "# Inflow of the backward-facing-step cases at x = -4 H, written by cases/make_step_inflow.py",
-        f"# from flat_plate_turbulent.toml ({args.level} grid, SA) at x = {x_s:.5f}, lengths x {scale:.4f};",
+        f"# from flat_plate_turbulent.toml ({args.level} grid, {'SST' if sst else 'SA'}) at x = {x_s:.5f}, "
+        f"lengths x {scale:.4f};",
         f"# Re_theta = {u_e * th / nu:.0f}, delta99 = {d99 * scale:.4f} H (edge velocity u(4 H) = {u_e:.5f});",
         "# upper half mirrored about y = 4 H",
-        "y,u,v,nu_tilde_ratio",
+        ",".join(["y", "u", "v", *cols]),
     ]
-    lines += [f"{a:.8e},{b:.8e},0.0,{c:.8e}" for a, b, c in zip(y_all, u_all, nt_all)]
-    Path(args.out).write_text("\n".join(lines) + "\n")
-    print(f"wrote {args.out} ({len(y_all)} rows)")
+    lines += [",".join([f"{a:.8e}", f"{b:.8e}", "0.0", *(f"{c[i]:.8e}" for c in cols.values())])
+              for i, (a, b) in enumerate(zip(y_all, u_all))]
+    Path(out).write_text("\n".join(lines) + "\n")
+    print(f"wrote {out} ({len(y_all)} rows)")
     return 0
 
 

@@ -23,13 +23,14 @@ import time
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
+from types import SimpleNamespace
 from typing import Any
 
 import numpy as np
 
 from fvrans.case import Case, apply_overrides, case_from_dict, load_case
 from fvrans.case.build import build_case_mesh
-from fvrans.checkpoint import Checkpoint, read_checkpoint, write_checkpoint
+from fvrans.checkpoint import CHECKPOINT_NAME, Checkpoint, read_checkpoint, write_checkpoint
 from fvrans.errors import CaseError, DivergenceError
 from fvrans.fields import Fields
 from fvrans.jit import CompileWatch
@@ -39,14 +40,25 @@ from fvrans.mesh.mesh import Mesh
 from fvrans.mesh.morph import topology_difference
 from fvrans.models import model_class, model_for_case, residual_names
 from fvrans.models.base import TurbulenceModel
+from fvrans.monitor import (
+    MONITOR_CSV,
+    FlowState,
+    Monitor,
+    case_monitor,
+    derived_value,
+    probe_stencils,
+    sample_flow,
+    speed_scale,
+    stop_reason,
+)
 from fvrans.physics.boundary import FlowBoundary, build_flow_boundary
 from fvrans.post import (
     PatchForces,
     WallData,
     all_wall_data,
+    atomic_write,
     build_summary,
     forces_summary,
-    inflow_reference,
     wall_columns,
     write_csv_atomic,
     write_json_atomic,
@@ -54,8 +66,12 @@ from fvrans.post import (
     write_vtu_atomic,
 )
 from fvrans.post.filenames import output_file
-from fvrans.post.probes import sample_line, write_probe_csv
+from fvrans.post.forces import Reference, case_reference
+from fvrans.post.outputs import output_set
+from fvrans.post.overlay import overlay_plots
+from fvrans.post.probes import build_stencil, line_points, write_probe_csv
 from fvrans.post.wall import zero_shear_columns
+from fvrans.post.wall_resolution import WallResolution, wall_resolution
 from fvrans.reference import FieldSource, cell_source, read_result_folder
 from fvrans.solve.simple import History, SimpleSolver, SolverControls
 
@@ -65,9 +81,14 @@ log = logging.getLogger(__name__)
 ZERO_SHEAR_FOLDER = "wall/zero_shear"
 
 __all__ = [
-    "Problem", "Reference", "Result", "apply_overrides", "case_from_dict", "load_case", "prepare",
-    "reference_values", "residual_names", "result_source", "solve", "start_fields",
+    "Problem", "Reference", "Result", "apply_overrides", "build_monitor", "case_from_dict", "load_case",
+    "overlay_plots", "prepare", "reference_values", "residual_names", "result_source", "solve", "start_fields",
 ]
+
+
+#: the resolved case (every override applied, every default filled in) that ``fvrans run``
+#: writes into a result folder; the "continue with" hint runs it
+RESOLVED_CASE = "case.toml"
 
 
 @dataclass(frozen=True)
@@ -110,6 +131,10 @@ class Result:
     fields_iteration: int | None = None
     #: the turbulence model of the run (its outputs and probe columns); None: none recorded
     model: TurbulenceModel | None = None
+    #: the monitored quantities of every iteration and their stopping rule (None: not monitored)
+    monitor: Monitor | None = None
+    #: what ended the run, a key of :data:`fvrans.monitor.STOP_REASONS`
+    stopped_by: str = ""
     #: seconds of ``wall_seconds`` spent compiling kernels (0 with a warm numba cache)
     compile_seconds: float = 0.0
 
@@ -171,6 +196,18 @@ class Result:
             raise CaseError(f"{self.case.label}: {patch!r} is not a wall patch of this run; walls: {sorted(walls)}")
         return walls[patch]
 
+    def wall_resolution(self) -> dict[str, WallResolution]:
+        """First-cell y+ figures of each reported wall patch of a turbulent run
+        (:mod:`fvrans.post.wall_resolution`); empty for a laminar run."""
+        if not self.case.turbulent:
+            return {}
+        return {name: wall_resolution(w) for name, w in self.walls().items()}
+
+    def warnings(self) -> list[str]:
+        """What the run's outputs should be read with: wall patches too coarse for the model."""
+        model = f"the {self.case.model.turbulence} model"
+        return [text for r in self.wall_resolution().values() if (text := r.warning(model))]
+
     def summary(self) -> dict[str, Any]:
         """The content of summary.json."""
         extra = {"message": self.message} if self.message else {}
@@ -181,6 +218,7 @@ class Result:
         extra.update(self.extra.get("summary", {}))
         if self.case.output.map_window is not None:
             extra["map_window"] = list(self.case.output.map_window)
+        extra.update(self._monitor_summary())
         ref = self.reference()
         o = self.case.output
         return build_summary(
@@ -191,72 +229,145 @@ class Result:
                                                     ref.direction_from},
         )
 
+    def _monitor_summary(self) -> dict[str, Any]:
+        """stopped_by, the stopping settings, the monitored quantities' estimates, point probes and
+        derived scalars."""
+        c = self.case
+        out: dict[str, Any] = {}
+        if self.stopped_by:
+            out["stopped_by"] = self.stopped_by
+        if self.monitor is not None:
+            out["stopping"] = {
+                "residual_tolerance": c.solver.tolerance, "settle": c.monitor.settle,
+                "iteration_error": c.monitor.iteration_error, "window": c.monitor.window,
+                "speed_scale": self.monitor.speed,
+                "unsettled": [st.name for st in self.monitor.unsettled()],
+            }
+            out["monitors"] = self.monitor.summary()
+        if c.point_probes:
+            out["probes"] = {n: {k: float(v[0]) for k, v in self.probe(n).items()} for n in c.point_probes}
+        if c.derived:
+            out["derived"] = self.derived()
+        resolution = self.wall_resolution()
+        if resolution:
+            out["wall_resolution"] = {n: r.as_dict() for n, r in resolution.items()}
+        out["warnings"] = self.warnings()
+        return out
+
     # -- writing ----------------------------------------------------------------------------
     def cell_data(self) -> dict[str, np.ndarray]:
         d = {"velocity": self.velocity, "pressure": self.pressure}
         d.update(self.extra.get("cell_data", {}))
         return d
 
-    def write(self, out_dir: str | Path) -> Path:
+    def write(self, out_dir: str | Path, checkpoint: bool = False, resolved_case: bool = False) -> Path:
         """Write summary.json, fields.vtu, wall/<patch>.csv, wall/zero_shear/<patch>.csv,
-        residuals.csv and profiles/<probe>.csv into ``out_dir`` (each file atomically)."""
+        residuals.csv, profiles/<probe>.csv
+        (and checkpoint.npz when ``checkpoint``, case.toml, the resolved case, when
+        ``resolved_case``) into ``out_dir`` as one set: written aside and put in place together,
+        replacing the previous set of fvrans outputs there (its files the new set lacks are
+        removed; :func:`fvrans.post.outputs.output_set`), so a reader never sees files of two runs."""
         out = Path(out_dir)
-        out.mkdir(parents=True, exist_ok=True)
         walls = self.walls()
-        # names from the mesh and the case become file names only through output_file
-        wall_files = {n: output_file(out, n, ".csv", subfolder="wall", what=f"wall patch {n!r}") for n in walls}
-        zero_shear_files = {n: output_file(out, n, ".csv", subfolder=ZERO_SHEAR_FOLDER, what=f"wall patch {n!r}")
-                            for n in walls}
-        probe_files = {n: output_file(out, n, ".csv", subfolder="profiles", what=f"probe {n!r}")
-                       for n in self.case.probes}
-        if self.case.output.write_fields:
-            write_vtu_atomic(out / "fields.vtu", self.mesh, self.cell_data(), within=out)
-        if walls:
-            (out / "wall").mkdir(exist_ok=True)
-        for name, w in walls.items():
-            header, cols = wall_columns(w)
-            write_csv_atomic(wall_files[name], header, cols, within=out)
-            header, cols = zero_shear_columns(w)
-            zero_shear_files[name].parent.mkdir(exist_ok=True)
-            write_csv_atomic(zero_shear_files[name], header, cols, within=out)
-        write_residuals_csv(out / "residuals.csv", self.history, within=out)
-        if self.case.probes:
-            (out / "profiles").mkdir(exist_ok=True)
-        for name, path in probe_files.items():
-            write_probe_csv(path, self.probe(name), within=out)
-        write_json_atomic(out / "summary.json", self.summary(), within=out)
+        summary = self.summary()
+        case_text = self.case.to_toml() if resolved_case else None
+        n = self.iterations if self.fields_iteration is None else self.fields_iteration
+        with output_set(out, iteration=n) as stage:
+            # names from the mesh and the case become file names only through output_file
+            if self.case.output.write_fields:
+                write_vtu_atomic(stage / "fields.vtu", self.mesh, self.cell_data(), within=stage)
+            if walls:
+                (stage / "wall").mkdir()
+            for name, w in walls.items():
+                header, cols = wall_columns(w)
+                path = output_file(stage, name, ".csv", subfolder="wall", what=f"wall patch {name!r}")
+                write_csv_atomic(path, header, cols, within=stage)
+                header, cols = zero_shear_columns(w)
+                path = output_file(stage, name, ".csv", subfolder=ZERO_SHEAR_FOLDER, what=f"wall patch {name!r}")
+                path.parent.mkdir(exist_ok=True)
+                write_csv_atomic(path, header, cols, within=stage)
+            write_residuals_csv(stage / "residuals.csv", self._finite_history(), within=stage)
+            if self.monitor is not None and self.monitor.rows:
+                header, cols = self.monitor.columns()
+                write_csv_atomic(stage / MONITOR_CSV, header, cols, within=stage)
+            if self.case.line_probes:
+                (stage / "profiles").mkdir()
+            for name in self.case.line_probes:
+                path = output_file(stage, name, ".csv", subfolder="profiles", what=f"probe {name!r}")
+                write_probe_csv(path, self.probe(name), within=stage)
+            if checkpoint:
+                self.write_checkpoint(stage / CHECKPOINT_NAME)
+            if case_text is not None:
+                atomic_write(stage / RESOLVED_CASE, lambda f: f.write(case_text), within=stage)
+            write_json_atomic(stage / "summary.json", summary, within=stage)
         return out
 
-    # -- line probes ------------------------------------------------------------------------
+    def _finite_history(self) -> Any:
+        """The residual history without a diverged last iteration whose residuals are not finite
+        (the outputs hold the last good state; the message says how the run ended)."""
+        h = self.history
+        rows = h.rows
+        if self.diverged and rows and not np.all(np.isfinite(np.asarray(rows[-1], dtype=float))):
+            n = len(rows) - 1
+            return SimpleNamespace(names=h.names, rows=rows[:n], seconds=h.seconds[:n])
+        return h
+
+    # -- probes -----------------------------------------------------------------------------
+    def flow_state(self) -> FlowState:
+        """The final fields and their gradients, as the monitors read them each iteration."""
+        if "flow_state" not in self.extra:
+            grads = self.extra.get("gradients", {"p": self.grad_p})
+            self.extra["flow_state"] = FlowState(self.velocity, self.pressure, self.grad_p, lambda: grads,
+                                                 self.model, self.fields)
+        return self.extra["flow_state"]
+
+    def _locator(self) -> CellLocator:
+        if "locator" not in self.extra:
+            self.extra["locator"] = CellLocator(self.mesh, centroids=self.problem.geom.cell_centre)
+        return self.extra["locator"]
+
     def sample_line(self, start: Any, end: Any, points: int = 101, name: str = "line") -> dict[str, np.ndarray]:
         """Fields along a segment: columns ``s`` (distance from start), ``x``, ``y``, ``u``, ``v``,
         ``p`` and the turbulence model's probe columns (Spalart-Allmaras: ``nu_tilde`` and
-        ``eddy_viscosity_ratio``, the latter from the sampled nu_tilde). Each value is the containing cell's
-        value plus its gradient times the offset from the cell centroid
-        (:func:`fvrans.post.probes.sample_line`)."""
-        values = {"u": self.velocity[:, 0], "v": self.velocity[:, 1], "p": self.pressure}
-        gradients = dict(self.extra.get("gradients", {}))
-        if "probe_fields" not in self.extra and self.model is not None:
-            self.extra["probe_fields"] = self.model.probe_fields(self.fields)
-        for key, (v, g) in self.extra.get("probe_fields", {}).items():
-            values[key] = v
-            if g is not None:
-                gradients[key] = g
-        if "locator" not in self.extra:
-            self.extra["locator"] = CellLocator(self.mesh, centroids=self.problem.geom.cell_centre)
-        cols = sample_line(self.extra["locator"], self.problem.geom.cell_centre, start, end, points, values,
-                           gradients, name=name)
-        if self.model is not None:
-            cols.update(self.model.probe_columns(cols))
+        ``eddy_viscosity_ratio``, the latter from the sampled nu_tilde). Each value is the average over
+        the cells containing the point of the cell value plus its gradient times the offset from the
+        cell centroid (:mod:`fvrans.post.probes`)."""
+        pts = line_points(start, end, points)
+        stencil = build_stencil(self._locator(), self.problem.geom.cell_centre, pts, name)
+        cols = {"s": np.hypot(*(pts - pts[0]).T), "x": pts[:, 0], "y": pts[:, 1]}
+        cols.update(sample_flow(stencil, self.flow_state()))
+        return cols
+
+    def sample_point(self, at: Any, name: str = "point") -> dict[str, float]:
+        """Fields at a point: ``x``, ``y``, ``u``, ``v``, ``p`` and the model's probe columns, the
+        average of the reconstructions of every cell containing the point."""
+        stencil = build_stencil(self._locator(), self.problem.geom.cell_centre, np.asarray(at, dtype=float), name)
+        cols = {"x": float(stencil.points[0, 0]), "y": float(stencil.points[0, 1])}
+        cols.update({k: float(v[0]) for k, v in sample_flow(stencil, self.flow_state()).items()})
         return cols
 
     def probe(self, name: str) -> dict[str, np.ndarray]:
-        """The columns of the case's line probe ``[probes.<name>]`` (see :meth:`sample_line`)."""
+        """The columns of the case's probe ``[probes.<name>]``: a line probe's table (see
+        :meth:`sample_line`), or a point probe's ``x``, ``y``, ``u``, ... as arrays of one value."""
         if name not in self.case.probes:
             raise CaseError(f"{self.case.label}: no probe {name!r}; the case has "
                             f"{', '.join(repr(n) for n in self.case.probes) or 'none'} ([probes.<name>] tables)")
         pr = self.case.probes[name]
+        if name in self.case.point_probes:
+            return {k: np.array([v]) for k, v in self.sample_point(pr.at, name).items()}
         return self.sample_line(pr.start, pr.end, pr.points, name=name)
+
+    def derived(self) -> dict[str, float]:
+        """The values of the case's derived scalars ``[derived.<name>]`` (NaN: undefined, e.g. no
+        reattachment along the line)."""
+        c = self.case
+        if not c.derived:
+            return {}
+        names = [n for n in c.probes if any(n in d.probes for d in c.derived.values())]
+        stencils = probe_stencils(c, self.mesh, self.problem.geom, names, self._locator())
+        lines = {n: np.hypot(*(st.points - st.points[0]).T) for n, st in stencils.items()}
+        state = self.flow_state()
+        return {n: derived_value(d, stencils, lines, state) for n, d in c.derived.items()}
 
     def write_checkpoint(self, path: str | Path) -> Path:
         """Save the state of this run to ``path`` (a ``.npz`` file, written atomically) so that
@@ -268,40 +379,11 @@ class Result:
         )
 
 
-@dataclass(frozen=True)
-class Reference:
-    """Reference values of a run's coefficients: velocity U_ref, density, free-stream direction
-    (unit vector) and where the velocity and direction came from (``"case"``, ``"outer-flow"``,
-    ``"inflow-velocity"`` or ``"default"``)."""
-
-    velocity: float
-    density: float
-    direction: tuple[float, float]
-    velocity_from: str
-    direction_from: str
-
-
 def reference_values(problem: Problem) -> Reference:
     """The case's reference values, the missing ones taken from its inflow
-    (:func:`fvrans.post.forces.inflow_reference`): U_ref the inflow's speed, the free-stream
-    direction the inflow's; without an inflow U_ref = 1 and the direction +x."""
-    o = problem.case.output
-    inflow = inflow_reference(problem.geom, problem.boundary, problem.mesh.n_internal_faces)
-    if o.reference_velocity is not None:
-        u, u_from = float(o.reference_velocity), "case"
-    elif inflow is not None:
-        u, u_from = inflow.speed, inflow.source
-    else:
-        u, u_from = 1.0, "default"
-    given = o.direction()
-    if given is not None:
-        e, e_from = given, "case"
-    elif inflow is not None:
-        e, e_from = inflow.direction, inflow.source
-    else:
-        e, e_from = (1.0, 0.0), "default"
-    rho = problem.case.fluid.density if o.reference_density is None else float(o.reference_density)
-    return Reference(u, rho, e, u_from, e_from)
+    (:func:`fvrans.post.forces.case_reference`)."""
+    c = problem.case
+    return case_reference(c.output, c.fluid.density, problem.geom, problem.boundary, problem.mesh.n_internal_faces)
 
 
 def result_source(result: Result) -> FieldSource:
@@ -365,12 +447,47 @@ def start_fields(problem: Problem, initial: Result | Fields | FieldSource | str 
     return fields.copy(), None
 
 
+def _mean_flow_summary(solver: SimpleSolver) -> dict[str, Any]:
+    """The mean pressure gradient that drives a periodic flow and its bulk (volume-mean) velocity."""
+    vol = solver.geom.cell_area
+    bulk = vol @ solver.fields.velocity / vol.sum()
+    g = -(vol @ solver.body) / vol.sum()
+    return {"mean_flow": {"pressure_gradient": [float(g[0]), float(g[1])],
+                          "bulk_velocity": [float(bulk[0]), float(bulk[1])]}}
+
+
 def _gradients(solver: SimpleSolver, grad_p: np.ndarray) -> dict[str, np.ndarray]:
     """Cell gradients of u, v, p of the final state, for probes."""
     f = solver.fields
     ub = solver._velocity_on_boundary(f.velocity, f.face_flux[solver.ni:])
     gu = solver.grad(np.ascontiguousarray(f.velocity, dtype=float), ub)
     return {"u": gu[:, 0, :].copy(), "v": gu[:, 1, :].copy(), "p": np.array(grad_p)}
+
+
+def _last_good_gradient(solver: SimpleSolver, grad_p: np.ndarray) -> np.ndarray:
+    """The pressure gradient of the last good state after a divergence. The boundary pressures it
+    needs are extrapolated with a gradient: the diverged iteration's may be non-finite (a
+    divergence at iteration 1 leaves the initial state), so start from zero where it is not
+    finite and refine twice; a gradient that stays non-finite is zero (a uniform start)."""
+    p = solver.fields.pressure
+    g = np.where(np.isfinite(grad_p), grad_p, 0.0)
+    for _ in range(2):
+        g = np.array(solver.grad_pressure(p, solver._pressure_on_boundary(g)))
+    return g if np.all(np.isfinite(g)) else np.zeros_like(g)
+
+
+def build_monitor(problem: Problem, initial: Result | Fields | None = None) -> Monitor:
+    """The monitor of a prepared case (its wall forces, point probes, derived scalars and the
+    velocity change; :mod:`fvrans.monitor`); pass it to :func:`solve` to read it while the run goes."""
+    c = problem.case
+    start = (initial.fields if isinstance(initial, Result) else initial)
+    u0 = start.velocity if start is not None else np.asarray(c.initial.velocity, dtype=float)
+    return case_monitor(c, problem.mesh, problem.geom, problem.boundary, speed_scale(problem.boundary, u0))
+
+
+def _flow_state(solver: SimpleSolver, model: TurbulenceModel) -> FlowState:
+    f = solver.fields
+    return FlowState(f.velocity, f.pressure, solver.grad_p, lambda: _gradients(solver, solver.grad_p), model, f)
 
 
 def solve(
@@ -380,6 +497,7 @@ def solve(
     *,
     restart: Checkpoint | str | Path | None = None,
     checkpoint: str | Path | None = None,
+    monitor: Monitor | None = None,
 ) -> Result:
     """Solve a case (or a prepared Problem). A diverging run returns a Result with ``diverged=True``
     holding the last good state and the message; it does not raise.
@@ -400,6 +518,9 @@ def solve(
     (or its file, or a result folder holding ``checkpoint.npz``) to continue: fields, iteration
     count and residual history carry on; ``solver.max_iterations`` counts the new iterations.
     ``checkpoint``: a file to save the state to every ``solver.checkpoint_every`` iterations.
+    ``monitor``: the run's :class:`fvrans.monitor.Monitor` (default: :func:`build_monitor`), which
+    records the watched quantities after every iteration and, with ``monitor.settle``, holds the
+    run until they have settled (``Result.stopped_by`` says what ended the run).
     """
     problem = case if isinstance(case, Problem) else prepare(case)
     c = problem.case
@@ -413,9 +534,12 @@ def solve(
         initial = ckpt.fields
     fields, start = start_fields(problem, initial)
     model = model_for_case(c, problem.mesh, problem.geom, problem.boundary)
+    mf = c.mean_flow
     solver = SimpleSolver(
         problem.mesh, problem.geom, problem.boundary, rho=c.fluid.density, mu=c.fluid.viscosity,
         controls=controls, fields=fields, model=model,
+        body_force=None if mf.pressure_gradient is None else -np.asarray(mf.pressure_gradient, dtype=float),
+        bulk_velocity=mf.bulk_velocity,
     )
     if ckpt is not None:
         if list(ckpt.history_names) != list(solver.history.names):
@@ -426,9 +550,13 @@ def solve(
         log.info("%s: resuming at iteration %d from %s", c.label, ckpt.iteration, ckpt.source)
     every = c.solver.checkpoint_every
     stopped = False
+    if monitor is None:
+        monitor = build_monitor(problem, initial)
+    monitor.state = lambda: _flow_state(solver, model)
 
     def step(it: int, res: list[float]) -> bool:
         nonlocal stopped
+        monitor.callback(it, res)
         if checkpoint is not None and every > 0 and it % every == 0:
             write_checkpoint(checkpoint, solver.fields, it, list(solver.history.names), solver.history.as_array(),
                              np.asarray(solver.history.seconds), solver.u_scale, c, problem.mesh, solver.grad_p)
@@ -444,7 +572,7 @@ def solve(
     watch = CompileWatch()
     try:
         with watch:
-            converged = solver.run(callback=step)
+            converged = solver.run(callback=step, converged_when=monitor.converged_when)
     except DivergenceError as exc:
         converged = False
         diverged = True
@@ -453,26 +581,38 @@ def solve(
         log.error("%s: %s", c.label, message)
     seconds = time.perf_counter() - t0
     grad_p = solver.grad_p
-    if diverged:  # the gradient of the last good pressure
-        grad_p = solver.grad_pressure(solver.fields.pressure, solver._pressure_on_boundary(grad_p))
+    if diverged:
+        grad_p = _last_good_gradient(solver, grad_p)
     interrupted = stopped and not converged
     if interrupted:
         message = (f"interrupted at iteration {solver.iteration} before converging; continue with "
                    "restart= (fvrans run ... --restart DIR)")
     elif not converged and not diverged:
+        waiting = monitor.unsettled() if solver.history.rows and max(solver.history.rows[-1]) < controls.tolerance \
+            else []
+        why = (f"every residual is below {controls.tolerance:g} but " + ", ".join(
+            f"{st.name} (estimated iteration error {st.error:.2g} > {st.allowed:.2g})" for st in waiting[:3])
+            + (" has" if len(waiting) == 1 else " have") + " not settled" if waiting
+            else f"tolerance {controls.tolerance:g}")
         message = (
-            f"not converged after {solver.iteration} iterations (tolerance {controls.tolerance:g}); "
+            f"not converged after {solver.iteration} iterations ({why}); "
             "raise solver.max_iterations or restart from this result"
         )
     extra: dict[str, Any] = {
+        "summary": _mean_flow_summary(solver) if mf.active else {},
         "gradients": _gradients(solver, grad_p),
         "cell_data": model.cell_outputs(solver.fields),
     }
     if start is not None:
-        extra["summary"] = {"start": start}
-    return Result(
+        extra["summary"]["start"] = start
+    result = Result(
         problem=problem, fields=solver.fields, history=solver.history, converged=bool(converged),
         iterations=solver.iteration, wall_seconds=seconds, grad_p=grad_p, message=message,
         diverged=diverged, extra=extra, interrupted=interrupted, velocity_scale=solver.u_scale,
-        fields_iteration=fields_iteration, model=model, compile_seconds=watch.seconds,
+        fields_iteration=fields_iteration, model=model, compile_seconds=watch.seconds, monitor=monitor,
+        stopped_by=stop_reason(bool(converged), diverged, interrupted, c.monitor.settle),
     )
+    if not diverged:
+        for text in result.warnings():
+            log.warning("%s: %s", c.label, text)
+    return result

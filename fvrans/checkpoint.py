@@ -29,7 +29,9 @@ import numpy as np
 from fvrans.case import Case
 from fvrans.errors import CaseError
 from fvrans.fields import Fields
+from fvrans.files import input_file
 from fvrans.mesh.mesh import Mesh
+from fvrans.post.outputs import recover
 from fvrans.post.writers import atomic_write
 
 #: file name of the checkpoint inside a result folder
@@ -61,6 +63,12 @@ class Checkpoint:
 
     def check_matches(self, case: Case, mesh: Mesh) -> None:
         """Raise CaseError unless ``case`` and ``mesh`` are the problem this checkpoint was made for."""
+        f = self.fields
+        if len(f.pressure) != mesh.n_cells or len(f.face_flux) != mesh.n_faces:
+            raise CaseError(
+                f"{self.source}: the checkpoint was written for another mesh: it holds {len(f.pressure)} cells and "
+                f"{len(f.face_flux)} faces, the mesh of {case.label} has {mesh.n_cells} and {mesh.n_faces}; restart "
+                "with the case (and mesh) of that run")
         if mesh_hash(mesh) != self.mesh_hash:
             raise CaseError(
                 f"{self.source}: the checkpoint was written for another mesh than the one of {case.label} "
@@ -90,6 +98,9 @@ def mesh_hash(mesh: Mesh) -> str:
         h.update(arr.tobytes())
     for p in mesh.patches:
         h.update(f"{p.name}:{p.start}:{p.stop};".encode())
+    for q in mesh.periodic:
+        t = q.translation
+        h.update(f"periodic {q.first}:{q.second}:{t[0]!r}:{t[1]!r}:{q.start}:{q.stop};".encode())
     return h.hexdigest()
 
 
@@ -171,6 +182,7 @@ def read_checkpoint(path: str | os.PathLike) -> Checkpoint:
     not a checkpoint."""
     p = Path(path)
     if p.is_dir():
+        recover(p)  # a set of outputs half put in place by a killed run is finished first
         p = p / CHECKPOINT_NAME
         if not p.is_file():
             raise CaseError(
@@ -178,8 +190,9 @@ def read_checkpoint(path: str | os.PathLike) -> Checkpoint:
                 "solver.checkpoint_every > 0 or when it stops before converging — give the --out folder of "
                 "such a run"
             )
-    if not p.is_file():
+    if not p.exists():
         raise CaseError(f"{p}: no such checkpoint file; give a result folder or its {CHECKPOINT_NAME}")
+    input_file(p, "checkpoint")  # a regular file (a pipe would block np.load)
     try:
         with np.load(p, allow_pickle=False) as z:
             data = {k: z[k] for k in z.files}
@@ -190,25 +203,87 @@ def read_checkpoint(path: str | os.PathLike) -> Checkpoint:
     missing = [k for k in need if k not in data]
     if missing:
         raise CaseError(f"{p}: not an fvrans checkpoint (missing {', '.join(missing)})")
-    if int(data["format_version"]) not in READABLE_VERSIONS:
-        raise CaseError(f"{p}: checkpoint format {int(data['format_version'])}, this fvrans reads "
+    version = _scalar(data, "format_version", p, "iu")
+    if version not in READABLE_VERSIONS:
+        raise CaseError(f"{p}: checkpoint format {version}, this fvrans reads "
                         f"{', '.join(map(str, READABLE_VERSIONS))}; restart with the fvrans version that wrote it")
-    names = [str(n) for n in data["history_names"].tolist()]
-    variables = {k[len(VARIABLE_PREFIX):]: v for k, v in data.items() if k.startswith(VARIABLE_PREFIX)}
-    if int(data["format_version"]) == 1:  # the model variable under its own name
-        variables = {k: v for k, v in data.items() if k not in need and k != "pressure_gradient"}
-    fields = Fields(data["velocity"], data["pressure"], data["face_flux"], variables)
+    if version == 1:  # the model variable under its own name
+        data = {k: v for k, v in data.items()}
+        for k in [k for k in data if k not in need and k != "pressure_gradient"]:
+            data[VARIABLE_PREFIX + k] = data.pop(k)
+    return _checked(data, p)
+
+
+#: the largest iteration count a checkpoint may hold
+MAX_ITERATION = 10**9
+
+
+def _scalar(data: dict[str, np.ndarray], key: str, p: Path, kinds: str) -> Any:
+    a = data[key]
+    if a.shape != () or a.dtype.kind not in kinds:
+        raise CaseError(f"{p}: not a valid checkpoint: {key} is an array of shape {a.shape} and type {a.dtype}, not a "
+                        "single value; restart from another checkpoint")
+    return a.item()
+
+
+def _checked(data: dict[str, np.ndarray], p: Path) -> Checkpoint:
+    """A Checkpoint from the arrays of a file, every shape, type and range checked (a hand-edited or
+    damaged file is refused with what is wrong, not a failure deep in the solver)."""
+
+    def bad(msg: str) -> CaseError:
+        return CaseError(f"{p}: not a valid checkpoint: {msg}; restart from another checkpoint or start afresh")
+
+    def numbers(key: str, shape: tuple, finite: bool = True) -> np.ndarray:
+        a = data[key]
+        if a.dtype.kind not in "fiu":
+            raise bad(f"{key} holds {a.dtype} values, not numbers")
+        if a.ndim != len(shape) or any(s is not None and s != n for s, n in zip(shape, a.shape)):
+            want = "(" + ", ".join("n" if s is None else str(s) for s in shape) + ")"
+            raise bad(f"{key} has shape {a.shape}, expected {want}")
+        a = a.astype(float)
+        if finite and not np.all(np.isfinite(a)):
+            raise bad(f"{key} holds non-finite values")
+        return a
+
+    velocity = numbers("velocity", (None, 2))
+    nc = len(velocity)
+    pressure = numbers("pressure", (nc,))
+    face_flux = numbers("face_flux", (None,))
+    variables = {k[len(VARIABLE_PREFIX):]: numbers(k, (nc,)) for k in data if k.startswith(VARIABLE_PREFIX)}
+    grad_p = numbers("pressure_gradient", (nc, 2)) if "pressure_gradient" in data else None
+    iteration = _scalar(data, "iteration", p, "iu")
+    if not 0 <= iteration <= MAX_ITERATION:
+        raise bad(f"iteration {iteration} is outside 0..{MAX_ITERATION}")
+    names_a = data["history_names"]
+    if names_a.ndim != 1 or names_a.dtype.kind != "U" or not 1 <= len(names_a) <= 16:
+        raise bad(f"history_names has shape {names_a.shape} and type {names_a.dtype}, expected a few names")
+    names = [str(n) for n in names_a.tolist()]
+    rows = numbers("history_rows", (iteration, len(names)), finite=False) if data["history_rows"].ndim == 2 else None
+    if rows is None:
+        raise bad(f"history_rows has shape {data['history_rows'].shape}, expected ({iteration}, {len(names)})")
+    seconds = data["history_seconds"]
+    if seconds.dtype.kind not in "fiu" or seconds.shape != (iteration,):
+        raise bad(f"history_seconds has shape {seconds.shape}, expected ({iteration},)")
+    scale = _scalar(data, "velocity_scale", p, "fiu")
+    if not (np.isfinite(scale) and scale > 0):
+        raise bad(f"velocity_scale {scale!r} is not a positive finite number")
+    try:
+        physics = json.loads(str(_scalar(data, "physics", p, "U")))
+    except (ValueError, RecursionError):
+        raise bad("its physical settings are not readable JSON") from None
+    if not isinstance(physics, dict):
+        raise bad("its physical settings are not a table")
     return Checkpoint(
-        fields=fields,
-        iteration=int(data["iteration"]),
+        fields=Fields(velocity, pressure, face_flux, variables),
+        iteration=int(iteration),
         history_names=names,
-        history_rows=np.asarray(data["history_rows"], dtype=float).reshape(-1, len(names)),
-        history_seconds=np.asarray(data["history_seconds"], dtype=float),
-        velocity_scale=float(data["velocity_scale"]),
-        mesh_hash=str(data["mesh_hash"]),
-        physics=json.loads(str(data["physics"])),
+        history_rows=rows,
+        history_seconds=seconds.astype(float),
+        velocity_scale=float(scale),
+        mesh_hash=str(_scalar(data, "mesh_hash", p, "U")),
+        physics=physics,
         source=str(p),
-        pressure_gradient=data.get("pressure_gradient"),
+        pressure_gradient=grad_p,
     )
 
 

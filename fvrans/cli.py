@@ -1,6 +1,7 @@
 """The command line: parses, calls the API, prints. Exit status 0 = done/converged,
 1 = ran but did not converge (or diverged; outputs of the last good state are written),
-2 = bad input (case, mesh or option)."""
+2 = bad input (case, mesh or option), 130 / 143 = stopped by SIGINT / SIGTERM before the
+command's work was done (see :mod:`fvrans.stop` and README)."""
 
 from __future__ import annotations
 
@@ -17,19 +18,21 @@ from fvrans.errors import FvransError
 log = logging.getLogger(__name__)
 
 
-#: the resolved case (every override applied, every default filled in) inside a result folder
-RESOLVED_CASE = "case.toml"
-
-
 def _cmd_run(args: argparse.Namespace) -> int:
+    """``fvrans run``. Phases of a stop request (SIGINT, SIGTERM; :mod:`fvrans.stop`): during
+    start-up it ends the command at once (nothing written, status 128 + signal number); while
+    solving it stops the run after the current iteration (outputs written, status 1); while the
+    outputs are written it waits for them; while plotting it skips the remaining plots (the
+    status stays that of the run)."""
     from fvrans import api
     from fvrans.checkpoint import CHECKPOINT_NAME, read_checkpoint
     from fvrans.jit import COMPILE_MESSAGE, CompileWatch
-    from fvrans.post.filenames import output_file
-    from fvrans.post.outputs import clear_previous_outputs, record_outputs
-    from fvrans.post.writers import atomic_write
-    from fvrans.progress import RunProgress, StopRequest
+    from fvrans.post.outputs import listed_outputs, open_folder, recover
+    from fvrans.progress import RunProgress
+    from fvrans.stop import StopRequest, active
 
+    stop = active() or StopRequest()  # main() installs it; without main, flags only
+    stop.enter("start-up")
     case = api.load_case(args.case)
     if args.set:
         case = api.apply_overrides(case, args.set)
@@ -49,63 +52,59 @@ def _cmd_run(args: argparse.Namespace) -> int:
              ", ".join(problem.mesh.patch_names))
     if log.isEnabledFor(logging.DEBUG):
         _log_details(case, problem)
+    out = Path(args.out)
     restart = None
     if args.restart:
+        recover(args.restart)  # a set of outputs half put in place by a killed run is finished first
         restart = read_checkpoint(args.restart)
         restart.check_matches(case, problem.mesh)
-    out = Path(args.out)
-    out.mkdir(parents=True, exist_ok=True)
+    open_folder(out)  # created, and a set of outputs half put in place by a killed run finished first
     checkpoint = out / CHECKPOINT_NAME
-    keep = [checkpoint] if restart is not None and Path(restart.source).resolve() == checkpoint.resolve() else []
-    removed = clear_previous_outputs(out, keep=keep)  # the input is good: the earlier run's files go now
-    if removed:
-        log.info("%s: removed the %d output files of the earlier run there", out, len(removed))
-    resolved = case.to_toml()
-    atomic_write(out / RESOLVED_CASE, lambda f: f.write(resolved), within=out)
     names = api.residual_names(case)
+    monitor = api.build_monitor(problem, restart.fields if restart else None)
     progress = RunProgress(names, case.solver.max_iterations, case.solver.tolerance,
-                           first_iteration=restart.iteration if restart else 0, quiet=args.quiet)
-    stop = StopRequest()
+                           first_iteration=restart.iteration if restart else 0, quiet=args.quiet,
+                           watch=monitor.progress_text)
 
     def callback(it, res):
         progress(it, res)
         return stop(it, res)
 
-    stop.install()
     try:
+        stop.enter("solving")
         with watch:
-            result = api.solve(problem, callback=callback, restart=restart, checkpoint=checkpoint)
+            result = api.solve(problem, callback=callback, restart=restart, checkpoint=checkpoint, monitor=monitor)
+        stop.enter("writing")
     finally:
-        stop.restore()
         progress.close()
     if watch.count:
         log.info("compiled %d kernels in %.1f s (kept out of the solve time: summary.json's compile_seconds)",
                  watch.count, watch.seconds)
-    again = " ".join(shlex.quote(str(a)) for a in ("fvrans", "run", out / RESOLVED_CASE, "--out", out,
+    again = " ".join(shlex.quote(str(a)) for a in ("fvrans", "run", out / api.RESOLVED_CASE, "--out", out,
                                                     "--restart", out))
     if stop.signal_name is not None and result.interrupted:
         result.message = f"interrupted by {stop.signal_name} at iteration {result.iterations}; continue with: {again}"
-        result.extra["summary"] = {"interrupted_by": stop.signal_name}
+        result.extra.setdefault("summary", {})["interrupted_by"] = stop.signal_name
     elif not result.converged and not result.diverged:
         result.message += f"; continue with: {again} (--set solver.max_iterations=N for N more)"
-    written = [out / RESOLVED_CASE]
-    if not result.converged or case.solver.checkpoint_every > 0 or checkpoint.exists():
-        written.append(result.write_checkpoint(checkpoint))
-    result.write(out)
-    written += [out / n for n in ("summary.json", "fields.vtu", "residuals.csv")]
-    written += [output_file(out, n, ".csv", subfolder=sub) for n in result.walls()  # as Result.write names them
-                for sub in ("wall", api.ZERO_SHEAR_FOLDER)]
-    written += [output_file(out, n, ".csv", subfolder="profiles") for n in case.probes]
+    # one set of outputs (fvrans.post.outputs): it replaces the previous run's set in a reused folder
+    restarted_here = restart is not None and Path(restart.source).resolve() == checkpoint.resolve()
+    keep_checkpoint = not result.converged or case.solver.checkpoint_every > 0 or restarted_here
+    result.write(out, checkpoint=keep_checkpoint, resolved_case=True)
+    plots_note = ""
     if not args.no_plots:
-        written += _plots(out)
-    record_outputs(out, written)
-    log.debug("wrote %s", ", ".join(sorted(p.relative_to(out).as_posix() for p in written if p.is_file())))
+        stop.enter("plotting")
+        plots_note = _plots(out, stop.requested)
+    log.debug("wrote %s", ", ".join((listed_outputs(out) or {}).get("files", [])))
     log.debug("solve %.2f s, of which compiling kernels %.2f s", result.wall_seconds, result.compile_seconds)
     state = "converged" if result.converged else ("DIVERGED" if result.diverged else (
         "interrupted" if result.interrupted else "not converged"))
     print(f"{state} after {result.iterations} iterations in {result.wall_seconds:.1f} s; results in {out}")
     if result.message:
         print(result.message, file=sys.stderr)
+    if stop.signal_name is not None and stop.signal_phase in ("writing", "plotting"):
+        print(f"{stop.signal_name} arrived while {stop.signal_phase}: the results were written whole{plots_note}",
+              file=sys.stderr)
     return 0 if result.converged else 1
 
 
@@ -130,15 +129,18 @@ def _log_details(case, problem) -> None:
               q.max_aspect_ratio, "".join(f"; warning: {w}" for w in q.warnings))
 
 
-def _plots(out: Path) -> list[Path]:
-    """Plots of a result folder; a failure to plot is reported but does not fail the run."""
+def _plots(out: Path, should_stop=None) -> str:
+    """Plots of a result folder; a failure to plot is reported but does not fail the run. Returns
+    a note when a stop request cut the plots short."""
     from fvrans.post.plots import make_plots
 
     try:
-        return make_plots(out)
+        make_plots(out, should_stop=should_stop)
     except Exception as exc:  # noqa: BLE001 - the results are written; plotting is a convenience
         log.warning("plots of %s could not be made: %s", out, exc)
-        return []
+    if should_stop is not None and should_stop():
+        return f"; the plots were cut short (draw them with: fvrans plot {out})"
+    return ""
 
 
 def _cmd_plot(args: argparse.Namespace) -> int:
@@ -302,6 +304,22 @@ def _cmd_grid_study(args: argparse.Namespace) -> int:
     )
 
 
+def _cmd_overlay(args: argparse.Namespace) -> int:
+    from fvrans.post.overlay import overlay_plots, sweep_labels
+
+    folders = [Path(f) for f in args.result_dirs]
+    labels = list(args.label)
+    if args.sweep:
+        if folders or labels:
+            print("error: give result folders (with --label) or --sweep SWEEP_DIR, not both", file=sys.stderr)
+            return 2
+        named = sweep_labels(args.sweep)
+        folders, labels = list(named), list(named.values())
+    for path in overlay_plots(folders, args.out, labels or None):
+        print(path)
+    return 0
+
+
 def _cmd_sweep(args: argparse.Namespace) -> int:
     from fvrans.sweep import sweep_command
 
@@ -390,6 +408,16 @@ def build_parser() -> argparse.ArgumentParser:
                    help="run on an existing dask cluster, e.g. tcp://10.0.0.5:8786")
     s.add_argument("--quiet", action="store_true", help="no progress bar or summary")
     s.set_defaults(func=_cmd_sweep)
+
+    o = sub.add_parser("overlay", help="draw several result folders on the same plots (walls, probes, "
+                                       "profiles in wall units, residuals)")
+    o.add_argument("result_dirs", nargs="*", help="folders written by 'fvrans run' (two or more)")
+    o.add_argument("--label", action="append", default=[], metavar="NAME",
+                   help="legend name of each folder, in order (default: the run's title, else the folder name)")
+    o.add_argument("--sweep", default=None, metavar="SWEEP_DIR",
+                   help="overlay every run of a sweep folder, named by its parameter values")
+    o.add_argument("--out", required=True, help="folder for the PNG files")
+    o.set_defaults(func=_cmd_overlay)
     return p
 
 
@@ -430,20 +458,30 @@ def _setup_logging(level: int) -> None:
 
 
 def main(argv: list[str] | None = None) -> int:
+    """Exit status: see the module docstring; a stop request (SIGINT, SIGTERM) that ends a command
+    before its work is done gives 128 + the signal number (130, 143), as a shell reports it."""
+    from fvrans.stop import Stopped, StopRequest
+
     args = build_parser().parse_args(argv)
     _setup_logging(logging.DEBUG if args.verbose else logging.WARNING if getattr(args, "quiet", False)
                    else logging.INFO)
+    stop = StopRequest("start-up").install()
     try:
         return int(args.func(args))
     except FvransError as exc:
         print(f"error: {exc}", file=sys.stderr)
         return 2
+    except Stopped as exc:
+        print(f"stopped by {exc.signal_name} during {exc.phase}; nothing more was written", file=sys.stderr)
+        return exc.exit_status
     except KeyboardInterrupt:
         print("interrupted", file=sys.stderr)
         return 130
     except BrokenPipeError:  # the reader went away (fvrans info ... | head): no traceback
         os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
         return 0
+    finally:
+        stop.restore()
 
 
 if __name__ == "__main__":  # pragma: no cover

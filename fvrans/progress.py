@@ -1,6 +1,6 @@
 """Progress of a run on the terminal: a live bar (rich) on a terminal, a plain line every few
-seconds otherwise (log files, CI), nothing with ``quiet``; and :class:`StopRequest`, which turns
-SIGINT / SIGTERM into a stop at the end of the current iteration.
+seconds otherwise (log files, CI), nothing with ``quiet``. (:class:`StopRequest`, which turns
+SIGINT / SIGTERM into a stop at the end of the current iteration, lives in :mod:`fvrans.stop`.)
 
 The time left is estimated from the recent decay of the largest normalised imbalance: with the
 least-squares slope s of log10(residual) per iteration over the last iterations, the run needs
@@ -13,12 +13,13 @@ from __future__ import annotations
 import io
 import logging
 import math
-import signal
 import sys
 import time
 from collections import deque
 from collections.abc import Callable, Sequence
 from typing import IO, Any
+
+from fvrans.stop import StopRequest
 
 log = logging.getLogger(__name__)
 
@@ -88,18 +89,21 @@ class Estimate:
 
 def fit_line(
     iteration: int, total: int, names: Sequence[str], residuals: Sequence[float], rate: float | None,
-    eta: str, width: int,
+    eta: str, width: int, watched: str = "",
 ) -> str:
     """The progress text, fitted into ``width`` characters by dropping fields by priority.
 
     In order of what goes first: the seconds per iteration, then the long words (``iteration``
     becomes ``it``, residual names are cut to four letters, ``about``/``at most`` become ``~``/``<=``),
-    then the time left, then every residual but the largest; the iteration count stays.
+    then the monitored quantity ``watched`` (e.g. ``"plate.Cd 0.0028712"``), then the time left,
+    then every residual but the largest; the iteration count stays.
 
     >>> fit_line(12, 500, ["u", "continuity"], [1e-3, 2e-4], 0.01, "about 5 s left", 100)
     'iteration     12/500  u 1.00e-03  continuity 2.00e-04  0.0100 s/iteration  about 5 s left'
     >>> fit_line(12, 500, ["u", "continuity"], [1e-3, 2e-4], 0.01, "about 5 s left", 40)
     'it 12/500  u 1.0e-03  cont 2.0e-04'
+    >>> fit_line(12, 500, ["u", "continuity"], [1e-3, 2e-4], 0.01, "about 5 s left", 80, "wall.Cd 0.01234")
+    'it 12/500  u 1.0e-03  cont 2.0e-04  ~5 s left  wall.Cd 0.01234'
     """
     width = max(int(width), 20)
     count = f"{iteration:6d}/{total}"
@@ -113,6 +117,9 @@ def fit_line(
         worst = f"max {names[k][:4]} {vals[k]:.1e}"
     rate_text = f"{rate:.4f} s/iteration" if rate is not None else ""
     candidates = (
+        [f"iteration {count}", full, rate_text, eta, watched],
+        [f"iteration {count}", full, eta, watched],
+        [f"it {iteration}/{total}", short, eta_short, watched],
         [f"iteration {count}", full, rate_text, eta],
         [f"iteration {count}", full, eta],
         [f"it {iteration}/{total}", short, eta_short],
@@ -150,6 +157,7 @@ class RunProgress:
     terminal a rich progress bar with the fields of :func:`fit_line`; elsewhere a plain line at
     the first iteration and then every ``every_s`` seconds; nothing when ``quiet``. Every line
     fits ``width`` columns (default: the terminal's, or 80 when the stream is not a terminal).
+    ``watch()``: a short text of a monitored quantity, shown where it fits (:func:`fit_line`).
     """
 
     #: columns of the bar on a terminal
@@ -167,8 +175,10 @@ class RunProgress:
         clock: Callable[[], float] = time.perf_counter,
         force_terminal: bool | None = None,
         width: int | None = None,
+        watch: Callable[[], str] | None = None,
     ):
         self.names = list(names)
+        self.watch = watch
         self.quiet = quiet
         self.stream = stream if stream is not None else sys.stderr
         self.first = int(first_iteration)
@@ -204,7 +214,8 @@ class RunProgress:
     def line(self, iteration: int, residuals: Sequence[float], width: int | None = None) -> str:
         """The progress text (see :func:`fit_line`) within ``width`` columns (default: the line's)."""
         return fit_line(iteration, self.total, self.names, residuals, self.estimate.seconds_per_iteration(),
-                        self.estimate.text(iteration), self.width if width is None else width)
+                        self.estimate.text(iteration), self.width if width is None else width,
+                        self.watch() if self.watch is not None else "")
 
     def __call__(self, iteration: int, residuals: Sequence[float]) -> None:
         now = self.clock()
@@ -247,39 +258,6 @@ class RunProgress:
             self._bar = None
         elif not self.quiet and self.last is not None and self.last[0] != self.last_printed:
             self._write_line(*self.last)
-
-class StopRequest:
-    """SIGINT (Ctrl-C) and SIGTERM ask the run to stop at the end of the current iteration; a
-    second signal aborts at once (KeyboardInterrupt, nothing more is written)."""
-
-    SIGNALS = (signal.SIGINT, signal.SIGTERM)
-
-    def __init__(self) -> None:
-        self.signal_name: str | None = None
-        self._old: dict[int, Any] = {}
-
-    def install(self) -> None:
-        try:
-            for sig in self.SIGNALS:
-                self._old[sig] = signal.signal(sig, self._handler)
-        except ValueError:  # not the main thread: keep the default handlers
-            self.restore()
-
-    def restore(self) -> None:
-        for sig, old in self._old.items():
-            signal.signal(sig, old)
-        self._old = {}
-
-    def _handler(self, signum: int, frame: Any) -> None:
-        if self.signal_name is not None:
-            self.restore()
-            raise KeyboardInterrupt
-        self.signal_name = signal.Signals(signum).name
-        log.warning("%s received: stopping after this iteration and saving the state (send it again to abort "
-                    "without saving)", self.signal_name)
-
-    def __call__(self, it: int, res: list[float]) -> bool:
-        return self.signal_name is not None
 
 
 __all__ = ["Estimate", "RunProgress", "StopRequest", "fit_line", "format_seconds", "terminal_width"]

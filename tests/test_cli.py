@@ -12,6 +12,7 @@ import numpy as np
 import pytest
 
 from fvrans.cli import main
+from fvrans.post.outputs import MANIFEST, STAGING, listed_outputs
 
 CASE = """
 title = "small channel"
@@ -113,6 +114,7 @@ def test_continue_hint_reproduces_the_run_with_its_overrides(case_file, tmp_path
     hint = err.split("continue with: ", 1)[1].split(" (--set", 1)[0].strip()
     argv = shlex.split(hint)
     assert argv[:2] == ["fvrans", "run"]
+    assert {"case.toml", "checkpoint.npz"} <= set(listed_outputs(out)["files"])  # both in the run's set
     # as printed: 3 more iterations of the same run (a restart with another inflow would be refused: exit 2)
     assert main(argv[1:] + ["--quiet"]) == 1
     summary = json.loads((out / "summary.json").read_text())
@@ -140,28 +142,33 @@ max_iterations = 5
 
 
 def test_a_reused_output_folder_loses_the_earlier_runs_files_and_keeps_the_users(case_file, tmp_path):
-    """Issue #12 item 6: a second run into the same --out folder removes the files the first run
-    wrote (listed in outputs.json) and leaves every other file."""
+    """Issue #12 item 6 through the one output mechanism (issue #13 item 2): a second run into the
+    same --out folder replaces the first run's set (listed in .fvrans-outputs.json), so the files
+    only the first run wrote (its wall, probe and plot files) are gone, with the folders they
+    leave empty, and every other file stays."""
     text = case_file.read_text() + '\n[probes.across]\nstart = [2.0, 0.0]\nend = [2.0, 1.0]\npoints = 5\n'
     case_file.write_text(text.replace("tolerance = 1e-6", "max_iterations = 5"))
     out = tmp_path / "out"
     main(["run", str(case_file), "--out", str(out), "--quiet"])
-    first = json.loads((out / "outputs.json").read_text())["files"]
+    first = listed_outputs(out)["files"]
     assert {"wall/lower_wall.csv", "profiles/across.csv", "plots/wall_lower_wall_cf.png", "case.toml",
-            "summary.json", "outputs.json"} <= set(first)
+            "summary.json", "monitored.csv", "checkpoint.npz"} <= set(first)
+    assert all((out / f).is_file() for f in first)
     mine = [out / "notes.txt", out / "plots" / "mine.png", out / "wall" / "measured.csv"]
     for f in mine:
         f.write_text("the user's own file")
     cavity = tmp_path / "cavity.toml"
     cavity.write_text(CAVITY)
     main(["run", str(cavity), "--out", str(out), "--quiet", "--no-plots"])
+    second = ["case.toml", "checkpoint.npz", "fields.vtu", "monitored.csv", "residuals.csv", "summary.json",
+              "wall/lid.csv", "wall/walls.csv", "wall/zero_shear/lid.csv", "wall/zero_shear/walls.csv"]
+    assert sorted(listed_outputs(out)["files"]) == second
     left = sorted(p.relative_to(out).as_posix() for p in out.rglob("*") if p.is_file())
-    assert left == sorted(["case.toml", "checkpoint.npz", "fields.vtu", "notes.txt", "outputs.json",
-                           "plots/mine.png", "residuals.csv", "summary.json", "wall/lid.csv", "wall/measured.csv",
-                           "wall/walls.csv", "wall/zero_shear/lid.csv", "wall/zero_shear/walls.csv"])
-    assert "wall/zero_shear/lower_wall.csv" in first  # listed by the first run, and removed
-    assert not (out / "profiles").exists()
+    assert left == sorted(second + [MANIFEST, "notes.txt", "plots/mine.png", "wall/measured.csv"])
+    assert not (out / "profiles").exists() and not (out / STAGING).exists()
+    assert "wall/zero_shear/lower_wall.csv" in first and not (out / "wall" / "zero_shear" / "lower_wall.csv").exists()
     assert all(f.read_text() == "the user's own file" for f in mine)
+    assert 'title = "small cavity"' in (out / "case.toml").read_text()  # the resolved case of the second run
 
 
 ROOT = Path(__file__).resolve().parents[1]

@@ -98,3 +98,20 @@ def test_bar_lines_fit_80_columns():
     lines = [ln for chunk in visible.split("\r") for ln in chunk.split("\n") if ln.strip()]
     assert lines and max(len(ln) for ln in lines) <= 80, max(lines, key=len)
     assert any("nu_t" in ln for ln in lines)
+
+
+def test_a_monitored_quantity_shows_where_it_fits():
+    """The monitored quantity goes after the seconds per iteration and the long words, before the
+    time left; every line still fits 80 columns."""
+    clock, stream = Clock(), io.StringIO()
+    p = RunProgress(["u", "continuity"], max_iterations=1000, tolerance=1e-6, stream=stream, clock=clock,
+                    watch=lambda: "plate.Cd 0.0028712")
+    _drive(p, clock, 30)
+    line = p.line(30, [1e-3, 1e-4])
+    assert "plate.Cd 0.0028712" in line and len(line) <= 80 and "left" in line
+    p = RunProgress(NAMES, max_iterations=99999, tolerance=1e-12, stream=stream, clock=clock,
+                    watch=lambda: "plate.Cd 0.0028712")
+    _drive(p, clock, 30)
+    line = p.line(30, [1e-3, 1e-3, 1e-4, 1e-4])
+    assert len(line) <= 80 and all(n[:4] in line for n in NAMES)
+    assert "plate.Cd" not in line  # four residuals and the time left leave no room

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import importlib
 import inspect
+import os
 from collections.abc import Sequence
 from typing import TYPE_CHECKING
 
@@ -53,22 +54,29 @@ def check_case_against_mesh(case: Case, mesh: Mesh | Sequence[str]) -> None:
 
 
 def check_probes(case: Case, mesh: Mesh) -> None:
-    """Every sample point of every line probe must lie in a cell of the mesh (CaseError otherwise)."""
+    """Every point probe and every sample point of every line probe must lie in a cell of the mesh
+    (CaseError otherwise)."""
     if not case.probes:
         return
+    from fvrans.case.schema import ProbePoint
     from fvrans.mesh.locate import CellLocator, line_points
 
     locator = CellLocator(mesh)
     for name, pr in case.probes.items():
-        pts = line_points(pr.start, pr.end, pr.points)
+        pts = np.array([pr.at]) if isinstance(pr, ProbePoint) else line_points(pr.start, pr.end, pr.points)
         outside = np.flatnonzero(locator.find(pts) < 0)
         if len(outside):
             x, y = pts[outside[0]]
             lo, hi = mesh.points.min(axis=0), mesh.points.max(axis=0)
+            src = getattr(mesh, "source", "")
+            if isinstance(pr, ProbePoint):
+                what = f"the point ({x:.6g}, {y:.6g}) lies outside the mesh {src}; move it"
+            else:
+                what = (f"{len(outside)} of {pr.points} sample points lie outside the mesh {src}, the first at "
+                        f"({x:.6g}, {y:.6g}); move start / end")
             raise CaseError(
-                f"{case.label}: {format_key(('probes', name))}: {len(outside)} of {pr.points} sample points lie "
-                f"outside the mesh {getattr(mesh, 'source', '')}, the first at ({x:.6g}, {y:.6g}); move start / end "
-                f"inside the flow domain (its bounding box is x {lo[0]:.6g}..{hi[0]:.6g}, y {lo[1]:.6g}..{hi[1]:.6g})"
+                f"{case.label}: {format_key(('probes', name))}: {what} inside the flow domain (its bounding box is "
+                f"x {lo[0]:.6g}..{hi[0]:.6g}, y {lo[1]:.6g}..{hi[1]:.6g})"
             )
 
 
@@ -175,7 +183,10 @@ def _generate(case: Case) -> Mesh:
         raise CaseError(f"{case.label}: mesh.parameters: {exc} (generator {name!r} takes: "
                         f"{', '.join(accepted) or 'no parameters'})") from None
     except ValueError:  # no signature available
-        pass
+        sig = None
+    if sig is not None:
+        params = _check_parameters(case, name, sig, params)
+        _check_size(case, name, mod, params)
     try:
         mesh = func(**params)
     except MeshError as exc:  # invalid shape parameters: keep the type, name the case and the key
@@ -185,9 +196,125 @@ def _generate(case: Case) -> Mesh:
     return mesh
 
 
+#: memory a run needs per cell, measured: 3.1 kB (laminar) to 3.9 kB (Spalart-Allmaras) on a
+#: 147 456-cell cavity, solve and outputs (maximum resident size); rounded up
+BYTES_PER_CELL = 4096
+
+
+def _kinds(annotation: object) -> set[str]:
+    """The value kinds a generator parameter's annotation allows: int, float, bool, str, list."""
+    text = annotation if isinstance(annotation, str) else getattr(annotation, "__name__", str(annotation))
+    kinds = set()
+    for token in str(text).replace(" ", "").split("|"):
+        if token in ("int", "float", "bool", "str"):
+            kinds.add(token)
+        elif "ndarray" in token or token.startswith(("list", "Sequence", "tuple")):
+            kinds.add("list")
+    return kinds
+
+
+def _need(kinds: set[str]) -> str:
+    words = {"int": "an integer", "float": "a number", "bool": "true or false", "str": "a string",
+             "list": "a list of numbers"}
+    return " or ".join(words[k] for k in sorted(kinds))
+
+
+def _check_parameters(case: Case, name: str, sig: inspect.Signature, params: dict) -> dict:
+    """Types and finite values of the generator's parameters, from its annotations: a number where
+    a number is meant (finite, at most 1e30 in magnitude; an integer for a count), true/false for
+    a flag, text for a name; CaseError naming ``mesh.parameters.<key>`` otherwise."""
+    from fvrans.case.validate import MAX_INTEGER, check_number, describe
+
+    out = dict(params)
+    for key, value in params.items():
+        where = f"{case.label}: {format_key(('mesh', 'parameters', key))}"
+        kinds = _kinds(sig.parameters[key].annotation) if key in sig.parameters else set()
+
+        def fail(msg: str, where: str = where) -> CaseError:
+            return CaseError(f"{where}: {msg} (generator {name!r})")
+
+        if isinstance(value, dict):
+            raise fail(f"must be a single value, got {describe(value)}")
+        if isinstance(value, bool):
+            if kinds and "bool" not in kinds:
+                raise fail(f"must be {_need(kinds)}, got {describe(value)} (true/false is a flag)")
+            continue
+        if "bool" in kinds and not kinds & {"int", "float", "str", "list"}:
+            raise fail(f"must be true or false, got {describe(value)}")
+        if isinstance(value, str):
+            if kinds and "str" not in kinds:
+                raise fail(f"must be {_need(kinds)}, got {describe(value)}")
+            continue
+        if isinstance(value, list):
+            if kinds and "list" not in kinds:
+                raise fail(f"must be {_need(kinds)}, got {describe(value)}")
+            out[key] = [check_number(v, lambda m, i=i: fail(f"item {i + 1} {m}")) for i, v in enumerate(value)]
+            continue
+        x = check_number(value, fail)  # finite, at most 1e30 in magnitude
+        if "int" in kinds and "float" not in kinds:
+            if not float(x).is_integer():
+                raise fail(f"must be an integer (a count), got {describe(value)}")
+            if abs(x) > MAX_INTEGER:
+                raise fail(f"must be at most {MAX_INTEGER:.0e}, got {describe(value)[:40]}")
+            out[key] = int(x)
+        elif kinds and not kinds & {"int", "float"}:
+            raise fail(f"must be {_need(kinds)}, got {describe(value)}")
+    return out
+
+
+def available_memory() -> int | None:
+    """Bytes of memory available to a new computation (Linux: MemAvailable), or None if unknown."""
+    try:
+        with open("/proc/meminfo", encoding="ascii") as f:
+            for line in f:
+                if line.startswith("MemAvailable:"):
+                    return int(line.split()[1]) * 1024
+    except (OSError, ValueError, IndexError):
+        pass
+    try:
+        return int(os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_AVPHYS_PAGES"))
+    except (ValueError, OSError, AttributeError):
+        return None
+
+
+def _check_size(case: Case, name: str, mod: object, params: dict) -> None:
+    """Refuse a generated mesh that cannot fit in memory, with the estimate."""
+    estimate = getattr(mod, "estimate_cells", None)
+    cells = estimate(name, **params) if estimate is not None else None
+    if cells is None:
+        return
+    need = cells * BYTES_PER_CELL
+    have = available_memory()
+    if have is not None and need > have:
+        raise CaseError(
+            f"{case.label}: mesh.parameters: generator {name!r} would build about {cells:.3g} cells, and a run "
+            f"needs about {need / 2**30:.3g} GiB for them ({BYTES_PER_CELL // 1024} KiB per cell, measured), more "
+            f"than the {have / 2**30:.3g} GiB of memory available; reduce the cell counts")
+
+
+def _join_periodic(case: Case, mesh: Mesh) -> Mesh:
+    from fvrans.mesh.periodic import join_periodic
+
+    key = f"{case.label}: mesh.periodic_pairs"
+    for pair in case.mesh.periodic_pairs:
+        for name in pair:
+            if name not in mesh.patch_names:
+                raise CaseError(f"{key}: the mesh {mesh.source} has no patch {name!r}"
+                                f"{did_you_mean(name, mesh.patch_names)}; its patches are: "
+                                f"{', '.join(repr(x) for x in mesh.patch_names)}")
+            if name in case.boundaries:
+                raise CaseError(f"{case.label}: {format_key(('boundary', name))}: patch {name!r} is joined by "
+                                "mesh.periodic_pairs and takes no boundary condition; remove the table")
+    try:
+        return join_periodic(mesh, case.mesh.periodic_pairs)
+    except MeshError as exc:
+        raise MeshError(f"{key}: {exc}") from None
+
+
 def build_case_mesh(case: Case, check: bool = True) -> Mesh:
     """Read or generate the case's mesh, renumber its cells if asked (reverse Cuthill-McKee,
-    :func:`fvrans.mesh.renumber.renumber_cells`) and, by default, check the case against it with
+    :func:`fvrans.mesh.renumber.renumber_cells`), join its periodic pairs
+    (:func:`fvrans.mesh.periodic.join_periodic`) and, by default, check the case against it with
     :func:`check_case_against_mesh`."""
     if case.mesh.file is not None:
         from fvrans.mesh.io import read_mesh
@@ -201,6 +328,8 @@ def build_case_mesh(case: Case, check: bool = True) -> Mesh:
         from fvrans.mesh.renumber import renumber_cells
 
         mesh, _ = renumber_cells(mesh)
+    if case.mesh.periodic_pairs:
+        mesh = _join_periodic(case, mesh)
     if check:
         check_case_against_mesh(case, mesh)
     return mesh

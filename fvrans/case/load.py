@@ -11,6 +11,7 @@ from typing import Any
 from fvrans.case.schema import Case
 from fvrans.case.validate import case_from_dict, format_key, parse_dotted_key
 from fvrans.errors import CaseError
+from fvrans.files import MAX_NESTING, nesting_depth, read_text
 
 if sys.version_info >= (3, 11):
     import tomllib
@@ -18,23 +19,27 @@ else:  # pragma: no cover
     import tomli as tomllib
 
 _POSITION = re.compile(r"line (\d+), column (\d+)")
+#: largest case or spec file read (a case file is a few kilobytes)
+MAX_CASE_BYTES = 16 * 2**20
 
 
 def read_toml(path: str | Path) -> dict[str, Any]:
     """Parse a TOML file; syntax errors become CaseError with the file, line and column."""
-    p = Path(path)
-    if not p.exists():
-        raise CaseError(f"{p}: case file not found (looked for {p.absolute()}); check the path")
-    if p.is_dir():
-        raise CaseError(f"{p}: is a directory; give the case file (.toml) itself")
-    try:
-        text = p.read_text(encoding="utf-8-sig")
-    except UnicodeDecodeError as exc:
-        raise CaseError(f"{p}: not UTF-8 text (byte {exc.start}); save the case file as UTF-8") from None
-    except OSError as exc:
-        raise CaseError(f"{p}: cannot read the case file ({exc.strerror or exc})") from None
+    text = read_text(path, "case file", max_bytes=MAX_CASE_BYTES)
+    data = parse_toml_text(text, str(path))
+    if nesting_depth(data) > MAX_NESTING:
+        raise CaseError(f"{path}: tables and lists are nested more than {MAX_NESTING} deep; a case or spec "
+                        "file nests a few levels")
+    return data
+
+
+def parse_toml_text(text: str, p: str) -> dict[str, Any]:
+    """TOML text to data; syntax errors become CaseError naming ``p`` with the line and column."""
     try:
         return tomllib.loads(text)
+    except RecursionError:
+        raise CaseError(f"{p}: tables or lists are nested too deeply to read; a case or spec file nests a few "
+                        "levels") from None
     except tomllib.TOMLDecodeError as exc:
         msg = str(exc)
         detail = ""

@@ -22,9 +22,12 @@ import numpy as np
 from fvrans.case.formula import VectorFormula, values_at
 from fvrans.case.schema import DEFAULT_PROFILE_COLUMNS, BoundarySpec
 from fvrans.errors import CaseError
+from fvrans.files import input_file, read_text
 
 #: how far (as a fraction of the table's coordinate span) a point may lie beyond the table
 RANGE_TOLERANCE = 1e-3
+#: largest inlet profile file read (a profile of a million stations is about 50 MiB)
+MAX_PROFILE_BYTES = 64 * 2**20
 #: mesh axes a profile can run along; the coordinate column carries the axis name
 AXES = ("x", "y")
 #: the column of nu_t / nu in fvrans's outputs (probe files, fields.vtu); never an inlet input
@@ -56,19 +59,16 @@ def read_profile_table(path: str | Path) -> ProfileTable:
     >>> t.names, t.columns["u"].tolist()
     (('y', 'u', 'v'), [0.0, 2.5])
     """
-    p = Path(path)
+    p = input_file(path, "inlet profile file", max_bytes=MAX_PROFILE_BYTES,
+                   fail=lambda msg: ProfileFileError(f"{path}: {msg}"))
     st = p.stat()
     return _read_cached(str(p), st.st_mtime_ns, st.st_size)
 
 
 @functools.lru_cache(maxsize=32)
 def _read_cached(path: str, mtime_ns: int, size: int) -> ProfileTable:
-    try:
-        text = Path(path).read_text(encoding="utf-8-sig")
-    except UnicodeDecodeError:
-        raise ProfileFileError(f"{path} is not UTF-8 text; save it as a plain CSV file") from None
-    except OSError as exc:
-        raise ProfileFileError(f"{path} cannot be read ({exc})") from None
+    text = read_text(path, "inlet profile file", max_bytes=MAX_PROFILE_BYTES,
+                     fail=lambda msg: ProfileFileError(f"{path}: {msg}"))
     names: tuple[str, ...] | None = None
     rows: list[list[float]] = []
     for lineno, line in enumerate(text.splitlines(), 1):
@@ -87,24 +87,23 @@ def _read_cached(path: str, mtime_ns: int, size: int) -> ProfileTable:
             else:
                 raise ProfileFileError(f"{path} line {lineno}: the first line holds numbers; the file "
                                        "needs a header line naming the columns, e.g. y, u, v")
-            dup = sorted({n for n in names if names.count(n) > 1})
+            dup = [j + 1 for j, n in enumerate(names) if names.count(n) > 1]
             if dup:
-                raise ProfileFileError(f"{path} line {lineno}: column name(s) {dup} appear twice in "
-                                       "the header")
+                raise ProfileFileError(f"{path} line {lineno}: the header names columns {dup} alike; give "
+                                       "each column its own name")
             continue
         if len(cells) != len(names):
             raise ProfileFileError(f"{path} line {lineno}: {len(cells)} value(s) but the header names "
                                    f"{len(names)} columns")
         row = []
-        for name, c in zip(names, cells):
+        # messages name the file, line and column number only: no file content goes into them
+        for j, c in enumerate(cells, 1):
             try:
                 x = float(c)
             except ValueError:
-                raise ProfileFileError(
-                    f"{path} line {lineno}, column {name!r}: {c!r} is not a number"
-                ) from None
+                raise ProfileFileError(f"{path} line {lineno}, column {j}: not a number") from None
             if not math.isfinite(x):
-                raise ProfileFileError(f"{path} line {lineno}, column {name!r}: {c!r} is not a finite number")
+                raise ProfileFileError(f"{path} line {lineno}, column {j}: not a finite number")
             row.append(x)
         rows.append(row)
     if names is None:
@@ -132,7 +131,8 @@ def resolve_profile(
     ``eddy_viscosity_ratio`` holds nu_t / nu (what fvrans writes in its outputs) and a column
     ``nut_ratio`` could mean either; a file with such a column is refused unless the mapping
     names the nu_tilde / nu column, or (for ``eddy_viscosity_ratio`` alone) the inlet gives its
-    ``nu_tilde_ratio`` as a constant (``constant_given``). ``fail(key_suffix, message)`` makes the error.
+    ``nu_tilde_ratio`` as a constant (``constant_given``). ``k`` and ``omega`` (k-omega SST) are
+    included like ``nu_tilde_ratio`` and come together. ``fail(key_suffix, message)`` makes the error.
     """
     for k, v in given.items():
         if not isinstance(v, str) or not v.strip():
@@ -158,6 +158,15 @@ def resolve_profile(
         _refuse_ambiguous(path, table.names, constant_given, fail)
         if DEFAULT_PROFILE_COLUMNS["nu_tilde_ratio"] in table.names:
             cols["nu_tilde_ratio"] = DEFAULT_PROFILE_COLUMNS["nu_tilde_ratio"]
+    for key in ("k", "omega"):
+        if given.get(key) is not None:
+            cols[key] = given[key]
+        elif DEFAULT_PROFILE_COLUMNS[key] in table.names:
+            cols[key] = DEFAULT_PROFILE_COLUMNS[key]
+    if ("k" in cols) != ("omega" in cols):
+        has, lacks = ("k", "omega") if "k" in cols else ("omega", "k")
+        raise fail(("profile",), f"the profile file {path} gives {has} (column {cols[has]!r}) but not {lacks}; "
+                   f"the k-omega SST inflow needs both columns, or neither")
     for k, name in cols.items():
         if name not in table.names:
             how = (f"profile_columns.{k} names it" if k in given else
@@ -173,6 +182,11 @@ def resolve_profile(
     if "nu_tilde_ratio" in cols and np.any(table.columns[cols["nu_tilde_ratio"]] < 0):
         raise fail(("profile",), f"the profile file {path} has negative values in column "
                    f"{cols['nu_tilde_ratio']!r}; nu_tilde / nu must be >= 0")
+    if "k" in cols and np.any(table.columns[cols["k"]] < 0):
+        raise fail(("profile",), f"the profile file {path} has negative values in column {cols['k']!r}; k must be >= 0")
+    if "omega" in cols and np.any(table.columns[cols["omega"]] <= 0):
+        raise fail(("profile",), f"the profile file {path} has values <= 0 in column {cols['omega']!r}; "
+                   "omega must be > 0")
     return cols
 
 
@@ -255,6 +269,12 @@ def evaluate_velocity(
         raise CaseError(f"{label}.velocity: the Python function returned a non-finite velocity at "
                         f"({x.ravel()[i]:.6g}, {y.ravel()[i]:.6g})")
     return u, w
+
+
+def evaluate_column(spec: BoundarySpec, x: np.ndarray, y: np.ndarray, column: str, label: str) -> np.ndarray:
+    """A column of the condition's profile at points (x, y) (linear interpolation)."""
+    x, y = np.broadcast_arrays(x, y)
+    return _interpolate(spec, x, y, column, label)
 
 
 def evaluate_nu_tilde_ratio(spec: BoundarySpec, x: np.ndarray, y: np.ndarray, label: str) -> np.ndarray:

@@ -15,8 +15,12 @@ from typing import Any
 import numpy as np
 
 # -- allowed values ------------------------------------------------------------------------
-TURBULENCE_MODELS = ("none", "spalart-allmaras")
+TURBULENCE_MODELS = ("none", "spalart-allmaras", "k-omega-sst")
 SA_VARIANTS = ("standard", "no-ft2")
+NONLINEAR_STRESSES = ("none", "qcr2000")
+#: defaults of the k-omega SST inflow and start values: turbulence intensity sqrt(2k/3)/|u| and nu_t / nu
+DEFAULT_TURBULENCE_INTENSITY = 0.001
+DEFAULT_EDDY_VISCOSITY_RATIO = 0.1
 BOUNDARY_KINDS = ("wall", "inflow-velocity", "outflow-pressure", "symmetry", "outer-flow")
 COUPLINGS = ("simple", "simplec")
 CONVECTION_SCHEMES = ("upwind", "linear-upwind")
@@ -26,17 +30,22 @@ LIMITERS = ("none", "venkatakrishnan", "barth-jespersen")
 #: keys each boundary kind takes (besides none else)
 BOUNDARY_KEYS: dict[str, tuple[str, ...]] = {
     "wall": ("kind", "velocity"),
-    "inflow-velocity": ("kind", "velocity", "profile", "profile_columns", "nu_tilde_ratio"),
+    "inflow-velocity": ("kind", "velocity", "profile", "profile_columns", "nu_tilde_ratio", "turbulence_intensity",
+                        "eddy_viscosity_ratio"),
     "outflow-pressure": ("kind", "pressure"),
     "symmetry": ("kind",),
-    "outer-flow": ("kind", "velocity", "pressure", "nu_tilde_ratio"),
+    "outer-flow": ("kind", "velocity", "pressure", "nu_tilde_ratio", "turbulence_intensity", "eddy_viscosity_ratio"),
 }
-PROFILE_COLUMN_KEYS = ("coordinate", "u", "v", "nu_tilde_ratio")
+PROFILE_COLUMN_KEYS = ("coordinate", "u", "v", "nu_tilde_ratio", "k", "omega")
 #: column names used when ``profile_columns`` does not name them
-DEFAULT_PROFILE_COLUMNS = {"coordinate": "y", "u": "u", "v": "v", "nu_tilde_ratio": "nu_tilde_ratio"}
+DEFAULT_PROFILE_COLUMNS = {"coordinate": "y", "u": "u", "v": "v", "nu_tilde_ratio": "nu_tilde_ratio", "k": "k",
+                           "omega": "omega"}
 #: default under-relaxation of the pressure correction for each coupling
 DEFAULT_RELAX_PRESSURE = {"simple": 0.3, "simplec": 1.0}
 DEFAULT_RELAX_VELOCITY = {"simple": 0.7, "simplec": 0.95}
+#: default relative tolerance of each turbulence solve, by model (others: 0.01): omega spans about
+#: ten decades between a wall and the free stream, and a looser solve leaves the free stream unsolved
+DEFAULT_TURBULENCE_TOLERANCE = {"k-omega-sst": 1e-6}
 MOMENTUM_SOLVERS = ("amg", "gauss-seidel")
 TURBULENCE_SOLVERS = ("amg", "gauss-seidel")
 #: text standing for a Python function in :meth:`Case.to_dict`
@@ -65,6 +74,8 @@ class MeshSettings:
     generator: str | None = None
     parameters: dict[str, Any] = field(default_factory=dict)
     renumber: bool = False
+    #: pairs of patches (first, second = first moved by a translation) joined as periodic
+    periodic_pairs: tuple[tuple[str, str], ...] = ()
     edge_tags: dict[int, str] = field(default_factory=dict)
     edge_tag_array: str | None = None
     edge_boxes: dict[str, tuple[float, float, float, float]] = field(default_factory=dict)
@@ -86,8 +97,13 @@ class Fluid:
 
 @dataclass(frozen=True)
 class ModelSettings:
+    """The turbulence model and its options (``sa_*`` only with Spalart-Allmaras;
+    ``nonlinear_stress`` with any eddy-viscosity model)."""
+
     turbulence: str = "none"
     sa_variant: str = "standard"
+    sa_rotation_curvature: bool = False
+    nonlinear_stress: str = "none"
 
 
 @dataclass(frozen=True)
@@ -99,7 +115,23 @@ class InitialState:
     velocity: tuple[float, float] = (0.0, 0.0)
     pressure: float = 0.0
     nu_tilde_ratio: float = 3.0
+    turbulence_intensity: float = DEFAULT_TURBULENCE_INTENSITY
+    eddy_viscosity_ratio: float = DEFAULT_EDDY_VISCOSITY_RATIO
     from_result: Path | None = None
+
+
+@dataclass(frozen=True)
+class MeanFlow:
+    """What drives the flow through periodic pairs: a fixed mean pressure gradient (dp/dx, dp/dy),
+    applied as the body force -grad p, or a fixed bulk (volume-mean) velocity, for which that
+    gradient is found each iteration. At most one is set."""
+
+    pressure_gradient: tuple[float, float] | None = None
+    bulk_velocity: tuple[float, float] | None = None
+
+    @property
+    def active(self) -> bool:
+        return self.pressure_gradient is not None or self.bulk_velocity is not None
 
 
 @dataclass(frozen=True)
@@ -121,6 +153,8 @@ class BoundarySpec:
     nu_tilde_ratio: Scalar | None = None
     profile: Path | None = None
     profile_columns: dict[str, str] | None = None
+    turbulence_intensity: Scalar | None = None
+    eddy_viscosity_ratio: Scalar | None = None
 
     def velocity_at(self, x, y, label: str = "<in memory>: boundary") -> tuple[np.ndarray, np.ndarray]:
         """Velocity components at points ``(x, y)`` (face centres), as float arrays of x's shape.
@@ -137,6 +171,14 @@ class BoundarySpec:
         from fvrans.case.profile import evaluate_nu_tilde_ratio
 
         return evaluate_nu_tilde_ratio(self, np.asarray(x, float), np.asarray(y, float), label)
+
+    def profile_column_at(self, column: str, x, y, label: str = "<in memory>: boundary") -> np.ndarray | None:
+        """An optional profile column (``"k"``, ``"omega"``) at points ``(x, y)``; None without it."""
+        if self.profile is None or self.profile_columns is None or column not in self.profile_columns:
+            return None
+        from fvrans.case.profile import evaluate_column
+
+        return evaluate_column(self, np.asarray(x, float), np.asarray(y, float), column, label)
 
 
 @dataclass(frozen=True)
@@ -222,6 +264,42 @@ class ProbeLine:
 
 
 @dataclass(frozen=True)
+class ProbePoint:
+    """A point probe ``[probes.<name>]`` with ``at = [x, y]``: values watched every iteration."""
+
+    at: tuple[float, float]
+
+
+Probe = ProbeLine | ProbePoint
+#: kinds of derived scalars ``[derived.<name>]``
+DERIVED_KINDS = ("difference", "recirculation-length")
+
+
+@dataclass(frozen=True)
+class DerivedScalar:
+    """A scalar computed from probes, ``[derived.<name>]``.
+
+    ``"difference"``: ``quantity`` at point probe ``probes[0]`` minus at ``probes[1]``;
+    ``"recirculation-length"``: the distance along line probe ``probes[0]`` from its start to
+    the first place where ``quantity`` turns from negative to positive.
+    """
+
+    kind: str
+    probes: tuple[str, ...]
+    quantity: str
+
+
+@dataclass(frozen=True)
+class MonitorSettings:
+    """The stopping rule on monitored quantities (see :mod:`fvrans.monitor`)."""
+
+    settle: bool = True
+    iteration_error: float = 1e-5
+    window: int = 20
+    show: str = ""
+
+
+@dataclass(frozen=True)
 class Case:
     """A complete, validated case. ``source`` is the case file (None for one built in memory).
 
@@ -240,8 +318,11 @@ class Case:
     boundaries: dict[str, BoundarySpec]
     solver: SolverSettings
     output: OutputSettings
-    probes: dict[str, ProbeLine] = field(default_factory=dict)
+    probes: dict[str, Probe] = field(default_factory=dict)
+    mean_flow: MeanFlow = field(default_factory=MeanFlow)
     raw: dict[str, Any] | None = field(default=None, compare=False, repr=False)
+    derived: dict[str, DerivedScalar] = field(default_factory=dict)
+    monitor: MonitorSettings = field(default_factory=MonitorSettings)
     #: the named constants of the case's formulas (``[formula_constants]``)
     constants: dict[str, float] = field(default_factory=dict)
 
@@ -253,6 +334,14 @@ class Case:
     @property
     def turbulent(self) -> bool:
         return self.model.turbulence != "none"
+
+    @property
+    def line_probes(self) -> dict[str, ProbeLine]:
+        return {n: p for n, p in self.probes.items() if isinstance(p, ProbeLine)}
+
+    @property
+    def point_probes(self) -> dict[str, ProbePoint]:
+        return {n: p for n, p in self.probes.items() if isinstance(p, ProbePoint)}
 
     # -- export ----------------------------------------------------------------------------
     def to_dict(self) -> dict[str, Any]:
@@ -346,7 +435,7 @@ def boundary_data(b: BoundarySpec, keep_callables: bool = False) -> dict[str, An
         out["profile"] = str(b.profile)
     if b.profile_columns is not None:
         out["profile_columns"] = dict(b.profile_columns)
-    for key in ("pressure", "nu_tilde_ratio"):
+    for key in ("pressure", "nu_tilde_ratio", "turbulence_intensity", "eddy_viscosity_ratio"):
         v = getattr(b, key)
         if v is not None:
             out[key] = v.text if isinstance(v, Formula) else float(v)
@@ -354,9 +443,11 @@ def boundary_data(b: BoundarySpec, keep_callables: bool = False) -> dict[str, An
 
 
 def _initial_data(i: InitialState) -> dict[str, Any]:
+    turbulence = {"nu_tilde_ratio": i.nu_tilde_ratio, "turbulence_intensity": i.turbulence_intensity,
+                  "eddy_viscosity_ratio": i.eddy_viscosity_ratio}
     if i.from_result is not None:
-        return {"from_result": str(i.from_result), "pressure": i.pressure, "nu_tilde_ratio": i.nu_tilde_ratio}
-    return {"velocity": _vec(i.velocity), "pressure": i.pressure, "nu_tilde_ratio": i.nu_tilde_ratio}
+        return {"from_result": str(i.from_result), "pressure": i.pressure, **turbulence}
+    return {"velocity": _vec(i.velocity), "pressure": i.pressure, **turbulence}
 
 
 def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
@@ -376,6 +467,8 @@ def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
         mesh["generator"] = m.generator
         mesh["parameters"] = copy_data(m.parameters)
     mesh["renumber"] = bool(m.renumber)
+    if m.periodic_pairs:
+        mesh["periodic_pairs"] = [list(p) for p in m.periodic_pairs]
     s = case.solver
     o = case.output
     output: dict[str, Any] = {
@@ -401,7 +494,9 @@ def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
         "description": case.description,
         "mesh": mesh,
         "fluid": {"density": case.fluid.density, "viscosity": case.fluid.viscosity},
-        "model": {"turbulence": case.model.turbulence, "sa_variant": case.model.sa_variant},
+        "model": {"turbulence": case.model.turbulence, "sa_variant": case.model.sa_variant,
+                  "sa_rotation_curvature": case.model.sa_rotation_curvature,
+                  "nonlinear_stress": case.model.nonlinear_stress},
         "initial": _initial_data(case.initial),
         "boundary": {name: boundary_data(b, keep_callables) for name, b in case.boundaries.items()},
         "solver": {
@@ -431,7 +526,24 @@ def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
     }
     if case.constants:
         data["formula_constants"] = dict(case.constants)
+    mf = case.mean_flow
+    if mf.active:
+        data["mean_flow"] = ({"pressure_gradient": _vec(mf.pressure_gradient)} if mf.pressure_gradient is not None
+                             else {"bulk_velocity": _vec(mf.bulk_velocity)})
     if case.probes:
-        data["probes"] = {name: {"start": _vec(pr.start), "end": _vec(pr.end), "points": pr.points}
+        data["probes"] = {name: {"at": _vec(pr.at)} if isinstance(pr, ProbePoint) else
+                          {"start": _vec(pr.start), "end": _vec(pr.end), "points": pr.points}
                           for name, pr in case.probes.items()}
+    if case.derived:
+        data["derived"] = {name: _derived_data(d) for name, d in case.derived.items()}
+    m = case.monitor
+    data["monitor"] = {"settle": m.settle, "iteration_error": m.iteration_error, "window": m.window}
+    if m.show:
+        data["monitor"]["show"] = m.show
     return data
+
+
+def _derived_data(d: DerivedScalar) -> dict[str, Any]:
+    if d.kind == "difference":
+        return {"kind": d.kind, "probes": list(d.probes), "quantity": d.quantity}
+    return {"kind": d.kind, "probe": d.probes[0], "quantity": d.quantity}

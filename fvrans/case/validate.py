@@ -21,6 +21,7 @@ import numpy as np
 
 from fvrans.case import schema as S
 from fvrans.errors import CaseError
+from fvrans.files import MAX_NESTING, check_path_text, input_file, nesting_depth
 
 if sys.version_info >= (3, 11):
     import tomllib
@@ -32,11 +33,13 @@ _BARE_KEY = re.compile(r"^[A-Za-z0-9_-]+$")
 
 #: keys of each table; ``None`` marks the table of boundary tables
 TABLE_KEYS: dict[str, tuple[str, ...]] = {
-    "mesh": ("file", "generator", "parameters", "renumber", "edge_tags", "edge_tag_array", "edge_boxes",
-             "unnamed_edges"),
+    "mesh": ("file", "generator", "parameters", "renumber", "periodic_pairs", "edge_tags", "edge_tag_array",
+             "edge_boxes", "unnamed_edges"),
     "fluid": ("density", "viscosity"),
-    "model": ("turbulence", "sa_variant"),
-    "initial": ("velocity", "pressure", "nu_tilde_ratio", "from_result"),
+    "model": ("turbulence", "sa_variant", "sa_rotation_curvature", "nonlinear_stress"),
+    "initial": ("velocity", "pressure", "nu_tilde_ratio", "turbulence_intensity", "eddy_viscosity_ratio",
+                "from_result"),
+    "mean_flow": ("pressure_gradient", "bulk_velocity"),
     "solver": (
         "coupling", "max_iterations", "tolerance", "relax_velocity", "relax_pressure",
         "relax_turbulence", "convection", "turbulence_convection", "gradient", "limiter",
@@ -51,9 +54,14 @@ TABLE_KEYS: dict[str, tuple[str, ...]] = {
     ),
 }
 TOP_KEYS = ("title", "description", "mesh", "fluid", "model", "initial", "boundary", "solver", "output", "probes",
-            "formula_constants")
-#: keys of a line probe [probes.<name>]
-PROBE_KEYS = ("start", "end", "points")
+            "mean_flow", "derived", "monitor", "formula_constants")
+#: keys of a probe [probes.<name>]: a line (start, end, points) or a point (at)
+PROBE_KEYS = ("start", "end", "points", "at")
+#: keys of a derived scalar [derived.<name>] and of the [monitor] table
+DERIVED_KEYS = ("kind", "probes", "probe", "quantity")
+MONITOR_KEYS = ("settle", "iteration_error", "window", "show")
+#: what a probe samples besides the turbulence model's variables and eddy_viscosity_ratio
+PROBE_QUANTITIES = ("u", "v", "p")
 _PROBE_NAME = re.compile(r"^[A-Za-z0-9_][A-Za-z0-9_.-]*$")
 
 Rule = tuple[Callable[[float], bool], str]
@@ -63,6 +71,15 @@ UNIT: Rule = (lambda v: 0 < v <= 1, "in (0, 1]")
 OPEN_UNIT: Rule = (lambda v: 0 < v < 1, "in (0, 1)")
 ABOVE_ONE: Rule = (lambda v: v > 1, "> 1")
 AT_LEAST_ONE: Rule = (lambda v: v >= 1, ">= 1")
+#: largest magnitude of any number of a case: beyond it squares and products overflow floats
+MAX_MAGNITUDE = 1e30
+#: a positive physical property or reference value: between 1e-30 and 1e30 (so that products
+#: such as 1/2 rho U^2 L stay normal floats)
+PHYSICAL: Rule = (lambda v: 1e-30 <= v <= 1e30, "> 0 (between 1e-30 and 1e30)")
+#: largest magnitude of an integer of a case (iteration counts and the like)
+MAX_INTEGER = 10**15
+#: most sample points of a line probe
+MAX_PROBE_POINTS = 100_000
 
 
 # ------------------------------------------------------------------------------------------
@@ -281,9 +298,16 @@ def check_number(
             except ValueError:
                 pass
         raise fail(f"must be {need}, got {describe(v)}{extra}")
-    x = float(v)
+    try:
+        x = float(v)
+    except OverflowError:  # an integer beyond the float range
+        x = math.inf
     if not math.isfinite(x):
-        raise fail(f"must be a finite number, got {x!r}")
+        got = repr(float(v)) if isinstance(v, float) else f"an integer of {len(str(int(v)))} digits"
+        raise fail(f"must be a finite number, got {got}")
+    if abs(x) > MAX_MAGNITUDE:
+        raise fail(f"must be at most {MAX_MAGNITUDE:g} in magnitude, got {x!r}; give the value in units that keep "
+                   "it within that range")
     if rule and not rule[0](x):
         what = f" ({meaning})" if meaning else ""
         raise fail(f"must be {rule[1]}{what}, got {x!r}; give a value {rule[1]}")
@@ -303,6 +327,8 @@ def check_integer(
         n = int(float(v))
     else:
         raise fail(f"must be {need}, got {describe(v)}")
+    if abs(n) > MAX_INTEGER:
+        raise fail(f"must be {need} of at most {MAX_INTEGER:.0e} in magnitude, got {describe(v)[:40]}")
     if rule and not rule[0](n):
         what = f" ({meaning})" if meaning else ""
         raise fail(f"must be {rule[1]}{what}, got {n}; give an integer {rule[1]}")
@@ -326,19 +352,26 @@ def check_vector(v: Any, fail: Callable[[str], CaseError]) -> tuple[float, float
     return (out[0], out[1])
 
 
-def _check_path(ctx: _Ctx, path: tuple[str, ...], v: Any, what: str) -> Path:
+def _check_path(ctx: _Ctx, path: tuple[str, ...], v: Any, what: str, max_bytes: int | None = None) -> Path:
+    """An existing regular file (not a pipe or device; no NUL, overlong name or link loop)."""
     if isinstance(v, os.PathLike):
         v = os.fspath(v)
     if not isinstance(v, str) or not v.strip():
         raise ctx.error(path, f"must be a file path (a quoted string), got {describe(v)}")
-    p = Path(v).expanduser()
-    full = (p if p.is_absolute() else ctx.base / p).resolve()
-    if not full.exists():
+
+    def fail(msg: str) -> CaseError:
+        return ctx.error(path, msg)
+
+    p = check_path_text(v, fail, what).expanduser()
+    full = p if p.is_absolute() else ctx.base / p
+    try:
+        full = full.resolve()
+    except (OSError, RuntimeError):  # a symbolic-link loop: input_file names it
+        pass
+    if not full.exists() and not full.is_symlink():
         rel = "" if p.is_absolute() else f" (relative paths start from {ctx.base})"
         raise ctx.error(path, f"the {what} {full} does not exist{rel}; correct the path")
-    if full.is_dir():
-        raise ctx.error(path, f"{full} is a directory; give the {what} itself")
-    return full
+    return input_file(full, what, max_bytes=max_bytes, fail=fail)
 
 
 # ------------------------------------------------------------------------------------------
@@ -354,6 +387,9 @@ def case_from_dict(data: Mapping[str, Any], source: str | Path | None = None) ->
     src = Path(source) if source is not None else None
     ctx = _Ctx(str(src) if src is not None else "<in memory>",
                src.absolute().parent if src is not None else Path.cwd())
+    if nesting_depth(data) > MAX_NESTING:
+        raise ctx.error((), f"tables and lists are nested more than {MAX_NESTING} deep; a case nests a few levels "
+                        "(e.g. [boundary.inlet] with profile_columns = { ... })")
     top = _Table(ctx, (), data, TOP_KEYS, "the top level of a case")
     title = top.string("title", "")
     description = top.string("description", "")
@@ -368,22 +404,30 @@ def case_from_dict(data: Mapping[str, Any], source: str | Path | None = None) ->
         "add a [fluid] table with density = ... and viscosity = ... (dynamic viscosity)")),
         TABLE_KEYS["fluid"], "[fluid]")
     fluid = S.Fluid(
-        density=fluid_t.number("density", rule=POSITIVE, meaning="the fluid density",
+        density=fluid_t.number("density", rule=PHYSICAL, meaning="the fluid density",
                                hint="add density = <rho>, e.g. density = 1.0"),
-        viscosity=fluid_t.number("viscosity", rule=POSITIVE, meaning="the dynamic viscosity mu = rho nu",
+        viscosity=fluid_t.number("viscosity", rule=PHYSICAL, meaning="the dynamic viscosity mu = rho nu",
                                  hint="add viscosity = <dynamic viscosity mu>, e.g. viscosity = 0.01"),
     )
     model_t = _Table(ctx, ("model",), top.table("model", {}), TABLE_KEYS["model"], "[model]")
     model = S.ModelSettings(
         turbulence=model_t.choice("turbulence", S.TURBULENCE_MODELS, "none"),
         sa_variant=model_t.choice("sa_variant", S.SA_VARIANTS, "standard"),
+        sa_rotation_curvature=model_t.boolean("sa_rotation_curvature", False),
+        nonlinear_stress=model_t.choice("nonlinear_stress", S.NONLINEAR_STRESSES, "none"),
     )
+    if model.turbulence == "none" and model.nonlinear_stress != "none":
+        raise model_t.fail("nonlinear_stress", "a non-linear Reynolds stress needs a turbulence model; set "
+                           "model.turbulence or remove the key")
     initial = _initial(ctx, top.table("initial", {}))
     boundaries = _boundaries(ctx, top.table("boundary", hint=(
         'add one table per mesh patch, e.g. [boundary.walls] with kind = "wall"')))
-    solver = _solver(ctx, top.table("solver", {}))
+    solver = _solver(ctx, top.table("solver", {}), model.turbulence)
     output = _output(ctx, top.table("output", {}), boundaries)
     probes = _probes(ctx, top.table("probes", {}))
+    mean_flow = _mean_flow(ctx, top.table("mean_flow", {}), mesh)
+    derived = _derived(ctx, top.table("derived", {}), probes, model)
+    monitor = _monitor(ctx, top.table("monitor", {}))
     return S.Case(
         source=src,
         title=title,
@@ -396,7 +440,10 @@ def case_from_dict(data: Mapping[str, Any], source: str | Path | None = None) ->
         solver=solver,
         output=output,
         probes=probes,
+        mean_flow=mean_flow,
         raw=S.copy_data(data),
+        derived=derived,
+        monitor=monitor,
         constants=dict(ctx.constants),
     )
 
@@ -412,6 +459,10 @@ def _initial(ctx: _Ctx, data: Any) -> S.InitialState:
         velocity=t.vector("velocity", (0.0, 0.0)),
         pressure=t.number("pressure", 0.0),
         nu_tilde_ratio=t.number("nu_tilde_ratio", 3.0, NON_NEGATIVE, "the initial ratio nu_tilde / nu"),
+        turbulence_intensity=t.number("turbulence_intensity", S.DEFAULT_TURBULENCE_INTENSITY, POSITIVE,
+                                      "the initial sqrt(2k/3) / |u| (k-omega SST)"),
+        eddy_viscosity_ratio=t.number("eddy_viscosity_ratio", S.DEFAULT_EDDY_VISCOSITY_RATIO, POSITIVE,
+                                      "the initial nu_t / nu (k-omega SST)"),
         from_result=from_result,
     )
 
@@ -444,12 +495,13 @@ def _mesh(ctx: _Ctx, data: Any) -> S.MeshSettings:
         raise ctx.error(("mesh",), 'needs file = "path/to/mesh.msh" (relative to the case file) '
                         'or generator = "<name of a function in fvrans.mesh.generate>"')
     renumber = t.boolean("renumber", False)
+    pairs = _periodic_pairs(t)
     if t.has("file"):
         if t.has("parameters"):
             raise t.fail("parameters", "only used with mesh.generator; remove it (or use a generator "
                          "instead of mesh.file)")
         return S.MeshSettings(file=_check_path(ctx, ("mesh", "file"), t.data["file"], "mesh file"),
-                              renumber=renumber, **_edge_names(t))
+                              renumber=renumber, periodic_pairs=pairs, **_edge_names(t))
     for k in ("edge_tags", "edge_tag_array", "edge_boxes", "unnamed_edges"):
         if t.has(k):
             raise t.fail(k, "only used with mesh.file (a generated mesh names its patches); remove it")
@@ -461,7 +513,46 @@ def _mesh(ctx: _Ctx, data: Any) -> S.MeshSettings:
     for k in params:
         if not isinstance(k, str):
             raise t.fail("parameters", f"keys must be strings, got {describe(k)}")
-    return S.MeshSettings(generator=gen, parameters=S.copy_data(params), renumber=renumber)
+    return S.MeshSettings(generator=gen, parameters=S.copy_data(params), renumber=renumber, periodic_pairs=pairs)
+
+
+def _periodic_pairs(t: _Table) -> tuple[tuple[str, str], ...]:
+    v = t._get("periodic_pairs", [], "")
+    if isinstance(v, np.ndarray):
+        v = v.tolist()
+    need = ('must be a list of patch-name pairs, e.g. periodic_pairs = [["left", "right"]] (the second patch '
+            "is the first moved by a translation)")
+    if not isinstance(v, (list, tuple)):
+        raise t.fail("periodic_pairs", f"{need}, got {describe(v)}")
+    out: list[tuple[str, str]] = []
+    seen: list[str] = []
+    for i, pair in enumerate(v):
+        if (not isinstance(pair, (list, tuple)) or len(pair) != 2
+                or not all(isinstance(n, str) and n for n in pair)):
+            raise t.fail("periodic_pairs", f"{need}; item {i + 1} is {describe(pair)}")
+        if pair[0] == pair[1] or pair[0] in seen or pair[1] in seen:
+            raise t.fail("periodic_pairs", f"item {i + 1} {list(pair)}: each patch may appear in one pair only, "
+                         "and a pair joins two different patches")
+        seen += list(pair)
+        out.append((pair[0], pair[1]))
+    return tuple(out)
+
+
+def _mean_flow(ctx: _Ctx, data: Any, mesh: S.MeshSettings) -> S.MeanFlow:
+    t = _Table(ctx, ("mean_flow",), data, TABLE_KEYS["mean_flow"], "[mean_flow]")
+    if not data:
+        return S.MeanFlow()
+    if not mesh.periodic_pairs:
+        raise ctx.error(("mean_flow",), "drives the flow through periodic pairs; add mesh.periodic_pairs "
+                        '(e.g. periodic_pairs = [["inlet", "outlet"]]) or remove [mean_flow]')
+    if t.has("pressure_gradient") and t.has("bulk_velocity"):
+        raise ctx.error(("mean_flow",), "give either pressure_gradient or bulk_velocity, not both; remove one")
+    if t.has("pressure_gradient"):
+        return S.MeanFlow(pressure_gradient=t.vector("pressure_gradient"))
+    bulk = t.vector("bulk_velocity")
+    if bulk == (0.0, 0.0):
+        raise t.fail("bulk_velocity", "must not be zero (it sets the flow direction); give e.g. [1.0, 0.0]")
+    return S.MeanFlow(bulk_velocity=bulk)
 
 
 def _edge_names(t: _Table) -> dict[str, Any]:
@@ -549,8 +640,19 @@ def _boundary(ctx: _Ctx, name: str, data: Any) -> S.BoundarySpec:
             velocity=t.vector("velocity", hint="add velocity = [u, v], the free-stream velocity"),
             pressure=t.number_or_formula("pressure", 0.0),
             nu_tilde_ratio=t.number_or_formula("nu_tilde_ratio", 3.0, NON_NEGATIVE, "the free-stream nu_tilde / nu"),
+            **_sst_inflow(t),
         )
     return _inlet(ctx, t)
+
+
+def _sst_inflow(t: _Table) -> dict[str, Any]:
+    """Inflow keys of the k-omega SST model (defaults when absent; numbers or formulas)."""
+    return {
+        "turbulence_intensity": t.number_or_formula("turbulence_intensity", S.DEFAULT_TURBULENCE_INTENSITY,
+                                                    NON_NEGATIVE, "the inflow sqrt(2k/3) / |u| (k-omega SST)"),
+        "eddy_viscosity_ratio": t.number_or_formula("eddy_viscosity_ratio", S.DEFAULT_EDDY_VISCOSITY_RATIO, POSITIVE,
+                                                    "the inflow nu_t / nu (k-omega SST)"),
+    }
 
 
 def _inlet(ctx: _Ctx, t: _Table) -> S.BoundarySpec:
@@ -574,8 +676,10 @@ def _inlet(ctx: _Ctx, t: _Table) -> S.BoundarySpec:
         else:
             velocity = t.vector_or_formula("velocity")
         ratio = t.number_or_formula("nu_tilde_ratio", 3.0, NON_NEGATIVE, "the inflow nu_tilde / nu")
-        return S.BoundarySpec("inflow-velocity", velocity=velocity, nu_tilde_ratio=ratio)
-    profile = _check_path(ctx, t.path + ("profile",), t.data["profile"], "inlet profile file")
+        return S.BoundarySpec("inflow-velocity", velocity=velocity, nu_tilde_ratio=ratio, **_sst_inflow(t))
+    from fvrans.case.profile import MAX_PROFILE_BYTES
+
+    profile = _check_path(ctx, t.path + ("profile",), t.data["profile"], "inlet profile file", MAX_PROFILE_BYTES)
     given = t.table("profile_columns", {})
     _Table(ctx, t.path + ("profile_columns",), given, S.PROFILE_COLUMN_KEYS, "profile_columns")
     columns = resolve_profile(profile, given, lambda key, m: ctx.error(t.path + key, m),
@@ -587,10 +691,11 @@ def _inlet(ctx: _Ctx, t: _Table) -> S.BoundarySpec:
         nut = None
     else:
         nut = t.number_or_formula("nu_tilde_ratio", 3.0, NON_NEGATIVE, "the inflow nu_tilde / nu")
-    return S.BoundarySpec("inflow-velocity", profile=profile, profile_columns=columns, nu_tilde_ratio=nut)
+    return S.BoundarySpec("inflow-velocity", profile=profile, profile_columns=columns, nu_tilde_ratio=nut,
+                          **_sst_inflow(t))
 
 
-def _solver(ctx: _Ctx, data: Any) -> S.SolverSettings:
+def _solver(ctx: _Ctx, data: Any, turbulence: str = "none") -> S.SolverSettings:
     t = _Table(ctx, ("solver",), data, TABLE_KEYS["solver"], "[solver]")
     coupling = t.choice("coupling", S.COUPLINGS, "simplec")
     return S.SolverSettings(
@@ -613,7 +718,8 @@ def _solver(ctx: _Ctx, data: Any) -> S.SolverSettings:
                                           "Krylov iterations per momentum solve"),
         momentum_sweeps=t.integer("momentum_sweeps", 5, AT_LEAST_ONE, "sweeps per solve"),
         turbulence_solver=t.choice("turbulence_solver", S.TURBULENCE_SOLVERS, "amg"),
-        turbulence_tolerance=t.number("turbulence_tolerance", 0.01, OPEN_UNIT, "a relative tolerance"),
+        turbulence_tolerance=t.number("turbulence_tolerance", S.DEFAULT_TURBULENCE_TOLERANCE.get(turbulence, 0.01),
+                                      OPEN_UNIT, "a relative tolerance"),
         turbulence_max_iterations=t.integer("turbulence_max_iterations", 20, AT_LEAST_ONE,
                                             "Krylov iterations or sweeps per turbulence solve"),
         amg_rebuild_every=t.integer("amg_rebuild_every", 20, AT_LEAST_ONE, "outer iterations"),
@@ -648,7 +754,7 @@ def _output(ctx: _Ctx, data: Any, boundaries: Mapping[str, S.BoundarySpec]) -> S
         raise t.fail("reference_velocity", f'must be a number > 0 (the velocity U in 1/2 rho U^2) or "{S.INFLOW}" '
                      f"(the speed of the case's inflow), got {describe(u_ref)}")
     if u_ref != S.INFLOW:
-        u_ref = t.number("reference_velocity", rule=POSITIVE, meaning="the velocity U in 1/2 rho U^2")
+        u_ref = t.number("reference_velocity", rule=PHYSICAL, meaning="the velocity U in 1/2 rho U^2")
     if t.has("flow_angle") and t.has("flow_direction"):
         raise t.fail("flow_angle", "give flow_angle (degrees from the x axis) or flow_direction = [x, y], not both")
     direction = None
@@ -660,10 +766,10 @@ def _output(ctx: _Ctx, data: Any, boundaries: Mapping[str, S.BoundarySpec]) -> S
         wall_patches=tuple(names or walls),
         reference_velocity=None if u_ref == S.INFLOW else u_ref,
         reference_pressure=t.number("reference_pressure", 0.0),
-        reference_length=t.number("reference_length", 1.0, POSITIVE, "the length of force coefficients"),
+        reference_length=t.number("reference_length", 1.0, PHYSICAL, "the length of force coefficients"),
         write_fields=t.boolean("write_fields", True),
         map_window=_window(t),
-        reference_density=t.number("reference_density", rule=POSITIVE, meaning="the density in 1/2 rho U^2")
+        reference_density=t.number("reference_density", rule=PHYSICAL, meaning="the density in 1/2 rho U^2")
         if t.has("reference_density") else None,
         flow_direction=direction,
         flow_angle=t.number("flow_angle", meaning="degrees") if t.has("flow_angle") else None,
@@ -715,27 +821,102 @@ def _window(t: _Table) -> tuple[float, float, float, float] | None:
     return (w[0], w[1], w[2], w[3])
 
 
-def _probes(ctx: _Ctx, data: Any) -> dict[str, S.ProbeLine]:
+def _probes(ctx: _Ctx, data: Any) -> dict[str, S.Probe]:
     if not isinstance(data, Mapping):
-        raise ctx.error(("probes",), f"must hold one table per probe, [probes.<name>] with start = [x, y] and "
-                        f"end = [x, y], got {describe(data)}")
-    out: dict[str, S.ProbeLine] = {}
+        raise ctx.error(("probes",), f"must hold one table per probe, [probes.<name>] with at = [x, y] (a point) or "
+                        f"start = [x, y] and end = [x, y] (a line), got {describe(data)}")
+    out: dict[str, S.Probe] = {}
     for name, spec in data.items():
         path = ("probes", str(name))
         if not isinstance(name, str) or not _PROBE_NAME.match(name):
             raise ctx.error(path, "a probe name becomes a file name (profiles/<name>.csv): use letters, digits, "
                             "'_', '-' and '.', e.g. [probes.wake_x2]")
         if not isinstance(spec, Mapping):
-            raise ctx.error(path, f"must be a table [{format_key(path)}] with start = [x, y], end = [x, y] and "
-                            f"optionally points = 101, got {describe(spec)}")
+            raise ctx.error(path, f"must be a table [{format_key(path)}] with at = [x, y] (a point probe) or "
+                            f"start = [x, y], end = [x, y] and optionally points = 101 (a line probe), "
+                            f"got {describe(spec)}")
+        if "at" in spec:
+            t = _Table(ctx, path, spec, ("at",), "a point probe (at = [x, y]; a line probe has start, end, points "
+                       "instead)")
+            out[name] = S.ProbePoint(at=t.vector("at"))
+            continue
         t = _Table(ctx, path, spec, PROBE_KEYS, "a line probe")
-        start = t.vector("start", hint="add start = [x, y], the first point of the line")
+        start = t.vector("start", hint="add start = [x, y], the first point of the line (or at = [x, y] for a "
+                         "point probe)")
         end = t.vector("end", hint="add end = [x, y], the last point of the line")
         if start == end:
-            raise t.fail("end", f"equals start {list(start)}; a line probe needs two different points")
-        points = t.integer("points", 101, (lambda v: v >= 2, ">= 2"), "the number of sample points")
+            raise t.fail("end", f"equals start {list(start)}; a line probe needs two different points "
+                         "(a point probe takes at = [x, y])")
+        points = t.integer("points", 101, (lambda v: 2 <= v <= MAX_PROBE_POINTS, f">= 2 and <= {MAX_PROBE_POINTS}"),
+                           "the number of sample points")
         out[name] = S.ProbeLine(start=start, end=end, points=points)
     return out
+
+
+def _derived(ctx: _Ctx, data: Any, probes: Mapping[str, S.Probe],
+             model: S.ModelSettings) -> dict[str, S.DerivedScalar]:
+    if not isinstance(data, Mapping):
+        raise ctx.error(("derived",), f"must hold one table per scalar, [derived.<name>] with kind = one of "
+                        f"{_quoted_list(S.DERIVED_KINDS)}, got {describe(data)}")
+    quantities = _probe_quantities(model)
+    points = [n for n, p in probes.items() if isinstance(p, S.ProbePoint)]
+    lines = [n for n, p in probes.items() if isinstance(p, S.ProbeLine)]
+    out: dict[str, S.DerivedScalar] = {}
+    for name, spec in data.items():
+        path = ("derived", str(name))
+        if not isinstance(name, str) or not _PROBE_NAME.match(name):
+            raise ctx.error(path, "use letters, digits, '_', '-' and '.' in the name, e.g. [derived.dp_front_back]")
+        if name in probes:
+            raise ctx.error(path, f"a probe is also called {name!r}; give the derived scalar another name")
+        if not isinstance(spec, Mapping):
+            raise ctx.error(path, f"must be a table [{format_key(path)}] with kind = one of "
+                            f"{_quoted_list(S.DERIVED_KINDS)}, got {describe(spec)}")
+        if "kind" not in spec:
+            raise ctx.error(path + ("kind",),
+                            f"missing required key; add kind = one of {_quoted_list(S.DERIVED_KINDS)}")
+        kind = _Table(ctx, path, {"kind": spec["kind"]}, ("kind",), "").choice("kind", S.DERIVED_KINDS)
+        if kind == "difference":
+            t = _Table(ctx, path, spec, ("kind", "probes", "quantity"), "a difference")
+            given = t._get("probes", _REQUIRED, 'add probes = ["a", "b"], two point probes: the value at a minus at b')
+            if isinstance(given, np.ndarray):
+                given = given.tolist()
+            if not (isinstance(given, (list, tuple)) and len(given) == 2 and all(isinstance(g, str) for g in given)):
+                raise t.fail("probes", f"must be a list of two point-probe names [\"a\", \"b\"], got {describe(given)}")
+            for g in given:
+                if g not in points:
+                    raise t.fail("probes", f"{g!r} is not a point probe of this case{did_you_mean(g, points)}; "
+                                 f"point probes ([probes.<name>] with at = [x, y]): {_quoted_list(points) or 'none'}")
+            quantity = t.choice("quantity", quantities, "p")
+            out[name] = S.DerivedScalar(kind, (given[0], given[1]), quantity)
+        else:
+            t = _Table(ctx, path, spec, ("kind", "probe", "quantity"), "a recirculation length")
+            line = t.string("probe", hint='add probe = "<name of a line probe>" along which the flow reverses')
+            if line not in lines:
+                raise t.fail("probe", f"{line!r} is not a line probe of this case{did_you_mean(line, lines)}; "
+                             f"line probes ([probes.<name>] with start and end): {_quoted_list(lines) or 'none'}")
+            out[name] = S.DerivedScalar(kind, (line,), t.choice("quantity", quantities, "u"))
+    return out
+
+
+def _probe_quantities(model: S.ModelSettings) -> tuple[str, ...]:
+    """u, v, p and, for a turbulence model, its transported variables and the eddy-viscosity ratio."""
+    if model.turbulence == "none":
+        return PROBE_QUANTITIES
+    from fvrans.models import EDDY_VISCOSITY_RATIO, model_class
+
+    return (*PROBE_QUANTITIES, *model_class(model.turbulence).variables, EDDY_VISCOSITY_RATIO)
+
+
+def _monitor(ctx: _Ctx, data: Any) -> S.MonitorSettings:
+    t = _Table(ctx, ("monitor",), data, MONITOR_KEYS, "[monitor]")
+    d = S.MonitorSettings()
+    return S.MonitorSettings(
+        settle=t.boolean("settle", d.settle),
+        iteration_error=t.number("iteration_error", d.iteration_error, OPEN_UNIT,
+                                 "the estimated iteration error allowed, relative to each quantity's scale"),
+        window=t.integer("window", d.window, (lambda v: v >= 3, ">= 3"), "iterations"),
+        show=t.string("show", d.show),
+    )
 
 
 # ------------------------------------------------------------------------------------------

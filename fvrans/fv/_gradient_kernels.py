@@ -158,9 +158,10 @@ def _limit_one(d1, d2, kind, eps2):
 
 
 @njit(cache=True)
-def slope_limiter(owner, neighbour, nfi, face_centre, cell_centre, phi, phi_b, grad, kind, eps2, psi):
+def slope_limiter(owner, neighbour, nfi, face_centre, cell_centre, shift, phi, phi_b, grad, kind, eps2, psi):
     """Per-cell limiter psi in [0, 1] so that phi_c + psi g_c . (x_f - x_c) stays within the
-    min/max of phi over the cell and its face neighbours (boundary values included).
+    min/max of phi over the cell and its face neighbours (boundary values included); a neighbour
+    sees the face at x_f - ``shift[f]`` (its side of a periodic face).
     kind 0 = Barth-Jespersen, 1 = Venkatakrishnan with eps2[c] = (K h_c)^3."""
     nc = phi.shape[0]
     nf = owner.shape[0]
@@ -192,14 +193,18 @@ def slope_limiter(owner, neighbour, nfi, face_centre, cell_centre, phi, phi_b, g
             pmin[o] = pb
     for f in range(nf):
         for side in range(2):
+            s0 = 0.0
+            s1 = 0.0
             if side == 0:
                 c = owner[f]
             elif f < nfi:
                 c = neighbour[f]
+                s0 = shift[f, 0]
+                s1 = shift[f, 1]
             else:
                 break
-            d2 = grad[c, 0] * (face_centre[f, 0] - cell_centre[c, 0]) + grad[c, 1] * (
-                face_centre[f, 1] - cell_centre[c, 1]
+            d2 = grad[c, 0] * (face_centre[f, 0] - cell_centre[c, 0] - s0) + grad[c, 1] * (
+                face_centre[f, 1] - cell_centre[c, 1] - s1
             )
             if d2 > 0.0:
                 d1 = pmax[c] - phi[c]

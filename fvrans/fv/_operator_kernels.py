@@ -67,12 +67,13 @@ def diffusion(owner, neighbour, nfi, sf, delta, weight, gamma_f, bkind, bvalue, 
 
 
 @njit(cache=True)
-def convection(owner, neighbour, nfi, flux, phi_b, face_centre, cell_centre, grad, high_order,
+def convection(owner, neighbour, nfi, flux, phi_b, face_centre, cell_centre, shift, grad, high_order,
                diag, off_owner, off_neighbour, source):
     """div(F phi) with face mass fluxes F (> 0 out of the owner). Implicit first-order upwind;
     if ``high_order``, the linear-upwind value phi_U + g_U . (x_f - x_U) by deferred correction
-    (the difference to upwind goes to the source). Boundary: inflow (F < 0) takes phi_b, outflow
-    the upwind (owner) value, reconstructed with g_O if ``high_order``."""
+    (the difference to upwind goes to the source; the neighbour at x_N + ``shift[f]``, its image
+    across a periodic face). Boundary: inflow (F < 0) takes phi_b, outflow the upwind (owner)
+    value, reconstructed with g_O if ``high_order``."""
     nf = owner.shape[0]
     for f in range(nfi):
         o = owner[f]
@@ -90,8 +91,8 @@ def convection(owner, neighbour, nfi, flux, phi_b, face_centre, cell_centre, gra
             off_owner[f] += F
             diag[n] -= F
             if high_order:
-                q = F * (grad[n, 0] * (face_centre[f, 0] - cell_centre[n, 0])
-                         + grad[n, 1] * (face_centre[f, 1] - cell_centre[n, 1]))
+                q = F * (grad[n, 0] * (face_centre[f, 0] - cell_centre[n, 0] - shift[f, 0])
+                         + grad[n, 1] * (face_centre[f, 1] - cell_centre[n, 1] - shift[f, 1]))
                 source[o] -= q
                 source[n] += q
     for f in range(nfi, nf):

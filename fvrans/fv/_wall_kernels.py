@@ -5,6 +5,9 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
+#: singular values of the scaled fit below this fraction of the largest count as zero
+RANK_TOLERANCE = 1e-7
+
 
 @njit(cache=True)
 def wall_coordinates(faces, nfi, ptr, idx, cell_centre, face_centre, chain_start, chain_stop, chain, s_face,
@@ -57,6 +60,17 @@ def wall_coordinates(faces, nfi, ptr, idx, cell_centre, face_centre, chain_start
 
 
 @njit(cache=True)
+def _distinct(values, tol):
+    """The number of distinct values (closer than ``tol`` counts as one)."""
+    v = np.sort(values)
+    n = 1 if len(v) else 0
+    for i in range(1, len(v)):
+        if v[i] - v[i - 1] > tol:
+            n += 1
+    return n
+
+
+@njit(cache=True)
 def wall_fit_coefficients(ptr, idx, coords, moments, tangent, normal, coef, order):
     """Coefficients of the gradient at each face centre from a weighted least-squares quadratic
     through the face value in wall coordinates (s, eta) = ``coords[m, :2]`` (see
@@ -72,23 +86,29 @@ def wall_fit_coefficients(ptr, idx, coords, moments, tangent, normal, coef, orde
     coordinates are Cartesian and the fit is exact for quadratic fields. At the face centre the
     wall coordinates are the face's (``tangent``, ``normal`` into the fluid), so on return
     coef[m, :2] gives grad phi = sum_m coef[m, :2] (phi_m - phi_f). ``order[k]``: 2 for the
-    quadratic fit, 1 where the stencil cannot fix a quadratic (fewer than 6 data or a singular
-    fit) and a linear one was taken, 0 where even that is singular (zero coefficients).
+    full quadratic, 1 where the stencil fixes only part of it (terms whose positions the data do
+    not span are left out, and singular values below ``RANK_TOLERANCE`` of the largest: the
+    minimum-norm fit), 0 where it fixes no normal derivative.
     """
     nq = ptr.shape[0] - 1
-    a = np.empty(5)
     for k in range(nq):
         lt = 0.0
         ln = 0.0
         for q in range(ptr[k], ptr[k + 1]):
             lt = max(lt, abs(coords[q, 0]))
             ln = max(ln, abs(coords[q, 1]))
-        if lt == 0.0 or ln == 0.0:
-            lt = max(lt, ln, 1e-300)
-            ln = lt
+        # an extent at round-off level next to the other one (a single column of cells, all at s = 0)
+        # is no extent: scaled by the other one the positions are zero and not counted as distinct
+        size = max(lt, ln, 1e-300)
+        if lt < 1e-8 * size:
+            lt = size
+        if ln < 1e-8 * size:
+            ln = size
         npts = ptr[k + 1] - ptr[k]
-        m5 = np.zeros((5, 5))
+        A = np.zeros((max(npts, 5), 5))  # rows sqrt(w) a; zero rows pad a short stencil
+        sw = np.zeros(max(npts, 5))
         for q in range(ptr[k], ptr[k + 1]):
+            i = q - ptr[k]
             j = idx[q]
             s = coords[q, 0] / lt
             eta = coords[q, 1] / ln
@@ -106,39 +126,51 @@ def wall_fit_coefficients(ptr, idx, coords, moments, tangent, normal, coef, orde
                 iss = (t0 * t0 * ixx + 2.0 * t0 * t1 * ixy + t1 * t1 * iyy) / (lt * lt)
                 ise = (t0 * n0 * ixx + (t0 * n1 + t1 * n0) * ixy + t1 * n1 * iyy) / (lt * ln)
                 iee = (n0 * n0 * ixx + 2.0 * n0 * n1 * ixy + n1 * n1 * iyy) / (ln * ln)
-            w = 1.0 / (s * s + eta * eta)
-            a[0] = s
-            a[1] = eta
-            a[2] = 0.5 * (s * s + iss)
-            a[3] = s * eta + ise
-            a[4] = 0.5 * (eta * eta + iee)
-            for p in range(5):
-                coef[q, p] = w * a[p]
-                for r in range(5):
-                    m5[p, r] += w * a[p] * a[r]
-        nu = 5
-        ok = False
-        if npts >= 6:
-            ev = np.linalg.eigvalsh(m5)
-            ok = ev[0] > 1e-9 * ev[4]
-        if not ok:
-            nu = 2
-            ev2 = np.linalg.eigvalsh(m5[:2, :2])
-            ok = npts >= 2 and ev2[0] > 1e-12 * ev2[1]
-        if not ok:
-            order[k] = 0
-            for q in range(ptr[k], ptr[k + 1]):
-                coef[q, 0] = 0.0
-                coef[q, 1] = 0.0
-            continue
-        order[k] = 2 if nu == 5 else 1
-        minv = np.linalg.inv(m5[:nu, :nu])
+            sw[i] = 1.0 / np.sqrt(s * s + eta * eta)
+            A[i, 0] = sw[i] * s
+            A[i, 1] = sw[i] * eta
+            A[i, 2] = sw[i] * 0.5 * (s * s + iss)
+            A[i, 3] = sw[i] * (s * eta + ise)
+            A[i, 4] = sw[i] * 0.5 * (eta * eta + iee)
+        # the terms the positions of the data can fix: along the wall a slope needs two distinct
+        # positions s and a curvature three (over one or two columns of cells, as in a channel a
+        # cell or two long between periodic ends, the cells' moments alone would make H_ss a free
+        # constant that ignores the wall value); likewise across the wall
+        ns = _distinct(coords[ptr[k] : ptr[k + 1], 0], 1e-9 * size)
+        ne = _distinct(coords[ptr[k] : ptr[k + 1], 1], 1e-9 * size)
+        use = np.array([ns >= 2, ne >= 2, ns >= 3, ns >= 2 and ne >= 2, ne >= 3])
+        cols = np.nonzero(use)[0]
+        order[k] = 0
         for q in range(ptr[k], ptr[k + 1]):
+            coef[q, 0] = 0.0
+            coef[q, 1] = 0.0
+        if not use[1]:
+            continue
+        # least squares by the singular value decomposition; directions still left undetermined
+        # are dropped (the minimum-norm solution) instead of failing the fit
+        U, sv, Vt = np.linalg.svd(A[:, cols], full_matrices=False)
+        cut = RANK_TOLERANCE * sv[0]
+        rank = 0
+        for r in range(len(cols)):
+            if sv[r] > cut:
+                rank += 1
+        order[k] = 2 if rank == 5 else 1
+        ig = -1
+        in_ = -1
+        for c in range(len(cols)):
+            if cols[c] == 0:
+                ig = c
+            if cols[c] == 1:
+                in_ = c
+        for q in range(ptr[k], ptr[k + 1]):
+            i = q - ptr[k]
             gs = 0.0
             gn = 0.0
-            for r in range(nu):
-                gs += minv[0, r] * coef[q, r]
-                gn += minv[1, r] * coef[q, r]
+            for r in range(rank):
+                c = U[i, r] / sv[r] * sw[i]
+                if ig >= 0:
+                    gs += Vt[r, ig] * c
+                gn += Vt[r, in_] * c
             gs /= lt
             gn /= ln
             coef[q, 0] = gs * tangent[k, 0] + gn * normal[k, 0]

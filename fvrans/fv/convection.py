@@ -47,6 +47,6 @@ def convection_coefficients(
     g = np.ascontiguousarray(grad, dtype=np.float64) if high else np.zeros((1, 2))
     _k.convection(
         mesh.face_owner, mesh.face_neighbour, mesh.n_internal_faces, flux, phi_b, geom.face_centre,
-        geom.cell_centre, g, high, out.diag, out.off_owner, out.off_neighbour, out.source,
+        geom.cell_centre, geom.face_shift, g, high, out.diag, out.off_owner, out.off_neighbour, out.source,
     )
     return out

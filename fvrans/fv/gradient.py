@@ -219,7 +219,7 @@ def limit_gradient(
     psi = np.empty(mesh.n_cells)
     _k.slope_limiter(
         mesh.face_owner, mesh.face_neighbour, mesh.n_internal_faces, geom.face_centre, geom.cell_centre,
-        phi, phi_b, grad, LIMITERS[limiter], eps2, psi,
+        geom.face_shift, phi, phi_b, grad, LIMITERS[limiter], eps2, psi,
     )
     return grad * psi[:, None], psi
 

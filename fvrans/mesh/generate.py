@@ -31,10 +31,12 @@ from fvrans.mesh.shapes import bump_channel, planar_diffuser
 __all__ = [
     "LEVELS",
     "annulus",
+    "estimate_cells",
     "backward_facing_step",
     "bump_channel",
     "cavity",
     "channel",
+    "curved_channel",
     "cylinder_channel",
     "cylinder_channel_grid",
     "flat_plate",
@@ -124,6 +126,55 @@ def channel(
         f"generated:channel({_fmt(length=float(length), height=float(height), nx=nx, ny=ny)}, grading_y={gy}"
     )
     return asm.to_mesh(src + (", triangles=True)" if triangles else ")"))
+
+
+def curved_channel(
+    radius: float,
+    width: float,
+    angle_deg: float,
+    n_theta: int,
+    n_r: int,
+    wall_spacing: float,
+    straight_length: float = 0.0,
+    n_straight: int = 0,
+) -> Mesh:
+    """A channel of ``width`` bent around the origin by ``angle_deg`` (counter-clockwise) with its
+    centreline at ``radius``, after an optional straight entry of ``straight_length``.
+
+    The straight part runs along +y from y = -straight_length to 0 between x = radius -+ width/2;
+    the bend follows at constant radius. Cells: n_r across (two-sided tanh clustering with
+    ``wall_spacing`` at both walls), n_straight along the entry and n_theta (uniform) along the bend.
+    Patches: "inlet", "outlet", "inner_wall" (convex), "outer_wall" (concave).
+
+    >>> m = curved_channel(5.0, 1.0, 90.0, 8, 4, 0.1, straight_length=2.0, n_straight=2)
+    >>> m.n_cells, m.patch_names
+    (40, ['inlet', 'outlet', 'inner_wall', 'outer_wall'])
+    """
+    if not (width > 0 and radius > width / 2 and 0 < angle_deg <= 360):
+        raise MeshError(f"curved_channel: need width > 0, radius > width / 2 and 0 < angle_deg <= 360, got "
+                        f"radius={radius!r}, width={width!r}, angle_deg={angle_deg!r}")
+    if (straight_length > 0) != (n_straight > 0):
+        raise MeshError("curved_channel: give straight_length > 0 and n_straight >= 1 together (or neither)")
+    r = tanh_points(n_r, radius - width / 2, radius + width / 2, float(wall_spacing), float(wall_spacing))
+    theta = np.radians(uniform_points(n_theta, 0.0, float(angle_deg)))
+    asm = BlockAssembly()
+    bend = np.stack([r[:, None] * np.cos(theta)[None, :], r[:, None] * np.sin(theta)[None, :]], axis=2)
+    glue: tuple[tuple[str, str, str], ...] = ()
+    if n_straight:
+        asm.add_block("straight", rectangle_points(r, uniform_points(n_straight, -float(straight_length), 0.0)))
+        glue = (("bottom", "straight", "top"),)
+    asm.add_block("bend", bend, same=glue)
+    first = "straight" if n_straight else "bend"
+    asm.add_patch("inlet", first, "bottom")
+    asm.add_patch("outlet", "bend", "top")
+    for patch, side in (("inner_wall", "left"), ("outer_wall", "right")):
+        if n_straight:
+            asm.add_patch(patch, "straight", side)
+        asm.add_patch(patch, "bend", side)
+    src = (f"generated:curved_channel({_fmt(radius=float(radius), width=float(width), angle_deg=float(angle_deg))}, "
+           f"n_theta={n_theta}, n_r={n_r}, wall_spacing={float(wall_spacing):g}, "
+           f"straight_length={float(straight_length):g}, n_straight={n_straight})")
+    return asm.to_mesh(src)
 
 
 def cavity(n: int, size: float = 1.0, triangles: bool = False, wall_spacing: float | None = None) -> Mesh:
@@ -549,3 +600,59 @@ def step_mixed(
         + ")"
     )
     return asm.to_mesh(src)
+
+
+# ------------------------------------------------------------------------------------------
+# sizes before building
+# ------------------------------------------------------------------------------------------
+def _tri(p: dict) -> float:
+    return 2.0 if p.get("triangles") else 1.0
+
+
+def _step_mixed_cells(p: dict) -> float:
+    """Layer quads along the walls plus core triangles of size ``core_size`` (an over-estimate of
+    about 1.5 at the defaults)."""
+    length = float(p["x_out"]) - float(p["x_in"])
+    core = float(p["core_size"])
+    along = int(p["nx_up"]) + int(p["nx_down"]) + length / core
+    return int(p["n_layers"]) * (along + 40) + 4.0 * length * 3.0 / core**2 + 20.0 * along
+
+
+#: the cell count of each generator from its (bound) keyword arguments, before anything is built
+_CELLS = {
+    "channel": lambda p: float(p["nx"]) * float(p["ny"]) * _tri(p),
+    "cavity": lambda p: float(p["n"]) ** 2 * _tri(p),
+    "flat_plate": lambda p: (float(p["nx_plate"]) + float(p["nx_ahead"])) * float(p["ny"]) * _tri(p),
+    "flat_plate_family": lambda p: 272 * 192 * _tri(p),
+    "backward_facing_step": lambda p: (float(p["nx_up"]) * float(p["ny_upper"])
+                                       + float(p["nx_down"]) * (float(p["ny_upper"]) + float(p["ny_lower"]))) * _tri(p),
+    "step_family": lambda p: 2 * 110_592 * _tri(p),
+    "step_mixed": _step_mixed_cells,
+    "bump_channel": lambda p: (float(p["nx_up"]) + float(p["nx_bump"]) + float(p["nx_down"])) * float(p["ny"])
+    * _tri(p),
+    "planar_diffuser": lambda p: (float(p["nx_in"]) + float(p["nx_div"]) + float(p["nx_out"])) * float(p["ny"])
+    * _tri(p),
+}
+
+
+def estimate_cells(name: str, **params) -> float | None:
+    """About how many cells generator ``name`` would build with ``params`` (its defaults filled
+    in), or None when unknown; cheap, so that an impossible size is refused before it is built.
+
+    >>> estimate_cells("cavity", n=1000), estimate_cells("channel", length=1, height=1, nx=10, ny=4, triangles=True)
+    (1000000.0, 80.0)
+    """
+    func, rule = globals().get(name), _CELLS.get(name)
+    if func is None or rule is None:
+        return None
+    import inspect
+
+    try:
+        bound = inspect.signature(func).bind(**params)
+    except TypeError:
+        return None
+    bound.apply_defaults()
+    try:
+        return float(rule(dict(bound.arguments)))
+    except (TypeError, ValueError, KeyError, OverflowError, ZeroDivisionError):
+        return None

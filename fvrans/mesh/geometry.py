@@ -2,7 +2,8 @@
 
 Conventions (face f with owner O, neighbour N, outward unit normal n of O, length |S_f|):
 
-* ``face_delta``: d = x_N - x_O on internal faces, x_f - x_O on boundary faces.
+* ``face_delta``: d = x_N - x_O on internal faces, x_f - x_O on boundary faces; on faces joining a
+  periodic pair x_N is the neighbour's image beside the owner, x_N + ``face_shift``.
 * ``face_weight``: w such that phi at the point where the segment O-N crosses the face line,
   x_ip = x_O + t d with t = ((x_f - x_O) . n) / (d . n), is w phi_O + (1 - w) phi_N, w = 1 - t.
   Boundary faces have w = 1.
@@ -35,6 +36,7 @@ class Geometry:
     face_nonorth_deg: np.ndarray  # (nf,) angle between d and n in degrees
     face_skewness: np.ndarray  # (nf,) |x_f - x_ip| / |d|
     cell_aspect_ratio: np.ndarray  # (nc,) see cell_aspect_ratios()
+    face_shift: np.ndarray  # (nf, 2) moves the neighbour beside the owner (periodic faces; else 0)
 
     @property
     def n_cells(self) -> int:
@@ -128,8 +130,9 @@ def compute_geometry(mesh: Mesh) -> Geometry:
     nb = mesh.face_neighbour
     ni = mesh.n_internal_faces
     xo = centre[own]
+    shift = mesh.face_shift()
     xn = fc.copy()
-    xn[:ni] = centre[nb[:ni]]
+    xn[:ni] = centre[nb[:ni]] + shift[:ni]
     d = xn - xo
     dn = np.einsum("ij,ij->i", d, normal)
     t = np.einsum("ij,ij->i", fc - xo, normal) / dn
@@ -157,4 +160,5 @@ def compute_geometry(mesh: Mesh) -> Geometry:
         face_nonorth_deg=c(nonorth),
         face_skewness=c(skewness),
         cell_aspect_ratio=c(cell_aspect_ratios(mesh, area)),
+        face_shift=c(shift),
     )

@@ -37,6 +37,7 @@ import meshio
 import numpy as np
 
 from fvrans.errors import MeshError
+from fvrans.files import input_file
 from fvrans.mesh.mesh import Mesh, build_mesh
 
 log = logging.getLogger(__name__)
@@ -79,14 +80,12 @@ def read_mesh(
     the patches of a file whose boundary lines carry no names (module docstring). Every problem is
     raised as :class:`MeshError` naming the file.
     """
-    p = Path(path)
+    p = input_file(path, "mesh file", MeshError)  # a regular file: no pipe, device, link loop
     src = str(p)
-    if not p.exists():
-        raise MeshError(f"{src}: file not found; check the path (working directory {Path.cwd()})")
-    if p.is_dir():
-        raise MeshError(f"{src}: is a directory, not a mesh file")
     if file_format is None and p.suffix.lower() == ".msh":
         file_format = "gmsh"  # meshio would try another format first and print its failure
+    if file_format in (None, "gmsh"):
+        check_gmsh41_node_count(p)  # meshio trusts the declared count (uninitialised memory beyond it)
     out = io.StringIO()
     try:
         # meshio prints read failures and may call sys.exit: keep both away from the caller
@@ -106,6 +105,64 @@ def read_mesh(
         ) from exc
     return from_meshio(mm, source=src, edge_tags=edge_tags, edge_tag_array=edge_tag_array, edge_boxes=edge_boxes,
                        unnamed_edges=unnamed_edges)
+
+
+def _token_count(data: bytes) -> int:
+    """Whitespace-separated tokens of ``data`` (counted without splitting: starts of non-blank runs)."""
+    a = np.frombuffer(data, dtype=np.uint8)
+    blank = (a == 32) | ((a >= 9) & (a <= 13))
+    return int(np.count_nonzero(~blank[1:] & blank[:-1])) + int(len(a) > 0 and not blank[0])
+
+
+def check_gmsh41_node_count(path: Path) -> None:
+    """Refuse a Gmsh 4.1 file whose ``$Nodes`` header declares another number of nodes than its
+    blocks hold (meshio allocates the declared number and leaves the rest uninitialised). ASCII:
+    the section holds 4 + 4 (blocks) + 4 (nodes) numbers; binary: its length follows from the
+    counts. Other formats and versions pass untouched."""
+    with open(path, "rb") as f:
+        head = f.read(64)
+        if not head.startswith(b"$MeshFormat"):
+            return
+        lines = head.split(b"\n")
+        fmt = lines[1].split() if len(lines) > 1 else []
+        if len(fmt) < 3 or not fmt[0].startswith(b"4.1"):
+            return
+        data = head + f.read()
+    src = str(path)
+    start = data.find(b"\n$Nodes")
+    if start < 0:
+        return
+    start += len(b"\n$Nodes")
+    start = data.index(b"\n", start) + 1
+    binary = fmt[1] == b"1"
+    if not binary:
+        end = data.find(b"$EndNodes", start)
+        if end < 0:
+            raise MeshError(f"{src}: the $Nodes section has no $EndNodes; the file is cut short — write it again")
+        section = data[start:end]
+        head_tokens = section.split(None, 4)[:4]
+        try:
+            n_blocks, n_nodes = int(head_tokens[0]), int(head_tokens[1])
+        except (ValueError, IndexError):
+            raise MeshError(f"{src}: the $Nodes section does not start with its counts") from None
+        held = (_token_count(section) - 4 - 4 * n_blocks) / 4
+    else:
+        size = int(fmt[2]) if fmt[2].isdigit() else 8
+        import struct
+
+        code = {4: "i", 8: "q"}.get(size)
+        if code is None or len(data) < start + 4 * size:
+            raise MeshError(f"{src}: the $Nodes section is cut short or has an unknown data size {size}")
+        n_blocks, n_nodes = struct.unpack_from(f"<2{code}", data, start)
+        if not (0 <= n_blocks <= len(data) and 0 <= n_nodes <= len(data)):
+            raise MeshError(f"{src}: the $Nodes section declares {n_nodes} nodes in {n_blocks} blocks, more than a "
+                            f"file of {len(data)} bytes can hold")
+        end = start + 4 * size + n_blocks * (12 + size) + n_nodes * (size + 24)
+        held = n_nodes if data[end:end + 12].lstrip().startswith(b"$EndNodes") else None
+    if held != n_nodes:
+        what = f"its blocks hold {held:g}" if held is not None else "the section's length does not match"
+        raise MeshError(f"{src}: the $Nodes section declares {n_nodes} nodes but {what}; the file is damaged or "
+                        "was edited by hand — write it again from the mesher")
 
 
 def unnamed_edge_rule(edge_boxes: Mapping[str, tuple[float, float, float, float]] | None = None,

@@ -18,6 +18,9 @@ from fvrans.errors import MeshError
 
 log = logging.getLogger(__name__)
 
+#: largest coordinate magnitude of a point used by a cell (beyond it areas overflow floats)
+MAX_COORDINATE = 1e30
+
 
 @dataclass(frozen=True)
 class Patch:
@@ -37,6 +40,24 @@ class Patch:
 
 
 @dataclass(frozen=True)
+class PeriodicPair:
+    """Two boundary patches joined into internal faces: patch ``second`` is patch ``first`` moved
+    by ``translation``. Internal faces ``start .. stop-1`` are the joined faces, stored as seen from
+    the cell on the ``first`` side (owner) with the neighbour on the ``second`` side, whose image
+    beside the owner lies at x_N - translation."""
+
+    first: str
+    second: str
+    translation: tuple[float, float]
+    start: int
+    stop: int
+
+    @property
+    def size(self) -> int:
+        return self.stop - self.start
+
+
+@dataclass(frozen=True)
 class Mesh:
     """Unstructured 2D polygon mesh with face topology and named boundary patches.
 
@@ -53,6 +74,8 @@ class Mesh:
     patches : named boundary patches, in face order.
     source : where the mesh came from (a file name or a description), used in messages.
     notes : what was repaired while building (re-oriented cells, merged points).
+    periodic : translational periodic pairs joined into internal faces
+        (:func:`fvrans.mesh.periodic.join_periodic`); empty for an ordinary mesh.
     """
 
     points: np.ndarray
@@ -65,13 +88,23 @@ class Mesh:
     patches: tuple[Patch, ...]
     source: str = "<in memory>"
     notes: tuple[str, ...] = field(default_factory=tuple)
+    periodic: tuple[PeriodicPair, ...] = field(default_factory=tuple)
 
     def __repr__(self) -> str:
+        joined = f", periodic {[(p.first, p.second) for p in self.periodic]}" if self.periodic else ""
         return (
             f"Mesh({self.source!r}: {self.n_cells} cells, {self.n_faces} faces "
             f"({self.n_internal_faces} internal), {self.n_points} points, "
-            f"patches {[(p.name, p.size) for p in self.patches]})"
+            f"patches {[(p.name, p.size) for p in self.patches]}{joined})"
         )
+
+    def face_shift(self) -> np.ndarray:
+        """(n_faces, 2): the vector that moves each face's neighbour beside its owner (minus the
+        translation of its periodic pair on joined faces, zero elsewhere)."""
+        shift = np.zeros((self.n_faces, 2))
+        for p in self.periodic:
+            shift[p.start : p.stop] = -np.asarray(p.translation, dtype=float)
+        return shift
 
     # -- sizes ---------------------------------------------------------------------------
     @property
@@ -149,9 +182,11 @@ class Mesh:
         order = np.asarray(order, dtype=np.int64)
         if sorted(order.tolist()) != list(range(self.n_cells)):
             raise MeshError(f"{self.source}: a cell permutation must contain each cell index once")
+        if self.periodic:
+            raise MeshError(f"{self.source}: renumber the cells before joining periodic patches")
         cells = [self.cell(c) for c in order]
         boundary = {p.name: self.face_points[p.start : p.stop] for p in self.patches}
-        return build_mesh(self.points, cells, boundary, source=self.source, quiet=True)
+        return build_mesh(self.points, cells, boundary, source=self.source, quiet=True, check_overlaps=False)
 
 
 # ----------------------------------------------------------------------------------------
@@ -204,12 +239,15 @@ def build_mesh(
     source: str = "<in memory>",
     quiet: bool = False,
     unnamed: Callable[[np.ndarray, np.ndarray], Mapping[str, np.ndarray]] | None = None,
+    check_overlaps: bool = True,
 ) -> Mesh:
     """Build faces, owners, neighbours and patches; check and repair the input (see Mesh).
 
     ``unnamed(points, edges)``, if given, is asked for the boundary edges (point-index pairs) that
     no patch of ``boundary`` names: it returns new patch names with boolean masks over those edges
-    (see :func:`fvrans.mesh.io.unnamed_edge_rule`); edges left over are an error as without it."""
+    (see :func:`fvrans.mesh.io.unnamed_edge_rule`); edges left over are an error as without it.
+    ``check_overlaps``: also refuse self-intersecting and overlapping cells
+    (:func:`fvrans.mesh.folds.check_folds`; skipped when the points are those of a checked mesh)."""
     notes: list[str] = []
     pts = np.asarray(points, dtype=np.float64)
     if pts.ndim != 2 or pts.shape[1] not in (2, 3):
@@ -243,11 +281,22 @@ def build_mesh(
             raise MeshError(f"{source}: patch {name!r} refers to a point index outside 0..{len(pts) - 1}")
         bnd_in[str(name)] = e
 
-    # -- merge duplicate points (exact, after rounding to a tolerance of the bounding box) --
-    span = float(np.ptp(pts, axis=0).max()) or 1.0
+    # -- merge duplicate points (exact, after rounding to a tolerance of the bounding box of the
+    # points the cells use: an unused far-away point neither sets the tolerance nor merges) --
+    in_cells = np.zeros(len(pts), dtype=bool)
+    in_cells[flat] = True
+    upts = pts[in_cells]
+    if np.abs(upts).max() > MAX_COORDINATE:
+        i = int(np.flatnonzero(in_cells & (np.abs(pts) > MAX_COORDINATE).any(axis=1))[0])
+        raise MeshError(f"{source}: point {i} at {_fmt_pt(pts, i)} lies beyond {MAX_COORDINATE:g}; give the "
+                        "coordinates in units that keep them within that range")
+    span = float(np.ptp(upts, axis=0).max()) or 1.0
     tol = 1e-12 * span
     # relative to the lower-left corner, so far-from-origin coordinates cannot overflow int64
-    keys = np.round((pts - pts.min(axis=0)) / tol).astype(np.int64)
+    keys = np.empty((len(pts), 2), dtype=np.int64)
+    keys[in_cells] = np.round((upts - upts.min(axis=0)) / tol).astype(np.int64)
+    keys[~in_cells, 0] = -1 - np.arange(int((~in_cells).sum()))  # unused points: never merged
+    keys[~in_cells, 1] = 0
     _, first, inverse = np.unique(keys, axis=0, return_index=True, return_inverse=True)
     inverse = inverse.ravel()
     if len(first) < len(pts):
@@ -416,6 +465,9 @@ def build_mesh(
             loc = loc[assigned[loc] < 0]
             if not len(loc):
                 continue
+            if not str(name).strip():
+                raise MeshError(f"{source}: the unnamed boundary edges would go into a patch with the empty name "
+                                f"{str(name)!r}; patch names become case keys and file names — name the patch")
             if name in bnd_in:
                 raise MeshError(f"{source}: the unnamed boundary edges would go into patch {name!r}, which the "
                                 "mesh file already names; choose another patch name for them")
@@ -440,7 +492,7 @@ def build_mesh(
     face_owner = np.ascontiguousarray(np.concatenate(owners).astype(np.int64))
     face_neighbour = np.full(len(face_owner), -1, dtype=np.int64)
     face_neighbour[:n_int] = neigh_i
-    return Mesh(
+    mesh = Mesh(
         points=pts,
         cell_offsets=np.ascontiguousarray(offsets.astype(np.int64)),
         cell_points=np.ascontiguousarray(flat.astype(np.int64)),
@@ -452,3 +504,8 @@ def build_mesh(
         source=source,
         notes=tuple(notes),
     )
+    if check_overlaps:
+        from fvrans.mesh.folds import check_folds
+
+        check_folds(mesh)
+    return mesh

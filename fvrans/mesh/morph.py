@@ -58,6 +58,10 @@ def topology_difference(a: Mesh, b: Mesh) -> str | None:
         k = int(np.nonzero(a.cell_points != b.cell_points)[0][0])
         c = int(np.searchsorted(a.cell_offsets, k, "right") - 1)
         return f"cell {c} has different points"
+    if [(q.first, q.second, q.start, q.stop) for q in a.periodic] != [(q.first, q.second, q.start, q.stop)
+                                                                       for q in b.periodic]:
+        return (f"periodic pairs {[(q.first, q.second, q.size) for q in a.periodic]} against "
+                f"{[(q.first, q.second, q.size) for q in b.periodic]}")
     for name in ("face_points", "face_owner", "face_neighbour"):
         x, y = getattr(a, name), getattr(b, name)
         if not np.array_equal(x, y):
@@ -139,7 +143,11 @@ def morph(mesh: Mesh, target: Mesh | np.ndarray | Callable[[np.ndarray], np.ndar
                 "use the same resolution parameters, or move the boundary points instead"
             )
         _check_cells(mesh, target.points, target.source)
-        return dataclasses.replace(mesh, points=target.points.copy(), source=target.source, notes=())
+        return dataclasses.replace(mesh, points=target.points.copy(), source=target.source, notes=(),
+                                   periodic=target.periodic)
+    if mesh.periodic:
+        raise MeshError(f"morph {mesh.source}: the mesh has joined periodic patches, whose faces must stay "
+                        "translated copies; morph the mesh before joining them (fvrans.mesh.periodic)")
     ids = boundary_point_ids(mesh)
     old = mesh.points[ids]
     if callable(target):

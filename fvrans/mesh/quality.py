@@ -75,6 +75,8 @@ class MeshQuality:
     worst_skewness: tuple[WorstCell, ...]
     warnings: tuple[str, ...] = field(default_factory=tuple)
     notes: tuple[str, ...] = field(default_factory=tuple)
+    #: joined periodic pairs, one sentence each
+    periodic: tuple[str, ...] = ()
 
 
 def cell_max_over_faces(mesh: Mesh, face_values: np.ndarray) -> np.ndarray:
@@ -157,6 +159,8 @@ def mesh_quality(mesh: Mesh, geom: Geometry, n_worst: int = N_WORST) -> MeshQual
         worst_skewness=_worst(cell_sk, centre, n_worst),
         warnings=tuple(warn),
         notes=tuple(mesh.notes),
+        periodic=tuple(f"{p.first} <-> {p.second}: {p.size} faces joined, translation "
+                       f"({p.translation[0]:.6g}, {p.translation[1]:.6g})" for p in mesh.periodic),
     )
 
 
@@ -183,6 +187,9 @@ def format_report(quality: MeshQuality, source: str = "") -> str:
     width = max((len(n) for n in q.patch_faces), default=0)
     for name, n in q.patch_faces.items():
         lines.append(f"    {name:<{width}}  {n:>8d} faces, length {q.patch_length[name]:.6g}")
+    if q.periodic:
+        lines.append("  periodic pairs:")
+        lines.extend(f"    {text}" for text in q.periodic)
     for title, worst, fmt in (
         ("largest aspect ratio", q.worst_aspect, ".4g"),
         ("largest non-orthogonality (deg)", q.worst_nonorth, ".2f"),

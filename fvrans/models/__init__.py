@@ -20,6 +20,7 @@ from fvrans.models.base import EDDY_VISCOSITY_RATIO, EddyViscosityModel, Turbule
 MODELS: dict[str, str] = {
     "none": "fvrans.models.base:TurbulenceModel",
     "spalart-allmaras": "fvrans.models.spalart_allmaras:SpalartAllmaras",
+    "k-omega-sst": "fvrans.models.sst:KOmegaSST",
 }
 _ADDED: dict[str, type[TurbulenceModel]] = {}
 

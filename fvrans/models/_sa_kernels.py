@@ -4,7 +4,9 @@ Constants: Spalart & Allmaras 1994, La Recherche Aerospatiale 1, 5-21 (cb1, sigm
 cw1 = cb1/kappa^2 + (1 + cb2)/sigma, cw2, cw3, cv1, ct3, ct4); the modified-vorticity safeguard
 (cv2, cv3) and the negative-nu_tilde model (cn1) of Allmaras, Johnson & Spalart 2012, ICCFD7-1902,
 "Modifications and clarifications for the implementation of the Spalart-Allmaras turbulence
-model". The trip term is not used.
+model". The trip term is not used. Rotation/curvature correction (cr1, cr2, cr3): Shur, Strelets,
+Travin & Spalart 2000, AIAA J. 38, 784-792, production cb1 (f_r1 - f_t2) S_tilde nt as written in
+the NASA Turbulence Modeling Resource (from memory).
 
 Functions of one cell (``fv1`` ... ``cell_source``) are njit scalar functions so that the tests
 can evaluate exactly what the assembly kernel uses.
@@ -31,6 +33,9 @@ CV3 = 0.9
 CN1 = 16.0
 #: r is clipped at this value (Spalart & Allmaras 1994; AJS 2012)
 R_MAX = 10.0
+CR1 = 1.0
+CR2 = 12.0
+CR3 = 1.0
 
 
 @njit(cache=True)
@@ -81,10 +86,11 @@ def modified_vorticity(omega, s_bar):
 
 
 @njit(cache=True)
-def cell_source(nt, nu, omega, d, use_ft2):
+def cell_source(nt, nu, omega, d, use_ft2, fr1=1.0):
     """Source of one cell as (production, destruction coefficient) with source = P - Dc nt.
 
-    nu_tilde >= 0 (SA 1994 without trip): P = cb1 (1 - f_t2) S_tilde nt,
+    nu_tilde >= 0 (SA 1994 without trip): P = cb1 (f_r1 - f_t2) S_tilde nt (f_r1 = 1 without the
+    rotation/curvature correction),
     Dc = (cw1 f_w - cb1 f_t2 / kappa^2) nt / d^2.
     nu_tilde < 0 (AJS 2012): P_n = cb1 (1 - ct3) Omega nt, D_n = -cw1 (nt/d)^2, so
     P_n - D_n = -[cb1 (ct3 - 1) Omega - cw1 nt / d^2] nt: returned as P = 0 and that bracket as Dc
@@ -103,20 +109,20 @@ def cell_source(nt, nu, omega, d, use_ft2):
             r = R_MAX
     else:
         r = R_MAX
-    prod = CB1 * (1.0 - f_t2) * st * nt
+    prod = CB1 * (fr1 - f_t2) * st * nt
     dc = (CW1 * fw(r) - CB1 / (KAPPA * KAPPA) * f_t2) * nt / (d * d)
     return prod, dc
 
 
 @njit(cache=True)
-def net_source(nt, nu, omega, d, use_ft2):
+def net_source(nt, nu, omega, d, use_ft2, fr1=1.0):
     """P - D of one cell (per unit volume), see :func:`cell_source`."""
-    prod, dc = cell_source(nt, nu, omega, d, use_ft2)
+    prod, dc = cell_source(nt, nu, omega, d, use_ft2, fr1)
     return prod - dc * nt
 
 
 @njit(cache=True)
-def assemble_sources(nt, nu, rho, vol, d, grad_u, grad_nt, use_ft2, diag, source):
+def assemble_sources(nt, nu, rho, vol, d, grad_u, grad_nt, use_ft2, fr1, diag, source):
     """Add the cell sources rho V (P - D + cb2/sigma |grad nt|^2) to one equation.
 
     P - D = s(nt) is linearised by Newton's rule about the current value, s(nt_new) ~ s(nt) +
@@ -125,7 +131,8 @@ def assemble_sources(nt, nu, rho, vol, d, grad_u, grad_nt, use_ft2, diag, source
     source is explicit. At convergence this is s(nt) exactly. (Picard's form, the destruction
     coefficient Dc = D/nt alone on the diagonal, under-estimates the derivative of the quadratic
     destruction by half and lets the outer iteration oscillate where destruction dominates.)
-    The cb2 term is explicit. Omega = |dv/dx - du/dy| with grad_u[c, component, direction].
+    The cb2 term is explicit. Omega = |dv/dx - du/dy| with grad_u[c, component, direction];
+    ``fr1`` the rotation/curvature factor per cell (ones without the correction).
     """
     for c in range(nt.shape[0]):
         omega = abs(grad_u[c, 1, 0] - grad_u[c, 0, 1])
@@ -133,11 +140,11 @@ def assemble_sources(nt, nu, rho, vol, d, grad_u, grad_nt, use_ft2, diag, source
         gy = grad_nt[c, 1]
         rv = rho * vol[c]
         n = nt[c]
-        s0 = net_source(n, nu, omega, d[c], use_ft2)
+        s0 = net_source(n, nu, omega, d[c], use_ft2, fr1[c])
         h = 1e-6 * max(abs(n), 1e-3 * nu)
         if n < 0.0 and n + h > 0.0:
             h = -h  # stay on the negative branch
-        jac = (net_source(n + h, nu, omega, d[c], use_ft2) - s0) / h
+        jac = (net_source(n + h, nu, omega, d[c], use_ft2, fr1[c]) - s0) / h
         s = s0 + CB2 / SIGMA * (gx * gx + gy * gy)
         if jac < 0.0:
             diag[c] -= rv * jac
@@ -161,12 +168,34 @@ def eddy_viscosity(nt, nu, rho, out):
 
 
 @njit(cache=True)
-def continuity_correction(owner, neighbour, nfi, flux, diag):
-    """diag[c] -= sum of the face fluxes out of c: removes the mass-imbalance part of div(F phi)
-    (zero at convergence); with upwind convection the diagonal stays the sum of the inflows."""
-    nf = owner.shape[0]
-    for f in range(nfi):
-        diag[owner[f]] -= flux[f]
-        diag[neighbour[f]] += flux[f]
-    for f in range(nfi, nf):
-        diag[owner[f]] -= flux[f]
+def rotation_function(grad_u, velocity, grad_strain, out):
+    """f_r1 = (1 + cr1) 2 r* / (1 + r*) [1 - cr3 atan(cr2 r~)] - cr1 per cell (Shur et al. 2000), with
+    r* = S / Omega and r~ = 2 Omega_ik S_jk (D S_ij / Dt) / D^4, D^2 = (S^2 + Omega^2) / 2, in a
+    frame at rest and steady flow, where D S_ij / Dt = u . grad S_ij. ``grad_strain[c, m]`` is the
+    gradient of S_11, S_12, S_22 (m = 0, 1, 2). f_r1 = 1 where the velocity gradient vanishes."""
+    for c in range(grad_u.shape[0]):
+        s11 = grad_u[c, 0, 0]
+        s22 = grad_u[c, 1, 1]
+        s12 = 0.5 * (grad_u[c, 0, 1] + grad_u[c, 1, 0])
+        w12 = 0.5 * (grad_u[c, 0, 1] - grad_u[c, 1, 0])
+        s2 = 2.0 * (s11 * s11 + s22 * s22 + 2.0 * s12 * s12)
+        w2 = 4.0 * w12 * w12
+        d2 = 0.5 * (s2 + w2)
+        if d2 <= 0.0:
+            out[c] = 1.0
+            continue
+        u0 = velocity[c, 0]
+        u1 = velocity[c, 1]
+        a11 = u0 * grad_strain[c, 0, 0] + u1 * grad_strain[c, 0, 1]
+        a12 = u0 * grad_strain[c, 1, 0] + u1 * grad_strain[c, 1, 1]
+        a22 = u0 * grad_strain[c, 2, 0] + u1 * grad_strain[c, 2, 1]
+        # sum_ij (Omega S^T)_ij a_ij with Omega = [[0, w12], [-w12, 0]], S symmetric
+        m11 = w12 * s12
+        m12 = w12 * s22
+        m21 = -w12 * s11
+        m22 = -w12 * s12
+        rt = 2.0 * (m11 * a11 + (m12 + m21) * a12 + m22 * a22) / (d2 * d2)
+        s = math.sqrt(s2)
+        w = math.sqrt(w2)
+        ratio = 2.0 * s / (s + w)  # 2 r* / (1 + r*)
+        out[c] = (1.0 + CR1) * ratio * (1.0 - CR3 * math.atan(CR2 * rt)) - CR1

@@ -10,7 +10,12 @@ given by Allmaras, Johnson & Spalart 2012, ICCFD7-1902 (AJS 2012), for nu_tilde 
     S_tilde = Omega + S_bar (S_bar = nt f_v2 / (kappa d)^2) with the AJS 2012 safeguard that keeps
     S_tilde >= 0.3 Omega, r = min(nt / (S_tilde kappa^2 d^2), 10).
 
-Variant ``"no-ft2"`` sets f_t2 = 0. Negative nu_tilde (AJS 2012): production cb1 (1 - ct3) Omega nt,
+Variant ``"no-ft2"`` sets f_t2 = 0. ``rotation_curvature``: the production becomes
+cb1 (f_r1 - f_t2) S_tilde nt with f_r1 of Shur, Strelets, Travin & Spalart 2000 (AIAA J. 38,
+784-792; ``_sa_kernels.rotation_function``), the material derivative of the strain-rate tensor
+taken as its convective part u . grad S_ij (steady flow, frame at rest). ``nonlinear_stress``:
+``"qcr2000"`` adds the quadratic constitutive relation (:mod:`fvrans.models.nonlinear`).
+Negative nu_tilde (AJS 2012): production cb1 (1 - ct3) Omega nt,
 destruction -cw1 (nt/d)^2 (so the source is +cw1 (nt/d)^2), diffusivity nu + nt f_n,
 f_n = (cn1 + chi^3)/(cn1 - chi^3); nu_t = 0. Constants and scalar functions: ``_sa_kernels``.
 
@@ -36,20 +41,15 @@ from __future__ import annotations
 
 import numpy as np
 
-from fvrans.errors import CaseError, DivergenceError
+from fvrans.errors import CaseError
 from fvrans.fields import Fields
-from fvrans.fv.assembly import Coefficients, CsrAssembler, under_relax
-from fvrans.fv.boundary import DIRICHLET, NEUMANN, BoundaryScalar, boundary_face_values
-from fvrans.fv.convection import convection_coefficients
-from fvrans.fv.diffusion import diffusion_coefficients
-from fvrans.fv.gradient import gradient_operator, limit_gradient
-from fvrans.fv.residual import normalised_imbalance
-from fvrans.linalg._smoother_kernels import gauss_seidel
-from fvrans.linalg.amg import AmgKrylovSolver
+from fvrans.fv.boundary import DIRICHLET, NEUMANN, BoundaryScalar
 from fvrans.mesh.geometry import Geometry
 from fvrans.mesh.mesh import Mesh
 from fvrans.models import _sa_kernels as K
+from fvrans.models import nonlinear
 from fvrans.models.base import EDDY_VISCOSITY_RATIO, TurbulenceModel, case_wall_distance, checked_wall_distance
+from fvrans.models.transport import CONVECTION, LINEAR_SOLVERS, TransportEquation
 from fvrans.physics.boundary import FREESTREAM, INLET, WALL, FlowBoundary
 
 #: the model constants (see ``_sa_kernels``; SA 1994 and AJS 2012)
@@ -58,8 +58,6 @@ CONSTANTS = {
     "cw3": K.CW3, "cv1": K.CV1, "ct3": K.CT3, "ct4": K.CT4, "cv2": K.CV2, "cv3": K.CV3, "cn1": K.CN1,
 }
 VARIANTS = ("standard", "no-ft2")
-LINEAR_SOLVERS = ("amg", "gauss-seidel")
-CONVECTION = ("upwind", "linear-upwind")
 
 
 def eddy_viscosity(nu_tilde: np.ndarray, nu: float, rho: float = 1.0) -> np.ndarray:
@@ -115,15 +113,11 @@ class SpalartAllmaras(TurbulenceModel):
         linear_tolerance: float = 0.01,
         linear_max_iterations: int = 20,
         amg_rebuild_every: int = 20,
+        rotation_curvature: bool = False,
+        nonlinear_stress: str = "none",
     ):
         if variant not in VARIANTS:
             raise CaseError(f"model.sa_variant = {variant!r} is not known; use one of {VARIANTS}")
-        if convection not in CONVECTION:
-            raise CaseError(f"solver.turbulence_convection = {convection!r} is not known; use one of {CONVECTION}")
-        if not 0.0 < relax <= 1.0:
-            raise CaseError(f"solver.relax_turbulence = {relax!r} must be in (0, 1]")
-        if linear_solver not in LINEAR_SOLVERS:
-            raise CaseError(f"solver.turbulence_solver = {linear_solver!r} is not known; use one of {LINEAR_SOLVERS}")
         self.mesh = mesh
         self.geom = geom
         self.bc_flow = boundary
@@ -131,45 +125,33 @@ class SpalartAllmaras(TurbulenceModel):
         self.nu = float(mu) / float(rho)
         self.use_ft2 = variant == "standard"
         self.variant = variant
-        self.relax = float(relax)
-        self.scheme = "linear_upwind" if convection == "linear-upwind" else "upwind"
-        self.limiter = None if limiter in ("none", None) else limiter.replace("-", "_")
+        self.rotation_curvature = bool(rotation_curvature)
+        self.nonlinear_stress = nonlinear_stress
+        nonlinear.extra_stress(nonlinear_stress, np.zeros(0), np.zeros((0, 2, 2)))  # checks the name
         self.initial_nu_tilde_ratio = float(initial_nu_tilde_ratio)
-        self.linear_solver = linear_solver
-        self.linear_tolerance = float(linear_tolerance)
-        self.linear_max_iterations = int(linear_max_iterations)
-        self.ksolver = AmgKrylovSolver("bicgstab", rtol=self.linear_tolerance, rebuild_every=int(amg_rebuild_every),
-                                       max_iterations=self.linear_max_iterations)
-        nc, ni = mesh.n_cells, mesh.n_internal_faces
-        if wall_distance is None:
-            wall_distance = case_wall_distance(mesh, geom, boundary, "Spalart-Allmaras")
-        d = checked_wall_distance(wall_distance, nc)
-        self.wall_distance = d
+        nc = mesh.n_cells
         kind = boundary.kind
-        self.kind = kind
         self.inflow_value = self.nu * boundary.nu_tilde_ratio
         bkind = np.full(len(kind), NEUMANN, dtype=np.int8)
         bval = np.zeros(len(kind))
         bkind[kind == WALL] = DIRICHLET
         bkind[kind == INLET] = DIRICHLET
         bval[kind == INLET] = self.inflow_value[kind == INLET]
-        self.bc = BoundaryScalar(bkind, bval)
-        self.freestream = np.flatnonzero(kind == FREESTREAM)
-        self.grad = gradient_operator(mesh, geom, method=gradient.replace("-", "_"))
-        self.asm = CsrAssembler(mesh)
-        self.coeffs = Coefficients.zeros(mesh)
-        self.grad_nt = np.zeros((nc, 2))
-        self.nt_b = np.zeros(mesh.n_boundary_faces)
+        self.equation = TransportEquation(
+            mesh, geom, "nu_tilde", BoundaryScalar(bkind, bval), np.flatnonzero(kind == FREESTREAM),
+            self.inflow_value, relax=relax, convection=convection, gradient=gradient, limiter=limiter,
+            linear_solver=linear_solver, linear_tolerance=linear_tolerance,
+            linear_max_iterations=linear_max_iterations, amg_rebuild_every=amg_rebuild_every,
+        )
+        if wall_distance is None:
+            wall_distance = case_wall_distance(mesh, geom, boundary, "Spalart-Allmaras")
+        self.wall_distance = checked_wall_distance(wall_distance, nc)
         self.gamma_cell = np.zeros(nc)
         self.gamma_b = np.zeros(mesh.n_boundary_faces)
         self.gamma_f = np.zeros(mesh.n_faces)
         self.mu_t = np.zeros(nc)
-        self.ni = ni
-        self.own_i = mesh.face_owner[:ni]
-        self.nei_i = mesh.face_neighbour[:ni]
-        self.w_i = geom.face_weight[:ni]
-        #: iterations (amg) or sweeps (gauss-seidel) of the last linear solve
-        self.last_iterations = 0
+        self.fr1 = np.ones(nc)
+        self.owner_b = mesh.face_owner[mesh.n_internal_faces :]
 
     @classmethod
     def from_case(cls, case, mesh: Mesh, geom: Geometry, boundary: FlowBoundary,
@@ -183,6 +165,7 @@ class SpalartAllmaras(TurbulenceModel):
             wall_distance=wall_distance, gradient=s.gradient, limiter=s.limiter,
             linear_solver=s.turbulence_solver, linear_tolerance=s.turbulence_tolerance,
             linear_max_iterations=s.turbulence_max_iterations, amg_rebuild_every=s.amg_rebuild_every,
+            rotation_curvature=case.model.sa_rotation_curvature, nonlinear_stress=case.model.nonlinear_stress,
         )
 
     # -- interface of the solver -----------------------------------------------------------
@@ -203,66 +186,44 @@ class SpalartAllmaras(TurbulenceModel):
     def wall_eddy_viscosity(self) -> float:
         return 0.0  # nu_tilde = 0 on the wall
 
+    def extra_stress(self, fields: Fields, grad_u: np.ndarray) -> np.ndarray | None:
+        """The non-linear part of the Reynolds stress (QCR2000 when asked for), else None."""
+        return nonlinear.extra_stress(self.nonlinear_stress, self.mu_t, grad_u)
+
+    def rotation_function(self, velocity: np.ndarray, grad_u: np.ndarray) -> np.ndarray:
+        """f_r1 per cell (see ``_sa_kernels.rotation_function``); S_ij gradients with zero normal
+        gradient on the boundary."""
+        g = grad_u
+        strain = np.ascontiguousarray(np.stack([g[:, 0, 0], 0.5 * (g[:, 0, 1] + g[:, 1, 0]), g[:, 1, 1]], axis=1))
+        grad_strain = self.equation.grad(strain, strain[self.owner_b])
+        K.rotation_function(g, np.ascontiguousarray(velocity, dtype=float), grad_strain, self.fr1)
+        return self.fr1
+
     def update(self, fields: Fields, grad_u: np.ndarray) -> list[float]:
         """Assemble and solve the nu_tilde equation once with the new velocity gradient and the
         corrected face fluxes; returns [normalised imbalance]."""
         nt = np.ascontiguousarray(self._ensure(fields), dtype=np.float64)
         F = np.ascontiguousarray(fields.face_flux, dtype=np.float64)
-        ni = self.ni
-        bc = self.bc
-        # freestream faces: inflow value where the flux enters, zero gradient where it leaves
-        fs = self.freestream
-        if len(fs):
-            inflow = F[ni + fs] < 0.0
-            bc.kind[fs] = np.where(inflow, DIRICHLET, NEUMANN)
-            bc.value[fs] = np.where(inflow, self.inflow_value[fs], 0.0)
-        nt_b = boundary_face_values(self.mesh, self.geom, bc, nt, self.grad_nt, out=self.nt_b)
-        g = self.grad(nt, nt_b, out=self.grad_nt)
+        eq = self.equation
+        g, nt_b = eq.gradient(nt, F)
         # face diffusivity rho (nu + nt f_n) / sigma
         K.cell_diffusivity(nt, self.nu, self.gamma_cell)
         K.cell_diffusivity(nt_b, self.nu, self.gamma_b)
-        s = self.rho / K.SIGMA
-        gf = self.gamma_f
-        gf[:ni] = s * (self.w_i * self.gamma_cell[self.own_i] + (1.0 - self.w_i) * self.gamma_cell[self.nei_i])
-        gf[ni:] = s * self.gamma_b
-        co = self.coeffs.clear()
-        diffusion_coefficients(self.mesh, self.geom, gf, bc, g, out=co)
-        if self.scheme == "linear_upwind" and self.limiter is not None:
-            gc, _ = limit_gradient(self.mesh, self.geom, nt, nt_b, g, self.limiter)
-        else:
-            gc = g
-        convection_coefficients(self.mesh, self.geom, F, nt_b, self.scheme, gc, out=co)
-        K.continuity_correction(self.mesh.face_owner, self.mesh.face_neighbour, ni, F, co.diag)
+        gf = eq.face_values(self.gamma_cell, self.gamma_b, self.gamma_f, self.rho / K.SIGMA)
+        co = eq.assemble(nt, F, gf, g, nt_b)
         gu = np.ascontiguousarray(grad_u, dtype=np.float64)
+        if self.rotation_curvature:
+            self.rotation_function(fields.velocity, gu)
         K.assemble_sources(nt, self.nu, self.rho, self.geom.cell_area, self.wall_distance, gu, g,
-                           self.use_ft2, co.diag, co.source)
-        A = self.asm.matrix(co.diag, co.off_owner, co.off_neighbour)
-        res = normalised_imbalance(A, co.source, nt)
-        under_relax(co, nt, self.relax)
-        bad = np.flatnonzero(~(co.diag > 0.0))
-        if len(bad):  # only a flow field that is already running away can do this
-            c = int(bad[0])
-            x, y = self.geom.cell_centre[c]
-            raise DivergenceError(
-                f"the nu_tilde equation lost its diagonal at cell {c} (x = {x:.4g}, y = {y:.4g}; "
-                f"{len(bad)} cells): the velocity field is running away"
-            )
-        A = self.asm.matrix(co.diag, co.off_owner, co.off_neighbour)
-        x = nt.copy()
-        if self.linear_solver == "amg":
-            self.last_iterations = self.ksolver.solve(A, co.source, x)
-        else:
-            self.last_iterations, _, _ = gauss_seidel(A.indptr, A.indices, A.data, self.asm.diag_pos, co.source, x,
-                                                      self.linear_max_iterations, self.linear_tolerance)
+                           self.use_ft2, self.fr1, co.diag, co.source)
+        x, res = eq.solve(nt, co)
         fields.variables["nu_tilde"] = x
         return [res]
 
     # -- outputs --------------------------------------------------------------------------
     def nu_tilde_gradient(self, nu_tilde: np.ndarray) -> np.ndarray:
         """Cell gradient of nu_tilde with this model's boundary values."""
-        nt = np.ascontiguousarray(nu_tilde, dtype=float)
-        nt_b = boundary_face_values(self.mesh, self.geom, self.bc, nt, self.grad_nt)
-        return np.array(self.grad(nt, nt_b))
+        return self.equation.cell_gradient(nu_tilde)
 
     def cell_outputs(self, fields: Fields) -> dict[str, np.ndarray]:
         """nu_tilde, nu_t / nu and the wall distance."""
@@ -283,5 +244,5 @@ class SpalartAllmaras(TurbulenceModel):
         return {EDDY_VISCOSITY_RATIO: eddy_viscosity(sampled["nu_tilde"], self.nu) / self.nu}
 
 
-__all__ = ["CONSTANTS", "SpalartAllmaras", "eddy_viscosity", "source_terms"]
+__all__ = ["CONSTANTS", "CONVECTION", "LINEAR_SOLVERS", "SpalartAllmaras", "eddy_viscosity", "source_terms"]
 

@@ -22,7 +22,7 @@ from typing import Any
 import numpy as np
 
 from fvrans.case.formula import values_at
-from fvrans.case.schema import BoundarySpec
+from fvrans.case.schema import DEFAULT_EDDY_VISCOSITY_RATIO, DEFAULT_TURBULENCE_INTENSITY, BoundarySpec
 from fvrans.errors import CaseError
 from fvrans.mesh.geometry import Geometry
 from fvrans.mesh.mesh import Mesh
@@ -40,6 +40,12 @@ class FlowBoundary:
     pressure: np.ndarray  # (nb,) fixed static pressure (outlet, freestream)
     nu_tilde_ratio: np.ndarray  # (nb,) inflow nu_tilde / nu (inlet, freestream)
     patch_kind: dict[str, str]  # patch name -> kind name
+    #: (nb,) inflow sqrt(2k/3) / |u| and nu_t / nu of two-equation models (inlet, freestream); None: defaults
+    turbulence_intensity: np.ndarray | None = None
+    eddy_viscosity_ratio: np.ndarray | None = None
+    #: (nb,) inflow k and omega of an inlet profile that gives them (NaN elsewhere); None: no such profile
+    inflow_k: np.ndarray | None = None
+    inflow_omega: np.ndarray | None = None
 
     @property
     def has_fixed_pressure(self) -> bool:
@@ -70,7 +76,11 @@ def build_flow_boundary(mesh: Mesh, geom: Geometry, specs: Mapping[str, Any]) ->
     vel = np.zeros((nb, 2))
     pres = np.zeros(nb)
     nut = np.zeros(nb)
+    tu = np.full(nb, DEFAULT_TURBULENCE_INTENSITY)
+    ratio = np.full(nb, DEFAULT_EDDY_VISCOSITY_RATIO)
     patch_kind: dict[str, str] = {}
+    k_in = np.full(nb, np.nan)
+    w_in = np.full(nb, np.nan)
     for patch in mesh.patches:
         if patch.name not in specs:
             raise CaseError(
@@ -111,6 +121,10 @@ def build_flow_boundary(mesh: Mesh, geom: Geometry, specs: Mapping[str, Any]) ->
                 ub = np.stack(spec.velocity_at(pb[:, 0], pb[:, 1], where), axis=1)
                 vel[sl] = (ua + 4.0 * vel[sl] + ub) / 6.0
             nut[sl] = _nu_tilde_ratio(spec, patch.name, xf)
+            tu[sl], ratio[sl] = _two_equation_inflow(spec, xf)
+            if isinstance(spec, BoundarySpec) and spec.profile_columns and "k" in spec.profile_columns:
+                k_in[sl] = spec.profile_column_at("k", xf[:, 0], xf[:, 1], f"boundary.{patch.name}")
+                w_in[sl] = spec.profile_column_at("omega", xf[:, 0], xf[:, 1], f"boundary.{patch.name}")
         elif code == OUTLET:
             pres[sl] = values_at(0.0 if spec.pressure is None else spec.pressure, xf[:, 0], xf[:, 1], "pressure")
         elif code == FREESTREAM:
@@ -120,5 +134,23 @@ def build_flow_boundary(mesh: Mesh, geom: Geometry, specs: Mapping[str, Any]) ->
             vel[sl] = np.asarray(v, dtype=float)
             pres[sl] = values_at(0.0 if spec.pressure is None else spec.pressure, xf[:, 0], xf[:, 1], "pressure")
             nut[sl] = _nu_tilde_ratio(spec, patch.name, xf)
-    return FlowBoundary(kind=kind, velocity=vel, pressure=pres, nu_tilde_ratio=nut, patch_kind=patch_kind)
+            tu[sl], ratio[sl] = _two_equation_inflow(spec, xf)
+    given = bool(np.any(np.isfinite(k_in)))
+    return FlowBoundary(kind=kind, velocity=vel, pressure=pres, nu_tilde_ratio=nut, patch_kind=patch_kind,
+                        turbulence_intensity=tu, eddy_viscosity_ratio=ratio, inflow_k=k_in if given else None,
+                        inflow_omega=w_in if given else None)
 
+
+def _two_equation_inflow(spec: BoundarySpec, xf: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """(turbulence intensity, nu_t / nu) of an inflow condition at the face centres ``xf`` (numbers
+    or formulas), defaults where it gives none."""
+    tu = getattr(spec, "turbulence_intensity", None)
+    ratio = getattr(spec, "eddy_viscosity_ratio", None)
+    tu_f = values_at(DEFAULT_TURBULENCE_INTENSITY if tu is None else tu, xf[:, 0], xf[:, 1], "turbulence_intensity")
+    ratio_f = values_at(DEFAULT_EDDY_VISCOSITY_RATIO if ratio is None else ratio, xf[:, 0], xf[:, 1],
+                        "eddy_viscosity_ratio")
+    if np.any(tu_f < 0) or np.any(ratio_f <= 0):
+        raise CaseError(f"{getattr(tu, 'where', None) or getattr(ratio, 'where', 'boundary')}: the formula gives a "
+                        "turbulence_intensity below 0 or an eddy_viscosity_ratio not above 0 on some face; "
+                        "check it or the patch it is used on")
+    return tu_f, ratio_f

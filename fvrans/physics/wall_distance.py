@@ -119,16 +119,27 @@ def wall_segments(mesh: Mesh, wall_patches: Sequence[str]) -> tuple[np.ndarray, 
     return mesh.points[mesh.face_points[faces]], faces
 
 
+def periodic_images(mesh: Mesh, segments: np.ndarray) -> np.ndarray:
+    """The segments and their copies moved by -1, 0, +1 times each periodic translation of the
+    mesh (every combination): on a periodic mesh the nearest wall may lie across a joined pair."""
+    out = np.asarray(segments, dtype=float)
+    for pair in mesh.periodic:
+        t = np.asarray(pair.translation, dtype=float)
+        out = np.concatenate([out - t, out, out + t])
+    return out
+
+
 def cell_wall_distance(mesh: Mesh, geom: Geometry, wall_patches: Sequence[str]) -> np.ndarray:
-    """Exact distance (n_cells,) from each cell centre to the union of the named patches' faces."""
+    """Exact distance (n_cells,) from each cell centre to the union of the named patches' faces
+    (with their periodic images, see :func:`periodic_images`)."""
     segments, _ = wall_segments(mesh, wall_patches)
-    return wall_distance(geom.cell_centre, segments)[0]
+    return wall_distance(geom.cell_centre, periodic_images(mesh, segments))[0]
 
 
 def boundary_face_wall_distance(mesh: Mesh, geom: Geometry, wall_patches: Sequence[str]) -> np.ndarray:
     """Exact wall distance (n_boundary_faces,) of each boundary face centre (index face -
     n_internal_faces); exactly 0 on the wall faces themselves."""
     segments, faces = wall_segments(mesh, wall_patches)
-    d = wall_distance(geom.face_centre[mesh.n_internal_faces :], segments)[0]
+    d = wall_distance(geom.face_centre[mesh.n_internal_faces :], periodic_images(mesh, segments))[0]
     d[faces - mesh.n_internal_faces] = 0.0
     return d

@@ -3,6 +3,8 @@
 from fvrans.post.forces import (
     InflowReference,
     PatchForces,
+    Reference,
+    case_reference,
     forces_summary,
     group_forces,
     inflow_reference,
@@ -36,6 +38,7 @@ from fvrans.post.writers import (
 __all__ = [
     "InflowReference",
     "PatchForces",
+    "Reference",
     "PatchOrder",
     "WallData",
     "ZeroShearPoint",
@@ -43,6 +46,7 @@ __all__ = [
     "atomic_path",
     "atomic_write",
     "build_summary",
+    "case_reference",
     "forces_summary",
     "group_forces",
     "inflow_reference",

@@ -16,6 +16,22 @@ import numpy as np
 
 from fvrans.errors import CaseError
 
+#: characters of user text drawn on a plot: a case title, and a name (patch, probe, item) or label
+MAX_TITLE_CHARS = 200
+MAX_NAME_CHARS = 60
+
+
+def cap_text(text: Any, limit: int = MAX_NAME_CHARS) -> str:
+    """``text`` as one line of at most ``limit`` characters (cut with an ellipsis): user text drawn
+    on a plot must not make drawing slow (a 100 000-character title took a minute) or the plot
+    unreadable.
+
+    >>> cap_text("wall"), cap_text("x" * 100, 10)
+    ('wall', 'xxxxxxxxx…')
+    """
+    s = " ".join(str(text).split())
+    return s if len(s) <= limit else s[: limit - 1] + "…"
+
 
 def read_summary(path: str | os.PathLike) -> dict[str, Any]:
     """The content of ``summary.json`` ({} if the file does not exist)."""

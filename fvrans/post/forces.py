@@ -29,6 +29,7 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 
@@ -190,6 +191,43 @@ def inflow_reference(geom: Geometry, boundary: FlowBoundary, n_internal_faces: i
             continue
         return InflowReference(speed, check_direction(mean), name)
     return None
+
+
+@dataclass(frozen=True)
+class Reference:
+    """Reference values of a run's coefficients: velocity U_ref, density, free-stream direction
+    (unit vector) and where the velocity and direction came from (``"case"``, ``"outer-flow"``,
+    ``"inflow-velocity"`` or ``"default"``)."""
+
+    velocity: float
+    density: float
+    direction: tuple[float, float]
+    velocity_from: str
+    direction_from: str
+
+
+def case_reference(output: Any, fluid_density: float, geom: Geometry, boundary: FlowBoundary,
+                   n_internal_faces: int) -> Reference:
+    """The reference values of a case's ``[output]`` settings (``reference_velocity``,
+    ``reference_density``, ``direction()``), those it leaves open taken from the inflow
+    (:func:`inflow_reference`): U_ref the inflow's speed, the free-stream direction the inflow's;
+    without an inflow U_ref = 1 and the direction +x; the density the fluid's."""
+    inflow = inflow_reference(geom, boundary, n_internal_faces)
+    if output.reference_velocity is not None:
+        u, u_from = float(output.reference_velocity), "case"
+    elif inflow is not None:
+        u, u_from = inflow.speed, inflow.source
+    else:
+        u, u_from = 1.0, "default"
+    given = output.direction()
+    if given is not None:
+        e, e_from = given, "case"
+    elif inflow is not None:
+        e, e_from = inflow.direction, inflow.source
+    else:
+        e, e_from = (1.0, 0.0), "default"
+    rho = float(fluid_density) if output.reference_density is None else float(output.reference_density)
+    return Reference(u, rho, e, u_from, e_from)
 
 
 def forces_summary(

@@ -1,81 +1,200 @@
-"""The list of files a run wrote into its output folder, so that a later run into the same folder
-removes exactly those (and never a file fvrans did not write).
+"""The output files of a run as one set: written aside, then put in place together.
 
-``DIR/outputs.json`` holds ``{"written_by": "fvrans <version>", "files": [relative paths]}``. A
-run into a folder that holds one first deletes the files it lists (regular files inside the
-folder only), then empty ``wall/zero_shear/``, ``wall/``, ``profiles/`` and ``plots/`` folders; a folder without the
-list is left as it is.
+A result folder holds one consistent set of outputs: every file of it belongs to the same run
+and iteration, also after the writing process was killed (``kill -9``, power loss) at any
+instant. The set is written in three steps:
+
+1. every file is written into the staging folder ``DIR/.fvrans-staging/`` (each file fsynced);
+2. the list of the set's files and its iteration is written (atomically) to
+   ``.fvrans-staging/.fvrans-outputs.json`` — the commit point;
+3. each file is renamed into place, the files of the previous set that the new one lacks are
+   removed, the new list replaces ``DIR/.fvrans-outputs.json`` and the staging folder goes.
+
+:func:`recover` (called before any fvrans command reads or writes a result folder) finishes a
+set killed after its commit point (step 3 again: renames are idempotent) and throws away one
+killed before it (the previous set is untouched), together with temporary files of a killed
+atomic write. So a reader sees the previous set or the new one, never a mix. Only files listed
+in ``.fvrans-outputs.json`` are ever removed (regular files inside the folder; no link to
+elsewhere is followed), and then the sub-folders they leave empty; other files in the folder are
+left alone, so a reused output folder holds the new run's files and the user's own, nothing of
+the earlier run.
+
+A set may be a part of the folder (``scope="plots"``: the plots, drawn after the results):
+then only the previous set's files within that part are replaced.
 """
 
 from __future__ import annotations
 
+import contextlib
 import json
 import logging
 import os
-from collections.abc import Iterable
+import shutil
+from collections.abc import Iterator
 from pathlib import Path
+from typing import Any
 
-from fvrans.post.writers import write_json_atomic
+from fvrans.errors import CaseError
+from fvrans.post.writers import TMP_PREFIX, fsync_dir, write_json_atomic
+from fvrans.stop import holding_stops
 
 log = logging.getLogger(__name__)
 
-#: file name of the list of a run's outputs inside its folder
-OUTPUTS_LIST = "outputs.json"
-#: sub-folders of a result folder removed when a cleared run leaves them empty
-OUTPUT_FOLDERS = ("wall/zero_shear", "wall", "profiles", "plots")
+STAGING = ".fvrans-staging"
+MANIFEST = ".fvrans-outputs.json"
+MANIFEST_VERSION = 1
 
 
-def record_outputs(out_dir: str | os.PathLike, files: Iterable[str | os.PathLike]) -> Path:
-    """Write ``DIR/outputs.json`` listing ``files`` (paths inside ``out_dir``; missing ones are
-    left out) and the list itself."""
-    from fvrans import __version__
-
-    out = Path(out_dir)
-    names: list[str] = []
-    for f in files:
-        p = Path(f)
-        try:
-            rel = p.relative_to(out)
-        except ValueError:
-            rel = p
-        if (out / rel).is_file() and rel.as_posix() not in names:
-            names.append(rel.as_posix())
-    names.append(OUTPUTS_LIST)
-    target = out / OUTPUTS_LIST
-    write_json_atomic(target, {"written_by": f"fvrans {__version__}", "files": sorted(names)}, within=out)
-    return target
-
-
-def clear_previous_outputs(out_dir: str | os.PathLike, keep: Iterable[str | os.PathLike] = ()) -> list[str]:
-    """Delete the files listed in ``DIR/outputs.json`` by an earlier run (regular files inside
-    ``out_dir`` only, no symbolic links followed, none of ``keep``) and then the empty output
-    sub-folders; return the relative paths deleted. Files not in the list are never touched."""
-    out = Path(out_dir)
-    kept = {Path(k).resolve() for k in keep}
-    listing = out / OUTPUTS_LIST
-    if not listing.is_file():
-        return []
+def _read_manifest(path: Path) -> dict[str, Any] | None:
     try:
-        files = json.loads(listing.read_text(encoding="utf-8")).get("files", [])
-    except (OSError, ValueError, AttributeError):
-        log.warning("%s is not a readable list of outputs; the earlier outputs in %s are left as they are",
-                    listing, out)
-        return []
+        data = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return None
+    files = data.get("files") if isinstance(data, dict) else None
+    if not isinstance(files, list) or not all(isinstance(f, str) for f in files):
+        return None
+    return data
+
+
+def _safe_rel(rel: str) -> bool:
+    """A manifest entry is a relative path below the folder (a hand-edited list cannot reach out)."""
+    p = Path(rel)
+    return bool(rel) and not p.is_absolute() and ".." not in p.parts and "\\" not in rel
+
+
+def _in_scope(rel: str, scope: str | None) -> bool:
+    return scope is None or rel == scope or rel.startswith(scope + "/")
+
+
+def _files_below(stage: Path) -> list[str]:
+    out = []
+    for p in sorted(stage.rglob("*")):
+        if p.is_file() and not p.name.startswith(TMP_PREFIX) and p.name != MANIFEST:
+            out.append(p.relative_to(stage).as_posix())
+    return out
+
+
+def _remove_temporaries(folder: Path) -> None:
+    """Temporary files of atomic writes killed before their rename (fvrans's own prefix only)."""
+    for d in [folder, *[p for p in folder.iterdir() if p.is_dir() and not p.is_symlink()]]:
+        for p in d.glob(TMP_PREFIX + "*"):
+            with contextlib.suppress(OSError):
+                p.unlink()
+
+
+def recover(folder: str | os.PathLike) -> None:
+    """Finish or undo a set of outputs left half-written in ``folder`` (see the module docstring)."""
+    out = Path(folder)
+    if not out.is_dir():
+        return
+    stage = out / STAGING
+    try:
+        if stage.is_dir():
+            new = _read_manifest(stage / MANIFEST)
+            if new is None:  # killed before the commit point: the previous set stands
+                shutil.rmtree(stage, ignore_errors=True)
+            else:  # killed after it: put the rest in place
+                log.info("%s: finishing the outputs of an earlier run that was stopped while writing", out)
+                _put_in_place(out, stage, new)
+        _remove_temporaries(out)
+    except OSError as exc:
+        log.warning("%s: could not tidy up a half-written set of outputs (%s)", out, exc)
+
+
+def _put_in_place(out: Path, stage: Path, new: dict[str, Any]) -> None:
+    """Step 3 of the module docstring; every part may be repeated after a kill."""
+    scope = new.get("scope")
+    old = _read_manifest(out / MANIFEST) or {"files": []}
+    new_files = [f for f in new["files"] if _safe_rel(f)]
+    for rel in new_files:
+        src = stage / rel
+        if src.is_file():
+            dst = out / rel
+            dst.parent.mkdir(parents=True, exist_ok=True)
+            os.replace(src, dst)
+    keep = set(new_files)
     root = out.resolve()
-    removed: list[str] = []
-    for name in files if isinstance(files, list) else []:
-        if not isinstance(name, str) or not name or Path(name).is_absolute() or ".." in Path(name).parts:
-            continue
-        p = out / name
-        if p.is_symlink() or not p.is_file() or root not in p.resolve().parents or p.resolve() in kept:
-            continue
-        p.unlink()
-        removed.append(name)
-    for sub in OUTPUT_FOLDERS:
-        d = out / sub
-        if d.is_dir() and not d.is_symlink() and not any(d.iterdir()):
-            d.rmdir()
-    return removed
+    for rel in old["files"]:
+        if _safe_rel(rel) and _in_scope(rel, scope) and rel not in keep:
+            _remove_listed(out / rel, root)
+    for d in {(out / rel).parent for rel in new_files} | {out}:
+        fsync_dir(d)
+    # the folder's list: the new set, plus the previous files outside the scope of a partial set
+    others = [rel for rel in old["files"] if _safe_rel(rel) and not _in_scope(rel, scope)
+              and (out / rel).is_file()]
+    listing = {k: v for k, v in new.items() if k not in ("files", "scope")}
+    if scope is not None:
+        listing = {k: v for k, v in old.items() if k not in ("files", "scope")} | {f"{scope}_iteration":
+                                                                                  new.get("iteration")}
+    listing["files"] = sorted(set(others) | keep)
+    listing["version"] = MANIFEST_VERSION
+    write_json_atomic(out / MANIFEST, listing)
+    shutil.rmtree(stage, ignore_errors=True)
+    fsync_dir(out)
 
 
-__all__ = ["OUTPUTS_LIST", "clear_previous_outputs", "record_outputs"]
+def _remove_listed(path: Path, root: Path) -> None:
+    """Remove a file of the previous set: a regular file whose folder lies inside ``root`` (a
+    folder replaced by a link to elsewhere is not followed); then its folders below ``root`` that
+    this leaves empty (``wall/``, ``profiles/``, ``plots/`` of a run that has none now)."""
+    try:
+        if path.is_symlink() or not path.is_file() or root not in path.resolve().parents:
+            return
+        path.unlink()
+    except OSError:
+        return
+    d = path.parent
+    while d.resolve() != root and root in d.resolve().parents and not d.is_symlink():
+        try:
+            d.rmdir()  # only an empty folder goes
+        except OSError:
+            break
+        d = d.parent
+
+
+def open_folder(folder: str | os.PathLike) -> Path:
+    """Create the result folder ``folder`` if missing (a :class:`CaseError` naming it when it
+    cannot be) and :func:`recover` it; return it as a Path."""
+    out = Path(folder)
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise CaseError(f"cannot create the output folder {out}: {exc.strerror or exc}") from None
+    recover(out)
+    return out
+
+
+@contextlib.contextmanager
+def output_set(folder: str | os.PathLike, scope: str | None = None,
+               iteration: int | None = None) -> Iterator[Path]:
+    """Yield a staging folder to write a set of outputs into; when the block ends normally, put
+    the set in place as one (see the module docstring). An exception (or a stop) inside the block
+    leaves the folder's previous set as it was and removes the staging folder.
+
+    ``scope``: a sub-folder name (e.g. ``"plots"``) when the set replaces only that part of the
+    previous set. ``iteration``: recorded in ``.fvrans-outputs.json``.
+    """
+    out = open_folder(folder)
+    stage = out / STAGING
+    shutil.rmtree(stage, ignore_errors=True)
+    stage.mkdir()
+    try:
+        yield stage
+        files = _files_below(stage)
+        new = {"files": files, "iteration": iteration, "scope": scope}
+        with holding_stops():  # from the commit point on, the set is put in place whole
+            write_json_atomic(stage / MANIFEST, new)
+            fsync_dir(stage)
+            _put_in_place(out, stage, new)
+    except BaseException:
+        if not (stage / MANIFEST).is_file():
+            shutil.rmtree(stage, ignore_errors=True)
+        raise
+
+
+def listed_outputs(folder: str | os.PathLike) -> dict[str, Any] | None:
+    """The content of ``folder/.fvrans-outputs.json`` (files of the current set, iteration), or None."""
+    return _read_manifest(Path(folder) / MANIFEST)
+
+
+__all__ = ["MANIFEST", "STAGING", "listed_outputs", "open_folder", "output_set", "recover"]

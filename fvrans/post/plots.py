@@ -26,7 +26,16 @@ from matplotlib.colors import Normalize, TwoSlopeNorm
 from matplotlib.figure import Figure
 
 from fvrans.errors import CaseError
-from fvrans.post._plot_data import FieldData, read_csv_columns, read_fields, read_summary
+from fvrans.post._plot_data import (
+    MAX_NAME_CHARS,
+    MAX_TITLE_CHARS,
+    FieldData,
+    cap_text,
+    read_csv_columns,
+    read_fields,
+    read_summary,
+)
+from fvrans.post.outputs import output_set, recover
 from fvrans.post.residuals import RESIDUAL_LABEL, RESIDUAL_NORMALISATION
 from fvrans.post.writers import atomic_path, safe_file_name
 
@@ -48,6 +57,8 @@ __all__ = [
 ]
 
 FIGSIZE = (7.0, 4.0)  # inches
+#: the sub-folder of a result folder that holds its plots
+PLOTS_DIR = "plots"
 #: field-map windows less high than this per unit width are drawn with y stretched
 THIN_WINDOW = 0.08
 DPI = 120
@@ -87,7 +98,9 @@ def save_figure(fig: Figure, path: str | os.PathLike, within: str | os.PathLike 
 
 def _title(case_title: str | None, what: str, width: int = 72) -> str:
     """``"<case title>: <what>"``; when longer than ``width`` characters (about 10 per inch of
-    figure at size 11) the case title and the subject go on lines of their own, each wrapped."""
+    figure at size 11) the case title and the subject go on lines of their own, each wrapped.
+    The case title is cut to :data:`MAX_TITLE_CHARS` characters."""
+    case_title = cap_text(case_title, MAX_TITLE_CHARS) if case_title else case_title
     if not case_title:
         return what[:1].upper() + what[1:]
     text = f"{case_title}: {what}"
@@ -151,7 +164,7 @@ def residual_figure(
     marker = "o" if len(it) < 3 else None
     for name, r in res.items():
         y = np.where(np.isfinite(r) & (r > 0), r, np.nan)
-        ax.plot(it, y, label=name, lw=1.3, marker=marker)
+        ax.plot(it, y, label=cap_text(name), lw=1.3, marker=marker)
     ax.set_yscale("log")
     ax.set_xlabel("outer iteration")
     ax.set_ylabel(f"{RESIDUAL_LABEL} [-]")
@@ -298,7 +311,8 @@ def wall_figure(
     lo, hi, clipped = _wall_range(coord, val, axis, scale)
     for k, (label, x, y) in enumerate(_reference_curves(references, coord, where)):
         # dashed and on top: a reference the computation lies on stays visible
-        ax.plot(x * scale, y, color=f"C{k + 1}", lw=1.4, ls=("--", "-.", ":")[k % 3], label=label, zorder=4)
+        ax.plot(x * scale, y, color=f"C{k + 1}", lw=1.4, ls=("--", "-.", ":")[k % 3], label=cap_text(label),
+                zorder=4)
         if len(y) > 4:  # correlations can be singular at a leading edge: don't let that set the range
             lo, hi = min(lo, float(np.percentile(y, 2))), max(hi, float(np.percentile(y, 98)))
     if quantity == "cf":
@@ -311,7 +325,8 @@ def wall_figure(
     xlabel = _length_label("x" if along == "x" else "s (arc length along the wall)", l_ref)
     ax.set_xlabel(f"{xlabel}\n{clipped}" if clipped else xlabel)
     ax.set_ylabel(ylabel)
-    ax.set_title(_title(title, f"{short} along {patch}" if patch else f"{short} along the wall"), fontsize=11)
+    ax.set_title(_title(title, f"{short} along {cap_text(patch)}" if patch else f"{short} along the wall"),
+                 fontsize=11)
     ax.grid(True, alpha=0.3)
     _zero_shear_labels(ax, zs)
     if len(ax.get_legend_handles_labels()[1]) > 1:
@@ -628,7 +643,8 @@ def wall_profile_figure(
     y_hi = max(float(yp.max()) if len(yp) else 100.0, 100.0) * 1.25
     fig = new_figure()
     ax = fig.add_subplot()
-    ax.plot(yp, up, color="C0", lw=1.5, marker="o" if len(yp) <= 40 else None, ms=3.5, label=label, zorder=3)
+    ax.plot(yp, up, color="C0", lw=1.5, marker="o" if len(yp) <= 40 else None, ms=3.5, label=cap_text(label),
+            zorder=3)
     yl = np.geomspace(y_lo, min(15.0, y_hi), 100)
     ax.plot(yl, yl, color="C1", ls="--", lw=1.3, label="u+ = y+", zorder=2)
     yg = np.geomspace(max(5.0, y_lo), y_hi, 100)
@@ -706,7 +722,7 @@ def probe_figure(
         val = cols[q] / u_ref if (velocity and u_ref) else cols[q]
         xy = (val, s_) if vertical else (s_, val)
         ax.plot(*xy, color=f"C{k}", lw=1.5, ls=("-", "--", "-.", ":")[k % 4], marker=marker, ms=4,
-                label=f"{q}, probe {name}" if name else q)
+                label=f"{cap_text(q)}, probe {cap_text(name)}" if name else cap_text(q))
     if velocity or len(quantities) > 1:
         (ax.axvline if vertical else ax.axhline)(0.0, color="0.55", lw=0.8, zorder=1)
     lim = (float(s_.min()), float(s_.max())) if len(s_) > 1 else (0.0, 1.0)
@@ -719,7 +735,8 @@ def probe_figure(
         ax.set_ylabel(label)
         ax.set_xlim(*lim)
     what = ", ".join(quantities)
-    ax.set_title(_title(title, f"{what} along probe {name!r}" if name else f"{what} along a probe",
+    what = cap_text(what, 2 * MAX_NAME_CHARS)
+    ax.set_title(_title(title, f"{what} along probe {cap_text(name)!r}" if name else f"{what} along a probe",
                         width=int(10.5 * fig.get_figwidth())), fontsize=11)
     ax.grid(True, alpha=0.3)
     ax.legend(loc="best", fontsize=9)
@@ -754,12 +771,13 @@ def result_figures(
     ``window`` (xmin, xmax, ymin, ymax), or else the ``map_window`` of summary.json (the case's
     ``output.map_window``), adds zoomed maps ``field_<quantity>_zoom.png``.
 
-    ``residuals.png``; ``wall_<patch>_cf.png`` and ``wall_<patch>_cp.png`` per wall table, with
-    the zero-shear points of summary.json and the curves of ``references[patch]["cf" | "cp"]``
-    (see :func:`wall_figure`); ``field_velocity.png`` (with streamlines), ``field_pressure.png``
-    and ``field_eddy_viscosity_ratio.png`` (when present) from fields.vtu; ``profile_<name>.png`` for each
-    ``profiles/<name>.csv`` with ``y_plus`` and ``u_plus`` columns, ``probe_<name>.png`` (u and v
-    along the probe) for each line-probe table. Input problems are checked
+    ``residuals.png``; ``monitored.png`` (:mod:`fvrans.post.monitor_plot`); ``wall_<patch>_cf.png``
+    and ``wall_<patch>_cp.png`` per wall table, with the zero-shear points of summary.json and the
+    curves of ``references[patch]["cf" | "cp"]`` (see :func:`wall_figure`); ``field_velocity.png``
+    (with streamlines), ``field_pressure.png`` and ``field_eddy_viscosity_ratio.png`` (when
+    present) from fields.vtu; ``profile_<name>.png`` for each ``profiles/<name>.csv`` with
+    ``y_plus`` and ``u_plus`` columns, ``probe_<name>.png`` (u and v along the probe) for each
+    line-probe table. Input problems are checked
     before the first figure is made.
     """
     rd = Path(result_dir)
@@ -813,6 +831,10 @@ def _result_figures(rd: Path, title: str | None, reference: Mapping[str, Any] | 
                     ) -> Iterator[tuple[str, Figure]]:
     if have_res:
         yield "residuals.png", residual_figure(rd / "residuals.csv", title=title)
+    if (rd / "monitored.csv").is_file():
+        from fvrans.post.monitor_plot import monitor_figure
+
+        yield "monitored.png", monitor_figure(rd / "monitored.csv", title=title)
     names = _patch_of_file(walls_info)
     for wf in wall_files:
         patch = names.get(wf.stem, wf.stem)
@@ -855,10 +877,31 @@ def make_plots(
     mesh_edges: bool = False,
     streamlines: bool = True,
     window: Sequence[float] | None = None,
+    should_stop: Callable[[], bool] | None = None,
 ) -> list[Path]:
-    """Save the figures of :func:`result_figures` as PNGs into ``out_dir`` (default
-    ``result_dir/plots``), each atomically; return the paths written."""
+    """Save the figures of :func:`result_figures` as PNGs into ``out_dir``, each atomically, and
+    return the paths written. By default into ``result_dir/plots`` as one set that replaces the
+    previous plots there when the last is drawn (:func:`fvrans.post.outputs.output_set`).
+    ``should_stop()``, asked before each figure, ends the drawing early (the figures drawn so far
+    are kept)."""
+    recover(result_dir)  # a set of outputs half put in place by a killed run is finished first
     figures = result_figures(result_dir, references, mesh_edges=mesh_edges, streamlines=streamlines, window=window)
-    out = Path(out_dir) if out_dir is not None else Path(result_dir) / "plots"
+    if out_dir is not None:
+        out = Path(out_dir)
+        out.mkdir(parents=True, exist_ok=True)
+        return _save_all(figures, out, should_stop)
+    rd = Path(result_dir)
+    with output_set(rd, scope=PLOTS_DIR) as stage:
+        saved = _save_all(figures, stage / PLOTS_DIR, should_stop)
+    return [rd / PLOTS_DIR / p.name for p in saved]
+
+
+def _save_all(figures: Iterator[tuple[str, Figure]], out: Path, should_stop: Callable[[], bool] | None) -> list[Path]:
     out.mkdir(parents=True, exist_ok=True)
-    return [save_figure(fig, out / name, within=out) for name, fig in figures]
+    saved = []
+    while should_stop is None or not should_stop():  # asked before each figure is drawn
+        item = next(figures, None)
+        if item is None:
+            break
+        saved.append(save_figure(item[1], out / item[0], within=out))
+    return saved

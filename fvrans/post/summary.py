@@ -31,8 +31,9 @@ def summary_value(summary: Any, dotted: str, where: str, none_as_nan: bool = Fal
             node = node[int(part)]
         else:
             at = ".".join(done) or "the top level"
-            if isinstance(node, dict):
-                have = ", ".join(sorted(map(str, node))) or "nothing"
+            if isinstance(node, dict):  # key names only, short ones, a few (no file contents)
+                keys = sorted(str(k) for k in node if len(str(k)) <= 40 and str(k).isprintable())
+                have = ", ".join(keys[:12]) + (f" and {len(node) - 12} more" if len(node) > 12 else "") or "nothing"
             else:
                 have = f"a {type(node).__name__}"
             raise CaseError(f"{where}: no key {part!r} under {at}; there are: {have}")
@@ -40,7 +41,8 @@ def summary_value(summary: Any, dotted: str, where: str, none_as_nan: bool = Fal
     if node is None and none_as_nan:
         return float("nan")
     if isinstance(node, bool) or not isinstance(node, (int, float)):
-        raise CaseError(f"{where}: {dotted} is {node!r}, not a number")
+        what = "null" if node is None else f"a {type(node).__name__}"
+        raise CaseError(f"{where}: {dotted} is {what}, not a number")
     return float(node)
 
 

@@ -252,12 +252,16 @@ def wall_data(
     u_ref: float,
     p_ref: float = 0.0,
     rho_ref: float | None = None,
+    order: PatchOrder | None = None,
+    gradient: WallGradient | None = None,
 ) -> WallData:
     """Shear stress, skin friction, wall pressure and y+ on the wall patch ``patch_name``.
 
     ``velocity`` (nc, 2), ``pressure`` (nc,) and ``grad_p`` (nc, 2) are cell values; ``mu`` is
     the molecular dynamic viscosity; ``rho_ref`` the density of Cf and Cp (default ``rho``).
-    Formulas in the module docstring.
+    Formulas in the module docstring. ``order``: the patch's :func:`order_patch_faces` and
+    ``gradient``: its :func:`wall_gradient_operator` (on the ordered faces), when already known
+    (evaluations every iteration reuse them).
     """
     _check_reference(rho, mu, u_ref)
     if rho_ref is not None:
@@ -280,7 +284,8 @@ def wall_data(
         if a.shape != shape:
             raise ValueError(f"{name} has shape {a.shape}, expected {shape} (one per cell)")
 
-    order = order_patch_faces(mesh, geom, patch_name)
+    if order is None:
+        order = order_patch_faces(mesh, geom, patch_name)
     f = patch.start + order.faces
     P = mesh.face_owner[f]
     xf = geom.face_centre[f]
@@ -294,7 +299,9 @@ def wall_data(
             f"{mesh.source}: cell {int(P[k])} lies on the wrong side of its wall face at "
             f"({xf[k, 0]:.6g}, {xf[k, 1]:.6g}) of patch {patch_name!r}; the mesh is inverted there"
         )
-    op = wall_gradient_operator(mesh, geom, boundary, f)
+    op = gradient if gradient is not None else wall_gradient_operator(mesh, geom, boundary, f)
+    if not np.array_equal(op.faces, f):
+        raise ValueError(f"the wall gradient given for patch {patch_name!r} is not on its ordered faces")
     G = op.velocity(velocity, boundary.velocity)
     n_in = -n_out
     traction = mu * (np.einsum("kij,kj->ki", G, n_in) + np.einsum("kji,kj->ki", G, n_in))

@@ -34,7 +34,12 @@ _UMASK = os.umask(0)
 os.umask(_UMASK)
 
 
-def _fsync_dir(directory: Path) -> None:
+#: prefix of the temporary files of atomic writes (a killed process may leave one behind;
+#: :func:`fvrans.post.outputs.recover` removes them)
+TMP_PREFIX = ".fvrans-tmp-"
+
+
+def fsync_dir(directory: Path) -> None:
     """Make the rename durable (POSIX); silently skipped where directories cannot be opened."""
     try:
         fd = os.open(directory, os.O_RDONLY)
@@ -60,7 +65,7 @@ def atomic_path(path: PathLike, suffix: str | None = None, within: PathLike | No
     if not directory.is_dir():
         raise CaseError(f"cannot write {target}: the directory {directory} does not exist")
     fd, tmp_name = tempfile.mkstemp(
-        dir=directory, prefix=f".{target.name}.", suffix=suffix if suffix is not None else ".tmp"
+        dir=directory, prefix=f"{TMP_PREFIX}{target.name[:80]}.", suffix=suffix if suffix is not None else ".tmp"
     )
     os.close(fd)
     tmp = Path(tmp_name)
@@ -76,7 +81,7 @@ def atomic_path(path: PathLike, suffix: str | None = None, within: PathLike | No
         with contextlib.suppress(FileNotFoundError):
             tmp.unlink()
         raise
-    _fsync_dir(directory)
+    fsync_dir(directory)
 
 
 def atomic_write(path: PathLike, write: Callable[[IO[Any]], None], binary: bool = False,
@@ -266,6 +271,6 @@ def write_vtu_atomic(
 
 
 __all__ = [
-    "atomic_path", "atomic_write", "check_inside", "output_file", "safe_file_name", "to_jsonable",
-    "vtu_cell_blocks", "write_csv_atomic", "write_json_atomic", "write_vtu_atomic",
+    "TMP_PREFIX", "atomic_path", "atomic_write", "check_inside", "fsync_dir", "output_file", "safe_file_name",
+    "to_jsonable", "vtu_cell_blocks", "write_csv_atomic", "write_json_atomic", "write_vtu_atomic",
 ]

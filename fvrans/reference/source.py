@@ -262,9 +262,12 @@ def read_mesh_data(path: str | os.PathLike, names: Mapping[str, str] | None = No
 def read_result_folder(folder: str | os.PathLike) -> FieldSource:
     """The cell fields of an fvrans result folder (``fields.vtu``: velocity, pressure and, with
     Spalart-Allmaras, nu_tilde, eddy_viscosity_ratio, wall_distance)."""
+    from fvrans.post.outputs import recover
+
     d = Path(folder)
     if not d.is_dir():
         raise CaseError(f"result folder {d} does not exist (a folder fvrans run --out wrote)")
+    recover(d)  # a set of outputs half put in place by a killed run is finished first
     f = d / RESULT_FIELDS
     if not f.is_file():
         raise CaseError(f"{d}: no {RESULT_FIELDS} in this folder; is it the output folder of a run "

@@ -16,6 +16,10 @@ from pathlib import Path
 import numpy as np
 
 from fvrans.errors import CaseError
+from fvrans.files import read_text
+
+#: largest reference data file read
+MAX_REFERENCE_BYTES = 256 * 2**20
 
 COMMENT_MARKS = ("#", "%", "!", "//")
 
@@ -100,12 +104,9 @@ def _is_number(token: str) -> bool:
 
 def _read_text(path: str | os.PathLike) -> tuple[str, list[str]]:
     p = Path(path)
-    if not p.is_file():
+    if not p.exists() and not p.is_symlink():
         raise CaseError(f"reference file {p} does not exist (paths in a spec are relative to the spec file)")
-    try:
-        text = p.read_text(encoding="utf-8-sig")
-    except UnicodeDecodeError as exc:
-        raise CaseError(f"{p}: not a text file ({exc.reason} at byte {exc.start})") from None
+    text = read_text(p, "reference file", max_bytes=MAX_REFERENCE_BYTES)
     return str(p), text.splitlines()
 
 

@@ -22,14 +22,15 @@ FREESTREAM = 4
 
 @njit(cache=True)
 def assemble_momentum(
-    owner, neigh, n_int, S, dcoef, kvec, w, xf, xc, F, mu_f, u, gu, gc, gwall, bkind, bvel, second_order,
+    owner, neigh, n_int, S, dcoef, kvec, w, xf, xc, shift, F, mu_f, u, gu, gc, gwall, bkind, bvel, second_order,
     diag_u, diag_v, off_own, off_nei, bu, bv,
 ):
     """Coefficients of sum_f [F u_f - mu_f (grad u + grad u^T)_f . S_f] = 0 for both components.
 
     Implicit: first-order upwind convection and orthogonal diffusion. Explicit (deferred):
     linear-upwind correction F (u_f^LUD - u_f^UD) = F gc_U . (x_f - x_U) with the upwind cell's
-    gradient ``gc`` (the solver passes the face-sum gradient, see ``SimpleSolver``), non-orthogonal
+    gradient ``gc`` (the solver passes the face-sum gradient, see ``SimpleSolver``; the neighbour
+    at x_N + ``shift[f]``, its image across a periodic face), non-orthogonal
     diffusion mu k . grad u_f and the transpose-gradient stress mu (grad u)^T_f . S_f with ``gu``.
     Wall faces: the flux is mu (G + G^T) . S with the second-order wall gradient G = ``gwall[b]``
     (nb, 2, 2; ``fvrans.fv.wall_gradient``), the gradient the wall shear stress is reported with;
@@ -70,9 +71,14 @@ def assemble_momentum(
         su = mu * (k0 * g00 + k1 * g01 + g00 * s0 + g10 * s1)
         sv = mu * (k0 * g10 + k1 * g11 + g01 * s0 + g11 * s1)
         if second_order:
-            U = P if Ff >= 0.0 else N
-            r0 = xf[f, 0] - xc[U, 0]
-            r1 = xf[f, 1] - xc[U, 1]
+            if Ff >= 0.0:
+                U = P
+                r0 = xf[f, 0] - xc[P, 0]
+                r1 = xf[f, 1] - xc[P, 1]
+            else:
+                U = N
+                r0 = xf[f, 0] - xc[N, 0] - shift[f, 0]
+                r1 = xf[f, 1] - xc[N, 1] - shift[f, 1]
             su -= Ff * (gc[U, 0, 0] * r0 + gc[U, 0, 1] * r1)
             sv -= Ff * (gc[U, 1, 0] * r0 + gc[U, 1, 1] * r1)
         bu[P] += su

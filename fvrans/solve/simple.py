@@ -46,6 +46,7 @@ from fvrans.mesh.mesh import Mesh
 from fvrans.models.base import EddyViscosityModel, TurbulenceModel  # noqa: F401 (the interface's old home)
 from fvrans.physics.boundary import SYMMETRY, WALL, FlowBoundary
 from fvrans.solve import _kernels as K
+from fvrans.solve.mean_flow import BulkVelocityControl
 
 log = logging.getLogger(__name__)
 
@@ -141,6 +142,9 @@ class SimpleSolver:
     ``mu`` is the dynamic viscosity, ``rho`` the density. ``model`` (a
     :class:`fvrans.models.base.TurbulenceModel`; laminar when None) supplies the eddy viscosity,
     an optional explicit extra stress and its own equations, advanced once per outer iteration.
+    ``body_force`` (per unit volume; a periodic flow's -dp/dx) and ``bulk_velocity`` (the volume-mean
+    velocity a periodic flow must carry; its uniform driving force is found each iteration, see
+    :mod:`fvrans.solve.mean_flow`) drive the flow.
     """
 
     def __init__(
@@ -154,6 +158,7 @@ class SimpleSolver:
         fields: Fields | None = None,
         model: TurbulenceModel | None = None,
         body_force: Callable[[np.ndarray], np.ndarray] | np.ndarray | None = None,
+        bulk_velocity: Any = None,
     ):
         self.mesh = mesh
         self.geom = geom
@@ -261,6 +266,7 @@ class SimpleSolver:
             self.body = np.asarray(body_force(geom.cell_centre), dtype=float).reshape(nc, 2)
         else:
             self.body = np.broadcast_to(np.asarray(body_force, dtype=float), (nc, 2)).copy()
+        self.bulk = None if bulk_velocity is None else BulkVelocityControl(bulk_velocity, geom.cell_area)
         self.history = History(names=["u", "v", "continuity", *self.model.names])
         self.iteration = 0
         self.fields = fields.copy() if fields is not None else Fields.uniform(nc, nf)
@@ -281,6 +287,8 @@ class SimpleSolver:
     def _velocity_scale(self) -> float:
         s = float(np.abs(self.bc.velocity).max(initial=0.0))
         s = max(s, float(np.abs(self.fields.velocity).max(initial=0.0)))
+        if self.bulk is not None:
+            s = max(s, self.bulk.speed)
         return s if s > 0 else 1.0
 
     def _interpolated_fluxes(self, u: np.ndarray) -> np.ndarray:
@@ -347,7 +355,7 @@ class SimpleSolver:
         t2 = time.perf_counter()
         K.assemble_momentum(
             self.owner, self.neigh, ni, self.S, self.dcoef, self.kvec, g.face_weight,
-            g.face_centre, g.cell_centre, F_old, self.muf, u_old, gu, gc, self.gwall, kind,
+            g.face_centre, g.cell_centre, g.face_shift, F_old, self.muf, u_old, gu, gc, self.gwall, kind,
             self.bc.velocity, ctl.convection == "linear-upwind",
             self.diag_u, self.diag_v, self.off_own, self.off_nei, self.bu, self.bv,
         )
@@ -381,6 +389,10 @@ class SimpleSolver:
                            ctl.momentum_sweeps, ctl.momentum_tolerance)
             K.gauss_seidel(mv_.indptr, mv_.indices, mv_.data, self.asm_v.diag_pos, self.rhs_v, vs,
                            ctl.momentum_sweeps, ctl.momentum_tolerance)
+        if self.bulk is not None:  # the uniform force that makes the predicted velocity carry the bulk
+            df = self.bulk.adjust(mu_, mv_, us, vs)
+            self.body += df
+            self.b_np += self.vol[:, None] * df
         t4 = time.perf_counter()
         # H/A without the relaxation term: ((b - N u*) / A), A the relaxed diagonal; D for p'
         K.interpolation_coefficients(
@@ -448,13 +460,15 @@ class SimpleSolver:
         max_iterations: int | None = None,
         tolerance: float | None = None,
         callback: Callable[[int, list[float]], bool | None] | None = None,
+        converged_when: Callable[[int, list[float]], bool] | None = None,
     ) -> bool:
         """Iterate until every normalised imbalance is below ``tolerance`` (True) or the limit (False).
 
         NaN/Inf, a speed above ``RUNAWAY_SPEED`` times the velocity scale, a linear system that
         lost its diagonal, or growth of a residual by ``divergence_factor`` above its minimum
         raises DivergenceError carrying the last good fields. ``callback(iteration, residuals)`` may
-        return True to stop early.
+        return True to stop early. ``converged_when(iteration, residuals)``, asked only when every
+        residual is below the tolerance, must also return True for the run to stop as converged.
         """
         n_max = self.ctl.max_iterations if max_iterations is None else max_iterations
         tol = self.ctl.tolerance if tolerance is None else tolerance
@@ -498,8 +512,9 @@ class SimpleSolver:
                     iteration=self.iteration - 1,
                 )
             last_good = self.fields.copy()
-            if callback is not None and callback(self.iteration, res):
-                return bool(np.all(arr < tol))
-            if np.all(arr < tol):
+            stop = callback is not None and bool(callback(self.iteration, res))
+            if np.all(arr < tol) and (converged_when is None or converged_when(self.iteration, res)):
                 return True
+            if stop:
+                return False
         return False

@@ -19,12 +19,34 @@ from fvrans.post.filenames import output_file
 from fvrans.post.summary import summary_value
 from fvrans.sweep.spec import Output
 
+#: largest wall table read back (a wall/<patch>.csv of a run is far smaller)
+MAX_TABLE_BYTES = 256 * 1024 * 1024
+
 
 def read_wall_table(path: Path) -> dict[str, np.ndarray]:
-    """The columns of a ``wall/<patch>.csv`` file by name."""
-    with open(path, encoding="utf-8") as f:
-        names = f.readline().strip().split(",")
-    data = np.loadtxt(path, delimiter=",", skiprows=1, ndmin=2)
+    """The columns of a ``wall/<patch>.csv`` file by name. A file that is not such a table raises
+    CaseError naming the file and line only: none of its content goes into messages (they end up
+    in results tables)."""
+    try:
+        if not path.is_file() or path.stat().st_size > MAX_TABLE_BYTES:
+            raise CaseError(f"{path}: not a regular file of at most {MAX_TABLE_BYTES >> 20} MiB")
+        with open(path, encoding="utf-8") as f:
+            lines = f.read().splitlines()
+    except UnicodeDecodeError:
+        raise CaseError(f"{path}: not UTF-8 text") from None
+    names = lines[0].split(",") if lines else []
+    if not names or not all(n.strip() for n in names):
+        raise CaseError(f"{path} line 1: not a header of column names")
+    rows = []
+    for lineno, line in enumerate(lines[1:], 2):
+        cells = line.split(",")
+        if len(cells) != len(names):
+            raise CaseError(f"{path} line {lineno}: {len(cells)} values for {len(names)} columns")
+        try:
+            rows.append([float(c) for c in cells])
+        except ValueError:
+            raise CaseError(f"{path} line {lineno}: a value is not a number") from None
+    data = np.array(rows, dtype=float).reshape(-1, len(names))
     return {n: data[:, j] for j, n in enumerate(names)}
 
 
@@ -75,7 +97,7 @@ def collect_outputs(run_dir: str | Path, outputs: Sequence[Output]) -> tuple[dic
                     walls[o.wall] = read_wall_table(path)
                 cols = walls[o.wall]
                 if o.quantity not in cols:
-                    raise CaseError(f"{where}: {path} has no column {o.quantity!r}; it has {', '.join(cols)}")
+                    raise CaseError(f"{where}: {path} line 1 names no column {o.quantity!r}")
                 seg = cols.get("segment", np.zeros(len(cols["x"])))
                 v = value_at_station(cols["x"], cols[o.quantity], seg, float(o.x), f"{where}: {path}")
             values[o.name] = v if math.isfinite(v) else None

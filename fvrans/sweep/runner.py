@@ -28,7 +28,9 @@ import numpy as np
 
 from fvrans.case import Case
 from fvrans.errors import CaseError, FvransError
+from fvrans.post.outputs import recover
 from fvrans.post.writers import atomic_write, to_jsonable, write_json_atomic
+from fvrans.stop import Stopped, holding_stops
 from fvrans.sweep.collect import collect_outputs
 from fvrans.sweep.plan import DesignPoint, design_points
 from fvrans.sweep.spec import Output, Sweep, check_against_case, check_sweep, load_sweep
@@ -164,6 +166,7 @@ def _finished_record(run_dir: Path) -> dict[str, Any] | None:
     path = run_dir / RECORD
     if not path.is_file():
         return None
+    recover(run_dir)  # outputs half put in place by a killed worker are finished first
     try:
         rec = json.loads(path.read_text(encoding="utf-8"))
     except (OSError, ValueError):
@@ -173,8 +176,8 @@ def _finished_record(run_dir: Path) -> dict[str, Any] | None:
     return rec
 
 
-def _failed_record(key: str, changes: dict[str, Any], error: str) -> dict[str, Any]:
-    return {"key": key, "parameters": changes, "status": "failed", "converged": False, "iterations": None,
+def _failed_record(key: str, changes: dict[str, Any], error: str, status: str = "failed") -> dict[str, Any]:
+    return {"key": key, "parameters": changes, "status": status, "converged": False, "iterations": None,
             "wall_seconds": None, "error": error, "outputs": {}, "output_errors": []}
 
 
@@ -246,16 +249,23 @@ def _run_on_dask(tasks: Sequence[RunTask], done: Done, client: Any, timeout: flo
 
 def _local_cluster(n_workers: int) -> tuple[Any, Any]:
     """A local dask cluster on the loopback interface only (processes, one thread each, no
-    dashboard; the scheduler's small HTTP server on a free loopback port) and a client of it."""
-    from distributed import Client, LocalCluster
+    dashboard; the scheduler's small HTTP server on a free loopback port) and a client of it.
 
+    Its connections use TLS with mutual authentication by temporary credentials made for this
+    cluster alone (``distributed.security.Security.temporary``, held in memory): another local
+    user can reach the loopback port but cannot connect without them, so cannot run code in the
+    workers."""
+    from distributed import Client, LocalCluster
+    from distributed.security import Security
+
+    security = Security.temporary()
     cluster = LocalCluster(
         n_workers=n_workers, threads_per_worker=1, processes=True, host="127.0.0.1",
         dashboard_address=None, scheduler_kwargs={"dashboard_address": "127.0.0.1:0"},
-        silence_logs=logging.ERROR,
+        silence_logs=logging.ERROR, security=security,
     )
     try:
-        client = Client(cluster, timeout=CONNECT_TIMEOUT)
+        client = Client(cluster, timeout=CONNECT_TIMEOUT, security=security)
     except BaseException:
         cluster.close()
         raise
@@ -263,8 +273,14 @@ def _local_cluster(n_workers: int) -> tuple[Any, Any]:
 
 
 def _connect(address: str) -> Any:
+    """A client of the scheduler at ``address``; TLS credentials come from the dask configuration
+    (README: securing a cluster)."""
     from distributed import Client
 
+    host = address.split("://", 1)[-1].rsplit(":", 1)[0].strip("[]")
+    if not address.startswith("tls://") and host not in ("127.0.0.1", "localhost", "::1"):
+        log.warning("the scheduler at %s is reached without TLS: anyone who can reach it can run code on its "
+                    "workers; see README, 'Securing a cluster'", address)
     try:
         return Client(address, timeout=CONNECT_TIMEOUT)
     except (OSError, TimeoutError) as exc:
@@ -395,6 +411,7 @@ def run_sweep(
     if sweep.warm_start and sweep.sampling != "factorial":
         todo.sort(key=lambda t: _order_key(list(t.changes.values())))
     t0 = time.perf_counter()
+    stopped: BaseException | None = None
     try:
         n = default_workers() if workers is None else workers
         if not todo:
@@ -416,30 +433,49 @@ def run_sweep(
                 client.close()
         else:
             _run_on_dask(todo, done, scheduler, timeout, sweep.warm_start)
+    except (Stopped, KeyboardInterrupt) as exc:  # write the table of the runs done, then stop
+        stopped = exc
     finally:
         bar.close()
+    if stopped is not None:
+        why = f"the sweep was stopped by {getattr(stopped, 'signal_name', 'SIGINT')} before this run finished; " \
+              "rerun the command to continue"
+        for p, k in zip(points, point_keys):
+            if k not in records:
+                records[k] = _failed_record(k, p.changes, why, status="not-run")
     rows = [_row(p, sweep, records[k]) for p, k in zip(points, point_keys) if k in records]
     table = ResultsTable(
         table_columns([p.name for p in sweep.parameters], [o.name for o in sweep.outputs]), rows,
         meta={"title": sweep.title, "spec": sweep.label, "base_case": base.label, "fvrans": _version(),
+              "parameters": [p.name for p in sweep.parameters],
               "sampling": sweep.sampling, "runs_done": len(todo), "runs_reused": reused, "runs_refused": refused,
-              "seconds": time.perf_counter() - t0},
+              "seconds": time.perf_counter() - t0, "stopped": stopped is not None},
     )
-    write_table(out, table)
+    with holding_stops():  # the table is written whole, even when a stop arrives meanwhile
+        write_table(out, table)
+    if stopped is not None:
+        raise stopped
     return table
 
 
 def sweep_command(spec: str | Path, out_dir: str | Path, workers: int | None = None,
                   scheduler: str | None = None, quiet: bool = False) -> int:
     """``fvrans sweep``: run a spec file; exit status 0 all runs fine, 1 any failed or did not
-    converge (or an output is missing), 2 bad spec (raised as CaseError)."""
+    converge (or an output is missing), 2 bad spec (raised as CaseError), 130 / 143 stopped by
+    SIGINT / SIGTERM (the table of the runs done so far is written)."""
     sweep = load_sweep(spec)
     if workers != 1 or scheduler is not None:
         import distributed  # noqa: F401 - its import sets its loggers' levels; quieten them after
     dask_log = logging.getLogger("distributed")
     if not log.isEnabledFor(logging.DEBUG) and dask_log.getEffectiveLevel() < logging.WARNING:
         dask_log.setLevel(logging.WARNING)  # the cluster's start/stop messages
-    table = run_sweep(sweep, out_dir, workers=workers, scheduler=scheduler, progress=not quiet)
+    try:
+        table = run_sweep(sweep, out_dir, workers=workers, scheduler=scheduler, progress=not quiet)
+    except Stopped as exc:
+        print(f"stopped by {exc.signal_name}: the results table of the runs done so far is in "
+              f"{Path(out_dir) / 'results.csv'} (the others are marked not-run); rerun the same command to "
+              "continue", file=sys.stderr)
+        return exc.exit_status
     bad = table.failed()
     if not quiet:
         meta = table.meta

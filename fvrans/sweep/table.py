@@ -1,10 +1,10 @@
 """The results table of a sweep: one row per design point, written atomically as CSV and JSON.
 
 Columns: ``run`` (position in the plan), ``key`` (the run folder ``runs/<key>``; none for values the
-case refuses), one column per
-parameter and per output (by name), ``status`` (``converged``, ``not-converged``, ``diverged`` or
-``failed``), ``converged``, ``iterations``, ``wall_seconds`` (of the whole run: mesh, solve,
-writing) and ``error`` (why a run failed, did not converge or an output could not be collected;
+case refuses), one column per parameter and per output (by name), ``status`` (``converged``,
+``not-converged``, ``diverged`` or ``failed``; ``not-run`` for the runs a stopped sweep did not
+reach), ``converged``, ``iterations``, ``wall_seconds`` (of the whole run: mesh, solve, writing)
+and ``error`` (why a run failed, did not converge or an output could not be collected;
 empty otherwise).
 """
 
@@ -22,7 +22,7 @@ from fvrans.post.writers import atomic_write, to_jsonable, write_json_atomic
 
 TABLE_CSV = "results.csv"
 TABLE_JSON = "results.json"
-STATUSES = ("converged", "not-converged", "diverged", "failed")
+STATUSES = ("converged", "not-converged", "diverged", "failed", "not-run")
 
 
 @dataclass

@@ -25,6 +25,7 @@ import numpy as np
 
 from fvrans.errors import CaseError
 from fvrans.post.filenames import safe_file_name
+from fvrans.post.outputs import recover
 from fvrans.post.summary import summary_value
 from fvrans.reference.meshfile import FieldFile, read_field
 from fvrans.reference.tables import Table, read_csv, read_table
@@ -88,6 +89,7 @@ class ResultDir:
         self.path = Path(path)
         if not self.path.is_dir():
             raise CaseError(f"result directory {self.path} does not exist")
+        recover(self.path)  # a set of outputs half put in place by a killed run is finished first
         self._summary: dict[str, Any] | None = None
         self._fields: FieldFile | None = None
         self._tables: dict[Path, Table] = {}

@@ -41,6 +41,7 @@ from typing import Any
 import numpy as np
 
 from fvrans.errors import CaseError
+from fvrans.post._plot_data import cap_text
 from fvrans.post.filenames import safe_file_name
 
 SAFETY_FACTOR_THREE_GRIDS = 1.25  # Roache (1994) for three or more grids; 3.0 for two grids
@@ -359,8 +360,8 @@ def plot_grid_convergence(gc: GridConvergence, path: str | os.PathLike) -> None:
         ax.errorbar([hp[0]], [gc.phi[0]], yerr=[band], color="C2", capsize=4, label=f"GCI fine {g.gci_fine21:.2%}")
     ax.set_xlim(left=0.0)
     ax.set_xlabel(f"h^p (p = {p:.3g}{'' if math.isfinite(g.p) else ', assumed'})")
-    ax.set_ylabel(gc.name)
-    ax.set_title(f"{gc.name}: {g.behaviour}", fontsize=10)
+    ax.set_ylabel(cap_text(gc.name))
+    ax.set_title(f"{cap_text(gc.name)}: {g.behaviour}", fontsize=10)
     ax.legend(fontsize=8)
     ax.grid(True, lw=0.3)
     fig.tight_layout()

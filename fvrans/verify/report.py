@@ -16,6 +16,7 @@ from typing import Any
 import numpy as np
 
 from fvrans.errors import CaseError
+from fvrans.post._plot_data import cap_text
 from fvrans.post.writers import atomic_path, atomic_write, output_file, to_jsonable, write_json_atomic
 from fvrans.verify.compare import ItemResult, compare
 from fvrans.verify.spec import Spec, load_spec
@@ -56,16 +57,16 @@ def plot_item(res: ItemResult, path: str | os.PathLike) -> None:
             if ys.size and np.all(np.isfinite(ys)):
                 pad = 0.15 * max(float(ys.max() - ys.min()), 1e-12 * max(1.0, float(np.abs(ys).max())))
                 ax.set_ylim(float(ys.min()) - pad, float(ys.max()) + pad)
-        ax.set_xlabel(res.x_label)
+        ax.set_xlabel(cap_text(res.x_label))
         if res.log_x and rc.x.size and rc.x.max() > 0:
             ax.set_xscale("log")
-        ax.set_ylabel(res.label or res.name)
+        ax.set_ylabel(cap_text(res.label or res.name))
     elif res.compared is not None:
         _, ours, ref = res.compared
         if res.kind == "scalar":
             ax.bar([0, 1], [float(ours[0]), float(ref[0])], color=["C0", "C1"])
             ax.set_xticks([0, 1], ["result", "reference"])
-            ax.set_ylabel(res.label or res.name)
+            ax.set_ylabel(cap_text(res.label or res.name))
         else:
             ax.plot(ref, ours, ".", ms=2, label="cells")
             if len(ref):
@@ -74,7 +75,7 @@ def plot_item(res: ItemResult, path: str | os.PathLike) -> None:
             ax.set_xlabel("reference")
             ax.set_ylabel("result")
     value = f"{res.metric} = {res.value:.4g}" if res.value is not None else res.metric
-    ax.set_title(f"{res.name}: {value} (tolerance {res.tolerance:.4g}) {ok}", fontsize=10)
+    ax.set_title(f"{cap_text(res.name)}: {value} (tolerance {res.tolerance:.4g}) {ok}", fontsize=10)
     if ax.get_legend_handles_labels()[0]:
         ax.legend(fontsize=8)
     ax.grid(True, lw=0.3)

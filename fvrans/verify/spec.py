@@ -49,11 +49,6 @@ from typing import Any
 
 from fvrans.errors import CaseError
 
-try:
-    import tomllib
-except ModuleNotFoundError:  # Python 3.10
-    import tomli as tomllib
-
 KINDS = ("wall", "profile", "line", "field", "scalar")
 CURVE_METRICS = ("max_abs", "rms", "l2")
 SCALAR_METRICS = ("rel_error", "abs_error")
@@ -304,13 +299,10 @@ def parse_spec(data: dict[str, Any], path: str | os.PathLike = "<spec>", base: s
 
 def load_spec(path: str | os.PathLike) -> Spec:
     """Read and check a comparison spec (TOML)."""
+    from fvrans.case.load import read_toml
+
     p = Path(path)
-    if not p.is_file():
+    if not p.exists() and not p.is_symlink():
         raise CaseError(f"comparison spec {p} does not exist")
-    try:
-        data = tomllib.loads(p.read_text(encoding="utf-8"))
-    except tomllib.TOMLDecodeError as exc:
-        raise CaseError(f"{p}: not valid TOML ({exc})") from None
-    except UnicodeDecodeError:
-        raise CaseError(f"{p}: not a UTF-8 text file") from None
+    data = read_toml(p)  # a regular file of bounded size and nesting, valid TOML
     return parse_spec(data, p, p.resolve().parent)

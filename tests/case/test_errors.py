@@ -306,7 +306,7 @@ PROFILE_ERRORS = {
         {"profile_columns": {"nu_tilde_ratio": "nr"}},
         ["no column 'nr'"],
     ),
-    "not a number": ("y,u,v\n0,0,0\n1,abc,0\n", {}, ["boundary.in.profile", "line 3", "column 'u'", "'abc'"]),
+    "not a number": ("y,u,v\n0,0,0\n1,abc,0\n", {}, ["boundary.in.profile", "line 3", "column 2", "not a number"]),
     "no header": ("0,0,0\n1,1,0\n", {}, ["line 1", "header line"]),
     "ragged row": ("y,u,v\n0,0\n1,1,0\n", {}, ["line 2", "2 value(s)", "3 columns"]),
     "one row": ("y,u,v\n0,0,0\n", {}, ["1 data row(s)", "at least two"]),

@@ -61,6 +61,24 @@ def write_box_case(folder: Path, names: list[str], file_format: str = "gmsh22", 
     return case
 
 
+def cavity_data(n: int = 8, tolerance: float = 1e-6, max_iterations: int = 3, **tables: dict) -> dict:
+    """A lid-driven cavity on the ``cavity`` generator (n x n cells, Re 100) with its solver limits;
+    ``tables`` are merged into the case's tables (e.g. ``model={"turbulence": ...}``)."""
+    data = {"title": "cavity", "mesh": {"generator": "cavity", "parameters": {"n": n}},
+            "fluid": {"density": 1.0, "viscosity": 0.01},
+            "boundary": {"lid": {"kind": "wall", "velocity": [1.0, 0.0]}, "walls": {"kind": "wall"}},
+            "solver": {"tolerance": tolerance, "max_iterations": max_iterations}}
+    for k, v in tables.items():
+        data.setdefault(k, {}).update(v)
+    return data
+
+
+def write_cavity(path: Path, **kw) -> Path:
+    """:func:`cavity_data` written as a case file at ``path``."""
+    path.write_text(dumps(cavity_data(**kw)), encoding="utf-8")
+    return path
+
+
 def files_under(root: Path) -> set[Path]:
     """Every file and symbolic link below ``root``."""
     return {p for p in root.rglob("*") if p.is_file() or p.is_symlink()}
