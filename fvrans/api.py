@@ -39,13 +39,14 @@ from fvrans.mesh.locate import CellLocator
 from fvrans.mesh.mesh import Mesh
 from fvrans.mesh.morph import topology_difference
 from fvrans.models import model_class, model_for_case, residual_names
-from fvrans.models.base import TurbulenceModel
+from fvrans.models.base import TurbulenceModel, reynolds_stress
 from fvrans.monitor import (
     MONITOR_CSV,
     FlowState,
     Monitor,
     case_monitor,
     derived_value,
+    frozen_monitor,
     probe_stencils,
     sample_flow,
     speed_scale,
@@ -66,13 +67,17 @@ from fvrans.post import (
     write_vtu_atomic,
 )
 from fvrans.post.filenames import output_file
-from fvrans.post.forces import Reference, case_reference
+from fvrans.post.forces import ForceReference, case_reference
 from fvrans.post.outputs import output_set
 from fvrans.post.overlay import overlay_plots
 from fvrans.post.probes import build_stencil, line_points, write_probe_csv
 from fvrans.post.wall import zero_shear_columns
 from fvrans.post.wall_resolution import WallResolution, wall_resolution
-from fvrans.reference import FieldSource, cell_source, read_result_folder
+from fvrans.reference import FieldSource, cell_source, read_result_folder, read_source
+from fvrans.reference import diagnostics as ref_diag
+from fvrans.reference.cells import CellReference, reference_from_cells, reference_from_source
+from fvrans.reference.features import feature_table, write_feature_table
+from fvrans.solve.frozen import FrozenVelocitySolver
 from fvrans.solve.simple import History, SimpleSolver, SolverControls
 
 log = logging.getLogger(__name__)
@@ -81,9 +86,13 @@ log = logging.getLogger(__name__)
 ZERO_SHEAR_FOLDER = "wall/zero_shear"
 
 __all__ = [
-    "Problem", "Reference", "Result", "apply_overrides", "build_monitor", "case_from_dict", "load_case",
-    "overlay_plots", "prepare", "reference_values", "residual_names", "result_source", "solve", "start_fields",
+    "Problem", "ForceReference", "Result", "apply_overrides", "build_monitor", "case_from_dict", "load_case",
+    "load_reference", "overlay_plots", "prepare", "force_reference", "residual_names", "result_source", "solve",
+    "start_fields",
 ]
+
+#: the per-cell feature table a run writes with ``[reference] write_features`` (CSV and numpy archive)
+FEATURES = "features"
 
 
 #: the resolved case (every override applied, every default filled in) that ``fvrans run``
@@ -167,15 +176,15 @@ class Result:
         return self.history.as_array()
 
     # -- derived ----------------------------------------------------------------------------
-    def reference(self) -> Reference:
-        """The reference values of the coefficients and forces of this run (:func:`reference_values`)."""
-        return reference_values(self.problem)
+    def force_reference(self) -> ForceReference:
+        """The reference values of the coefficients and forces of this run (:func:`force_reference`)."""
+        return force_reference(self.problem)
 
     def walls(self) -> dict[str, WallData]:
         """Wall data (shear stress, Cf, Cp, y+) of every wall patch the output asks for."""
         if "walls" not in self.extra:
             c = self.case
-            ref = self.reference()
+            ref = self.force_reference()
             self.extra["walls"] = all_wall_data(
                 self.mesh, self.problem.geom, self.problem.boundary, self.velocity, self.pressure,
                 self.grad_p, c.fluid.density, c.fluid.viscosity, ref.velocity, c.output.reference_pressure,
@@ -186,7 +195,7 @@ class Result:
     def forces(self) -> tuple[dict[str, PatchForces], dict[str, PatchForces]]:
         """Forces and moments of every reported wall patch and of every force group of the case
         (``output.force_groups``), in the frame of the free stream (:mod:`fvrans.post.forces`)."""
-        ref = self.reference()
+        ref = self.force_reference()
         o = self.case.output
         return forces_summary(self.walls(), o.reference_length, ref.direction, o.moment_centre, o.force_groups)
 
@@ -219,7 +228,7 @@ class Result:
         if self.case.output.map_window is not None:
             extra["map_window"] = list(self.case.output.map_window)
         extra.update(self._monitor_summary())
-        ref = self.reference()
+        ref = self.force_reference()
         o = self.case.output
         return build_summary(
             self.case.title or self.case.label, self.converged, self.iterations, self.wall_seconds,
@@ -271,6 +280,7 @@ class Result:
         walls = self.walls()
         summary = self.summary()
         case_text = self.case.to_toml() if resolved_case else None
+        features = self.features() if self.case.reference.write_features else None
         n = self.iterations if self.fields_iteration is None else self.fields_iteration
         with output_set(out, iteration=n) as stage:
             # names from the mesh and the case become file names only through output_file
@@ -299,6 +309,8 @@ class Result:
                 self.write_checkpoint(stage / CHECKPOINT_NAME)
             if case_text is not None:
                 atomic_write(stage / RESOLVED_CASE, lambda f: f.write(case_text), within=stage)
+            if features is not None:
+                write_feature_table(features, stage, FEATURES)
             write_json_atomic(stage / "summary.json", summary, within=stage)
         return out
 
@@ -311,6 +323,45 @@ class Result:
             n = len(rows) - 1
             return SimpleNamespace(names=h.names, rows=rows[:n], seconds=h.seconds[:n])
         return h
+
+    # -- reference data -----------------------------------------------------------------------
+    @property
+    def reference(self) -> CellReference | None:
+        """The run's reference flow on the cells (``[reference] data`` or ``solve(reference=...)``)."""
+        return self.extra.get("reference")
+
+    def velocity_gradient(self) -> np.ndarray:
+        """The cell gradient of the final velocity, grad_u[c, i, j] = du_i/dx_j (n_cells, 2, 2)."""
+        g = self.extra.get("gradients")
+        if g is None:
+            raise CaseError(f"{self.case.label}: this result carries no velocity gradients")
+        return np.stack([g["u"], g["v"]], axis=1)
+
+    def reynolds_stress(self) -> np.ndarray | None:
+        """The model's Reynolds stress per unit mass (R_xx, R_xy, R_yy) per cell, None for laminar flow."""
+        if self.model is None or not self.case.turbulent:
+            return None
+        return reynolds_stress(self.model, self.fields, self.velocity_gradient(), self.case.fluid.density)
+
+    def features(self) -> dict[str, np.ndarray]:
+        """The per-cell feature table for data-driven models (:func:`fvrans.reference.features.feature_table`):
+        inputs from this run's velocity (the invariants and tensor basis of its strain and rotation rates,
+        the wall distance), targets from the reference (anisotropy of its stresses; k from the reference,
+        else from the run's model, else NaN)."""
+        ref = self.reference
+        if ref is None:
+            raise CaseError(f"{self.case.label}: the feature table needs reference data with Reynolds stresses; "
+                            "add [reference] data = ... (or pass reference= to fvrans.api.solve)")
+        stress = ref.require_stress("the feature table ([reference] write_features)")
+        n = self.mesh.n_cells
+        k = ref.quantities.get("k", self.fields.variables.get("k"))
+        k = np.full(n, np.nan) if k is None else np.asarray(k, dtype=float)
+        if ref.quantities.get("k") is None:
+            log.info("%s: the reference gives no k; the feature table takes %s", self.case.label,
+                     "the model's k" if "k" in self.fields.variables else "NaN (no anisotropy targets)")
+        wd = _wall_distance(self.problem, self.model)
+        return feature_table(self.cell_centres, np.full(n, np.nan) if wd is None else wd, self.velocity_gradient(),
+                             stress, k, epsilon=ref.quantities.get("epsilon"))
 
     # -- probes -----------------------------------------------------------------------------
     def flow_state(self) -> FlowState:
@@ -379,7 +430,7 @@ class Result:
         )
 
 
-def reference_values(problem: Problem) -> Reference:
+def force_reference(problem: Problem) -> ForceReference:
     """The case's reference values, the missing ones taken from its inflow
     (:func:`fvrans.post.forces.case_reference`)."""
     c = problem.case
@@ -389,9 +440,113 @@ def reference_values(problem: Problem) -> Reference:
 def result_source(result: Result) -> FieldSource:
     """The cell fields of a result (u, v, p and the turbulence model's variables, e.g. nu_tilde) as a
     :class:`~fvrans.reference.FieldSource`, to interpolate onto another mesh."""
+    return cell_source(result.mesh, result.cell_centres, _result_values(result), f"the result of {result.case.label}")
+
+
+def _result_values(result: Result) -> dict[str, np.ndarray]:
+    """u, v, p, the model's variables and, for a turbulent run, its Reynolds stresses R_xx, R_xy, R_yy."""
     f = result.fields
     values = {"u": f.velocity[:, 0], "v": f.velocity[:, 1], "p": f.pressure, **f.variables}
-    return cell_source(result.mesh, result.cell_centres, values, f"the result of {result.case.label}")
+    r = result.reynolds_stress() if "gradients" in result.extra else None
+    if r is not None:
+        values.update({"R_xx": r[:, 0], "R_xy": r[:, 1], "R_yy": r[:, 2]})
+    return values
+
+
+def load_reference(problem: Problem, reference: Any = None) -> CellReference | None:
+    """The reference flow of a run on its cells (:mod:`fvrans.reference.cells`), or None.
+
+    ``reference``: None (the case's ``[reference] data``, read with its ``names`` and ``outside``
+    rule), a path (a CSV point cloud, a mesh file with data or a result folder), a
+    :class:`~fvrans.reference.FieldSource`, a :class:`Result` (on the same mesh: its values, Reynolds
+    stresses and face fluxes as they are; else interpolated), a mapping of per-cell arrays (``u``,
+    ``v``, ``R_xx``, ... on this mesh) or a :class:`~fvrans.reference.cells.CellReference`."""
+    c, mesh = problem.case, problem.mesh
+    if reference is None:
+        if c.reference.data is None:
+            return None
+        reference = c.reference.data
+    if isinstance(reference, CellReference):
+        if reference.n_cells != mesh.n_cells:
+            raise CaseError(f"{c.label}: the reference holds {reference.n_cells} cells but the mesh has {mesh.n_cells}")
+        return reference
+    if isinstance(reference, Result):
+        same = reference.mesh.n_cells == mesh.n_cells and topology_difference(reference.mesh, mesh) is None
+        if same:
+            return reference_from_cells(_result_values(reference), mesh.n_cells,
+                                        f"the result of {reference.case.label}", face_flux=reference.fields.face_flux)
+        reference = result_source(reference)
+    if isinstance(reference, dict):
+        return reference_from_cells(reference, mesh.n_cells)
+    if isinstance(reference, (str, Path)):
+        reference = read_source(reference, names=c.reference.names or None)
+    if not isinstance(reference, FieldSource):
+        raise CaseError(f"{c.label}: reference= takes a path, a FieldSource, a Result, per-cell arrays or a "
+                        f"CellReference, not {type(reference).__name__}")
+    ref = reference_from_source(reference, problem.geom.cell_centre, c.reference.outside)
+    log.info("%s: reference %s: %s", c.label, ref.label, ref.report.get("coverage"))
+    return ref
+
+
+def _wall_distance(problem: Problem, model: TurbulenceModel | None) -> np.ndarray | None:
+    """The cell wall distance (the model's, else measured), None without a wall patch."""
+    d = getattr(model, "wall_distance", None)
+    if d is None and getattr(model, "blend", None) is not None:
+        d = getattr(model.blend, "wall_distance", None)
+    if d is not None:
+        return np.asarray(d)
+    walls = [n for n, k in problem.boundary.patch_kind.items() if k == "wall"]
+    if not walls:
+        return None
+    from fvrans.physics.wall_distance import cell_wall_distance
+
+    return cell_wall_distance(problem.mesh, problem.geom, walls)
+
+
+def _frozen_fields(fields: Fields, ref: CellReference, problem: Problem) -> Fields:
+    """The start of an a-priori run: the reference velocity (and pressure and face fluxes when it
+    has them) with the model variables of ``fields``."""
+    nf = problem.mesh.n_faces
+    p = ref.quantities.get("p")
+    flux = ref.face_flux if ref.face_flux is not None and len(ref.face_flux) == nf else np.zeros(nf)
+    return Fields(ref.velocity.copy(), fields.pressure.copy() if p is None else np.array(p, dtype=float),
+                  np.array(flux, dtype=float), {k: np.array(v) for k, v in fields.variables.items()})
+
+
+def _reference_comparison(problem: Problem, solver: SimpleSolver, model: TurbulenceModel, ref: CellReference,
+                          frozen: bool) -> tuple[dict[str, np.ndarray], dict[str, Any]]:
+    """Cell maps and the ``reference_comparison`` section of summary.json (:mod:`fvrans.reference.diagnostics`)."""
+    c, geom = problem.case, problem.geom
+    nu = c.fluid.kinematic_viscosity
+    regions = c.reference.regions
+    wd = _wall_distance(problem, model) if any(g.wall_distance is not None for g in regions.values()) else None
+    try:
+        masks = ref_diag.region_masks(geom.cell_centre, ref.inside, regions, wd)
+    except ValueError as exc:
+        raise CaseError(f"{c.label}: [reference.regions]: {exc}; remove wall_distance from the region") from None
+    vol = geom.cell_area
+    cells: dict[str, np.ndarray] = {}
+    summary: dict[str, Any] = {"source": ref.label, "kind": ref.kind, "data": ref.report,
+                               "regions": {n: {"cells": int(m.sum())} for n, m in masks.items()}}
+    if not frozen:
+        err, figures = ref_diag.velocity_error(solver.fields.velocity, ref.velocity, vol, masks)
+        cells[ref_diag.VELOCITY_ERROR] = err
+        summary["velocity_error"] = figures
+    if ref.stress is not None:
+        g_ref = solver.velocity_gradient(ref.velocity, ref.face_flux)
+        maps = ref_diag.stress_maps(g_ref, ref.stress, nu)
+        cells.update(maps)
+        if c.turbulent and not model.uses_reference:  # (a model of the reference itself is not compared)
+            f = solver.fields
+            gu = g_ref if frozen else solver.velocity_gradient(f.velocity, f.face_flux)
+            mu_t = model.eddy_viscosity(f)
+            nu_model = np.zeros(len(vol)) if mu_t is None else np.asarray(mu_t) / c.fluid.density
+            dep_cells, dep = ref_diag.model_departure(nu_model, maps[ref_diag.OPTIMAL_RATIO] * nu,
+                                                      reynolds_stress(model, f, gu, c.fluid.density), ref.stress,
+                                                      vol, masks)
+            cells.update(dep_cells)
+            summary["model"] = {"name": c.model.turbulence, **dep}
+    return cells, summary
 
 
 def _interpolated_start(problem: Problem, source: FieldSource) -> tuple[Fields, dict[str, Any]]:
@@ -405,7 +560,7 @@ def _interpolated_start(problem: Problem, source: FieldSource) -> tuple[Fields, 
     laminar cases (coarse-to-fine laminar bump, Re_h 100, to 1e-7: 180 iterations with it, 137
     without, 143 from the uniform start; DEVELOPERS.md has the table)."""
     c, mesh = problem.case, problem.mesh
-    variables = [v for v in model_class(c.model.turbulence).variables if v in source]
+    variables = [v for v in model_class(c.model.turbulence).variables_for(c) if v in source]
     wanted = ["u", "v", *variables]
     got = source.interpolate(problem.geom.cell_centre, wanted, outside="nearest", estimate_error=False,
                              target_label="cell")
@@ -482,7 +637,10 @@ def build_monitor(problem: Problem, initial: Result | Fields | None = None) -> M
     c = problem.case
     start = (initial.fields if isinstance(initial, Result) else initial)
     u0 = start.velocity if start is not None else np.asarray(c.initial.velocity, dtype=float)
-    return case_monitor(c, problem.mesh, problem.geom, problem.boundary, speed_scale(problem.boundary, u0))
+    speed = speed_scale(problem.boundary, u0)
+    if c.reference.freeze_velocity:  # an a-priori run: only the model's variables move
+        return frozen_monitor(c, model_class(c.model.turbulence).variables_for(c), speed)
+    return case_monitor(c, problem.mesh, problem.geom, problem.boundary, speed)
 
 
 def _flow_state(solver: SimpleSolver, model: TurbulenceModel) -> FlowState:
@@ -498,6 +656,7 @@ def solve(
     restart: Checkpoint | str | Path | None = None,
     checkpoint: str | Path | None = None,
     monitor: Monitor | None = None,
+    reference: Any = None,
 ) -> Result:
     """Solve a case (or a prepared Problem). A diverging run returns a Result with ``diverged=True``
     holding the last good state and the message; it does not raise.
@@ -521,6 +680,14 @@ def solve(
     ``monitor``: the run's :class:`fvrans.monitor.Monitor` (default: :func:`build_monitor`), which
     records the watched quantities after every iteration and, with ``monitor.settle``, holds the
     run until they have settled (``Result.stopped_by`` says what ended the run).
+
+    ``reference``: the run's reference flow (default: the case's ``[reference] data``; see
+    :func:`load_reference` for what it takes). With one, the run compares itself with it
+    (fields.vtu maps and ``reference_comparison`` in summary.json, :mod:`fvrans.reference.diagnostics`);
+    ``model.turbulence = "reference-stress"`` injects its Reynolds stresses (:mod:`fvrans.models.injected`);
+    ``[reference] freeze_velocity`` makes the run an a-priori test of the model (only its equations,
+    on the reference velocity: :mod:`fvrans.solve.frozen`); ``[reference] write_features`` writes the
+    feature table (:meth:`Result.features`).
     """
     problem = case if isinstance(case, Problem) else prepare(case)
     c = problem.case
@@ -533,9 +700,16 @@ def solve(
         ckpt.check_matches(c, problem.mesh)
         initial = ckpt.fields
     fields, start = start_fields(problem, initial)
-    model = model_for_case(c, problem.mesh, problem.geom, problem.boundary)
+    ref = load_reference(problem, reference)
+    frozen = c.reference.freeze_velocity
+    if frozen:
+        if ref is None:
+            raise CaseError(f"{c.label}: reference.freeze_velocity: an a-priori run needs the reference velocity; add "
+                            "[reference] data = ... (or pass reference= to fvrans.api.solve)")
+        fields = _frozen_fields(fields, ref, problem)
+    model = model_for_case(c, problem.mesh, problem.geom, problem.boundary, reference=ref)
     mf = c.mean_flow
-    solver = SimpleSolver(
+    solver = (FrozenVelocitySolver if frozen else SimpleSolver)(
         problem.mesh, problem.geom, problem.boundary, rho=c.fluid.density, mu=c.fluid.viscosity,
         controls=controls, fields=fields, model=model,
         body_force=None if mf.pressure_gradient is None else -np.asarray(mf.pressure_gradient, dtype=float),
@@ -605,6 +779,18 @@ def solve(
     }
     if start is not None:
         extra["summary"]["start"] = start
+    if c.turbulent:
+        gu = np.stack([extra["gradients"]["u"], extra["gradients"]["v"]], axis=1)
+        r = reynolds_stress(model, solver.fields, gu, c.fluid.density)
+        extra["cell_data"].update({"R_xx": r[:, 0], "R_xy": r[:, 1], "R_yy": r[:, 2]})
+    if ref is not None:
+        extra["reference"] = ref
+        cells, comparison = _reference_comparison(problem, solver, model, ref, frozen)
+        extra["cell_data"].update(cells)
+        extra["summary"]["reference_comparison"] = comparison
+        if frozen:
+            comparison["a_priori"] = {"frozen_face_fluxes": "the reference's own" if ref.face_flux is not None
+                                      else "interpolated from the reference velocity"}
     result = Result(
         problem=problem, fields=solver.fields, history=solver.history, converged=bool(converged),
         iterations=solver.iteration, wall_seconds=seconds, grad_p=grad_p, message=message,

@@ -62,6 +62,9 @@ def _references(path: Path, data: dict[str, Any]) -> Iterator[str]:
     for b in (boundary.values() if isinstance(boundary, dict) else ()):
         if isinstance(b, dict) and isinstance(b.get("profile"), str):
             yield b["profile"]
+    reference = data.get("reference")
+    if isinstance(reference, dict) and isinstance(reference.get("data"), str):
+        yield reference["data"]  # a bundled case refers to a data file, not to a result folder
     for item in data.get("item", []) if isinstance(data.get("item"), list) else []:
         ref = item.get("reference") if isinstance(item, dict) else None
         if isinstance(ref, dict) and isinstance(ref.get("file"), str):

@@ -15,7 +15,15 @@ from typing import Any
 import numpy as np
 
 # -- allowed values ------------------------------------------------------------------------
-TURBULENCE_MODELS = ("none", "spalart-allmaras", "k-omega-sst")
+TURBULENCE_MODELS = ("none", "spalart-allmaras", "k-omega-sst", "reference-stress")
+#: how the reference-stress model hands the reference Reynolds stress to the momentum equation
+STRESS_FORMS = ("implicit", "explicit")
+#: models whose eddy viscosity the reference-stress model may blend in (``[model] blend_model``)
+BLEND_MODELS = ("none", "spalart-allmaras", "k-omega-sst")
+#: default cap of the optimal eddy viscosity of the implicit form, as nu_t / nu
+DEFAULT_EDDY_VISCOSITY_CAP = 1e5
+#: rules for cells outside the reference data (``[reference] outside``)
+REFERENCE_OUTSIDE = ("nearest", "refuse", "zero-stress")
 SA_VARIANTS = ("standard", "no-ft2")
 NONLINEAR_STRESSES = ("none", "qcr2000")
 #: defaults of the k-omega SST inflow and start values: turbulence intensity sqrt(2k/3)/|u| and nu_t / nu
@@ -96,6 +104,20 @@ class Fluid:
 
 
 @dataclass(frozen=True)
+class StressInjection:
+    """How ``[model] turbulence = "reference-stress"`` injects the reference Reynolds stress
+    (:mod:`fvrans.models.injected`): ``stress_form`` "implicit" (the optimal eddy viscosity,
+    clipped to [0, ``eddy_viscosity_cap`` nu], implicit; the remainder explicit) or "explicit" (all
+    of it as a source); ``blend_model`` (a model run alongside) and ``blend_share`` (its share of the
+    implicit eddy viscosity)."""
+
+    stress_form: str = "implicit"
+    eddy_viscosity_cap: float = DEFAULT_EDDY_VISCOSITY_CAP
+    blend_model: str = "none"
+    blend_share: float = 0.0
+
+
+@dataclass(frozen=True)
 class ModelSettings:
     """The turbulence model and its options (``sa_*`` only with Spalart-Allmaras;
     ``nonlinear_stress`` with any eddy-viscosity model)."""
@@ -104,6 +126,39 @@ class ModelSettings:
     sa_variant: str = "standard"
     sa_rotation_curvature: bool = False
     nonlinear_stress: str = "none"
+    #: settings of ``turbulence = "reference-stress"`` (the Reynolds stress of ``[reference] data``)
+    injection: StressInjection = field(default_factory=StressInjection)
+
+
+@dataclass(frozen=True)
+class Region:
+    """A region of the comparison with the reference data ``[reference.regions.<name>]``: the cells
+    inside ``box`` (xmin, xmax, ymin, ymax) and with a wall distance in ``wall_distance`` (dmin, dmax);
+    either may be None (no limit)."""
+
+    box: tuple[float, float, float, float] | None = None
+    wall_distance: tuple[float, float] | None = None
+
+
+@dataclass(frozen=True)
+class ReferenceSettings:
+    """A reference mean flow ``[reference]`` (:mod:`fvrans.reference`): ``data`` (a CSV point cloud, a
+    mesh file with data or a result folder; absolute path), ``names`` (quantity -> column or field),
+    ``outside`` (cells outside the data: "nearest" value, "refuse" the run, or "zero-stress": the
+    nearest velocity but no reference stress there), ``regions`` of the comparison,
+    ``freeze_velocity`` (an a-priori test: only the model's equations, on the reference velocity)
+    and ``write_features`` (the per-cell feature table of :mod:`fvrans.reference.features`)."""
+
+    data: Path | None = None
+    names: dict[str, str] = field(default_factory=dict)
+    outside: str = "nearest"
+    regions: dict[str, Region] = field(default_factory=dict)
+    freeze_velocity: bool = False
+    write_features: bool = False
+
+    @property
+    def active(self) -> bool:
+        return self.data is not None
 
 
 @dataclass(frozen=True)
@@ -325,6 +380,7 @@ class Case:
     monitor: MonitorSettings = field(default_factory=MonitorSettings)
     #: the named constants of the case's formulas (``[formula_constants]``)
     constants: dict[str, float] = field(default_factory=dict)
+    reference: ReferenceSettings = field(default_factory=ReferenceSettings)
 
     @property
     def label(self) -> str:
@@ -494,9 +550,7 @@ def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
         "description": case.description,
         "mesh": mesh,
         "fluid": {"density": case.fluid.density, "viscosity": case.fluid.viscosity},
-        "model": {"turbulence": case.model.turbulence, "sa_variant": case.model.sa_variant,
-                  "sa_rotation_curvature": case.model.sa_rotation_curvature,
-                  "nonlinear_stress": case.model.nonlinear_stress},
+        "model": _model_data(case.model),
         "initial": _initial_data(case.initial),
         "boundary": {name: boundary_data(b, keep_callables) for name, b in case.boundaries.items()},
         "solver": {
@@ -536,11 +590,41 @@ def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
                           for name, pr in case.probes.items()}
     if case.derived:
         data["derived"] = {name: _derived_data(d) for name, d in case.derived.items()}
+    if case.reference != ReferenceSettings():
+        data["reference"] = _reference_data(case.reference)
     m = case.monitor
     data["monitor"] = {"settle": m.settle, "iteration_error": m.iteration_error, "window": m.window}
     if m.show:
         data["monitor"]["show"] = m.show
     return data
+
+
+def _model_data(m: ModelSettings) -> dict[str, Any]:
+    out: dict[str, Any] = {"turbulence": m.turbulence, "sa_variant": m.sa_variant,
+                           "sa_rotation_curvature": m.sa_rotation_curvature, "nonlinear_stress": m.nonlinear_stress}
+    if m.turbulence == "reference-stress":
+        i = m.injection
+        out.update({"stress_form": i.stress_form, "eddy_viscosity_cap": i.eddy_viscosity_cap,
+                    "blend_model": i.blend_model, "blend_share": i.blend_share})
+    return out
+
+
+def _reference_data(r: ReferenceSettings) -> dict[str, Any]:
+    out: dict[str, Any] = {}
+    if r.data is not None:
+        out["data"] = str(r.data)
+    if r.names:
+        out["names"] = dict(r.names)
+    out.update({"outside": r.outside, "freeze_velocity": r.freeze_velocity, "write_features": r.write_features})
+    if r.regions:
+        out["regions"] = {}
+        for name, g in r.regions.items():
+            out["regions"][name] = {}
+            if g.box is not None:
+                out["regions"][name]["box"] = [float(v) for v in g.box]
+            if g.wall_distance is not None:
+                out["regions"][name]["wall_distance"] = [float(v) for v in g.wall_distance]
+    return out
 
 
 def _derived_data(d: DerivedScalar) -> dict[str, Any]:

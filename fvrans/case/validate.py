@@ -36,7 +36,8 @@ TABLE_KEYS: dict[str, tuple[str, ...]] = {
     "mesh": ("file", "generator", "parameters", "renumber", "periodic_pairs", "edge_tags", "edge_tag_array",
              "edge_boxes", "unnamed_edges"),
     "fluid": ("density", "viscosity"),
-    "model": ("turbulence", "sa_variant", "sa_rotation_curvature", "nonlinear_stress"),
+    "model": ("turbulence", "sa_variant", "sa_rotation_curvature", "nonlinear_stress", "stress_form",
+              "eddy_viscosity_cap", "blend_model", "blend_share"),
     "initial": ("velocity", "pressure", "nu_tilde_ratio", "turbulence_intensity", "eddy_viscosity_ratio",
                 "from_result"),
     "mean_flow": ("pressure_gradient", "bulk_velocity"),
@@ -54,7 +55,13 @@ TABLE_KEYS: dict[str, tuple[str, ...]] = {
     ),
 }
 TOP_KEYS = ("title", "description", "mesh", "fluid", "model", "initial", "boundary", "solver", "output", "probes",
-            "mean_flow", "derived", "monitor", "formula_constants")
+            "mean_flow", "derived", "monitor", "reference",
+            "formula_constants")
+#: keys of [reference] (reference data: injection, comparison, a-priori tests, features) and of a region
+REFERENCE_KEYS = ("data", "names", "outside", "regions", "freeze_velocity", "write_features")
+REGION_KEYS = ("box", "wall_distance")
+#: the keys of [model] that only turbulence = "reference-stress" takes
+INJECTION_KEYS = ("stress_form", "eddy_viscosity_cap", "blend_model", "blend_share")
 #: keys of a probe [probes.<name>]: a line (start, end, points) or a point (at)
 PROBE_KEYS = ("start", "end", "points", "at")
 #: keys of a derived scalar [derived.<name>] and of the [monitor] table
@@ -410,24 +417,28 @@ def case_from_dict(data: Mapping[str, Any], source: str | Path | None = None) ->
                                  hint="add viscosity = <dynamic viscosity mu>, e.g. viscosity = 0.01"),
     )
     model_t = _Table(ctx, ("model",), top.table("model", {}), TABLE_KEYS["model"], "[model]")
+    turbulence = model_t.choice("turbulence", S.TURBULENCE_MODELS, "none")
     model = S.ModelSettings(
-        turbulence=model_t.choice("turbulence", S.TURBULENCE_MODELS, "none"),
+        turbulence=turbulence,
         sa_variant=model_t.choice("sa_variant", S.SA_VARIANTS, "standard"),
         sa_rotation_curvature=model_t.boolean("sa_rotation_curvature", False),
         nonlinear_stress=model_t.choice("nonlinear_stress", S.NONLINEAR_STRESSES, "none"),
+        injection=_injection(model_t, turbulence),
     )
-    if model.turbulence == "none" and model.nonlinear_stress != "none":
-        raise model_t.fail("nonlinear_stress", "a non-linear Reynolds stress needs a turbulence model; set "
-                           "model.turbulence or remove the key")
+    if model.turbulence in ("none", "reference-stress") and model.nonlinear_stress != "none":
+        raise model_t.fail("nonlinear_stress", "a non-linear Reynolds stress needs an eddy-viscosity model "
+                           f"(model.turbulence = {model.turbulence!r} here); set model.turbulence or remove the key")
     initial = _initial(ctx, top.table("initial", {}))
     boundaries = _boundaries(ctx, top.table("boundary", hint=(
         'add one table per mesh patch, e.g. [boundary.walls] with kind = "wall"')))
-    solver = _solver(ctx, top.table("solver", {}), model.turbulence)
+    solver = _solver(ctx, top.table("solver", {}), model.injection.blend_model
+                     if model.turbulence == "reference-stress" else model.turbulence)
     output = _output(ctx, top.table("output", {}), boundaries)
     probes = _probes(ctx, top.table("probes", {}))
     mean_flow = _mean_flow(ctx, top.table("mean_flow", {}), mesh)
     derived = _derived(ctx, top.table("derived", {}), probes, model)
     monitor = _monitor(ctx, top.table("monitor", {}))
+    reference = _reference(ctx, top.table("reference", {}), model)
     return S.Case(
         source=src,
         title=title,
@@ -445,7 +456,118 @@ def case_from_dict(data: Mapping[str, Any], source: str | Path | None = None) ->
         derived=derived,
         monitor=monitor,
         constants=dict(ctx.constants),
+        reference=reference,
     )
+
+
+def _injection(t: _Table, turbulence: str) -> S.StressInjection:
+    """The [model] keys of turbulence = "reference-stress" (refused with any other model)."""
+    if turbulence != "reference-stress":
+        for k in INJECTION_KEYS:
+            if t.has(k):
+                raise t.fail(k, 'only used with turbulence = "reference-stress" (the Reynolds stress of '
+                             f"[reference] data); remove it or set that model (turbulence = {turbulence!r} here)")
+        return S.StressInjection()
+    d = S.StressInjection()
+    blend_model = t.choice("blend_model", S.BLEND_MODELS, d.blend_model)
+    share = t.number("blend_share", 0.5 if blend_model != "none" else 0.0,
+                     (lambda v: 0.0 <= v <= 1.0, "in [0, 1]"), "the share of the blend model's eddy viscosity")
+    if blend_model == "none" and share > 0.0:
+        raise t.fail("blend_share", "needs blend_model (the model whose eddy viscosity is blended in); add "
+                     f"blend_model = one of {_quoted_list(S.BLEND_MODELS[1:])} or remove blend_share")
+    return S.StressInjection(
+        stress_form=t.choice("stress_form", S.STRESS_FORMS, d.stress_form),
+        eddy_viscosity_cap=t.number("eddy_viscosity_cap", d.eddy_viscosity_cap, POSITIVE,
+                                    "the largest optimal eddy viscosity taken, as nu_t / nu"),
+        blend_model=blend_model,
+        blend_share=share,
+    )
+
+
+def _reference(ctx: _Ctx, data: Any, model: S.ModelSettings) -> S.ReferenceSettings:
+    """[reference]: the reference data and what a run does with them."""
+    t = _Table(ctx, ("reference",), data, REFERENCE_KEYS, "[reference]")
+    d = S.ReferenceSettings()
+    path = _reference_path(ctx, t.data["data"]) if t.has("data") else None
+    names_given = t.table("names", {})
+    names: dict[str, str] = {}
+    for q, col in names_given.items():
+        if not isinstance(col, str) or not col:
+            raise t.fail("names", f"{q!r} = {describe(col)}: give the column or field name as a quoted string, "
+                         'e.g. names = { u = "U_mean", R_xy = "uv" }')
+        names[str(q)] = col
+    regions: dict[str, S.Region] = {}
+    for name, spec in t.table("regions", {}).items():
+        path_r = ("reference", "regions", str(name))
+        if not isinstance(name, str) or not _PROBE_NAME.match(name):
+            raise ctx.error(path_r, "use letters, digits, '_', '-' and '.' in a region name, e.g. "
+                            "[reference.regions.wake]")
+        if name == "all":
+            raise ctx.error(path_r, "'all' is the whole mesh, always reported; give the region another name")
+        rt = _Table(ctx, path_r, spec, REGION_KEYS, "a region")
+        box = None
+        if rt.has("box"):
+            box = _four_numbers(rt, "box", "[xmin, xmax, ymin, ymax]")
+            if not (box[0] < box[1] and box[2] < box[3]):
+                raise rt.fail("box", f"needs xmin < xmax and ymin < ymax, got {list(box)}")
+        band = None
+        if rt.has("wall_distance"):
+            v = rt.data["wall_distance"]
+            if isinstance(v, np.ndarray):
+                v = v.tolist()
+            if not isinstance(v, (list, tuple)) or len(v) != 2:
+                raise rt.fail("wall_distance", f"must be [dmin, dmax] (two numbers), got {describe(v)}")
+            band = tuple(check_number(c, lambda m, t=rt: t.fail("wall_distance", m)) for c in v)
+            if not (0.0 <= band[0] < band[1]):
+                raise rt.fail("wall_distance", f"needs 0 <= dmin < dmax, got {list(band)}")
+        if box is None and band is None:
+            raise ctx.error(path_r, "give box = [xmin, xmax, ymin, ymax] and/or wall_distance = [dmin, dmax]")
+        regions[name] = S.Region(box=box, wall_distance=band)
+    out = S.ReferenceSettings(
+        data=path, names=names, outside=t.choice("outside", S.REFERENCE_OUTSIDE, d.outside), regions=regions,
+        freeze_velocity=t.boolean("freeze_velocity", d.freeze_velocity),
+        write_features=t.boolean("write_features", d.write_features),
+    )
+    if out.freeze_velocity and model.turbulence in ("none", "reference-stress"):
+        raise t.fail("freeze_velocity", "an a-priori run solves only a turbulence model's equations on the reference "
+                     f"velocity; model.turbulence = {model.turbulence!r} has none: set it to 'spalart-allmaras' or "
+                     "'k-omega-sst'")
+    return out
+
+
+def _reference_path(ctx: _Ctx, v: Any) -> Path:
+    """An existing file (CSV point cloud or mesh file with data) or result folder."""
+    if isinstance(v, os.PathLike):
+        v = os.fspath(v)
+    if not isinstance(v, str) or not v.strip():
+        raise ctx.error(("reference", "data"), "must be the path of a CSV point cloud, a mesh file with data or a "
+                        f"result folder (a quoted string), got {describe(v)}")
+    def fail(msg: str) -> CaseError:
+        return ctx.error(("reference", "data"), msg)
+
+    p = check_path_text(v, fail, "reference data").expanduser()
+    full = p if p.is_absolute() else ctx.base / p
+    try:
+        full = full.resolve()
+    except (OSError, RuntimeError):  # a symbolic-link loop: input_file names it
+        pass
+    if not full.exists() and not full.is_symlink():
+        rel = "" if p.is_absolute() else f" (relative paths start from {ctx.base})"
+        raise fail(f"{full} does not exist{rel}; give a CSV point cloud, a mesh file with point or cell data, or "
+                   "the output folder of a run")
+    if full.is_dir():
+        return full  # a result folder (its fields.vtu is checked when read)
+    return input_file(full, "reference data", fail=fail)
+
+
+def _four_numbers(t: _Table, key: str, form: str) -> tuple[float, float, float, float]:
+    v = t.data[key]
+    if isinstance(v, np.ndarray):
+        v = v.tolist()
+    if not isinstance(v, (list, tuple)) or len(v) != 4:
+        raise t.fail(key, f"must be a list of 4 numbers {form}, got {describe(v)}")
+    w = [check_number(c, lambda m, i=i: t.fail(key, f"item {i + 1} {m}")) for i, c in enumerate(v)]
+    return (w[0], w[1], w[2], w[3])
 
 
 def _initial(ctx: _Ctx, data: Any) -> S.InitialState:
@@ -904,7 +1026,9 @@ def _probe_quantities(model: S.ModelSettings) -> tuple[str, ...]:
         return PROBE_QUANTITIES
     from fvrans.models import EDDY_VISCOSITY_RATIO, model_class
 
-    return (*PROBE_QUANTITIES, *model_class(model.turbulence).variables, EDDY_VISCOSITY_RATIO)
+    key = model.injection.blend_model if model.turbulence == "reference-stress" else model.turbulence
+    variables = model_class(key).variables if key != "none" else ()
+    return (*PROBE_QUANTITIES, *variables, EDDY_VISCOSITY_RATIO)
 
 
 def _monitor(ctx: _Ctx, data: Any) -> S.MonitorSettings:

@@ -21,6 +21,7 @@ MODELS: dict[str, str] = {
     "none": "fvrans.models.base:TurbulenceModel",
     "spalart-allmaras": "fvrans.models.spalart_allmaras:SpalartAllmaras",
     "k-omega-sst": "fvrans.models.sst:KOmegaSST",
+    "reference-stress": "fvrans.models.injected:ReferenceStress",
 }
 _ADDED: dict[str, type[TurbulenceModel]] = {}
 
@@ -49,14 +50,23 @@ def model_class(key: str) -> type[TurbulenceModel]:
 
 
 def model_for_case(case: Any, mesh: Any, geom: Any, boundary: Any,
-                   wall_distance: np.ndarray | None = None) -> TurbulenceModel:
-    """The model a case asks for (the laminar base model for ``turbulence = "none"``)."""
-    return model_class(case.model.turbulence).from_case(case, mesh, geom, boundary, wall_distance=wall_distance)
+                   wall_distance: np.ndarray | None = None, reference: Any = None) -> TurbulenceModel:
+    """The model a case asks for (the laminar base model for ``turbulence = "none"``); ``reference``
+    (the run's reference flow on the cells) goes to models that use one."""
+    cls = model_class(case.model.turbulence)
+    if cls.uses_reference:
+        return cls.from_case(case, mesh, geom, boundary, wall_distance=wall_distance, reference=reference)
+    return cls.from_case(case, mesh, geom, boundary, wall_distance=wall_distance)
 
 
 def residual_names(case: Any) -> list[str]:
-    """The residual columns of a run of ``case``: u, v, continuity and the model's equations."""
-    return ["u", "v", "continuity", *model_class(case.model.turbulence).names]
+    """The residual columns of a run of ``case``: u, v, continuity and the model's equations (an
+    a-priori run, ``[reference] freeze_velocity``, has only the model's)."""
+    names = list(model_class(case.model.turbulence).names_for(case))
+    reference = getattr(case, "reference", None)
+    if reference is not None and reference.freeze_velocity:
+        return names
+    return ["u", "v", "continuity", *names]
 
 
 __all__ = [

@@ -15,6 +15,11 @@ loop asks a model for
   gradient grad_u[c, i, j] = du_i/dx_j and face fluxes; return one normalised imbalance per name in
   ``names``.
 
+Before its first iteration the loop calls ``prepare(gradient_of)`` with its own velocity gradient
+as a function of any velocity field (boundary values by the flow's conditions), for models that
+need the gradient of a field other than the current one (the reference velocity of an injected
+stress, :mod:`fvrans.models.injected`).
+
 Around the loop: ``variables`` are the transported variables the model keeps in
 ``Fields.variables`` (checkpoints store them, warm starts reuse them; ``initialise`` fills
 missing ones), ``cell_outputs`` the per-cell arrays written to fields.vtu, ``probe_fields`` and
@@ -44,12 +49,30 @@ class TurbulenceModel:
     names: tuple[str, ...] = ()
     #: transported variables kept in ``Fields.variables`` (checkpoints, warm starts)
     variables: tuple[str, ...] = ()
+    #: True when ``from_case`` takes the reference flow of the run (``reference=``, a
+    #: :class:`fvrans.reference.cells.CellReference`)
+    uses_reference: bool = False
 
     @classmethod
     def from_case(cls, case: Any, mesh: Any, geom: Any, boundary: Any,
                   wall_distance: np.ndarray | None = None) -> TurbulenceModel:
         """The model with the settings of a case (``fvrans.case.Case``)."""
         return cls()
+
+    @classmethod
+    def names_for(cls, case: Any) -> tuple[str, ...]:
+        """The residual names of this model with the settings of ``case`` (``names`` unless they
+        depend on the case)."""
+        return cls.names
+
+    @classmethod
+    def variables_for(cls, case: Any) -> tuple[str, ...]:
+        """The transported variables of this model with the settings of ``case``."""
+        return cls.variables
+
+    def prepare(self, gradient_of: Any) -> None:
+        """Called once by the loop before its first iteration: ``gradient_of(velocity)`` gives the
+        loop's velocity gradient (n_cells, 2, 2) of any cell velocity field (n_cells, 2)."""
 
     # -- state ----------------------------------------------------------------------------
     def initial_values(self) -> dict[str, np.ndarray]:
@@ -102,6 +125,26 @@ class TurbulenceModel:
 EddyViscosityModel = TurbulenceModel
 
 
+def reynolds_stress(model: TurbulenceModel, fields: Fields, grad_u: np.ndarray, rho: float) -> np.ndarray:
+    """The model's Reynolds stress per unit mass R = <u_i' u_j'> (R_xx, R_xy, R_yy) per cell:
+    -(2 mu_t S + T) / rho, plus 2/3 k on the diagonal when the model carries k (n_cells, 3)."""
+    g = np.asarray(grad_u, dtype=np.float64)
+    n = len(g)
+    mu_t = model.eddy_viscosity(fields)
+    mu_t = np.zeros(n) if mu_t is None else np.asarray(mu_t, dtype=np.float64)
+    sxx, sxy, syy = g[:, 0, 0], 0.5 * (g[:, 0, 1] + g[:, 1, 0]), g[:, 1, 1]
+    tau = np.column_stack([2 * mu_t * sxx, 2 * mu_t * sxy, 2 * mu_t * syy])
+    extra = model.extra_stress(fields, g)
+    if extra is not None:
+        tau = tau + np.asarray(extra, dtype=np.float64)
+    r = -tau / float(rho)
+    k = fields.variables.get("k")
+    if k is not None and np.shape(k) == (n,):
+        r[:, 0] += 2.0 / 3.0 * k
+        r[:, 2] += 2.0 / 3.0 * k
+    return r
+
+
 def case_wall_distance(mesh: Any, geom: Any, boundary: Any, model_name: str) -> np.ndarray:
     """Exact distance of each cell centroid to the wall patches; CaseError without a wall."""
     walls = [name for name, kind in boundary.patch_kind.items() if kind == "wall"]
@@ -125,4 +168,5 @@ def checked_wall_distance(d: Any, n_cells: int) -> np.ndarray:
 
 __all__ = [
     "EDDY_VISCOSITY_RATIO", "EddyViscosityModel", "TurbulenceModel", "case_wall_distance", "checked_wall_distance",
+    "reynolds_stress",
 ]

@@ -19,6 +19,7 @@ from fvrans.monitor.estimate import ErrorEstimate, iteration_error
 from fvrans.monitor.monitor import STOP_REASONS, ColumnStatus, Monitor, stop_reason
 from fvrans.monitor.watch import (
     FlowState,
+    VariableChange,
     case_watches,
     derived_value,
     force_coefficients,
@@ -47,6 +48,14 @@ def case_monitor(case: Case, mesh: Mesh, geom: Geometry, boundary: FlowBoundary,
     return Monitor(case_watches(case, mesh, geom, boundary, speed, stencils), case.monitor, speed)
 
 
+def frozen_monitor(case: Case, variables: tuple[str, ...] | list[str], speed: float) -> Monitor:
+    """The monitor of an a-priori run (``[reference] freeze_velocity``): the velocity, pressure and
+    forces do not move, so it watches only the change of the model's variables (nu_tilde measured
+    against nu at least)."""
+    floors = {"nu_tilde": case.fluid.kinematic_viscosity}
+    return Monitor([VariableChange(variables, floors)], case.monitor, speed)
+
+
 __all__ = ["MONITOR_CSV", "STOP_REASONS", "ColumnStatus", "ErrorEstimate", "FlowState", "Monitor", "case_monitor",
-           "derived_value", "force_coefficients", "iteration_error", "probe_stencils", "sample_flow", "speed_scale",
-           "stop_reason"]
+           "derived_value", "force_coefficients", "frozen_monitor", "iteration_error", "probe_stencils", "sample_flow",
+           "speed_scale", "stop_reason"]

@@ -2,7 +2,7 @@
 and feeds the progress line, the stopping rule and the history table (``monitors.csv``), so the
 three never disagree.
 
-Stopping rule. The solver asks :meth:`Monitor.converged_when` only once every scaled residual
+Stopping rule. The solver asks :meth:`Monitor.converged_when` only once every normalised imbalance
 is below ``solver.tolerance``; with ``monitor.settle`` (the default) the run then stops as
 converged only when every watched column has settled: its estimated iteration error
 (:func:`fvrans.monitor.estimate.iteration_error`, over windows of ``monitor.window``

@@ -157,6 +157,37 @@ class VelocityChange(Watch):
         return [1.0]
 
 
+class VariableChange(Watch):
+    """max over cells of |phi^n - phi^{n-1}| / max |phi^n| for each of a model's transported variables
+    (the watched quantity of an a-priori run, where the velocity is frozen); ``floors``: a smallest
+    scale per variable (e.g. nu for nu_tilde)."""
+
+    is_change = True
+
+    def __init__(self, variables: Sequence[str], floors: Mapping[str, float] | None = None):
+        self.variables = list(variables)
+        self.floors = dict(floors or {})
+        self.columns = [f"{v}_change" for v in self.variables]
+        self.previous: dict[str, np.ndarray] = {}
+
+    def values(self, state: FlowState) -> list[float]:
+        out = []
+        have = state.fields.variables if state.fields is not None else {}
+        for v in self.variables:
+            phi = np.asarray(have.get(v, np.zeros(0)), dtype=float)
+            prev = self.previous.get(v)
+            self.previous[v] = phi.copy()
+            if prev is None or prev.shape != phi.shape or not len(phi):
+                out.append(float("nan"))
+                continue
+            scale = max(float(np.max(np.abs(phi))), self.floors.get(v, 0.0), 1e-300)
+            out.append(float(np.max(np.abs(phi - prev))) / scale)
+        return out
+
+    def scales(self, values: Sequence[float], speed: float) -> list[float]:
+        return [1.0] * len(self.variables)
+
+
 class WallForces(Watch):
     """Drag and lift coefficients per wall patch; both scaled by the size of the patch's
     coefficient vector (so lift on a symmetric body, near zero, is judged against the drag)."""
@@ -284,5 +315,6 @@ def case_watches(case: Case, mesh: Mesh, geom: Geometry, boundary: FlowBoundary,
 
 
 __all__ = ["FLOW_QUANTITIES", "FORCE_COLUMNS", "WATCHED_PROBE_VALUES", "DerivedScalars", "FlowState", "PointProbes",
-           "VelocityChange", "WallForces", "Watch", "case_watches", "derived_value", "force_coefficients",
+           "VariableChange", "VelocityChange",
+           "WallForces", "Watch", "case_watches", "derived_value", "force_coefficients",
            "probe_stencils", "sample_flow"]

@@ -3,7 +3,7 @@
 from fvrans.post.forces import (
     InflowReference,
     PatchForces,
-    Reference,
+    ForceReference,
     case_reference,
     forces_summary,
     group_forces,
@@ -38,7 +38,7 @@ from fvrans.post.writers import (
 __all__ = [
     "InflowReference",
     "PatchForces",
-    "Reference",
+    "ForceReference",
     "PatchOrder",
     "WallData",
     "ZeroShearPoint",

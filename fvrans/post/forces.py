@@ -194,7 +194,7 @@ def inflow_reference(geom: Geometry, boundary: FlowBoundary, n_internal_faces: i
 
 
 @dataclass(frozen=True)
-class Reference:
+class ForceReference:
     """Reference values of a run's coefficients: velocity U_ref, density, free-stream direction
     (unit vector) and where the velocity and direction came from (``"case"``, ``"outer-flow"``,
     ``"inflow-velocity"`` or ``"default"``)."""
@@ -207,7 +207,7 @@ class Reference:
 
 
 def case_reference(output: Any, fluid_density: float, geom: Geometry, boundary: FlowBoundary,
-                   n_internal_faces: int) -> Reference:
+                   n_internal_faces: int) -> ForceReference:
     """The reference values of a case's ``[output]`` settings (``reference_velocity``,
     ``reference_density``, ``direction()``), those it leaves open taken from the inflow
     (:func:`inflow_reference`): U_ref the inflow's speed, the free-stream direction the inflow's;
@@ -227,7 +227,7 @@ def case_reference(output: Any, fluid_density: float, geom: Geometry, boundary: 
     else:
         e, e_from = (1.0, 0.0), "default"
     rho = float(fluid_density) if output.reference_density is None else float(output.reference_density)
-    return Reference(u, rho, e, u_from, e_from)
+    return ForceReference(u, rho, e, u_from, e_from)
 
 
 def forces_summary(

@@ -5,7 +5,7 @@ From the files each run writes (``residuals.csv``, ``wall/<patch>.csv``, ``profi
 gives, else the run's title, else its folder name (titles that repeat, as in a sweep, get the
 folder name added):
 
-* ``residuals.png``: the largest scaled residual of each iteration;
+* ``residuals.png``: the largest normalised imbalance of each iteration;
 * ``wall_<patch>_cf.png``, ``wall_<patch>_cp.png``: along x for every wall patch of two or more runs;
 * ``probe_<name>_<column>.png``: each line-probe column (u, v, p and the model columns) against the
   distance along the probe, for probes of the same name in two or more runs;
@@ -119,7 +119,7 @@ def _common_title(runs: Sequence[OverlayRun]) -> str | None:
 
 
 def residual_overlay(runs: Sequence[OverlayRun]) -> Figure:
-    """The largest scaled residual per iteration of each run."""
+    """The largest normalised imbalance per iteration of each run."""
     fig = new_figure()
     ax = fig.add_subplot()
     for k, r in enumerate(runs):
@@ -134,7 +134,7 @@ def residual_overlay(runs: Sequence[OverlayRun]) -> Figure:
         ax.plot(it, np.where(worst > 0, worst, np.nan), label=r.label, **_style(k))
     ax.set_yscale("log")
     ax.set_xlabel("outer iteration")
-    ax.set_ylabel("largest scaled residual [-]")
+    ax.set_ylabel("largest normalised imbalance [-]")
     ax.set_title(_title(_common_title(runs), "residual histories"), fontsize=11)
     ax.grid(True, which="major", alpha=0.35)
     ax.legend(loc="best", fontsize=8)

@@ -539,6 +539,7 @@ def field_figure(
     streamlines: bool = False,
     window: tuple[float, float, float, float] | None = None,
     cmap: str | None = None,
+    label: tuple[str, str] | None = None,
 ) -> Figure:
     """A cell-data map on the mesh cells (flat colour per cell), equal aspect, with colour bar.
 
@@ -551,11 +552,15 @@ def field_figure(
     zoom in; a window less high than :data:`THIN_WINDOW` times its width (a boundary layer) is
     drawn with y stretched by a round factor, named in the y label. ``streamlines``: cell
     velocities averaged to the mesh points, interpolated linearly on a regular grid (points
-    outside the cells masked), drawn with ``streamplot``.
+    outside the cells masked), drawn with ``streamplot``. ``label``: ``(colour-bar label, title name)``
+    text for a quantity of another module (default: the quantity's name).
     """
     if not isinstance(fields, FieldData):
         fields = read_fields(fields)
-    values, label, name = _field_values(fields, quantity, reference)
+    values, bar_label, name = _field_values(fields, quantity, reference)
+    if label is not None:
+        bar_label, name = label
+    label = bar_label
     l_ref = None  # lengths in the units of the case, like the wall plots and the overlays of fvrans compare
     scale = 1.0
     x0, x1, y0, y1 = window if window is not None else fields.bounds()
@@ -860,6 +865,10 @@ def _result_figures(rd: Path, title: str | None, reference: Mapping[str, Any] | 
                 yield f"field_{q}_zoom.png", field_figure(fields, q, title=title, reference=reference,
                                                           mesh_edges=mesh_edges, window=window,
                                                           streamlines=streamlines and q == "velocity")
+    if have_fields:
+        from fvrans.post.reference_plots import reference_figures
+
+        yield from reference_figures(fields, title=title, window=window, mesh_edges=mesh_edges)
     for pf in profile_files:
         cols = read_csv_columns(pf)
         if "y_plus" in cols and "u_plus" in cols:

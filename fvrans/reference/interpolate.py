@@ -210,6 +210,23 @@ def _describe_extent(xy: np.ndarray) -> str:
     return f"x in [{lo[0]:.6g}, {hi[0]:.6g}], y in [{lo[1]:.6g}, {hi[1]:.6g}]"
 
 
+#: a target within this share of the data's extent from a site is that site
+SAME_SITE = 1e-10
+
+
+def _at_sites(ds: DataSet, xy: np.ndarray) -> np.ndarray | None:
+    """The site each target sits on when every target sits on one (else None): data given on the
+    target points themselves are taken as they are, exactly, even where the sites span no area (a
+    column of cells)."""
+    if not len(xy) or not len(ds.sites):
+        return None
+    extent = float(np.ptp(ds.sites, axis=0).max()) if len(ds.sites) > 1 else 0.0
+    d, near = ds.tree.query(xy)
+    if np.all(d <= SAME_SITE * max(extent, 1e-300)):
+        return np.asarray(near, dtype=np.int64)
+    return None
+
+
 def stencil(ds: DataSet, xy: np.ndarray, outside: str = "nearest", cell_values: str = "linear",
             target_label: str = "target point", refuse_no_overlap: bool = True) -> Stencil:
     """Where each target point takes its value from (see the module docstring).
@@ -226,6 +243,12 @@ def stencil(ds: DataSet, xy: np.ndarray, outside: str = "nearest", cell_values: 
     index = np.zeros((m, 3), dtype=np.int64)
     weight = np.zeros((m, 3))
     status = np.full(m, MISSING, dtype=np.int8)
+    same = _at_sites(ds, xy)
+    if same is not None:  # every target is a data site (data on the target cells themselves): its value
+        index[:, 0] = same
+        weight[:, 0] = 1.0
+        status[:] = INTERPOLATED
+        return Stencil(index, weight, status, np.zeros(m))
     if ds.location == "cloud":
         tri = ds.delaunay
         s = np.asarray(tri.find_simplex(xy), dtype=np.int64)
@@ -403,6 +426,8 @@ class Interpolated:
     values: dict[str, np.ndarray]
     coverage: list[Coverage] = field(default_factory=list)
     errors: dict[str, ErrorEstimate] = field(default_factory=dict)
+    #: targets outside the data of any data set used (their values follow the outside rule)
+    outside: np.ndarray | None = None
 
     def __getitem__(self, quantity: str) -> np.ndarray:
         if quantity not in self.values:

@@ -28,6 +28,8 @@ import numpy as np
 
 from fvrans.errors import CaseError
 from fvrans.reference.interpolate import (
+    MISSING,
+    NEAREST,
     Coverage,
     DataSet,
     Domain,
@@ -96,15 +98,17 @@ class FieldSource:
         wanted = self.quantities() if quantities is None else list(quantities)
         self.require(*wanted)
         out = Interpolated(self.label, {})
+        out.outside = np.zeros(len(np.asarray(xy).reshape(-1, 2)), dtype=bool)
         for ds in self.sets:
             names = [q for q in wanted if q in ds.values]
             if not names:
                 continue
             st = stencil(ds, xy, outside=outside, target_label=target_label)
+            out.outside |= (st.status == NEAREST) | (st.status == MISSING)
             out.coverage.append(Coverage.of(ds, st, outside))
             for q in names:
                 out.values[q] = st.apply(ds.values[q])
-            if estimate_error:
+            if estimate_error and not np.all(st.distance == 0.0):  # (targets on the sites: nothing interpolated)
                 out.errors.update(holdout_error(ds, names))
         out.values = {q: out.values[q] for q in wanted}
         return out

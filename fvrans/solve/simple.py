@@ -282,6 +282,28 @@ class SimpleSolver:
             self.fields.face_flux = self._interpolated_fluxes(self.fields.velocity)
         self.grad_p = self.grad_pressure(self.fields.pressure, self._pressure_on_boundary(np.zeros((nc, 2))))
         self.u_scale = self._velocity_scale()
+        # models that need the gradient of a field other than the current one (an injected stress)
+        self.model.prepare(self.velocity_gradient)
+
+    def velocity_gradient(self, velocity: np.ndarray, face_flux: np.ndarray | None = None) -> np.ndarray:
+        """The loop's cell gradient grad u[c, i, j] = du_i/dx_j of a velocity field, with boundary
+        values by the flow's conditions (``_velocity_on_boundary``; boundary fluxes ``face_flux`` or
+        rho u_b . S). The boundary values depend on the gradient (tangential extrapolation), as in the
+        loop, where they take the previous iteration's: here a few passes reach that fixed point."""
+        u = np.ascontiguousarray(velocity, dtype=float)
+        ni, nb = self.ni, self.nf - self.ni
+        g = np.zeros((self.nc, 2, 2))
+        F = np.zeros(self.nf)
+        ub = np.empty((nb, 2))
+        for it in range(4):
+            if face_flux is not None:
+                F[:] = face_flux
+            elif it:
+                F[ni:] = self.rho * np.einsum("ij,ij->i", ub, self.S[ni:])
+            K.boundary_velocity(self.owner, ni, self.geom.face_normal, self.geom.face_delta, self.bc.kind,
+                                self.bc.velocity, u, g, F, ub)
+            g = self.grad(u, ub)
+        return g
 
     # -- boundary values -----------------------------------------------------------------
     def _velocity_scale(self) -> float:
