@@ -3,8 +3,8 @@
 For each case: the run at the case's settings (optionally from rest: ``--cold`` sets
 ``initial.velocity = [0, 0]``; any ``--set key=value`` applies to every case), then the distance
 of its velocity from the fully converged answer, max over cells of |u - u_conv| / U_ref
-(U_ref the run's reference velocity, ``Result.force_reference()``), with u_conv the same case run on to residuals 1e-11 from
-the result (cached in ``--reference-dir``; the converged answer depends neither on the start nor
+(U_ref the run's reference velocity, ``Result.force_reference()``), with u_conv the same case run on to
+residuals 1e-11 from the result (cached in ``--reference-dir``; the converged answer depends neither on the start nor
 on the residual definition). Printed per case: cells, converged flag, iterations, seconds,
 microseconds per cell and iteration, that cost over a numpy triad ``a = b + s*c`` on arrays of
 cell length timed in the same run, and the error. Numba compilation is excluded by a warm-up

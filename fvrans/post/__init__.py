@@ -1,9 +1,9 @@
 """Post-processing and output: wall quantities, forces, and atomic JSON/CSV/VTU writers."""
 
 from fvrans.post.forces import (
+    ForceReference,
     InflowReference,
     PatchForces,
-    ForceReference,
     case_reference,
     forces_summary,
     group_forces,
