@@ -3,8 +3,8 @@
 For each case: the run at the case's settings (optionally from rest: ``--cold`` sets
 ``initial.velocity = [0, 0]``; any ``--set key=value`` applies to every case), then the distance
 of its velocity from the fully converged answer, max over cells of |u - u_conv| / U_ref
-(U_ref = ``output.reference_velocity``), with u_conv the same case run on to residuals 1e-11 from
-the result (cached in ``--reference-dir``; the converged answer depends neither on the start nor
+(U_ref the run's reference velocity, ``Result.force_reference()``), with u_conv the same case run on to
+residuals 1e-11 from the result (cached in ``--reference-dir``; the converged answer depends neither on the start nor
 on the residual definition). Printed per case: cells, converged flag, iterations, seconds,
 microseconds per cell and iteration, that cost over a numpy triad ``a = b + s*c`` on arrays of
 cell length timed in the same run, and the error. Numba compilation is excluded by a warm-up
@@ -109,7 +109,7 @@ def main() -> None:
         err = float("nan")
         if not args.no_reference and not r.diverged:
             u_conv = converged_velocity(name, case, r, args.reference_dir)
-            err = float(np.max(np.abs(r.velocity - u_conv))) / case.output.reference_velocity
+            err = float(np.max(np.abs(r.velocity - u_conv))) / r.force_reference().velocity
         state = "yes" if r.converged else ("div" if r.diverged else "no")
         print(f"{name:>16} {n:>7} {state:>5} {r.iterations:>6} {sec:>8.2f} {per:>10.2f} "
               f"{per / (triad / n * 1e6):>7.0f} {err:>12.2e}", flush=True)

@@ -26,7 +26,8 @@ import fvrans.api as fa
 from fvrans.fields import Fields
 from fvrans.models import model_for_case
 from fvrans.models.base import TurbulenceModel
-from fvrans.post.wall import order_patch_faces, patch_forces
+from fvrans.post.forces import patch_forces
+from fvrans.post.wall import order_patch_faces
 from fvrans.solve.simple import SimpleSolver, SolverControls
 
 ROOT = Path(__file__).resolve().parents[1]

@@ -74,7 +74,7 @@ def station_cf(problem: fa.Problem, x: float):
     owner = mesh.face_owner[f2]
     d = np.abs(np.einsum("ij,ij->i", geom.face_centre[f2] - geom.cell_centre[owner], geom.face_normal[f2]))
     c = problem.case
-    q = 0.5 * c.fluid.density * c.output.reference_velocity**2
+    q = 0.5 * c.fluid.density * fa.force_reference(problem).velocity**2
 
     def cf(u: np.ndarray) -> float:
         v = c.fluid.viscosity * u[owner, 0] / d / q

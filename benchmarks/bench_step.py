@@ -58,7 +58,7 @@ def write_result(r: fa.Result, out: Path) -> None:
     """The result files and plots, plus the velocity near the step with streamlines."""
     r.write(out)
     make_plots(out)
-    ref = {"u_ref": r.case.output.reference_velocity, "rho": r.case.fluid.density, "l_ref": 1.0}
+    ref = {"u_ref": r.force_reference().velocity, "rho": r.case.fluid.density, "l_ref": 1.0}
     fig = field_figure(out / "fields.vtu", "velocity", title=f"{r.case.title}: near the step", reference=ref,
                        streamlines=True, window=NEAR_STEP)
     save_figure(fig, out / "plots" / "field_velocity_near_step.png")

@@ -54,10 +54,12 @@ from fvrans.monitor import (
 )
 from fvrans.physics.boundary import FlowBoundary, build_flow_boundary
 from fvrans.post import (
+    PatchForces,
     WallData,
     all_wall_data,
     atomic_write,
     build_summary,
+    forces_summary,
     wall_columns,
     write_csv_atomic,
     write_json_atomic,
@@ -65,9 +67,11 @@ from fvrans.post import (
     write_vtu_atomic,
 )
 from fvrans.post.filenames import output_file
+from fvrans.post.forces import ForceReference, case_reference
 from fvrans.post.outputs import output_set
 from fvrans.post.overlay import overlay_plots
 from fvrans.post.probes import build_stencil, line_points, write_probe_csv
+from fvrans.post.wall import zero_shear_columns
 from fvrans.post.wall_resolution import WallResolution, wall_resolution
 from fvrans.reference import FieldSource, cell_source, read_result_folder, read_source
 from fvrans.reference import diagnostics as ref_diag
@@ -78,9 +82,13 @@ from fvrans.solve.simple import History, SimpleSolver, SolverControls
 
 log = logging.getLogger(__name__)
 
+#: sub-folder of a result folder holding the zero-shear points of each wall patch (one CSV each)
+ZERO_SHEAR_FOLDER = "wall/zero_shear"
+
 __all__ = [
-    "Problem", "Result", "apply_overrides", "build_monitor", "case_from_dict", "load_case", "load_reference",
-    "overlay_plots", "prepare", "residual_names", "result_source", "solve", "start_fields",
+    "Problem", "ForceReference", "Result", "apply_overrides", "build_monitor", "case_from_dict", "load_case",
+    "load_reference", "overlay_plots", "prepare", "force_reference", "residual_names", "result_source", "solve",
+    "start_fields",
 ]
 
 #: the per-cell feature table a run writes with ``[reference] write_features`` (CSV and numpy archive)
@@ -168,16 +176,28 @@ class Result:
         return self.history.as_array()
 
     # -- derived ----------------------------------------------------------------------------
+    def force_reference(self) -> ForceReference:
+        """The reference values of the coefficients and forces of this run (:func:`force_reference`)."""
+        return force_reference(self.problem)
+
     def walls(self) -> dict[str, WallData]:
         """Wall data (shear stress, Cf, Cp, y+) of every wall patch the output asks for."""
-        c = self.case
-        out = all_wall_data(
-            self.mesh, self.problem.geom, self.problem.boundary, self.velocity, self.pressure,
-            self.grad_p, c.fluid.density, c.fluid.viscosity, c.output.reference_velocity,
-            c.output.reference_pressure,
-        )
-        wanted = c.output.wall_patches
-        return {k: v for k, v in out.items() if not wanted or k in wanted}
+        if "walls" not in self.extra:
+            c = self.case
+            ref = self.force_reference()
+            self.extra["walls"] = all_wall_data(
+                self.mesh, self.problem.geom, self.problem.boundary, self.velocity, self.pressure,
+                self.grad_p, c.fluid.density, c.fluid.viscosity, ref.velocity, c.output.reference_pressure,
+                rho_ref=ref.density, patches=list(c.output.wall_patches),
+            )
+        return dict(self.extra["walls"])
+
+    def forces(self) -> tuple[dict[str, PatchForces], dict[str, PatchForces]]:
+        """Forces and moments of every reported wall patch and of every force group of the case
+        (``output.force_groups``), in the frame of the free stream (:mod:`fvrans.post.forces`)."""
+        ref = self.force_reference()
+        o = self.case.output
+        return forces_summary(self.walls(), o.reference_length, ref.direction, o.moment_centre, o.force_groups)
 
     def wall(self, patch: str) -> WallData:
         walls = self.walls()
@@ -208,10 +228,14 @@ class Result:
         if self.case.output.map_window is not None:
             extra["map_window"] = list(self.case.output.map_window)
         extra.update(self._monitor_summary())
+        ref = self.force_reference()
+        o = self.case.output
         return build_summary(
             self.case.title or self.case.label, self.converged, self.iterations, self.wall_seconds,
             self.mesh.n_cells, history=self.history, walls=self.walls(),
-            l_ref=self.case.output.reference_length, extra=extra,
+            l_ref=o.reference_length, flow_direction=ref.direction, extra=extra, moment_centre=o.moment_centre,
+            groups=o.force_groups, reference_notes={"u_ref_from": ref.velocity_from, "flow_direction_from":
+                                                    ref.direction_from},
         )
 
     def _monitor_summary(self) -> dict[str, Any]:
@@ -246,7 +270,8 @@ class Result:
         return d
 
     def write(self, out_dir: str | Path, checkpoint: bool = False, resolved_case: bool = False) -> Path:
-        """Write summary.json, fields.vtu, wall/<patch>.csv, residuals.csv, profiles/<probe>.csv
+        """Write summary.json, fields.vtu, wall/<patch>.csv, wall/zero_shear/<patch>.csv,
+        residuals.csv, profiles/<probe>.csv
         (and checkpoint.npz when ``checkpoint``, case.toml, the resolved case, when
         ``resolved_case``) into ``out_dir`` as one set: written aside and put in place together,
         replacing the previous set of fvrans outputs there (its files the new set lacks are
@@ -266,6 +291,10 @@ class Result:
             for name, w in walls.items():
                 header, cols = wall_columns(w)
                 path = output_file(stage, name, ".csv", subfolder="wall", what=f"wall patch {name!r}")
+                write_csv_atomic(path, header, cols, within=stage)
+                header, cols = zero_shear_columns(w)
+                path = output_file(stage, name, ".csv", subfolder=ZERO_SHEAR_FOLDER, what=f"wall patch {name!r}")
+                path.parent.mkdir(exist_ok=True)
                 write_csv_atomic(path, header, cols, within=stage)
             write_residuals_csv(stage / "residuals.csv", self._finite_history(), within=stage)
             if self.monitor is not None and self.monitor.rows:
@@ -399,6 +428,13 @@ class Result:
             path, self.fields, n, list(self.history.names), self.history.as_array()[:n],
             np.asarray(self.history.seconds[:n]), self.velocity_scale, self.case, self.mesh, self.grad_p,
         )
+
+
+def force_reference(problem: Problem) -> ForceReference:
+    """The case's reference values, the missing ones taken from its inflow
+    (:func:`fvrans.post.forces.case_reference`)."""
+    c = problem.case
+    return case_reference(c.output, c.fluid.density, problem.geom, problem.boundary, problem.mesh.n_internal_faces)
 
 
 def result_source(result: Result) -> FieldSource:

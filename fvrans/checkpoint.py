@@ -42,7 +42,7 @@ READABLE_VERSIONS = (1, 2)
 #: prefix of the arrays of the model variables (``variable.<name>``)
 VARIABLE_PREFIX = "variable."
 #: setting tables that define the problem (a restart must match them)
-PHYSICS_TABLES = ("fluid", "model", "boundary")
+PHYSICS_TABLES = ("fluid", "model", "boundary", "formula_constants")
 
 
 @dataclass
@@ -105,10 +105,11 @@ def mesh_hash(mesh: Mesh) -> str:
 
 
 def physics_settings(case: Case) -> dict[str, Any]:
-    """The settings a restart must keep: the case's fluid, model and boundary tables (an inlet
+    """The settings a restart must keep: the case's fluid, model and boundary tables and the
+    constants of its boundary formulas, when it has any (an inlet
     profile file by its name and the SHA-256 of its content, so a moved case still matches)."""
     d = case.to_dict()
-    out = json.loads(json.dumps({k: d[k] for k in PHYSICS_TABLES}, default=str))
+    out = json.loads(json.dumps({k: d[k] for k in PHYSICS_TABLES if k in d}, default=str))
     for b in out["boundary"].values():
         if "profile" in b:
             p = Path(b["profile"])

@@ -161,11 +161,12 @@ def test_a_reused_output_folder_loses_the_earlier_runs_files_and_keeps_the_users
     cavity.write_text(CAVITY)
     main(["run", str(cavity), "--out", str(out), "--quiet", "--no-plots"])
     second = ["case.toml", "checkpoint.npz", "fields.vtu", "monitored.csv", "residuals.csv", "summary.json",
-              "wall/lid.csv", "wall/walls.csv"]
+              "wall/lid.csv", "wall/walls.csv", "wall/zero_shear/lid.csv", "wall/zero_shear/walls.csv"]
     assert sorted(listed_outputs(out)["files"]) == second
     left = sorted(p.relative_to(out).as_posix() for p in out.rglob("*") if p.is_file())
     assert left == sorted(second + [MANIFEST, "notes.txt", "plots/mine.png", "wall/measured.csv"])
     assert not (out / "profiles").exists() and not (out / STAGING).exists()
+    assert "wall/zero_shear/lower_wall.csv" in first and not (out / "wall" / "zero_shear" / "lower_wall.csv").exists()
     assert all(f.read_text() == "the user's own file" for f in mine)
     assert 'title = "small cavity"' in (out / "case.toml").read_text()  # the resolved case of the second run
 

@@ -10,6 +10,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
+from fvrans.case.formula import values_at
 from fvrans.case.schema import Case
 from fvrans.case.validate import did_you_mean, format_key
 from fvrans.errors import CaseError, MeshError
@@ -27,7 +28,8 @@ def check_case_against_mesh(case: Case, mesh: Mesh | Sequence[str]) -> None:
 
     With a :class:`~fvrans.mesh.mesh.Mesh` (rather than a list of patch names) it also checks
     that moving walls move along themselves, that inlet profiles cover their patches and that
-    Python inlet functions give finite values there. Raises CaseError listing all problems.
+    Python inlet functions and formulas give finite values there (a nu_tilde_ratio formula also >= 0).
+    Raises CaseError listing all problems.
     """
     is_mesh = hasattr(mesh, "patches")
     names = [p.name for p in mesh.patches] if is_mesh else [str(n) for n in mesh]
@@ -101,21 +103,26 @@ def _check_values_on_mesh(case: Case, mesh: Mesh) -> None:
         label = f"{case.label}: {format_key(('boundary', p.name))}"
         fp = mesh.face_points[p.start : p.stop]
         a, b = mesh.points[fp[:, 0]], mesh.points[fp[:, 1]]
-        if spec.kind == "wall" and spec.velocity is not None and not callable(spec.velocity):
-            u = np.asarray(spec.velocity, dtype=np.float64)
-            speed = float(np.hypot(*u))
+        if spec.kind == "wall" and spec.velocity is not None:
+            c = 0.5 * (a + b)
+            if callable(spec.velocity):  # a formula or a Python function: its values at the face centres
+                u = np.stack(spec.velocity_at(c[:, 0], c[:, 1], label), axis=1)
+                shown = "the wall velocity"
+            else:
+                u = np.broadcast_to(np.asarray(spec.velocity, dtype=np.float64), c.shape)
+                shown = f"the wall velocity {list(map(float, u[0]))}"
+            speed = float(np.hypot(u[:, 0], u[:, 1]).max(initial=0.0))
             if speed > 0:
                 d = b - a
                 length = np.hypot(d[:, 0], d[:, 1])
-                un = (u[0] * d[:, 1] - u[1] * d[:, 0]) / length  # u . n with n = (dy, -dx) / |d|
+                un = (u[:, 0] * d[:, 1] - u[:, 1] * d[:, 0]) / length  # u . n with n = (dy, -dx) / |d|
                 bad = np.abs(un) > WALL_NORMAL_TOLERANCE * speed
                 if np.any(bad):
                     i = int(np.argmax(np.abs(un)))
-                    c = 0.5 * (a[i] + b[i])
                     raise CaseError(
-                        f"{label}.velocity: the wall velocity {list(map(float, u))} crosses the wall: "
+                        f"{label}.velocity: {shown} crosses the wall: "
                         f"{int(bad.sum())} of {len(un)} faces have a normal component (up to {abs(un[i]):.4g}"
-                        f" at ({c[0]:.6g}, {c[1]:.6g})); a wall can only move along itself — give a "
+                        f" at ({c[i, 0]:.6g}, {c[i, 1]:.6g})); a wall can only move along itself — give a "
                         "velocity tangential to the wall, or use kind = \"inflow-velocity\" for flow "
                         "through it"
                     )
@@ -128,6 +135,11 @@ def _check_values_on_mesh(case: Case, mesh: Mesh) -> None:
             elif callable(spec.velocity):
                 c = 0.5 * (a + b)
                 spec.velocity_at(c[:, 0], c[:, 1], label)
+        c = 0.5 * (a + b)
+        if spec.nu_tilde_ratio is not None and spec.profile is None:
+            spec.nu_tilde_ratio_at(c[:, 0], c[:, 1], label)
+        if spec.pressure is not None:
+            values_at(spec.pressure, c[:, 0], c[:, 1], "pressure")
 
 
 def generator_names() -> list[str]:

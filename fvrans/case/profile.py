@@ -19,6 +19,7 @@ from pathlib import Path
 
 import numpy as np
 
+from fvrans.case.formula import VectorFormula, values_at
 from fvrans.case.schema import DEFAULT_PROFILE_COLUMNS, BoundarySpec
 from fvrans.errors import CaseError
 from fvrans.files import input_file, read_text
@@ -247,6 +248,8 @@ def evaluate_velocity(
     v = spec.velocity
     if v is None:
         raise CaseError(f"{label}: the patch of kind {spec.kind!r} prescribes no velocity")
+    if isinstance(v, VectorFormula):
+        return v(x, y)
     if not callable(v):
         return np.full(x.shape, float(v[0])), np.full(x.shape, float(v[1]))
     try:
@@ -281,4 +284,10 @@ def evaluate_nu_tilde_ratio(spec: BoundarySpec, x: np.ndarray, y: np.ndarray, la
         return _interpolate(spec, x, y, "nu_tilde_ratio", label)
     if spec.nu_tilde_ratio is None:
         raise CaseError(f"{label}: the patch of kind {spec.kind!r} prescribes no nu_tilde_ratio")
-    return np.full(x.shape, float(spec.nu_tilde_ratio))
+    out = values_at(spec.nu_tilde_ratio, x, y, "nu_tilde_ratio")
+    if np.any(out < 0):
+        i = int(np.argmin(out))
+        raise CaseError(f"{label}.nu_tilde_ratio: the formula {spec.nu_tilde_ratio.text!r} gives "
+                        f"{out.ravel()[i]:.6g} < 0 at ({x.ravel()[i]:.6g}, {y.ravel()[i]:.6g}); "
+                        "nu_tilde / nu must be >= 0")
+    return out

@@ -58,9 +58,15 @@ MOMENTUM_SOLVERS = ("amg", "gauss-seidel")
 TURBULENCE_SOLVERS = ("amg", "gauss-seidel")
 #: text standing for a Python function in :meth:`Case.to_dict`
 CALLABLE_TEXT = "<python callable>"
+#: ``output.reference_velocity`` value meaning "the inflow's speed" (the default)
+INFLOW = "inflow"
 
 VelocityFunction = Callable[[np.ndarray, np.ndarray], Any]
+#: a constant vector, a Python function f(x, y) -> (u, v), or a
+#: :class:`fvrans.case.formula.VectorFormula` (components as formulas in x, y)
 Velocity = tuple[float, float] | VelocityFunction
+#: a number or a :class:`fvrans.case.formula.Formula` in x, y (a per-face boundary value)
+Scalar = Any
 
 
 @dataclass(frozen=True)
@@ -187,8 +193,10 @@ class MeanFlow:
 class BoundarySpec:
     """The condition on one patch. Keys a kind does not use are ``None``.
 
-    ``velocity`` is ``(u, v)`` or, for a velocity inlet built in Python, a function
-    ``f(x, y) -> (u, v)`` of face-centre coordinates. ``profile`` is the absolute path of a CSV
+    ``velocity`` is ``(u, v)``, a :class:`~fvrans.case.formula.VectorFormula` (components given as
+    formulas in x, y) or, built in Python, a function ``f(x, y) -> (u, v)`` of face-centre
+    coordinates. ``pressure`` and ``nu_tilde_ratio`` are numbers or
+    :class:`~fvrans.case.formula.Formula` objects. ``profile`` is the absolute path of a CSV
     inlet profile and ``profile_columns`` maps ``coordinate``, ``u``, ``v`` (and ``nu_tilde_ratio``
     when the file has that column) to column names. ``nu_tilde_ratio`` is None when the profile
     supplies it.
@@ -196,12 +204,12 @@ class BoundarySpec:
 
     kind: str
     velocity: Velocity | None = None
-    pressure: float | None = None
-    nu_tilde_ratio: float | None = None
+    pressure: Scalar | None = None
+    nu_tilde_ratio: Scalar | None = None
     profile: Path | None = None
     profile_columns: dict[str, str] | None = None
-    turbulence_intensity: float | None = None
-    eddy_viscosity_ratio: float | None = None
+    turbulence_intensity: Scalar | None = None
+    eddy_viscosity_ratio: Scalar | None = None
 
     def velocity_at(self, x, y, label: str = "<in memory>: boundary") -> tuple[np.ndarray, np.ndarray]:
         """Velocity components at points ``(x, y)`` (face centres), as float arrays of x's shape.
@@ -269,15 +277,38 @@ class SolverSettings:
 
 @dataclass(frozen=True)
 class OutputSettings:
-    """Reference values for coefficients and which patches get wall quantities."""
+    """Reference values for coefficients, the free-stream direction and moment centre of forces,
+    groups of wall patches whose forces are summed, and which patches get wall quantities.
+
+    ``reference_velocity`` None: the inflow's speed (see :func:`fvrans.post.forces.inflow_reference`);
+    ``reference_density`` None: the fluid's; ``flow_direction`` / ``flow_angle`` (degrees from +x)
+    None: the inflow's direction (at most one of the two is given).
+    """
 
     wall_patches: tuple[str, ...] = ()
-    reference_velocity: float = 1.0
+    reference_velocity: float | None = None
     reference_pressure: float = 0.0
     reference_length: float = 1.0
     write_fields: bool = True
     #: (xmin, xmax, ymin, ymax) of the zoomed field maps, or None
     map_window: tuple[float, float, float, float] | None = None
+    reference_density: float | None = None
+    flow_direction: tuple[float, float] | None = None
+    flow_angle: float | None = None
+    moment_centre: tuple[float, float] = (0.0, 0.0)
+    force_groups: dict[str, tuple[str, ...]] = field(default_factory=dict)
+
+    def direction(self) -> tuple[float, float] | None:
+        """The free-stream unit vector the case gives (from flow_direction or flow_angle), or None."""
+        import math
+
+        if self.flow_angle is not None:
+            a = math.radians(self.flow_angle)
+            return (math.cos(a), math.sin(a))
+        if self.flow_direction is not None:
+            n = math.hypot(*self.flow_direction)
+            return (self.flow_direction[0] / n, self.flow_direction[1] / n)
+        return None
 
 
 @dataclass(frozen=True)
@@ -349,6 +380,8 @@ class Case:
     raw: dict[str, Any] | None = field(default=None, compare=False, repr=False)
     derived: dict[str, DerivedScalar] = field(default_factory=dict)
     monitor: MonitorSettings = field(default_factory=MonitorSettings)
+    #: the named constants of the case's formulas (``[formula_constants]``)
+    constants: dict[str, float] = field(default_factory=dict)
     reference: ReferenceSettings = field(default_factory=ReferenceSettings)
 
     @property
@@ -446,8 +479,12 @@ def _vec(v) -> list[float]:
 
 def boundary_data(b: BoundarySpec, keep_callables: bool = False) -> dict[str, Any]:
     """One boundary condition as plain data (None fields left out)."""
+    from fvrans.case.formula import Formula, VectorFormula
+
     out: dict[str, Any] = {"kind": b.kind}
-    if b.velocity is not None:
+    if isinstance(b.velocity, VectorFormula):
+        out["velocity"] = b.velocity.data()
+    elif b.velocity is not None:
         if callable(b.velocity):
             out["velocity"] = b.velocity if keep_callables else CALLABLE_TEXT
         else:
@@ -456,14 +493,10 @@ def boundary_data(b: BoundarySpec, keep_callables: bool = False) -> dict[str, An
         out["profile"] = str(b.profile)
     if b.profile_columns is not None:
         out["profile_columns"] = dict(b.profile_columns)
-    if b.pressure is not None:
-        out["pressure"] = float(b.pressure)
-    if b.nu_tilde_ratio is not None:
-        out["nu_tilde_ratio"] = float(b.nu_tilde_ratio)
-    if b.turbulence_intensity is not None:
-        out["turbulence_intensity"] = float(b.turbulence_intensity)
-    if b.eddy_viscosity_ratio is not None:
-        out["eddy_viscosity_ratio"] = float(b.eddy_viscosity_ratio)
+    for key in ("pressure", "nu_tilde_ratio", "turbulence_intensity", "eddy_viscosity_ratio"):
+        v = getattr(b, key)
+        if v is not None:
+            out[key] = v.text if isinstance(v, Formula) else float(v)
     return out
 
 
@@ -495,15 +528,25 @@ def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
     if m.periodic_pairs:
         mesh["periodic_pairs"] = [list(p) for p in m.periodic_pairs]
     s = case.solver
+    o = case.output
     output: dict[str, Any] = {
-        "wall_patches": list(case.output.wall_patches),
-        "reference_velocity": case.output.reference_velocity,
-        "reference_pressure": case.output.reference_pressure,
-        "reference_length": case.output.reference_length,
-        "write_fields": case.output.write_fields,
+        "wall_patches": list(o.wall_patches),
+        "reference_velocity": INFLOW if o.reference_velocity is None else o.reference_velocity,
+        "reference_pressure": o.reference_pressure,
+        "reference_length": o.reference_length,
+        "write_fields": o.write_fields,
+        "moment_centre": _vec(o.moment_centre),
     }
-    if case.output.map_window is not None:
-        output["map_window"] = [float(v) for v in case.output.map_window]
+    if o.reference_density is not None:
+        output["reference_density"] = o.reference_density
+    if o.flow_angle is not None:
+        output["flow_angle"] = o.flow_angle
+    if o.flow_direction is not None:
+        output["flow_direction"] = _vec(o.flow_direction)
+    if o.force_groups:
+        output["force_groups"] = {g: list(m) for g, m in o.force_groups.items()}
+    if o.map_window is not None:
+        output["map_window"] = [float(v) for v in o.map_window]
     data = {
         "title": case.title,
         "description": case.description,
@@ -539,6 +582,8 @@ def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
         },
         "output": output,
     }
+    if case.constants:
+        data["formula_constants"] = dict(case.constants)
     mf = case.mean_flow
     if mf.active:
         data["mean_flow"] = ({"pressure_gradient": _vec(mf.pressure_gradient)} if mf.pressure_gradient is not None

@@ -51,11 +51,12 @@ TABLE_KEYS: dict[str, tuple[str, ...]] = {
     ),
     "output": (
         "wall_patches", "reference_velocity", "reference_pressure", "reference_length", "write_fields",
-        "map_window",
+        "map_window", "reference_density", "flow_direction", "flow_angle", "moment_centre", "force_groups",
     ),
 }
 TOP_KEYS = ("title", "description", "mesh", "fluid", "model", "initial", "boundary", "solver", "output", "probes",
-            "mean_flow", "derived", "monitor", "reference")
+            "mean_flow", "derived", "monitor", "reference",
+            "formula_constants")
 #: keys of [reference] (reference data: injection, comparison, a-priori tests, features) and of a region
 REFERENCE_KEYS = ("data", "names", "outside", "regions", "freeze_velocity", "write_features")
 REGION_KEYS = ("box", "wall_distance")
@@ -144,11 +145,13 @@ def _quoted_list(items: Sequence[str]) -> str:
 
 
 class _Ctx:
-    """Error factory for one case: the label of the file and the base directory of relative paths."""
+    """Error factory for one case: the label of the file, the base directory of relative paths and
+    the named constants of its formulas."""
 
     def __init__(self, label: str, base: Path):
         self.label = label
         self.base = base
+        self.constants: dict[str, float] = {}
 
     def error(self, path: Sequence[str], msg: str) -> CaseError:
         where = f"{format_key(path)}: " if path else ""
@@ -228,6 +231,56 @@ class _Table:
     def vector(self, key: str, default: Any = _REQUIRED, hint: str = "") -> tuple[float, float]:
         v = self._get(key, default, hint)
         return check_vector(v, lambda m: self.fail(key, m))
+
+    def _formula(self, key: str, text: str, label: str = "") -> Any:
+        from fvrans.case.formula import parse_formula
+
+        where = f"{self.ctx.label}: {format_key(self.path + (key,))}{label}"
+        return parse_formula(text, self.ctx.constants, where)
+
+    def number_or_formula(self, key: str, default: Any = _REQUIRED, rule: Rule | None = None,
+                          meaning: str = "") -> Any:
+        """A number (checked against ``rule``) or a formula string in x, y and the case's
+        ``[formula_constants]`` (a :class:`fvrans.case.formula.Formula`; ``rule`` is checked
+        where it is evaluated): the general form of a per-face boundary value."""
+        v = self._get(key, default, "")
+        if isinstance(v, str):
+            try:
+                float(v)
+            except ValueError:
+                return self._formula(key, v)
+        if callable(getattr(v, "values_at", None)):  # an already parsed formula (from Python)
+            return self._formula(key, v.text)
+        return check_number(v, lambda m: self.fail(key, m + " (or a formula in x and y, as a quoted string)"),
+                            rule, meaning)
+
+    def vector_or_formula(self, key: str, default: Any = _REQUIRED, hint: str = "") -> Any:
+        """``[u, v]`` where each item is a number or a formula string; a pair of numbers gives a
+        tuple, anything with a formula a :class:`fvrans.case.formula.VectorFormula`."""
+        from fvrans.case.formula import VectorFormula
+
+        v = self._get(key, default, hint)
+        if hasattr(v, "data") and isinstance(v, VectorFormula):
+            v = v.data()
+        def formula_text(c: Any) -> bool:
+            if not isinstance(c, str):
+                return False
+            try:
+                float(c)  # a quoted number: refused below with "remove the quotes"
+            except ValueError:
+                return True
+            return False
+
+        if isinstance(v, (list, tuple)) and len(v) == 2 and any(formula_text(c) for c in v):
+            comps = []
+            for i, c in enumerate(v):
+                if isinstance(c, str):
+                    comps.append(self._formula(key, c, f" (item {i + 1})"))
+                else:
+                    comps.append(check_number(c, lambda m, i=i: self.fail(key, f"item {i + 1} {m}")))
+            return VectorFormula((comps[0], comps[1]))
+        return check_vector(v, lambda m: self.fail(key, m + "; items may be numbers or formulas in x and y "
+                                                   "(quoted strings)"))
 
     def table(self, key: str, default: Any = _REQUIRED, hint: str = "") -> Any:
         v = self._get(key, default, hint, "table")
@@ -347,6 +400,9 @@ def case_from_dict(data: Mapping[str, Any], source: str | Path | None = None) ->
     top = _Table(ctx, (), data, TOP_KEYS, "the top level of a case")
     title = top.string("title", "")
     description = top.string("description", "")
+    from fvrans.case.formula import check_constants
+
+    ctx.constants = check_constants(top.table("formula_constants", {}), f"{ctx.label}: formula_constants")
 
     mesh = _mesh(ctx, top.table("mesh", hint=(
         'add a [mesh] table with file = "path/to/mesh.msh" (relative to the case file) '
@@ -399,6 +455,7 @@ def case_from_dict(data: Mapping[str, Any], source: str | Path | None = None) ->
         raw=S.copy_data(data),
         derived=derived,
         monitor=monitor,
+        constants=dict(ctx.constants),
         reference=reference,
     )
 
@@ -691,29 +748,32 @@ def _boundary(ctx: _Ctx, name: str, data: Any) -> S.BoundarySpec:
                             f"{', '.join(allowed)} — remove the key or change the kind")
     t = _Table(ctx, path, data, allowed, f"a patch of kind {kind!r}")
     if kind == "wall":
-        return S.BoundarySpec(kind, velocity=t.vector("velocity", (0.0, 0.0)))
+        v = t.data.get("velocity")
+        if callable(v) and not isinstance(v, (list, tuple, np.ndarray)) and not hasattr(v, "data"):
+            return S.BoundarySpec(kind, velocity=v)  # a Python function of the face centres
+        return S.BoundarySpec(kind, velocity=t.vector_or_formula("velocity", (0.0, 0.0)))
     if kind == "outflow-pressure":
-        return S.BoundarySpec(kind, pressure=t.number("pressure", 0.0))
+        return S.BoundarySpec(kind, pressure=t.number_or_formula("pressure", 0.0))
     if kind == "symmetry":
         return S.BoundarySpec(kind)
     if kind == "outer-flow":
         return S.BoundarySpec(
             kind,
             velocity=t.vector("velocity", hint="add velocity = [u, v], the free-stream velocity"),
-            pressure=t.number("pressure", 0.0),
-            nu_tilde_ratio=t.number("nu_tilde_ratio", 3.0, NON_NEGATIVE, "the free-stream nu_tilde / nu"),
+            pressure=t.number_or_formula("pressure", 0.0),
+            nu_tilde_ratio=t.number_or_formula("nu_tilde_ratio", 3.0, NON_NEGATIVE, "the free-stream nu_tilde / nu"),
             **_sst_inflow(t),
         )
     return _inlet(ctx, t)
 
 
-def _sst_inflow(t: _Table) -> dict[str, float]:
-    """Inflow keys of the k-omega SST model (defaults when absent)."""
+def _sst_inflow(t: _Table) -> dict[str, Any]:
+    """Inflow keys of the k-omega SST model (defaults when absent; numbers or formulas)."""
     return {
-        "turbulence_intensity": t.number("turbulence_intensity", S.DEFAULT_TURBULENCE_INTENSITY, NON_NEGATIVE,
-                                         "the inflow sqrt(2k/3) / |u| (k-omega SST)"),
-        "eddy_viscosity_ratio": t.number("eddy_viscosity_ratio", S.DEFAULT_EDDY_VISCOSITY_RATIO, POSITIVE,
-                                         "the inflow nu_t / nu (k-omega SST)"),
+        "turbulence_intensity": t.number_or_formula("turbulence_intensity", S.DEFAULT_TURBULENCE_INTENSITY,
+                                                    NON_NEGATIVE, "the inflow sqrt(2k/3) / |u| (k-omega SST)"),
+        "eddy_viscosity_ratio": t.number_or_formula("eddy_viscosity_ratio", S.DEFAULT_EDDY_VISCOSITY_RATIO, POSITIVE,
+                                                    "the inflow nu_t / nu (k-omega SST)"),
     }
 
 
@@ -733,11 +793,11 @@ def _inlet(ctx: _Ctx, t: _Table) -> S.BoundarySpec:
         if isinstance(v, str) and v == S.CALLABLE_TEXT:
             raise t.fail("velocity", f"{S.CALLABLE_TEXT!r} stands for a Python function, which cannot be "
                          "restored from text; set the function again with case.set(...)")
-        if callable(v) and not isinstance(v, (list, tuple, np.ndarray)):
+        if callable(v) and not isinstance(v, (list, tuple, np.ndarray)) and not hasattr(v, "data"):
             velocity: S.Velocity = v
         else:
-            velocity = t.vector("velocity")
-        ratio = t.number("nu_tilde_ratio", 3.0, NON_NEGATIVE, "the inflow nu_tilde / nu")
+            velocity = t.vector_or_formula("velocity")
+        ratio = t.number_or_formula("nu_tilde_ratio", 3.0, NON_NEGATIVE, "the inflow nu_tilde / nu")
         return S.BoundarySpec("inflow-velocity", velocity=velocity, nu_tilde_ratio=ratio, **_sst_inflow(t))
     from fvrans.case.profile import MAX_PROFILE_BYTES
 
@@ -752,7 +812,7 @@ def _inlet(ctx: _Ctx, t: _Table) -> S.BoundarySpec:
                          f"{columns['nu_tilde_ratio']!r}; remove this key (or the column)")
         nut = None
     else:
-        nut = t.number("nu_tilde_ratio", 3.0, NON_NEGATIVE, "the inflow nu_tilde / nu")
+        nut = t.number_or_formula("nu_tilde_ratio", 3.0, NON_NEGATIVE, "the inflow nu_tilde / nu")
     return S.BoundarySpec("inflow-velocity", profile=profile, profile_columns=columns, nu_tilde_ratio=nut,
                           **_sst_inflow(t))
 
@@ -814,14 +874,61 @@ def _output(ctx: _Ctx, data: Any, boundaries: Mapping[str, S.BoundarySpec]) -> S
                          f"(shear stress, forces) need kind = \"wall\" — wall patches: {_quoted_list(walls)}")
         if n not in names:
             names.append(n)
+    u_ref = t._get("reference_velocity", S.INFLOW, "")
+    if isinstance(u_ref, str) and u_ref != S.INFLOW:
+        raise t.fail("reference_velocity", f'must be a number > 0 (the velocity U in 1/2 rho U^2) or "{S.INFLOW}" '
+                     f"(the speed of the case's inflow), got {describe(u_ref)}")
+    if u_ref != S.INFLOW:
+        u_ref = t.number("reference_velocity", rule=PHYSICAL, meaning="the velocity U in 1/2 rho U^2")
+    if t.has("flow_angle") and t.has("flow_direction"):
+        raise t.fail("flow_angle", "give flow_angle (degrees from the x axis) or flow_direction = [x, y], not both")
+    direction = None
+    if t.has("flow_direction"):
+        direction = t.vector("flow_direction")
+        if direction == (0.0, 0.0):
+            raise t.fail("flow_direction", "must be a non-zero vector [x, y] along the free stream")
     return S.OutputSettings(
         wall_patches=tuple(names or walls),
-        reference_velocity=t.number("reference_velocity", 1.0, PHYSICAL, "the velocity U in 1/2 rho U^2"),
+        reference_velocity=None if u_ref == S.INFLOW else u_ref,
         reference_pressure=t.number("reference_pressure", 0.0),
         reference_length=t.number("reference_length", 1.0, PHYSICAL, "the length of force coefficients"),
         write_fields=t.boolean("write_fields", True),
         map_window=_window(t),
+        reference_density=t.number("reference_density", rule=PHYSICAL, meaning="the density in 1/2 rho U^2")
+        if t.has("reference_density") else None,
+        flow_direction=direction,
+        flow_angle=t.number("flow_angle", meaning="degrees") if t.has("flow_angle") else None,
+        moment_centre=t.vector("moment_centre", (0.0, 0.0)),
+        force_groups=_force_groups(t, boundaries, names or walls),
     )
+
+
+def _force_groups(t: _Table, boundaries: Mapping[str, S.BoundarySpec], reported: Sequence[str]) -> dict:
+    """``output.force_groups = { name = ["patch", ...] }``: wall patches whose forces are summed."""
+    data = t.table("force_groups", {})
+    walls = [n for n, b in boundaries.items() if b.kind == "wall"]
+    out: dict[str, tuple[str, ...]] = {}
+    for g, members in data.items():
+        key = ("force_groups", str(g))
+        if not isinstance(g, str) or not g.strip():
+            raise t.ctx.error(t.path + ("force_groups",), f"group names must be non-empty strings, got {g!r}")
+        if isinstance(members, np.ndarray):
+            members = members.tolist()
+        if not isinstance(members, (list, tuple)) or not members or not all(isinstance(m, str) for m in members):
+            raise t.ctx.error(t.path + key, f"must be a non-empty list of wall patch names, got {describe(members)}")
+        for m in members:
+            if m not in walls:
+                why = (f"is of kind {boundaries[m].kind!r}" if m in boundaries else
+                       f"has no [{format_key(('boundary', m))}] table{did_you_mean(m, walls)}")
+                raise t.ctx.error(t.path + key, f"{m!r} {why}; forces are summed over wall patches: "
+                                  f"{_quoted_list(walls)}")
+            if m not in reported:
+                raise t.ctx.error(t.path + key, f"{m!r} is not in output.wall_patches ({_quoted_list(reported)}); "
+                                  "add it there")
+        if len(set(members)) != len(members):
+            raise t.ctx.error(t.path + key, f"names a patch twice: {members}")
+        out[g] = tuple(members)
+    return out
 
 
 def _window(t: _Table) -> tuple[float, float, float, float] | None:

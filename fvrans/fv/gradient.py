@@ -224,6 +224,27 @@ def limit_gradient(
     return grad * psi[:, None], psi
 
 
+def vertex_stencils(mesh: Mesh) -> tuple[np.ndarray, np.ndarray]:
+    """Vertex-neighbour stencil of every cell in CSR form (ptr, idx): the other cells sharing a
+    vertex with it, then the boundary faces touching one of its vertices (entry ``-1 - b`` for
+    boundary face ``n_internal_faces + b``)."""
+    nc, nfi = mesh.n_cells, mesh.n_internal_faces
+    cp = mesh.cell_points.astype(np.int64)
+    cell_of = np.repeat(np.arange(nc, dtype=np.int64), np.diff(mesh.cell_offsets))
+    order = np.argsort(cp, kind="stable")
+    pc_ptr = np.zeros(mesh.n_points + 1, dtype=np.int64)
+    np.add.at(pc_ptr, cp + 1, 1)
+    bpts = mesh.face_points[nfi:].astype(np.int64)
+    bface = np.repeat(np.arange(nfi, mesh.n_faces, dtype=np.int64), 2)
+    border = np.argsort(bpts.ravel(), kind="stable")
+    pb_ptr = np.zeros(mesh.n_points + 1, dtype=np.int64)
+    np.add.at(pb_ptr, bpts.ravel() + 1, 1)
+    return _k.vertex_stencils(
+        mesh.cell_offsets.astype(np.int64), cp, np.cumsum(pc_ptr), cell_of[order],
+        np.cumsum(pb_ptr), bface[border], nfi,
+    )
+
+
 class QuadraticFit:
     """Second derivatives from a weighted least-squares quadratic fit over the vertex neighbours.
 
@@ -238,20 +259,7 @@ class QuadraticFit:
 
     def __init__(self, mesh: Mesh, geom: Geometry):
         nc, nfi = mesh.n_cells, mesh.n_internal_faces
-        cp = mesh.cell_points.astype(np.int64)
-        cell_of = np.repeat(np.arange(nc, dtype=np.int64), np.diff(mesh.cell_offsets))
-        order = np.argsort(cp, kind="stable")
-        pc_ptr = np.zeros(mesh.n_points + 1, dtype=np.int64)
-        np.add.at(pc_ptr, cp + 1, 1)
-        bpts = mesh.face_points[nfi:].astype(np.int64)
-        bface = np.repeat(np.arange(nfi, mesh.n_faces, dtype=np.int64), 2)
-        border = np.argsort(bpts.ravel(), kind="stable")
-        pb_ptr = np.zeros(mesh.n_points + 1, dtype=np.int64)
-        np.add.at(pb_ptr, bpts.ravel() + 1, 1)
-        self.ptr, self.idx = _k.vertex_stencils(
-            mesh.cell_offsets.astype(np.int64), cp, np.cumsum(pc_ptr), cell_of[order],
-            np.cumsum(pb_ptr), bface[border], nfi,
-        )
+        self.ptr, self.idx = vertex_stencils(mesh)
         self.coef = np.zeros((self.idx.shape[0], 5))
         self.n_singular = _k.quadratic_fit_matrices(
             self.ptr, self.idx, geom.cell_centre, geom.face_centre, geom.cell_area, nfi, self.coef

@@ -24,17 +24,21 @@ from fvrans.mesh._blocks import (
     triangulate_region,
     uniform_points,
 )
+from fvrans.mesh.bodies import annulus, cylinder_channel, cylinder_channel_grid
 from fvrans.mesh.mesh import Mesh
 from fvrans.mesh.shapes import bump_channel, planar_diffuser
 
 __all__ = [
     "LEVELS",
+    "annulus",
     "estimate_cells",
     "backward_facing_step",
     "bump_channel",
     "cavity",
     "channel",
     "curved_channel",
+    "cylinder_channel",
+    "cylinder_channel_grid",
     "flat_plate",
     "flat_plate_family",
     "flat_plate_lines",

@@ -24,6 +24,7 @@ import numpy as np
 from fvrans.case.schema import Case, DerivedScalar
 from fvrans.errors import CaseError
 from fvrans.fields import Fields
+from fvrans.fv.wall_gradient import WallGradient
 from fvrans.mesh.geometry import Geometry
 from fvrans.mesh.locate import CellLocator, line_points
 from fvrans.mesh.mesh import Mesh
@@ -31,8 +32,9 @@ from fvrans.models.base import EDDY_VISCOSITY_RATIO, TurbulenceModel
 from fvrans.physics.boundary import FlowBoundary
 from fvrans.post.derived import first_rise_through_zero
 from fvrans.post.filenames import safe_file_name
+from fvrans.post.forces import case_reference, patch_forces
 from fvrans.post.probes import Stencil, build_stencil
-from fvrans.post.wall import PatchOrder, order_patch_faces, patch_forces, wall_data
+from fvrans.post.wall import PatchOrder, order_patch_faces, wall_data, wall_gradient_operator
 
 #: the coefficients of each wall patch that are watched
 FORCE_COLUMNS = ("Cd", "Cl")
@@ -101,17 +103,21 @@ def force_coefficients(
     mesh: Mesh, geom: Geometry, boundary: FlowBoundary, case: Case, patches: Sequence[str],
     velocity: np.ndarray, pressure: np.ndarray, grad_p: np.ndarray,
     orders: Mapping[str, PatchOrder] | None = None,
+    gradients: Mapping[str, WallGradient] | None = None,
 ) -> dict[str, dict[str, float]]:
-    """Force coefficients (:meth:`fvrans.post.wall.PatchForces.coefficients`) of each wall patch,
-    with the case's reference values; ``orders``: the patches' face orders, computed once (the
-    ordering costs more than the forces)."""
+    """Force coefficients (:meth:`fvrans.post.forces.PatchForces.coefficients`) of each wall patch,
+    with the run's reference values and free-stream direction (as summary.json has them,
+    :func:`fvrans.post.forces.case_reference`); ``orders`` and ``gradients``: the patches' face
+    orders and wall-gradient operators, built once (they cost more than the forces)."""
     c = case
+    ref = case_reference(c.output, c.fluid.density, geom, boundary, mesh.n_internal_faces)
     out = {}
     for name in patches:
         w = wall_data(mesh, geom, boundary, name, velocity, pressure, grad_p, c.fluid.density, c.fluid.viscosity,
-                      c.output.reference_velocity, c.output.reference_pressure,
-                      order=None if orders is None else orders.get(name))
-        out[name] = patch_forces(w, c.output.reference_length).coefficients()
+                      ref.velocity, c.output.reference_pressure, rho_ref=ref.density,
+                      order=None if orders is None else orders.get(name),
+                      gradient=None if gradients is None else gradients.get(name))
+        out[name] = patch_forces(w, c.output.reference_length, ref.direction, c.output.moment_centre).coefficients()
     return out
 
 
@@ -189,12 +195,14 @@ class WallForces(Watch):
     def __init__(self, mesh: Mesh, geom: Geometry, boundary: FlowBoundary, case: Case, patches: Sequence[str]):
         self.args = (mesh, geom, boundary, case, list(patches))
         self.orders = {p: order_patch_faces(mesh, geom, p) for p in patches}
+        self.gradients = {p: wall_gradient_operator(mesh, geom, boundary, mesh.patch(p).start + o.faces)
+                          for p, o in self.orders.items()}
         # patch names come from mesh files: in column names they take the form of their file names
         # (wall/<name>.csv), which holds no comma, quote or line break
         self.columns = [f"{safe_file_name(p, f'wall patch {p!r}')}.{k}" for p in patches for k in FORCE_COLUMNS]
 
     def values(self, state: FlowState) -> list[float]:
-        co = force_coefficients(*self.args, state.velocity, state.pressure, state.grad_p, self.orders)
+        co = force_coefficients(*self.args, state.velocity, state.pressure, state.grad_p, self.orders, self.gradients)
         return [co[p][k] for p in self.args[4] for k in FORCE_COLUMNS]
 
     def scales(self, values: Sequence[float], speed: float) -> list[float]:

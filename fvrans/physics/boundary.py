@@ -2,8 +2,10 @@
 
 Kinds (integer codes shared with the solver kernels):
 
-* ``wall`` (0): no-slip; u = u_wall (tangential motion only), zero mass flux.
-* ``inflow-velocity`` (1): u = u_in (uniform, a table along a coordinate, or a Python callable).
+* ``wall`` (0): no-slip; u = u_wall (tangential motion only; constant, a formula or a Python
+  function of the face centres, e.g. a rotating cylinder), zero mass flux.
+* ``inflow-velocity`` (1): u = u_in (uniform, a table along a coordinate, a formula or a Python
+  callable; formulas and callables are averaged over each face by Simpson's rule).
 * ``outflow-pressure`` (2): fixed static pressure, zero-gradient velocity; reverse flow enters
   normal to the boundary.
 * ``symmetry`` (3): zero normal velocity and zero shear.
@@ -19,6 +21,7 @@ from typing import Any
 
 import numpy as np
 
+from fvrans.case.formula import values_at
 from fvrans.case.schema import DEFAULT_EDDY_VISCOSITY_RATIO, DEFAULT_TURBULENCE_INTENSITY, BoundarySpec
 from fvrans.errors import CaseError
 from fvrans.mesh.geometry import Geometry
@@ -66,7 +69,7 @@ def _nu_tilde_ratio(spec: BoundarySpec, patch: str, xf: np.ndarray) -> np.ndarra
 def build_flow_boundary(mesh: Mesh, geom: Geometry, specs: Mapping[str, Any]) -> FlowBoundary:
     """Per-face boundary arrays from ``specs``: patch name -> a case BoundarySpec, or a dict of
     its fields (``kind``, ``velocity`` as a vector or a callable f(x, y) -> (u, v),
-    ``pressure``, ``nu_tilde_ratio``)."""
+    ``pressure``, ``nu_tilde_ratio``; numbers or :class:`fvrans.case.formula.Formula` objects)."""
     nb = mesh.n_boundary_faces
     ni = mesh.n_internal_faces
     kind = np.full(nb, -1, dtype=np.int64)
@@ -98,37 +101,56 @@ def build_flow_boundary(mesh: Mesh, geom: Geometry, specs: Mapping[str, Any]) ->
         if code == WALL:
             v = spec.velocity
             if v is not None:
-                uw = np.broadcast_to(np.asarray(v, dtype=float), (patch.size, 2))
+                if callable(v):  # a Python function or a formula of the face centres
+                    uw = np.stack(spec.velocity_at(xf[:, 0], xf[:, 1], f"boundary.{patch.name}"), axis=1)
+                else:
+                    uw = np.broadcast_to(np.asarray(v, dtype=float), (patch.size, 2))
                 n = geom.face_normal[patch.start : patch.stop]
                 un = np.einsum("ij,ij->i", uw, n)
                 vel[sl] = uw - un[:, None] * n  # tangential motion only
         elif code == INLET:
-            vel[sl] = np.stack(spec.velocity_at(xf[:, 0], xf[:, 1], f"boundary.{patch.name}"), axis=1)
+            where = f"boundary.{patch.name}"
+            vel[sl] = np.stack(spec.velocity_at(xf[:, 0], xf[:, 1], where), axis=1)
+            if spec.profile is None and callable(spec.velocity):
+                # a formula or function: the face average by Simpson's rule, so that the inflow
+                # rate is exact for profiles up to cubic (a parabola at its centre values carries
+                # 1/(2 n^2) too much flow on n faces)
+                fp = mesh.face_points[patch.start : patch.stop]
+                pa, pb = mesh.points[fp[:, 0]], mesh.points[fp[:, 1]]
+                ua = np.stack(spec.velocity_at(pa[:, 0], pa[:, 1], where), axis=1)
+                ub = np.stack(spec.velocity_at(pb[:, 0], pb[:, 1], where), axis=1)
+                vel[sl] = (ua + 4.0 * vel[sl] + ub) / 6.0
             nut[sl] = _nu_tilde_ratio(spec, patch.name, xf)
-            tu[sl], ratio[sl] = _two_equation_inflow(spec)
+            tu[sl], ratio[sl] = _two_equation_inflow(spec, xf)
             if isinstance(spec, BoundarySpec) and spec.profile_columns and "k" in spec.profile_columns:
                 k_in[sl] = spec.profile_column_at("k", xf[:, 0], xf[:, 1], f"boundary.{patch.name}")
                 w_in[sl] = spec.profile_column_at("omega", xf[:, 0], xf[:, 1], f"boundary.{patch.name}")
         elif code == OUTLET:
-            pres[sl] = float(spec.pressure or 0.0)
+            pres[sl] = values_at(0.0 if spec.pressure is None else spec.pressure, xf[:, 0], xf[:, 1], "pressure")
         elif code == FREESTREAM:
             v = spec.velocity
             if v is None:
                 raise CaseError(f"boundary.{patch.name}: an outer-flow boundary needs 'velocity'")
             vel[sl] = np.asarray(v, dtype=float)
-            pres[sl] = float(spec.pressure or 0.0)
+            pres[sl] = values_at(0.0 if spec.pressure is None else spec.pressure, xf[:, 0], xf[:, 1], "pressure")
             nut[sl] = _nu_tilde_ratio(spec, patch.name, xf)
-            tu[sl], ratio[sl] = _two_equation_inflow(spec)
+            tu[sl], ratio[sl] = _two_equation_inflow(spec, xf)
     given = bool(np.any(np.isfinite(k_in)))
     return FlowBoundary(kind=kind, velocity=vel, pressure=pres, nu_tilde_ratio=nut, patch_kind=patch_kind,
                         turbulence_intensity=tu, eddy_viscosity_ratio=ratio, inflow_k=k_in if given else None,
                         inflow_omega=w_in if given else None)
 
 
-def _two_equation_inflow(spec: BoundarySpec) -> tuple[float, float]:
-    """(turbulence intensity, nu_t / nu) of an inflow condition, defaults where it gives none."""
+def _two_equation_inflow(spec: BoundarySpec, xf: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """(turbulence intensity, nu_t / nu) of an inflow condition at the face centres ``xf`` (numbers
+    or formulas), defaults where it gives none."""
     tu = getattr(spec, "turbulence_intensity", None)
     ratio = getattr(spec, "eddy_viscosity_ratio", None)
-    return (DEFAULT_TURBULENCE_INTENSITY if tu is None else float(tu),
-            DEFAULT_EDDY_VISCOSITY_RATIO if ratio is None else float(ratio))
-
+    tu_f = values_at(DEFAULT_TURBULENCE_INTENSITY if tu is None else tu, xf[:, 0], xf[:, 1], "turbulence_intensity")
+    ratio_f = values_at(DEFAULT_EDDY_VISCOSITY_RATIO if ratio is None else ratio, xf[:, 0], xf[:, 1],
+                        "eddy_viscosity_ratio")
+    if np.any(tu_f < 0) or np.any(ratio_f <= 0):
+        raise CaseError(f"{getattr(tu, 'where', None) or getattr(ratio, 'where', 'boundary')}: the formula gives a "
+                        "turbulence_intensity below 0 or an eddy_viscosity_ratio not above 0 on some face; "
+                        "check it or the patch it is used on")
+    return tu_f, ratio_f

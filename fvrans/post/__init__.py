@@ -1,15 +1,23 @@
 """Post-processing and output: wall quantities, forces, and atomic JSON/CSV/VTU writers."""
 
+from fvrans.post.forces import (
+    ForceReference,
+    InflowReference,
+    PatchForces,
+    case_reference,
+    forces_summary,
+    group_forces,
+    inflow_reference,
+    patch_forces,
+)
 from fvrans.post.residuals import residual_columns, write_residuals_csv
 from fvrans.post.summary import build_summary, wall_summary
 from fvrans.post.wall import (
-    PatchForces,
     PatchOrder,
     WallData,
     ZeroShearPoint,
     all_wall_data,
     order_patch_faces,
-    patch_forces,
     sign_changes,
     unit_tangent,
     wall_columns,
@@ -28,7 +36,9 @@ from fvrans.post.writers import (
 )
 
 __all__ = [
+    "InflowReference",
     "PatchForces",
+    "ForceReference",
     "PatchOrder",
     "WallData",
     "ZeroShearPoint",
@@ -36,6 +46,10 @@ __all__ = [
     "atomic_path",
     "atomic_write",
     "build_summary",
+    "case_reference",
+    "forces_summary",
+    "group_forces",
+    "inflow_reference",
     "order_patch_faces",
     "patch_forces",
     "residual_columns",

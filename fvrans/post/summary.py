@@ -2,14 +2,15 @@
 
 from __future__ import annotations
 
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from typing import Any
 
 import numpy as np
 
 from fvrans.errors import CaseError
+from fvrans.post.forces import forces_summary
 from fvrans.post.residuals import HistoryLike
-from fvrans.post.wall import WallData, patch_forces, zero_shear_points
+from fvrans.post.wall import WallData, zero_shear_points
 from fvrans.post.writers import to_jsonable
 
 
@@ -46,14 +47,19 @@ def summary_value(summary: Any, dotted: str, where: str, none_as_nan: bool = Fal
 
 
 def wall_summary(
-    wall: WallData, l_ref: float = 1.0, flow_direction: tuple[float, float] = (1.0, 0.0)
+    wall: WallData,
+    l_ref: float = 1.0,
+    flow_direction: Sequence[float] = (1.0, 0.0),
+    moment_centre: Sequence[float] = (0.0, 0.0),
 ) -> dict[str, Any]:
     """Forces, coefficients, zero-shear points and y+ range of one wall patch (plain types)."""
     zs = zero_shear_points(wall)
     yp = wall.y_plus
+    forces, _ = forces_summary({wall.patch: wall}, l_ref, flow_direction, moment_centre)
     return {
-        "forces": patch_forces(wall, l_ref, flow_direction).as_dict(),
+        "forces": forces[wall.patch].as_dict(),
         "shear_sign_change_x": [p.x for p in zs],
+        "shear_sign_change_y": [p.y for p in zs],
         "shear_sign_change_s": [p.s for p in zs],
         "shear_sign_change_kind": [p.kind for p in zs],
         "faces": len(wall),
@@ -71,15 +77,20 @@ def build_summary(
     history: HistoryLike | None = None,
     walls: Mapping[str, WallData] | None = None,
     l_ref: float = 1.0,
-    flow_direction: tuple[float, float] = (1.0, 0.0),
+    flow_direction: Sequence[float] = (1.0, 0.0),
     extra: Mapping[str, Any] | None = None,
+    moment_centre: Sequence[float] = (0.0, 0.0),
+    groups: Mapping[str, Sequence[str]] | None = None,
+    reference_notes: Mapping[str, Any] | None = None,
 ) -> dict[str, Any]:
     """The summary as a JSON-ready dict (plain floats, ints, strings, lists; NaN/inf as None).
 
     Keys: ``title``, ``converged``, ``iterations``, ``wall_seconds``, ``n_cells``,
-    ``final_residuals`` (name -> last value), ``reference`` (rho, mu, u_ref, p_ref, l_ref,
-    flow_direction; when walls are given), ``walls`` (patch -> :func:`wall_summary`), plus the
-    items of ``extra``.
+    ``final_residuals`` (name -> last value), ``reference`` (rho (the density of the
+    coefficients), mu, u_ref, p_ref, l_ref, flow_direction, flow_angle (degrees), moment_centre,
+    plus ``reference_notes`` such as where u_ref came from; when walls are given), ``walls``
+    (patch -> :func:`wall_summary`), ``force_groups`` (group -> patches and forces; with
+    ``groups``), plus the items of ``extra``.
 
     >>> build_summary("demo", True, 12, 0.5, 100)["final_residuals"]
     {}
@@ -97,15 +108,22 @@ def build_summary(
         out["final_residuals"] = {str(n): float(v) for n, v in zip(history.names, last)}
     if walls:
         any_wall = next(iter(walls.values()))
+        e = np.asarray(flow_direction, dtype=float) / np.hypot(*flow_direction)
         out["reference"] = {
-            "rho": any_wall.rho,
+            "rho": any_wall.rho if any_wall.rho_ref is None else any_wall.rho_ref,
             "mu": any_wall.mu,
             "u_ref": any_wall.u_ref,
             "p_ref": any_wall.p_ref,
             "l_ref": float(l_ref),
-            "flow_direction": [float(flow_direction[0]), float(flow_direction[1])],
+            "flow_direction": [float(e[0]), float(e[1])],
+            "flow_angle": float(np.degrees(np.arctan2(e[1], e[0]))),
+            "moment_centre": [float(moment_centre[0]), float(moment_centre[1])],
+            **dict(reference_notes or {}),
         }
-        out["walls"] = {name: wall_summary(w, l_ref, flow_direction) for name, w in walls.items()}
+        out["walls"] = {name: wall_summary(w, l_ref, flow_direction, moment_centre) for name, w in walls.items()}
+        if groups:
+            _, per_group = forces_summary(walls, l_ref, flow_direction, moment_centre, groups)
+            out["force_groups"] = {g: {"patches": list(groups[g]), "forces": f.as_dict()} for g, f in per_group.items()}
     if extra:
         clash = set(extra) & set(out)
         if clash:

@@ -6,8 +6,11 @@ Conventions for a wall face f with owner (fluid) cell P:
   n = -n_out.
 * the tangent t is the unit vector along the face with t_x > 0 (t = (0, 1) on vertical faces);
 * first-cell wall distance d = (x_f - x_P) . n_out;
-* wall shear stress along t, one-sided like the solver's wall flux (the eddy viscosity vanishes
-  at a wall, so mu is the molecular viscosity):  tau_w = mu (u_P - u_wall) . t / d;
+* velocity gradient at the face centre G = grad u from the second-order wall reconstruction
+  (a least-squares quadratic through the wall velocity, :mod:`fvrans.fv.wall_gradient`), the same
+  gradient the solver's momentum equation takes for its wall flux;
+* viscous traction of the fluid on the wall tau = mu (G + G^T) . n (the eddy viscosity vanishes
+  at a wall, so mu is the molecular viscosity); wall shear stress along t: tau_w = tau . t;
 * wall pressure extrapolated with the cell gradient: p_w = p_P + grad p_P . (x_f - x_P);
 * Cf = tau_w / q, Cp = (p_w - p_ref) / q with q = rho U_ref^2 / 2;
 * u_tau = sqrt(|tau_w| / rho), y+ = d u_tau / nu, nu = mu / rho.
@@ -23,6 +26,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from fvrans.errors import CaseError, MeshError
+from fvrans.fv.wall_gradient import WallGradient
 from fvrans.mesh.geometry import Geometry
 from fvrans.mesh.mesh import Mesh
 from fvrans.physics.boundary import KIND_CODES, WALL, FlowBoundary
@@ -178,6 +182,9 @@ class WallData:
     signed shear stress the fluid exerts on the wall along ``tangent``; ``p_wall`` the
     extrapolated wall pressure. ``direction`` = +1 where ``tangent`` points along the walk
     (see :func:`order_patch_faces`), so ``tau_w * direction`` is the shear along the walk.
+    ``traction`` (n, 2) is the whole viscous traction mu (G + G^T) . n on the wall (``tau_w`` its
+    component along ``tangent``; the normal part vanishes on a wall at rest). ``fit_order``: 2 where
+    the wall gradient came from the quadratic fit, 1 where the stencil allowed only a linear one.
     """
 
     patch: str
@@ -198,20 +205,29 @@ class WallData:
     cp: np.ndarray
     u_tau: np.ndarray
     y_plus: np.ndarray
+    traction: np.ndarray
+    fit_order: np.ndarray
     rho: float
     mu: float
     u_ref: float
     p_ref: float
+    #: density of the coefficients (None: the fluid's)
+    rho_ref: float | None = None
 
     @property
     def q_ref(self) -> float:
-        """Reference dynamic pressure rho U_ref^2 / 2."""
-        return 0.5 * self.rho * self.u_ref**2
+        """Reference dynamic pressure rho_ref U_ref^2 / 2."""
+        return 0.5 * (self.rho if self.rho_ref is None else self.rho_ref) * self.u_ref**2
 
     @property
     def tau_vector(self) -> np.ndarray:
         """(n, 2) shear traction on the wall, tau_w t."""
         return self.tau_w[:, None] * self.tangent
+
+    @property
+    def face_length(self) -> np.ndarray:
+        """Length of each face (the same as ``length``)."""
+        return self.length
 
     def __len__(self) -> int:
         return len(self.faces)
@@ -235,15 +251,21 @@ def wall_data(
     mu: float,
     u_ref: float,
     p_ref: float = 0.0,
+    rho_ref: float | None = None,
     order: PatchOrder | None = None,
+    gradient: WallGradient | None = None,
 ) -> WallData:
     """Shear stress, skin friction, wall pressure and y+ on the wall patch ``patch_name``.
 
     ``velocity`` (nc, 2), ``pressure`` (nc,) and ``grad_p`` (nc, 2) are cell values; ``mu`` is
-    the molecular dynamic viscosity. Formulas in the module docstring. ``order``: the patch's
-    :func:`order_patch_faces`, when already known (evaluations every iteration reuse it).
+    the molecular dynamic viscosity; ``rho_ref`` the density of Cf and Cp (default ``rho``).
+    Formulas in the module docstring. ``order``: the patch's :func:`order_patch_faces` and
+    ``gradient``: its :func:`wall_gradient_operator` (on the ordered faces), when already known
+    (evaluations every iteration reuse them).
     """
     _check_reference(rho, mu, u_ref)
+    if rho_ref is not None:
+        _check_reference(rho_ref, mu, u_ref)
     patch = mesh.patch(patch_name)
     ni = mesh.n_internal_faces
     kinds = boundary.kind[patch.start - ni : patch.stop - ni]
@@ -265,7 +287,6 @@ def wall_data(
     if order is None:
         order = order_patch_faces(mesh, geom, patch_name)
     f = patch.start + order.faces
-    b = f - ni
     P = mesh.face_owner[f]
     xf = geom.face_centre[f]
     r = xf - geom.cell_centre[P]
@@ -278,10 +299,15 @@ def wall_data(
             f"{mesh.source}: cell {int(P[k])} lies on the wrong side of its wall face at "
             f"({xf[k, 0]:.6g}, {xf[k, 1]:.6g}) of patch {patch_name!r}; the mesh is inverted there"
         )
-    du = velocity[P] - boundary.velocity[b]
-    tau = mu * np.einsum("ij,ij->i", du, t) / d
+    op = gradient if gradient is not None else wall_gradient_operator(mesh, geom, boundary, f)
+    if not np.array_equal(op.faces, f):
+        raise ValueError(f"the wall gradient given for patch {patch_name!r} is not on its ordered faces")
+    G = op.velocity(velocity, boundary.velocity)
+    n_in = -n_out
+    traction = mu * (np.einsum("kij,kj->ki", G, n_in) + np.einsum("kji,kj->ki", G, n_in))
+    tau = np.einsum("ij,ij->i", traction, t)
     p_w = pressure[P] + np.einsum("ij,ij->i", grad_p[P], r)
-    q = 0.5 * rho * u_ref**2
+    q = 0.5 * (rho if rho_ref is None else rho_ref) * u_ref**2
     u_tau = np.sqrt(np.abs(tau) / rho)
     return WallData(
         patch=patch_name,
@@ -302,11 +328,30 @@ def wall_data(
         cp=(p_w - p_ref) / q,
         u_tau=u_tau,
         y_plus=d * u_tau * rho / mu,
+        traction=traction,
+        fit_order=op.order.copy(),
         rho=float(rho),
         mu=float(mu),
         u_ref=float(u_ref),
         p_ref=float(p_ref),
+        rho_ref=None if rho_ref is None else float(rho_ref),
     )
+
+
+def wall_gradient_operator(mesh: Mesh, geom: Geometry, boundary: FlowBoundary, faces: np.ndarray) -> WallGradient:
+    """The second-order wall-gradient reconstruction at the boundary faces ``faces``, with the
+    wall velocities as known boundary data (as in the solver)."""
+    known = boundary.kind == WALL
+    return WallGradient(mesh, geom, faces, known)
+
+
+def wall_velocity_gradient(
+    mesh: Mesh, geom: Geometry, boundary: FlowBoundary, faces: np.ndarray, velocity: np.ndarray
+) -> np.ndarray:
+    """grad u (len(faces), 2, 2), G[k, i, j] = d u_i / d x_j, at the centres of the wall faces
+    ``faces`` (global indices) from the cell velocities (see :func:`wall_gradient_operator`)."""
+    op = wall_gradient_operator(mesh, geom, boundary, faces)
+    return op.velocity(velocity, boundary.velocity)
 
 
 def wall_patches(boundary: FlowBoundary) -> list[str]:
@@ -325,11 +370,14 @@ def all_wall_data(
     mu: float,
     u_ref: float,
     p_ref: float = 0.0,
+    rho_ref: float | None = None,
+    patches: list[str] | None = None,
 ) -> dict[str, WallData]:
-    """:func:`wall_data` for every wall patch, keyed by patch name."""
+    """:func:`wall_data` for every wall patch (or the wall patches ``patches``), keyed by name."""
+    names = wall_patches(boundary) if not patches else [n for n in wall_patches(boundary) if n in patches]
     return {
-        name: wall_data(mesh, geom, boundary, name, velocity, pressure, grad_p, rho, mu, u_ref, p_ref)
-        for name in wall_patches(boundary)
+        name: wall_data(mesh, geom, boundary, name, velocity, pressure, grad_p, rho, mu, u_ref, p_ref, rho_ref)
+        for name in names
     }
 
 
@@ -437,83 +485,26 @@ def zero_shear_points(wall: WallData) -> list[ZeroShearPoint]:
     return pts
 
 
-# ---------------------------------------------------------------------------------------------
-@dataclass(frozen=True)
-class PatchForces:
-    """Force per unit depth exerted by the fluid on a wall patch, split into parts.
-
-    Coefficients are C = F / (q_ref l_ref); ``drag``/``lift`` are the components along the
-    flow direction e and along e rotated by +90 degrees.
-    """
-
-    patch: str
-    pressure: tuple[float, float]
-    viscous: tuple[float, float]
-    q_ref: float
-    l_ref: float
-    flow_direction: tuple[float, float] = (1.0, 0.0)
-
-    @property
-    def total(self) -> tuple[float, float]:
-        return (self.pressure[0] + self.viscous[0], self.pressure[1] + self.viscous[1])
-
-    def coefficients(self) -> dict[str, float]:
-        """Cx, Cy (total, pressure and viscous parts), drag and lift coefficients."""
-        s = 1.0 / (self.q_ref * self.l_ref)
-        ex, ey = self.flow_direction
-        out: dict[str, float] = {}
-        for part, (fx, fy) in (("", self.total), ("_pressure", self.pressure), ("_viscous", self.viscous)):
-            out["Cx" + part] = fx * s
-            out["Cy" + part] = fy * s
-            out["Cd" + part] = (fx * ex + fy * ey) * s
-            out["Cl" + part] = (-fx * ey + fy * ex) * s
-        return out
-
-    def as_dict(self) -> dict[str, float]:
-        """Forces and coefficients as plain floats (for summary.json)."""
-        fx, fy = self.total
-        d = {
-            "Fx": fx, "Fy": fy,
-            "Fx_pressure": self.pressure[0], "Fy_pressure": self.pressure[1],
-            "Fx_viscous": self.viscous[0], "Fy_viscous": self.viscous[1],
-        }
-        d.update(self.coefficients())
-        return {k: float(v) for k, v in d.items()}
-
-
-def patch_forces(
-    wall: WallData, l_ref: float = 1.0, flow_direction: tuple[float, float] = (1.0, 0.0)
-) -> PatchForces:
-    """Force per unit depth on a wall:  F = sum_f [ (p_w - p_ref) n_out + tau_w t ] |S_f|.
-
-    n_out (= -``wall.normal``) points from the fluid into the wall, so pressure pushes the wall
-    along n_out; tau_w t is the viscous traction. Subtracting p_ref changes nothing on a closed
-    body (sum n_out |S_f| = 0) and makes open walls independent of the pressure level.
-    """
-    if not np.isfinite(l_ref) or l_ref <= 0:
-        raise CaseError(f"the reference length must be a positive number, got {l_ref!r}")
-    e = np.asarray(flow_direction, dtype=float)
-    if e.shape != (2,) or not np.all(np.isfinite(e)) or np.hypot(*e) == 0.0:
-        raise CaseError(f"the flow direction must be a non-zero 2-vector, got {flow_direction!r}")
-    e = e / np.hypot(*e)
-    n_out = -wall.normal
-    L = wall.length
-    fp = np.sum(((wall.p_wall - wall.p_ref) * L)[:, None] * n_out, axis=0)
-    fv = np.sum((wall.tau_w * L)[:, None] * wall.tangent, axis=0)
-    return PatchForces(
-        patch=wall.patch,
-        pressure=(float(fp[0]), float(fp[1])),
-        viscous=(float(fv[0]), float(fv[1])),
-        q_ref=wall.q_ref,
-        l_ref=float(l_ref),
-        flow_direction=(float(e[0]), float(e[1])),
-    )
-
-
 def wall_columns(wall: WallData) -> tuple[list[str], list[np.ndarray]]:
-    """Column names and arrays of a per-face wall table (for :func:`write_csv_atomic`)."""
-    header = ["face", "segment", "s", "x", "y", "tx", "ty", "d_perp", "tau_w", "cf", "p_wall", "cp",
-              "u_tau", "y_plus"]
-    cols = [wall.faces, wall.segment, wall.s, wall.x, wall.y, wall.tangent[:, 0], wall.tangent[:, 1],
-            wall.d_perp, wall.tau_w, wall.cf, wall.p_wall, wall.cp, wall.u_tau, wall.y_plus]
+    """Column names and arrays of a per-face wall table (for :func:`write_csv_atomic`): face index,
+    piece of the wall, arc length s and centre x, y of the face, its length, unit tangent (t_x > 0)
+    and unit normal into the fluid, first-cell wall distance, wall shear stress, Cf, wall pressure,
+    Cp, u_tau, y+, and the viscous traction vector on the wall. The force per unit depth of a face
+    is ((p_wall - p_ref) (-nx, -ny) + (traction_x, traction_y)) length."""
+    header = ["face", "segment", "s", "x", "y", "length", "tx", "ty", "nx", "ny", "d_perp", "tau_w", "cf", "p_wall",
+              "cp", "u_tau", "y_plus", "traction_x", "traction_y"]
+    cols = [wall.faces, wall.segment, wall.s, wall.x, wall.y, wall.length, wall.tangent[:, 0], wall.tangent[:, 1],
+            wall.normal[:, 0], wall.normal[:, 1], wall.d_perp, wall.tau_w, wall.cf, wall.p_wall, wall.cp, wall.u_tau,
+            wall.y_plus, wall.traction[:, 0], wall.traction[:, 1]]
     return header, cols
+
+
+def zero_shear_columns(wall: WallData) -> tuple[list[str], list[np.ndarray]]:
+    """Column names and arrays of the table of the zero-shear points of a wall: x, y, arc length
+    s and ``change`` = +1 where the shear along the walk of the wall turns from positive to
+    negative (``"+to-"``), -1 where it turns from negative to positive."""
+    pts = zero_shear_points(wall)
+    return ["x", "y", "s", "change"], [
+        np.array([p.x for p in pts]), np.array([p.y for p in pts]), np.array([p.s for p in pts]),
+        np.array([1 if p.kind == "+to-" else -1 for p in pts], dtype=np.int64),
+    ]

@@ -22,7 +22,7 @@ FREESTREAM = 4
 
 @njit(cache=True)
 def assemble_momentum(
-    owner, neigh, n_int, S, dcoef, kvec, w, xf, xc, shift, F, mu_f, u, gu, gc, bkind, bvel, second_order,
+    owner, neigh, n_int, S, dcoef, kvec, w, xf, xc, shift, F, mu_f, u, gu, gc, gwall, bkind, bvel, second_order,
     diag_u, diag_v, off_own, off_nei, bu, bv,
 ):
     """Coefficients of sum_f [F u_f - mu_f (grad u + grad u^T)_f . S_f] = 0 for both components.
@@ -32,6 +32,10 @@ def assemble_momentum(
     gradient ``gc`` (the solver passes the face-sum gradient, see ``SimpleSolver``; the neighbour
     at x_N + ``shift[f]``, its image across a periodic face), non-orthogonal
     diffusion mu k . grad u_f and the transpose-gradient stress mu (grad u)^T_f . S_f with ``gu``.
+    Wall faces: the flux is mu (G + G^T) . S with the second-order wall gradient G = ``gwall[b]``
+    (nb, 2, 2; ``fvrans.fv.wall_gradient``), the gradient the wall shear stress is reported with;
+    implicit part mu dcoef (u_wall - u_P) as before, the rest deferred:
+    mu [G . S - dcoef (u_wall - u_P)] + mu G^T . S with the current u_P.
     ``off_own[f]`` multiplies u_N in row P, ``off_nei[f]`` multiplies u_P in row N.
     """
     nc = u.shape[0]
@@ -89,7 +93,18 @@ def assemble_momentum(
         mu = mu_f[f]
         s0 = S[f, 0]
         s1 = S[f, 1]
-        if kind == WALL or kind == INLET:
+        if kind == WALL:
+            D = mu * dcoef[f]
+            diag_u[P] += D
+            diag_v[P] += D
+            g00 = gwall[b, 0, 0]
+            g01 = gwall[b, 0, 1]
+            g10 = gwall[b, 1, 0]
+            g11 = gwall[b, 1, 1]
+            # D (u_wall - u_P) implicit; the flux mu (G + G^T) . S less the same with u_P now
+            bu[P] += mu * (g00 * s0 + g01 * s1 + g00 * s0 + g10 * s1) + D * u[P, 0]
+            bv[P] += mu * (g10 * s0 + g11 * s1 + g01 * s0 + g11 * s1) + D * u[P, 1]
+        elif kind == INLET:
             D = mu * dcoef[f]
             diag_u[P] += D
             diag_v[P] += D

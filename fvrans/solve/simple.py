@@ -44,6 +44,7 @@ from fvrans.fv import stress as stress_modes
 from fvrans.fv.assembly import CsrAssembler
 from fvrans.fv.gradient import GaussLeastSquaresGradient, QuadraticFit, gradient_operator
 from fvrans.fv.stress import StressDivergence
+from fvrans.fv.wall_gradient import WallGradient
 from fvrans.linalg.amg import AmgKrylovSolver
 from fvrans.linalg.pressure import PressureSolver
 from fvrans.mesh.geometry import Geometry
@@ -225,6 +226,13 @@ class SimpleSolver:
         if quadratic is None:
             quadratic = bool(np.any(mesh.cell_sizes() != 4))
         self.hess = QuadraticFit(mesh, geom) if quadratic else None
+        # second-order velocity gradient at wall faces (the wall flux of the momentum equations and
+        # the reported wall shear stress use the same one)
+        wall_b = np.flatnonzero(boundary.kind == WALL)
+        self.wall_faces = wall_b + ni
+        self.wall_grad = WallGradient(mesh, geom, self.wall_faces, boundary.kind == WALL)
+        self.gwall = np.zeros((nf - ni, 2, 2))
+        self._gwall_k = np.zeros((len(wall_b), 2, 2))
         self.hu = np.zeros((nc if quadratic else 1, 2, 3))
         self.psolver = PressureSolver(
             CsrAssembler(mesh), rtol=self.ctl.pressure_tolerance, rebuild_every=self.ctl.amg_rebuild_every,
@@ -422,10 +430,11 @@ class SimpleSolver:
         gc = gu if self.grad_convection is None else self.grad_convection.from_least_squares(
             u_old, self.ub, gu, out=self.gc)
         hu = self.hu if self.hess is None else self.hess(u_old, self.ub, out=self.hu)
+        self.gwall[self.wall_faces - ni] = self.wall_grad.velocity(u_old, self.ub, out=self._gwall_k)
         t2 = time.perf_counter()
         K.assemble_momentum(
             self.owner, self.neigh, ni, self.S, self.dcoef, self.kvec, g.face_weight,
-            g.face_centre, g.cell_centre, g.face_shift, F_old, self.muf, u_old, gu, gc, kind,
+            g.face_centre, g.cell_centre, g.face_shift, F_old, self.muf, u_old, gu, gc, self.gwall, kind,
             self.bc.velocity, ctl.convection == "linear-upwind",
             self.diag_u, self.diag_v, self.off_own, self.off_nei, self.bu, self.bv,
         )

@@ -74,7 +74,7 @@ from fvrans.errors import CaseError
 SAMPLINGS = ("factorial", "latin-hypercube", "sobol")
 SPACINGS = ("linear", "log")
 #: columns of wall/<patch>.csv that an output may sample at a station
-WALL_QUANTITIES = ("tau_w", "cf", "p_wall", "cp", "u_tau", "y_plus", "d_perp", "y", "s")
+WALL_QUANTITIES = ("tau_w", "cf", "p_wall", "cp", "u_tau", "y_plus", "d_perp", "y", "s", "traction_x", "traction_y")
 #: column names the results table uses itself
 RESERVED_COLUMNS = ("run", "key", "status", "converged", "iterations", "wall_seconds", "error")
 

@@ -72,6 +72,10 @@ def grid_changes(
     return out
 
 
+#: relative difference of the grids' areas accepted as one domain (curved boundaries are polygons)
+AREA_TOLERANCE = 0.05
+
+
 def run_grid_study(
     case: Any,
     quantities: Sequence[str],
@@ -107,12 +111,15 @@ def run_grid_study(
     problems = {}
     for label, ch in changes.items():
         problems[label] = fa.prepare(case.replace(ch))
+    # one domain: the areas agree, up to the polygon approximation of curved boundaries (a circle on
+    # 16 points lacks 2.6 % of its area, so the coarse annulus of a cylinder study differs by 2 %)
     areas = {k: float(np.sum(p.geom.cell_area)) for k, p in problems.items()}
     a0 = next(iter(areas.values()))
     for k, a in areas.items():
-        if not math.isclose(a, a0, rel_tol=1e-6):
+        if not math.isclose(a, a0, rel_tol=AREA_TOLERANCE):
             raise CaseError(f"the grids cover different domains (area {a:.9g} for {k!r}, {a0:.9g} for "
-                            f"{next(iter(areas))!r}); a grid study refines one domain")
+                            f"{next(iter(areas))!r}, more than {AREA_TOLERANCE:.0%} apart); a grid study "
+                            "refines one domain")
     runs: dict[str, dict[str, Any]] = {}
     for label in sorted(problems, key=lambda k: problems[k].mesh.n_cells):
         prob = problems[label]

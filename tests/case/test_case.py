@@ -123,12 +123,15 @@ def test_defaults_of_a_minimal_case(base):
     assert (s.conservative_start, s.turbulence_cfl) == (True, 20.0)
     o = c.output
     assert o.wall_patches == ("lid", "walls")  # every wall patch by default
+    # reference velocity and free-stream direction: the inflow's (None here), density: the fluid's
     assert (o.reference_velocity, o.reference_pressure, o.reference_length, o.write_fields) == (
-        1.0,
+        None,
         0.0,
         1.0,
         True,
     )
+    assert (o.reference_density, o.flow_direction, o.flow_angle, o.moment_centre, o.force_groups) == (
+        None, None, None, (0.0, 0.0), {})
 
 
 @pytest.mark.parametrize("coupling, expected", [("simplec", 1.0), ("simple", 0.3)])
@@ -214,7 +217,7 @@ def test_round_trip_through_dict_and_toml(base, full_case_file):
         assert case_from_dict(tomllib.loads(c.to_toml())) == c
         assert tomllib.loads(c.to_toml()) == d  # to_dict is plain TOML data
         # every key is filled in: the solver and output tables are complete
-        assert len(d["solver"]) == 23 and len(d["output"]) == 5
+        assert len(d["solver"]) == 23 and len(d["output"]) == 6
         # equality is not trivial: a changed setting makes a different case
         assert c.set("solver.relax_velocity", 0.55) != c
 

@@ -94,8 +94,9 @@ def test_hostile_patch_names_in_mesh_files_stay_inside_out(tmp_path, fmt):
     assert main(args) in (0, 1)
     written = files_under(tmp_path) - before
     assert written and all(out in p.parents for p in written), sorted(map(str, written - set(out.rglob("*"))))
-    walls = sorted(p.name for p in (out / "wall").iterdir())
+    walls = sorted(p.name for p in (out / "wall").iterdir() if p.is_file())
     assert len(walls) == len(names) + 3  # one table per wall patch, none overwritten by another
+    assert sorted(p.name for p in (out / "wall" / "zero_shear").iterdir()) == walls  # and its zero-shear points
     assert "lid.csv" in walls and "a_b.csv" in walls
     assert not [p for p in out.rglob("*") if p.name.startswith((".fvrans-tmp", ".fvrans-staging"))]  # none left
     if fmt == "gmsh41":  # plot file names come from the same mapping
@@ -117,7 +118,8 @@ def test_names_given_in_python_stay_inside_out(tmp_path):
     out = tmp_path / "a" / "out"
     result.write(out)
     assert all(out in p.parents for p in files_under(tmp_path))
-    assert len(list((out / "wall").iterdir())) == len(names) + 3
+    assert len([p for p in (out / "wall").iterdir() if p.is_file()]) == len(names) + 3
+    assert len(list((out / "wall" / "zero_shear").iterdir())) == len(names) + 3
 
 
 def test_a_reader_finds_the_table_of_a_mapped_name(tmp_path):

@@ -64,14 +64,37 @@ def channel(nx: int, ny: int, length: float = 2.0, height: float = 1.0, triangle
     return mesh, compute_geometry(mesh)
 
 
-def channel_boundary(mesh, geom, top_velocity=(0.0, 0.0), specs=None):
+def channel_boundary(mesh, geom, top_velocity=(0.0, 0.0), specs=None, inlet_velocity=(1.0, 0.0)):
+    """Walls 'bottom' and 'top' (moving with ``top_velocity``), a velocity inlet and a pressure
+    outlet. The wall gradient takes the inlet velocity as data at the corner cells, so a test with
+    a given velocity field passes the field's own values there (``inlet_velocity`` may be a
+    function of x, y)."""
     specs = specs or {
         "bottom": {"kind": "wall"},
         "top": {"kind": "wall", "velocity": top_velocity},
-        "inlet": {"kind": "inflow-velocity", "velocity": (1.0, 0.0)},
+        "inlet": {"kind": "inflow-velocity", "velocity": inlet_velocity},
         "outlet": {"kind": "outflow-pressure", "pressure": 0.0},
     }
     return build_flow_boundary(mesh, geom, specs)
+
+
+def cell_averages(mesh, geom, field):
+    """Exact cell averages of a polynomial velocity field of degree <= 2, field(x, y) -> (n, 2):
+    the centroid value plus H : I / 2 with the second derivatives H taken by central differences
+    of step 1 (exact for quadratics) and the cells' central second moments I."""
+    from fvrans.mesh.geometry import polygon_second_moments
+
+    xc = geom.cell_centre
+    moments = polygon_second_moments(mesh.points, mesh.cell_offsets, mesh.cell_points, xc)
+
+    def f(dx, dy):
+        return np.asarray(field(xc[:, 0] + dx, xc[:, 1] + dy), dtype=float)
+
+    f0 = f(0.0, 0.0)
+    hxx = f(1.0, 0.0) - 2 * f0 + f(-1.0, 0.0)
+    hyy = f(0.0, 1.0) - 2 * f0 + f(0.0, -1.0)
+    hxy = 0.25 * (f(1.0, 1.0) - f(1.0, -1.0) - f(-1.0, 1.0) + f(-1.0, -1.0))
+    return f0 + 0.5 * (hxx * moments[:, :1] + 2 * hxy * moments[:, 1:2] + hyy * moments[:, 2:])
 
 
 def square_with_hole(n: int = 4):

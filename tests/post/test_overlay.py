@@ -76,20 +76,22 @@ def test_figures_of_the_shared_quantities_with_the_given_labels(runs):
 
 
 def test_wall_units_of_a_probe_from_the_wall(runs):
-    """Plane Poiseuille flow in wall units (u_tau^2 = G h / 2): u+ = y+ (1 - y/h) exactly; here
-    within the first-order wall shear of the wall file (tau_w = mu u_P / d_P: h / (2 H) = 1.25 %
-    low with 40 cells)."""
+    """Plane Poiseuille flow in wall units (u_tau^2 = G h / 2): u+ = y+ (1 - y/h) exactly; the wall
+    shear of the wall file is exact for the parabola (second-order wall gradient), the probe's
+    samples carry the linear reconstruction of the cells (0.3 % at most here)."""
     for folder in runs:
         run = read_runs([folder, folder])[0]
         yp, up = wall_units(run, "across")
         nu = run.kinematic_viscosity
         probe = np.loadtxt(folder / "profiles" / "across.csv", delimiter=",", skiprows=1)
-        u_tau = float(np.loadtxt(folder / "wall" / "lower_wall.csv", delimiter=",", skiprows=1)[12])
+        with open(folder / "wall" / "lower_wall.csv", encoding="utf-8") as f:
+            names = f.readline().strip().split(",")
+        u_tau = float(np.loadtxt(folder / "wall" / "lower_wall.csv", delimiter=",", skiprows=1)[names.index("u_tau")])
         np.testing.assert_allclose(yp, probe[:, 0] * u_tau / nu, rtol=1e-12)  # y+ = s u_tau / nu
         np.testing.assert_allclose(up * u_tau, probe[:, 3], rtol=1e-12, atol=1e-15)  # u+ = u_t / u_tau
         y = probe[:, 0]
         inside = (y > 0) & (y < 0.5)
-        np.testing.assert_allclose(up[inside], yp[inside] * (1 - y[inside]), rtol=0.015)
+        np.testing.assert_allclose(up[inside], yp[inside] * (1 - y[inside]), rtol=0.003)
 
 
 def test_overlay_from_the_command_line_and_of_a_sweep(runs, tmp_path, capsys):

@@ -44,7 +44,7 @@ def test_summary_of_a_couette_run(tmp_path):
     section 3-2, from memory), so Cx of the bottom wall is mu U L / (h q l_ref)."""
     U, h, L, rho, mu = 1.5, 1.0, 2.0, 1.0, 0.01
     mesh, geom = channel(10, 4, L, h)
-    bc = channel_boundary(mesh, geom, top_velocity=(U, 0.0))
+    bc = channel_boundary(mesh, geom, top_velocity=(U, 0.0), inlet_velocity=lambda x, y: (U * y / h, 0 * y))
     vel = np.zeros((mesh.n_cells, 2))
     vel[:, 0] = U * geom.cell_centre[:, 1] / h
     walls = all_wall_data(mesh, geom, bc, vel, np.zeros(mesh.n_cells), np.zeros((mesh.n_cells, 2)),

@@ -15,7 +15,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from post_meshes import channel, channel_boundary, rotation, square_with_hole
+from post_meshes import cell_averages, channel, channel_boundary, rotation, square_with_hole
 
 from fvrans.errors import CaseError, MeshError
 from fvrans.mesh import Mesh, compute_geometry
@@ -42,13 +42,14 @@ def _zeros(nc):
     [(False, 0.0, 0.0), (True, 0.0, 0.0), (False, 0.25, 0.0), (True, 0.2, np.radians(30.0))],
 )
 def test_couette_shear_is_exact(triangles, perturb, angle):
-    """A linear profile makes the one-sided difference exact on any cell shape and rotation."""
+    """A linear profile: the wall gradient is exact on any cell shape and rotation."""
     U, h, L = 2.0, 1.0, 2.0
     mesh, geom = channel(8, 5, L, h, triangles=triangles, perturb=perturb, angle=angle)
     R = rotation(angle)
     e_x = R[:, 0]
     e_y = R[:, 1]
-    bc = channel_boundary(mesh, geom, top_velocity=U * e_x)
+    bc = channel_boundary(mesh, geom, top_velocity=U * e_x,
+                          inlet_velocity=lambda x, y: tuple(np.outer(U * (x * e_y[0] + y * e_y[1]) / h, e_x).T))
     eta = geom.cell_centre @ e_y  # distance from the bottom wall
     vel = (U * eta / h)[:, None] * e_x[None, :]
     p, gp = _zeros(mesh.n_cells)
@@ -80,36 +81,43 @@ def test_couette_shear_is_exact(triangles, perturb, angle):
     np.testing.assert_allclose(bottom.u_tau, np.sqrt(tau / RHO), rtol=1e-12)
 
 
-def test_poiseuille_shear_first_order_and_pressure():
-    """Parabolic profile: the one-sided difference gives G (h - y_P) / 2 (Taylor expansion),
-    which converges at first order to the exact G h / 2; linear pressure is extrapolated exactly."""
+@pytest.mark.parametrize("triangles, perturb, angle", [(False, 0.0, 0.0), (True, 0.2, np.radians(30.0))])
+def test_poiseuille_shear_exact_and_pressure(triangles, perturb, angle):
+    """Parabolic profile given as exact cell averages: the quadratic wall fit gives the exact
+    wall shear G h / 2 on every face (the old one-sided difference gave G (h - y_P) / 2, first
+    order), and the momentum balance "pressure drop x height = shear on both walls" holds
+    exactly; a linear pressure is extrapolated exactly."""
     G, h, L, p0, p_ref = 0.3, 1.0, 2.0, 5.0, 1.0
-    errors = []
-    for ny in (4, 8, 16):
-        mesh, geom = channel(6, ny, L, h)
-        bc = channel_boundary(mesh, geom)
-        xc = geom.cell_centre
-        vel = np.zeros((mesh.n_cells, 2))
-        vel[:, 0] = G / (2 * MU) * xc[:, 1] * (h - xc[:, 1])
-        p = p0 - G * xc[:, 0]
-        gp = np.tile([-G, 0.0], (mesh.n_cells, 1))
+    R = rotation(angle)
+    e_x, e_y = R[:, 0], R[:, 1]
+
+    def field(x, y):
+        eta = x * e_y[0] + y * e_y[1]
+        return np.outer(G / (2 * MU) * eta * (h - eta), e_x)
+
+    for ny in (4, 8):
+        mesh, geom = channel(6, ny, L, h, triangles=triangles, perturb=perturb, angle=angle)
+        bc = channel_boundary(mesh, geom, inlet_velocity=lambda x, y: tuple(field(x, y).T))
+        xi = geom.cell_centre @ e_x
+        vel = cell_averages(mesh, geom, field)
+        p = p0 - G * xi
+        gp = np.tile(-G * e_x, (mesh.n_cells, 1))
         walls = all_wall_data(mesh, geom, bc, vel, p, gp, RHO, MU, 1.0, p_ref)
         assert sorted(walls) == ["bottom", "top"]
-        yP = 0.5 * h / ny
         for w in walls.values():
-            np.testing.assert_allclose(w.tau_w, G * (h - yP) / 2, rtol=1e-12)
-            np.testing.assert_allclose(w.p_wall, p0 - G * w.x, rtol=1e-13)
-            np.testing.assert_allclose(w.cp, (p0 - G * w.x - p_ref) / (0.5 * RHO), rtol=1e-12)
-        errors.append(abs(walls["bottom"].tau_w[0] - G * h / 2))
+            assert np.all(w.fit_order == 2)
+            np.testing.assert_allclose(w.tau_w, G * h / 2, rtol=1e-10)
+            xw = np.stack([w.x, w.y], 1) @ e_x
+            np.testing.assert_allclose(w.p_wall, p0 - G * xw, rtol=1e-13)
+            np.testing.assert_allclose(w.cp, (p0 - G * xw - p_ref) / (0.5 * RHO), rtol=1e-12)
         # pressure force on the bottom wall pushes it down: -int (p - p_ref) dx
         Fb = patch_forces(walls["bottom"])
-        assert Fb.pressure[1] == pytest.approx(-((p0 - p_ref) * L - G * L**2 / 2), rel=1e-13)
-        assert Fb.pressure[0] == pytest.approx(0.0, abs=1e-14)
+        fp = np.array(Fb.pressure)
+        assert fp @ e_y == pytest.approx(-((p0 - p_ref) * L - G * L**2 / 2), rel=1e-13)
+        assert fp @ e_x == pytest.approx(0.0, abs=1e-13)
         # momentum balance: shear on both walls balances the pressure drop over the height
-        Fx = sum(patch_forces(w).viscous[0] for w in walls.values())
-        assert Fx == pytest.approx(G * L * h, rel=1.0 / ny)
-    order = np.log2(np.array(errors[:-1]) / np.array(errors[1:]))
-    np.testing.assert_allclose(order, 1.0, atol=1e-10)
+        Fx = sum(np.array(patch_forces(w).viscous) @ e_x for w in walls.values())
+        assert Fx == pytest.approx(G * L * h, rel=1e-10)
 
 
 def test_pressure_extrapolation_on_skewed_triangles():
@@ -164,13 +172,16 @@ def test_rigid_rotation_round_a_body_has_no_zero_shear_point():
 
 def test_zero_shear_points_of_a_sine_wall_shear():
     mesh, geom = channel(140, 3, length=7.0)
-    bc = channel_boundary(mesh, geom)
+    bc = channel_boundary(mesh, geom, inlet_velocity=lambda x, y: (np.sin(x) * y, 0 * y))
     xc = geom.cell_centre
+    dx = 7.0 / 140
     vel = np.zeros((mesh.n_cells, 2))
-    vel[:, 0] = np.sin(xc[:, 0]) * xc[:, 1]  # tau_w = mu sin(x) on the bottom wall
+    # u = sin(x) y: tau_w = mu sin(x) on the bottom wall; exact averages over the rectangular cells
+    vel[:, 0] = (np.cos(xc[:, 0] - dx / 2) - np.cos(xc[:, 0] + dx / 2)) / dx * xc[:, 1]
     p, gp = _zeros(mesh.n_cells)
     w = wall_data(mesh, geom, bc, "bottom", vel, p, gp, RHO, MU, 1.0)
-    np.testing.assert_allclose(w.tau_w, MU * np.sin(w.x), rtol=1e-12)
+    # the quadratic fit is exact up to the third derivatives: |error| <~ dx^2 mu max|u_xxy| = 2.5e-3 mu
+    np.testing.assert_allclose(w.tau_w, MU * np.sin(w.x), rtol=0, atol=2.5e-3 * MU)
     pts = zero_shear_points(w)
     # linear interpolation of a zero of sin: error below h^2 max|f''| / (8 min|f'|) ~ 3e-4
     assert [p.x for p in pts] == pytest.approx([np.pi, 2 * np.pi], abs=3e-4)

@@ -44,12 +44,15 @@ def test_poiseuille_profile_second_order_with_either_driving(mode):
     assert r40.converged
     e40 = _errors(r40)
     assert e40[0] < 1e-3 and e20[0] / e40[0] == pytest.approx(4.0, rel=0.02)  # second order in y
+    # the cell values are the parabola's cell averages (its centroid values less G dy^2 / (24 mu), the
+    # error above): the second-order wall gradient is exact for the parabola, so the flow rate and the
+    # friction are exact to the solver tolerance (with the one-sided wall shear they were second order)
     if mode == "pressure_gradient":
         assert r40.summary()["mean_flow"]["pressure_gradient"][0] == pytest.approx(-G, rel=1e-12)
-        assert e40[1] < 2e-3 and e20[1] / e40[1] == pytest.approx(4.0, rel=0.02)  # flow rate
+        assert e20[1] < 1e-6 and e40[1] < 1e-6  # flow rate
     else:
         assert e40[1] < 1e-12  # the bulk velocity held exactly
-        assert e40[2] < 2e-3 and e20[2] / e40[2] == pytest.approx(4.0, rel=0.02)  # friction: G = 12 mu U_b / h^2
+        assert e20[2] < 1e-6 and e40[2] < 1e-6  # friction: G = 12 mu U_b / h^2
     assert np.max(np.abs(r40.velocity[:, 1])) < 1e-12
 
 

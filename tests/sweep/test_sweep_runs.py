@@ -179,3 +179,43 @@ def test_warm_starts_agree_with_cold_starts_in_fewer_iterations(tmp_path, channe
     keys = warm.column("key")
     froms = [json.loads((tmp_path / "warm" / "runs" / k / "run.json").read_text())["warm_start_from"] for k in keys]
     assert froms == ["", keys[0], keys[1]]
+
+
+SPEED_SPEC = """
+title = "Creeping channel flow at three inflow speeds"
+case = "channel.toml"
+
+[[parameter]]
+key = "boundary.inlet.velocity"
+name = "inflow"
+values = [[0.5, 0.0], [1.0, 0.0], [2.0, 0.0]]
+
+[[parameter]]
+key = "fluid.viscosity"
+values = [10.0]
+
+[[output]]
+name = "cd_lower"
+summary = "walls.lower_wall.forces.Cd"
+
+[[output]]
+name = "u_ref"
+summary = "reference.u_ref"
+"""
+
+
+def test_coefficients_of_a_speed_sweep_use_each_runs_own_inflow(tmp_path, channel_case):
+    """Creeping flow (Re_h = rho U h / mu <= 0.2): the wall friction grows in proportion to the speed
+    (Stokes flow is linear in the driving; e.g. Happel & Brenner 1965, Low Reynolds Number
+    Hydrodynamics, ch. 2), so with U_ref the run's own inflow speed Cd ~ 1 / U and Cd U is the same
+    for the three runs, while a fixed U_ref would make Cd grow with U (a factor 16 from 0.5 to 2)."""
+    spec = tmp_path / "speed.toml"
+    spec.write_text(SPEED_SPEC, encoding="utf-8")
+    out = tmp_path / "out"
+    assert main(["sweep", str(spec), "--out", str(out), "--workers", "1", "--quiet"]) == 0
+    with open(out / "results.csv", encoding="utf-8") as f:
+        rows = list(csv.DictReader(f))
+    speeds = [float(r["u_ref"]) for r in rows]
+    assert speeds == pytest.approx([0.5, 1.0, 2.0], rel=1e-12)
+    cd_u = [float(r["cd_lower"]) * u for r, u in zip(rows, speeds)]
+    assert cd_u == pytest.approx([cd_u[1]] * 3, rel=2e-3)

@@ -46,7 +46,7 @@ def station_cf(problem: fa.Problem, x: float):
     owner = mesh.face_owner[f2]
     d = np.einsum("ij,ij->i", geom.face_centre[f2] - geom.cell_centre[owner], geom.face_normal[f2])
     mu = problem.case.fluid.viscosity
-    q = 0.5 * problem.case.fluid.density * problem.case.output.reference_velocity**2
+    q = 0.5 * problem.case.fluid.density * fa.force_reference(problem).velocity**2
 
     def cf(velocity: np.ndarray) -> float:
         c = mu * velocity[owner, 0] / np.abs(d) / q

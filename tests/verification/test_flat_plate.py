@@ -23,8 +23,8 @@ from flat_plate_runs import CASES, MESHES, STATION, converged_iteration, laminar
 
 import fvrans.api as fa
 from fvrans.errors import CaseError
+from fvrans.post.forces import patch_forces
 from fvrans.post.profiles import wall_profile
-from fvrans.post.wall import patch_forces
 
 CF_097 = 0.00271  # NASA TMR, SA, grid-converged (from memory)
 CD_PLATE = 0.00286  # NASA TMR, SA, grid-converged (from memory)
