@@ -19,7 +19,8 @@ def fgmres(
 ) -> tuple[np.ndarray, int, float]:
     """Solve A dx = r0 from dx = 0 by right-preconditioned flexible GMRES(restart): the
     preconditioned vectors z_k = M_k^-1 v_k are kept, so M may change from one step to the next.
-    Stops when ||r0 - A dx||_2 <= rtol ||r0||_2 or after ``max_iterations``; returns (dx, iterations, relative residual)."""
+    Stops when ||r0 - A dx||_2 <= rtol ||r0||_2 or after ``max_iterations``; returns (dx, iterations,
+    relative residual)."""
     n = r0.size
     dx = np.zeros(n)
     beta0 = float(np.linalg.norm(r0))
