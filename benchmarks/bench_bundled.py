@@ -10,6 +10,8 @@ microseconds per cell and iteration, that cost over a numpy triad ``a = b + s*c`
 cell length timed in the same run, and the error. Numba compilation is excluded by a warm-up
 run. No assertions; timings on a shared machine are noisy, the ratio to the triad less so.
 
+``channel_re800`` is the channel at Re_h = 800 (viscosity 0.00125), the cold start of #14.
+
 Run:  python benchmarks/bench_bundled.py [--cases channel cavity ...] [--cold] [--set key=value ...]
                                          [--reference-dir runs/bench_reference] [--no-reference]
 """
@@ -28,6 +30,8 @@ ROOT = Path(__file__).resolve().parents[1]
 #: short name -> (case file, overrides)
 CASES = {
     "channel": ("channel_poiseuille.toml", {}),
+    "channel_re800": ("channel_poiseuille.toml", {"fluid.viscosity": 0.00125}),  # the reproduction of #14
+    "step_laminar": ("step_laminar.toml", {}),
     "cavity": ("cavity_re100.toml", {}),
     "plate_laminar": ("flat_plate_laminar.toml", {}),
     "plate_turbulent": ("flat_plate_turbulent.toml", {}),
@@ -36,7 +40,8 @@ CASES = {
     "step_coarse": ("step_coarse.toml", {}),
     "step_medium": ("step_medium.toml", {}),
 }
-DEFAULT = ["channel", "cavity", "plate_laminar", "plate_turbulent", "bump_laminar", "bump_turbulent", "step_coarse"]
+DEFAULT = ["channel", "channel_re800", "cavity", "plate_laminar", "plate_turbulent", "bump_laminar", "bump_turbulent",
+           "step_laminar", "step_coarse"]
 
 
 def triad_seconds(n: int, repeats: int = 50) -> float:

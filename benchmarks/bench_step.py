@@ -22,7 +22,10 @@ sequencing, to save machine time; the converged answer does not depend on the st
 (default) from the case's uniform initial field. ``--tolerance`` overrides the case's 1e-6 (after
 a warm start the residuals pass 1e-6 early while the reattachment point still moves by about 0.01 H).
 
-Measured 2026-12-02 (2 cores shared with other jobs, solver defaults), x_r / H, iterations, seconds,
+Since the scale-free residuals, the conservative start and the turbulence pseudo-time steps (#13, #14)
+the case's tolerance is 7e-7: coarse 632 iterations (x_r 6.136), medium 1 670 (x_r 6.172; it passes 1e-6
+after 1 394), 2 cores shared. Former figures (residuals 1e-6 in the former definition):
+measured 2026-12-02 (2 cores shared with other jobs, solver defaults), x_r / H, iterations, seconds,
 us/cell/iteration: coarse 6.136, 712, 10.6, 2.15; medium 6.173, 2112, 148, 2.54; mixed 6.216, 178,
 21.8, 4.88; fine from the uniform start 6.173, 4800, 1705, 3.21 (from the medium result: 6.172, 90,
 24.8, 2.49). Medium -> fine: 0.0 %; mixed vs medium: +0.7 %.

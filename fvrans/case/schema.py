@@ -265,6 +265,8 @@ class SolverSettings:
     amg_rebuild_every: int = 20
     divergence_factor: float = 1e5
     checkpoint_every: int = 0
+    conservative_start: bool = True
+    turbulence_cfl: float = 20.0
 
     def __post_init__(self) -> None:
         if self.relax_velocity is None:
@@ -575,6 +577,8 @@ def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
             "amg_rebuild_every": s.amg_rebuild_every,
             "divergence_factor": s.divergence_factor,
             "checkpoint_every": s.checkpoint_every,
+            "conservative_start": s.conservative_start,
+            "turbulence_cfl": s.turbulence_cfl,
         },
         "output": output,
     }

@@ -47,7 +47,7 @@ TABLE_KEYS: dict[str, tuple[str, ...]] = {
         "pressure_tolerance", "momentum_solver", "momentum_tolerance", "momentum_max_iterations",
         "momentum_sweeps", "turbulence_solver", "turbulence_tolerance", "turbulence_max_iterations",
         "amg_rebuild_every",
-        "divergence_factor", "checkpoint_every",
+        "divergence_factor", "checkpoint_every", "conservative_start", "turbulence_cfl",
     ),
     "output": (
         "wall_patches", "reference_velocity", "reference_pressure", "reference_length", "write_fields",
@@ -849,6 +849,9 @@ def _solver(ctx: _Ctx, data: Any, turbulence: str = "none") -> S.SolverSettings:
                                    "growth of a residual above its minimum"),
         checkpoint_every=t.integer("checkpoint_every", 0, NON_NEGATIVE,
                                    "outer iterations; 0 turns checkpoints off"),
+        conservative_start=t.boolean("conservative_start", True),
+        turbulence_cfl=t.number("turbulence_cfl", 20.0, NON_NEGATIVE,
+                                "the CFL number of the turbulence pseudo-time steps; 0 turns them off"),
     )
 
 

@@ -11,9 +11,11 @@ loop asks a model for
   2 mu_t S (a non-linear constitutive relation such as QCR, the remainder of an injected
   stress). The momentum equation takes its divergence in conservative face form,
   sum_f T_f . S_f, as an explicit source (``fvrans.fv.stress.StressDivergence``);
-* ``update(fields, grad_u)``: advance the model's own equations once with the new velocity
-  gradient grad_u[c, i, j] = du_i/dx_j and face fluxes; return one normalised imbalance per name in
-  ``names``.
+* ``update(fields, grad_u, pseudo_time)``: advance the model's own equations once with the new
+  velocity gradient grad_u[c, i, j] = du_i/dx_j and face fluxes; return one normalised imbalance per
+  name in ``names``. ``pseudo_time`` (rho V / dt per cell, or None) is the loop's local pseudo-time
+  term (``solver.turbulence_cfl``): added to each equation's diagonal with its old-value source
+  (``TransportEquation.solve``), it vanishes at convergence.
 
 Before its first iteration the loop calls ``prepare(gradient_of)`` with its own velocity gradient
 as a function of any velocity field (boundary values by the flow's conditions), for models that
@@ -103,8 +105,9 @@ class TurbulenceModel:
         """Explicit stress (T_xx, T_xy, T_yy) per cell (n_cells, 3), in Pa, beside 2 mu_t S; or None."""
         return None
 
-    def update(self, fields: Fields, grad_u: np.ndarray) -> list[float]:
-        """Advance the model equations one outer iteration; return their normalised imbalances."""
+    def update(self, fields: Fields, grad_u: np.ndarray, pseudo_time: np.ndarray | None = None) -> list[float]:
+        """Advance the model equations one outer iteration; return their normalised imbalances.
+        ``pseudo_time``: rho V / dt per cell (the loop's local pseudo-time term) or None."""
         return []
 
     # -- outputs --------------------------------------------------------------------------

@@ -185,9 +185,9 @@ class ReferenceStress(TurbulenceModel):
         t[:, 2] = -self.rho * (r[:, 2] + 2.0 * nu * S[:, 1, 1])
         return t
 
-    def update(self, fields: Fields, grad_u: np.ndarray) -> list[float]:
+    def update(self, fields: Fields, grad_u: np.ndarray, pseudo_time: np.ndarray | None = None) -> list[float]:
         """The blend model's equations (nothing to solve without one)."""
-        return self.blend.update(fields, grad_u) if self.blend is not None else []
+        return self.blend.update(fields, grad_u, pseudo_time) if self.blend is not None else []
 
     # -- outputs --------------------------------------------------------------------------
     def cell_outputs(self, fields: Fields) -> dict[str, np.ndarray]:

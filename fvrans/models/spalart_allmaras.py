@@ -199,9 +199,10 @@ class SpalartAllmaras(TurbulenceModel):
         K.rotation_function(g, np.ascontiguousarray(velocity, dtype=float), grad_strain, self.fr1)
         return self.fr1
 
-    def update(self, fields: Fields, grad_u: np.ndarray) -> list[float]:
+    def update(self, fields: Fields, grad_u: np.ndarray, pseudo_time: np.ndarray | None = None) -> list[float]:
         """Assemble and solve the nu_tilde equation once with the new velocity gradient and the
-        corrected face fluxes; returns [normalised imbalance]."""
+        corrected face fluxes (``pseudo_time``: see ``TransportEquation.solve``); returns
+        [normalised imbalance]."""
         nt = np.ascontiguousarray(self._ensure(fields), dtype=np.float64)
         F = np.ascontiguousarray(fields.face_flux, dtype=np.float64)
         eq = self.equation
@@ -216,7 +217,7 @@ class SpalartAllmaras(TurbulenceModel):
             self.rotation_function(fields.velocity, gu)
         K.assemble_sources(nt, self.nu, self.rho, self.geom.cell_area, self.wall_distance, gu, g,
                            self.use_ft2, self.fr1, co.diag, co.source)
-        x, res = eq.solve(nt, co)
+        x, res = eq.solve(nt, co, pseudo_time=pseudo_time)
         fields.variables["nu_tilde"] = x
         return [res]
 

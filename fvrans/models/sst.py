@@ -201,7 +201,7 @@ class KOmegaSST(TurbulenceModel):
         self.gamma_b[self.wall_face] = self.nu
         return self.eq_k.face_values(self.gamma_cell, self.gamma_b, self.gamma_f, self.rho)
 
-    def update(self, fields: Fields, grad_u: np.ndarray) -> list[float]:
+    def update(self, fields: Fields, grad_u: np.ndarray, pseudo_time: np.ndarray | None = None) -> list[float]:
         """Assemble and solve the k and omega equations once (both with the current k, omega in
         their coupling terms); returns [k residual, omega residual]."""
         k, w = self._state(fields)
@@ -213,10 +213,10 @@ class KOmegaSST(TurbulenceModel):
         vol = self.geom.cell_area
         co = self.eq_k.assemble(k, F, self._face_diffusivity(K.SIGMA_K1, K.SIGMA_K2), gk, k_b)
         K.k_sources(k, w, self.nut, self.strain, self.rho, vol, co.diag, co.source)
-        k_new, res_k = self.eq_k.solve(k, co, self.k_reference)
+        k_new, res_k = self.eq_k.solve(k, co, self.k_reference, pseudo_time)
         co = self.eq_w.assemble(w, F, self._face_diffusivity(K.SIGMA_W1, K.SIGMA_W2), gw, w_b)
         K.omega_sources(w, self.f1, self.strain, gk, gw, self.rho, vol, co.diag, co.source)
-        w_new, res_w = self.eq_w.solve(w, co, self.w_reference)
+        w_new, res_w = self.eq_w.solve(w, co, self.w_reference, pseudo_time)
         fields.variables["k"] = np.maximum(k_new, self.k_floor)
         fields.variables["omega"] = np.maximum(w_new, self.w_floor)
         return [res_k, res_w]

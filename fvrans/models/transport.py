@@ -7,7 +7,8 @@ Discretisation: first-order upwind convection (``"linear-upwind"`` by deferred c
 optional limiter) with the mass-imbalance term removed from the diagonal (zero at convergence);
 diffusion with the face diffusivity the model gives and over-relaxed non-orthogonal correction;
 the model adds its linearised cell sources to the coefficient set between :meth:`assemble` and
-:meth:`solve`. Patankar's implicit under-relaxation (``relax``, 1 = none); the linear system by
+:meth:`solve`. Patankar's implicit under-relaxation (``relax``, 1 = none) and the loop's local
+pseudo-time term (``pseudo_time``); the linear system by
 BiCGStab with a reused AMG V-cycle (``fvrans.linalg.amg``) or symmetric Gauss-Seidel sweeps.
 
 Boundary values: a :class:`fvrans.fv.boundary.BoundaryScalar`; faces of kind ``outer-flow`` take
@@ -137,12 +138,18 @@ class TransportEquation:
         K.continuity_correction(self.mesh.face_owner, self.mesh.face_neighbour, self.ni, flux, co.diag)
         return co
 
-    def solve(self, phi: np.ndarray, co: Coefficients, reference: float = 0.0) -> tuple[np.ndarray, float]:
+    def solve(self, phi: np.ndarray, co: Coefficients, reference: float = 0.0,
+              pseudo_time: np.ndarray | None = None) -> tuple[np.ndarray, float]:
         """Normalised imbalance of the unrelaxed system at ``phi``, then relax and solve: (new phi,
-        imbalance). ``reference``: the smallest value size the row scaling assumes (``scale_rows``)."""
+        imbalance). ``reference``: the smallest value size the row scaling assumes (``scale_rows``).
+        ``pseudo_time``: rho V / dt per cell, added to the diagonal with the source rho V / dt phi
+        (local pseudo-time steps; a relaxation that does not grow with the diagonal)."""
         A = self.asm.matrix(co.diag, co.off_owner, co.off_neighbour)
         res = normalised_imbalance(A, co.source, phi)
         under_relax(co, phi, self.relax)
+        if pseudo_time is not None:
+            co.diag += pseudo_time
+            co.source += pseudo_time * phi
         bad = np.flatnonzero(~(co.diag > 0.0))
         if len(bad):  # only a flow field that is already running away can do this
             c = int(bad[0])

@@ -154,38 +154,38 @@ def assemble_momentum(
 @njit(cache=True)
 def rhie_chow_fluxes(
     owner, neigh, n_int, S, dcoef, kvec, w, skew, delta, gu, hu, quadratic, rho, hbya, rau, p, gp, pb, bkind, bvel,
-    relax_u, F_old, F,
+    beta, F_old, F,
 ):
-    """Face mass fluxes F_f = rho [ (H/A)_f . S - (V/A)_f ((p_N - p_P) dcoef + k . grad p_f) ]
-    + (1 - alpha_u) F_old   (Rhie & Chow 1983, AIAA J. 21, 1525-1532).
+    """Face mass fluxes F_f = (1 - beta_f) rho [ (H/a)_f . S - (V/a)_f ((p_N - p_P) dcoef + k . grad p_f) ]
+    + beta_f F_old   (Rhie & Chow 1983, AIAA J. 21, 1525-1532).
 
-    ``hbya`` = (b - N u*) / A excludes the relaxation source (1 - alpha_u)/alpha_u a_P u_old, and
-    A = a_P / alpha_u; the relaxation enters through the old face flux instead, so at convergence
-    F = rho [((b - N u)/a_P)_f . S - (V/a_P)_f grad p_f . S] whatever alpha_u (Majumdar 1988,
-    Numer. Heat Transfer 13, 125-132).
+    ``hbya`` = (b - N u*) / a_P and ``rau`` = V / a_P use the unrelaxed diagonal a_P; ``beta`` per
+    cell is the share of the relaxed diagonal A that relaxation and the pseudo-time term add,
+    beta = 1 - a_P / A (Patankar's relaxation alone: 1 - alpha_u), linearly interpolated to the
+    face. The relaxation thus enters the face flux only through the old face flux, as it enters the
+    cell velocity through the old velocity, so at convergence (F = F_old) F = rho [(H/a_P)_f . S -
+    (V/a_P)_f grad p_f . S] whatever alpha_u and the pseudo-time steps (Majumdar 1988, Numer. Heat
+    Transfer 13, 125-132, for a uniform alpha_u).
 
-    With ``quadratic`` the H/A face value gets the terms that make the flux exact for a quadratic
+    With ``quadratic`` the H/a face value gets the terms that make the flux exact for a quadratic
     velocity (second derivatives ``hu`` (nc, 2, 3) = (u_xx, u_xy, u_yy) per component, from a
-    quadratic fit, times alpha_u like the gradient term): -w (1-w) d^T H d / 2 (linear
-    interpolation to the intersection point), + s^T H s / 2 (on to the face centre, s = skew) and
-    + t^T H t / 24 (the face integral against its midpoint value, t the face vector). On
-    triangles the O(h^2) errors of these three face values do not cancel over the three faces
-    (they do over opposite faces of a quadrilateral): the continuity equation keeps an O(h)
-    truncation error of alternating sign between neighbouring triangles, which the Rhie-Chow term
-    (weight ~ V/a_P ~ h^2/mu) balances with an O(h) pressure oscillation.
+    quadratic fit): -w (1-w) d^T H d / 2 (linear interpolation to the intersection point),
+    + s^T H s / 2 (on to the face centre, s = skew) and + t^T H t / 24 (the face integral against
+    its midpoint value, t the face vector). On triangles the O(h^2) errors of these three face
+    values do not cancel over the three faces (they do over opposite faces of a quadrilateral):
+    the continuity equation keeps an O(h) truncation error of alternating sign between
+    neighbouring triangles, which the Rhie-Chow term (weight ~ V/a_P ~ h^2/mu) balances with an
+    O(h) pressure oscillation.
     """
     nf = owner.shape[0]
-    a = 1.0 - relax_u
     for f in range(n_int):
         P = owner[f]
         N = neigh[f]
         wf = w[f]
         # linear interpolation to the intersection point, moved to the face centre with the
-        # velocity gradient (skewness correction; H/A - alpha u is smooth to higher order). H/A
-        # scales with alpha_u (A = a_P / alpha_u), so the correction does too: that keeps the
-        # converged fluxes independent of alpha_u.
-        s0 = relax_u * skew[f, 0]
-        s1 = relax_u * skew[f, 1]
+        # velocity gradient (skewness correction; H/a - u is smooth to higher order)
+        s0 = skew[f, 0]
+        s1 = skew[f, 1]
         h0 = wf * hbya[P, 0] + (1.0 - wf) * hbya[N, 0] + (
             (wf * gu[P, 0, 0] + (1.0 - wf) * gu[N, 0, 0]) * s0 + (wf * gu[P, 0, 1] + (1.0 - wf) * gu[N, 0, 1]) * s1
         )
@@ -194,34 +194,32 @@ def rhie_chow_fluxes(
         )
         if quadratic:
             # exact for quadratic u: - w (1-w) d^T H d / 2 at the intersection point, + s^T H s / 2
-            # to the face centre, H interpolated linearly (times alpha_u, as above)
+            # to the face centre, H interpolated linearly
             d0 = delta[f, 0]
             d1 = delta[f, 1]
             c0 = -0.5 * wf * (1.0 - wf)
-            k0 = skew[f, 0]
-            k1 = skew[f, 1]
-            t00 = c0 * d0 * d0 + 0.5 * k0 * k0
-            t01 = c0 * 2.0 * d0 * d1 + k0 * k1
-            t11 = c0 * d1 * d1 + 0.5 * k1 * k1
+            t00 = c0 * d0 * d0 + 0.5 * s0 * s0
+            t01 = c0 * 2.0 * d0 * d1 + s0 * s1
+            t11 = c0 * d1 * d1 + 0.5 * s1 * s1
             # the face integral of a quadratic: midpoint value + (t^T H t) / 24, t the face vector
             e0 = -S[f, 1]
             e1 = S[f, 0]
             t00 += e0 * e0 / 24.0
             t01 += 2.0 * e0 * e1 / 24.0
             t11 += e1 * e1 / 24.0
-            c0 = relax_u
-            h0 += c0 * (t00 * (wf * hu[P, 0, 0] + (1.0 - wf) * hu[N, 0, 0])
-                        + t01 * (wf * hu[P, 0, 1] + (1.0 - wf) * hu[N, 0, 1])
-                        + t11 * (wf * hu[P, 0, 2] + (1.0 - wf) * hu[N, 0, 2]))
-            h1 += c0 * (t00 * (wf * hu[P, 1, 0] + (1.0 - wf) * hu[N, 1, 0])
-                        + t01 * (wf * hu[P, 1, 1] + (1.0 - wf) * hu[N, 1, 1])
-                        + t11 * (wf * hu[P, 1, 2] + (1.0 - wf) * hu[N, 1, 2]))
+            h0 += (t00 * (wf * hu[P, 0, 0] + (1.0 - wf) * hu[N, 0, 0])
+                   + t01 * (wf * hu[P, 0, 1] + (1.0 - wf) * hu[N, 0, 1])
+                   + t11 * (wf * hu[P, 0, 2] + (1.0 - wf) * hu[N, 0, 2]))
+            h1 += (t00 * (wf * hu[P, 1, 0] + (1.0 - wf) * hu[N, 1, 0])
+                   + t01 * (wf * hu[P, 1, 1] + (1.0 - wf) * hu[N, 1, 1])
+                   + t11 * (wf * hu[P, 1, 2] + (1.0 - wf) * hu[N, 1, 2]))
         r = wf * rau[P] + (1.0 - wf) * rau[N]
         gp0 = wf * gp[P, 0] + (1.0 - wf) * gp[N, 0]
         gp1 = wf * gp[P, 1] + (1.0 - wf) * gp[N, 1]
-        F[f] = rho * (
+        bf = wf * beta[P] + (1.0 - wf) * beta[N]
+        F[f] = (1.0 - bf) * rho * (
             h0 * S[f, 0] + h1 * S[f, 1] - r * ((p[N] - p[P]) * dcoef[f] + kvec[f, 0] * gp0 + kvec[f, 1] * gp1)
-        ) + a * F_old[f]
+        ) + bf * F_old[f]
     for f in range(n_int, nf):
         b = f - n_int
         P = owner[f]
@@ -231,16 +229,17 @@ def rhie_chow_fluxes(
         elif kind == INLET:
             F[f] = rho * (bvel[b, 0] * S[f, 0] + bvel[b, 1] * S[f, 1])
         else:
-            # H/A carried from the cell centre to the face centre with alpha_u grad u
-            d0 = relax_u * delta[f, 0]
-            d1 = relax_u * delta[f, 1]
+            # H/a carried from the cell centre to the face centre with grad u
+            d0 = delta[f, 0]
+            d1 = delta[f, 1]
             h0 = hbya[P, 0] + gu[P, 0, 0] * d0 + gu[P, 0, 1] * d1
             h1 = hbya[P, 1] + gu[P, 1, 0] * d0 + gu[P, 1, 1] * d1
             r = rau[P]
-            F[f] = rho * (
+            bf = beta[P]
+            F[f] = (1.0 - bf) * rho * (
                 h0 * S[f, 0] + h1 * S[f, 1]
                 - r * ((pb[b] - p[P]) * dcoef[f] + kvec[f, 0] * gp[P, 0] + kvec[f, 1] * gp[P, 1])
-            ) + a * F_old[f]
+            ) + bf * F_old[f]
 
 
 @njit(cache=True)
@@ -355,18 +354,18 @@ def boundary_pressure(owner, n_int, delta, bkind, bp, p, gp, pb):
 
 @njit(cache=True)
 def momentum_sources(
-    owner, neigh, vol, body, gp, u, alpha, diag_u, diag_v, off_own, off_nei, bu, bv,
+    owner, neigh, vol, body, gp, u, alpha, pt, diag_u, diag_v, off_own, off_nei, bu, bv,
     b_np, a_rel, rhs_u, rhs_v, work,
 ):
     """Complete the momentum equations and under-relax them.
 
-    b_np = b + V f_body (sources without the pressure force, kept for H/A); the unrelaxed
+    b_np = b + V f_body (sources without the pressure force, kept for H/a); the unrelaxed
     residuals r = b_np - V grad p - a_P u - sum a_nb u_nb of the current velocity; the relaxed
-    diagonals a_rel = a_P / alpha (Patankar 1980, sec. 4.2-5) and right-hand sides
-    b_np - V grad p + (1 - alpha) a_rel u. Returns (sum |r_u|, sum |r_v|, sum of the term
-    magnitudes): per cell |(a_P^u u_P, a_P^v v_P)| + sum_nb |a_nb| |u_nb| + |b| + V |f_body|
-    + V |grad p| (vector magnitudes; ``b`` the boundary and deferred terms), the reference of
-    ``fvrans.solve.residuals``.
+    diagonals a_rel = a_P / alpha + pt (Patankar 1980, sec. 4.2-5, plus the pseudo-time term
+    pt = rho V / dt per cell) and right-hand sides b_np - V grad p + (a_rel - a_P) u. Returns
+    (sum |r_u|, sum |r_v|, sum of the term magnitudes): per cell |(a_P^u u_P, a_P^v v_P)|
+    + sum_nb |a_nb| |u_nb| + |b| + V |f_body| + V |grad p| (vector magnitudes; ``b`` the boundary
+    and deferred terms), the reference of ``fvrans.fv.residual``.
     """
     nc = u.shape[0]
     mag = 0.0
@@ -396,29 +395,31 @@ def momentum_sources(
                 + abs(off_nei[f]) * np.sqrt(u[P, 0] * u[P, 0] + u[P, 1] * u[P, 1]))
     ru = 0.0
     rv = 0.0
-    a = 1.0 - alpha
     for c in range(nc):
         ru += abs(work[c, 0])
         rv += abs(work[c, 1])
-        au = diag_u[c] / alpha
-        av = diag_v[c] / alpha
+        au = diag_u[c] / alpha + pt[c]
+        av = diag_v[c] / alpha + pt[c]
         a_rel[c, 0] = au
         a_rel[c, 1] = av
-        rhs_u[c] += a * au * u[c, 0]
-        rhs_v[c] += a * av * u[c, 1]
+        rhs_u[c] += (au - diag_u[c]) * u[c, 0]
+        rhs_v[c] += (av - diag_v[c]) * u[c, 1]
     return ru, rv, mag
 
 
 @njit(cache=True)
-def interpolation_coefficients(owner, neigh, vol, off_own, off_nei, a_rel, b_np, us, vs, simplec, hbya, rau, dp, work):
-    """H/A = (b - N u*) / A per component (A the relaxed diagonal), rau = V / A with
-    A = (A_u + A_v)/2, and the pressure-correction coefficient dp: V/A (SIMPLE) or
+def interpolation_coefficients(
+    owner, neigh, vol, off_own, off_nei, diag_u, diag_v, a_rel, b_np, us, vs, simplec, hbya, rau, beta, dp, work,
+):
+    """H/a = (b - N u*) / a_P per component (a_P the unrelaxed diagonal), rau = V / a with
+    a = (a_P^u + a_P^v)/2, the relaxation share of the diagonal beta = 1 - a / A (A the relaxed
+    diagonal, averaged likewise) and the pressure-correction coefficient dp: V/A (SIMPLE) or
     V / max(A - sum |a_nb|, A/100) (SIMPLEC, Van Doormaal & Raithby 1984)."""
     nc = us.shape[0]
     for c in range(nc):
         work[c, 0] = 0.0
         work[c, 1] = 0.0
-        rau[c] = 0.0
+        dp[c] = 0.0
     for f in range(off_own.shape[0]):
         P = owner[f]
         N = neigh[f]
@@ -426,18 +427,19 @@ def interpolation_coefficients(owner, neigh, vol, off_own, off_nei, a_rel, b_np,
         work[P, 1] += off_own[f] * vs[N]
         work[N, 0] += off_nei[f] * us[P]
         work[N, 1] += off_nei[f] * vs[P]
-        rau[P] += abs(off_own[f])  # rau holds sum |a_nb| until the last loop
-        rau[N] += abs(off_nei[f])
+        dp[P] += abs(off_own[f])  # dp holds sum |a_nb| until the last loop
+        dp[N] += abs(off_nei[f])
     for c in range(nc):
-        hbya[c, 0] = (b_np[c, 0] - work[c, 0]) / a_rel[c, 0]
-        hbya[c, 1] = (b_np[c, 1] - work[c, 1]) / a_rel[c, 1]
+        hbya[c, 0] = (b_np[c, 0] - work[c, 0]) / diag_u[c]
+        hbya[c, 1] = (b_np[c, 1] - work[c, 1]) / diag_v[c]
+        a = 0.5 * (diag_u[c] + diag_v[c])
         A = 0.5 * (a_rel[c, 0] + a_rel[c, 1])
+        rau[c] = vol[c] / a
+        beta[c] = 1.0 - a / A
         if simplec:
-            denom = max(A - rau[c], 0.01 * A)
-            dp[c] = vol[c] / denom
+            dp[c] = vol[c] / max(A - dp[c], 0.01 * A)
         else:
             dp[c] = vol[c] / A
-        rau[c] = vol[c] / A
 
 
 @njit(cache=True)
@@ -464,3 +466,24 @@ def correct_velocity(us, vs, dp, gpc, u):
     for c in range(u.shape[0]):
         u[c, 0] = us[c] - dp[c] * gpc[c, 0]
         u[c, 1] = vs[c] - dp[c] * gpc[c, 1]
+
+
+@njit(cache=True)
+def flow_rates(owner, neigh, n_int, F, width, rho_u_floor, q):
+    """Mass flow through each cell, q = max(sum_f |F_f| / 2, rho u_floor w), w = V / (longest face)
+    the cell's narrow width: the floor is the flow of speed u_floor along the cell's long side (for
+    cells the flow has not reached yet; it does not grow with the aspect ratio). The local
+    pseudo-time step of a cell is dt = CFL rho V / q, its diagonal term rho V / dt = q / CFL."""
+    nc = q.shape[0]
+    for c in range(nc):
+        q[c] = 0.0
+    for f in range(n_int):
+        a = 0.5 * abs(F[f])
+        q[owner[f]] += a
+        q[neigh[f]] += a
+    for f in range(n_int, owner.shape[0]):
+        q[owner[f]] += 0.5 * abs(F[f])
+    for c in range(nc):
+        lo = rho_u_floor * width[c]
+        if q[c] < lo:
+            q[c] = lo

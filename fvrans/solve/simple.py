@@ -12,14 +12,20 @@ Van Doormaal & Raithby 1984, Numer. Heat Transfer 7, 147-163):
    (D = V/A for SIMPLE, V/(A - sum|a_nb|) for SIMPLEC) with AMG-preconditioned CG;
 4. correct fluxes (exactly conservative), pressure (p += alpha_p p') and cell velocities
    (u -= D grad p');
-5. the turbulence model, if any, updates the eddy viscosity.
+5. the turbulence model, if any, updates the eddy viscosity, its equation with local
+   pseudo-time steps (``SolverControls.turbulence_cfl``).
+
+Start-up (``SolverControls.conservative_start``): a start without face fluxes (a uniform initial
+field) is first made mass-conserving by adding the potential flow that carries what the inflow
+boundaries bring in to the fixed-pressure boundaries (``SimpleSolver._project_start``).
 
 Each iteration reports the normalised imbalances of ``fvrans.fv.residual`` (summed imbalance over the
 summed magnitudes of the equation's terms) of the state it started from.
 
 The converged solution does not depend on the relaxation factors: every deferred term is
 evaluated at the converged state, and the relaxation term enters the face flux only through
-(1 - alpha) F_old, see ``_kernels.rhie_chow_fluxes``.
+beta F_old (beta the relaxation share of the diagonal, 1 - alpha with Patankar's relaxation
+alone), see ``_kernels.rhie_chow_fluxes``; the pseudo-time terms vanish at convergence.
 """
 
 from __future__ import annotations
@@ -82,6 +88,18 @@ class SolverControls:
     face integral to the Rhie-Chow fluxes (see ``_kernels.rhie_chow_fluxes``); None turns them on
     when the mesh has a cell that is not a quadrilateral (on triangles the midpoint-rule errors
     of the three faces do not cancel, so without them the pressure is only first order).
+
+    Start-up and pseudo-time steps (choice and figures in DEVELOPERS.md, "Start from rest"):
+    ``conservative_start`` projects a uniform start onto mass-conserving fluxes (one Poisson
+    solve): a start from rest conserves no mass (the inflow enters cells it cannot leave) and
+    diverged at iteration 1 on the step, bumps and plates, or at iteration 3 on the Re_h 800
+    channel, depending on round-off. ``turbulence_cfl``: the turbulence equation gets
+    rho V / dt = q / CFL on its diagonal (q the mass flow through the cell, ``_kernels.flow_rates``),
+    a relaxation that does not grow with the diagonal: it ends the limit cycle of the Re_h 1e6
+    bump without Patankar relaxation, which ties stacks of thin cells (step). ``momentum_cfl``
+    (off; not a case key): the same for the momentum equations, beside Patankar's relaxation; it
+    sped up some cases and slowed or stalled others (DEVELOPERS.md), kept for the study of
+    pseudo-transient continuation.
     """
 
     coupling: str = "simplec"
@@ -99,6 +117,9 @@ class SolverControls:
     amg_rebuild_every: int = 20
     divergence_factor: float = 1e5
     quadratic_face_flux: bool | None = None
+    conservative_start: bool = True
+    turbulence_cfl: float = 20.0
+    momentum_cfl: float = 0.0
 
     @property
     def alpha_u(self) -> float:
@@ -244,6 +265,14 @@ class SimpleSolver:
         self.vs = np.zeros(nc)
         self.hbya = np.zeros((nc, 2))
         self.rau = np.zeros(nc)
+        self.beta = np.zeros(nc)
+        self.pt = np.zeros(nc)
+        self.flow_rate = np.zeros(nc)
+        # narrow width of each cell, V / longest face (floor of the pseudo-time step's flow)
+        longest = np.zeros(nc)
+        np.maximum.at(longest, mesh.face_owner, geom.face_length)
+        np.maximum.at(longest, mesh.face_neighbour[:ni], geom.face_length[:ni])
+        self.width = geom.cell_area / longest
         self.dp = np.zeros(nc)
         self.pc = np.zeros(nc)
         self.pcb = np.zeros(nb)
@@ -270,6 +299,7 @@ class SimpleSolver:
         self.history = History(names=["u", "v", "continuity", *self.model.names])
         self.iteration = 0
         self.fields = fields.copy() if fields is not None else Fields.uniform(nc, nf)
+        self.u_scale = self._velocity_scale()
         self.model.initialise(self.fields)
         # the explicit extra stress of the model (non-linear relations, injected stresses): its
         # divergence is a momentum source; zero on walls, normal part only on symmetry planes
@@ -280,10 +310,37 @@ class SimpleSolver:
         self.div_stress = np.zeros((nc, 2))
         if fields is None or not np.any(fields.face_flux):
             self.fields.face_flux = self._interpolated_fluxes(self.fields.velocity)
+            if self.ctl.conservative_start:
+                self._project_start()
         self.grad_p = self.grad_pressure(self.fields.pressure, self._pressure_on_boundary(np.zeros((nc, 2))))
-        self.u_scale = self._velocity_scale()
         # models that need the gradient of a field other than the current one (an injected stress)
         self.model.prepare(self.velocity_gradient)
+
+    def _project_start(self) -> None:
+        """Make the start's face fluxes conservative: F = F0 - rho dcoef (phi_N - phi_P) with
+        sum_f rho dcoef (phi_P - phi_N) = -sum_f F0 (phi = 0 on fixed-pressure faces), and the cell
+        velocities u = u0 - grad phi: the start plus the potential flow that carries what the
+        inflow boundaries bring in to the outflow boundaries (the pressure-correction system with
+        D = 1; a start that already conserves mass, or one without inflow, is left as it is).
+        Started from rest, the first momentum predictor met inflow with no outflow and SIMPLEC's
+        D = V / (A - sum|a_nb|) was largest where the fluid was still at rest; from the potential
+        flow the cold starts of the bundled cases converge in as many iterations as their uniform
+        starts (coarse step 633 from rest, 632 from the free-stream velocity)."""
+        ni = self.ni
+        kind = self.bc.kind
+        ones = np.ones(self.nc)
+        F = self.fields.face_flux
+        K.assemble_pressure_correction(self.owner, self.neigh, ni, self.dcoef, self.rho, ones, kind, F,
+                                       self.p_diag, self.p_off, self.p_rhs)
+        if not np.any(self.p_rhs):
+            return
+        solver = PressureSolver(CsrAssembler(self.mesh), rtol=1e-6, singular=not self.bc.has_fixed_pressure,
+                                max_cg_iterations=200)
+        phi = solver.solve(self.p_diag, self.p_off, self.p_rhs)
+        K.correct_fluxes(self.owner, self.neigh, ni, self.dcoef, self.rho, ones, kind, phi, F)
+        fixed = (kind == K.OUTLET) | (kind == K.FREESTREAM)
+        phib = np.where(fixed, 0.0, phi[self.owner[ni:]])
+        self.fields.velocity = self.fields.velocity - self.grad(phi, phib)
 
     def velocity_gradient(self, velocity: np.ndarray, face_flux: np.ndarray | None = None) -> np.ndarray:
         """The loop's cell gradient grad u[c, i, j] = du_i/dx_j of a velocity field, with boundary
@@ -390,8 +447,15 @@ class SimpleSolver:
         # body force and pressure gradient (cell gradient, Rhie-Chow handles the coupling),
         # residuals of the current velocity, implicit under-relaxation (Patankar 1980, sec. 4.2-5)
         gp = self.grad_p
+        use_turbulence_cfl = bool(self.model.names) and ctl.turbulence_cfl > 0.0
+        if ctl.momentum_cfl > 0.0 or use_turbulence_cfl:
+            # rho q per cell, q the volume flow through it (local pseudo-time steps dt = CFL V / q)
+            K.flow_rates(self.owner, self.neigh, ni, F_old, self.width, rho * self.u_scale, self.flow_rate)
+        if ctl.momentum_cfl > 0.0:
+            np.multiply(self.flow_rate, 1.0 / ctl.momentum_cfl, out=self.pt)
         ru, rv, mag = K.momentum_sources(
-            self.owner, self.neigh, self.vol, self.body, gp, u_old, alpha, self.diag_u, self.diag_v,
+            self.owner, self.neigh, self.vol, self.body, gp, u_old, alpha,
+            self.pt, self.diag_u, self.diag_v,
             self.off_own, self.off_nei, self.bu, self.bv, self.b_np, self.a_rel, self.rhs_u, self.rhs_v,
             self.work2,
         )
@@ -416,10 +480,10 @@ class SimpleSolver:
             self.body += df
             self.b_np += self.vol[:, None] * df
         t4 = time.perf_counter()
-        # H/A without the relaxation term: ((b - N u*) / A), A the relaxed diagonal; D for p'
+        # H/a = (b - N u*) / a_P, V / a_P and the relaxation share beta of the diagonal; D for p'
         K.interpolation_coefficients(
-            self.owner, self.neigh, self.vol, self.off_own, self.off_nei, self.a_rel, self.b_np, us, vs,
-            ctl.coupling == "simplec", self.hbya, self.rau, self.dp, self.work2,
+            self.owner, self.neigh, self.vol, self.off_own, self.off_nei, self.diag_u, self.diag_v, self.a_rel,
+            self.b_np, us, vs, ctl.coupling == "simplec", self.hbya, self.rau, self.beta, self.dp, self.work2,
         )
         dp = self.dp
         K.boundary_pressure(self.owner, ni, g.face_delta, kind, self.bc.pressure, fl.pressure, gp, self.pb)
@@ -427,7 +491,7 @@ class SimpleSolver:
         K.rhie_chow_fluxes(
             self.owner, self.neigh, ni, self.S, self.dcoef, self.kvec, g.face_weight,
             g.face_skew, g.face_delta, gu, hu, self.hess is not None, rho, self.hbya, self.rau, fl.pressure, gp,
-            self.pb, kind, self.bc.velocity, alpha, F_old, F,
+            self.pb, kind, self.bc.velocity, self.beta, F_old, F,
         )
         imbalance, throughput = K.assemble_pressure_correction(
             self.owner, self.neigh, ni, self.dcoef, rho, dp, kind, F, self.p_diag, self.p_off, self.p_rhs
@@ -459,7 +523,8 @@ class SimpleSolver:
         res = [res_u, res_v, res_c]
         if self.model.names:
             ub2 = self._velocity_on_boundary(u_new, F[ni:])
-            res += self.model.update(fl, self.grad(u_new, ub2))
+            res += self.model.update(fl, self.grad(u_new, ub2),
+                                     self.flow_rate / ctl.turbulence_cfl if use_turbulence_cfl else None)
         self.iteration += 1
         return res
 

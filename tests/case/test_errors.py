@@ -207,6 +207,8 @@ CASES = {
         _set("solver.checkpoint_every", -1),
         ["solver.checkpoint_every", ">= 0"],
     ),
+    "negative turbulence CFL": (_set("solver.turbulence_cfl", -1.0), ["solver.turbulence_cfl", ">= 0"]),
+    "conservative start not a flag": (_set("solver.conservative_start", "yes"), ["solver.conservative_start"]),
     "zero reference velocity": (_set("output.reference_velocity", 0.0), ["output.reference_velocity", "> 0"]),
     "negative reference length": (_set("output.reference_length", -1.0), ["output.reference_length", "> 0"]),
     # -- mesh source --
