@@ -116,7 +116,8 @@ def main(argv: list[str] | None = None) -> int:
                     du = float(np.max(np.abs(r.velocity - s.velocity))) / u_ref
                     extra = f"  {abs(a - b) / abs(b):9.2e}  {du:9.2e}"
                 print(f"{family:7s} {label:8s} {nc:6d}  {alg:12s}  {str(r.converged):5s} {r.iterations:5d}  "
-                      f"{growth:6.2f}  {wall:8.1f}  {us:10.2f}  {us * 1e-6 * nc / triad:8.0f}   {a:.8e}{extra}", flush=True)
+                      f"{growth:6.2f}  {wall:8.1f}  {us:10.2f}  {us * 1e-6 * nc / triad:8.0f}   {a:.8e}{extra}",
+                      flush=True)
     return 0
 
 

@@ -77,8 +77,8 @@ from fvrans.reference import FieldSource, cell_source, read_result_folder, read_
 from fvrans.reference import diagnostics as ref_diag
 from fvrans.reference.cells import CellReference, reference_from_cells, reference_from_source
 from fvrans.reference.features import feature_table, write_feature_table
-from fvrans.solve.frozen import FrozenVelocitySolver
 from fvrans.solve.coupled import SimultaneousSolver
+from fvrans.solve.frozen import FrozenVelocitySolver
 from fvrans.solve.simple import History, SimpleSolver, SolverControls
 
 log = logging.getLogger(__name__)
