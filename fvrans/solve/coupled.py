@@ -77,6 +77,9 @@ class SimultaneousSolver(SimpleSolver):
         self._lu = None
         self.factorisations = 0
         self._mu_t = None
+        #: cell pressure gradients of the continuity fluxes implicit (True) or from the previous state
+        #: (cavity 64^2 / 128^2: 17 / 16 against 19 / 17 iterations, each about 10 % cheaper lagged)
+        self.implicit_gradient = True
         self.eddy_viscosity_relaxation = float(self.ctl.eddy_viscosity_relaxation)
         self._amg = None
         self._zero_c2 = np.zeros((nc, 2))
@@ -174,8 +177,12 @@ class SimultaneousSolver(SimpleSolver):
         # continuity: D u + D R grad p - K grad p + Lc p = -c0, grad p = V^-1 (G p + E)
         W = self.D @ sp.diags(np.concatenate([r_u, r_v])) - sp.hstack([Kx, Ky])
         Wv = W @ sp.diags(np.concatenate([1.0 / V, 1.0 / V]))
-        App = (Lc + Wv @ self.G).tocsr()
-        rhs_c = -(c0 + Wv @ E)
+        if self.implicit_gradient:
+            App = (Lc + Wv @ self.G).tocsr()
+            rhs_c = -(c0 + Wv @ E)
+        else:
+            App = Lc.tocsr()
+            rhs_c = -(c0 + W @ np.concatenate([gp[:, 0], gp[:, 1]]))
         rhs_m = np.concatenate([self.rhs_u, self.rhs_v]) + self.G @ p
         A = sp.bmat([[Amom, self.G], [self.D, App]], format="csr")
         rhs = np.concatenate([rhs_m, rhs_c])
@@ -202,8 +209,13 @@ class SimultaneousSolver(SimpleSolver):
             self._pin_level(A, rhs)
         if self._lu is not None:
             x0 = np.concatenate([self.fields.velocity[:, 0], self.fields.velocity[:, 1], self.fields.pressure])
-            dx, its, rel = fgmres(lambda z: A @ z, self._lu.solve, rhs - A @ x0, self.ctl.system_tolerance,
-                                   REUSE_ITERATIONS, REUSE_ITERATIONS)
+            # rows scaled by their diagonals, so that the residual norm GMRES reduces weighs every
+            # equation alike (momentum rows of thin wall cells are many decades above the rest)
+            d = np.abs(A.diagonal())
+            d = 1.0 / np.where(d > 0.0, d, 1.0)
+            lu = self._lu
+            dx, its, rel = fgmres(lambda z: d * (A @ z), lambda v: lu.solve(v / d), d * (rhs - A @ x0),
+                                  self.ctl.system_tolerance, REUSE_ITERATIONS, REUSE_ITERATIONS)
             if rel <= self.ctl.system_tolerance:
                 self.lin_iterations.append(its)
                 return x0 + dx
