@@ -15,6 +15,16 @@ timed in the same run, the growth of the iteration count from the previous (4x s
 relative difference of the compared quantity plus max |u_sim - u_seg| / U_ref. Numba compilation is
 excluded by a warm-up run. No assertions; the machine is shared, so read the triad ratio.
 
+Measured 2026-12-03 (2 cores shared with other engineers' test suites and runs: heavily loaded; wall
+seconds; iterations SIMPLEC -> simultaneous; answer: relative difference of the compared quantity):
+  cavity 64^2 / 128^2 / 256^2: 209 / 715 / 2713 -> 40 / 40 / 42 its; 2.4 / 37.2 / 568.9 s -> 3.8 / 24.9 / 55.3 s;
+      us per cell and iteration 2.8-3.2 -> 20-38; max |du| / U 3.5e-6 / 7.5e-6 / 9.3e-6
+  plate coarse / medium / fine: 243 / 420 / 1596 -> 40 / 45 / diverged at 35 (563 s); 1.3 / 8.3 / 263 s
+      -> 1.5 / 22.9 s; Cf(0.97) rel. 1.7e-8 / 2.5e-7
+  step coarse / medium: 1668 / not converged in 4000 (793 s) -> 128 / 181 its; 36.7 s -> 22.9 / 357.6 s;
+      x_r rel. 2.0e-7 / 6.3e-7 (against the unfinished SIMPLEC run)
+  The fine step was not run (SuperLU memory and time).
+
 Run:  python benchmarks/bench_coupled.py [--families cavity plate step] [--fine-step] [--only simultaneous]
 """
 
