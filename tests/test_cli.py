@@ -154,6 +154,8 @@ def test_a_reused_output_folder_loses_the_earlier_runs_files_and_keeps_the_users
     assert {"wall/lower_wall.csv", "profiles/across.csv", "plots/wall_lower_wall_cf.png", "case.toml",
             "summary.json", "monitored.csv", "checkpoint.npz"} <= set(first)
     assert all((out / f).is_file() for f in first)
+    listing = listed_outputs(out)
+    assert listing["iteration"] == 5 and listing["plots_iteration"] == 5  # the plots drawn from that result
     mine = [out / "notes.txt", out / "plots" / "mine.png", out / "wall" / "measured.csv"]
     for f in mine:
         f.write_text("the user's own file")

@@ -105,15 +105,18 @@ def _put_in_place(out: Path, stage: Path, new: dict[str, Any]) -> None:
     """Step 3 of the module docstring; every part may be repeated after a kill."""
     scope = new.get("scope")
     old = _read_manifest(out / MANIFEST) or {"files": []}
+    root = out.resolve()
     new_files = [f for f in new["files"] if _safe_rel(f)]
     for rel in new_files:
         src = stage / rel
+        dst = out / rel
+        if not _lands_inside(dst, root):
+            log.warning("%s: not put in place: %s leads out of the folder", out, dst.parent)
+            continue
         if src.is_file():
-            dst = out / rel
             dst.parent.mkdir(parents=True, exist_ok=True)
             os.replace(src, dst)
     keep = set(new_files)
-    root = out.resolve()
     for rel in old["files"]:
         if _safe_rel(rel) and _in_scope(rel, scope) and rel not in keep:
             _remove_listed(out / rel, root)
@@ -152,6 +155,16 @@ def _remove_listed(path: Path, root: Path) -> None:
         d = d.parent
 
 
+def _lands_inside(target: Path, root: Path) -> bool:
+    """Whether ``target``'s folder (after symbolic links) lies inside ``root`` (a folder of the
+    set that is a link to elsewhere would carry the file out of the output folder)."""
+    d = target.parent
+    while not d.exists() and d != d.parent:
+        d = d.parent  # a folder still to be made: judge by the nearest one that exists
+    real = d.resolve()
+    return real == root or root in real.parents
+
+
 def open_folder(folder: str | os.PathLike) -> Path:
     """Create the result folder ``folder`` if missing (a :class:`CaseError` naming it when it
     cannot be) and :func:`recover` it; return it as a Path."""
@@ -181,6 +194,11 @@ def output_set(folder: str | os.PathLike, scope: str | None = None,
     try:
         yield stage
         files = _files_below(stage)
+        root = out.resolve()
+        for rel in files:
+            if not _lands_inside(out / rel, root):
+                raise CaseError(f"refusing to write {out / rel}: {(out / rel).parent} leads out of the output "
+                                f"folder {root} (a symbolic link?); remove it or choose another --out")
         new = {"files": files, "iteration": iteration, "scope": scope}
         with holding_stops():  # from the commit point on, the set is put in place whole
             write_json_atomic(stage / MANIFEST, new)

@@ -35,7 +35,7 @@ from fvrans.post._plot_data import (
     read_fields,
     read_summary,
 )
-from fvrans.post.outputs import output_set, recover
+from fvrans.post.outputs import listed_outputs, output_set, recover
 from fvrans.post.residuals import RESIDUAL_LABEL, RESIDUAL_NORMALISATION
 from fvrans.post.writers import atomic_path, safe_file_name
 
@@ -900,7 +900,8 @@ def make_plots(
         out.mkdir(parents=True, exist_ok=True)
         return _save_all(figures, out, should_stop)
     rd = Path(result_dir)
-    with output_set(rd, scope=PLOTS_DIR) as stage:
+    drawn_from = (listed_outputs(rd) or {}).get("iteration")  # the iteration of the result drawn
+    with output_set(rd, scope=PLOTS_DIR, iteration=drawn_from) as stage:
         saved = _save_all(figures, stage / PLOTS_DIR, should_stop)
     return [rd / PLOTS_DIR / p.name for p in saved]
 

@@ -144,3 +144,33 @@ def test_mesh_with_a_mapped_name_round_trips(tmp_path):
     back = read_mesh(tmp_path / "m.msh")
     assert sorted(back.patch_names) == sorted(m.patch_names)
     assert isinstance(back, Mesh)
+
+
+def test_a_linked_folder_inside_out_does_not_carry_a_set_outside(tmp_path):
+    """A folder of the output set (``wall/``) that is a symbolic link to elsewhere: the set is
+    refused before anything is put in place, naming the link; the previous set stays and nothing
+    lands outside ``--out``; recovery of a staged set skips such files too."""
+    from fvrans.post import outputs
+
+    out, elsewhere = tmp_path / "out", tmp_path / "elsewhere"
+    out.mkdir()
+    elsewhere.mkdir()
+    with outputs.output_set(out, iteration=1) as stage:
+        (stage / "summary.json").write_text("{}")
+    (out / "wall").symlink_to(elsewhere, target_is_directory=True)
+    with pytest.raises(CaseError, match="leads out of the output folder"):
+        with outputs.output_set(out, iteration=2) as stage:
+            (stage / "wall").mkdir()
+            (stage / "wall" / "plate.csv").write_text("x\n")
+            (stage / "summary.json").write_text('{"iteration": 2}')
+    assert list(elsewhere.iterdir()) == []
+    assert (out / "summary.json").read_text() == "{}" and not (out / outputs.STAGING).exists()
+    # a staged set left by a kill (its list written) is rolled forward without the linked file
+    stage = out / outputs.STAGING
+    (stage / "wall").mkdir(parents=True)
+    (stage / "wall" / "plate.csv").write_text("x\n")
+    (stage / "summary.json").write_text('{"iteration": 3}')
+    (stage / outputs.MANIFEST).write_text('{"files": ["summary.json", "wall/plate.csv"], "iteration": 3}')
+    outputs.recover(out)
+    assert list(elsewhere.iterdir()) == []
+    assert (out / "summary.json").read_text() == '{"iteration": 3}'

@@ -133,6 +133,19 @@ def test_rotation_correction_barely_changes_the_flat_plate():
     assert cd[1] != cd[0]  # the option does act
 
 
+def test_rotation_correction_leaves_a_parallel_shear_flow_unchanged():
+    """In a parallel shear flow (the fully developed periodic channel, cases/channel_turbulent.toml
+    at Re_tau ~ 180) S = Omega and D S_ij / Dt = 0, so r* = 1, r~ = 0 and f_r1 = 1 exactly (Spalart &
+    Shur 1997, Aerosp. Sci. Technol. 1, 297-302; from memory): the friction and the velocity must
+    be those of plain Spalart-Allmaras to 1e-6 (the flat plate above is not parallel: 0.11 %)."""
+    base = fa.load_case(ROOT / "cases" / "channel_turbulent.toml").replace({"fluid.viscosity": 2.0 / 5600})
+    runs = [fa.solve(base.set("model.sa_rotation_curvature", rc)) for rc in (False, True)]
+    assert all(r.converged for r in runs)
+    cd = [r.summary()["walls"]["lower_wall"]["forces"]["Cd"] for r in runs]
+    assert cd[1] == pytest.approx(cd[0], rel=1e-6)
+    assert np.max(np.abs(runs[1].velocity - runs[0].velocity)) < 1e-6 * np.max(np.abs(runs[0].velocity))
+
+
 @pytest.mark.slow
 def test_rotation_correction_raises_the_concave_wall_friction_in_a_bend():
     """cases/curved_channel.toml (180-degree bend, centreline radius 5 W): the concave (outer) wall
