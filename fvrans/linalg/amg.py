@@ -17,6 +17,7 @@ one per thread, each exactly as ``solve`` would one after the other.
 from __future__ import annotations
 
 import logging
+import os
 import warnings
 from concurrent.futures import ThreadPoolExecutor
 
@@ -32,11 +33,21 @@ _pool: ThreadPoolExecutor | None = None
 
 
 def _second_thread() -> ThreadPoolExecutor:
-    """One worker thread for the second system of ``AmgKrylovSolver.solve_pair`` (made once)."""
+    """One worker thread for the second system of ``AmgKrylovSolver.solve_pair`` (made once per
+    process: a forked child, which has no copy of the thread, makes its own)."""
     global _pool
     if _pool is None:
         _pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="fvrans-amg")
     return _pool
+
+
+def _forget_pool() -> None:
+    global _pool
+    _pool = None
+
+
+if hasattr(os, "register_at_fork"):
+    os.register_at_fork(after_in_child=_forget_pool)
 
 
 def _stack_csr(mats: list[sp.csr_matrix]) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
