@@ -267,7 +267,7 @@ class SolverSettings:
     checkpoint_every: int = 0
     conservative_start: bool = True
     turbulence_cfl: float = 20.0
-    #: threads of the parallel kernels; 0: the FVRANS_THREADS variable, else every core (fvrans.jit)
+    #: threads of the parallel kernels; 0: the FVRANS_THREADS variable, else every idle core (fvrans.jit)
     threads: int = 0
 
     def __post_init__(self) -> None:

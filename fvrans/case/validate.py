@@ -854,7 +854,7 @@ def _solver(ctx: _Ctx, data: Any, turbulence: str = "none") -> S.SolverSettings:
         turbulence_cfl=t.number("turbulence_cfl", 20.0, NON_NEGATIVE,
                                 "the CFL number of the turbulence pseudo-time steps; 0 turns them off"),
         threads=t.integer("threads", 0, NON_NEGATIVE,
-                          "threads of the numerical kernels; 0 takes FVRANS_THREADS or every core"),
+                          "threads of the numerical kernels; 0 takes FVRANS_THREADS or every idle core"),
     )
 
 

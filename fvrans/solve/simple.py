@@ -191,7 +191,7 @@ class SimpleSolver:
         self.ctl = controls or SolverControls()
         self.model = model if model is not None else TurbulenceModel()
         #: threads of the parallel kernels (``fvrans.jit.set_threads``: ``controls.threads``, else
-        #: FVRANS_THREADS, else every core); with two, the velocity components are solved at once
+        #: FVRANS_THREADS, else every idle core); with two, the velocity components are solved at once
         self.threads = set_threads(self.ctl.threads)
         nc, nf, ni = mesh.n_cells, mesh.n_faces, mesh.n_internal_faces
         self.nc, self.nf, self.ni = nc, nf, ni
