@@ -7,7 +7,7 @@ from numba import njit, prange
 from fvrans.jit import PARALLEL_MIN_CELLS as PAR_MIN
 
 
-@njit(cache=True, nogil=True)
+@njit(cache=True, nogil=True, inline="always")
 def _refill_row(c, indptr, cf_ptr, cf_face, diag_pos, owner_pos, neigh_pos, diag, off_owner, off_neighbour, data):
     for k in range(indptr[c], indptr[c + 1]):
         data[k] = 0.0

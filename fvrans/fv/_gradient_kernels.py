@@ -61,7 +61,7 @@ def lsq_matrices(owner, neighbour, nfi, delta, n_cells, minv, wd):
     return bad
 
 
-@njit(cache=True, nogil=True)
+@njit(cache=True, nogil=True, inline="always")
 def _lsq_cell(c, owner, neighbour, nfi, cf_ptr, cf_face, wd, minv, phi, phi_b, out):
     bx = 0.0
     by = 0.0
@@ -95,7 +95,7 @@ def lsq_gradient(owner, neighbour, nfi, cf_ptr, cf_face, wd, minv, phi, phi_b, o
             _lsq_cell(c, owner, neighbour, nfi, cf_ptr, cf_face, wd, minv, phi, phi_b, out)
 
 
-@njit(cache=True, nogil=True)
+@njit(cache=True, nogil=True, inline="always")
 def _green_gauss_cell(c, owner, neighbour, nfi, cf_ptr, cf_face, sf, weight, skew, area, phi, phi_b, g_old,
                       use_skew, out):
     sx = 0.0

@@ -123,7 +123,7 @@ def net_source(nt, nu, omega, d, use_ft2, fr1=1.0):
     return prod - dc * nt
 
 
-@njit(cache=True, nogil=True)
+@njit(cache=True, nogil=True, inline="always")
 def _sources_cell(c, nt, nu, rho, vol, d, grad_u, grad_nt, use_ft2, fr1, diag, source):
     omega = abs(grad_u[c, 1, 0] - grad_u[c, 0, 1])
     gx = grad_nt[c, 0]

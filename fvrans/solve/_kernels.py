@@ -21,7 +21,7 @@ SYMMETRY = 3
 FREESTREAM = 4
 
 
-@njit(cache=True, nogil=True)
+@njit(cache=True, nogil=True, inline="always")
 def _momentum_face(f, owner, neigh, S, dcoef, kvec, w, xf, xc, shift, F, mu_f, gu, gc, second_order, off_own, off_nei,
                    face_work):
     P = owner[f]
@@ -59,7 +59,7 @@ def _momentum_face(f, owner, neigh, S, dcoef, kvec, w, xf, xc, shift, F, mu_f, g
     face_work[f, 1] = sv
 
 
-@njit(cache=True, nogil=True)
+@njit(cache=True, nogil=True, inline="always")
 def _momentum_cell(P, n_int, cf_ptr, cf_face, S, dcoef, kvec, xf, xc, F, mu_f, u, gu, gc, gwall, bkind, bvel,
                    second_order, off_own, off_nei, face_work, diag_u, diag_v, bu, bv):
     du = 0.0
@@ -189,7 +189,7 @@ def assemble_momentum(
                            second_order, off_own, off_nei, face_work, diag_u, diag_v, bu, bv)
 
 
-@njit(cache=True, nogil=True)
+@njit(cache=True, nogil=True, inline="always")
 def _rhie_chow_face(
     f, owner, neigh, n_int, S, dcoef, kvec, w, skew, delta, gu, hu, quadratic, rho, hbya, rau, p, gp, pb, bkind, bvel,
     beta, F_old, F,
@@ -295,7 +295,7 @@ def rhie_chow_fluxes(
                             p, gp, pb, bkind, bvel, beta, F_old, F)
 
 
-@njit(cache=True, nogil=True)
+@njit(cache=True, nogil=True, inline="always")
 def _pressure_correction_cell(c, owner, neigh, n_int, dcoef, rho, dp, bkind, F, diag, off, rhs, cf_ptr, cf_face):
     d = 0.0
     r = 0.0
@@ -361,7 +361,7 @@ def correct_fluxes(owner, neigh, n_int, dcoef, rho, dp, bkind, pc, F):
             _correct_flux(f, owner, neigh, n_int, dcoef, rho, dp, bkind, pc, F)
 
 
-@njit(cache=True, nogil=True)
+@njit(cache=True, nogil=True, inline="always")
 def _correct_flux(f, owner, neigh, n_int, dcoef, rho, dp, bkind, pc, F):
     if f < n_int:
         P = owner[f]
@@ -430,7 +430,7 @@ def boundary_pressure(owner, n_int, delta, bkind, bp, p, gp, pb):
             pb[b] = p[P] + gp[P, 0] * delta[n_int + b, 0] + gp[P, 1] * delta[n_int + b, 1]
 
 
-@njit(cache=True, nogil=True)
+@njit(cache=True, nogil=True, inline="always")
 def _momentum_sources_cell(c, owner, neigh, vol, body, gp, u, alpha, pt, diag_u, diag_v, off_own, off_nei, bu, bv,
                            b_np, a_rel, rhs_u, rhs_v, work, cf_ptr, cf_face):
     V = vol[c]
@@ -509,7 +509,7 @@ def momentum_sources(
             mag += m
     return ru, rv, mag
 
-@njit(cache=True, nogil=True)
+@njit(cache=True, nogil=True, inline="always")
 def _interpolation_cell(c, owner, neigh, vol, off_own, off_nei, diag_u, diag_v, a_rel, b_np, us, vs, simplec, hbya,
                         rau, beta, dp, work, cf_ptr, cf_face):
     w0 = 0.0
