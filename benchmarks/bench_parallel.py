@@ -9,7 +9,8 @@
    also shows the 1-minute load average of the machine when it started: on a shared machine,
    where other processes hold the cores, two threads can be much slower than one (each parallel
    loop waits for the scheduler to give its second thread a core).
-2. Peak memory per cell of a run on a generated cavity of ~400k cells (``--cells``), above the
+2. Peak memory per cell of a run on a generated cavity and a generated flat plate (Spalart-Allmaras)
+   of ~400k cells (``--cells``), above the
    interpreter's baseline (numpy, scipy, pyamg, numba and the compiled kernels loaded): the peak
    resident set size (``resource.getrusage``, ``ru_maxrss``) after ``--memory-iterations``
    iterations less the one before the mesh is made; and the peak of the arrays numpy allocates
@@ -92,21 +93,30 @@ def threads_table(names: list[str], iterations: int) -> None:
                   f"{wall / its / triad:11.0f} {load:5.1f} {diff:>15s}")
 
 
-def _child_memory(cells: int, iterations: int) -> dict:
-    """In a fresh process: peak memory of a cavity run of about ``cells`` cells."""
+def _memory_mesh(kind: str, cells: int):
+    """A generated mesh of about ``cells`` cells: the cavity, or the flat plate (the fine plate's
+    distributions, 68 + 204 x 192 cells, scaled up)."""
+    from fvrans.mesh.generate import cavity, flat_plate
+
+    if kind == "cavity":
+        return cavity(int(round(cells**0.5)))
+    k = (cells / (272 * 192)) ** 0.5
+    return flat_plate(int(round(204 * k)), int(round(68 * k)), int(round(192 * k)), 1e-6)
+
+
+def _child_memory(kind: str, cells: int, iterations: int) -> dict:
+    """In a fresh process: peak memory of a run of about ``cells`` cells (``kind``: cavity, plate)."""
     import tracemalloc
 
     import fvrans.api as fa
-    from fvrans.mesh.generate import cavity
 
-    case = fa.load_case(ROOT / "cases" / "cavity_re100.toml")
+    case = fa.load_case(ROOT / "cases" / (CASES[kind]))
     small = case.replace({"solver.max_iterations": 3, "output.write_fields": False})
-    fa.solve(fa.prepare(small, cavity(16)))  # imports and kernels loaded: the baseline
+    fa.solve(fa.prepare(small, _memory_mesh(kind, 4000)))  # imports and kernels loaded: the baseline
     base_rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
     tracemalloc.start()
     t0 = time.perf_counter()
-    n = int(round(cells**0.5))
-    mesh = cavity(n)
+    mesh = _memory_mesh(kind, cells)
     run = case.replace({"solver.max_iterations": iterations, "solver.tolerance": 1e-14, "monitor.settle": False})
     r = fa.solve(fa.prepare(run, mesh))
     seconds = time.perf_counter() - t0
@@ -117,12 +127,12 @@ def _child_memory(cells: int, iterations: int) -> dict:
             "peak_rss": peak_rss, "traced_peak": traced_peak}
 
 
-def memory_table(cells: int, iterations: int) -> None:
-    out = subprocess.run([sys.executable, __file__, "--child-memory", str(cells), str(iterations)],
+def memory_table(kind: str, cells: int, iterations: int) -> None:
+    out = subprocess.run([sys.executable, __file__, "--child-memory", kind, str(cells), str(iterations)],
                          capture_output=True, text=True, check=True)
     m = json.loads(out.stdout.strip().splitlines()[-1])
     nc = m["cells"]
-    print(f"\n2. memory: cavity of {nc} cells, {m['iterations']} iterations ({m['seconds']:.0f} s incl. mesh and "
+    print(f"\n2. memory: {kind} of {nc} cells, {m['iterations']} iterations ({m['seconds']:.0f} s incl. mesh and "
           "geometry), in a fresh process")
     print(f"   baseline RSS (interpreter, libraries, kernels): {m['base_rss'] / 2**20:.0f} MB")
     print(f"   peak RSS {m['peak_rss'] / 2**20:.0f} MB: above the baseline "
@@ -168,14 +178,16 @@ def main() -> None:
     ap.add_argument("--cases", nargs="*", default=list(CASES), choices=list(CASES))
     ap.add_argument("--cells", type=int, default=400_000)
     ap.add_argument("--memory-iterations", type=int, default=5)
+    ap.add_argument("--memory-cases", nargs="*", default=["cavity", "plate"], choices=["cavity", "plate"])
     ap.add_argument("--skip-threads", action="store_true")
     ap.add_argument("--skip-memory", action="store_true")
     ap.add_argument("--skip-compile", action="store_true")
-    ap.add_argument("--child-memory", nargs=2, type=int, help=argparse.SUPPRESS)
+    ap.add_argument("--child-memory", nargs=3, help=argparse.SUPPRESS)
     ap.add_argument("--child-compile", action="store_true", help=argparse.SUPPRESS)
     a = ap.parse_args()
     if a.child_memory:
-        print(json.dumps(_child_memory(*a.child_memory)))
+        kind, cells, iterations = a.child_memory
+        print(json.dumps(_child_memory(kind, int(cells), int(iterations))))
         return
     if a.child_compile:
         print(json.dumps(_child_compile()))
@@ -185,7 +197,8 @@ def main() -> None:
     if not a.skip_threads:
         threads_table(a.cases, a.iterations)
     if not a.skip_memory:
-        memory_table(a.cells, a.memory_iterations)
+        for kind in a.memory_cases:
+            memory_table(kind, a.cells, a.memory_iterations)
     if not a.skip_compile:
         compile_table()
 

@@ -60,13 +60,13 @@ def _stack_csr(mats: list[sp.csr_matrix]) -> tuple[np.ndarray, np.ndarray, np.nd
         m.sort_indices()
         pofs.append(po)
         ptrs.append(m.indptr.astype(np.int64) + nz)
-        idxs.append(m.indices.astype(np.int64))
+        idxs.append(m.indices.astype(np.int32))  # column within the level: 4 bytes (of 16 per entry)
         dats.append(m.data.astype(np.float64))
         nz += m.nnz
         po += m.shape[0] + 1
     if not mats:
         z = np.zeros(1, dtype=np.int64)
-        return z, z.copy(), np.zeros(0, dtype=np.int64), np.zeros(0)
+        return z, z.copy(), np.zeros(0, dtype=np.int32), np.zeros(0)
     return np.concatenate(ptrs), np.asarray(pofs, dtype=np.int64), np.concatenate(idxs), np.concatenate(dats)
 
 
