@@ -267,6 +267,8 @@ class SolverSettings:
     checkpoint_every: int = 0
     conservative_start: bool = True
     turbulence_cfl: float = 20.0
+    #: threads of the parallel kernels; 0: the FVRANS_THREADS variable, else every idle core (fvrans.jit)
+    threads: int = 0
 
     def __post_init__(self) -> None:
         if self.relax_velocity is None:
@@ -579,6 +581,7 @@ def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
             "checkpoint_every": s.checkpoint_every,
             "conservative_start": s.conservative_start,
             "turbulence_cfl": s.turbulence_cfl,
+            "threads": s.threads,
         },
         "output": output,
     }

@@ -48,6 +48,7 @@ TABLE_KEYS: dict[str, tuple[str, ...]] = {
         "momentum_sweeps", "turbulence_solver", "turbulence_tolerance", "turbulence_max_iterations",
         "amg_rebuild_every",
         "divergence_factor", "checkpoint_every", "conservative_start", "turbulence_cfl",
+        "threads",
     ),
     "output": (
         "wall_patches", "reference_velocity", "reference_pressure", "reference_length", "write_fields",
@@ -852,6 +853,8 @@ def _solver(ctx: _Ctx, data: Any, turbulence: str = "none") -> S.SolverSettings:
         conservative_start=t.boolean("conservative_start", True),
         turbulence_cfl=t.number("turbulence_cfl", 20.0, NON_NEGATIVE,
                                 "the CFL number of the turbulence pseudo-time steps; 0 turns them off"),
+        threads=t.integer("threads", 0, NON_NEGATIVE,
+                          "threads of the numerical kernels; 0 takes FVRANS_THREADS or every idle core"),
     )
 
 
