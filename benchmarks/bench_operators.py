@@ -79,11 +79,11 @@ def run(n: int, repeats: int) -> list[tuple[str, float, float]]:
     kernels = {
         "triad a = b + s*c": triad,
         "gradient least squares": lambda: gk.lsq_gradient(
-            own, nb, nfi, lsq.weighted_delta, lsq.inverse_matrix, phi, phi_b, out
+            own, nb, nfi, *m.cell_faces, lsq.weighted_delta, lsq.inverse_matrix, phi, phi_b, out
         ),
         "gradient Green-Gauss (1 pass, skew)": lambda: gk.green_gauss_pass(
-            own, nb, nfi, g.face_area_vector, g.face_weight, g.face_skew, g.cell_area, phi, phi_b, grad,
-            True, work,
+            own, nb, nfi, *m.cell_faces, g.face_area_vector, g.face_weight, g.face_skew, g.cell_area, phi, phi_b,
+            grad, True, work,
         ),
         "diffusion + non-orth. correction": lambda: ok.diffusion(
             own, nb, nfi, g.face_area_vector, g.face_delta, g.face_weight, gamma_f, bc.kind, bc.value, grad,
@@ -94,7 +94,8 @@ def run(n: int, repeats: int) -> list[tuple[str, float, float]]:
             co.diag, co.off_owner, co.off_neighbour, co.source,
         ),
         "CSR refill": lambda: ak.csr_refill(
-            asm.diag_pos, asm.owner_pos, asm.neigh_pos, co.diag, co.off_owner, co.off_neighbour, asm._data
+            asm._indptr, *m.cell_faces, asm.diag_pos, asm.owner_pos, asm.neigh_pos, co.diag, co.off_owner,
+            co.off_neighbour, asm._data,
         ),
         "residual b - A phi": lambda: ak.residual(
             own, nb, co.diag, co.off_owner, co.off_neighbour, co.source, phi, res_out

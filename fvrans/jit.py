@@ -1,14 +1,22 @@
-"""Watching numba compile the kernels: whether a run compiles at all, and how long it takes.
+"""Watching numba compile the kernels (whether a run compiles at all, and how long it takes), and
+the number of threads the kernels run on.
 
 The kernels are compiled on their first call and cached on disk (``@njit(cache=True)``); a
 kernel loaded from the cache is not compiled again. numba announces each real compilation with
 its ``numba:compile`` event (``numba.core.event``; loads from the cache raise none), so
 :class:`CompileWatch` knows for certain that this run compiles (a cold cache: first run, new
 fvrans version, new numba) and adds up the seconds the outermost compilations take.
+
+Threads: the kernels marked ``parallel=True`` spread their large loops over ``threads()`` threads;
+:func:`set_threads` chooses how many: the ``[solver] threads`` key of a case, else the environment
+variable ``FVRANS_THREADS``, else every core that other processes leave idle (see
+:func:`idle_cores`), at most the cores numba sees (``NUMBA_NUM_THREADS``).
 """
 
 from __future__ import annotations
 
+import math
+import os
 import threading
 import time
 from collections.abc import Callable
@@ -17,6 +25,86 @@ from typing import Any
 #: what a run says once when it starts compiling (the terminal would otherwise sit silent)
 COMPILE_MESSAGE = ("compiling the numerical kernels: this run is the first (or the first since fvrans or numba "
                    "changed); they are cached for later runs, and the compile time is kept out of the solve time")
+
+
+#: the environment variable that sets the number of threads when the case does not
+THREADS_VARIABLE = "FVRANS_THREADS"
+#: loops over fewer cells (rows, faces) than this run on one thread: starting the threads of a
+#: parallel loop costs ~5-20 us on an idle core and up to milliseconds when another process holds
+#: it, a memory-bound cell ~5-20 ns (numba freezes these into the cached kernels: clear the cache,
+#: or touch the kernel modules, after changing them)
+PARALLEL_MIN_CELLS = 16384
+#: the same for loops with much work per cell (model sources with exp / pow, ~100 ns per cell)
+PARALLEL_MIN_HEAVY = 2048
+
+
+def available_threads() -> int:
+    """The most threads the kernels can use: the cores numba found (``NUMBA_NUM_THREADS``)."""
+    import numba
+
+    return int(numba.config.NUMBA_NUM_THREADS)
+
+
+def threads() -> int:
+    """The number of threads the parallel kernels use now (in the calling thread)."""
+    import numba
+
+    return int(numba.get_num_threads())
+
+
+def idle_cores() -> int:
+    """Cores not busy with other processes: the cores numba sees less the 1-minute load average
+    that is not this process's own (its CPU share since fvrans was imported, at most 1, times the
+    part of the minute it has been running), at least 1.
+
+    A parallel loop waits for its slowest thread: where another process holds a core, each of the
+    hundreds of loops of an iteration waits for the scheduler to hand the core back (a few ms), and
+    two threads ran 6-8 times slower than one (channel of 17k cells, load average 5 on 2 cores);
+    on an idle core the wait is ~10 us."""
+    most = available_threads()
+    try:
+        load = os.getloadavg()[0]
+    except (AttributeError, OSError):  # pragma: no cover - not on this platform
+        return most
+    elapsed = max(time.perf_counter() - _STARTED, 1e-9)
+    own = min(1.0, (time.process_time() - _STARTED_CPU) / elapsed) * (1.0 - math.exp(-elapsed / 60.0))
+    return max(1, min(most, int(most - max(load - own, 0.0) + 0.5)))
+
+
+_STARTED = time.perf_counter()
+_STARTED_CPU = time.process_time()
+
+
+def requested_threads(n: int | None = None) -> int:
+    """The thread count asked for: ``n`` when positive, else ``FVRANS_THREADS`` when set and
+    positive, else :func:`idle_cores`; capped at :func:`available_threads`. A ``FVRANS_THREADS`` that is not
+    a whole number is refused (CaseError naming the variable: it is part of the run's input)."""
+    most = available_threads()
+    if n is None or int(n) <= 0:
+        text = os.environ.get(THREADS_VARIABLE, "").strip()
+        n = 0
+        if text:
+            try:
+                n = int(text)
+            except ValueError:
+                from fvrans.errors import CaseError
+
+                raise CaseError(
+                    f"environment variable {THREADS_VARIABLE}={text!r} is not a whole number: give the number of "
+                    f"threads (1 to {most}) or leave it unset to use every core"
+                ) from None
+    n = int(n)
+    return idle_cores() if n <= 0 else min(n, most)
+
+
+def set_threads(n: int | None = None) -> int:
+    """Make the parallel kernels use ``requested_threads(n)`` threads (in the calling thread, as
+    ``numba.set_num_threads``); returns that number."""
+    import numba
+
+    k = requested_threads(n)
+    numba.set_num_threads(k)
+    return k
 
 
 class CompileWatch:
@@ -75,4 +163,5 @@ class CompileWatch:
             self._listener = None
 
 
-__all__ = ["COMPILE_MESSAGE", "CompileWatch"]
+__all__ = ["COMPILE_MESSAGE", "PARALLEL_MIN_CELLS", "PARALLEL_MIN_HEAVY", "THREADS_VARIABLE", "CompileWatch",
+           "available_threads", "idle_cores", "requested_threads", "set_threads", "threads"]

@@ -271,6 +271,8 @@ class SolverSettings:
     turbulence_cfl: float = 20.0
     system_solver: str = "direct"
     system_tolerance: float = 0.01
+    #: threads of the parallel kernels; 0: the FVRANS_THREADS variable, else every idle core (fvrans.jit)
+    threads: int = 0
 
     def __post_init__(self) -> None:
         if self.relax_velocity is None:
@@ -585,6 +587,7 @@ def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
             "turbulence_cfl": s.turbulence_cfl,
             "system_solver": s.system_solver,
             "system_tolerance": s.system_tolerance,
+            "threads": s.threads,
         },
         "output": output,
     }

@@ -49,6 +49,7 @@ TABLE_KEYS: dict[str, tuple[str, ...]] = {
         "amg_rebuild_every",
         "divergence_factor", "checkpoint_every", "conservative_start", "turbulence_cfl",
         "system_solver", "system_tolerance",
+        "threads",
     ),
     "output": (
         "wall_patches", "reference_velocity", "reference_pressure", "reference_length", "write_fields",
@@ -859,6 +860,8 @@ def _solver(ctx: _Ctx, data: Any, turbulence: str = "none") -> S.SolverSettings:
                                 "the CFL number of the turbulence pseudo-time steps; 0 turns them off"),
         system_solver=t.choice("system_solver", S.SYSTEM_SOLVERS, "direct"),
         system_tolerance=t.number("system_tolerance", 0.01, OPEN_UNIT, "a relative tolerance"),
+        threads=t.integer("threads", 0, NON_NEGATIVE,
+                          "threads of the numerical kernels; 0 takes FVRANS_THREADS or every idle core"),
     )
 
 

@@ -2,20 +2,40 @@
 
 from __future__ import annotations
 
-from numba import njit
+from numba import njit, prange
+
+from fvrans.jit import PARALLEL_MIN_CELLS as PAR_MIN
 
 
-@njit(cache=True)
-def csr_refill(diag_pos, owner_pos, neigh_pos, diag, off_owner, off_neighbour, data):
-    """data[:] = 0, then add diag, owner-row and neighbour-row off-diagonals at their positions
-    (adding, not assigning, so two faces between the same pair of cells share one entry)."""
-    for k in range(data.shape[0]):
+@njit(cache=True, nogil=True, inline="always")
+def _refill_row(c, indptr, cf_ptr, cf_face, diag_pos, owner_pos, neigh_pos, diag, off_owner, off_neighbour, data):
+    for k in range(indptr[c], indptr[c + 1]):
         data[k] = 0.0
-    for c in range(diag_pos.shape[0]):
-        data[diag_pos[c]] += diag[c]
-    for f in range(owner_pos.shape[0]):
-        data[owner_pos[f]] += off_owner[f]
-        data[neigh_pos[f]] += off_neighbour[f]
+    data[diag_pos[c]] += diag[c]
+    for k in range(cf_ptr[c], cf_ptr[c + 1]):
+        f = cf_face[k]
+        if f >= 0:
+            if f < owner_pos.shape[0]:
+                data[owner_pos[f]] += off_owner[f]
+        else:
+            f = -1 - f
+            data[neigh_pos[f]] += off_neighbour[f]
+
+
+@njit(cache=True, nogil=True, parallel=True)
+def csr_refill(indptr, cf_ptr, cf_face, diag_pos, owner_pos, neigh_pos, diag, off_owner, off_neighbour, data):
+    """Row by row (rows on every thread for large meshes): data = 0, then add the diagonal and
+    the face off-diagonals of the row's cell at their positions, in face order (``Mesh.cell_faces``;
+    adding, not assigning, so two faces between the same pair of cells share one entry)."""
+    nc = diag_pos.shape[0]
+    if nc >= PAR_MIN:
+        for c in prange(nc):
+            _refill_row(c, indptr, cf_ptr, cf_face, diag_pos, owner_pos, neigh_pos, diag, off_owner, off_neighbour,
+                        data)
+    else:
+        for c in range(nc):
+            _refill_row(c, indptr, cf_ptr, cf_face, diag_pos, owner_pos, neigh_pos, diag, off_owner, off_neighbour,
+                        data)
 
 
 @njit(cache=True)

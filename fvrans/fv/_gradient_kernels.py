@@ -10,7 +10,9 @@ vector from that point to the face centre.
 from __future__ import annotations
 
 import numpy as np
-from numba import njit
+from numba import njit, prange
+
+from fvrans.jit import PARALLEL_MIN_CELLS as PAR_MIN
 
 
 @njit(cache=True)
@@ -59,73 +61,84 @@ def lsq_matrices(owner, neighbour, nfi, delta, n_cells, minv, wd):
     return bad
 
 
-@njit(cache=True)
-def lsq_gradient(owner, neighbour, nfi, wd, minv, phi, phi_b, out):
+@njit(cache=True, nogil=True, inline="always")
+def _lsq_cell(c, owner, neighbour, nfi, cf_ptr, cf_face, wd, minv, phi, phi_b, out):
+    bx = 0.0
+    by = 0.0
+    for k in range(cf_ptr[c], cf_ptr[c + 1]):
+        f = cf_face[k]
+        if f < 0:
+            f = -1 - f  # the neighbour sees the same vector and difference as the owner
+        if f < nfi:
+            dp = phi[neighbour[f]] - phi[owner[f]]
+        else:
+            dp = phi_b[f - nfi] - phi[c]
+        bx += wd[f, 0] * dp
+        by += wd[f, 1] * dp
+    out[c, 0] = minv[c, 0] * bx + minv[c, 1] * by
+    out[c, 1] = minv[c, 1] * bx + minv[c, 2] * by
+
+
+@njit(cache=True, nogil=True, parallel=True)
+def lsq_gradient(owner, neighbour, nfi, cf_ptr, cf_face, wd, minv, phi, phi_b, out):
     """Weighted least-squares gradient: g_c = M_c^-1 sum_j (d_j/|d_j|^2)(phi_j - phi_c).
 
     For an internal face both cells see the same vector d (phi_N - phi_O)/|d|^2, since the
-    neighbour's offset is -d and its difference -(phi_N - phi_O)."""
+    neighbour's offset is -d and its difference -(phi_N - phi_O). Summed per cell over its faces
+    (``Mesh.cell_faces``: ``cf_ptr``, ``cf_face``), on every thread for large meshes."""
     nc = phi.shape[0]
-    nf = owner.shape[0]
-    for c in range(nc):
-        out[c, 0] = 0.0
-        out[c, 1] = 0.0
-    for f in range(nfi):
-        o = owner[f]
-        n = neighbour[f]
-        dp = phi[n] - phi[o]
-        bx = wd[f, 0] * dp
-        by = wd[f, 1] * dp
-        out[o, 0] += bx
-        out[o, 1] += by
-        out[n, 0] += bx
-        out[n, 1] += by
-    for f in range(nfi, nf):
-        o = owner[f]
-        dp = phi_b[f - nfi] - phi[o]
-        out[o, 0] += wd[f, 0] * dp
-        out[o, 1] += wd[f, 1] * dp
-    for c in range(nc):
-        bx = out[c, 0]
-        by = out[c, 1]
-        out[c, 0] = minv[c, 0] * bx + minv[c, 1] * by
-        out[c, 1] = minv[c, 1] * bx + minv[c, 2] * by
+    if nc >= PAR_MIN:
+        for c in prange(nc):
+            _lsq_cell(c, owner, neighbour, nfi, cf_ptr, cf_face, wd, minv, phi, phi_b, out)
+    else:
+        for c in range(nc):
+            _lsq_cell(c, owner, neighbour, nfi, cf_ptr, cf_face, wd, minv, phi, phi_b, out)
 
 
-@njit(cache=True)
-def green_gauss_pass(owner, neighbour, nfi, sf, weight, skew, area, phi, phi_b, g_old, use_skew, out):
+@njit(cache=True, nogil=True, inline="always")
+def _green_gauss_cell(c, owner, neighbour, nfi, cf_ptr, cf_face, sf, weight, skew, area, phi, phi_b, g_old,
+                      use_skew, out):
+    sx = 0.0
+    sy = 0.0
+    for k in range(cf_ptr[c], cf_ptr[c + 1]):
+        f = cf_face[k]
+        sign = 1.0
+        if f < 0:
+            f = -1 - f
+            sign = -1.0
+        if f < nfi:
+            o = owner[f]
+            n = neighbour[f]
+            w = weight[f]
+            pf = w * phi[o] + (1.0 - w) * phi[n]
+            if use_skew:
+                gx = w * g_old[o, 0] + (1.0 - w) * g_old[n, 0]
+                gy = w * g_old[o, 1] + (1.0 - w) * g_old[n, 1]
+                pf += skew[f, 0] * gx + skew[f, 1] * gy
+        else:
+            pf = phi_b[f - nfi]
+        sx += sign * (pf * sf[f, 0])
+        sy += sign * (pf * sf[f, 1])
+    r = 1.0 / area[c]
+    out[c, 0] = sx * r
+    out[c, 1] = sy * r
+
+
+@njit(cache=True, nogil=True, parallel=True)
+def green_gauss_pass(owner, neighbour, nfi, cf_ptr, cf_face, sf, weight, skew, area, phi, phi_b, g_old, use_skew,
+                     out):
     """One Green-Gauss pass: g_c = (1/V_c) sum_f phi_f S_f with
     phi_f = w phi_O + (1-w) phi_N [+ (x_f - x_ip) . (w g_O + (1-w) g_N) if use_skew], phi_b on
-    the boundary. ``out`` must not be ``g_old``."""
+    the boundary; summed per cell over ``Mesh.cell_faces``. ``out`` must not be ``g_old``."""
     nc = phi.shape[0]
-    nf = owner.shape[0]
-    for c in range(nc):
-        out[c, 0] = 0.0
-        out[c, 1] = 0.0
-    for f in range(nfi):
-        o = owner[f]
-        n = neighbour[f]
-        w = weight[f]
-        pf = w * phi[o] + (1.0 - w) * phi[n]
-        if use_skew:
-            gx = w * g_old[o, 0] + (1.0 - w) * g_old[n, 0]
-            gy = w * g_old[o, 1] + (1.0 - w) * g_old[n, 1]
-            pf += skew[f, 0] * gx + skew[f, 1] * gy
-        fx = pf * sf[f, 0]
-        fy = pf * sf[f, 1]
-        out[o, 0] += fx
-        out[o, 1] += fy
-        out[n, 0] -= fx
-        out[n, 1] -= fy
-    for f in range(nfi, nf):
-        o = owner[f]
-        pb = phi_b[f - nfi]
-        out[o, 0] += pb * sf[f, 0]
-        out[o, 1] += pb * sf[f, 1]
-    for c in range(nc):
-        r = 1.0 / area[c]
-        out[c, 0] *= r
-        out[c, 1] *= r
+    if nc >= PAR_MIN:
+        for c in prange(nc):
+            _green_gauss_cell(c, owner, neighbour, nfi, cf_ptr, cf_face, sf, weight, skew, area, phi, phi_b,
+                              g_old, use_skew, out)
+    else:
+        for c in range(nc):
+            _green_gauss_cell(c, owner, neighbour, nfi, cf_ptr, cf_face, sf, weight, skew, area, phi, phi_b,
+                              g_old, use_skew, out)
 
 
 @njit(cache=True)

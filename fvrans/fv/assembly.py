@@ -120,6 +120,7 @@ class CsrAssembler:
         self._data = self._matrix.data
         self._indices = self._matrix.indices
         self._indptr = self._matrix.indptr
+        self._cf_ptr, self._cf_face = mesh.cell_faces
 
     @property
     def nnz(self) -> int:
@@ -143,7 +144,7 @@ class CsrAssembler:
                 f"({self.n_internal_faces},), got {diag.shape}, {off_owner.shape}, {off_neighbour.shape}"
             )
         _k.csr_refill(
-            self.diag_pos, self.owner_pos, self.neigh_pos,
+            self._indptr, self._cf_ptr, self._cf_face, self.diag_pos, self.owner_pos, self.neigh_pos,
             np.ascontiguousarray(diag, dtype=np.float64),
             np.ascontiguousarray(off_owner, dtype=np.float64),
             np.ascontiguousarray(off_neighbour, dtype=np.float64),

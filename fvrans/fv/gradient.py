@@ -36,6 +36,7 @@ class _CellGradient:
         self._owner = mesh.face_owner
         self._neighbour = mesh.face_neighbour
         self._nfi = mesh.n_internal_faces
+        self._cf_ptr, self._cf_face = mesh.cell_faces
 
     def _scalar(self, phi: np.ndarray, phi_b: np.ndarray, out: np.ndarray) -> None:
         raise NotImplementedError
@@ -83,7 +84,8 @@ class LeastSquaresGradient(_CellGradient):
 
     def _scalar(self, phi: np.ndarray, phi_b: np.ndarray, out: np.ndarray) -> None:
         _k.lsq_gradient(
-            self._owner, self._neighbour, self._nfi, self.weighted_delta, self.inverse_matrix, phi, phi_b, out
+            self._owner, self._neighbour, self._nfi, self._cf_ptr, self._cf_face, self.weighted_delta,
+            self.inverse_matrix, phi, phi_b, out,
         )
 
 
@@ -110,7 +112,8 @@ class GreenGaussGradient(_CellGradient):
     def _scalar(self, phi: np.ndarray, phi_b: np.ndarray, out: np.ndarray) -> None:
         # 1 + skew_corrections passes alternating between two buffers; the last writes ``out``
         cur, other = (out, self._work) if self.skew_corrections % 2 == 0 else (self._work, out)
-        args = (self._owner, self._neighbour, self._nfi, self._sf, self._w, self._skew, self._area)
+        args = (self._owner, self._neighbour, self._nfi, self._cf_ptr, self._cf_face, self._sf, self._w, self._skew,
+                self._area)
         args = args + (phi, phi_b)
         _k.green_gauss_pass(*args, other, False, cur)
         for _ in range(self.skew_corrections):
@@ -149,8 +152,8 @@ class GaussLeastSquaresGradient(_CellGradient):
     def _scalar(self, phi: np.ndarray, phi_b: np.ndarray, out: np.ndarray) -> None:
         self._lsq._scalar(phi, phi_b, self._work)
         _k.green_gauss_pass(
-            self._owner, self._neighbour, self._nfi, self._sf, self._w, self._skew, self._area,
-            phi, phi_b, self._work, True, out,
+            self._owner, self._neighbour, self._nfi, self._cf_ptr, self._cf_face, self._sf, self._w, self._skew,
+            self._area, phi, phi_b, self._work, True, out,
         )
 
     def from_least_squares(
@@ -167,9 +170,9 @@ class GaussLeastSquaresGradient(_CellGradient):
         tmp = np.empty((nc, 2))
         for j in range(m.shape[1]):
             _k.green_gauss_pass(
-                self._owner, self._neighbour, self._nfi, self._sf, self._w, self._skew, self._area,
-                np.ascontiguousarray(m[:, j]), np.ascontiguousarray(mb[:, j]), np.ascontiguousarray(gl[:, j, :]),
-                True, tmp,
+                self._owner, self._neighbour, self._nfi, self._cf_ptr, self._cf_face, self._sf, self._w,
+                self._skew, self._area, np.ascontiguousarray(m[:, j]), np.ascontiguousarray(mb[:, j]),
+                np.ascontiguousarray(gl[:, j, :]), True, tmp,
             )
             res[:, j, :] = tmp
         return res.reshape(phi.shape + (2,))

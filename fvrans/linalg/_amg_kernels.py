@@ -10,12 +10,15 @@ with a dense (pseudo-)inverse ``cinv`` (n_coarse x n_coarse, row-major).
 from __future__ import annotations
 
 import numpy as np
-from numba import njit
+from numba import njit, prange
+
+from fvrans.jit import PARALLEL_MIN_CELLS as PAR_MIN
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _smooth(ptr, po, idx, dat, dinv, x, b, vo, n, forward):
-    """One Gauss-Seidel sweep on level rows [vo, vo + n), forward or backward."""
+    """One Gauss-Seidel sweep on level rows [vo, vo + n), forward or backward (serial: each row
+    uses the rows updated before it)."""
     for ii in range(n):
         i = ii if forward else n - 1 - ii
         acc = b[vo + i]
@@ -24,34 +27,69 @@ def _smooth(ptr, po, idx, dat, dinv, x, b, vo, n, forward):
         x[vo + i] += acc * dinv[vo + i]
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True, parallel=True)
+def _fill(x, vo, n, value, par):
+    """x[vo:vo+n] = value."""
+    if par and n >= PAR_MIN:
+        for i in prange(n):
+            x[vo + i] = value
+    else:
+        for i in range(n):
+            x[vo + i] = value
+
+
+@njit(cache=True, nogil=True, parallel=True)
+def _residual(ptr, po, idx, dat, x, xo, b, bo, r, ro, n, par):
+    """r[ro + i] = b[bo + i] - sum_k dat[k] x[xo + idx[k]] over the rows of the block at ``po``."""
+    if par and n >= PAR_MIN:
+        for i in prange(n):
+            acc = b[bo + i]
+            for k in range(ptr[po + i], ptr[po + i + 1]):
+                acc -= dat[k] * x[xo + idx[k]]
+            r[ro + i] = acc
+    else:
+        for i in range(n):
+            acc = b[bo + i]
+            for k in range(ptr[po + i], ptr[po + i + 1]):
+                acc -= dat[k] * x[xo + idx[k]]
+            r[ro + i] = acc
+
+
+@njit(cache=True, nogil=True, parallel=True)
+def _apply_add(ptr, po, idx, dat, x, xo, y, yo, n, add, par):
+    """y[yo + i] (+)= sum_k dat[k] x[xo + idx[k]] (restriction, prolongation)."""
+    if par and n >= PAR_MIN:
+        for i in prange(n):
+            acc = 0.0
+            for k in range(ptr[po + i], ptr[po + i + 1]):
+                acc += dat[k] * x[xo + idx[k]]
+            y[yo + i] = y[yo + i] + acc if add else acc
+    else:
+        for i in range(n):
+            acc = 0.0
+            for k in range(ptr[po + i], ptr[po + i + 1]):
+                acc += dat[k] * x[xo + idx[k]]
+            y[yo + i] = y[yo + i] + acc if add else acc
+
+
+@njit(cache=True, nogil=True)
 def vcycle(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_idx, p_dat,
-           r_ptr, r_pofs, r_idx, r_dat, cinv, sweeps, x, b, r):
+           r_ptr, r_pofs, r_idx, r_dat, cinv, sweeps, x, b, r, par):
     """x = M^-1 b on level 0 (x, b, r level-stacked; b[:n0] holds the input, x[:n0] the output).
 
     V(sweeps, sweeps) cycle: forward Gauss-Seidel before, backward after the coarse-grid
     correction, so the cycle is a symmetric operator for a symmetric matrix (usable in CG).
+    ``par``: residuals, restriction and prolongation of the large levels on every thread (the
+    smoothing stays serial, so the cycle is the same operator whatever the thread count).
     """
     for lv in range(nlev - 1):
         vo = voff[lv]
         m = n[lv]
-        for i in range(m):
-            x[vo + i] = 0.0
+        _fill(x, vo, m, 0.0, par)
         for _ in range(sweeps):
             _smooth(a_ptr, a_pofs[lv], a_idx, a_dat, dinv, x, b, vo, m, True)
-        po = a_pofs[lv]
-        for i in range(m):
-            acc = b[vo + i]
-            for k in range(a_ptr[po + i], a_ptr[po + i + 1]):
-                acc -= a_dat[k] * x[vo + a_idx[k]]
-            r[vo + i] = acc
-        vc = voff[lv + 1]
-        po = r_pofs[lv]
-        for i in range(n[lv + 1]):
-            acc = 0.0
-            for k in range(r_ptr[po + i], r_ptr[po + i + 1]):
-                acc += r_dat[k] * r[vo + r_idx[k]]
-            b[vc + i] = acc
+        _residual(a_ptr, a_pofs[lv], a_idx, a_dat, x, vo, b, vo, r, vo, m, par)
+        _apply_add(r_ptr, r_pofs[lv], r_idx, r_dat, r, vo, b, voff[lv + 1], n[lv + 1], False, par)
     # coarsest level
     lc = nlev - 1
     vc = voff[lc]
@@ -63,113 +101,183 @@ def vcycle(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_id
         x[vc + i] = acc
     for lv in range(nlev - 2, -1, -1):
         vo = voff[lv]
-        vc = voff[lv + 1]
-        po = p_pofs[lv]
-        for i in range(n[lv]):
-            acc = 0.0
-            for k in range(p_ptr[po + i], p_ptr[po + i + 1]):
-                acc += p_dat[k] * x[vc + p_idx[k]]
-            x[vo + i] += acc
+        _apply_add(p_ptr, p_pofs[lv], p_idx, p_dat, x, voff[lv + 1], x, vo, n[lv], True, par)
         for _ in range(sweeps):
             _smooth(a_ptr, a_pofs[lv], a_idx, a_dat, dinv, x, b, vo, n[lv], False)
 
 
-@njit(cache=True)
-def _matvec(ptr, idx, dat, x, out, n):
-    """out = A x on level 0 (ptr[0:n+1] are level-0 row pointers)."""
-    for i in range(n):
-        acc = 0.0
-        for k in range(ptr[i], ptr[i + 1]):
-            acc += dat[k] * x[idx[k]]
-        out[i] = acc
-
-
-@njit(cache=True)
-def _dot(a, b, n):
+@njit(cache=True, nogil=True, parallel=True)
+def _matvec_dot(ptr, idx, dat, x, out, n, par):
+    """out = A x on level 0 (ptr[0:n+1] are level-0 row pointers); returns x . out."""
     s = 0.0
-    for i in range(n):
-        s += a[i] * b[i]
+    if par and n >= PAR_MIN:
+        for i in prange(n):
+            acc = 0.0
+            for k in range(ptr[i], ptr[i + 1]):
+                acc += dat[k] * x[idx[k]]
+            out[i] = acc
+            s += x[i] * acc
+    else:
+        for i in range(n):
+            acc = 0.0
+            for k in range(ptr[i], ptr[i + 1]):
+                acc += dat[k] * x[idx[k]]
+            out[i] = acc
+            s += x[i] * acc
     return s
 
 
-@njit(cache=True)
-def _remove_mean(a, n):
+@njit(cache=True, nogil=True, parallel=True)
+def _dot(a, b, n, par):
     s = 0.0
-    for i in range(n):
-        s += a[i]
+    if par and n >= PAR_MIN:
+        for i in prange(n):
+            s += a[i] * b[i]
+    else:
+        for i in range(n):
+            s += a[i] * b[i]
+    return s
+
+
+@njit(cache=True, nogil=True, parallel=True)
+def _axpy(y, a, x, n, par):
+    """y += a x."""
+    if par and n >= PAR_MIN:
+        for i in prange(n):
+            y[i] += a * x[i]
+    else:
+        for i in range(n):
+            y[i] += a * x[i]
+
+
+@njit(cache=True, nogil=True, parallel=True)
+def _axpy_norm2(y, a, x, n, par):
+    """y += a x; returns y . y."""
+    s = 0.0
+    if par and n >= PAR_MIN:
+        for i in prange(n):
+            y[i] += a * x[i]
+            s += y[i] * y[i]
+    else:
+        for i in range(n):
+            y[i] += a * x[i]
+            s += y[i] * y[i]
+    return s
+
+
+@njit(cache=True, nogil=True, parallel=True)
+def _xpby(y, x, beta, n, par):
+    """y = x + beta y."""
+    if par and n >= PAR_MIN:
+        for i in prange(n):
+            y[i] = x[i] + beta * y[i]
+    else:
+        for i in range(n):
+            y[i] = x[i] + beta * y[i]
+
+
+@njit(cache=True, nogil=True, parallel=True)
+def _copy(dst, src, n, par):
+    """dst[:n] = src[:n]."""
+    if par and n >= PAR_MIN:
+        for i in prange(n):
+            dst[i] = src[i]
+    else:
+        for i in range(n):
+            dst[i] = src[i]
+
+
+@njit(cache=True, nogil=True, parallel=True)
+def _axpy2(y, a, x, b, z, n, par):
+    """y += a x + b z."""
+    if par and n >= PAR_MIN:
+        for i in prange(n):
+            y[i] += a * x[i] + b * z[i]
+    else:
+        for i in range(n):
+            y[i] += a * x[i] + b * z[i]
+
+
+@njit(cache=True, nogil=True, parallel=True)
+def _remove_mean(a, n, par):
+    """a[:n] -= mean(a[:n])."""
+    s = 0.0
+    if par and n >= PAR_MIN:
+        for i in prange(n):
+            s += a[i]
+    else:
+        for i in range(n):
+            s += a[i]
     s /= n
-    for i in range(n):
-        a[i] -= s
+    if par and n >= PAR_MIN:
+        for i in prange(n):
+            a[i] -= s
+    else:
+        for i in range(n):
+            a[i] -= s
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def pcg(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_idx, p_dat,
-        r_ptr, r_pofs, r_idx, r_dat, cinv, sweeps, rhs, sol, rtol, maxiter, singular, xs, bs, rs, w):
+        r_ptr, r_pofs, r_idx, r_dat, cinv, sweeps, rhs, sol, rtol, maxiter, singular, xs, bs, rs, w, par):
     """Conjugate gradients preconditioned by one V-cycle (Saad 2003, Iterative Methods for Sparse
     Linear Systems, alg. 9.1) on A sol = rhs until ||r||_2 <= rtol ||rhs||_2.
 
     ``singular``: A has the constant null vector; rhs and iterates are kept mean-free.
-    ``w`` is (3, n0) work. Returns (iterations, final relative residual).
+    ``w`` is (3, n0) work. ``par``: the vector operations, products and the parallel parts of the
+    cycle on every thread (sums then change in the last digits with the thread count).
+    Returns (iterations, final relative residual).
     """
     n0 = n[0]
     res = w[0]
     pdir = w[1]
     q = w[2]
     if singular:
-        _remove_mean(rhs, n0)
-    bnorm = np.sqrt(_dot(rhs, rhs, n0))
+        _remove_mean(rhs, n0, par)
+    bnorm = np.sqrt(_dot(rhs, rhs, n0, par))
     if bnorm == 0.0:
-        for i in range(n0):
-            sol[i] = 0.0
+        _fill(sol, 0, n0, 0.0, par)
         return 0, 0.0
-    _matvec(a_ptr, a_idx, a_dat, sol, q, n0)
-    for i in range(n0):
-        res[i] = rhs[i] - q[i]
-    rnorm = np.sqrt(_dot(res, res, n0))
+    _residual(a_ptr, 0, a_idx, a_dat, sol, 0, rhs, 0, res, 0, n0, par)
+    rnorm = np.sqrt(_dot(res, res, n0, par))
     if rnorm <= rtol * bnorm:
         return 0, rnorm / bnorm
     rz_old = 0.0
     it = 0
     while it < maxiter:
-        for i in range(n0):
-            bs[i] = res[i]
+        _copy(bs, res, n0, par)
         vcycle(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_idx, p_dat,
-               r_ptr, r_pofs, r_idx, r_dat, cinv, sweeps, xs, bs, rs)
+               r_ptr, r_pofs, r_idx, r_dat, cinv, sweeps, xs, bs, rs, par)
         if singular:
-            _remove_mean(xs, n0)
-        rz = _dot(res, xs, n0)
+            _remove_mean(xs, n0, par)
+        rz = _dot(res, xs, n0, par)
         if it == 0:
-            for i in range(n0):
-                pdir[i] = xs[i]
+            _copy(pdir, xs, n0, par)
         else:
-            beta = rz / rz_old
-            for i in range(n0):
-                pdir[i] = xs[i] + beta * pdir[i]
+            _xpby(pdir, xs, rz / rz_old, n0, par)
         rz_old = rz
-        _matvec(a_ptr, a_idx, a_dat, pdir, q, n0)
-        pq = _dot(pdir, q, n0)
+        pq = _matvec_dot(a_ptr, a_idx, a_dat, pdir, q, n0, par)
         if pq == 0.0 or not np.isfinite(pq):
             break
         alpha = rz / pq
-        for i in range(n0):
-            sol[i] += alpha * pdir[i]
-            res[i] -= alpha * q[i]
+        _axpy(sol, alpha, pdir, n0, par)
+        rnorm = np.sqrt(_axpy_norm2(res, -alpha, q, n0, par))
         it += 1
-        rnorm = np.sqrt(_dot(res, res, n0))
         if rnorm <= rtol * bnorm:
             break
     if singular:
-        _remove_mean(sol, n0)
+        _remove_mean(sol, n0, par)
     return it, rnorm / bnorm
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def bicgstab(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_idx, p_dat,
-             r_ptr, r_pofs, r_idx, r_dat, cinv, sweeps, rhs, sol, rtol, maxiter, xs, bs, rs, w):
+             r_ptr, r_pofs, r_idx, r_dat, cinv, sweeps, rhs, sol, rtol, maxiter, xs, bs, rs, w, par):
     """Right-preconditioned BiCGStab (van der Vorst 1992, SIAM J. Sci. Stat. Comput. 13, 631-644)
     with one V-cycle as preconditioner, until ||b - A x||_2 <= rtol ||b - A x0||_2.
 
-    ``w`` is (7, n0) work. Returns (iterations, final residual relative to the initial one).
+    ``w`` is (7, n0) work; ``par`` as in ``pcg``. Returns (iterations, final residual relative to
+    the initial one).
     """
     n0 = n[0]
     res = w[0]
@@ -179,13 +287,11 @@ def bicgstab(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_
     phat = w[4]
     shat = w[5]
     t = w[6]
-    _matvec(a_ptr, a_idx, a_dat, sol, v, n0)
-    for i in range(n0):
-        res[i] = rhs[i] - v[i]
-        rhat[i] = res[i]
-        pdir[i] = 0.0
-        v[i] = 0.0
-    r0 = np.sqrt(_dot(res, res, n0))
+    _residual(a_ptr, 0, a_idx, a_dat, sol, 0, rhs, 0, res, 0, n0, par)
+    _copy(rhat, res, n0, par)
+    _fill(pdir, 0, n0, 0.0, par)
+    _fill(v, 0, n0, 0.0, par)
+    r0 = np.sqrt(_dot(res, res, n0, par))
     if r0 == 0.0:
         return 0, 0.0
     rho_old = 1.0
@@ -194,51 +300,44 @@ def bicgstab(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_
     it = 0
     rnorm = r0
     while it < maxiter:
-        rho = _dot(rhat, res, n0)
+        rho = _dot(rhat, res, n0, par)
         if rho == 0.0 or omega == 0.0:
             break
         beta = (rho / rho_old) * (alpha / omega)
-        for i in range(n0):
-            pdir[i] = res[i] + beta * (pdir[i] - omega * v[i])
-            bs[i] = pdir[i]
+        # p = r + beta (p - omega v)
+        _axpy(pdir, -omega, v, n0, par)
+        _xpby(pdir, res, beta, n0, par)
+        _copy(bs, pdir, n0, par)
         vcycle(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_idx, p_dat,
-               r_ptr, r_pofs, r_idx, r_dat, cinv, sweeps, xs, bs, rs)
-        for i in range(n0):
-            phat[i] = xs[i]
-        _matvec(a_ptr, a_idx, a_dat, phat, v, n0)
-        rv = _dot(rhat, v, n0)
+               r_ptr, r_pofs, r_idx, r_dat, cinv, sweeps, xs, bs, rs, par)
+        _copy(phat, xs, n0, par)
+        _apply_add(a_ptr, 0, a_idx, a_dat, phat, 0, v, 0, n0, False, par)
+        rv = _dot(rhat, v, n0, par)
         if rv == 0.0 or not np.isfinite(rv):
             break
         alpha = rho / rv
-        for i in range(n0):
-            res[i] -= alpha * v[i]  # res now holds s
+        snorm = np.sqrt(_axpy_norm2(res, -alpha, v, n0, par))  # res now holds s
         it += 1
-        snorm = np.sqrt(_dot(res, res, n0))
         if snorm <= rtol * r0:
-            for i in range(n0):
-                sol[i] += alpha * phat[i]
+            _axpy(sol, alpha, phat, n0, par)
             rnorm = snorm
             break
-        for i in range(n0):
-            bs[i] = res[i]
+        _copy(bs, res, n0, par)
         vcycle(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_idx, p_dat,
-               r_ptr, r_pofs, r_idx, r_dat, cinv, sweeps, xs, bs, rs)
-        for i in range(n0):
-            shat[i] = xs[i]
-        _matvec(a_ptr, a_idx, a_dat, shat, t, n0)
-        tt = _dot(t, t, n0)
-        omega = _dot(t, res, n0) / tt if tt > 0.0 else 0.0
-        for i in range(n0):
-            sol[i] += alpha * phat[i] + omega * shat[i]
-            res[i] -= omega * t[i]
+               r_ptr, r_pofs, r_idx, r_dat, cinv, sweeps, xs, bs, rs, par)
+        _copy(shat, xs, n0, par)
+        _apply_add(a_ptr, 0, a_idx, a_dat, shat, 0, t, 0, n0, False, par)
+        tt = _dot(t, t, n0, par)
+        omega = _dot(t, res, n0, par) / tt if tt > 0.0 else 0.0
+        _axpy2(sol, alpha, phat, omega, shat, n0, par)
         rho_old = rho
-        rnorm = np.sqrt(_dot(res, res, n0))
+        rnorm = np.sqrt(_axpy_norm2(res, -omega, t, n0, par))
         if rnorm <= rtol * r0 or not np.isfinite(rnorm):
             break
     return it, rnorm / r0
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def refresh_fine(src, a_dat, a_ptr, a_idx, n0, dinv):
     """Copy the current fine matrix values into level 0 and recompute its inverse diagonal."""
     for k in range(src.shape[0]):

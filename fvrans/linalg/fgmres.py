@@ -104,7 +104,7 @@ class VCycle:
         bs[:n0] = b
         if self.singular:
             bs[:n0] -= bs[:n0].mean()
-        _k.vcycle(*h, xs, bs, rs)
+        _k.vcycle(*h, xs, bs, rs, False)
         x = xs[:n0].copy()
         if self.singular:
             x -= x.mean()

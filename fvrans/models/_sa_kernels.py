@@ -16,7 +16,9 @@ from __future__ import annotations
 
 import math
 
-from numba import njit
+from numba import njit, prange
+
+from fvrans.jit import PARALLEL_MIN_HEAVY as PAR_MIN_HEAVY
 
 CB1 = 0.1355
 SIGMA = 2.0 / 3.0
@@ -121,7 +123,26 @@ def net_source(nt, nu, omega, d, use_ft2, fr1=1.0):
     return prod - dc * nt
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True, inline="always")
+def _sources_cell(c, nt, nu, rho, vol, d, grad_u, grad_nt, use_ft2, fr1, diag, source):
+    omega = abs(grad_u[c, 1, 0] - grad_u[c, 0, 1])
+    gx = grad_nt[c, 0]
+    gy = grad_nt[c, 1]
+    rv = rho * vol[c]
+    n = nt[c]
+    s0 = net_source(n, nu, omega, d[c], use_ft2, fr1[c])
+    h = 1e-6 * max(abs(n), 1e-3 * nu)
+    if n < 0.0 and n + h > 0.0:
+        h = -h  # stay on the negative branch
+    jac = (net_source(n + h, nu, omega, d[c], use_ft2, fr1[c]) - s0) / h
+    s = s0 + CB2 / SIGMA * (gx * gx + gy * gy)
+    if jac < 0.0:
+        diag[c] -= rv * jac
+        s -= jac * n
+    source[c] += rv * s
+
+
+@njit(cache=True, nogil=True, parallel=True)
 def assemble_sources(nt, nu, rho, vol, d, grad_u, grad_nt, use_ft2, fr1, diag, source):
     """Add the cell sources rho V (P - D + cb2/sigma |grad nt|^2) to one equation.
 
@@ -132,24 +153,16 @@ def assemble_sources(nt, nu, rho, vol, d, grad_u, grad_nt, use_ft2, fr1, diag, s
     coefficient Dc = D/nt alone on the diagonal, under-estimates the derivative of the quadratic
     destruction by half and lets the outer iteration oscillate where destruction dominates.)
     The cb2 term is explicit. Omega = |dv/dx - du/dy| with grad_u[c, component, direction];
-    ``fr1`` the rotation/curvature factor per cell (ones without the correction).
+    ``fr1`` the rotation/curvature factor per cell (ones without the correction). Cells on every
+    thread when there are many.
     """
-    for c in range(nt.shape[0]):
-        omega = abs(grad_u[c, 1, 0] - grad_u[c, 0, 1])
-        gx = grad_nt[c, 0]
-        gy = grad_nt[c, 1]
-        rv = rho * vol[c]
-        n = nt[c]
-        s0 = net_source(n, nu, omega, d[c], use_ft2, fr1[c])
-        h = 1e-6 * max(abs(n), 1e-3 * nu)
-        if n < 0.0 and n + h > 0.0:
-            h = -h  # stay on the negative branch
-        jac = (net_source(n + h, nu, omega, d[c], use_ft2, fr1[c]) - s0) / h
-        s = s0 + CB2 / SIGMA * (gx * gx + gy * gy)
-        if jac < 0.0:
-            diag[c] -= rv * jac
-            s -= jac * n
-        source[c] += rv * s
+    nc = nt.shape[0]
+    if nc >= PAR_MIN_HEAVY:
+        for c in prange(nc):
+            _sources_cell(c, nt, nu, rho, vol, d, grad_u, grad_nt, use_ft2, fr1, diag, source)
+    else:
+        for c in range(nc):
+            _sources_cell(c, nt, nu, rho, vol, d, grad_u, grad_nt, use_ft2, fr1, diag, source)
 
 
 @njit(cache=True)

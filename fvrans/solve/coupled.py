@@ -120,7 +120,8 @@ class SimultaneousSolver(SimpleSolver):
             self.owner, self.neigh, ni, self.S, self.dcoef, self.kvec, g.face_weight,
             g.face_centre, g.cell_centre, g.face_shift, F_old, self.muf, u_old, gu, gc, self.gwall, kind,
             self.bc.velocity, ctl.convection == "linear-upwind",
-            self.diag_u, self.diag_v, self.off_own, self.off_nei, self.bu, self.bv,
+            self.diag_u, self.diag_v, self.off_own, self.off_nei, self.bu, self.bv, self.cf_ptr, self.cf_face,
+            self.face_work,
         )
         extra = self.model.extra_stress(fl, gu)
         if extra is not None:
@@ -136,7 +137,7 @@ class SimultaneousSolver(SimpleSolver):
         ru, rv, mag = K.momentum_sources(
             self.owner, self.neigh, self.vol, self.body, gp, u_old, ctl.alpha_u, self.pt,
             self.diag_u, self.diag_v, self.off_own, self.off_nei, self.bu, self.bv, self.b_np, self.a_rel,
-            self.rhs_u, self.rhs_v, self.work2,
+            self.rhs_u, self.rhs_v, self.work2, self.cf_ptr, self.cf_face,
         )
         res = [ru / (mag + 1e-300), rv / (mag + 1e-300)]
         V = self.vol
@@ -153,7 +154,7 @@ class SimultaneousSolver(SimpleSolver):
                            g.face_skew, g.face_delta, gu, hu, self.hess is not None, rho, hb, rbar, fl.pressure, gp,
                            self.pb, kind, self.bc.velocity, self._zero_beta, F_old, Fe)
         imb, thr = K.assemble_pressure_correction(self.owner, self.neigh, ni, self.dcoef, rho, rbar, kind, Fe,
-                                                  self.p_diag, self.p_off, self.p_rhs)
+                                                  self.p_diag, self.p_off, self.p_rhs, self.cf_ptr, self.cf_face)
         res.append(imb / (thr + 1e-300))
         # the part of the fluxes independent of (u, p): inflow, given outlet pressures, the
         # skewness and quadratic terms of the face velocity

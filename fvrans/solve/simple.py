@@ -45,6 +45,7 @@ from fvrans.fv.assembly import CsrAssembler
 from fvrans.fv.gradient import GaussLeastSquaresGradient, QuadraticFit, gradient_operator
 from fvrans.fv.stress import StressDivergence
 from fvrans.fv.wall_gradient import WallGradient
+from fvrans.jit import set_threads
 from fvrans.linalg.amg import AmgKrylovSolver
 from fvrans.linalg.pressure import PressureSolver
 from fvrans.mesh.geometry import Geometry
@@ -123,6 +124,7 @@ class SolverControls:
     system_solver: str = "direct"
     system_tolerance: float = 0.01
     eddy_viscosity_relaxation: float = 0.5
+    threads: int = 0
 
     @property
     def alpha_u(self) -> float:
@@ -191,6 +193,9 @@ class SimpleSolver:
         self.mu = float(mu)
         self.ctl = controls or SolverControls()
         self.model = model if model is not None else TurbulenceModel()
+        #: threads of the parallel kernels (``fvrans.jit.set_threads``: ``controls.threads``, else
+        #: FVRANS_THREADS, else every idle core); with two, the velocity components are solved at once
+        self.threads = set_threads(self.ctl.threads)
         nc, nf, ni = mesh.n_cells, mesh.n_faces, mesh.n_internal_faces
         self.nc, self.nf, self.ni = nc, nf, ni
         # geometry for the kernels
@@ -201,6 +206,8 @@ class SimpleSolver:
         self.kvec = np.ascontiguousarray(S - self.dcoef[:, None] * d)
         self.owner = mesh.face_owner
         self.neigh = np.ascontiguousarray(mesh.face_neighbour[:ni])
+        # each cell's faces in face order: the race-free (parallel) form of the face loops
+        self.cf_ptr, self.cf_face = mesh.cell_faces
         self.vol = geom.cell_area
         self.asm_u = CsrAssembler(mesh)
         self.asm_v = CsrAssembler(mesh)
@@ -257,6 +264,7 @@ class SimpleSolver:
         self.diag_v = np.zeros(nc)
         self.off_own = np.zeros(ni)
         self.off_nei = np.zeros(ni)
+        self.face_work = np.zeros((ni, 2))
         self.bu = np.zeros(nc)
         self.bv = np.zeros(nc)
         self.b_np = np.zeros((nc, 2))
@@ -334,7 +342,7 @@ class SimpleSolver:
         ones = np.ones(self.nc)
         F = self.fields.face_flux
         K.assemble_pressure_correction(self.owner, self.neigh, ni, self.dcoef, self.rho, ones, kind, F,
-                                       self.p_diag, self.p_off, self.p_rhs)
+                                       self.p_diag, self.p_off, self.p_rhs, self.cf_ptr, self.cf_face)
         if not np.any(self.p_rhs):
             return
         solver = PressureSolver(CsrAssembler(self.mesh), rtol=1e-6, singular=not self.bc.has_fixed_pressure,
@@ -439,7 +447,8 @@ class SimpleSolver:
             self.owner, self.neigh, ni, self.S, self.dcoef, self.kvec, g.face_weight,
             g.face_centre, g.cell_centre, g.face_shift, F_old, self.muf, u_old, gu, gc, self.gwall, kind,
             self.bc.velocity, ctl.convection == "linear-upwind",
-            self.diag_u, self.diag_v, self.off_own, self.off_nei, self.bu, self.bv,
+            self.diag_u, self.diag_v, self.off_own, self.off_nei, self.bu, self.bv, self.cf_ptr, self.cf_face,
+            self.face_work,
         )
         # the model's explicit extra stress T (beside 2 mu_t S): + sum_f T_f . S_f on the right
         extra = self.model.extra_stress(fl, gu)
@@ -460,7 +469,7 @@ class SimpleSolver:
             self.owner, self.neigh, self.vol, self.body, gp, u_old, alpha,
             self.pt, self.diag_u, self.diag_v,
             self.off_own, self.off_nei, self.bu, self.bv, self.b_np, self.a_rel, self.rhs_u, self.rhs_v,
-            self.work2,
+            self.work2, self.cf_ptr, self.cf_face,
         )
         res_u = ru / (mag + 1e-300)
         res_v = rv / (mag + 1e-300)
@@ -471,8 +480,7 @@ class SimpleSolver:
         us[:] = u_old[:, 0]
         vs[:] = u_old[:, 1]
         if ctl.momentum_solver == "amg":
-            self.msolver.solve(mu_, self.rhs_u, us)
-            self.msolver.solve(mv_, self.rhs_v, vs)
+            self.msolver.solve_pair(mu_, self.rhs_u, us, mv_, self.rhs_v, vs)
         else:
             K.gauss_seidel(mu_.indptr, mu_.indices, mu_.data, self.asm_u.diag_pos, self.rhs_u, us,
                            ctl.momentum_sweeps, ctl.momentum_tolerance)
@@ -487,6 +495,7 @@ class SimpleSolver:
         K.interpolation_coefficients(
             self.owner, self.neigh, self.vol, self.off_own, self.off_nei, self.diag_u, self.diag_v, self.a_rel,
             self.b_np, us, vs, ctl.coupling == "simplec", self.hbya, self.rau, self.beta, self.dp, self.work2,
+            self.cf_ptr, self.cf_face,
         )
         dp = self.dp
         K.boundary_pressure(self.owner, ni, g.face_delta, kind, self.bc.pressure, fl.pressure, gp, self.pb)
@@ -497,7 +506,8 @@ class SimpleSolver:
             self.pb, kind, self.bc.velocity, self.beta, F_old, F,
         )
         imbalance, throughput = K.assemble_pressure_correction(
-            self.owner, self.neigh, ni, self.dcoef, rho, dp, kind, F, self.p_diag, self.p_off, self.p_rhs
+            self.owner, self.neigh, ni, self.dcoef, rho, dp, kind, F, self.p_diag, self.p_off, self.p_rhs,
+            self.cf_ptr, self.cf_face,
         )
         res_c = imbalance / (throughput + 1e-300)
         t5 = time.perf_counter()

@@ -120,7 +120,7 @@ def test_defaults_of_a_minimal_case(base):
     assert (s.pressure_tolerance, s.momentum_tolerance, s.momentum_sweeps) == (0.01, 0.1, 5)
     assert (s.turbulence_solver, s.turbulence_tolerance, s.turbulence_max_iterations) == ("amg", 0.01, 20)
     assert (s.amg_rebuild_every, s.divergence_factor, s.checkpoint_every) == (20, 1e5, 0)
-    assert (s.conservative_start, s.turbulence_cfl) == (True, 20.0)
+    assert (s.conservative_start, s.turbulence_cfl, s.threads) == (True, 20.0, 0)
     o = c.output
     assert o.wall_patches == ("lid", "walls")  # every wall patch by default
     # reference velocity and free-stream direction: the inflow's (None here), density: the fluid's
@@ -217,7 +217,7 @@ def test_round_trip_through_dict_and_toml(base, full_case_file):
         assert case_from_dict(tomllib.loads(c.to_toml())) == c
         assert tomllib.loads(c.to_toml()) == d  # to_dict is plain TOML data
         # every key is filled in: the solver and output tables are complete
-        assert len(d["solver"]) == 25 and len(d["output"]) == 6
+        assert len(d["solver"]) == 26 and len(d["output"]) == 6
         # equality is not trivial: a changed setting makes a different case
         assert c.set("solver.relax_velocity", 0.55) != c
 

@@ -209,6 +209,7 @@ CASES = {
     ),
     "negative turbulence CFL": (_set("solver.turbulence_cfl", -1.0), ["solver.turbulence_cfl", ">= 0"]),
     "conservative start not a flag": (_set("solver.conservative_start", "yes"), ["solver.conservative_start"]),
+    "negative thread count": (_set("solver.threads", -1), ["solver.threads", ">= 0"]),
     "zero reference velocity": (_set("output.reference_velocity", 0.0), ["output.reference_velocity", "> 0"]),
     "negative reference length": (_set("output.reference_length", -1.0), ["output.reference_length", "> 0"]),
     # -- mesh source --

@@ -1,0 +1,207 @@
+"""Threads, memory per cell and compile time of the numerical kernels.
+
+1. Per bundled case (cavity 128^2, step coarse, flat plate medium): ``--iterations`` outer
+   iterations at the case's settings on 1 and on 2 threads (``[solver] threads``; numba compiled
+   beforehand): seconds, microseconds per cell and iteration, CPU use of the run (process CPU time
+   over wall time: 2.0 means both cores busy throughout), the ratio of the seconds per iteration to
+   a numpy triad ``a = b + s*c`` over arrays of cell length timed in the same run, and the largest
+   difference of the velocity between the two runs (relative to the largest speed). Each line
+   also shows the 1-minute load average of the machine when it started: on a shared machine,
+   where other processes hold the cores, two threads can be much slower than one (each parallel
+   loop waits for the scheduler to give its second thread a core).
+2. Peak memory per cell of a run on a generated cavity and a generated flat plate (Spalart-Allmaras)
+   of ~400k cells (``--cells``), above the
+   interpreter's baseline (numpy, scipy, pyamg, numba and the compiled kernels loaded): the peak
+   resident set size (``resource.getrusage``, ``ru_maxrss``) after ``--memory-iterations``
+   iterations less the one before the mesh is made; and the peak of the arrays numpy allocates
+   (``tracemalloc``; numba's own allocations inside kernels are not traced), in a fresh process.
+3. Compile time: a fresh process with an empty ``NUMBA_CACHE_DIR`` runs 3 iterations of the
+   cavity and of the flat plate (the seconds numba spends compiling, from ``fvrans.jit.CompileWatch``,
+   and the number of kernels compiled), then another fresh process with the same (now warm) cache.
+
+No assertions; the machine's load makes the timings noisy: compare the triad ratios.
+
+Run:  python benchmarks/bench_parallel.py [--iterations 100] [--cases cavity step_coarse plate]
+                                          [--cells 400000] [--skip-memory] [--skip-compile]
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import resource
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+
+ROOT = Path(__file__).resolve().parents[1]
+CASES = {
+    "cavity": "cavity_re100.toml",
+    "step_coarse": "step_coarse.toml",
+    "plate": "flat_plate_turbulent.toml",
+}
+
+
+def triad_seconds(n: int, repeats: int = 50) -> float:
+    """Best time of ``a = b + s*c`` over arrays of length n (numpy, in place)."""
+    b = np.random.default_rng(0).random(n)
+    c = np.random.default_rng(1).random(n)
+    a = np.empty(n)
+    best = np.inf
+    for _ in range(repeats):
+        t0 = time.perf_counter()
+        np.multiply(c, 1.0001, out=a)
+        np.add(a, b, out=a)
+        best = min(best, time.perf_counter() - t0)
+    return best
+
+
+def threads_table(names: list[str], iterations: int) -> None:
+    import fvrans.api as fa
+
+    print(f"\n1. {iterations} outer iterations per run (numba compiled beforehand); load = 1-minute load average")
+    print(f"{'case':12s} {'cells':>7s} {'thr':>3s} {'seconds':>8s} {'us/cell/it':>10s} {'CPU use':>7s} "
+          f"{'triad ratio':>11s} {'load':>5s} {'|du|/U (1 vs 2)':>15s}")
+    for name in names:
+        case = fa.load_case(ROOT / "cases" / CASES[name])
+        problem = fa.prepare(case)
+        nc = problem.mesh.n_cells
+        velocity = {}
+        for threads in (1, 2):
+            run = case.replace({"solver.max_iterations": iterations, "solver.tolerance": 1e-14,
+                                "monitor.settle": False, "solver.threads": threads})
+            fa.solve(fa.Problem(run.replace({"solver.max_iterations": 2}), problem.mesh, problem.geom,
+                                problem.boundary))  # compile / load the kernels
+            load = os.getloadavg()[0]
+            triad = triad_seconds(nc)
+            w0, c0 = time.perf_counter(), time.process_time()
+            r = fa.solve(fa.Problem(run, problem.mesh, problem.geom, problem.boundary))
+            wall, cpu = time.perf_counter() - w0, time.process_time() - c0
+            triad = min(triad, triad_seconds(nc))
+            its = max(r.iterations, 1)
+            velocity[threads] = r.velocity
+            diff = ""
+            if threads == 2:
+                scale = np.abs(velocity[1]).max()
+                diff = f"{np.abs(velocity[2] - velocity[1]).max() / scale:.1e}"
+            print(f"{name:12s} {nc:7d} {threads:3d} {wall:8.2f} {wall / its / nc * 1e6:10.2f} {cpu / wall:7.2f} "
+                  f"{wall / its / triad:11.0f} {load:5.1f} {diff:>15s}")
+
+
+def _memory_mesh(kind: str, cells: int):
+    """A generated mesh of about ``cells`` cells: the cavity, or the flat plate (the fine plate's
+    distributions, 68 + 204 x 192 cells, scaled up)."""
+    from fvrans.mesh.generate import cavity, flat_plate
+
+    if kind == "cavity":
+        return cavity(int(round(cells**0.5)))
+    k = (cells / (272 * 192)) ** 0.5
+    return flat_plate(int(round(204 * k)), int(round(68 * k)), int(round(192 * k)), 1e-6)
+
+
+def _child_memory(kind: str, cells: int, iterations: int) -> dict:
+    """In a fresh process: peak memory of a run of about ``cells`` cells (``kind``: cavity, plate)."""
+    import tracemalloc
+
+    import fvrans.api as fa
+
+    case = fa.load_case(ROOT / "cases" / (CASES[kind]))
+    small = case.replace({"solver.max_iterations": 3, "output.write_fields": False})
+    fa.solve(fa.prepare(small, _memory_mesh(kind, 4000)))  # imports and kernels loaded: the baseline
+    base_rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+    tracemalloc.start()
+    t0 = time.perf_counter()
+    mesh = _memory_mesh(kind, cells)
+    run = case.replace({"solver.max_iterations": iterations, "solver.tolerance": 1e-14, "monitor.settle": False})
+    r = fa.solve(fa.prepare(run, mesh))
+    seconds = time.perf_counter() - t0
+    _, traced_peak = tracemalloc.get_traced_memory()
+    tracemalloc.stop()
+    peak_rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+    return {"cells": mesh.n_cells, "iterations": r.iterations, "seconds": seconds, "base_rss": base_rss,
+            "peak_rss": peak_rss, "traced_peak": traced_peak}
+
+
+def memory_table(kind: str, cells: int, iterations: int) -> None:
+    out = subprocess.run([sys.executable, __file__, "--child-memory", kind, str(cells), str(iterations)],
+                         capture_output=True, text=True, check=True)
+    m = json.loads(out.stdout.strip().splitlines()[-1])
+    nc = m["cells"]
+    print(f"\n2. memory: {kind} of {nc} cells, {m['iterations']} iterations ({m['seconds']:.0f} s incl. mesh and "
+          "geometry), in a fresh process")
+    print(f"   baseline RSS (interpreter, libraries, kernels): {m['base_rss'] / 2**20:.0f} MB")
+    print(f"   peak RSS {m['peak_rss'] / 2**20:.0f} MB: above the baseline "
+          f"{(m['peak_rss'] - m['base_rss']) / 2**20:.0f} MB = {(m['peak_rss'] - m['base_rss']) / nc / 1024:.2f} KB "
+          "per cell (issue #15 target: <= 3 KB)")
+    print(f"   peak of numpy's traced allocations {m['traced_peak'] / 2**20:.0f} MB = "
+          f"{m['traced_peak'] / nc / 1024:.2f} KB per cell")
+
+
+def _child_compile() -> dict:
+    import fvrans.api as fa
+    from fvrans.jit import CompileWatch
+
+    out = {}
+    t0 = time.perf_counter()
+    for name in ("cavity", "plate"):
+        case = fa.load_case(ROOT / "cases" / CASES[name]).replace({"solver.max_iterations": 3})
+        with CompileWatch() as watch:
+            fa.solve(case)
+        out[name] = (watch.seconds, watch.count)
+    out["process"] = time.perf_counter() - t0
+    return out
+
+
+def compile_table() -> None:
+    print("\n3. compile time: fresh processes, 3 iterations of the cavity then of the flat plate")
+    with tempfile.TemporaryDirectory() as cache:
+        env = dict(os.environ, NUMBA_CACHE_DIR=cache)
+        for label in ("cold cache", "warm cache"):
+            w0 = time.perf_counter()
+            out = subprocess.run([sys.executable, __file__, "--child-compile"], capture_output=True, text=True,
+                                 check=True, env=env)
+            wall = time.perf_counter() - w0
+            c = json.loads(out.stdout.strip().splitlines()[-1])
+            print(f"   {label}: cavity compiles {c['cavity'][0]:5.1f} s ({c['cavity'][1]} kernels), plate "
+                  f"{c['plate'][0]:5.1f} s ({c['plate'][1]} more); both runs {c['process']:5.1f} s, process "
+                  f"{wall:5.1f} s (load {os.getloadavg()[0]:.1f})")
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    ap.add_argument("--iterations", type=int, default=100)
+    ap.add_argument("--cases", nargs="*", default=list(CASES), choices=list(CASES))
+    ap.add_argument("--cells", type=int, default=400_000)
+    ap.add_argument("--memory-iterations", type=int, default=5)
+    ap.add_argument("--memory-cases", nargs="*", default=["cavity", "plate"], choices=["cavity", "plate"])
+    ap.add_argument("--skip-threads", action="store_true")
+    ap.add_argument("--skip-memory", action="store_true")
+    ap.add_argument("--skip-compile", action="store_true")
+    ap.add_argument("--child-memory", nargs=3, help=argparse.SUPPRESS)
+    ap.add_argument("--child-compile", action="store_true", help=argparse.SUPPRESS)
+    a = ap.parse_args()
+    if a.child_memory:
+        kind, cells, iterations = a.child_memory
+        print(json.dumps(_child_memory(kind, int(cells), int(iterations))))
+        return
+    if a.child_compile:
+        print(json.dumps(_child_compile()))
+        return
+    print(f"machine: {os.cpu_count()} cores, load average {os.getloadavg()[0]:.1f} at the start (shared: the other "
+          "users' processes run beside this benchmark)")
+    if not a.skip_threads:
+        threads_table(a.cases, a.iterations)
+    if not a.skip_memory:
+        for kind in a.memory_cases:
+            memory_table(kind, a.cells, a.memory_iterations)
+    if not a.skip_compile:
+        compile_table()
+
+
+if __name__ == "__main__":
+    main()
