@@ -30,7 +30,7 @@ NONLINEAR_STRESSES = ("none", "qcr2000")
 DEFAULT_TURBULENCE_INTENSITY = 0.001
 DEFAULT_EDDY_VISCOSITY_RATIO = 0.1
 BOUNDARY_KINDS = ("wall", "inflow-velocity", "outflow-pressure", "symmetry", "outer-flow")
-COUPLINGS = ("simple", "simplec")
+COUPLINGS = ("simple", "simplec", "simultaneous")
 CONVECTION_SCHEMES = ("upwind", "linear-upwind")
 GRADIENT_METHODS = ("least-squares", "green-gauss")
 LIMITERS = ("none", "venkatakrishnan", "barth-jespersen")
@@ -49,12 +49,14 @@ PROFILE_COLUMN_KEYS = ("coordinate", "u", "v", "nu_tilde_ratio", "k", "omega")
 DEFAULT_PROFILE_COLUMNS = {"coordinate": "y", "u": "u", "v": "v", "nu_tilde_ratio": "nu_tilde_ratio", "k": "k",
                            "omega": "omega"}
 #: default under-relaxation of the pressure correction for each coupling
-DEFAULT_RELAX_PRESSURE = {"simple": 0.3, "simplec": 1.0}
-DEFAULT_RELAX_VELOCITY = {"simple": 0.7, "simplec": 0.95}
+DEFAULT_RELAX_PRESSURE = {"simple": 0.3, "simplec": 1.0, "simultaneous": 1.0}
+DEFAULT_RELAX_VELOCITY = {"simple": 0.7, "simplec": 0.95, "simultaneous": 1.0}
 #: default relative tolerance of each turbulence solve, by model (others: 0.01): omega spans about
 #: ten decades between a wall and the free stream, and a looser solve leaves the free stream unsolved
 DEFAULT_TURBULENCE_TOLERANCE = {"k-omega-sst": 1e-6}
 MOMENTUM_SOLVERS = ("amg", "gauss-seidel")
+#: linear solvers of the simultaneous u-v-p system (``fvrans.solve.coupled``)
+SYSTEM_SOLVERS = ("direct", "gmres-amg")
 TURBULENCE_SOLVERS = ("amg", "gauss-seidel")
 #: text standing for a Python function in :meth:`Case.to_dict`
 CALLABLE_TEXT = "<python callable>"
@@ -267,6 +269,8 @@ class SolverSettings:
     checkpoint_every: int = 0
     conservative_start: bool = True
     turbulence_cfl: float = 20.0
+    system_solver: str = "direct"
+    system_tolerance: float = 0.01
     #: threads of the parallel kernels; 0: the FVRANS_THREADS variable, else every idle core (fvrans.jit)
     threads: int = 0
 
@@ -581,6 +585,8 @@ def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
             "checkpoint_every": s.checkpoint_every,
             "conservative_start": s.conservative_start,
             "turbulence_cfl": s.turbulence_cfl,
+            "system_solver": s.system_solver,
+            "system_tolerance": s.system_tolerance,
             "threads": s.threads,
         },
         "output": output,

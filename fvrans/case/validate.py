@@ -48,6 +48,7 @@ TABLE_KEYS: dict[str, tuple[str, ...]] = {
         "momentum_sweeps", "turbulence_solver", "turbulence_tolerance", "turbulence_max_iterations",
         "amg_rebuild_every",
         "divergence_factor", "checkpoint_every", "conservative_start", "turbulence_cfl",
+        "system_solver", "system_tolerance",
         "threads",
     ),
     "output": (
@@ -437,6 +438,10 @@ def case_from_dict(data: Mapping[str, Any], source: str | Path | None = None) ->
     output = _output(ctx, top.table("output", {}), boundaries)
     probes = _probes(ctx, top.table("probes", {}))
     mean_flow = _mean_flow(ctx, top.table("mean_flow", {}), mesh)
+    if solver.coupling == "simultaneous" and mean_flow.bulk_velocity is not None:
+        raise ctx.error(("mean_flow", "bulk_velocity"), "solver.coupling = 'simultaneous' cannot hold a bulk "
+                        "velocity (its driving force comes from the segregated momentum matrix); give "
+                        "mean_flow.pressure_gradient instead, or use coupling = 'simplec'")
     derived = _derived(ctx, top.table("derived", {}), probes, model)
     monitor = _monitor(ctx, top.table("monitor", {}))
     reference = _reference(ctx, top.table("reference", {}), model)
@@ -853,6 +858,8 @@ def _solver(ctx: _Ctx, data: Any, turbulence: str = "none") -> S.SolverSettings:
         conservative_start=t.boolean("conservative_start", True),
         turbulence_cfl=t.number("turbulence_cfl", 20.0, NON_NEGATIVE,
                                 "the CFL number of the turbulence pseudo-time steps; 0 turns them off"),
+        system_solver=t.choice("system_solver", S.SYSTEM_SOLVERS, "direct"),
+        system_tolerance=t.number("system_tolerance", 0.01, OPEN_UNIT, "a relative tolerance"),
         threads=t.integer("threads", 0, NON_NEGATIVE,
                           "threads of the numerical kernels; 0 takes FVRANS_THREADS or every idle core"),
     )

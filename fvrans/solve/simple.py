@@ -65,7 +65,7 @@ PHASES = (
 
 #: default velocity under-relaxation per coupling: 0.7 for SIMPLE is common practice; 0.95 for
 #: SIMPLEC was the fastest of 0.7-0.98 on the Re = 100 and 1000 cavity (benchmarks/bench_cavity.py)
-DEFAULT_RELAX_VELOCITY = {"simplec": 0.95, "simple": 0.7}
+DEFAULT_RELAX_VELOCITY = {"simplec": 0.95, "simple": 0.7, "simultaneous": 1.0}
 # A steady incompressible flow does not reach speeds of this many times the largest speed imposed
 # on its boundaries or given as its initial field: a run that does is diverging, even while its
 # values are still finite (common practice: an order-of-magnitude guard, not a physical limit).
@@ -121,6 +121,9 @@ class SolverControls:
     conservative_start: bool = True
     turbulence_cfl: float = 20.0
     momentum_cfl: float = 0.0
+    system_solver: str = "direct"
+    system_tolerance: float = 0.01
+    eddy_viscosity_relaxation: float = 0.5
     threads: int = 0
 
     @property

@@ -1,0 +1,135 @@
+"""Segregated SIMPLEC against the simultaneous u-v-p solve (``solver.coupling = "simultaneous"``) on
+the grid families of issue #15: outer iterations, seconds, cost per cell and iteration, growth per
+4x cells, and whether both give the same answers.
+
+Families (uniform start, each case's own settings and stopping rule, i.e. residuals below the case's
+tolerance and the monitored quantities settled):
+  cavity  the bundled cavity case (Re 100) on 64^2, 128^2, 256^2 quads (``mesh.generate.cavity``);
+  plate   the bundled turbulent flat plate (SA, tolerance 1e-8) on the coarse / medium / fine family
+          (``flat_plate_family``): the answer compared is Cf(0.97) and the plate's Cd;
+  step    the bundled turbulent step (SA, tolerance 7e-7) on coarse / medium (/ fine) (``step_family``):
+          the answer compared is the reattachment point x_r / H on the lower wall.
+For every grid both algorithms run; printed: cells, converged flag, iterations, wall seconds,
+microseconds per cell and iteration, that over a numpy triad ``a = b + s c`` on arrays of cell length
+timed in the same run, the growth of the iteration count from the previous (4x smaller) grid, and the
+relative difference of the compared quantity plus max |u_sim - u_seg| / U_ref. Numba compilation is
+excluded by a warm-up run. No assertions; the machine is shared, so read the triad ratio.
+
+Measured 2026-12-03 (2 cores shared with other engineers' test suites and runs: heavily loaded; wall
+seconds; iterations SIMPLEC -> simultaneous; answer: relative difference of the compared quantity):
+  cavity 64^2 / 128^2 / 256^2: 209 / 715 / 2713 -> 40 / 40 / 42 its; 2.4 / 37.2 / 568.9 s -> 3.8 / 24.9 / 55.3 s;
+      us per cell and iteration 2.8-3.2 -> 20-38; max |du| / U 3.5e-6 / 7.5e-6 / 9.3e-6
+  plate coarse / medium / fine: 243 / 420 / 1596 -> 40 / 45 / diverged at 35 (563 s); 1.3 / 8.3 / 263 s
+      -> 1.5 / 22.9 s; Cf(0.97) rel. 1.7e-8 / 2.5e-7
+  step coarse / medium: 1668 / not converged in 4000 (793 s) -> 128 / 181 its; 36.7 s -> 22.9 / 357.6 s;
+      x_r rel. 2.0e-7 / 6.3e-7 (against the unfinished SIMPLEC run)
+  The fine step was not run (SuperLU memory and time).
+
+Run:  python benchmarks/bench_coupled.py [--families cavity plate step] [--fine-step] [--only simultaneous]
+"""
+
+from __future__ import annotations
+
+import argparse
+import time
+from pathlib import Path
+
+import numpy as np
+
+import fvrans.api as fa
+from fvrans.errors import CaseError
+from fvrans.mesh.generate import cavity, flat_plate_family, step_family
+from fvrans.post.separation import reattachment_x
+
+ROOT = Path(__file__).resolve().parents[1]
+ALGORITHMS = ("simplec", "simultaneous")
+
+
+def triad_seconds(n: int, repeats: int = 30) -> float:
+    """Best time of ``a = b + s*c`` over arrays of length n (numpy, in place)."""
+    b = np.random.default_rng(0).random(n)
+    c = np.random.default_rng(1).random(n)
+    a = np.empty(n)
+    best = np.inf
+    for _ in range(repeats):
+        t0 = time.perf_counter()
+        np.multiply(c, 1.0001, out=a)
+        np.add(a, b, out=a)
+        best = min(best, time.perf_counter() - t0)
+    return best
+
+
+def grids(family: str, fine_step: bool) -> list[tuple[str, fa.Problem]]:
+    if family == "cavity":
+        case = fa.load_case(ROOT / "cases" / "cavity_re100.toml")
+        return [(f"{n}^2", fa.prepare(case, mesh=cavity(n))) for n in (64, 128, 256)]
+    if family == "plate":
+        case = fa.load_case(ROOT / "cases" / "flat_plate_turbulent.toml")
+        return [(lv, fa.prepare(case, mesh=flat_plate_family(lv))) for lv in ("coarse", "medium", "fine")]
+    case = fa.load_case(ROOT / "cases" / "step_medium.toml")
+    levels = ("coarse", "medium", "fine") if fine_step else ("coarse", "medium")
+    return [(lv, fa.prepare(case, mesh=step_family(lv))) for lv in levels]
+
+
+def answer(family: str, r: fa.Result) -> float:
+    """The compared quantity: cavity u at the centre cell, plate Cf(0.97), step x_r / H."""
+    if family == "cavity":
+        k = int(np.argmin(np.hypot(*(r.cell_centres - 0.5).T)))
+        return float(r.velocity[k, 0])
+    if family == "plate":
+        w = r.wall("plate")
+        order = np.argsort(w.x)
+        return float(np.interp(0.97, w.x[order], w.cf[order]))
+    try:
+        return float(reattachment_x(r.wall("lower_wall"), 0.0, 49.0))
+    except CaseError:
+        return float("nan")
+
+
+def with_algorithm(problem: fa.Problem, algorithm: str) -> fa.Problem:
+    return fa.prepare(problem.case.set("solver.coupling", algorithm), mesh=problem.mesh)
+
+
+def main(argv: list[str] | None = None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--families", nargs="+", default=["cavity", "plate", "step"], choices=["cavity", "plate", "step"])
+    ap.add_argument("--fine-step", action="store_true", help="also the fine step (111k cells)")
+    ap.add_argument("--only", choices=ALGORITHMS, default=None, help="run one algorithm only")
+    args = ap.parse_args(argv)
+    algorithms = ALGORITHMS if args.only is None else (args.only,)
+    print("warm-up (numba compilation) ...", flush=True)
+    warm = fa.load_case(ROOT / "cases" / "channel_poiseuille.toml").set("solver.max_iterations", 3)
+    for alg in ALGORITHMS:
+        fa.solve(warm.set("solver.coupling", alg))
+    print("family  grid      cells  algorithm     conv  iters  growth   wall[s]  us/cell/it  x triad   answer"
+          "          rel.diff   max|du|/U", flush=True)
+    for family in args.families:
+        previous: dict[str, int] = {}
+        for label, problem in grids(family, args.fine_step):
+            nc = problem.mesh.n_cells
+            triad = triad_seconds(nc)
+            results = {}
+            for alg in algorithms:
+                t0 = time.perf_counter()
+                r = fa.solve(with_algorithm(problem, alg))
+                wall = time.perf_counter() - t0
+                results[alg] = r
+                us = wall / max(r.iterations, 1) / nc * 1e6
+                growth = r.iterations / previous[alg] if alg in previous else float("nan")
+                previous[alg] = r.iterations
+                a = answer(family, r)
+                extra = ""
+                if alg == "simultaneous" and "simplec" in results:
+                    s = results["simplec"]
+                    b = answer(family, s)
+                    u_ref = s.force_reference().velocity or 1.0
+                    du = float(np.max(np.abs(r.velocity - s.velocity))) / u_ref
+                    extra = f"  {abs(a - b) / abs(b):9.2e}  {du:9.2e}"
+                print(f"{family:7s} {label:8s} {nc:6d}  {alg:12s}  {str(r.converged):5s} {r.iterations:5d}  "
+                      f"{growth:6.2f}  {wall:8.1f}  {us:10.2f}  {us * 1e-6 * nc / triad:8.0f}   {a:.8e}{extra}",
+                      flush=True)
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())

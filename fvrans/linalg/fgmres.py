@@ -1,0 +1,111 @@
+"""Flexible GMRES (Saad 1993, SIAM J. Sci. Comput. 14, 461-469) and a single AMG V-cycle as an
+operator, for the block preconditioner of the simultaneous u-v-p solve (``fvrans.solve.coupled``).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+
+import numpy as np
+import scipy.sparse as sp
+
+from fvrans.linalg import _amg_kernels as _k
+from fvrans.linalg.amg import AmgKrylovSolver
+
+
+def fgmres(
+    matvec: Callable[[np.ndarray], np.ndarray], prec: Callable[[np.ndarray], np.ndarray], r0: np.ndarray,
+    rtol: float, restart: int = 40, max_iterations: int = 400,
+) -> tuple[np.ndarray, int, float]:
+    """Solve A dx = r0 from dx = 0 by right-preconditioned flexible GMRES(restart): the
+    preconditioned vectors z_k = M_k^-1 v_k are kept, so M may change from one step to the next.
+    Stops when ||r0 - A dx||_2 <= rtol ||r0||_2 or after ``max_iterations``; returns (dx, iterations,
+    relative residual)."""
+    n = r0.size
+    dx = np.zeros(n)
+    beta0 = float(np.linalg.norm(r0))
+    if beta0 == 0.0:
+        return dx, 0, 0.0
+    r = r0.copy()
+    its = 0
+    rel = 1.0
+    m = restart
+    while its < max_iterations:
+        beta = float(np.linalg.norm(r))
+        V = np.zeros((m + 1, n))
+        Z = np.zeros((m, n))
+        H = np.zeros((m + 1, m))
+        cs = np.zeros(m)
+        sn = np.zeros(m)
+        gvec = np.zeros(m + 1)
+        gvec[0] = beta
+        V[0] = r / beta
+        k = 0
+        for k in range(m):
+            Z[k] = prec(V[k])
+            w = matvec(Z[k])
+            for _ in range(2):  # classical Gram-Schmidt, twice
+                h = V[: k + 1] @ w
+                w -= h @ V[: k + 1]
+                H[: k + 1, k] += h
+            H[k + 1, k] = np.linalg.norm(w)
+            if H[k + 1, k] > 0.0:
+                V[k + 1] = w / H[k + 1, k]
+            for i in range(k):
+                t = cs[i] * H[i, k] + sn[i] * H[i + 1, k]
+                H[i + 1, k] = -sn[i] * H[i, k] + cs[i] * H[i + 1, k]
+                H[i, k] = t
+            d = np.hypot(H[k, k], H[k + 1, k])
+            cs[k] = H[k, k] / d
+            sn[k] = H[k + 1, k] / d
+            H[k, k] = d
+            H[k + 1, k] = 0.0
+            gvec[k + 1] = -sn[k] * gvec[k]
+            gvec[k] = cs[k] * gvec[k]
+            its += 1
+            rel = abs(gvec[k + 1]) / beta0
+            if rel <= rtol or its >= max_iterations:
+                break
+        y = np.linalg.solve(np.triu(H[: k + 1, : k + 1]), gvec[: k + 1])
+        dx += y @ Z[: k + 1]
+        if rel <= rtol or its >= max_iterations:
+            break
+        r = r0 - matvec(dx)
+    return dx, its, rel
+
+
+class VCycle:
+    """One Ruge-Stuben AMG V-cycle x = M^-1 b of a matrix sequence with a fixed structure (the
+    hierarchy of :class:`fvrans.linalg.amg.AmgKrylovSolver`, rebuilt every ``rebuild_every``
+    updates, the finest level refreshed with the current matrix)."""
+
+    def __init__(self, rebuild_every: int = 20, singular: bool = False):
+        self.amg = AmgKrylovSolver("cg", singular=singular)
+        self.rebuild_every = int(rebuild_every)
+        self.singular = bool(singular)
+        self._uses = 0
+
+    def update(self, A: sp.csr_matrix) -> None:
+        a = self.amg
+        A = sp.csr_matrix(A)
+        A.sort_indices()
+        if a._h is None or self._uses >= self.rebuild_every or A.nnz != a._fine_nnz:
+            a.rebuild(A)
+            self._uses = 0
+        else:
+            h = a._h
+            _k.refresh_fine(A.data, h[6], h[3], h[5], h[1][0], h[7])
+        self._uses += 1
+
+    def __call__(self, b: np.ndarray) -> np.ndarray:
+        h = self.amg._h
+        xs, bs, rs = self.amg._vec
+        n0 = int(h[1][0])
+        bs[:n0] = b
+        if self.singular:
+            bs[:n0] -= bs[:n0].mean()
+        _k.vcycle(*h, xs, bs, rs, False)
+        x = xs[:n0].copy()
+        if self.singular:
+            x -= x.mean()
+        return x

@@ -1,0 +1,194 @@
+"""Numba kernels of the simultaneous u-v-p solve (``fvrans.solve.coupled``): the blocks of the
+coupled matrix as (row, column, value) triplets, and face sums.
+
+Unknowns are ordered (u_0..u_{n-1}, v_0..v_{n-1}, p_0..p_{n-1}). Face conventions are those of
+``fvrans.mesh.geometry`` (S_f points out of the owner P; ``w`` the owner's interpolation weight).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit
+
+
+@njit(cache=True)
+def gradient_triplets(owner, neigh, n_int, S, w, fixed):
+    """G p = sum_f p_f S_f per cell (rows u then v): p_f = w p_P + (1 - w) p_N inside, p_P on
+    boundary faces without a given pressure; faces with a given pressure (``fixed[b]``) add nothing
+    (their part is in the deferred term)."""
+    nf = owner.shape[0]
+    nc = 0
+    for f in range(nf):
+        if owner[f] + 1 > nc:
+            nc = owner[f] + 1
+    m = 2 * (4 * n_int + (nf - n_int))
+    rows = np.empty(m, dtype=np.int64)
+    cols = np.empty(m, dtype=np.int64)
+    vals = np.zeros(m)
+    k = 0
+    for d in range(2):
+        off = d * nc
+        for f in range(n_int):
+            P = owner[f]
+            N = neigh[f]
+            s = S[f, d]
+            rows[k] = off + P
+            cols[k] = P
+            vals[k] = w[f] * s
+            rows[k + 1] = off + P
+            cols[k + 1] = N
+            vals[k + 1] = (1.0 - w[f]) * s
+            rows[k + 2] = off + N
+            cols[k + 2] = P
+            vals[k + 2] = -w[f] * s
+            rows[k + 3] = off + N
+            cols[k + 3] = N
+            vals[k + 3] = -(1.0 - w[f]) * s
+            k += 4
+        for f in range(n_int, nf):
+            P = owner[f]
+            rows[k] = off + P
+            cols[k] = P
+            vals[k] = 0.0 if fixed[f - n_int] else S[f, d]
+            k += 1
+    return rows, cols, vals
+
+
+@njit(cache=True)
+def face_velocity_triplets(owner, neigh, n_int, S, w, fixed, rho):
+    """The velocity part of the continuity rows, sum_f rho u_f . S_f: u_f = w u_P + (1 - w) u_N
+    inside, u_P on faces with a given pressure (outflow), none elsewhere (walls, symmetry planes
+    and inflow have given fluxes)."""
+    nf = owner.shape[0]
+    nc = 0
+    for f in range(nf):
+        if owner[f] + 1 > nc:
+            nc = owner[f] + 1
+    m = 2 * (4 * n_int + (nf - n_int))
+    rows = np.empty(m, dtype=np.int64)
+    cols = np.empty(m, dtype=np.int64)
+    vals = np.zeros(m)
+    k = 0
+    for d in range(2):
+        off = d * nc
+        for f in range(n_int):
+            P = owner[f]
+            N = neigh[f]
+            s = rho * S[f, d]
+            rows[k] = P
+            cols[k] = off + P
+            vals[k] = w[f] * s
+            rows[k + 1] = P
+            cols[k + 1] = off + N
+            vals[k + 1] = (1.0 - w[f]) * s
+            rows[k + 2] = N
+            cols[k + 2] = off + P
+            vals[k + 2] = -w[f] * s
+            rows[k + 3] = N
+            cols[k + 3] = off + N
+            vals[k + 3] = -(1.0 - w[f]) * s
+            k += 4
+        for f in range(n_int, nf):
+            P = owner[f]
+            rows[k] = P
+            cols[k] = off + P
+            vals[k] = rho * S[f, d] if fixed[f - n_int] else 0.0
+            k += 1
+    return rows, cols, vals
+
+
+@njit(cache=True)
+def momentum_triplets(owner, neigh, n_int, a_u, a_v, off_own, off_nei):
+    """The two momentum blocks (u rows/columns, then v): diagonals ``a_u``, ``a_v``; ``off_own[f]``
+    multiplies the neighbour in the owner's row, ``off_nei[f]`` the owner in the neighbour's row."""
+    nc = a_u.shape[0]
+    m = 2 * (nc + 2 * n_int)
+    rows = np.empty(m, dtype=np.int64)
+    cols = np.empty(m, dtype=np.int64)
+    vals = np.empty(m)
+    k = 0
+    for d in range(2):
+        off = d * nc
+        a = a_u if d == 0 else a_v
+        for c in range(nc):
+            rows[k] = off + c
+            cols[k] = off + c
+            vals[k] = a[c]
+            k += 1
+        for f in range(n_int):
+            P = owner[f]
+            N = neigh[f]
+            rows[k] = off + P
+            cols[k] = off + N
+            vals[k] = off_own[f]
+            rows[k + 1] = off + N
+            cols[k + 1] = off + P
+            vals[k + 1] = off_nei[f]
+            k += 2
+    return rows, cols, vals
+
+
+@njit(cache=True)
+def pressure_difference_triplets(owner, neigh, n_int, dcoef, kvec, w, rbar, fixed, rho):
+    """The pressure parts of the Rhie-Chow fluxes summed per cell, as three matrices on one pattern
+    (values[:, 0..2]): the compact difference Lc p = sum_f -rho r_f dcoef (p_N - p_P) (p_N = 0 on faces
+    with a given pressure, which is in the constant part) and the non-orthogonal parts
+    Kx gx + Ky gy = sum_f rho r_f k_f . grad p_f, grad p_f = w grad p_P + (1 - w) grad p_N inside,
+    grad p_P on faces with a given pressure; r_f = w rbar_P + (1 - w) rbar_N."""
+    nf = owner.shape[0]
+    nb = nf - n_int
+    m = 4 * n_int + nb
+    rows = np.empty(m, dtype=np.int64)
+    cols = np.empty(m, dtype=np.int64)
+    vals = np.zeros((m, 3))
+    k = 0
+    for f in range(n_int):
+        P = owner[f]
+        N = neigh[f]
+        wf = w[f]
+        r = rho * (wf * rbar[P] + (1.0 - wf) * rbar[N])
+        a = r * dcoef[f]
+        k0 = r * kvec[f, 0]
+        k1 = r * kvec[f, 1]
+        rows[k] = P
+        cols[k] = P
+        vals[k, 0] = a
+        vals[k, 1] = wf * k0
+        vals[k, 2] = wf * k1
+        rows[k + 1] = P
+        cols[k + 1] = N
+        vals[k + 1, 0] = -a
+        vals[k + 1, 1] = (1.0 - wf) * k0
+        vals[k + 1, 2] = (1.0 - wf) * k1
+        rows[k + 2] = N
+        cols[k + 2] = N
+        vals[k + 2, 0] = a
+        vals[k + 2, 1] = -(1.0 - wf) * k0
+        vals[k + 2, 2] = -(1.0 - wf) * k1
+        rows[k + 3] = N
+        cols[k + 3] = P
+        vals[k + 3, 0] = -a
+        vals[k + 3, 1] = -wf * k0
+        vals[k + 3, 2] = -wf * k1
+        k += 4
+    for f in range(n_int, nf):
+        P = owner[f]
+        rows[k] = P
+        cols[k] = P
+        if fixed[f - n_int]:
+            r = rho * rbar[P]
+            vals[k, 0] = r * dcoef[f]
+            vals[k, 1] = r * kvec[f, 0]
+            vals[k, 2] = r * kvec[f, 1]
+        k += 1
+    return rows, cols, vals
+
+
+@njit(cache=True)
+def face_sums(owner, neigh, n_int, F, out):
+    """out[c] += sum over the faces of c of F_f (out of the owner, into the neighbour)."""
+    for f in range(n_int):
+        out[owner[f]] += F[f]
+        out[neigh[f]] -= F[f]
+    for f in range(n_int, owner.shape[0]):
+        out[owner[f]] += F[f]
