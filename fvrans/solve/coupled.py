@@ -91,7 +91,6 @@ class SimultaneousSolver(SimpleSolver):
         """The coupled matrix and right-hand side at the current state; also the residuals of the
         state (the segregated loop's definitions)."""
         fl = self.fields
-        ctl = self.ctl
         rho, ni, g, kind, nc = self.rho, self.ni, self.geom, self.bc.kind, self.nc
         u_old = fl.velocity
         F_old = fl.face_flux
@@ -107,38 +106,8 @@ class SimultaneousSolver(SimpleSolver):
                 self._mu_t += w * (mu_t - self._mu_t)
             mu_t = self._mu_t
         mu_cell = self.mu_cell if mu_t is None else self.mu + mu_t
-        K.face_viscosity(self.owner, self.neigh, ni, g.face_weight, mu_cell, kind,
-                         self.mu + self.model.wall_eddy_viscosity(), self.muf)
-        K.boundary_velocity(self.owner, ni, g.face_normal, g.face_delta, kind, self.bc.velocity, u_old, self.gu,
-                            F_old, self.ub)
-        gu = self.grad(u_old, self.ub, out=self.gu)
-        gc = gu if self.grad_convection is None else self.grad_convection.from_least_squares(
-            u_old, self.ub, gu, out=self.gc)
-        hu = self.hu if self.hess is None else self.hess(u_old, self.ub, out=self.hu)
-        self.gwall[self.wall_faces - ni] = self.wall_grad.velocity(u_old, self.ub, out=self._gwall_k)
-        K.assemble_momentum(
-            self.owner, self.neigh, ni, self.S, self.dcoef, self.kvec, g.face_weight,
-            g.face_centre, g.cell_centre, g.face_shift, F_old, self.muf, u_old, gu, gc, self.gwall, kind,
-            self.bc.velocity, ctl.convection == "linear-upwind",
-            self.diag_u, self.diag_v, self.off_own, self.off_nei, self.bu, self.bv, self.cf_ptr, self.cf_face,
-            self.face_work,
-        )
-        extra = self.model.extra_stress(fl, gu)
-        if extra is not None:
-            div = self.stress_divergence(extra, out=self.div_stress)
-            self.bu += div[:, 0]
-            self.bv += div[:, 1]
+        gu, hu, ru, rv, mag, self.use_turbulence_cfl, _ = self._momentum_equations(mu_cell)
         gp = self.grad_p
-        self.use_turbulence_cfl = bool(self.model.names) and ctl.turbulence_cfl > 0.0
-        if ctl.momentum_cfl > 0.0 or self.use_turbulence_cfl:
-            K.flow_rates(self.owner, self.neigh, ni, F_old, self.width, rho * self.u_scale, self.flow_rate)
-        if ctl.momentum_cfl > 0.0:
-            np.multiply(self.flow_rate, 1.0 / ctl.momentum_cfl, out=self.pt)
-        ru, rv, mag = K.momentum_sources(
-            self.owner, self.neigh, self.vol, self.body, gp, u_old, ctl.alpha_u, self.pt,
-            self.diag_u, self.diag_v, self.off_own, self.off_nei, self.bu, self.bv, self.b_np, self.a_rel,
-            self.rhs_u, self.rhs_v, self.work2, self.cf_ptr, self.cf_face,
-        )
         res = [ru / (mag + 1e-300), rv / (mag + 1e-300)]
         V = self.vol
         r_u = V / self.diag_u

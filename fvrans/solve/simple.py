@@ -413,9 +413,13 @@ class SimpleSolver:
                             self.fields.pressure, gp, pb)
         return pb
 
-    # -- one outer iteration ---------------------------------------------------------------
-    def iterate(self) -> list[float]:
-        """One SIMPLE(C) outer iteration; returns the normalised imbalances [u, v, continuity, ...]."""
+    def _momentum_equations(self, mu_cell: np.ndarray) -> tuple:
+        """Assemble the relaxed momentum equations at the current state, shared by the segregated and
+        the simultaneous loops: face viscosities (cell viscosity ``mu_cell``), boundary velocities,
+        velocity gradients (and the wall gradient), convection-diffusion coefficients, the model's
+        extra stress, pseudo-time terms, body force, pressure gradient and Patankar's relaxation.
+        Returns (grad u, the Hessians buffer of u, u and v imbalances, their scale, whether the
+        turbulence pseudo-time steps are on, seconds spent on the gradients)."""
         fl = self.fields
         ctl = self.ctl
         rho = self.rho
@@ -425,13 +429,6 @@ class SimpleSolver:
         alpha = ctl.alpha_u
         u_old = fl.velocity
         F_old = fl.face_flux
-        t = self.timing
-        t0 = time.perf_counter()
-        mu_t = self.model.eddy_viscosity(fl)
-        if mu_t is None:
-            mu_cell = self.mu_cell
-        else:
-            mu_cell = self.mu + mu_t
         K.face_viscosity(self.owner, self.neigh, ni, g.face_weight, mu_cell, kind,
                          self.mu + self.model.wall_eddy_viscosity(), self.muf)
         K.boundary_velocity(self.owner, ni, g.face_normal, g.face_delta, kind, self.bc.velocity, u_old, self.gu,
@@ -471,6 +468,28 @@ class SimpleSolver:
             self.off_own, self.off_nei, self.bu, self.bv, self.b_np, self.a_rel, self.rhs_u, self.rhs_v,
             self.work2, self.cf_ptr, self.cf_face,
         )
+        return gu, hu, ru, rv, mag, use_turbulence_cfl, t2 - t1
+
+    # -- one outer iteration ---------------------------------------------------------------
+    def iterate(self) -> list[float]:
+        """One SIMPLE(C) outer iteration; returns the normalised imbalances [u, v, continuity, ...]."""
+        fl = self.fields
+        ctl = self.ctl
+        rho = self.rho
+        ni = self.ni
+        g = self.geom
+        kind = self.bc.kind
+        u_old = fl.velocity
+        F_old = fl.face_flux
+        t = self.timing
+        t0 = time.perf_counter()
+        mu_t = self.model.eddy_viscosity(fl)
+        if mu_t is None:
+            mu_cell = self.mu_cell
+        else:
+            mu_cell = self.mu + mu_t
+        gu, hu, ru, rv, mag, use_turbulence_cfl, t_grad = self._momentum_equations(mu_cell)
+        gp = self.grad_p
         res_u = ru / (mag + 1e-300)
         res_v = rv / (mag + 1e-300)
         mu_ = self.asm_u.matrix(self.a_rel[:, 0], self.off_own, self.off_nei)
@@ -527,8 +546,8 @@ class SimpleSolver:
         K.boundary_pressure(self.owner, ni, g.face_delta, kind, self.bc.pressure, p, gp, self.pb)
         self.grad_p = self.grad_pressure(p, self.pb, out=self.grad_p_buf[self.iteration % 2])
         t8 = time.perf_counter()
-        t[0] += t2 - t1 + t8 - t7  # gradients of u and p
-        t[1] += t1 - t0 + t3 - t2  # momentum assembly
+        t[0] += t_grad + t8 - t7  # gradients of u and p
+        t[1] += t3 - t0 - t_grad  # momentum assembly
         t[2] += t4 - t3  # momentum solve
         t[3] += t5 - t4  # Rhie-Chow fluxes and pressure-correction assembly
         t[4] += t6 - t5  # pressure-correction solve
