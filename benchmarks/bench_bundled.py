@@ -23,6 +23,7 @@ import time
 from pathlib import Path
 
 import numpy as np
+from triad import triad_seconds
 
 import fvrans.api as fa
 
@@ -42,20 +43,6 @@ CASES = {
 }
 DEFAULT = ["channel", "channel_re800", "cavity", "plate_laminar", "plate_turbulent", "bump_laminar", "bump_turbulent",
            "step_laminar", "step_coarse"]
-
-
-def triad_seconds(n: int, repeats: int = 50) -> float:
-    """Best time of ``a = b + s*c`` over arrays of length n (numpy, in place)."""
-    b = np.random.default_rng(0).random(n)
-    c = np.random.default_rng(1).random(n)
-    a = np.empty(n)
-    best = np.inf
-    for _ in range(repeats):
-        t0 = time.perf_counter()
-        np.multiply(c, 1.0001, out=a)
-        np.add(a, b, out=a)
-        best = min(best, time.perf_counter() - t0)
-    return best
 
 
 def load(name: str, cold: bool, sets: list[str]) -> fa.Case:

@@ -16,7 +16,7 @@ from __future__ import annotations
 import argparse
 import time
 
-import numpy as np
+from triad import triad_seconds
 
 from fvrans.mesh import compute_geometry
 from fvrans.mesh.generate import cavity
@@ -24,20 +24,6 @@ from fvrans.physics.boundary import build_flow_boundary
 from fvrans.solve.simple import PHASES, SimpleSolver, SolverControls
 
 SPECS = {"lid": {"kind": "wall", "velocity": [1.0, 0.0]}, "walls": {"kind": "wall"}}
-
-
-def triad_seconds(n: int, repeats: int = 50) -> float:
-    """Best time of ``a = b + s*c`` over arrays of length n (numpy, in place)."""
-    b = np.random.default_rng(0).random(n)
-    c = np.random.default_rng(1).random(n)
-    a = np.empty(n)
-    best = np.inf
-    for _ in range(repeats):
-        t0 = time.perf_counter()
-        np.multiply(c, 1.0001, out=a)
-        np.add(a, b, out=a)
-        best = min(best, time.perf_counter() - t0)
-    return best
 
 
 def make_solver(n: int, controls: dict, triangles: bool = False) -> SimpleSolver:

@@ -35,6 +35,7 @@ import time
 from pathlib import Path
 
 import numpy as np
+from triad import triad_seconds
 
 import fvrans.api as fa
 from fvrans.errors import CaseError
@@ -43,20 +44,6 @@ from fvrans.post.separation import reattachment_x
 
 ROOT = Path(__file__).resolve().parents[1]
 ALGORITHMS = ("simplec", "simultaneous")
-
-
-def triad_seconds(n: int, repeats: int = 30) -> float:
-    """Best time of ``a = b + s*c`` over arrays of length n (numpy, in place)."""
-    b = np.random.default_rng(0).random(n)
-    c = np.random.default_rng(1).random(n)
-    a = np.empty(n)
-    best = np.inf
-    for _ in range(repeats):
-        t0 = time.perf_counter()
-        np.multiply(c, 1.0001, out=a)
-        np.add(a, b, out=a)
-        best = min(best, time.perf_counter() - t0)
-    return best
 
 
 def grids(family: str, fine_step: bool) -> list[tuple[str, fa.Problem]]:
@@ -107,7 +94,7 @@ def main(argv: list[str] | None = None) -> int:
         previous: dict[str, int] = {}
         for label, problem in grids(family, args.fine_step):
             nc = problem.mesh.n_cells
-            triad = triad_seconds(nc)
+            triad = triad_seconds(nc, repeats=30)
             results = {}
             for alg in algorithms:
                 t0 = time.perf_counter()

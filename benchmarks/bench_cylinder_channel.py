@@ -30,30 +30,15 @@ from __future__ import annotations
 
 import argparse
 import sys
-import time
 from pathlib import Path
 
-import numpy as np
+from triad import triad_seconds
 
 import fvrans.api as fa
 
 ROOT = Path(__file__).resolve().parents[1]
 CASE = ROOT / "cases" / "cylinder_channel_re20.toml"
 RANGES = {"Cd": (5.57, 5.59), "Cl": (0.0104, 0.0110), "dp": (0.1172, 0.1176)}  # Schaefer & Turek (1996), from memory
-
-
-def triad_seconds(n: int, repeats: int = 50) -> float:
-    """Best time of ``a = b + s*c`` over arrays of length n (numpy, in place)."""
-    b = np.random.default_rng(0).random(n)
-    c = np.random.default_rng(1).random(n)
-    a = np.empty(n)
-    best = np.inf
-    for _ in range(repeats):
-        t0 = time.perf_counter()
-        np.multiply(c, 1.0001, out=a)
-        np.add(a, b, out=a)
-        best = min(best, time.perf_counter() - t0)
-    return best
 
 
 def main(argv: list[str] | None = None) -> int:

@@ -21,6 +21,7 @@ import time
 from pathlib import Path
 
 import numpy as np
+from triad import triad_seconds
 
 import fvrans.api as fa
 from fvrans.fields import Fields
@@ -54,19 +55,6 @@ def station_cf(problem: fa.Problem, x: float):
         return float((1 - w) * c[0] + w * c[1])
 
     return cf
-
-
-def triad_seconds(n: int, repeats: int = 200) -> float:
-    """Best time of a = b + s*c over arrays of length n."""
-    rng = np.random.default_rng(1)
-    a, b, c = np.empty(n), rng.random(n), rng.random(n)
-    best = np.inf
-    for _ in range(repeats):
-        t0 = time.perf_counter()
-        np.multiply(c, 1.5, out=a)
-        np.add(a, b, out=a)
-        best = min(best, time.perf_counter() - t0)
-    return best
 
 
 class TimedModel(TurbulenceModel):
@@ -129,7 +117,7 @@ def run_level(level: str, tight: float, max_iterations: int) -> dict:
     cf097 = float(np.interp(STATION, w.x[o], w.cf[o]))
     cd = patch_forces(w, l_ref=2.0).coefficients()["Cd"]
     us = float(secs.sum()) / solver.iteration / nc * 1e6
-    triad = triad_seconds(nc) / nc * 1e6
+    triad = triad_seconds(nc, repeats=200) / nc * 1e6
     timing = dict(zip(("gradients", "momentum assembly", "momentum solve", "Rhie-Chow + p' assembly",
                        "p' solve", "corrections"), np.asarray(getattr(solver, "timing", np.zeros(6)))))
     phases = {k: float(v) for k, v in timing.items()}

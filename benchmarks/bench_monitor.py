@@ -19,6 +19,7 @@ import time
 from pathlib import Path
 
 import numpy as np
+from triad import triad_seconds
 
 import fvrans.api as fa
 
@@ -30,20 +31,6 @@ COST_PROBES = {
     "derived.dp": {"kind": "difference", "probes": ["a", "b"]},
     "derived.back": {"kind": "recirculation-length", "probe": "line", "quantity": "v"},
 }
-
-
-def triad_seconds(n: int, repeats: int = 50) -> float:
-    """Best time of ``a = b + s*c`` over arrays of length n (numpy, in place)."""
-    b = np.random.default_rng(0).random(n)
-    c = np.random.default_rng(1).random(n)
-    a = np.empty(n)
-    best = np.inf
-    for _ in range(repeats):
-        t0 = time.perf_counter()
-        np.multiply(c, 1.0001, out=a)
-        np.add(a, b, out=a)
-        best = min(best, time.perf_counter() - t0)
-    return best
 
 
 def run_cost(iterations: int = 40) -> None:

@@ -38,6 +38,7 @@ import time
 from pathlib import Path
 
 import numpy as np
+from triad import triad_seconds
 
 ROOT = Path(__file__).resolve().parents[1]
 CASES = {
@@ -45,20 +46,6 @@ CASES = {
     "step_coarse": "step_coarse.toml",
     "plate": "flat_plate_turbulent.toml",
 }
-
-
-def triad_seconds(n: int, repeats: int = 50) -> float:
-    """Best time of ``a = b + s*c`` over arrays of length n (numpy, in place)."""
-    b = np.random.default_rng(0).random(n)
-    c = np.random.default_rng(1).random(n)
-    a = np.empty(n)
-    best = np.inf
-    for _ in range(repeats):
-        t0 = time.perf_counter()
-        np.multiply(c, 1.0001, out=a)
-        np.add(a, b, out=a)
-        best = min(best, time.perf_counter() - t0)
-    return best
 
 
 def threads_table(names: list[str], iterations: int) -> None:

@@ -37,6 +37,7 @@ import time
 from pathlib import Path
 
 import numpy as np
+from triad import triad_seconds
 
 import fvrans.api as fa
 from fvrans.models import model_for_case
@@ -46,19 +47,6 @@ from fvrans.solve.simple import SimpleSolver, SolverControls
 ROOT = Path(__file__).resolve().parents[1]
 STATION = 0.97
 TOLERANCES = (1e-8, 1e-9, 1e-10)
-
-
-def triad_seconds(n: int, repeats: int = 200) -> float:
-    """Best time of a = b + s*c over arrays of length n."""
-    rng = np.random.default_rng(1)
-    a, b, c = np.empty(n), rng.random(n), rng.random(n)
-    best = np.inf
-    for _ in range(repeats):
-        t0 = time.perf_counter()
-        np.multiply(c, 1.5, out=a)
-        np.add(a, b, out=a)
-        best = min(best, time.perf_counter() - t0)
-    return best
 
 
 def station_cf(problem: fa.Problem, x: float):
@@ -124,7 +112,7 @@ def main(argv: list[str] | None = None) -> int:
     rows = {}
     for name, initial in (("uniform", None), (args.source, source)):
         rows[name] = r = run(problem, initial, args.tolerance, args.max_iterations)
-        triad = triad_seconds(nc)
+        triad = triad_seconds(nc, repeats=200)
         per_it = r["seconds"] / max(r["iterations"], 1)
         r["triad_ratio"] = per_it / triad
         print(f"{args.target} from {name}: {r['iterations']} iterations, {r['seconds']:.0f} s "
