@@ -12,88 +12,44 @@ from numba import njit
 
 
 @njit(cache=True)
-def gradient_triplets(owner, neigh, n_int, S, w, fixed):
-    """G p = sum_f p_f S_f per cell (rows u then v): p_f = w p_P + (1 - w) p_N inside, p_P on
-    boundary faces without a given pressure; faces with a given pressure (``fixed[b]``) add nothing
-    (their part is in the deferred term)."""
+def face_sum_triplets(owner, neigh, n_int, S, w, on_boundary, scale):
+    """sum_f phi_f (scale S_f) per cell as two nc x nc blocks on one pattern (values[:, d] for the
+    component d of S_f): phi_f = w phi_P + (1 - w) phi_N inside, phi_P on the boundary faces where
+    ``on_boundary[b]``, nothing on the others. With phi = p (scale 1, faces without a given pressure)
+    the blocks are the pressure gradient G p; with phi = u_d (scale rho, faces with a given pressure:
+    walls, symmetry planes and inflow have given fluxes) the velocity part of continuity."""
     nf = owner.shape[0]
-    nc = 0
-    for f in range(nf):
-        if owner[f] + 1 > nc:
-            nc = owner[f] + 1
-    m = 2 * (4 * n_int + (nf - n_int))
+    m = 4 * n_int + (nf - n_int)
     rows = np.empty(m, dtype=np.int64)
     cols = np.empty(m, dtype=np.int64)
-    vals = np.zeros(m)
+    vals = np.zeros((m, 2))
     k = 0
-    for d in range(2):
-        off = d * nc
-        for f in range(n_int):
-            P = owner[f]
-            N = neigh[f]
-            s = S[f, d]
-            rows[k] = off + P
-            cols[k] = P
-            vals[k] = w[f] * s
-            rows[k + 1] = off + P
-            cols[k + 1] = N
-            vals[k + 1] = (1.0 - w[f]) * s
-            rows[k + 2] = off + N
-            cols[k + 2] = P
-            vals[k + 2] = -w[f] * s
-            rows[k + 3] = off + N
-            cols[k + 3] = N
-            vals[k + 3] = -(1.0 - w[f]) * s
-            k += 4
-        for f in range(n_int, nf):
-            P = owner[f]
-            rows[k] = off + P
-            cols[k] = P
-            vals[k] = 0.0 if fixed[f - n_int] else S[f, d]
-            k += 1
-    return rows, cols, vals
-
-
-@njit(cache=True)
-def face_velocity_triplets(owner, neigh, n_int, S, w, fixed, rho):
-    """The velocity part of the continuity rows, sum_f rho u_f . S_f: u_f = w u_P + (1 - w) u_N
-    inside, u_P on faces with a given pressure (outflow), none elsewhere (walls, symmetry planes
-    and inflow have given fluxes)."""
-    nf = owner.shape[0]
-    nc = 0
-    for f in range(nf):
-        if owner[f] + 1 > nc:
-            nc = owner[f] + 1
-    m = 2 * (4 * n_int + (nf - n_int))
-    rows = np.empty(m, dtype=np.int64)
-    cols = np.empty(m, dtype=np.int64)
-    vals = np.zeros(m)
-    k = 0
-    for d in range(2):
-        off = d * nc
-        for f in range(n_int):
-            P = owner[f]
-            N = neigh[f]
-            s = rho * S[f, d]
-            rows[k] = P
-            cols[k] = off + P
-            vals[k] = w[f] * s
-            rows[k + 1] = P
-            cols[k + 1] = off + N
-            vals[k + 1] = (1.0 - w[f]) * s
-            rows[k + 2] = N
-            cols[k + 2] = off + P
-            vals[k + 2] = -w[f] * s
-            rows[k + 3] = N
-            cols[k + 3] = off + N
-            vals[k + 3] = -(1.0 - w[f]) * s
-            k += 4
-        for f in range(n_int, nf):
-            P = owner[f]
-            rows[k] = P
-            cols[k] = off + P
-            vals[k] = rho * S[f, d] if fixed[f - n_int] else 0.0
-            k += 1
+    for f in range(n_int):
+        P = owner[f]
+        N = neigh[f]
+        rows[k] = P
+        cols[k] = P
+        rows[k + 1] = P
+        cols[k + 1] = N
+        rows[k + 2] = N
+        cols[k + 2] = P
+        rows[k + 3] = N
+        cols[k + 3] = N
+        for d in range(2):
+            s = scale * S[f, d]
+            vals[k, d] = w[f] * s
+            vals[k + 1, d] = (1.0 - w[f]) * s
+            vals[k + 2, d] = -w[f] * s
+            vals[k + 3, d] = -(1.0 - w[f]) * s
+        k += 4
+    for f in range(n_int, nf):
+        P = owner[f]
+        rows[k] = P
+        cols[k] = P
+        if on_boundary[f - n_int]:
+            for d in range(2):
+                vals[k, d] = scale * S[f, d]
+        k += 1
     return rows, cols, vals
 
 

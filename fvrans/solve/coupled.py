@@ -66,12 +66,14 @@ class SimultaneousSolver(SimpleSolver):
         self.fixed = (kind == K.OUTLET) | (kind == K.FREESTREAM)
         self.singular = not self.bc.has_fixed_pressure
         # static parts: G (2nc x nc) and the face-velocity part of continuity, D (nc x 2nc)
-        rows, cols, vals = CK.gradient_triplets(self.owner, self.neigh, ni, self.S, self.geom.face_weight,
-                                                self.fixed)
-        self.G = sp.csr_matrix((vals, (rows, cols)), shape=(2 * nc, nc))
-        rows, cols, vals = CK.face_velocity_triplets(self.owner, self.neigh, ni, self.S, self.geom.face_weight,
-                                                     self.fixed, self.rho)
-        self.D = sp.csr_matrix((vals, (rows, cols)), shape=(nc, 2 * nc))
+        rows, cols, vals = CK.face_sum_triplets(self.owner, self.neigh, ni, self.S, self.geom.face_weight,
+                                                ~self.fixed, 1.0)
+        self.G = sp.csr_matrix((vals.T.ravel(), (np.concatenate([rows, nc + rows]), np.tile(cols, 2))),
+                               shape=(2 * nc, nc))
+        rows, cols, vals = CK.face_sum_triplets(self.owner, self.neigh, ni, self.S, self.geom.face_weight,
+                                                self.fixed, float(self.rho))
+        self.D = sp.csr_matrix((vals.T.ravel(), (np.tile(rows, 2), np.concatenate([cols, nc + cols]))),
+                               shape=(nc, 2 * nc))
         self.lin_seconds = 0.0
         self.lin_iterations: list[int] = []
         self._lu = None
