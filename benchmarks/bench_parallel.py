@@ -164,7 +164,7 @@ def main() -> None:
     ap.add_argument("--iterations", type=int, default=100)
     ap.add_argument("--cases", nargs="*", default=list(CASES), choices=list(CASES))
     ap.add_argument("--cells", type=int, default=400_000)
-    ap.add_argument("--memory-iterations", type=int, default=5)
+    ap.add_argument("--memory-iterations", type=int, default=25)
     ap.add_argument("--memory-cases", nargs="*", default=["cavity", "plate"], choices=["cavity", "plate"])
     ap.add_argument("--skip-threads", action="store_true")
     ap.add_argument("--skip-memory", action="store_true")

@@ -757,6 +757,7 @@ def solve(
         fields_iteration = exc.iteration
         log.error("%s: %s", c.label, message)
     seconds = time.perf_counter() - t0
+    solver.release_work()  # the outputs below need none of the linear solvers' memory
     grad_p = solver.grad_p
     if diverged:
         grad_p = _last_good_gradient(solver, grad_p)

@@ -12,6 +12,7 @@ iteration without rebuilding its structure.
 
 from __future__ import annotations
 
+import weakref
 from dataclasses import dataclass
 
 import numpy as np
@@ -86,35 +87,53 @@ def under_relax(coeffs: Coefficients, phi: np.ndarray, alpha: float) -> Coeffici
     return coeffs
 
 
+_STRUCTURES: dict[int, tuple[weakref.ref, tuple[np.ndarray, ...]]] = {}
+
+
+def _structure(mesh: Mesh) -> tuple[np.ndarray, ...]:
+    """(indptr, indices, diag_pos, owner_pos, neigh_pos) of the mesh's stencil, made once per mesh
+    and shared by all its assemblers (the momentum, pressure and model equations: 64 bytes per
+    cell of quads each otherwise); int32 while the entries fit."""
+    hit = _STRUCTURES.get(id(mesh))
+    if hit is not None and hit[0]() is mesh:
+        return hit[1]
+    nc, nfi = mesh.n_cells, mesh.n_internal_faces
+    own = mesh.face_owner[:nfi]
+    nb = mesh.face_neighbour[:nfi]
+    cells = np.arange(nc, dtype=np.int64)
+    rows = np.concatenate([cells, own, nb])
+    cols = np.concatenate([cells, nb, own])
+    keys = rows * np.int64(nc) + cols
+    del rows, cols
+    ukeys, inv = np.unique(keys, return_inverse=True)
+    del keys
+    itype = np.int32 if len(ukeys) < 2**31 - 1 else np.int64
+    inv = inv.ravel().astype(itype)
+    indptr = np.zeros(nc + 1, dtype=itype)
+    np.cumsum(np.bincount(ukeys // nc, minlength=nc), out=indptr[1:])
+    indices = (ukeys % nc).astype(itype)
+    struct = (indptr, indices, inv[:nc], inv[nc : nc + nfi], inv[nc + nfi :])
+    key = id(mesh)
+    _STRUCTURES[key] = (weakref.ref(mesh, lambda _, key=key: _STRUCTURES.pop(key, None)), struct)
+    return struct
+
+
 class CsrAssembler:
     """Fixed CSR structure of the cell-centred stencil (diagonal + one entry per face neighbour).
 
-    Built once per mesh. ``diag_pos[c]``, ``owner_pos[f]`` (row O, column N) and ``neigh_pos[f]``
-    (row N, column O) are the positions in ``matrix.data``; :meth:`matrix` refills ``data`` in
-    place and returns the same ``scipy.sparse.csr_matrix`` object every time (column indices
-    sorted, no explicit structure rebuild). Two faces between the same two cells share an entry.
+    Built once per mesh (the structure is shared by every assembler of the mesh). ``diag_pos[c]``,
+    ``owner_pos[f]`` (row O, column N) and ``neigh_pos[f]`` (row N, column O) are the positions
+    in ``matrix.data``; :meth:`matrix` refills ``data`` in place and returns the same
+    ``scipy.sparse.csr_matrix`` object every time (column indices sorted, no explicit structure
+    rebuild). Two faces between the same two cells share an entry.
     """
 
     def __init__(self, mesh: Mesh):
-        nc, nfi = mesh.n_cells, mesh.n_internal_faces
-        own = mesh.face_owner[:nfi]
-        nb = mesh.face_neighbour[:nfi]
-        cells = np.arange(nc, dtype=np.int64)
-        rows = np.concatenate([cells, own, nb])
-        cols = np.concatenate([cells, nb, own])
-        keys = rows * np.int64(nc) + cols
-        ukeys, inv = np.unique(keys, return_inverse=True)
-        inv = inv.ravel().astype(np.int64)
-        urows = ukeys // nc
-        indptr = np.zeros(nc + 1, dtype=np.int32 if len(ukeys) < 2**31 - 1 else np.int64)
-        np.cumsum(np.bincount(urows, minlength=nc), out=indptr[1:])
-        indices = (ukeys % nc).astype(indptr.dtype)
-        self.n_cells = nc
-        self.n_internal_faces = nfi
-        self.diag_pos = np.ascontiguousarray(inv[:nc])
-        self.owner_pos = np.ascontiguousarray(inv[nc : nc + nfi])
-        self.neigh_pos = np.ascontiguousarray(inv[nc + nfi :])
-        data = np.zeros(len(ukeys))
+        self.n_cells = mesh.n_cells
+        self.n_internal_faces = mesh.n_internal_faces
+        indptr, indices, self.diag_pos, self.owner_pos, self.neigh_pos = _structure(mesh)
+        nc = mesh.n_cells
+        data = np.zeros(len(indices))
         self._matrix = sp.csr_matrix((data, indices, indptr), shape=(nc, nc), copy=False)
         self._matrix.has_sorted_indices = True
         self._data = self._matrix.data

@@ -14,17 +14,95 @@ from numba import njit, prange
 
 from fvrans.jit import PARALLEL_MIN_CELLS as PAR_MIN
 
+#: sums over PAR_MIN terms or more are formed as this many partial sums over consecutive chunks,
+#: added in order: the same bits whatever the number of threads
+SUM_CHUNKS = 16
 
-@njit(cache=True, nogil=True)
-def _smooth(ptr, po, idx, dat, dinv, x, b, vo, n, forward):
-    """One Gauss-Seidel sweep on level rows [vo, vo + n), forward or backward (serial: each row
-    uses the rows updated before it)."""
-    for ii in range(n):
-        i = ii if forward else n - 1 - ii
+
+@njit(cache=True, nogil=True, inline="always")
+def _smooth_rows(ptr, po, idx, dat, dinv, x, b, vo, lo, hi, forward):
+    """Gauss-Seidel over the level rows [lo, hi), forward or backward: each row uses the latest
+    values of every unknown."""
+    for ii in range(hi - lo):
+        i = lo + ii if forward else hi - 1 - ii
         acc = b[vo + i]
         for k in range(ptr[po + i], ptr[po + i + 1]):
             acc -= dat[k] * x[vo + idx[k]]
         x[vo + i] += acc * dinv[vo + i]
+
+
+@njit(cache=True, nogil=True, parallel=True)
+def _smooth(ptr, po, idx, dat, dinv, x, b, vo, n, colour_ptr, order, forward, par):
+    """One Gauss-Seidel sweep on the level rows [vo, vo + n), forward or backward, block by block.
+
+    The rows are cut into ``nb`` blocks of consecutive rows (block k: rows k n / nb to
+    (k + 1) n / nb); the blocks are coloured so that no row of a block couples to a row of another
+    block of its colour (``block_colours``). ``colour_ptr[0]`` = number of colours C; the blocks of
+    colour c are ``order[colour_ptr[1 + c] : colour_ptr[2 + c]]``, nb = ``colour_ptr[1 + C]``. The
+    forward sweep takes the colours in turn and the blocks of one colour at once (on every thread
+    when ``par``), each block forward; the backward sweep is the exact reverse. Blocks of one colour
+    share no coupling, so this is Gauss-Seidel in one fixed row order, whatever the thread count;
+    one block is the plain lexicographic sweep.
+    """
+    ncol = colour_ptr[0]
+    nb = colour_ptr[1 + ncol]
+    for cc in range(ncol):
+        c = cc if forward else ncol - 1 - cc
+        first = colour_ptr[1 + c]
+        count = colour_ptr[2 + c] - first
+        if par and count > 1:
+            for q in prange(count):
+                blk = order[first + q]
+                _smooth_rows(ptr, po, idx, dat, dinv, x, b, vo, blk * n // nb, (blk + 1) * n // nb, forward)
+        else:
+            for q in range(count):
+                blk = order[first + q]
+                _smooth_rows(ptr, po, idx, dat, dinv, x, b, vo, blk * n // nb, (blk + 1) * n // nb, forward)
+
+
+@njit(cache=True)
+def block_colours(ptr, idx, n, nb, colour_ptr, order):
+    """Colour the ``nb`` blocks of consecutive rows of the CSR matrix (ptr, idx) of ``n`` rows
+    greedily (block k: rows k n / nb to (k + 1) n / nb): two blocks coupled by a nonzero in either
+    direction get different colours. Fills ``colour_ptr`` (nb + 2) and ``order`` (nb) as
+    ``_smooth`` reads them; returns the number of colours."""
+    adj = np.zeros((nb, nb), dtype=np.bool_)
+    for bi in range(nb):
+        for i in range(bi * n // nb, (bi + 1) * n // nb):
+            for k in range(ptr[i], ptr[i + 1]):
+                bj = (idx[k] * nb + nb - 1) // n  # block of column j: the k with k n / nb <= j
+                while bj > 0 and idx[k] < bj * n // nb:
+                    bj -= 1
+                while bj < nb - 1 and idx[k] >= (bj + 1) * n // nb:
+                    bj += 1
+                if bj != bi:
+                    adj[bi, bj] = True
+                    adj[bj, bi] = True
+    colour = np.full(nb, -1, dtype=np.int64)
+    ncol = 0
+    for bi in range(nb):
+        c = 0
+        while True:
+            clash = False
+            for bj in range(nb):
+                if adj[bi, bj] and colour[bj] == c:
+                    clash = True
+                    break
+            if not clash:
+                break
+            c += 1
+        colour[bi] = c
+        ncol = max(ncol, c + 1)
+    colour_ptr[0] = ncol
+    q = 0
+    for c in range(ncol):
+        colour_ptr[1 + c] = q
+        for bi in range(nb):
+            if colour[bi] == c:
+                order[q] = bi
+                q += 1
+    colour_ptr[1 + ncol] = nb
+    return ncol
 
 
 @njit(cache=True, nogil=True, parallel=True)
@@ -74,7 +152,7 @@ def _apply_add(ptr, po, idx, dat, x, xo, y, yo, n, add, par):
 
 @njit(cache=True, nogil=True)
 def vcycle(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_idx, p_dat,
-           r_ptr, r_pofs, r_idx, r_dat, cinv, sweeps, x, b, r, par):
+           r_ptr, r_pofs, r_idx, r_dat, cinv, sweeps, s_ptr, s_order, x, b, r, par):
     """x = M^-1 b on level 0 (x, b, r level-stacked; b[:n0] holds the input, x[:n0] the output).
 
     V(sweeps, sweeps) cycle: forward Gauss-Seidel before, backward after the coarse-grid
@@ -87,7 +165,7 @@ def vcycle(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_id
         m = n[lv]
         _fill(x, vo, m, 0.0, par)
         for _ in range(sweeps):
-            _smooth(a_ptr, a_pofs[lv], a_idx, a_dat, dinv, x, b, vo, m, True)
+            _smooth(a_ptr, a_pofs[lv], a_idx, a_dat, dinv, x, b, vo, m, s_ptr[lv], s_order[lv], True, par)
         _residual(a_ptr, a_pofs[lv], a_idx, a_dat, x, vo, b, vo, r, vo, m, par)
         _apply_add(r_ptr, r_pofs[lv], r_idx, r_dat, r, vo, b, voff[lv + 1], n[lv + 1], False, par)
     # coarsest level
@@ -103,40 +181,77 @@ def vcycle(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_id
         vo = voff[lv]
         _apply_add(p_ptr, p_pofs[lv], p_idx, p_dat, x, voff[lv + 1], x, vo, n[lv], True, par)
         for _ in range(sweeps):
-            _smooth(a_ptr, a_pofs[lv], a_idx, a_dat, dinv, x, b, vo, n[lv], False)
+            _smooth(a_ptr, a_pofs[lv], a_idx, a_dat, dinv, x, b, vo, n[lv], s_ptr[lv], s_order[lv], False, par)
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _chunk(c, n):
+    """Rows [lo, hi) of chunk c of the ``SUM_CHUNKS`` chunks of a sum over n terms."""
+    return c * n // SUM_CHUNKS, (c + 1) * n // SUM_CHUNKS
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _add_parts(part):
+    s = 0.0
+    for c in range(SUM_CHUNKS):
+        s += part[c]
+    return s
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _matvec_rows(ptr, idx, dat, x, out, lo, hi):
+    s = 0.0
+    for i in range(lo, hi):
+        acc = 0.0
+        for k in range(ptr[i], ptr[i + 1]):
+            acc += dat[k] * x[idx[k]]
+        out[i] = acc
+        s += x[i] * acc
+    return s
 
 
 @njit(cache=True, nogil=True, parallel=True)
 def _matvec_dot(ptr, idx, dat, x, out, n, par):
-    """out = A x on level 0 (ptr[0:n+1] are level-0 row pointers); returns x . out."""
-    s = 0.0
-    if par and n >= PAR_MIN:
-        for i in prange(n):
-            acc = 0.0
-            for k in range(ptr[i], ptr[i + 1]):
-                acc += dat[k] * x[idx[k]]
-            out[i] = acc
-            s += x[i] * acc
+    """out = A x on level 0 (ptr[0:n+1] are level-0 row pointers); returns x . out (summed as
+    ``_dot`` does)."""
+    if n < PAR_MIN:
+        return _matvec_rows(ptr, idx, dat, x, out, 0, n)
+    part = np.empty(SUM_CHUNKS)
+    if par:
+        for c in prange(SUM_CHUNKS):
+            lo, hi = _chunk(c, n)
+            part[c] = _matvec_rows(ptr, idx, dat, x, out, lo, hi)
     else:
-        for i in range(n):
-            acc = 0.0
-            for k in range(ptr[i], ptr[i + 1]):
-                acc += dat[k] * x[idx[k]]
-            out[i] = acc
-            s += x[i] * acc
+        for c in range(SUM_CHUNKS):
+            lo, hi = _chunk(c, n)
+            part[c] = _matvec_rows(ptr, idx, dat, x, out, lo, hi)
+    return _add_parts(part)
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _dot_rows(a, b, lo, hi):
+    s = 0.0
+    for i in range(lo, hi):
+        s += a[i] * b[i]
     return s
 
 
 @njit(cache=True, nogil=True, parallel=True)
 def _dot(a, b, n, par):
-    s = 0.0
-    if par and n >= PAR_MIN:
-        for i in prange(n):
-            s += a[i] * b[i]
+    """a[:n] . b[:n]: in order below ``PAR_MIN`` terms, else as the sum of ``SUM_CHUNKS`` partial
+    sums in order (the chunks on every thread when ``par``): the same bits on any thread count."""
+    if n < PAR_MIN:
+        return _dot_rows(a, b, 0, n)
+    part = np.empty(SUM_CHUNKS)
+    if par:
+        for c in prange(SUM_CHUNKS):
+            lo, hi = _chunk(c, n)
+            part[c] = _dot_rows(a, b, lo, hi)
     else:
-        for i in range(n):
-            s += a[i] * b[i]
-    return s
+        for c in range(SUM_CHUNKS):
+            lo, hi = _chunk(c, n)
+            part[c] = _dot_rows(a, b, lo, hi)
+    return _add_parts(part)
 
 
 @njit(cache=True, nogil=True, parallel=True)
@@ -150,19 +265,30 @@ def _axpy(y, a, x, n, par):
             y[i] += a * x[i]
 
 
+@njit(cache=True, nogil=True, inline="always")
+def _axpy_norm2_rows(y, a, x, lo, hi):
+    s = 0.0
+    for i in range(lo, hi):
+        y[i] += a * x[i]
+        s += y[i] * y[i]
+    return s
+
+
 @njit(cache=True, nogil=True, parallel=True)
 def _axpy_norm2(y, a, x, n, par):
-    """y += a x; returns y . y."""
-    s = 0.0
-    if par and n >= PAR_MIN:
-        for i in prange(n):
-            y[i] += a * x[i]
-            s += y[i] * y[i]
+    """y += a x; returns y . y (summed as ``_dot`` does)."""
+    if n < PAR_MIN:
+        return _axpy_norm2_rows(y, a, x, 0, n)
+    part = np.empty(SUM_CHUNKS)
+    if par:
+        for c in prange(SUM_CHUNKS):
+            lo, hi = _chunk(c, n)
+            part[c] = _axpy_norm2_rows(y, a, x, lo, hi)
     else:
-        for i in range(n):
-            y[i] += a * x[i]
-            s += y[i] * y[i]
-    return s
+        for c in range(SUM_CHUNKS):
+            lo, hi = _chunk(c, n)
+            part[c] = _axpy_norm2_rows(y, a, x, lo, hi)
+    return _add_parts(part)
 
 
 @njit(cache=True, nogil=True, parallel=True)
@@ -200,14 +326,28 @@ def _axpy2(y, a, x, b, z, n, par):
 
 @njit(cache=True, nogil=True, parallel=True)
 def _remove_mean(a, n, par):
-    """a[:n] -= mean(a[:n])."""
-    s = 0.0
-    if par and n >= PAR_MIN:
-        for i in prange(n):
-            s += a[i]
-    else:
+    """a[:n] -= mean(a[:n]) (the sum as ``_dot`` forms it)."""
+    if n < PAR_MIN:
+        s = 0.0
         for i in range(n):
             s += a[i]
+    else:
+        part = np.empty(SUM_CHUNKS)
+        if par:
+            for c in prange(SUM_CHUNKS):
+                lo, hi = _chunk(c, n)
+                q = 0.0
+                for i in range(lo, hi):
+                    q += a[i]
+                part[c] = q
+        else:
+            for c in range(SUM_CHUNKS):
+                lo, hi = _chunk(c, n)
+                q = 0.0
+                for i in range(lo, hi):
+                    q += a[i]
+                part[c] = q
+        s = _add_parts(part)
     s /= n
     if par and n >= PAR_MIN:
         for i in prange(n):
@@ -219,7 +359,8 @@ def _remove_mean(a, n, par):
 
 @njit(cache=True, nogil=True)
 def pcg(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_idx, p_dat,
-        r_ptr, r_pofs, r_idx, r_dat, cinv, sweeps, rhs, sol, rtol, maxiter, singular, xs, bs, rs, w, par):
+        r_ptr, r_pofs, r_idx, r_dat, cinv, sweeps, s_ptr, s_order, rhs, sol, rtol, maxiter, singular, xs, bs, rs, w,
+        par):
     """Conjugate gradients preconditioned by one V-cycle (Saad 2003, Iterative Methods for Sparse
     Linear Systems, alg. 9.1) on A sol = rhs until ||r||_2 <= rtol ||rhs||_2.
 
@@ -247,7 +388,7 @@ def pcg(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_idx, 
     while it < maxiter:
         _copy(bs, res, n0, par)
         vcycle(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_idx, p_dat,
-               r_ptr, r_pofs, r_idx, r_dat, cinv, sweeps, xs, bs, rs, par)
+               r_ptr, r_pofs, r_idx, r_dat, cinv, sweeps, s_ptr, s_order, xs, bs, rs, par)
         if singular:
             _remove_mean(xs, n0, par)
         rz = _dot(res, xs, n0, par)
@@ -272,7 +413,7 @@ def pcg(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_idx, 
 
 @njit(cache=True, nogil=True)
 def bicgstab(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_idx, p_dat,
-             r_ptr, r_pofs, r_idx, r_dat, cinv, sweeps, rhs, sol, rtol, maxiter, xs, bs, rs, w, par):
+             r_ptr, r_pofs, r_idx, r_dat, cinv, sweeps, s_ptr, s_order, rhs, sol, rtol, maxiter, xs, bs, rs, w, par):
     """Right-preconditioned BiCGStab (van der Vorst 1992, SIAM J. Sci. Stat. Comput. 13, 631-644)
     with one V-cycle as preconditioner, until ||b - A x||_2 <= rtol ||b - A x0||_2.
 
@@ -309,7 +450,7 @@ def bicgstab(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_
         _xpby(pdir, res, beta, n0, par)
         _copy(bs, pdir, n0, par)
         vcycle(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_idx, p_dat,
-               r_ptr, r_pofs, r_idx, r_dat, cinv, sweeps, xs, bs, rs, par)
+               r_ptr, r_pofs, r_idx, r_dat, cinv, sweeps, s_ptr, s_order, xs, bs, rs, par)
         _copy(phat, xs, n0, par)
         _apply_add(a_ptr, 0, a_idx, a_dat, phat, 0, v, 0, n0, False, par)
         rv = _dot(rhat, v, n0, par)
@@ -324,7 +465,7 @@ def bicgstab(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_
             break
         _copy(bs, res, n0, par)
         vcycle(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_idx, p_dat,
-               r_ptr, r_pofs, r_idx, r_dat, cinv, sweeps, xs, bs, rs, par)
+               r_ptr, r_pofs, r_idx, r_dat, cinv, sweeps, s_ptr, s_order, xs, bs, rs, par)
         _copy(shat, xs, n0, par)
         _apply_add(a_ptr, 0, a_idx, a_dat, shat, 0, t, 0, n0, False, par)
         tt = _dot(t, t, n0, par)

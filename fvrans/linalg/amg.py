@@ -29,6 +29,11 @@ from fvrans.jit import threads
 from fvrans.linalg import _amg_kernels as _k
 
 log = logging.getLogger(__name__)
+#: the Gauss-Seidel sweep of a level of n rows runs in nb blocks of consecutive rows, nb the
+#: largest power of two up to SMOOTHER_MAX_BLOCKS with n >= nb SMOOTHER_BLOCK_ROWS, or one block
+#: (the plain sweep) below 4 (two blocks would always be two colours: no gain); see smoother_blocks
+SMOOTHER_BLOCK_ROWS = 1024
+SMOOTHER_MAX_BLOCKS = 16
 _pool: ThreadPoolExecutor | None = None
 
 
@@ -50,24 +55,46 @@ if hasattr(os, "register_at_fork"):
     os.register_at_fork(after_in_child=_forget_pool)
 
 
-def _stack_csr(mats: list[sp.csr_matrix]) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """Concatenate CSR blocks: (ptr, pofs, idx, dat) with absolute row pointers."""
-    ptrs, idxs, dats, pofs = [], [], [], []
-    nz = 0
-    po = 0
-    for m in mats:
-        m = sp.csr_matrix(m)
+def smoother_blocks(rows: int) -> int:
+    """Blocks of the Gauss-Seidel sweep on a level of ``rows`` rows (``_amg_kernels._smooth``):
+    it depends on the level's size only, so the cycle is the same operator on any number of
+    threads."""
+    nb = 1
+    while nb < SMOOTHER_MAX_BLOCKS and rows >= 2 * nb * SMOOTHER_BLOCK_ROWS:
+        nb *= 2
+    return nb if nb >= 4 else 1
+
+
+class _Stack:
+    """CSR blocks, one per level, in preallocated stacked arrays (filled level by level, so the
+    source matrices can be dropped as they are copied): row pointers ``ptr`` absolute into the
+    stacked ``idx`` / ``dat`` (int32 while the entries fit), ``pofs[l]`` where level l's pointers
+    start, column indices local to the level (int32)."""
+
+    def __init__(self, shapes: list[tuple[int, int]]):
+        rows = sum(m for m, _ in shapes)
+        nnz = sum(z for _, z in shapes)
+        self.ptr = np.zeros(rows + len(shapes) if shapes else 1, dtype=np.int32 if nnz < 2**31 - 1 else np.int64)
+        self.pofs = np.zeros(max(len(shapes), 1), dtype=np.int64)
+        self.idx = np.zeros(nnz, dtype=np.int32)
+        self.dat = np.zeros(nnz)
+        self._level = 0
+        self._row = 0
+        self._nz = 0
+
+    def add(self, m: sp.csr_matrix) -> None:
         m.sort_indices()
-        pofs.append(po)
-        ptrs.append(m.indptr.astype(np.int64) + nz)
-        idxs.append(m.indices.astype(np.int32))  # column within the level: 4 bytes (of 16 per entry)
-        dats.append(m.data.astype(np.float64))
-        nz += m.nnz
-        po += m.shape[0] + 1
-    if not mats:
-        z = np.zeros(1, dtype=np.int64)
-        return z, z.copy(), np.zeros(0, dtype=np.int32), np.zeros(0)
-    return np.concatenate(ptrs), np.asarray(pofs, dtype=np.int64), np.concatenate(idxs), np.concatenate(dats)
+        r, z = m.shape[0], m.nnz
+        self.pofs[self._level] = self._row
+        self.ptr[self._row : self._row + r + 1] = m.indptr + self._nz
+        self.idx[self._nz : self._nz + z] = m.indices
+        self.dat[self._nz : self._nz + z] = m.data
+        self._level += 1
+        self._row += r + 1
+        self._nz += z
+
+    def arrays(self) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        return self.ptr, self.pofs, self.idx, self.dat
 
 
 class AmgKrylovSolver:
@@ -108,33 +135,43 @@ class AmgKrylovSolver:
     # -- hierarchy --------------------------------------------------------------------------
     def rebuild(self, A: sp.csr_matrix) -> None:
         """Set up the hierarchy from ``A`` (values copied; A's structure is the fine structure)."""
+        self.release()  # the old hierarchy goes first: the new one is built beside pyamg's, not beside both
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
             ml = pyamg.ruge_stuben_solver(sp.csr_matrix(A, copy=True), max_coarse=self.max_coarse, max_levels=25)
         levels = ml.levels
-        As = [lv.A for lv in levels]
-        a_ptr, a_pofs, a_idx, a_dat = _stack_csr(As)
-        p_ptr, p_pofs, p_idx, p_dat = _stack_csr([lv.P for lv in levels[:-1]])
-        r_ptr, r_pofs, r_idx, r_dat = _stack_csr([lv.R for lv in levels[:-1]])
-        n = np.asarray([m.shape[0] for m in As], dtype=np.int64)
+        del ml
+        n = np.asarray([lv.A.shape[0] for lv in levels], dtype=np.int64)
         voff = np.zeros(len(n), dtype=np.int64)
         voff[1:] = np.cumsum(n)[:-1]
         total = int(n.sum())
+        a = _Stack([(lv.A.shape[0], lv.A.nnz) for lv in levels])
+        p = _Stack([(lv.P.shape[0], lv.P.nnz) for lv in levels[:-1]])
+        r = _Stack([(lv.R.shape[0], lv.R.nnz) for lv in levels[:-1]])
         dinv = np.zeros(total)
-        for lv, m in enumerate(As):
+        s_ptr = np.zeros((len(n), SMOOTHER_MAX_BLOCKS + 2), dtype=np.int64)
+        s_order = np.zeros((len(n), SMOOTHER_MAX_BLOCKS), dtype=np.int64)
+        self._fine_nnz = levels[0].A.nnz
+        for lv, level in enumerate(levels):
+            m = level.A
+            a.add(m)
             d = np.asarray(m.diagonal(), dtype=float)
             dinv[voff[lv] : voff[lv] + n[lv]] = np.where(d != 0.0, 1.0 / np.where(d != 0.0, d, 1.0), 0.0)
+            _k.block_colours(m.indptr, m.indices, m.shape[0], smoother_blocks(m.shape[0]), s_ptr[lv], s_order[lv])
+            if lv < len(levels) - 1:
+                p.add(level.P)
+                r.add(level.R)
+                level.A = level.P = level.R = None  # copied: let them go before the next level
         # coarsest level: dense generalised inverse (numba; no LAPACK, whose threads can stall
         # badly on a busy machine)
-        coarse = np.ascontiguousarray(As[-1].toarray(), dtype=np.float64)
+        coarse = np.ascontiguousarray(levels[-1].A.toarray(), dtype=np.float64)
+        del levels
         cinv2 = np.empty_like(coarse)
         _k.dense_inverse(coarse, cinv2, self.singular)
         cinv = cinv2.ravel()
         n0 = int(n[0])
-        self._fine_nnz = As[0].nnz
         self._h = (
-            len(n), n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_idx, p_dat,
-            r_ptr, r_pofs, r_idx, r_dat, cinv, self.sweeps,
+            len(n), n, voff, *a.arrays(), dinv, *p.arrays(), *r.arrays(), cinv, self.sweeps, s_ptr, s_order,
         )
         self._vec = (np.zeros(total), np.zeros(total), np.zeros(total))
         self._work = np.zeros((3 if self.method == "cg" else 7, n0))
@@ -142,6 +179,10 @@ class AmgKrylovSolver:
         self._uses = 0
         self.rebuilds += 1
         self.levels = [int(k) for k in n]
+
+    def release(self) -> None:
+        """Drop the hierarchy and its work arrays (the next solve builds a new one)."""
+        self._h = self._vec = self._work = self._twin = None
 
     def _run(self, A: sp.csr_matrix, b: np.ndarray, x: np.ndarray, state: tuple | None = None,
              par: bool | None = None) -> tuple[int, float]:

@@ -560,6 +560,12 @@ class SimpleSolver:
         self.iteration += 1
         return res
 
+    def release_work(self) -> None:
+        """Free the multigrid hierarchies of the velocity and pressure solves when the run is over
+        (~0.8 KB per cell), before its outputs are evaluated; a further iteration rebuilds them."""
+        self.msolver.release()
+        self.psolver.krylov.release()
+
     def resume(self, iteration: int, rows: Any, seconds: Any, velocity_scale: float,
                pressure_gradient: np.ndarray | None = None) -> None:
         """Continue a saved run: its iteration count, residual history, velocity scale (of the
