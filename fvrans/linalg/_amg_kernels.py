@@ -37,7 +37,7 @@ def _smooth(ptr, po, idx, dat, dinv, x, b, vo, n, colour_ptr, order, forward, pa
 
     The rows are cut into ``nb`` blocks of consecutive rows (block k: rows k n / nb to
     (k + 1) n / nb); the blocks are coloured so that no row of a block couples to a row of another
-    block of its colour (``block_colours``). ``colour_ptr[0]`` = number of colours C; the blocks of
+    block of its colour (``amg.block_colours``). ``colour_ptr[0]`` = number of colours C; the blocks of
     colour c are ``order[colour_ptr[1 + c] : colour_ptr[2 + c]]``, nb = ``colour_ptr[1 + C]``. The
     forward sweep takes the colours in turn and the blocks of one colour at once (on every thread
     when ``par``), each block forward; the backward sweep is the exact reverse. Blocks of one colour
@@ -58,51 +58,6 @@ def _smooth(ptr, po, idx, dat, dinv, x, b, vo, n, colour_ptr, order, forward, pa
             for q in range(count):
                 blk = order[first + q]
                 _smooth_rows(ptr, po, idx, dat, dinv, x, b, vo, blk * n // nb, (blk + 1) * n // nb, forward)
-
-
-@njit(cache=True)
-def block_colours(ptr, idx, n, nb, colour_ptr, order):
-    """Colour the ``nb`` blocks of consecutive rows of the CSR matrix (ptr, idx) of ``n`` rows
-    greedily (block k: rows k n / nb to (k + 1) n / nb): two blocks coupled by a nonzero in either
-    direction get different colours. Fills ``colour_ptr`` (nb + 2) and ``order`` (nb) as
-    ``_smooth`` reads them; returns the number of colours."""
-    adj = np.zeros((nb, nb), dtype=np.bool_)
-    for bi in range(nb):
-        for i in range(bi * n // nb, (bi + 1) * n // nb):
-            for k in range(ptr[i], ptr[i + 1]):
-                bj = (idx[k] * nb + nb - 1) // n  # block of column j: the k with k n / nb <= j
-                while bj > 0 and idx[k] < bj * n // nb:
-                    bj -= 1
-                while bj < nb - 1 and idx[k] >= (bj + 1) * n // nb:
-                    bj += 1
-                if bj != bi:
-                    adj[bi, bj] = True
-                    adj[bj, bi] = True
-    colour = np.full(nb, -1, dtype=np.int64)
-    ncol = 0
-    for bi in range(nb):
-        c = 0
-        while True:
-            clash = False
-            for bj in range(nb):
-                if adj[bi, bj] and colour[bj] == c:
-                    clash = True
-                    break
-            if not clash:
-                break
-            c += 1
-        colour[bi] = c
-        ncol = max(ncol, c + 1)
-    colour_ptr[0] = ncol
-    q = 0
-    for c in range(ncol):
-        colour_ptr[1 + c] = q
-        for bi in range(nb):
-            if colour[bi] == c:
-                order[q] = bi
-                q += 1
-    colour_ptr[1 + ncol] = nb
-    return ncol
 
 
 @njit(cache=True, nogil=True, parallel=True)
@@ -155,19 +110,25 @@ def vcycle(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_id
            r_ptr, r_pofs, r_idx, r_dat, cinv, sweeps, s_ptr, s_order, x, b, r, par):
     """x = M^-1 b on level 0 (x, b, r level-stacked; b[:n0] holds the input, x[:n0] the output).
 
-    V(sweeps, sweeps) cycle: forward Gauss-Seidel before, backward after the coarse-grid
-    correction, so the cycle is a symmetric operator for a symmetric matrix (usable in CG).
-    ``par``: residuals, restriction and prolongation of the large levels on every thread (the
-    smoothing stays serial, so the cycle is the same operator whatever the thread count).
+    V(sweeps, sweeps) cycle: forward Gauss-Seidel before, backward (the exact reverse order)
+    after the coarse-grid correction, so the cycle is a symmetric operator for a symmetric matrix
+    (usable in CG). ``s_ptr[l]`` / ``s_order[l]``: the coloured blocks of level l's sweep
+    (``_smooth``). ``par``: the sweeps, residuals, restriction and prolongation of the large levels
+    on every thread; every row is computed as on one thread, so the cycle gives the same bits
+    whatever the thread count.
     """
+    # flags and offsets read from arrays, not written as constants: a literal argument (True, 0)
+    # makes numba compile one more version of the helper it is passed to
+    yes = n[0] >= 0
+    no = n[0] < 0
     for lv in range(nlev - 1):
         vo = voff[lv]
         m = n[lv]
         _fill(x, vo, m, 0.0, par)
         for _ in range(sweeps):
-            _smooth(a_ptr, a_pofs[lv], a_idx, a_dat, dinv, x, b, vo, m, s_ptr[lv], s_order[lv], True, par)
+            _smooth(a_ptr, a_pofs[lv], a_idx, a_dat, dinv, x, b, vo, m, s_ptr[lv], s_order[lv], yes, par)
         _residual(a_ptr, a_pofs[lv], a_idx, a_dat, x, vo, b, vo, r, vo, m, par)
-        _apply_add(r_ptr, r_pofs[lv], r_idx, r_dat, r, vo, b, voff[lv + 1], n[lv + 1], False, par)
+        _apply_add(r_ptr, r_pofs[lv], r_idx, r_dat, r, vo, b, voff[lv + 1], n[lv + 1], no, par)
     # coarsest level
     lc = nlev - 1
     vc = voff[lc]
@@ -179,9 +140,9 @@ def vcycle(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_id
         x[vc + i] = acc
     for lv in range(nlev - 2, -1, -1):
         vo = voff[lv]
-        _apply_add(p_ptr, p_pofs[lv], p_idx, p_dat, x, voff[lv + 1], x, vo, n[lv], True, par)
+        _apply_add(p_ptr, p_pofs[lv], p_idx, p_dat, x, voff[lv + 1], x, vo, n[lv], yes, par)
         for _ in range(sweeps):
-            _smooth(a_ptr, a_pofs[lv], a_idx, a_dat, dinv, x, b, vo, n[lv], s_ptr[lv], s_order[lv], False, par)
+            _smooth(a_ptr, a_pofs[lv], a_idx, a_dat, dinv, x, b, vo, n[lv], s_ptr[lv], s_order[lv], no, par)
 
 
 @njit(cache=True, nogil=True, inline="always")
@@ -366,10 +327,11 @@ def pcg(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_idx, 
 
     ``singular``: A has the constant null vector; rhs and iterates are kept mean-free.
     ``w`` is (3, n0) work. ``par``: the vector operations, products and the parallel parts of the
-    cycle on every thread (sums then change in the last digits with the thread count).
+    cycle on every thread (sums in fixed chunks: the same bits on any thread count).
     Returns (iterations, final relative residual).
     """
     n0 = n[0]
+    zero = voff[0]  # not a literal 0 (see vcycle)
     res = w[0]
     pdir = w[1]
     q = w[2]
@@ -377,9 +339,9 @@ def pcg(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_idx, 
         _remove_mean(rhs, n0, par)
     bnorm = np.sqrt(_dot(rhs, rhs, n0, par))
     if bnorm == 0.0:
-        _fill(sol, 0, n0, 0.0, par)
+        _fill(sol, zero, n0, 0.0, par)
         return 0, 0.0
-    _residual(a_ptr, 0, a_idx, a_dat, sol, 0, rhs, 0, res, 0, n0, par)
+    _residual(a_ptr, zero, a_idx, a_dat, sol, zero, rhs, zero, res, zero, n0, par)
     rnorm = np.sqrt(_dot(res, res, n0, par))
     if rnorm <= rtol * bnorm:
         return 0, rnorm / bnorm
@@ -421,6 +383,8 @@ def bicgstab(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_
     the initial one).
     """
     n0 = n[0]
+    zero = voff[0]  # not a literal 0 or False (see vcycle)
+    no = n0 < 0
     res = w[0]
     rhat = w[1]
     pdir = w[2]
@@ -428,10 +392,10 @@ def bicgstab(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_
     phat = w[4]
     shat = w[5]
     t = w[6]
-    _residual(a_ptr, 0, a_idx, a_dat, sol, 0, rhs, 0, res, 0, n0, par)
+    _residual(a_ptr, zero, a_idx, a_dat, sol, zero, rhs, zero, res, zero, n0, par)
     _copy(rhat, res, n0, par)
-    _fill(pdir, 0, n0, 0.0, par)
-    _fill(v, 0, n0, 0.0, par)
+    _fill(pdir, zero, n0, 0.0, par)
+    _fill(v, zero, n0, 0.0, par)
     r0 = np.sqrt(_dot(res, res, n0, par))
     if r0 == 0.0:
         return 0, 0.0
@@ -452,7 +416,7 @@ def bicgstab(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_
         vcycle(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_idx, p_dat,
                r_ptr, r_pofs, r_idx, r_dat, cinv, sweeps, s_ptr, s_order, xs, bs, rs, par)
         _copy(phat, xs, n0, par)
-        _apply_add(a_ptr, 0, a_idx, a_dat, phat, 0, v, 0, n0, False, par)
+        _apply_add(a_ptr, zero, a_idx, a_dat, phat, zero, v, zero, n0, no, par)
         rv = _dot(rhat, v, n0, par)
         if rv == 0.0 or not np.isfinite(rv):
             break
@@ -467,7 +431,7 @@ def bicgstab(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_
         vcycle(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_idx, p_dat,
                r_ptr, r_pofs, r_idx, r_dat, cinv, sweeps, s_ptr, s_order, xs, bs, rs, par)
         _copy(shat, xs, n0, par)
-        _apply_add(a_ptr, 0, a_idx, a_dat, shat, 0, t, 0, n0, False, par)
+        _apply_add(a_ptr, zero, a_idx, a_dat, shat, zero, t, zero, n0, no, par)
         tt = _dot(t, t, n0, par)
         omega = _dot(t, res, n0, par) / tt if tt > 0.0 else 0.0
         _axpy2(sol, alpha, phat, omega, shat, n0, par)

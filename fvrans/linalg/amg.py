@@ -8,9 +8,12 @@ its tolerance within ``max_iterations`` triggers a rebuild and one retry. The cy
 Krylov loops run in numba (``_amg_kernels``); no BLAS calls, no per-solve allocation.
 
 Threads (``fvrans.jit.threads``): the vector operations, matrix products, residuals, restrictions
-and prolongations of large levels run on every thread; the Gauss-Seidel smoothing stays serial, so
-the iterates differ from a one-thread solve only by the order of the sums (round-off).
-``solve_pair`` solves two systems with the same structure (the two velocity components) at once,
+and prolongations of large levels run on every thread, and so does the Gauss-Seidel smoothing of
+levels of 4 096 rows or more: their rows are cut into 4-16 blocks of consecutive rows, the blocks
+coloured so that no two blocks of one colour couple, and the blocks of a colour swept at once
+(``smoother_blocks``, ``_amg_kernels._smooth``: Gauss-Seidel in one fixed row order). The blocks,
+and the 16 chunks of every long sum, depend on the sizes only: a solve gives the same bits on any
+number of threads. ``solve_pair`` solves two systems with the same structure (the two velocity components) at once,
 one per thread, each exactly as ``solve`` would one after the other.
 """
 
@@ -63,6 +66,31 @@ def smoother_blocks(rows: int) -> int:
     while nb < SMOOTHER_MAX_BLOCKS and rows >= 2 * nb * SMOOTHER_BLOCK_ROWS:
         nb *= 2
     return nb if nb >= 4 else 1
+
+
+def block_colours(m: sp.csr_matrix, nb: int, colour_ptr: np.ndarray, order: np.ndarray) -> int:
+    """Colour the ``nb`` blocks of consecutive rows of the square CSR matrix ``m`` (block k: rows
+    k n / nb to (k + 1) n / nb) greedily in block order: two blocks joined by a nonzero, in either
+    direction, get different colours. Fills ``colour_ptr`` (nb + 2: the number of colours C, then
+    where each colour's blocks start in ``order``, then nb) and ``order`` (nb: the blocks by colour)
+    as ``_amg_kernels._smooth`` reads them; returns C."""
+    n = m.shape[0]
+    ends = np.arange(1, nb + 1, dtype=np.int64) * n // nb
+    block = np.searchsorted(ends, np.arange(n), side="right").astype(np.int16)  # 2 bytes a row: set-up memory
+    bi = np.repeat(block, np.diff(m.indptr))
+    bj = block[m.indices]
+    adj = np.zeros((nb, nb), dtype=bool)
+    adj[bi, bj] = True
+    adj |= adj.T
+    colour = np.full(nb, -1)
+    for k in range(nb):
+        taken = set(colour[adj[k] & (np.arange(nb) != k)].tolist())
+        colour[k] = min(c for c in range(nb + 1) if c not in taken)
+    ncol = int(colour.max()) + 1
+    colour_ptr[0] = ncol
+    order[:nb] = np.argsort(colour, kind="stable")
+    colour_ptr[1 : ncol + 2] = np.searchsorted(colour[order[:nb]], np.arange(ncol + 1))
+    return ncol
 
 
 class _Stack:
@@ -134,7 +162,11 @@ class AmgKrylovSolver:
 
     # -- hierarchy --------------------------------------------------------------------------
     def rebuild(self, A: sp.csr_matrix) -> None:
-        """Set up the hierarchy from ``A`` (values copied; A's structure is the fine structure)."""
+        """Set up the hierarchy from ``A`` (values copied; A's structure is the fine structure).
+
+        Memory: the old hierarchy is dropped first, and pyamg's level matrices are copied into the
+        stacked arrays one level at a time and let go, so the set-up holds one hierarchy beside
+        pyamg's."""
         self.release()  # the old hierarchy goes first: the new one is built beside pyamg's, not beside both
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
@@ -157,7 +189,7 @@ class AmgKrylovSolver:
             a.add(m)
             d = np.asarray(m.diagonal(), dtype=float)
             dinv[voff[lv] : voff[lv] + n[lv]] = np.where(d != 0.0, 1.0 / np.where(d != 0.0, d, 1.0), 0.0)
-            _k.block_colours(m.indptr, m.indices, m.shape[0], smoother_blocks(m.shape[0]), s_ptr[lv], s_order[lv])
+            block_colours(m, smoother_blocks(m.shape[0]), s_ptr[lv], s_order[lv])
             if lv < len(levels) - 1:
                 p.add(level.P)
                 r.add(level.R)

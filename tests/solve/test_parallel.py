@@ -1,9 +1,10 @@
 """Kernels on every thread: the same numbers as on one.
 
 The cell and face kernels sum each cell's faces in face order (``Mesh.cell_faces``), so they give
-the same bits whatever the thread count; the multigrid Krylov solvers add up their dot products
-per thread, so their results agree to round-off (relative 1e-10 here). The parallel loops start
-at ``fvrans.jit.PARALLEL_MIN_CELLS`` cells, so the meshes here are just above it.
+the same bits whatever the thread count; the multigrid Krylov solvers sweep coloured blocks of
+rows in a fixed order and form their dot products from 16 fixed chunks, so they do too, and so do
+whole runs. The parallel loops start at ``fvrans.jit.PARALLEL_MIN_CELLS`` cells, so the meshes
+here are just above it.
 """
 
 from __future__ import annotations
@@ -255,7 +256,7 @@ def test_model_sources_and_krylov_solvers(big):
 
 def test_multigrid_cycle_gives_the_same_bits_on_one_and_two_threads(big):
     """The V-cycle (block Gauss-Seidel sweeps, residuals, transfers; 16 928 rows in 16 blocks) on
-    two threads gives the bits of one thread: only the Krylov dot products depend on the count."""
+    two threads gives the bits of one thread."""
     s = big
     ni, nc = s.ni, s.nc
     a = s.dcoef[:ni]
@@ -318,7 +319,7 @@ def test_pair_of_momentum_solves_equals_the_sequence():
 
 def test_a_case_converges_to_the_same_answer_on_one_and_two_threads():
     """A developing channel flow (4 000 cells: the two velocity components solved at once on two
-    threads) run to 1e-9 on one and on two threads."""
+    threads) run to 1e-9 on one and on two threads: the same bits."""
     mesh = channel(10.0, 1.0, 100, 40)
     specs = dict(SPECS, upper_wall={"kind": "wall"})
     runs = []
@@ -333,8 +334,8 @@ def test_a_case_converges_to_the_same_answer_on_one_and_two_threads():
 
 
 def test_iterations_on_a_large_mesh_are_the_same_on_one_and_two_threads():
-    """20 outer iterations on 16 640 cells, where every parallel loop runs on both threads (the
-    multigrid dot products sum per thread: equal to round-off)."""
+    """20 outer iterations on 16 640 cells, where every parallel loop runs on both threads (and the
+    smoothing of the two finest multigrid levels): the same bits."""
     mesh = channel(1.0, 1.0, 130, 128)
     assert mesh.n_cells >= jit.PARALLEL_MIN_CELLS
     specs = dict(SPECS, upper_wall={"kind": "wall"})
