@@ -1,28 +1,49 @@
 """Threads, memory per cell and compile time of the numerical kernels.
 
-1. Per bundled case (cavity 128^2, step coarse, flat plate medium): ``--iterations`` outer
-   iterations at the case's settings on 1 and on 2 threads (``[solver] threads``; numba compiled
-   beforehand): seconds, microseconds per cell and iteration, CPU use of the run (process CPU time
-   over wall time: 2.0 means both cores busy throughout), the ratio of the seconds per iteration to
-   a numpy triad ``a = b + s*c`` over arrays of cell length timed in the same run, and the largest
-   difference of the velocity between the two runs (relative to the largest speed). Each line
-   also shows the 1-minute load average of the machine when it started: on a shared machine,
-   where other processes hold the cores, two threads can be much slower than one (each parallel
-   loop waits for the scheduler to give its second thread a core).
+1. Per bundled case (cavity on 256^2 quads, step coarse and medium, flat plate medium):
+   ``--iterations`` outer iterations at the case's settings on 1 and on 2 threads (``[solver]
+   threads``; numba compiled beforehand; the best of ``--repeats`` runs): seconds, microseconds per
+   cell and iteration, CPU use of the run (process CPU time over wall time: 2.0 means both cores
+   busy throughout), the ratio of the seconds per iteration to a numpy triad ``a = b + s*c`` over
+   arrays of cell length timed in the same run, the Krylov iterations per outer iteration (pressure
+   CG / each momentum BiCGStab), and the largest difference of the velocity between the two runs
+   (relative to the largest speed; the kernels give the same bits on any thread count, so 0).
+   Each line also shows the 1-minute load average of the machine when it started: on a shared
+   machine, where other processes hold the cores, two threads can be much slower than one (each
+   parallel loop waits for the scheduler to give its second thread a core). ``--plain-smoother``:
+   the same with the plain one-block Gauss-Seidel sweep on every multigrid level (the comparison
+   for the block sweep that runs on both threads).
 2. Peak memory per cell of a run on a generated cavity and a generated flat plate (Spalart-Allmaras)
-   of ~400k cells (``--cells``), above the
-   interpreter's baseline (numpy, scipy, pyamg, numba and the compiled kernels loaded): the peak
-   resident set size (``resource.getrusage``, ``ru_maxrss``) after ``--memory-iterations``
+   of ~400k cells (``--cells``), above the interpreter's baseline (numpy, scipy, pyamg, numba and the
+   compiled kernels loaded): the peak resident set size (``resource.getrusage``, ``ru_maxrss``)
+   after ``--memory-iterations`` (25: past the first rebuild of the multigrid hierarchies)
    iterations less the one before the mesh is made; and the peak of the arrays numpy allocates
    (``tracemalloc``; numba's own allocations inside kernels are not traced), in a fresh process.
 3. Compile time: a fresh process with an empty ``NUMBA_CACHE_DIR`` runs 3 iterations of the
    cavity and of the flat plate (the seconds numba spends compiling, from ``fvrans.jit.CompileWatch``,
    and the number of kernels compiled), then another fresh process with the same (now warm) cache.
 
+Measured 2026-12-03 on the shared 2-core machine (other engineers' benchmarks running: load 4-5.5,
+so one thread got only ~0.67 of a core and each parallel loop waited for its second thread),
+50 iterations, best of 2:
+
+| case (cells) | threads | s | us/cell/it | CPU use | triad ratio | load | Krylov p/u |
+|---|---|---|---|---|---|---|---|
+| cavity 256^2 (65536) | 1 / 2 | 5.61 / 27.19 | 1.71 / 8.30 | 0.67 / 0.65 | 5316 / 26739 | 4.3 / 4.6 | 2.5/1.0 |
+| step coarse (6912) | 1 / 2 | 2.03 / 19.84 | 5.88 / 57.40 | 0.66 / 0.66 | 15593 / 133488 | 5.5 / 5.3 | 12.4/3.1 |
+| step medium (27648) | 1 / 2 | 8.45 / 70.76 | 6.11 / 51.19 | 0.69 / 0.66 | 17046 / 142359 | 5.5 / 5.5 | 12.4/3.6 |
+| plate medium (13056) | 1 / 2 | 2.24 / 18.67 | 3.42 / 28.59 | 0.69 / 0.98 | 10330 / 86022 | 5.0 / 4.9 | 7.1/1.6 |
+
+1 vs 2 threads: the same bits on every case. PLAIN_ROWS
+Memory at 400k cells (25 iterations): cavity 2.38 KB per cell (traced 2.34), SA plate 2.92 KB per cell
+(traced 2.87). Compile (cold cache, load 4.6): cavity 36.1 s (81 kernels) + plate 8.9 s (68); warm 0 kernels, 1.0 s.
+On a quiet machine (load 0.5, previous build, 100 iterations) 1 -> 2 threads: cavity 128^2 2.23 -> 2.03 s (CPU
+use 1.70), step coarse 1.97 -> 1.70 s, plate 2.27 -> 2.11 s (the smoothing was serial then).
+
 No assertions; the machine's load makes the timings noisy: compare the triad ratios.
 
-Run:  python benchmarks/bench_parallel.py [--iterations 100] [--cases cavity step_coarse plate]
-                                          [--cells 400000] [--skip-memory] [--skip-compile]
+Run:  python benchmarks/bench_parallel.py [--iterations 100] [--repeats 1] [--cases cavity256 step_coarse ...]
+                                          [--plain-smoother] [--cells 400000] [--skip-memory] [--skip-compile]
 """
 
 from __future__ import annotations
