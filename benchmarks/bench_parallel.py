@@ -23,22 +23,30 @@
    cavity and of the flat plate (the seconds numba spends compiling, from ``fvrans.jit.CompileWatch``,
    and the number of kernels compiled), then another fresh process with the same (now warm) cache.
 
-Measured 2026-12-03 on the shared 2-core machine (other engineers' benchmarks running: load 4-5.5,
-so one thread got only ~0.67 of a core and each parallel loop waited for its second thread),
-50 iterations, best of 2:
+Measured 2026-12-03 on the shared 2-core machine, 50 iterations; other engineers' benchmarks (and, for
+the first block, this branch's test suite) were running: load 3.6-5.5, so one thread got 0.4-1.0 of a core
+and each parallel loop waited for its second thread; compare CPU seconds (s x CPU use) and Krylov counts:
 
-| case (cells) | threads | s | us/cell/it | CPU use | triad ratio | load | Krylov p/u |
+| case (cells) | smoother | threads | s | CPU use | triad ratio | load | Krylov p/u |
 |---|---|---|---|---|---|---|---|
-| cavity 256^2 (65536) | 1 / 2 | 5.61 / 27.19 | 1.71 / 8.30 | 0.67 / 0.65 | 5316 / 26739 | 4.3 / 4.6 | 2.5/1.0 |
-| step coarse (6912) | 1 / 2 | 2.03 / 19.84 | 5.88 / 57.40 | 0.66 / 0.66 | 15593 / 133488 | 5.5 / 5.3 | 12.4/3.1 |
-| step medium (27648) | 1 / 2 | 8.45 / 70.76 | 6.11 / 51.19 | 0.69 / 0.66 | 17046 / 142359 | 5.5 / 5.5 | 12.4/3.6 |
-| plate medium (13056) | 1 / 2 | 2.24 / 18.67 | 3.42 / 28.59 | 0.69 / 0.98 | 10330 / 86022 | 5.0 / 4.9 | 7.1/1.6 |
+| cavity 256^2 (65536) | block (CG) | 1 / 2 | 7.71 / 33.34 | 0.50 / 0.48 | 7389 / 31714 | 3.7 | 2.5/1.0 |
+| | plain | 1 / 2 | 3.78 / 19.44 | 0.97 / 0.99 | 3587 / 18658 | 4.6 | 2.5/1.0 |
+| step coarse (6912) | block (CG) | 1 / 2 | 3.79 / 14.58 | 0.38 / 0.59 | 24988 / 112607 | 4.8 | 12.6/3.1 |
+| | plain | 1 / 2 | 1.31 / 1.61 | 1.00 / 1.00 | 8733 / 12128 | 4.4 | 12.5/2.8 |
+| step medium (27648) | block (CG) | 1 / 2 | 11.33 / 128.19 | 0.50 / 0.63 | 26851 / 300422 | 5.1 | 12.3/3.4 |
+| | plain | 1 / 2 | 5.91 / 38.64 | 0.96 / 0.98 | 14043 / 91728 | 4.6 | 12.5/3.4 |
+| plate medium (13056) | block (CG) | 1 / 2 | 2.84 / 32.34 | 0.53 / 0.52 | 11261 / 124965 | 4.9 | 7.0/1.5 |
+| | plain | 1 / 2 | 1.44 / 3.42 | 1.00 / 0.69 | 5584 / 15706 | 4.7 | 7.0/1.5 |
 
-1 vs 2 threads: the same bits on every case. PLAIN_ROWS
+Block sweep on every level of every solve (not the default; best of 2, load 4.2-5.5), Krylov p/u: cavity
+2.5/1.0, step coarse 12.4/3.1, step medium 12.4/3.6, plate 7.1/1.6: the momentum BiCGStab took more iterations,
+hence the default. 1 vs 2 threads: the same bits on every case and smoother. On a quiet machine (load 0.5,
+previous build, serial smoothing, 100 iterations) 1 -> 2 threads: cavity 128^2 2.23 -> 2.03 s (CPU use 1.70),
+step coarse 1.97 -> 1.70 s, plate 2.27 -> 2.11 s. Counting bound for the block sweep (blocks per colour): the
+pressure smoothing on 2 threads takes 0.52 (cavity 256^2), 0.70 (step medium), 0.64 (plate medium), 0.89 (step
+coarse) of its one-thread time, idle cores assumed (not measured: no quiet window).
 Memory at 400k cells (25 iterations): cavity 2.38 KB per cell (traced 2.34), SA plate 2.92 KB per cell
 (traced 2.87). Compile (cold cache, load 4.6): cavity 36.1 s (81 kernels) + plate 8.9 s (68); warm 0 kernels, 1.0 s.
-On a quiet machine (load 0.5, previous build, 100 iterations) 1 -> 2 threads: cavity 128^2 2.23 -> 2.03 s (CPU
-use 1.70), step coarse 1.97 -> 1.70 s, plate 2.27 -> 2.11 s (the smoothing was serial then).
 
 No assertions; the machine's load makes the timings noisy: compare the triad ratios.
 
