@@ -56,7 +56,7 @@ DEFAULT_RELAX_VELOCITY = {"simple": 0.7, "simplec": 0.95, "simultaneous": 1.0}
 DEFAULT_TURBULENCE_TOLERANCE = {"k-omega-sst": 1e-6}
 MOMENTUM_SOLVERS = ("amg", "gauss-seidel")
 #: linear solvers of the simultaneous u-v-p system (``fvrans.solve.coupled``)
-SYSTEM_SOLVERS = ("direct", "gmres-amg")
+SYSTEM_SOLVERS = ("direct", "iterative")
 TURBULENCE_SOLVERS = ("amg", "gauss-seidel")
 #: text standing for a Python function in :meth:`Case.to_dict`
 CALLABLE_TEXT = "<python callable>"
@@ -269,7 +269,7 @@ class SolverSettings:
     checkpoint_every: int = 0
     conservative_start: bool = True
     turbulence_cfl: float = 20.0
-    system_solver: str = "direct"
+    system_solver: str = "iterative"
     system_tolerance: float = 0.01
     #: threads of the parallel kernels; 0: the FVRANS_THREADS variable, else every idle core (fvrans.jit)
     threads: int = 0

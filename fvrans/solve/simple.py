@@ -121,7 +121,7 @@ class SolverControls:
     conservative_start: bool = True
     turbulence_cfl: float = 20.0
     momentum_cfl: float = 0.0
-    system_solver: str = "direct"
+    system_solver: str = "iterative"
     system_tolerance: float = 0.01
     eddy_viscosity_relaxation: float = 0.5
     threads: int = 0

@@ -50,8 +50,8 @@ def centrelines(solver):
 
 
 @pytest.mark.parametrize("mesh, system_solver", [
-    (cavity(24), "direct"), (cavity(12, triangles=True), "direct"), (cavity(16), "gmres-amg"),
-], ids=["quads", "skewed_triangles", "quads_gmres_amg"])
+    (cavity(24), "iterative"), (cavity(12, triangles=True), "iterative"), (cavity(16), "direct"),
+], ids=["quads", "skewed_triangles", "quads_direct"])
 def test_same_answer_as_segregated_cavity(mesh, system_solver):
     """Both converged to 1e-10: velocities within 1e-5 of the lid speed, pressures within 1e-5 of
     rho U^2 (measured: 4e-10 on 32 x 32 quads, 1.4e-10 on 16 x 16 triangles)."""
@@ -152,8 +152,37 @@ def test_turbulent_plate_cf_same_as_segregated():
 def test_case_keys():
     case = api.load_case(bundled_root() / "cases" / "channel_poiseuille.toml").set("solver.coupling", "simultaneous")
     assert case.solver.relax_velocity == 1.0
-    assert case.solver.system_solver == "direct"
+    assert case.solver.system_solver == "iterative"
     with pytest.raises(CaseError, match="system_solver"):
         case.set("solver.system_solver", "cholesky")
     with pytest.raises(CaseError, match="system_tolerance"):
         case.set("solver.system_tolerance", 2.0)
+
+
+def _krylov_iterations(n: int, preconditioner: str) -> int:
+    """FGMRES iterations to 1e-6 of the row-scaled coupled system of the cavity (Re 100, n x n
+    quads) at the state after two outer iterations from rest."""
+    mesh = cavity(n)
+    geom = compute_geometry(mesh)
+    bc = build_flow_boundary(mesh, geom, CAVITY)
+    solver = SimultaneousSolver(mesh, geom, bc, rho=1.0, mu=0.01, controls=SolverControls(
+        coupling="simultaneous", system_solver="iterative", max_iterations=2, tolerance=1e-14))
+    solver.preconditioner = preconditioner
+    solver.run()
+    solver.ctl.system_tolerance = 1e-6
+    A, rhs, _ = solver._assemble()
+    solver._solve_gmres(A, rhs)
+    assert solver.lin_residuals[-1] <= 1e-6
+    return solver.lin_iterations[-1]
+
+
+def test_krylov_iterations_do_not_grow_with_the_grid():
+    """The pressure convection-diffusion block preconditioner (Kay, Loghin & Wathen 2002; Elman,
+    Silvester & Wathen 2014, ch. 9) keeps the FGMRES count of one coupled solve nearly constant from
+    32^2 to 64^2 cells (measured 53 and 58; at most 1.2x allowed, the growth the issue allows per 4x
+    cells is 1.3x). The SIMPLE-type Schur approximation C - D diag(A)^-1 G, on the same two systems,
+    grows by more than 1.5x (measured 78 and 165), so the comparison can tell the two apart."""
+    pcd = [_krylov_iterations(n, "convection-diffusion") for n in (32, 64)]
+    assert pcd[1] <= 1.2 * pcd[0], pcd
+    simple = [_krylov_iterations(n, "simple") for n in (32, 64)]
+    assert simple[1] > 1.5 * simple[0], simple
