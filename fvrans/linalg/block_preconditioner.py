@@ -66,21 +66,24 @@ class PressureConvectionDiffusion:
     ``G``: the 2n x n pressure face sums; ``vol``: cell volumes; ``singular``: no given pressure
     anywhere (Lap has the constants as null space)."""
 
-    def __init__(self, lap: sp.csr_matrix, G: sp.csr_matrix, vol: np.ndarray, rho: float,
-                 singular: bool, rebuild_every: int = 20):
+    def __init__(self, lap: sp.csr_matrix, G: sp.csr_matrix, vol: np.ndarray, rho: float, singular: bool):
         self.n = lap.shape[0]
         self.G = sp.csr_matrix(G)
         self.scale = 1.0 / (rho * np.asarray(vol, dtype=float))
         self.lap = VCycle(1 << 30, singular=singular, coarsening=LAPLACIAN_COARSENING)
         self.lap.update(lap)
-        self.mu = VCycle(rebuild_every, coarsening=MOMENTUM_COARSENING)
-        self.mv = VCycle(rebuild_every, coarsening=MOMENTUM_COARSENING)
+        self.mu = VCycle(1 << 30, coarsening=MOMENTUM_COARSENING)
+        self.mv = VCycle(1 << 30, coarsening=MOMENTUM_COARSENING)
         self.Ap: sp.csr_matrix | None = None
 
-    def update(self, Au: sp.csr_matrix, Av: sp.csr_matrix, Ap: sp.csr_matrix) -> None:
-        """The momentum blocks and the pressure convection-diffusion matrix of this outer iteration."""
-        self.mu.update(Au)
-        self.mv.update(Av)
+    def update(self, Au: sp.csr_matrix, Av: sp.csr_matrix, Ap: sp.csr_matrix, rebuild: bool = False) -> None:
+        """The momentum blocks and the pressure convection-diffusion matrix of this outer iteration;
+        ``rebuild``: set up the momentum hierarchies anew (else only their finest levels follow)."""
+        fresh = rebuild or self.mu.amg._h is None
+        self.mu.update(Au, rebuild=fresh)
+        # A_v keeps a hierarchy of its own: with A_u's coarse levels (the two differ at symmetry
+        # planes) FGMRES missed its tolerance on the turbulent plate
+        self.mv.update(Av, rebuild=fresh)
         self.Ap = Ap
 
     def __call__(self, r: np.ndarray) -> np.ndarray:

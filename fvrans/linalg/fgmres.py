@@ -89,11 +89,13 @@ class VCycle:
         self.singular = bool(singular)
         self._uses = 0
 
-    def update(self, A: sp.csr_matrix) -> None:
+    def update(self, A: sp.csr_matrix, rebuild: bool = False) -> None:
+        """Use ``A`` from now on: a new hierarchy when ``rebuild``, every ``rebuild_every`` updates
+        or when the structure changed; else the finest level refreshed with A's values."""
         a = self.amg
         A = sp.csr_matrix(A)
         A.sort_indices()
-        if a._h is None or self._uses >= self.rebuild_every or A.nnz != a._fine_nnz:
+        if rebuild or a._h is None or self._uses >= self.rebuild_every or A.nnz != a._fine_nnz:
             a.rebuild(A)
             self._uses = 0
         else:

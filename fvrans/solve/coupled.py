@@ -49,6 +49,13 @@ SYSTEM_SOLVERS = ("direct", "iterative")
 #: FGMRES restart length and iteration limit of the iterative solve (the Krylov basis holds
 #: 2 (RESTART + 1) vectors of 3 values per cell)
 RESTART = 20
+#: the momentum blocks' multigrid hierarchies are set up anew when a solve needs this many times the
+#: FGMRES iterations of the first solve after the last set-up (coarse levels kept from an earlier
+#: matrix: the turbulent plate (medium) needed 100-200 iterations per outer iteration while its eddy
+#: viscosity developed, 32 with a set-up every outer iteration)
+REBUILD_GROWTH = 1.5
+#: iterations allowed with kept coarse levels before the hierarchy is set up anew
+STALE_KRYLOV = 60
 MAX_KRYLOV = 200
 #: FGMRES iterations preconditioned by an earlier factorisation before the system is factorised anew
 REUSE_ITERATIONS = 10
@@ -94,6 +101,8 @@ class SimultaneousSolver(SimpleSolver):
         self._row_scale = None
         #: the iterative solve missed its tolerance once; the direct solve takes over
         self.fell_back = False
+        self._fresh_its: int | None = None
+        self._since_setup = 0
         self.lin_residuals: list[float] = []
         #: Schur complement approximation of the iterative solve: "convection-diffusion" or "simple"
         #: (the SIMPLE-type baseline, whose iterations grow with the grid)
@@ -223,7 +232,7 @@ class SimultaneousSolver(SimpleSolver):
                     self.owner, self.neigh, self.ni, self.dcoef, self.kvec, self.geom.face_weight,
                     np.ones(self.nc), self.fixed, 1.0)
                 lap = sp.csr_matrix((vals[:, 0], (rows, cols)), shape=(self.nc, self.nc))
-                self._prec = PressureConvectionDiffusion(lap, self.G, self.vol, float(self.rho), self.singular, every)
+                self._prec = PressureConvectionDiffusion(lap, self.G, self.vol, float(self.rho), self.singular)
                 # rows of A_p that keep the momentum matrix's boundary condition: cells at inflow
                 kind = self.bc.kind
                 inflow = (kind == K.INLET) | (kind == K.FREESTREAM)
@@ -240,16 +249,24 @@ class SimultaneousSolver(SimpleSolver):
         Au = Amom[:nc, :nc].tocsr()
         Av = Amom[nc:, nc:].tocsr()
         prec = self._block_preconditioner()
+        rebuild = False
         if self.preconditioner == "simple":
             prec.update(Au, Av, App)
         else:
-            prec.update(Au, Av, neumann_convection_diffusion(Au, self._ap_keep, self.a_rel[:, 0] - self.diag_u))
+            # a new momentum hierarchy after amg_rebuild_every outer iterations, when the last solve
+            # needed REBUILD_GROWTH times the iterations of the first after the last set-up, or when
+            # a solve with the kept coarse levels misses the tolerance (below)
+            its = self.lin_iterations
+            self._since_setup += 1
+            rebuild = (self._fresh_its is None or self._since_setup > self.ctl.amg_rebuild_every
+                       or bool(its and its[-1] > REBUILD_GROWTH * max(self._fresh_its, 1)))
+            Ap = neumann_convection_diffusion(Au, self._ap_keep, self.a_rel[:, 0] - self.diag_u)
+            prec.update(Au, Av, Ap, rebuild=rebuild)
         x0 = np.concatenate([self.fields.velocity[:, 0], self.fields.velocity[:, 1], self.fields.pressure])
         # rows in velocity units, so that the norm FGMRES reduces weighs momentum and continuity
         # alike: momentum rows over their diagonal, continuity rows over rho sum_f |S_f|
         if self._row_scale is None:
             area = np.zeros(self.nc)
-            CK.face_sums(self.owner, self.neigh, self.ni, np.zeros(self.nf), area)
             smag = np.linalg.norm(self.S, axis=1)
             np.add.at(area, self.owner, smag)
             np.add.at(area, self.neigh, smag[:self.ni])
@@ -257,8 +274,24 @@ class SimultaneousSolver(SimpleSolver):
         d = self._row_scale
         d[:nc] = 1.0 / Au.diagonal()
         d[nc:2 * nc] = 1.0 / Av.diagonal()
-        dx, its, rel = fgmres(lambda z: d * (A @ z), lambda v: prec(v / d), d * (rhs - A @ x0),
-                              self.ctl.system_tolerance, RESTART, MAX_KRYLOV)
+        tol = self.ctl.system_tolerance
+        r0 = d * (rhs - A @ x0)
+        stale = self.preconditioner != "simple" and not rebuild
+        dx, its, rel = fgmres(lambda z: d * (A @ z), lambda v: prec(v / d), r0, tol, RESTART,
+                              STALE_KRYLOV if stale else MAX_KRYLOV)
+        if stale and not rel <= tol:
+            # the kept coarse levels no longer fit: set up anew and go on from where FGMRES stopped
+            prec.update(Au, Av, Ap, rebuild=True)
+            rebuild = True
+            r1 = r0 - d * (A @ dx)
+            more, its2, rel1 = fgmres(lambda z: d * (A @ z), lambda v: prec(v / d), r1,
+                                      tol * np.linalg.norm(r0) / np.linalg.norm(r1), RESTART, MAX_KRYLOV)
+            dx += more
+            its += its2
+            rel = rel1 * np.linalg.norm(r1) / np.linalg.norm(r0)
+        if rebuild:
+            self._since_setup = 0
+            self._fresh_its = its
         self.lin_iterations.append(its)
         self.lin_residuals.append(rel)
         return x0 + dx
