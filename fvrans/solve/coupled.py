@@ -21,10 +21,13 @@ iteration, as in :class:`fvrans.solve.simple.SimpleSolver`, whose loop (``run``,
 divergence guard, residuals, fields) this class inherits. The converged answer is the segregated
 loop's: every equation is the same at convergence (residuals of ``fvrans.fv.residual``).
 
-Linear solvers (``SolverControls.system_solver``): 'direct' (SuperLU, scipy) or 'gmres-amg' (flexible
-GMRES right-preconditioned by one SIMPLE-type block sweep: AMG V-cycles for the momentum blocks
-and for the Schur complement approximated by D diag(A)^-1 G; Elman et al. 2008, J. Comput. Phys.
-227, 1790-1808, from memory).
+Linear solvers (``SolverControls.system_solver``): 'iterative' (the default: flexible GMRES
+right-preconditioned by the upper block-triangular pressure convection-diffusion preconditioner of
+``fvrans.linalg.block_preconditioner``, AMG V-cycles for the momentum blocks and the pressure
+Laplacian, memory in proportion to the cells; FGMRES iterations per outer iteration nearly
+independent of the grid; should a solve miss its tolerance, the sparse LU takes over for the rest
+of the run) or 'direct' (SuperLU, scipy, reused as the preconditioner of FGMRES in later outer
+iterations).
 """
 
 from __future__ import annotations

@@ -187,3 +187,19 @@ def test_krylov_iterations_do_not_grow_with_the_grid():
     assert pcd[1] <= 1.2 * pcd[0], pcd
     simple = [_krylov_iterations(n, "simple") for n in (32, 64)]
     assert simple[1] > 1.5 * simple[0], simple
+
+
+def test_iterative_solve_hands_over_to_the_sparse_lu(monkeypatch):
+    """When an FGMRES solve misses its tolerance (forced here: at most one iteration) the sparse LU
+    takes over for the rest of the run, and the run converges to the same answer as one with the
+    iterative solve throughout (cavity 16^2, both to 1e-10: velocities within 1e-8 U)."""
+    import fvrans.solve.coupled as coupled
+
+    mesh = cavity(16)
+    ref, ok1 = run(mesh, CAVITY, True, tolerance=1e-10, max_iterations=200)
+    assert ok1 and not ref.fell_back
+    monkeypatch.setattr(coupled, "MAX_KRYLOV", 1)
+    monkeypatch.setattr(coupled, "STALE_KRYLOV", 1)
+    sim, ok2 = run(mesh, CAVITY, True, tolerance=1e-10, max_iterations=200)
+    assert ok2 and sim.fell_back and sim.factorisations >= 1
+    assert np.max(np.abs(sim.fields.velocity - ref.fields.velocity)) < 1e-8
