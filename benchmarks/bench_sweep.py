@@ -31,6 +31,7 @@ import time
 from pathlib import Path
 
 from fvrans.case import load_case
+from fvrans.case.load import apply_overrides
 from fvrans.sweep import Output, Parameter, Sweep, run_sweep
 
 #: a coarse laminar bump channel (42 x 12 = 504 cells, Re_h = 50) whose bump height is varied by default
@@ -75,6 +76,9 @@ def main() -> None:
     ap.add_argument("--parameter", default="mesh.parameters.bump_height")
     ap.add_argument("--start", type=float, default=0.05)
     ap.add_argument("--stop", type=float, default=0.4)
+    ap.add_argument("--set", action="append", default=[], metavar="KEY=VALUE",
+                    help="change a key of the base case, e.g. solver.coupling=simultaneous")
+    ap.add_argument("--in-process-only", action="store_true", help="skip the dask cluster modes")
     args = ap.parse_args()
     logging.getLogger("distributed").setLevel(logging.ERROR)
     from distributed import Client, LocalCluster
@@ -86,7 +90,7 @@ def main() -> None:
             case_path = folder / "bump.toml"
         else:
             case_path = Path(args.case)
-        base = load_case(case_path)
+        base = apply_overrides(load_case(case_path), args.set)
 
         def sweep(warm: bool, n: int) -> Sweep:
             return Sweep(case=base, warm_start=warm, outputs=[Output("iters", summary="iterations")],
@@ -108,7 +112,7 @@ def main() -> None:
         timed("in-process warm", True, workers=1)
         t1 = None
         startup = {}
-        for n_workers in (1, 2):
+        for n_workers in () if args.in_process_only else (1, 2):
             t0 = time.perf_counter()
             cluster = LocalCluster(n_workers=n_workers, threads_per_worker=1, processes=True, host="127.0.0.1",
                                    dashboard_address=None, scheduler_kwargs={"dashboard_address": "127.0.0.1:0"},
@@ -126,11 +130,13 @@ def main() -> None:
                 cluster.close()
 
     print(f"case: {case_path.name if args.case else 'coarse bump channel (504 cells)'}; "
-          f"parameter {args.parameter} from {args.start:g} to {args.stop:g}")
+          f"parameter {args.parameter} from {args.start:g} to {args.stop:g}"
+          + (f"; set {', '.join(args.set)}" if args.set else ""))
     print(f"{'mode':<26} {'runs':>5} {'seconds':>9} {'runs/min':>9} {'iterations':>11} {'not ok':>7}")
     for mode, n, sec, rate, iters, bad in rows:
         print(f"{mode:<26} {n:5d} {sec:9.2f} {rate:9.1f} {iters:11d} {bad:7d}")
-    print(f"cluster start-up: {startup[1]:.2f} s (1 worker), {startup[2]:.2f} s (2 workers)")
+    if startup:
+        print(f"cluster start-up: {startup[1]:.2f} s (1 worker), {startup[2]:.2f} s (2 workers)")
     if t1 is not None:
         print(f"dask overhead per run (1 worker against in-process, cold starts): {(t1 - t_in) / args.runs:.3f} s")
 

@@ -148,3 +148,39 @@ def face_sums(owner, neigh, n_int, F, out):
         out[neigh[f]] -= F[f]
     for f in range(n_int, owner.shape[0]):
         out[owner[f]] += F[f]
+
+
+@njit(cache=True)
+def extrapolation_inverse(owner, n_int, S, delta, extrapolated, vol, limit):
+    """M_c^-1 per cell (nc, 2, 2), M_c = I - sum_b S_b d_b^T / V_c over the cell's boundary faces whose
+    value is extrapolated (p_b = p_P + grad p_P . d_b, d_b = x_f - x_P): the face-sum gradient with
+    extrapolated boundary values, V g = sum_f p_f S_f, is g = M^-1 (G p) / V. Cells where M^-1 has an
+    entry beyond ``limit`` (M near singular: on a quad wall cell M^-1 has 2, on some boundary triangles
+    M is singular) get the identity."""
+    nc = vol.shape[0]
+    M = np.zeros((nc, 2, 2))
+    for c in range(nc):
+        M[c, 0, 0] = 1.0
+        M[c, 1, 1] = 1.0
+    for f in range(n_int, owner.shape[0]):
+        if extrapolated[f - n_int]:
+            P = owner[f]
+            for i in range(2):
+                for j in range(2):
+                    M[P, i, j] -= S[f, i] * delta[f, j] / vol[P]
+    out = np.zeros_like(M)
+    for c in range(nc):
+        det = M[c, 0, 0] * M[c, 1, 1] - M[c, 0, 1] * M[c, 1, 0]
+        i00 = M[c, 1, 1] / det
+        i11 = M[c, 0, 0] / det
+        i01 = -M[c, 0, 1] / det
+        i10 = -M[c, 1, 0] / det
+        if det > 0.0 and max(abs(i00), abs(i11), abs(i01), abs(i10)) <= limit:
+            out[c, 0, 0] = i00
+            out[c, 1, 1] = i11
+            out[c, 0, 1] = i01
+            out[c, 1, 0] = i10
+        else:  # the extrapolation nearly fixes itself (e.g. boundary triangles): left lagged, M^-1 = I
+            out[c, 0, 0] = 1.0
+            out[c, 1, 1] = 1.0
+    return out
