@@ -26,10 +26,11 @@ seconds; iterations SIMPLEC -> simultaneous; answer: relative difference of the 
   The fine step was not run (SuperLU memory and time).
 Turbulent families again after the simultaneous path's default turbulence_cfl became 0 (no pseudo-time
 steps; same machine, load about 5; simultaneous path only, iterations to the default stop):
-  plate coarse / medium: 38 / 45 its (growth 1.18), Cf(0.97) rel. to SIMPLEC 1.8e-8 / 2.5e-7;
-      fine: FINE_PLATE
-  step coarse / medium: 87 / 94 its (growth 1.08; was 128 / 181 = 1.41 with CFL 20); medium 222.8 s;
-      x_r 6.1329366 / 6.1716349 (SIMPLEC 6.13293663 / 6.171635 at its settled stop: rel. 2e-9 / 2e-8)
+  plate coarse / medium: 36 / 45 its (growth 1.25), Cf(0.97) rel. to SIMPLEC 1.8e-8 / 2.5e-7;
+      fine: diverged at iteration 32 (829 s; a SuperLU factorisation every iteration), as with CFL 20
+  step coarse / medium: 85 / 94 its (growth 1.11; was 127 / 181 = 1.43 with CFL 20); 35 / 182 s
+      (triad ratio 1.3e7 / 1.8e7); x_r 6.13293661 / 6.17163486 (SIMPLEC 6.13293663 / 6.171635 at its
+      settled stop: rel. 3e-9 / 2e-8)
 
 Run:  python benchmarks/bench_coupled.py [--families cavity plate step] [--fine-step] [--only simultaneous]
 """
