@@ -37,6 +37,13 @@ Measured earlier with system_solver = "direct" (heavily loaded; iterations SIMPL
   step coarse / medium: 1668 / not converged in 4000 (793 s) -> 128 / 181 its; 36.7 s -> 22.9 / 357.6 s;
       x_r rel. 2.0e-7 / 6.3e-7 (against the unfinished SIMPLEC run)
   The fine step was not run (SuperLU memory and time).
+Turbulent families again after the simultaneous path's default turbulence_cfl became 0 (no pseudo-time
+steps; same machine, load about 5; simultaneous path only, iterations to the default stop):
+  plate coarse / medium: 36 / 45 its (growth 1.25), Cf(0.97) rel. to SIMPLEC 1.8e-8 / 2.5e-7;
+      fine: diverged at iteration 32 (829 s; a SuperLU factorisation every iteration), as with CFL 20
+  step coarse / medium: 85 / 94 its (growth 1.11; was 127 / 181 = 1.43 with CFL 20); 35 / 182 s
+      (triad ratio 1.3e7 / 1.8e7); x_r 6.13293661 / 6.17163486 (SIMPLEC 6.13293663 / 6.171635 at its
+      settled stop: rel. 3e-9 / 2e-8)
 
 Run:  python benchmarks/bench_coupled.py [--families cavity plate step] [--fine-step] [--only simultaneous]
 """

@@ -856,7 +856,7 @@ def _solver(ctx: _Ctx, data: Any, turbulence: str = "none") -> S.SolverSettings:
         checkpoint_every=t.integer("checkpoint_every", 0, NON_NEGATIVE,
                                    "outer iterations; 0 turns checkpoints off"),
         conservative_start=t.boolean("conservative_start", True),
-        turbulence_cfl=t.number("turbulence_cfl", 20.0, NON_NEGATIVE,
+        turbulence_cfl=t.number("turbulence_cfl", S.DEFAULT_TURBULENCE_CFL[coupling], NON_NEGATIVE,
                                 "the CFL number of the turbulence pseudo-time steps; 0 turns them off"),
         system_solver=t.choice("system_solver", S.SYSTEM_SOLVERS, "iterative"),
         system_tolerance=t.number("system_tolerance", 0.01, OPEN_UNIT, "a relative tolerance"),
