@@ -15,8 +15,21 @@ timed in the same run, the growth of the iteration count from the previous (4x s
 relative difference of the compared quantity plus max |u_sim - u_seg| / U_ref. Numba compilation is
 excluded by a warm-up run. No assertions; the machine is shared, so read the triad ratio.
 
-Measured 2026-12-03 (2 cores shared with other engineers' test suites and runs: heavily loaded; wall
-seconds; iterations SIMPLEC -> simultaneous; answer: relative difference of the compared quantity):
+Measured 2026-12-03 01:40-03:00 with system_solver = "iterative" (FGMRES + pressure convection-diffusion
+block preconditioner, the default now; 2 shared cores, load 4-5; SIMPLEC's cost per iteration from 100
+iterations on the same grid; /tmp/coupled3/fam.py, same families and settings as this script):
+  cavity 64^2 / 128^2 / 256^2: 40 / 40 / 42 outer its, 9.9 / 10.3 / 10.4 FGMRES its per outer iteration,
+      1.0 / 3.8 / 18.8 s; us per cell and iteration 5.8 / 5.8 / 6.8 = 5.2 / 6.4 / 4.7 x SIMPLEC's (1.1 / 0.9 / 1.5)
+      after the implicit wall flux and pressure-gradient extrapolation of the outer iteration landed:
+      14 / 14 / 12 outer its, 20.1 / 24.0 / 28.3 FGMRES per outer, 0.9 / 3.9 / 19.5 s, 9.9 / 12.0 / 16.3 x
+      SIMPLEC's cost per cell and iteration; with system_tolerance 0.1: 128^2 / 256^2 16 / 18 its, 3.3 / 12.5 s
+  plate coarse / medium / fine: 46 / 45 / diverged at 36 its; 22.9 / 34.6 / ~84 FGMRES per outer (the fine
+      plate's solves missed the tolerance at iteration 23 and the sparse LU took over); 2.7 / 14.1 s;
+      6.0 / 8.8 x SIMPLEC's cost per cell and iteration; after the merge: 40 / 45 its, 20.1 / 28.0 FGMRES
+      per outer, 2.4 / 12.2 s, 6.0 / 7.4 x
+  step coarse / medium: the first solves miss the tolerance (iteration 2), the sparse LU takes over:
+      127 / 182 its, 19.3 / 169.9 s
+Measured earlier with system_solver = "direct" (heavily loaded; iterations SIMPLEC -> simultaneous):
   cavity 64^2 / 128^2 / 256^2: 209 / 715 / 2713 -> 40 / 40 / 42 its; 2.4 / 37.2 / 568.9 s -> 3.8 / 24.9 / 55.3 s;
       us per cell and iteration 2.8-3.2 -> 20-38; max |du| / U 3.5e-6 / 7.5e-6 / 9.3e-6
   plate coarse / medium / fine: 243 / 420 / 1596 -> 40 / 45 / diverged at 35 (563 s); 1.3 / 8.3 / 263 s
@@ -24,6 +37,13 @@ seconds; iterations SIMPLEC -> simultaneous; answer: relative difference of the 
   step coarse / medium: 1668 / not converged in 4000 (793 s) -> 128 / 181 its; 36.7 s -> 22.9 / 357.6 s;
       x_r rel. 2.0e-7 / 6.3e-7 (against the unfinished SIMPLEC run)
   The fine step was not run (SuperLU memory and time).
+Turbulent families again after the simultaneous path's default turbulence_cfl became 0 (no pseudo-time
+steps; same machine, load about 5; simultaneous path only, iterations to the default stop):
+  plate coarse / medium: 36 / 45 its (growth 1.25), Cf(0.97) rel. to SIMPLEC 1.8e-8 / 2.5e-7;
+      fine: diverged at iteration 32 (829 s; a SuperLU factorisation every iteration), as with CFL 20
+  step coarse / medium: 85 / 94 its (growth 1.11; was 127 / 181 = 1.43 with CFL 20); 35 / 182 s
+      (triad ratio 1.3e7 / 1.8e7); x_r 6.13293661 / 6.17163486 (SIMPLEC 6.13293663 / 6.171635 at its
+      settled stop: rel. 3e-9 / 2e-8)
 
 Run:  python benchmarks/bench_coupled.py [--families cavity plate step] [--fine-step] [--only simultaneous]
 """

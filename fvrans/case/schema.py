@@ -51,12 +51,16 @@ DEFAULT_PROFILE_COLUMNS = {"coordinate": "y", "u": "u", "v": "v", "nu_tilde_rati
 #: default under-relaxation of the pressure correction for each coupling
 DEFAULT_RELAX_PRESSURE = {"simple": 0.3, "simplec": 1.0, "simultaneous": 1.0}
 DEFAULT_RELAX_VELOCITY = {"simple": 0.7, "simplec": 0.95, "simultaneous": 1.0}
+#: default CFL number of the turbulence pseudo-time steps per coupling (0: none); the simultaneous path
+#: takes none: a step of CFL x (cell volume / flow through it) shrinks with the cells, and its slow
+#: corner modes then took more outer iterations on finer grids (DEVELOPERS.md, "Simultaneous solution")
+DEFAULT_TURBULENCE_CFL = {"simple": 20.0, "simplec": 20.0, "simultaneous": 0.0}
 #: default relative tolerance of each turbulence solve, by model (others: 0.01): omega spans about
 #: ten decades between a wall and the free stream, and a looser solve leaves the free stream unsolved
 DEFAULT_TURBULENCE_TOLERANCE = {"k-omega-sst": 1e-6}
 MOMENTUM_SOLVERS = ("amg", "gauss-seidel")
 #: linear solvers of the simultaneous u-v-p system (``fvrans.solve.coupled``)
-SYSTEM_SOLVERS = ("direct", "gmres-amg")
+SYSTEM_SOLVERS = ("direct", "iterative")
 TURBULENCE_SOLVERS = ("amg", "gauss-seidel")
 #: text standing for a Python function in :meth:`Case.to_dict`
 CALLABLE_TEXT = "<python callable>"
@@ -242,8 +246,9 @@ class BoundarySpec:
 class SolverSettings:
     """Pressure-velocity coupling, discretisation and linear-solver settings.
 
-    ``relax_velocity=None`` / ``relax_pressure=None`` take the default of the coupling
-    (:data:`DEFAULT_RELAX_VELOCITY`, :data:`DEFAULT_RELAX_PRESSURE`).
+    ``relax_velocity=None`` / ``relax_pressure=None`` / ``turbulence_cfl=None`` take the default of
+    the coupling (:data:`DEFAULT_RELAX_VELOCITY`, :data:`DEFAULT_RELAX_PRESSURE`,
+    :data:`DEFAULT_TURBULENCE_CFL`).
     """
 
     coupling: str = "simplec"
@@ -268,8 +273,8 @@ class SolverSettings:
     divergence_factor: float = 1e5
     checkpoint_every: int = 0
     conservative_start: bool = True
-    turbulence_cfl: float = 20.0
-    system_solver: str = "direct"
+    turbulence_cfl: float | None = None
+    system_solver: str = "iterative"
     system_tolerance: float = 0.01
     #: threads of the parallel kernels; 0: the FVRANS_THREADS variable, else every idle core (fvrans.jit)
     threads: int = 0
@@ -279,6 +284,8 @@ class SolverSettings:
             object.__setattr__(self, "relax_velocity", DEFAULT_RELAX_VELOCITY.get(self.coupling, 0.7))
         if self.relax_pressure is None:
             object.__setattr__(self, "relax_pressure", DEFAULT_RELAX_PRESSURE.get(self.coupling, 1.0))
+        if self.turbulence_cfl is None:
+            object.__setattr__(self, "turbulence_cfl", DEFAULT_TURBULENCE_CFL.get(self.coupling, 20.0))
 
 
 @dataclass(frozen=True)

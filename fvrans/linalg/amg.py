@@ -131,11 +131,13 @@ class AmgKrylovSolver:
 
     ``method``: 'cg' (symmetric positive (semi-)definite A) or 'bicgstab' (general, e.g. the
     momentum matrix). ``singular``: A has the constant vector as null space (pressure correction
-    without a fixed-pressure boundary); the solution is returned mean-free. ``block_sweep``: smooth
-    the levels of 4 096 rows or more in coloured blocks on every thread (``smoother_blocks``);
-    default: for 'cg' only. On the bundled step and plate the block order cost the momentum
-    BiCGStab 5-10 % more iterations (a block swept before the one upstream of it sees its old
-    values), and the two velocity components are already solved at once on two threads.
+    without a fixed-pressure boundary); the solution is returned mean-free. ``coarsening``: pyamg's
+    C/F splitting, 'RS' (Ruge-Stuben) or 'CLJP' (Cleary-Luby-Jones-Plassmann: about 1.4x the
+    coarse-level storage, but a V-cycle that keeps contracting on the stretched cells of wall layers).
+    ``block_sweep``: smooth the levels of 4 096 rows or more in coloured blocks on every thread
+    (``smoother_blocks``); default: for 'cg' only. On the bundled step and plate the block order
+    cost the momentum BiCGStab 5-10 % more iterations (a block swept before the one upstream of it
+    sees its old values), and the two velocity components are already solved at once on two threads.
     """
 
     def __init__(
@@ -147,6 +149,7 @@ class AmgKrylovSolver:
         max_iterations: int = 60,
         sweeps: int = 1,
         max_coarse: int = 200,
+        coarsening: str = "RS",
         block_sweep: bool | None = None,
     ):
         if method not in ("cg", "bicgstab"):
@@ -158,6 +161,7 @@ class AmgKrylovSolver:
         self.max_iterations = int(max_iterations)
         self.sweeps = int(sweeps)
         self.max_coarse = int(max_coarse)
+        self.coarsening = coarsening
         self.block_sweep = method == "cg" if block_sweep is None else bool(block_sweep)
         self._h = None
         self._uses = 0
@@ -177,7 +181,8 @@ class AmgKrylovSolver:
         self.release()  # the old hierarchy goes first: the new one is built beside pyamg's, not beside both
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
-            ml = pyamg.ruge_stuben_solver(sp.csr_matrix(A, copy=True), max_coarse=self.max_coarse, max_levels=25)
+            ml = pyamg.ruge_stuben_solver(sp.csr_matrix(A, copy=True), max_coarse=self.max_coarse, max_levels=25,
+                                          CF=self.coarsening)
         levels = ml.levels
         del ml
         n = np.asarray([lv.A.shape[0] for lv in levels], dtype=np.int64)

@@ -10,6 +10,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from fvrans.linalg import _amg_kernels as _k
+from fvrans.linalg import _krylov_kernels as _kk
 from fvrans.linalg.amg import AmgKrylovSolver
 
 
@@ -23,34 +24,28 @@ def fgmres(
     relative residual)."""
     n = r0.size
     dx = np.zeros(n)
-    beta0 = float(np.linalg.norm(r0))
+    beta0 = _kk.norm2(r0)
     if beta0 == 0.0:
         return dx, 0, 0.0
     r = r0.copy()
     its = 0
     rel = 1.0
     m = restart
+    V = np.empty((m + 1, n))
+    Z = np.empty((m, n))
     while its < max_iterations:
-        beta = float(np.linalg.norm(r))
-        V = np.zeros((m + 1, n))
-        Z = np.zeros((m, n))
+        beta = _kk.norm2(r)
         H = np.zeros((m + 1, m))
         cs = np.zeros(m)
         sn = np.zeros(m)
         gvec = np.zeros(m + 1)
         gvec[0] = beta
-        V[0] = r / beta
+        np.multiply(r, 1.0 / beta, out=V[0])
         k = 0
         for k in range(m):
             Z[k] = prec(V[k])
-            w = matvec(Z[k])
-            for _ in range(2):  # classical Gram-Schmidt, twice
-                h = V[: k + 1] @ w
-                w -= h @ V[: k + 1]
-                H[: k + 1, k] += h
-            H[k + 1, k] = np.linalg.norm(w)
-            if H[k + 1, k] > 0.0:
-                V[k + 1] = w / H[k + 1, k]
+            w = np.array(matvec(Z[k]), dtype=float)
+            _kk.orthogonalise(V, k, w, H[:, k])
             for i in range(k):
                 t = cs[i] * H[i, k] + sn[i] * H[i + 1, k]
                 H[i + 1, k] = -sn[i] * H[i, k] + cs[i] * H[i + 1, k]
@@ -66,12 +61,21 @@ def fgmres(
             rel = abs(gvec[k + 1]) / beta0
             if rel <= rtol or its >= max_iterations:
                 break
-        y = np.linalg.solve(np.triu(H[: k + 1, : k + 1]), gvec[: k + 1])
-        dx += y @ Z[: k + 1]
+        y = _upper_solve(H[: k + 1, : k + 1], gvec[: k + 1])
+        _kk.add_combination(Z, y, dx)
         if rel <= rtol or its >= max_iterations:
             break
         r = r0 - matvec(dx)
     return dx, its, rel
+
+
+def _upper_solve(R: np.ndarray, g: np.ndarray) -> np.ndarray:
+    """y with R y = g, R upper triangular (back substitution; no LAPACK call)."""
+    m = g.size
+    y = np.zeros(m)
+    for i in range(m - 1, -1, -1):
+        y[i] = (g[i] - R[i, i + 1:] @ y[i + 1:]) / R[i, i]
+    return y
 
 
 class VCycle:
@@ -79,17 +83,19 @@ class VCycle:
     hierarchy of :class:`fvrans.linalg.amg.AmgKrylovSolver`, rebuilt every ``rebuild_every``
     updates, the finest level refreshed with the current matrix)."""
 
-    def __init__(self, rebuild_every: int = 20, singular: bool = False):
-        self.amg = AmgKrylovSolver("cg", singular=singular)
+    def __init__(self, rebuild_every: int = 20, singular: bool = False, coarsening: str = "RS"):
+        self.amg = AmgKrylovSolver("cg", singular=singular, coarsening=coarsening)
         self.rebuild_every = int(rebuild_every)
         self.singular = bool(singular)
         self._uses = 0
 
-    def update(self, A: sp.csr_matrix) -> None:
+    def update(self, A: sp.csr_matrix, rebuild: bool = False) -> None:
+        """Use ``A`` from now on: a new hierarchy when ``rebuild``, every ``rebuild_every`` updates
+        or when the structure changed; else the finest level refreshed with A's values."""
         a = self.amg
         A = sp.csr_matrix(A)
         A.sort_indices()
-        if a._h is None or self._uses >= self.rebuild_every or A.nnz != a._fine_nnz:
+        if rebuild or a._h is None or self._uses >= self.rebuild_every or A.nnz != a._fine_nnz:
             a.rebuild(A)
             self._uses = 0
         else:
@@ -97,14 +103,15 @@ class VCycle:
             _k.refresh_fine(A.data, h[6], h[3], h[5], h[1][0], h[7])
         self._uses += 1
 
-    def __call__(self, b: np.ndarray) -> np.ndarray:
+    def __call__(self, b: np.ndarray, par: bool = False) -> np.ndarray:
+        """x = M^-1 b; ``par``: the large levels' residuals and transfers on every thread."""
         h = self.amg._h
         xs, bs, rs = self.amg._vec
         n0 = int(h[1][0])
         bs[:n0] = b
         if self.singular:
             bs[:n0] -= bs[:n0].mean()
-        _k.vcycle(*h, xs, bs, rs, False)
+        _k.vcycle(*h, xs, bs, rs, par)
         x = xs[:n0].copy()
         if self.singular:
             x -= x.mean()

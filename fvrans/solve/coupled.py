@@ -31,14 +31,18 @@ iteration, as in :class:`fvrans.solve.simple.SimpleSolver`, whose loop (``run``,
 divergence guard, residuals, fields) this class inherits. The converged answer is the segregated
 loop's: every equation is the same at convergence (residuals of ``fvrans.fv.residual``).
 
-Linear solvers (``SolverControls.system_solver``): 'direct' (SuperLU, scipy) or 'gmres-amg' (flexible
-GMRES right-preconditioned by one SIMPLE-type block sweep: AMG V-cycles for the momentum blocks
-and for the Schur complement approximated by D diag(A)^-1 G; Elman et al. 2008, J. Comput. Phys.
-227, 1790-1808, from memory).
+Linear solvers (``SolverControls.system_solver``): 'iterative' (the default: flexible GMRES
+right-preconditioned by the upper block-triangular pressure convection-diffusion preconditioner of
+``fvrans.linalg.block_preconditioner``, AMG V-cycles for the momentum blocks and the pressure
+Laplacian, memory in proportion to the cells; FGMRES iterations per outer iteration nearly
+independent of the grid; should a solve miss its tolerance, the sparse LU takes over for the rest
+of the run) or 'direct' (SuperLU, scipy, reused as the preconditioner of FGMRES in later outer
+iterations).
 """
 
 from __future__ import annotations
 
+import logging
 import time
 from typing import Any
 
@@ -47,12 +51,26 @@ import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 
 from fvrans.errors import CaseError
-from fvrans.linalg.fgmres import VCycle, fgmres
+from fvrans.linalg.block_preconditioner import PressureConvectionDiffusion, SimpleSchur, neumann_convection_diffusion
+from fvrans.linalg.fgmres import fgmres
 from fvrans.solve import _coupled_kernels as CK
 from fvrans.solve import _kernels as K
 from fvrans.solve.simple import SimpleSolver
 
-SYSTEM_SOLVERS = ("direct", "gmres-amg")
+log = logging.getLogger(__name__)
+SYSTEM_SOLVERS = ("direct", "iterative")
+#: FGMRES restart length and iteration limit of the iterative solve (the Krylov basis holds
+#: 2 (RESTART + 1) vectors of 3 values per cell)
+RESTART = 20
+#: the momentum blocks' multigrid hierarchies are set up anew when a solve needs this many times the
+#: FGMRES iterations of the first solve after the last set-up (coarse levels kept from an earlier
+#: matrix: the turbulent plate (medium) needed 100-200 iterations per outer iteration while its eddy
+#: viscosity developed, 32 with a set-up every outer iteration)
+REBUILD_GROWTH = 1.5
+#: iterations allowed with kept coarse levels before the hierarchy is set up anew
+STALE_KRYLOV = 60
+FALLBACK_FACTOR = 1.0
+MAX_KRYLOV = 200
 #: FGMRES iterations preconditioned by an earlier factorisation before the system is factorised anew
 REUSE_ITERATIONS = 10
 #: at most this many Newton steps on the boundary extrapolation of the pressure gradient per outer iteration
@@ -138,7 +156,17 @@ class SimultaneousSolver(SimpleSolver):
         #: (cavity 64^2 / 128^2: 17 / 16 against 19 / 17 iterations, each about 10 % cheaper lagged)
         self.implicit_gradient = True
         self.eddy_viscosity_relaxation = float(self.ctl.eddy_viscosity_relaxation)
-        self._amg = None
+        self._prec = None
+        self._row_scale = None
+        #: the iterative solve missed its tolerance once; the direct solve takes over
+        self.fell_back = False
+        self._fresh_its: int | None = None
+        self._since_setup = 0
+        self._missed = False
+        self.lin_residuals: list[float] = []
+        #: Schur complement approximation of the iterative solve: "convection-diffusion" or "simple"
+        #: (the SIMPLE-type baseline, whose iterations grow with the grid)
+        self.preconditioner = "convection-diffusion"
         self._zero_c2 = np.zeros((nc, 2))
         self._zero_c = np.zeros(nc)
         self._zero_beta = np.zeros(nc)
@@ -296,39 +324,90 @@ class SimultaneousSolver(SimpleSolver):
         del nc
         return self._lu.solve(rhs)
 
+    def _block_preconditioner(self):
+        """The block preconditioner of the iterative solve, made on first use (the compact unit
+        Laplacian of the pressure convection-diffusion form depends on the mesh only)."""
+        if self._prec is None:
+            every = self.ctl.amg_rebuild_every
+            if self.preconditioner == "simple":
+                self._prec = SimpleSchur(self.G, self.D, self.singular, every)
+            else:
+                # the unit Laplacian: Dirichlet on faces with a given pressure and at inflow (Elman &
+                # Tuminaro 2009, from memory: step coarse 118 -> 79 FGMRES iterations at one state, fine
+                # plate 75 -> 57), Neumann elsewhere
+                kind = self.bc.kind
+                inflow = (kind == K.INLET) | (kind == K.FREESTREAM)
+                rows, cols, vals = CK.pressure_difference_triplets(
+                    self.owner, self.neigh, self.ni, self.dcoef, self.kvec, self.geom.face_weight,
+                    np.ones(self.nc), self.fixed | inflow, 1.0)
+                lap = sp.csr_matrix((vals[:, 0], (rows, cols)), shape=(self.nc, self.nc))
+                singular = self.singular and not inflow.any()
+                self._prec = PressureConvectionDiffusion(lap, self.G, self.vol, float(self.rho), singular)
+                # rows of A_p that keep the momentum matrix's boundary condition: cells at inflow
+                self._ap_keep = np.zeros(self.nc, dtype=bool)
+                self._ap_keep[self.owner[self.ni:][inflow]] = True
+        return self._prec
+
     def _solve_gmres(self, A: sp.csr_matrix, rhs: np.ndarray) -> np.ndarray:
+        """Flexible GMRES(``RESTART``) on the system, right-preconditioned by one block sweep of
+        AMG V-cycles (``fvrans.linalg.block_preconditioner``), from the current state, to
+        ``system_tolerance`` relative to the first residual."""
         nc = self.nc
         Amom, App, *_ = self._parts
+        if self.preconditioner != "simple":
+            # the preconditioner's momentum blocks leave out the implicit correction of the wall
+            # faces' viscous flux (``_wall_flux_matrix``): with it, the pressure convection-diffusion
+            # approximation lost its grid independence (cavity 32^2 / 64^2 / 128^2, FGMRES to 1e-6
+            # at one state: 39 / 55 / 103 iterations with it, 39 / 43 / 44 without)
+            Amom = Amom - self._wall_flux_matrix()
         Au = Amom[:nc, :nc].tocsr()
         Av = Amom[nc:, nc:].tocsr()
-        da = Au.diagonal()
-        dv = Av.diagonal()
-        Gx = self.G[:nc]
-        Gy = self.G[nc:]
-        Du = self.D[:, :nc]
-        Dv = self.D[:, nc:]
-        # Schur complement approximation App - D diag(A)^-1 G
-        Sapp = (App - Du @ sp.diags(1.0 / da) @ Gx - Dv @ sp.diags(1.0 / dv) @ Gy).tocsr()
-        if self._amg is None:
-            every = self.ctl.amg_rebuild_every
-            self._amg = (VCycle(every), VCycle(every), VCycle(every, singular=self.singular))
-        mu, mv, mp = self._amg
-        mu.update(Au)
-        mv.update(Av)
-        mp.update(Sapp)
-
-        def prec(r: np.ndarray) -> np.ndarray:
-            zu = mu(r[:nc])
-            zv = mv(r[nc:2 * nc])
-            zp = mp(r[2 * nc:] - Du @ zu - Dv @ zv)
-            zu -= (Gx @ zp) / da
-            zv -= (Gy @ zp) / dv
-            return np.concatenate([zu, zv, zp])
-
+        prec = self._block_preconditioner()
+        rebuild = False
+        if self.preconditioner == "simple":
+            prec.update(Au, Av, App)
+        else:
+            # a new momentum hierarchy after amg_rebuild_every outer iterations, when the last solve
+            # needed REBUILD_GROWTH times the iterations of the first after the last set-up, or when
+            # a solve with the kept coarse levels misses the tolerance (below)
+            its = self.lin_iterations
+            self._since_setup += 1
+            rebuild = (self._fresh_its is None or self._since_setup > self.ctl.amg_rebuild_every
+                       or self._missed or bool(its and its[-1] > REBUILD_GROWTH * max(self._fresh_its, 1)))
+            Ap = neumann_convection_diffusion(Au, self._ap_keep, self.a_rel[:, 0] - self.diag_u)
+            prec.update(Au, Av, Ap, rebuild=rebuild)
         x0 = np.concatenate([self.fields.velocity[:, 0], self.fields.velocity[:, 1], self.fields.pressure])
-        r0 = rhs - A @ x0
-        dx, its, _ = fgmres(lambda z: A @ z, prec, r0, self.ctl.system_tolerance, 40, 400)
+        # rows in velocity units, so that the norm FGMRES reduces weighs momentum and continuity
+        # alike: momentum rows over their diagonal, continuity rows over rho sum_f |S_f|
+        if self._row_scale is None:
+            area = np.zeros(self.nc)
+            smag = np.linalg.norm(self.S, axis=1)
+            np.add.at(area, self.owner, smag)
+            np.add.at(area, self.neigh, smag[:self.ni])
+            self._row_scale = np.concatenate([np.zeros(2 * nc), 1.0 / (self.rho * area)])
+        d = self._row_scale
+        d[:2 * nc] = 1.0 / A.diagonal()[:2 * nc]
+        tol = self.ctl.system_tolerance
+        r0 = d * (rhs - A @ x0)
+        stale = self.preconditioner != "simple" and not rebuild
+        dx, its, rel = fgmres(lambda z: d * (A @ z), lambda v: prec(v / d), r0, tol, RESTART,
+                              STALE_KRYLOV if stale else MAX_KRYLOV)
+        self._missed = stale and not rel <= tol
+        if self._missed:
+            # the kept coarse levels no longer fit: set up anew and go on from where FGMRES stopped
+            prec.update(Au, Av, Ap, rebuild=True)
+            rebuild = True
+            r1 = r0 - d * (A @ dx)
+            more, its2, rel1 = fgmres(lambda z: d * (A @ z), lambda v: prec(v / d), r1,
+                                      tol * np.linalg.norm(r0) / np.linalg.norm(r1), RESTART, MAX_KRYLOV)
+            dx += more
+            its += its2
+            rel = rel1 * np.linalg.norm(r1) / np.linalg.norm(r0)
+        if rebuild:
+            self._since_setup = 0
+            self._fresh_its = its
         self.lin_iterations.append(its)
+        self.lin_residuals.append(rel)
         return x0 + dx
 
     # -- one outer iteration ------------------------------------------------------------------
@@ -338,10 +417,18 @@ class SimultaneousSolver(SimpleSolver):
         rho, ni, g, kind, nc = self.rho, self.ni, self.geom, self.bc.kind, self.nc
         A, rhs, res = self._assemble()
         t0 = time.perf_counter()
-        if self.ctl.system_solver == "direct":
+        if self.ctl.system_solver == "direct" or self.fell_back:
             x = self._solve_direct(A, rhs)
         else:
             x = self._solve_gmres(A, rhs)
+            if not self.lin_residuals[-1] <= FALLBACK_FACTOR * self.ctl.system_tolerance:
+                # the block preconditioner does not fit this flow (seen on turbulent wall layers while
+                # the eddy viscosity develops): the sparse LU from here on
+                log.info("simultaneous solve: FGMRES reached %.2g (tolerance %g) in %d iterations; "
+                         "the sparse LU takes over", self.lin_residuals[-1], self.ctl.system_tolerance,
+                         self.lin_iterations[-1])
+                self.fell_back = True
+                x = self._solve_direct(A, rhs)
         self.lin_seconds += time.perf_counter() - t0
         Amom, App, E, r_u, r_v, rbar, gu, hu = self._parts
         V = self.vol
@@ -365,6 +452,7 @@ class SimultaneousSolver(SimpleSolver):
             ub2 = self._velocity_on_boundary(u_new, F[ni:])
             res += self.model.update(fl, self.grad(u_new, ub2),
                                      self.flow_rate / self.ctl.turbulence_cfl if self.use_turbulence_cfl else None)
+        self._parts = None  # the blocks of this iteration's system: not held while the next is assembled
         self.iteration += 1
         return res
 

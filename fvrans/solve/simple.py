@@ -66,6 +66,8 @@ PHASES = (
 #: default velocity under-relaxation per coupling: 0.7 for SIMPLE is common practice; 0.95 for
 #: SIMPLEC was the fastest of 0.7-0.98 on the Re = 100 and 1000 cavity (benchmarks/bench_cavity.py)
 DEFAULT_RELAX_VELOCITY = {"simplec": 0.95, "simple": 0.7, "simultaneous": 1.0}
+#: default CFL of the turbulence pseudo-time steps per coupling (0: none; see SolverControls)
+DEFAULT_TURBULENCE_CFL = {"simplec": 20.0, "simple": 20.0, "simultaneous": 0.0}
 # A steady incompressible flow does not reach speeds of this many times the largest speed imposed
 # on its boundaries or given as its initial field: a run that does is diverging, even while its
 # values are still finite (common practice: an order-of-magnitude guard, not a physical limit).
@@ -97,7 +99,9 @@ class SolverControls:
     channel, depending on round-off. ``turbulence_cfl``: the turbulence equation gets
     rho V / dt = q / CFL on its diagonal (q the mass flow through the cell, ``_kernels.flow_rates``),
     a relaxation that does not grow with the diagonal: it ends the limit cycle of the Re_h 1e6
-    bump without Patankar relaxation, which ties stacks of thin cells (step). ``momentum_cfl``
+    bump without Patankar relaxation, which ties stacks of thin cells (step); None takes the
+    coupling's default (:data:`DEFAULT_TURBULENCE_CFL`: 20, none for the simultaneous path, whose
+    outer iterations it made grow with the grid). ``momentum_cfl``
     (off; not a case key): the same for the momentum equations, beside Patankar's relaxation; it
     sped up some cases and slowed or stalled others (DEVELOPERS.md), kept for the study of
     pseudo-transient continuation.
@@ -119,12 +123,16 @@ class SolverControls:
     divergence_factor: float = 1e5
     quadratic_face_flux: bool | None = None
     conservative_start: bool = True
-    turbulence_cfl: float = 20.0
+    turbulence_cfl: float | None = None
     momentum_cfl: float = 0.0
-    system_solver: str = "direct"
+    system_solver: str = "iterative"
     system_tolerance: float = 0.01
     eddy_viscosity_relaxation: float = 0.5
     threads: int = 0
+
+    def __post_init__(self) -> None:
+        if self.turbulence_cfl is None:
+            self.turbulence_cfl = DEFAULT_TURBULENCE_CFL.get(self.coupling, 20.0)
 
     @property
     def alpha_u(self) -> float:

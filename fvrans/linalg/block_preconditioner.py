@@ -1,0 +1,137 @@
+"""Block preconditioners of the simultaneous u-v-p system of ``fvrans.solve.coupled``.
+
+The system (unknowns u, v, p of every cell) is
+
+  [ A   G ] [u]   [f]        A = diag(A_u, A_v)  momentum (convection-diffusion) matrix
+  [ D   C ] [p] = [g]        G  pressure face sums (~ V grad),  D  velocity part of continuity
+                             (~ rho V div),  C  the Rhie-Chow pressure terms
+
+and its Schur complement S = C - D A^-1 G. Both preconditioners here are right preconditioners of
+flexible GMRES (``fvrans.linalg.fgmres``) made of algebraic-multigrid V-cycles
+(``fgmres.VCycle``), so memory stays in proportion to the cells.
+
+``PressureConvectionDiffusion`` (upper block-triangular, P = [[A, G], [0, S~]]):
+
+  z_p = S~^-1 r_p,   z_u = A^-1 (r_u - G z_p)   (one V-cycle per velocity component)
+
+with the pressure convection-diffusion approximation of the Schur complement (Kay, Loghin &
+Wathen 2002, SIAM J. Sci. Comput. 24, 237-256; Elman, Silvester & Wathen, Finite Elements and Fast
+Iterative Solvers, 2nd ed. 2014, ch. 9; both from memory). With A ~ V L (L the convection-diffusion
+operator per unit volume), G ~ V grad, D ~ rho V div and the commutator L grad ~ grad L_p,
+
+  D A^-1 G ~ rho V div grad L_p^-1 ~ -rho Lap A_p^-1 V,   so   S^-1 ~ V^-1 A_p Lap^-1 / rho,
+
+Lap the compact Laplacian sum_f |S_f|^2 / (d_f . S_f) (p_P - p_N) (Dirichlet on faces with a given
+pressure, Neumann elsewhere), A_p the momentum matrix of u on the pressure cells. The collocated
+grid carries both on the same cells, so A_p is the assembled A_u with its boundary conditions
+changed: no-slip walls, symmetry planes and outflow become Neumann (each row's sum taken off its
+diagonal, apart from relaxation and pseudo-time), inflow stays Dirichlet (Elman & Tuminaro 2009,
+Electron. Trans. Numer. Anal. 35, 257-280, from memory). The Rhie-Chow terms C are left out: they
+vanish on smooth pressures and only add to S on the checkerboard modes, where L_p and Lap already
+make S~ of the right size. The Laplacian's hierarchy uses CLJP coarsening: with Ruge-Stuben's, a
+V-cycle barely contracted (factor 0.99) a smooth error in the thin cells of the plate's wall layer;
+with CLJP 0.29-0.40 on the plate and step grids.
+
+Measured (FGMRES to 1e-6 of one coupled system, cavity Re 100 after two outer iterations; one V-cycle
+per block): 28 / 29 / 29 iterations on 32^2 / 64^2 / 128^2; with A_p = A_u as assembled (Dirichlet at
+the walls) 27 / 35 / 44, growing; the SIMPLE-type sweep below 78 / 165 / more than 200. Whole runs
+(system tolerance 0.01): cavity 64^2 / 128^2 / 256^2 9.9 / 10.3 / 10.4 FGMRES iterations per outer
+iteration.
+
+``SimpleSchur`` (block lower-upper sweep with S~ = C - D diag(A)^-1 G, the SIMPLE approximation;
+Elman et al. 2008, J. Comput. Phys. 227, 1790-1808, from memory): kept as the baseline the tests
+compare against. Its iterations grow with the grid (about 2x per 4x cells).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import scipy.sparse as sp
+
+from fvrans.jit import threads
+from fvrans.linalg.amg import _second_thread
+from fvrans.linalg.fgmres import VCycle
+
+MOMENTUM_COARSENING = "RS"
+LAPLACIAN_COARSENING = "CLJP"
+
+
+def neumann_convection_diffusion(A: sp.csr_matrix, keep: np.ndarray, extra_diagonal: np.ndarray) -> sp.csr_matrix:
+    """A with its boundary conditions made Neumann: the row sum of A less ``extra_diagonal``
+    (relaxation and pseudo-time parts of the diagonal) is taken off the diagonal of every row where
+    ``keep`` is False. In rows away from boundaries that sum is the cell's net outflow times its
+    convection weight (zero for a conservative flux field), so they barely change."""
+    rowsum = np.asarray(A.sum(axis=1)).ravel() - extra_diagonal
+    return (A - sp.diags(np.where(keep, 0.0, rowsum))).tocsr()
+
+
+class PressureConvectionDiffusion:
+    """Upper block-triangular preconditioner with the pressure convection-diffusion Schur complement
+    (module docstring). ``lap``: the compact unit Laplacian (fixed structure, set up once);
+    ``G``: the 2n x n pressure face sums; ``vol``: cell volumes; ``singular``: no given pressure
+    anywhere (Lap has the constants as null space)."""
+
+    def __init__(self, lap: sp.csr_matrix, G: sp.csr_matrix, vol: np.ndarray, rho: float, singular: bool):
+        self.n = lap.shape[0]
+        self.G = sp.csr_matrix(G)
+        self.scale = 1.0 / (rho * np.asarray(vol, dtype=float))
+        self.lap = VCycle(1 << 30, singular=singular, coarsening=LAPLACIAN_COARSENING)
+        self.lap.update(lap)
+        self.mu = VCycle(1 << 30, coarsening=MOMENTUM_COARSENING)
+        self.mv = VCycle(1 << 30, coarsening=MOMENTUM_COARSENING)
+        self.Ap: sp.csr_matrix | None = None
+
+    def update(self, Au: sp.csr_matrix, Av: sp.csr_matrix, Ap: sp.csr_matrix, rebuild: bool = False) -> None:
+        """The momentum blocks and the pressure convection-diffusion matrix of this outer iteration;
+        ``rebuild``: set up the momentum hierarchies anew (else only their finest levels follow)."""
+        fresh = rebuild or self.mu.amg._h is None
+        self.mu.update(Au, rebuild=fresh)
+        # A_v keeps a hierarchy of its own: with A_u's coarse levels (the two differ at symmetry
+        # planes) FGMRES missed its tolerance on the turbulent plate
+        self.mv.update(Av, rebuild=fresh)
+        self.Ap = Ap
+
+    def __call__(self, r: np.ndarray) -> np.ndarray:
+        n = self.n
+        par = threads() > 1
+        zp = (self.Ap @ self.lap(r[2 * n:], par)) * self.scale
+        w = r[:2 * n] - self.G @ zp
+        if par:
+            # the two velocity components at once, one per thread
+            second = _second_thread().submit(self.mv, w[n:])
+            zu = self.mu(w[:n])
+            zv = second.result()
+        else:
+            zu = self.mu(w[:n])
+            zv = self.mv(w[n:])
+        return np.concatenate([zu, zv, zp])
+
+
+class SimpleSchur:
+    """Block lower-upper sweep with S~ = C - D diag(A)^-1 G (one V-cycle per block; module docstring)."""
+
+    def __init__(self, G: sp.csr_matrix, D: sp.csr_matrix, singular: bool, rebuild_every: int = 20):
+        self.n = G.shape[1]
+        n = self.n
+        self.Gx, self.Gy = sp.csr_matrix(G[:n]), sp.csr_matrix(G[n:])
+        self.Du, self.Dv = sp.csr_matrix(D[:, :n]), sp.csr_matrix(D[:, n:])
+        self.mu = VCycle(rebuild_every)
+        self.mv = VCycle(rebuild_every)
+        self.mp = VCycle(rebuild_every, singular=singular)
+
+    def update(self, Au: sp.csr_matrix, Av: sp.csr_matrix, C: sp.csr_matrix) -> None:
+        self.du = Au.diagonal()
+        self.dv = Av.diagonal()
+        S = C - self.Du @ sp.diags(1.0 / self.du) @ self.Gx - self.Dv @ sp.diags(1.0 / self.dv) @ self.Gy
+        self.mu.update(Au)
+        self.mv.update(Av)
+        self.mp.update(S.tocsr())
+
+    def __call__(self, r: np.ndarray) -> np.ndarray:
+        n = self.n
+        zu = self.mu(r[:n])
+        zv = self.mv(r[n:2 * n])
+        zp = self.mp(r[2 * n:] - self.Du @ zu - self.Dv @ zv)
+        zu -= (self.Gx @ zp) / self.du
+        zv -= (self.Gy @ zp) / self.dv
+        return np.concatenate([zu, zv, zp])
