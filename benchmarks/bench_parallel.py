@@ -40,7 +40,9 @@ and each parallel loop waited for its second thread; compare CPU seconds (s x CP
 
 Block sweep on every level of every solve (not the default; best of 2, load 4.2-5.5), Krylov p/u: cavity
 2.5/1.0, step coarse 12.4/3.1, step medium 12.4/3.6, plate 7.1/1.6: the momentum BiCGStab took more iterations,
-hence the default. 1 vs 2 threads: the same bits on every case and smoother. On a quiet machine (load 0.5,
+hence the default. Later (load 1.9-3.4, one core still held by others; default smoother, best of 2): cavity
+256^2 3.44 / 26.67 s (CPU use 1.00 / 1.01), plate 1.40 / 18.20 s, step medium 5.51 / 7.24 s (CPU use 1.00 / 1.50).
+1 vs 2 threads: the same bits on every case and smoother. On a quiet machine (load 0.5,
 previous build, serial smoothing, 100 iterations) 1 -> 2 threads: cavity 128^2 2.23 -> 2.03 s (CPU use 1.70),
 step coarse 1.97 -> 1.70 s, plate 2.27 -> 2.11 s. Counting bound for the block sweep (blocks per colour): the
 pressure smoothing on 2 threads takes 0.52 (cavity 256^2), 0.70 (step medium), 0.64 (plate medium), 0.89 (step
