@@ -38,9 +38,12 @@ Measured earlier with system_solver = "direct" (heavily loaded; iterations SIMPL
       x_r rel. 2.0e-7 / 6.3e-7 (against the unfinished SIMPLEC run)
   The fine step was not run (SuperLU memory and time).
 Turbulent families again after the simultaneous path's default turbulence_cfl became 0 (no pseudo-time
-steps; same machine, load about 5; simultaneous path only, iterations to the default stop):
+steps; same machine, load about 5; simultaneous path only, iterations to the default stop;
+system_solver "direct" unless said; scripts in /tmp/algo3):
   plate coarse / medium: 36 / 45 its (growth 1.25), Cf(0.97) rel. to SIMPLEC 1.8e-8 / 2.5e-7;
-      fine: diverged at iteration 32 (829 s; a SuperLU factorisation every iteration), as with CFL 20
+      fine: diverged at iteration 32 (829 s; a SuperLU factorisation every iteration), as with CFL 20;
+      with the iterative system solver at iteration 30 (346 s); with the iterative solver coarse / medium
+      take 38 / 46 its (5.5 / 26.5 s)
   step coarse / medium: 85 / 94 its (growth 1.11; was 127 / 181 = 1.43 with CFL 20); 35 / 182 s
       (triad ratio 1.3e7 / 1.8e7); x_r 6.13293661 / 6.17163486 (SIMPLEC 6.13293663 / 6.171635 at its
       settled stop: rel. 3e-9 / 2e-8)
