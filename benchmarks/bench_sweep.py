@@ -20,6 +20,21 @@ Measured with the defaults on the 2-core development machine (shared with other 
     dask 2 worker(s) warm         16      2.09     459.2        2392
     cluster start-up: 0.83 s (1 worker), 2.07 s (2 workers)
     dask overhead per run (1 worker against in-process, cold starts): 0.095 s
+
+By coupling (2026-12-03, in-process, ``--in-process-only --set solver.coupling=...``, machine shared with a
+test suite; seconds cold / warm, outer iterations cold / warm over the sweep):
+
+    sweep                                        simplec              simultaneous, direct  simultaneous, iterative
+    bump height, 16 runs (504 cells)             3.59 / 3.15 s        1.45 / 1.11 s         2.83 / 2.31 s
+                                                 3412 / 2769 its      310 / 249 its         314 / 254 its
+    channel viscosity, 8 runs (channel_poiseuille, 4 000 cells)
+                                                 3.93 / 3.18 s        2.30 / 2.07 s         12.21 / 5.37 s
+                                                 821 / 636 its        75 / 70 its           89 / 72 its
+
+The simultaneous path with the sparse LU (what ``system_solver = "by-size"`` takes below 8 000 cells) runs
+these laminar sweeps 1.5-2.8x faster. Sweeps still default to the case's coupling (SIMPLEC unless the
+case names another): on the laminar step (7 872 cells) a single run takes 16-18 s against SIMPLEC's 5.6 s,
+and the turbulent bump does not converge on the simultaneous path (DEVELOPERS.md).
 """
 
 from __future__ import annotations

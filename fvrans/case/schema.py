@@ -60,7 +60,7 @@ DEFAULT_TURBULENCE_CFL = {"simple": 20.0, "simplec": 20.0, "simultaneous": 0.0}
 DEFAULT_TURBULENCE_TOLERANCE = {"k-omega-sst": 1e-6}
 MOMENTUM_SOLVERS = ("amg", "gauss-seidel")
 #: linear solvers of the simultaneous u-v-p system (``fvrans.solve.coupled``)
-SYSTEM_SOLVERS = ("direct", "iterative")
+SYSTEM_SOLVERS = ("by-size", "direct", "iterative")
 TURBULENCE_SOLVERS = ("amg", "gauss-seidel")
 #: text standing for a Python function in :meth:`Case.to_dict`
 CALLABLE_TEXT = "<python callable>"
@@ -274,7 +274,7 @@ class SolverSettings:
     checkpoint_every: int = 0
     conservative_start: bool = True
     turbulence_cfl: float | None = None
-    system_solver: str = "iterative"
+    system_solver: str = "by-size"
     system_tolerance: float = 0.01
     #: threads of the parallel kernels; 0: the FVRANS_THREADS variable, else every idle core (fvrans.jit)
     threads: int = 0

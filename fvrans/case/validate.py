@@ -858,7 +858,7 @@ def _solver(ctx: _Ctx, data: Any, turbulence: str = "none") -> S.SolverSettings:
         conservative_start=t.boolean("conservative_start", True),
         turbulence_cfl=t.number("turbulence_cfl", S.DEFAULT_TURBULENCE_CFL[coupling], NON_NEGATIVE,
                                 "the CFL number of the turbulence pseudo-time steps; 0 turns them off"),
-        system_solver=t.choice("system_solver", S.SYSTEM_SOLVERS, "iterative"),
+        system_solver=t.choice("system_solver", S.SYSTEM_SOLVERS, "by-size"),
         system_tolerance=t.number("system_tolerance", 0.01, OPEN_UNIT, "a relative tolerance"),
         threads=t.integer("threads", 0, NON_NEGATIVE,
                           "threads of the numerical kernels; 0 takes FVRANS_THREADS or every idle core"),

@@ -125,7 +125,7 @@ class SolverControls:
     conservative_start: bool = True
     turbulence_cfl: float | None = None
     momentum_cfl: float = 0.0
-    system_solver: str = "iterative"
+    system_solver: str = "by-size"
     system_tolerance: float = 0.01
     eddy_viscosity_relaxation: float = 0.5
     threads: int = 0

@@ -42,6 +42,11 @@ def run(mesh, specs, simultaneous, mu=0.01, **controls):
     return solver, converged
 
 
+def _problem(mesh, specs):
+    geom = compute_geometry(mesh)
+    return mesh, geom, build_flow_boundary(mesh, geom, specs)
+
+
 def centrelines(solver):
     f = sampler(solver)
     u = f(np.c_[np.full_like(GHIA_Y, 0.5), GHIA_Y])[:, 0]
@@ -174,7 +179,10 @@ def test_case_keys():
     assert case.set("solver.turbulence_cfl", 5.0).solver.turbulence_cfl == 5.0
     assert SolverControls(coupling="simultaneous").turbulence_cfl == 0.0
     assert SolverControls().turbulence_cfl == 20.0
-    assert case.solver.system_solver == "iterative"
+    assert case.solver.system_solver == "by-size"
+    small = SimultaneousSolver(*_problem(cavity(8), CAVITY), rho=1.0, mu=0.01,
+                               controls=SolverControls(coupling="simultaneous"))
+    assert small.system_solver == "direct"
     with pytest.raises(CaseError, match="system_solver"):
         case.set("solver.system_solver", "cholesky")
     with pytest.raises(CaseError, match="system_tolerance"):
@@ -221,10 +229,10 @@ def test_iterative_solve_hands_over_to_the_sparse_lu(monkeypatch):
     import fvrans.solve.coupled as coupled
 
     mesh = cavity(16)
-    ref, ok1 = run(mesh, CAVITY, True, tolerance=1e-10, max_iterations=200)
+    ref, ok1 = run(mesh, CAVITY, True, tolerance=1e-10, max_iterations=200, system_solver="iterative")
     assert ok1 and not ref.fell_back
     monkeypatch.setattr(coupled, "MAX_KRYLOV", 1)
     monkeypatch.setattr(coupled, "STALE_KRYLOV", 1)
-    sim, ok2 = run(mesh, CAVITY, True, tolerance=1e-10, max_iterations=200)
+    sim, ok2 = run(mesh, CAVITY, True, tolerance=1e-10, max_iterations=200, system_solver="iterative")
     assert ok2 and sim.fell_back and sim.factorisations >= 1
     assert np.max(np.abs(sim.fields.velocity - ref.fields.velocity)) < 1e-8
