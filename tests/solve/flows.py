@@ -7,7 +7,26 @@ from scipy.interpolate import LinearNDInterpolator
 
 from fvrans.mesh import compute_geometry
 from fvrans.physics.boundary import build_flow_boundary
+from fvrans.solve.coupled import SimultaneousSolver
 from fvrans.solve.simple import SimpleSolver, SolverControls
+
+#: a lid-driven cavity (``fvrans.mesh.generate.cavity``) with the lid moving at 1
+CAVITY = {"lid": {"kind": "wall", "velocity": [1.0, 0.0]}, "walls": {"kind": "wall"}}
+#: a plane channel (``fvrans.mesh.generate.channel``): uniform inflow 1, outlet pressure 0
+CHANNEL = {
+    "inlet": {"kind": "inflow-velocity", "velocity": [1.0, 0.0]},
+    "outlet": {"kind": "outflow-pressure", "pressure": 0.0},
+    "lower_wall": {"kind": "wall"},
+    "upper_wall": {"kind": "wall"},
+}
+
+
+def simultaneous_solver(mesh, specs, rho=1.0, mu=0.01, **controls):
+    """A :class:`SimultaneousSolver` on the mesh with these boundary specs (not run)."""
+    geom = compute_geometry(mesh)
+    bc = build_flow_boundary(mesh, geom, specs)
+    controls.setdefault("coupling", "simultaneous")
+    return SimultaneousSolver(mesh, geom, bc, rho=rho, mu=mu, controls=SolverControls(**controls))
 
 
 def solve(mesh, specs, rho=1.0, mu=0.01, **controls):

@@ -7,7 +7,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from flows import sampler, split_same_diagonal
+from flows import CAVITY, CHANNEL, sampler, simultaneous_solver, split_same_diagonal
 from ghia1982 import U as GHIA_U
 from ghia1982 import V as GHIA_V
 from ghia1982 import X as GHIA_X
@@ -22,29 +22,16 @@ from fvrans.physics.boundary import build_flow_boundary
 from fvrans.solve.coupled import SimultaneousSolver
 from fvrans.solve.simple import SimpleSolver, SolverControls
 
-CAVITY = {"lid": {"kind": "wall", "velocity": [1.0, 0.0]}, "walls": {"kind": "wall"}}
-CHANNEL = {
-    "inlet": {"kind": "inflow-velocity", "velocity": [1.0, 0.0]},
-    "outlet": {"kind": "outflow-pressure", "pressure": 0.0},
-    "lower_wall": {"kind": "wall"},
-    "upper_wall": {"kind": "wall"},
-}
-
 
 def run(mesh, specs, simultaneous, mu=0.01, **controls):
-    geom = compute_geometry(mesh)
-    bc = build_flow_boundary(mesh, geom, specs)
     if simultaneous:
-        controls.setdefault("coupling", "simultaneous")
-    cls = SimultaneousSolver if simultaneous else SimpleSolver
-    solver = cls(mesh, geom, bc, rho=1.0, mu=mu, controls=SolverControls(**controls))
+        solver = simultaneous_solver(mesh, specs, mu=mu, **controls)
+    else:
+        geom = compute_geometry(mesh)
+        bc = build_flow_boundary(mesh, geom, specs)
+        solver = SimpleSolver(mesh, geom, bc, rho=1.0, mu=mu, controls=SolverControls(**controls))
     converged = solver.run()
     return solver, converged
-
-
-def _problem(mesh, specs):
-    geom = compute_geometry(mesh)
-    return mesh, geom, build_flow_boundary(mesh, geom, specs)
 
 
 def centrelines(solver):
@@ -180,8 +167,7 @@ def test_case_keys():
     assert SolverControls(coupling="simultaneous").turbulence_cfl == 0.0
     assert SolverControls().turbulence_cfl == 20.0
     assert case.solver.system_solver == "by-size"
-    small = SimultaneousSolver(*_problem(cavity(8), CAVITY), rho=1.0, mu=0.01,
-                               controls=SolverControls(coupling="simultaneous"))
+    small = simultaneous_solver(cavity(8), CAVITY)
     assert small.system_solver == "direct"
     with pytest.raises(CaseError, match="system_solver"):
         case.set("solver.system_solver", "cholesky")

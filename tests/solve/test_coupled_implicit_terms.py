@@ -8,29 +8,10 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from flows import split_same_diagonal
+from flows import CAVITY, CHANNEL, simultaneous_solver, split_same_diagonal
 
-from fvrans.mesh import compute_geometry
 from fvrans.mesh.generate import cavity, channel
-from fvrans.physics.boundary import build_flow_boundary
 from fvrans.solve import _kernels as K
-from fvrans.solve.coupled import SimultaneousSolver
-from fvrans.solve.simple import SolverControls
-
-CAVITY = {"lid": {"kind": "wall", "velocity": [1.0, 0.0]}, "walls": {"kind": "wall"}}
-CHANNEL = {
-    "inlet": {"kind": "inflow-velocity", "velocity": [1.0, 0.0]},
-    "outlet": {"kind": "outflow-pressure", "pressure": 0.0},
-    "lower_wall": {"kind": "wall"},
-    "upper_wall": {"kind": "wall"},
-}
-
-
-def solver_for(mesh, specs, mu=0.01, **controls):
-    geom = compute_geometry(mesh)
-    bc = build_flow_boundary(mesh, geom, specs)
-    ctl = SolverControls(coupling="simultaneous", **controls)
-    return SimultaneousSolver(mesh, geom, bc, rho=1.0, mu=mu, controls=ctl)
 
 
 def wall_flux(s, u):
@@ -49,7 +30,7 @@ def wall_flux(s, u):
 def test_wall_flux_matrix_is_the_derivative_of_the_wall_flux(mesh):
     """W + diag(mu dcoef) = -d(wall flux)/du: the flux is affine in the cell velocities, so a finite
     difference between two random fields is exact to round-off."""
-    s = solver_for(mesh, CAVITY, max_iterations=2)
+    s = simultaneous_solver(mesh, CAVITY, max_iterations=2)
     s.run()  # face viscosities and boundary velocities in place
     rng = np.random.default_rng(3)
     u1 = rng.normal(size=(s.nc, 2))
@@ -68,7 +49,7 @@ def test_pressure_gradient_is_the_fixed_point_of_the_extrapolation():
     """On quads every wall cell's extrapolation is solved exactly: the returned gradient g satisfies
     g = grad(p, p_b(g)), p_b = p_P + g . (x_f - x_P), to round-off (the segregated loop gets there
     by halving the error every iteration)."""
-    s = solver_for(channel(3.0, 1.0, 9, 5), CHANNEL, max_iterations=1)
+    s = simultaneous_solver(channel(3.0, 1.0, 9, 5), CHANNEL, max_iterations=1)
     rng = np.random.default_rng(5)
     p = rng.normal(size=s.nc)
     g = s._pressure_gradient(p, np.zeros((s.nc, 2))).copy()
@@ -87,9 +68,9 @@ def test_outer_iterations_contract_errors_fast(name):
     measured 0.31 (cavity 24^2, Re 100) and 0.41 (channel on triangles, Re_h 50); with the wall flux
     and the extrapolation deferred as in the segregated loop it was 0.61 and 0.76."""
     if name == "cavity_quads":
-        s = solver_for(cavity(24), CAVITY, tolerance=1e-10, max_iterations=200)
+        s = simultaneous_solver(cavity(24), CAVITY, tolerance=1e-10, max_iterations=200)
     else:
-        s = solver_for(split_same_diagonal(channel(4.0, 1.0, 24, 10)), CHANNEL, mu=0.02, tolerance=1e-10,
+        s = simultaneous_solver(split_same_diagonal(channel(4.0, 1.0, 24, 10)), CHANNEL, mu=0.02, tolerance=1e-10,
                        max_iterations=200)
     assert s.run()
     h = s.history.as_array().max(axis=1)
