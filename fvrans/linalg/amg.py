@@ -259,12 +259,7 @@ class AmgKrylovSolver:
             self.rebuild(A)
             it2, rel = self._run(A, b, x)
             it += it2
-            if not rel <= self.rtol:
-                log.debug("%s: relative residual %.3g after %d iterations (rtol %g)", self.method, rel, it, self.rtol)
-        self.last_iterations = int(it)
-        self.last_residual = float(rel)
-        self.total_iterations += int(it)
-        self.solves += 1
+        self._note(it, rel)
         return int(it)
 
     def solve_pair(self, A1: sp.csr_matrix, b1: np.ndarray, x1: np.ndarray,
@@ -306,6 +301,7 @@ class AmgKrylovSolver:
         return it1, it2
 
     def _note(self, it: int, rel: float) -> None:
+        """Record a finished solve (iterations, final relative residual); a miss is logged."""
         if not rel <= self.rtol:
             log.debug("%s: relative residual %.3g after %d iterations (rtol %g)", self.method, rel, it, self.rtol)
         self.last_iterations = int(it)
