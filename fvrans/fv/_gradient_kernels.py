@@ -96,6 +96,20 @@ def lsq_gradient(owner, neighbour, nfi, cf_ptr, cf_face, wd, minv, phi, phi_b, o
 
 
 @njit(cache=True, nogil=True, inline="always")
+def _interior_face_value(f, owner, neighbour, weight, skew, phi, grad, use_grad):
+    """phi_f = w phi_O + (1-w) phi_N [+ (x_f - x_ip) . (w g_O + (1-w) g_N)] on internal face f."""
+    o = owner[f]
+    n = neighbour[f]
+    w = weight[f]
+    pf = w * phi[o] + (1.0 - w) * phi[n]
+    if use_grad:
+        gx = w * grad[o, 0] + (1.0 - w) * grad[n, 0]
+        gy = w * grad[o, 1] + (1.0 - w) * grad[n, 1]
+        pf += skew[f, 0] * gx + skew[f, 1] * gy
+    return pf
+
+
+@njit(cache=True, nogil=True, inline="always")
 def _green_gauss_cell(c, owner, neighbour, nfi, cf_ptr, cf_face, sf, weight, skew, area, phi, phi_b, g_old,
                       use_skew, out):
     sx = 0.0
@@ -107,14 +121,7 @@ def _green_gauss_cell(c, owner, neighbour, nfi, cf_ptr, cf_face, sf, weight, ske
             f = -1 - f
             sign = -1.0
         if f < nfi:
-            o = owner[f]
-            n = neighbour[f]
-            w = weight[f]
-            pf = w * phi[o] + (1.0 - w) * phi[n]
-            if use_skew:
-                gx = w * g_old[o, 0] + (1.0 - w) * g_old[n, 0]
-                gy = w * g_old[o, 1] + (1.0 - w) * g_old[n, 1]
-                pf += skew[f, 0] * gx + skew[f, 1] * gy
+            pf = _interior_face_value(f, owner, neighbour, weight, skew, phi, g_old, use_skew)
         else:
             pf = phi_b[f - nfi]
         sx += sign * (pf * sf[f, 0])
@@ -146,15 +153,7 @@ def face_interpolate(owner, neighbour, nfi, weight, skew, phi, phi_b, grad, use_
     """phi_f = w phi_O + (1-w) phi_N [+ (x_f - x_ip) . (w g_O + (1-w) g_N)]; phi_b on the boundary."""
     nf = owner.shape[0]
     for f in range(nfi):
-        o = owner[f]
-        n = neighbour[f]
-        w = weight[f]
-        pf = w * phi[o] + (1.0 - w) * phi[n]
-        if use_grad:
-            gx = w * grad[o, 0] + (1.0 - w) * grad[n, 0]
-            gy = w * grad[o, 1] + (1.0 - w) * grad[n, 1]
-            pf += skew[f, 0] * gx + skew[f, 1] * gy
-        out[f] = pf
+        out[f] = _interior_face_value(f, owner, neighbour, weight, skew, phi, grad, use_grad)
     for f in range(nfi, nf):
         out[f] = phi_b[f - nfi]
 
