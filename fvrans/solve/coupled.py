@@ -256,7 +256,7 @@ class SimultaneousSolver(SimpleSolver):
         rhs_m = np.concatenate([self.rhs_u, self.rhs_v]) + self.G @ p + Wall @ u_stack
         A = sp.bmat([[Amom, self.G], [self.D, App]], format="csr")
         rhs = np.concatenate([rhs_m, rhs_c])
-        self._parts = (Amom, App, E, r_u, r_v, rbar, gu, hu)
+        self._parts = (Amom, App, E, r_u, r_v, rbar, gu, hu, Wall)
         return A, rhs, res
 
     def _wall_flux_matrix(self) -> sp.csr_matrix:
@@ -363,13 +363,13 @@ class SimultaneousSolver(SimpleSolver):
         AMG V-cycles (``fvrans.linalg.block_preconditioner``), from the current state, to
         ``system_tolerance`` relative to the first residual."""
         nc = self.nc
-        Amom, App, *_ = self._parts
+        Amom, App, *_, Wall = self._parts
         if self.preconditioner != "simple":
             # the preconditioner's momentum blocks leave out the implicit correction of the wall
             # faces' viscous flux (``_wall_flux_matrix``): with it, the pressure convection-diffusion
             # approximation lost its grid independence (cavity 32^2 / 64^2 / 128^2, FGMRES to 1e-6
             # at one state: 39 / 55 / 103 iterations with it, 39 / 43 / 44 without)
-            Amom = Amom - self._wall_flux_matrix()
+            Amom = Amom - Wall
         Au = Amom[:nc, :nc].tocsr()
         Av = Amom[nc:, nc:].tocsr()
         prec = self._block_preconditioner()
@@ -440,7 +440,7 @@ class SimultaneousSolver(SimpleSolver):
                 self.fell_back = True
                 x = self._solve_direct(A, rhs)
         self.lin_seconds += time.perf_counter() - t0
-        Amom, App, E, r_u, r_v, rbar, gu, hu = self._parts
+        Amom, App, E, r_u, r_v, rbar, gu, hu, _ = self._parts
         V = self.vol
         un, vn, pn = x[:nc], x[nc:2 * nc], x[2 * nc:]
         if self.singular:
