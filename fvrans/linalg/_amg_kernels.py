@@ -285,29 +285,29 @@ def _axpy2(y, a, x, b, z, n, par):
             y[i] += a * x[i] + b * z[i]
 
 
+@njit(cache=True, nogil=True, inline="always")
+def _sum_rows(a, lo, hi):
+    s = 0.0
+    for i in range(lo, hi):
+        s += a[i]
+    return s
+
+
 @njit(cache=True, nogil=True, parallel=True)
 def _remove_mean(a, n, par):
     """a[:n] -= mean(a[:n]) (the sum as ``_dot`` forms it)."""
     if n < PAR_MIN:
-        s = 0.0
-        for i in range(n):
-            s += a[i]
+        s = _sum_rows(a, 0, n)
     else:
         part = np.empty(SUM_CHUNKS)
         if par:
             for c in prange(SUM_CHUNKS):
                 lo, hi = _chunk(c, n)
-                q = 0.0
-                for i in range(lo, hi):
-                    q += a[i]
-                part[c] = q
+                part[c] = _sum_rows(a, lo, hi)
         else:
             for c in range(SUM_CHUNKS):
                 lo, hi = _chunk(c, n)
-                q = 0.0
-                for i in range(lo, hi):
-                    q += a[i]
-                part[c] = q
+                part[c] = _sum_rows(a, lo, hi)
         s = _add_parts(part)
     s /= n
     if par and n >= PAR_MIN:
