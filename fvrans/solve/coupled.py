@@ -75,7 +75,9 @@ RESTART = 20
 REBUILD_GROWTH = 1.5
 #: iterations allowed with kept coarse levels before the hierarchy is set up anew
 STALE_KRYLOV = 60
+#: the sparse LU takes over once an iterative solve ends above FALLBACK_FACTOR x system_tolerance
 FALLBACK_FACTOR = 1.0
+#: FGMRES iterations allowed per solve (after a fresh hierarchy set-up)
 MAX_KRYLOV = 200
 #: FGMRES iterations preconditioned by an earlier factorisation before the system is factorised anew
 REUSE_ITERATIONS = 10
@@ -119,7 +121,7 @@ def _wall_flux_stencil(wall_grad: Any, owner: np.ndarray, S: np.ndarray, nc: int
             tj.append(t[:, j])
             f4.append(faces)
     return (np.concatenate(rows), np.concatenate(cols), np.concatenate(g4), np.concatenate(ti), np.concatenate(tj),
-            np.concatenate(f4), P)
+            np.concatenate(f4))
 
 
 class SimultaneousSolver(SimpleSolver):
@@ -265,7 +267,7 @@ class SimultaneousSolver(SimpleSolver):
         the implicit part mu dcoef the assembly already holds. On a wall only the fitted shear
         t . g_n depends on the cells: flux = mu (n . S) (t . g_n) t + terms of the wall velocity."""
         nc = self.nc
-        rows, cols, geo, t_row, t_col, faces, P = self._wall_stencil
+        rows, cols, geo, t_row, t_col, faces = self._wall_stencil
         mu_q = self.muf[faces]
         vals = -mu_q * geo * t_row * t_col
         wf = self.wall_faces
