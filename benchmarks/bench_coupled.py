@@ -48,14 +48,37 @@ system_solver "direct" unless said; scripts in /tmp/algo3):
       (triad ratio 1.3e7 / 1.8e7); x_r 6.13293661 / 6.17163486 (SIMPLEC 6.13293663 / 6.171635 at its
       settled stop: rel. 3e-9 / 2e-8)
 
---memory KIND...: peak memory per cell of each coupling (simultaneous with the iterative solver, and
-SIMPLEC) on the generated ~400k-cell cavity / SA plate of ``bench_parallel.py`` (``--cells``), after
-``--memory-iterations`` outer iterations, in a fresh process: peak RSS above the interpreter's baseline
-(libraries and compiled kernels loaded) and numpy's traced peak.
+--memory KIND...: peak memory per cell of each coupling (simultaneous with the iterative solver, which
+here never hands over to the sparse LU, and SIMPLEC) on the generated ~400k-cell cavity / SA plate of
+``bench_parallel.py`` (``--cells``), after ``--memory-iterations`` simultaneous / 25 SIMPLEC outer
+iterations, in a fresh process: peak RSS above the interpreter's baseline (libraries and compiled
+kernels loaded) and numpy's traced peak.
 --cost: seconds per outer iteration of each coupling on the cavity 128^2 and the medium plate
 (``--cost-iterations`` simultaneous, 100 SIMPLEC iterations from the uniform start), per cell, over a
 numpy triad timed in the same run, with the load average; for the simultaneous path also the seconds
 of its assembly (``_assemble``) per outer iteration.
+
+Measured 2026-12-03 04:10-04:50 (2 shared cores, load 2.6-4.2), before = main 8ed3fc7 (scipy bmat/COO/products
+each outer iteration, FGMRES keeping the preconditioned vectors), after = the system refilled in place on a pattern
+made once, the segregated-only state dropped, FGMRES keeping only the Krylov basis:
+  --memory (400k cells; RSS above the baseline, KB per cell, numpy's traced peak in brackets):
+    | case | coupling | its | FGMRES / it | before | after |
+    |---|---|---|---|---|---|
+    | cavity 399424 | simultaneous | 8 | 32.1 | 5.43 (5.16) | 4.23 (4.04) |
+    | cavity 399424 | SIMPLEC | 25 | - | 2.36 (2.34) | 2.36 (2.34) |
+    | SA plate 399843 | simultaneous | 8 | 80.2 | 6.25 (5.80) | 4.78 (4.56) |
+    | SA plate 399843 | SIMPLEC | 25 | - | 2.92 (2.87) * | 2.91 (2.88) |
+  (* from bench_parallel.py's table of the same code; the segregated path is unchanged)
+  --cost (4 runs each, before and after interleaved; the machine's load swings whole iterations by +-50 %:
+  best of the runs, s per outer iteration; x SIMPLEC = over SIMPLEC's s per iteration in the same run, range):
+    | case | FGMRES / it | simultaneous s/it before / after | x SIMPLEC before / after | assembly s/it before / after |
+    |---|---|---|---|---|
+    | cavity 128^2 (16384) | 23.9 / 23.9 | 0.265 / 0.270 | 9.0-12.1 / 8.1-12.9 | 0.033-0.051 / 0.014-0.019 |
+    | plate medium (13056) | 30.0 / 30.0 | 0.426 / 0.288 | 7.7-8.7 / 8.3-11.3 | 0.042-0.045 / 0.009-0.016 |
+  The assembly fell from about one SIMPLEC iteration to a third-half of one; the outer iteration is the FGMRES
+  solve (three V-cycles per FGMRES iteration), so its cost stays 8-13x SIMPLEC's. One solve at a fixed state
+  (cavity 128^2, 22 FGMRES iterations, best of 6): 0.30 s keeping the preconditioned vectors, 0.29 s keeping the
+  basis only (two more preconditioner applications).
 
 Run:  python benchmarks/bench_coupled.py [--families cavity plate step] [--fine-step] [--only simultaneous]
       python benchmarks/bench_coupled.py --memory cavity plate [--cells 400000] [--memory-iterations 8]
@@ -116,6 +139,22 @@ def with_algorithm(problem: fa.Problem, algorithm: str) -> fa.Problem:
     return fa.prepare(problem.case.set("solver.coupling", algorithm), mesh=problem.mesh)
 
 
+def _count_fgmres() -> list[int]:
+    """From now on, the FGMRES iterations of every iterative solve of the simultaneous path."""
+    import fvrans.solve.coupled as C
+
+    krylov: list[int] = []
+    solve = C.SimultaneousSolver._solve_gmres
+
+    def counted(self, *a, **k):
+        x = solve(self, *a, **k)
+        krylov.append(self.lin_iterations[-1])
+        return x
+
+    C.SimultaneousSolver._solve_gmres = counted
+    return krylov
+
+
 def _child_memory(kind: str, cells: int, iterations: int, coupling: str) -> dict:
     """In a fresh process: peak memory of ``iterations`` outer iterations of ``coupling`` on the
     ~``cells``-cell mesh of ``bench_parallel._memory_mesh``."""
@@ -129,15 +168,8 @@ def _child_memory(kind: str, cells: int, iterations: int, coupling: str) -> dict
         {"solver.coupling": coupling, "solver.system_solver": "iterative", "output.write_fields": False})
     fa.solve(fa.prepare(case.set("solver.max_iterations", 3), _memory_mesh(kind, 4000)))  # the baseline
     base_rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
-    krylov: list[int] = []
-    solve = C.SimultaneousSolver._solve_gmres
-
-    def counted(self, *a, **k):
-        x = solve(self, *a, **k)
-        krylov.append(self.lin_iterations[-1])
-        return x
-
-    C.SimultaneousSolver._solve_gmres = counted
+    krylov = _count_fgmres()
+    C.FALLBACK_FACTOR = float("inf")  # the iterative solve's memory: no hand-over to the sparse LU
     tracemalloc.start()
     t0 = time.perf_counter()
     mesh = _memory_mesh(kind, cells)
@@ -184,12 +216,13 @@ def cost_table(iterations: int) -> None:
         return out
 
     C.SimultaneousSolver._assemble = timed
+    krylov = _count_fgmres()
     problems = [("cavity 128^2", fa.prepare(fa.load_case(ROOT / "cases" / "cavity_re100.toml"), mesh=cavity(128))),
                 ("plate medium", fa.prepare(fa.load_case(ROOT / "cases" / "flat_plate_turbulent.toml"),
                                             mesh=flat_plate_family("medium")))]
     print(f"cost: {iterations} simultaneous (iterative solver) / 100 SIMPLEC outer iterations from the uniform start; "
           "load = 1-minute load average before the run")
-    print("case          cells  coupling      its  s/it     us/cell/it  x triad  assembly s/it  load")
+    print("case          cells  coupling      its  s/it     us/cell/it  x triad  assembly s/it  FGMRES/it  load")
     for label, problem in problems:
         nc = problem.mesh.n_cells
         for coupling, its in (("simultaneous", iterations), ("simplec", 100)):
@@ -200,6 +233,7 @@ def cost_table(iterations: int) -> None:
             load = os.getloadavg()[0]
             triad = triad_seconds(nc)
             spent[0] = 0.0
+            krylov.clear()
             t0 = time.perf_counter()
             r = fa.solve(fa.Problem(case.set("solver.max_iterations", its), problem.mesh, problem.geom,
                                     problem.boundary))
@@ -207,8 +241,9 @@ def cost_table(iterations: int) -> None:
             triad = min(triad, triad_seconds(nc))
             n = max(r.iterations, 1)
             asm = f"{spent[0] / n:13.4f}" if coupling == "simultaneous" else f"{'-':>13s}"
+            fg = f"{np.mean(krylov):9.1f}" if krylov else f"{'-':>9s}"
             print(f"{label:12s} {nc:6d}  {coupling:12s} {r.iterations:4d}  {wall / n:7.4f}  "
-                  f"{wall / n / nc * 1e6:10.2f}  {wall / n / triad:7.0f}  {asm}  {load:4.1f}", flush=True)
+                  f"{wall / n / nc * 1e6:10.2f}  {wall / n / triad:7.0f}  {asm}  {fg}  {load:4.1f}", flush=True)
 
 
 def main(argv: list[str] | None = None) -> int:

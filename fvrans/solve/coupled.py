@@ -66,7 +66,7 @@ SYSTEM_SOLVERS = ("by-size", "direct", "iterative")
 #: 18.2 / 16.2, turbulent plate 13 056 15.7 / 10.1, cavity 16 384 3.6 / 2.7; cavity 256^2 55 / 19.5)
 DIRECT_BELOW_CELLS = 8000
 #: FGMRES restart length and iteration limit of the iterative solve (the Krylov basis holds
-#: 2 (RESTART + 1) vectors of 3 values per cell)
+#: RESTART + 1 vectors of 3 values per cell: the preconditioned ones are not kept)
 RESTART = 20
 #: the momentum blocks' multigrid hierarchies are set up anew when a solve needs this many times the
 #: FGMRES iterations of the first solve after the last set-up (coarse levels kept from an earlier
@@ -182,7 +182,7 @@ class SimultaneousSolver(SimpleSolver):
 
     def release_work(self) -> None:
         """Free the linear solve's memory when the run is over, before its outputs are evaluated
-        (cavity of 400k cells: ~1.7 KB per cell): the block preconditioner's multigrid hierarchies,
+        (cavity of 400k cells: ~1.5 KB per cell): the block preconditioner's multigrid hierarchies,
         the sparse LU and the system's values (its pattern stays); a further iteration makes them
         again."""
         self._prec = None
@@ -244,13 +244,14 @@ class SimultaneousSolver(SimpleSolver):
         nc = self.nc
         n = 3 * nc
         indptr = np.zeros(n + 1, dtype=np.int64)
-        CK.system_pattern(nc, self._cind, self._cidx, wptr, wcells, indptr, np.zeros(1, dtype=np.int32), False)
+        itype = self._cidx.dtype
+        CK.system_pattern(nc, self._cind, self._cidx, wptr, wcells, indptr, np.zeros(1, dtype=itype), False)
         np.cumsum(indptr, out=indptr)
-        itype = np.int32 if indptr[-1] < 2**31 - 1 else np.int64
-        indptr = indptr.astype(itype)
+        if indptr[-1] >= 2**31 - 1:
+            itype = np.int64
         indices = np.empty(int(indptr[-1]), dtype=itype)
         CK.system_pattern(nc, self._cind, self._cidx, wptr, wcells, indptr, indices, True)
-        A = sp.csr_matrix((np.zeros(len(indices)), indices, indptr), shape=(n, n))
+        A = sp.csr_matrix((np.zeros(len(indices)), indices, indptr.astype(itype)), shape=(n, n))
         A.has_sorted_indices = True
         return A
 
