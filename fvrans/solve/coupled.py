@@ -37,8 +37,8 @@ right-preconditioned by the upper block-triangular pressure convection-diffusion
 ``fvrans.linalg.block_preconditioner``, AMG V-cycles for the momentum blocks and the pressure
 Laplacian, memory in proportion to the cells; FGMRES iterations per outer iteration nearly
 independent of the grid; should a solve miss its tolerance, the sparse LU takes over for the rest
-of the run) or 'direct' (SuperLU, scipy, minimum-degree ordering of A^T + A, reused as the preconditioner of FGMRES in later outer
-iterations).
+of the run) or 'direct' (SuperLU, scipy, minimum-degree ordering of A^T + A, reused as the
+preconditioner of FGMRES in later outer iterations).
 """
 
 from __future__ import annotations
@@ -61,10 +61,12 @@ from fvrans.solve.simple import SimpleSolver
 log = logging.getLogger(__name__)
 SYSTEM_SOLVERS = ("by-size", "direct", "iterative")
 #: with system_solver = "by-size", systems of fewer cells take the sparse LU, larger ones the iterative
-#: solve (single runs to the default stop, 2026-12-03, seconds direct / iterative: channel 4 000 cells
-#: 0.5 / 1.5, laminar bump 3 712 0.9 / 2.9, laminar plate 3 264 0.7 / 1.2, laminar step 7 872
-#: 18.2 / 16.2, turbulent plate 13 056 15.7 / 10.1, cavity 16 384 3.6 / 2.7; cavity 256^2 55 / 19.5)
-DIRECT_BELOW_CELLS = 8000
+#: solve. Single runs to the default stop, seconds direct / iterative (2026-12-03, shared machine, numpy
+#: triad 1.08 ms): channel 4 000 cells 1.0 / 2.6, laminar bump 3 712 1.3 / 5.4, laminar plate 3 264
+#: 0.6 / 2.0, laminar step 7 872 23.1 / 22.8, turbulent plate 13 056 16.6 / 13.2, cavity 16 384 2.2 / 3.6,
+#: cylinder in a channel 27 648 16.2 / 60.4, cavity 65 536 23.3 / 30.0. The LU's factors take about
+#: 7 KB per cell (150-205 entries per row), so it stops well below the sizes where memory counts
+DIRECT_BELOW_CELLS = 30000
 #: FGMRES restart length and iteration limit of the iterative solve (the Krylov basis holds
 #: 2 (RESTART + 1) vectors of 3 values per cell)
 RESTART = 20
