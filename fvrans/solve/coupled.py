@@ -83,6 +83,12 @@ FALLBACK_FACTOR = 1.0
 MAX_KRYLOV = 200
 #: FGMRES iterations preconditioned by an earlier factorisation before the system is factorised anew
 REUSE_ITERATIONS = 10
+#: a factorisation is also replaced once the FGMRES iterations it has preconditioned add up to
+#: REFACTOR_AFTER (about one factorisation's worth of triangular solves: factorisation / solve time was
+#: 23-45 on the bundled systems) while each solve still needs more than KEEP_ITERATIONS: the first
+#: factorisation is of the start's matrix, and the later ones are cheaper to precondition with a newer one
+REFACTOR_AFTER = 20
+KEEP_ITERATIONS = 2
 #: fill-reducing ordering and diagonal pivot threshold of the sparse LU (SuperLU's minimum degree on
 #: A^T + A, preferring the diagonal pivot unless it is below 0.01 of its column's largest entry): against
 #: column AMD with partial pivoting, the factors hold half the entries and factorisation and solves take
@@ -171,6 +177,7 @@ class SimultaneousSolver(SimpleSolver):
         self.lin_seconds = 0.0
         self.lin_iterations: list[int] = []
         self._lu = None
+        self._lu_iterations = 0
         self.factorisations = 0
         self._mu_t = None
         #: cell pressure gradients of the continuity fluxes implicit (True) or from the previous state
@@ -391,11 +398,13 @@ class SimultaneousSolver(SimpleSolver):
         """SuperLU of the system, reused for later outer iterations as the preconditioner of flexible
         GMRES while that reaches ``system_tolerance`` within ``REUSE_ITERATIONS`` iterations (the matrix
         changes little from one outer iteration to the next; a triangular solve costs about 1/30 of a
-        factorisation at 13k cells); refactorised when it does not."""
+        factorisation at 13k cells); refactorised when it does not, or when the solves it has
+        preconditioned have cost about one factorisation (``REFACTOR_AFTER``)."""
         nc = self.nc
         if self.singular:
             self._pin_level(A, rhs)
-        if self._lu is not None:
+        worn = self._lu_iterations >= REFACTOR_AFTER and self.lin_iterations[-1] > KEEP_ITERATIONS
+        if self._lu is not None and not worn:
             x0 = np.concatenate([self.fields.velocity[:, 0], self.fields.velocity[:, 1], self.fields.pressure])
             # rows scaled by their diagonals, so that the residual norm GMRES reduces weighs every
             # equation alike (momentum rows of thin wall cells are many decades above the rest)
@@ -404,15 +413,19 @@ class SimultaneousSolver(SimpleSolver):
             lu = self._lu
             dx, its, rel = fgmres(lambda z: d * (A @ z), lambda v: lu.solve(v / d), d * (rhs - A @ x0),
                                   self.ctl.system_tolerance, REUSE_ITERATIONS, REUSE_ITERATIONS)
+            self._lu_iterations += its
+            del lu
             if rel <= self.ctl.system_tolerance:
                 self.lin_iterations.append(its)
                 return x0 + dx
+        self._lu = None  # the old factors are freed before the new ones are made
         # the factorisation sees the nonzeros only (the system's pattern also holds the places
         # where a coefficient vanishes, e.g. the cross terms on Cartesian cells)
         Ac = A.tocsc()
         Ac.eliminate_zeros()
         self._lu = spla.splu(Ac, permc_spec=LU_ORDERING, diag_pivot_thresh=LU_PIVOT_THRESHOLD)
         del Ac
+        self._lu_iterations = 0
         self.factorisations += 1
         self.lin_iterations.append(1)
         del nc
