@@ -139,6 +139,8 @@ class SimultaneousSolver(SimpleSolver):
     (see the module docstring). Same constructor, hooks and attributes; ``bulk_velocity`` is refused
     (its force is found from the segregated momentum matrix)."""
 
+    COUPLINGS = ("simultaneous",)
+
     def __init__(self, *args: Any, **kwargs: Any):
         if kwargs.get("bulk_velocity") is not None:
             raise CaseError(
@@ -567,3 +569,11 @@ class SimultaneousSolver(SimpleSolver):
         return res
 
 
+def solver_class(coupling: str) -> type[SimpleSolver]:
+    """The solver class of a ``solver.coupling``: :class:`SimultaneousSolver` for 'simultaneous',
+    :class:`SimpleSolver` for 'simple' and 'simplec'.
+
+    >>> solver_class("simultaneous").__name__, solver_class("simplec").__name__
+    ('SimultaneousSolver', 'SimpleSolver')
+    """
+    return SimultaneousSolver if coupling in SimultaneousSolver.COUPLINGS else SimpleSolver
