@@ -38,6 +38,30 @@ the walls) 27 / 35 / 44, growing; the SIMPLE-type sweep below 78 / 165 / more th
 (system tolerance 0.01): cavity 64^2 / 128^2 / 256^2 9.9 / 10.3 / 10.4 FGMRES iterations per outer
 iteration.
 
+``LeastSquaresCommutator`` (the default of ``fvrans.solve.coupled``; same upper block-triangular
+form) approximates the Schur complement by the least-squares commutator (Elman, Howle, Shadid,
+Shuttleworth & Tuminaro 2006, SIAM J. Sci. Comput. 27, 1651-1668; stabilised form: Elman, Howle,
+Shadid, Silvester & Tuminaro 2008, SIAM J. Sci. Comput. 30, 290-311; boundary weights: Elman &
+Tuminaro 2009; all from memory). With H = diag(A)^-1 the commutator A H G ~ G F_p taken in the least
+squares sense gives D A^-1 G ~ (D H G) (D H A H G)^-1 (D H G). On the collocated grid -D H G is a
+wide-stencil Laplacian that does not see checkerboard pressures; its compact counterpart Lq (the
+Rhie-Chow pressure-difference operator with weights V / q) does, and C = Lq + D H G is the Rhie-Chow
+stabilisation (small on smooth pressures, ~ Lq on checkerboard ones), so
+
+  S~^-1 = Lq^-1 (c C - D H A H G) Lq^-1,
+
+with c = 0.5, the cells at no-slip walls weighted down (W = 0.2) in H and Lq, and the momentum blocks
+relaxed in stretched cells (``RELAXATION``). PCD's commutator
+holds poorly where the eddy viscosity varies by 100s and the flow recirculates: on the
+backward-facing step (FGMRES(20) to 0.01, exact block solves, outer iterations 2 / 10 / 30 of the
+coarse step) PCD needs >300 / 118 / >300 iterations, this preconditioner 35 / 39 / 26; one V-cycle
+per block 35 / 39 / - (medium step 40 / 75 / 52); the cavity 128^2 16 against PCD's 24, the plate
+(medium) 4 against 34. What it still misses: pressure modes smooth across the thin cells of the step's
+lip shear layer (large outlying eigenvalues, one per column of cells); relaxing the momentum blocks
+there halves the count (whole runs, coarse / medium step: 37 / 63 -> 20 / 28 per outer iteration).
+The fine step's early systems, whose momentum matrix is nearly singular, defeat it (and every other
+approximation tried, even with exact block solves).
+
 ``SimpleSchur`` (block lower-upper sweep with S~ = C - D diag(A)^-1 G, the SIMPLE approximation;
 Elman et al. 2008, J. Comput. Phys. 227, 1790-1808, from memory): kept as the baseline the tests
 compare against. Its iterations grow with the grid (about 2x per 4x cells).
@@ -123,13 +147,26 @@ class LeastSquaresCommutator:
     #: 54 / 90 / 56 with 1, 40 / 75 / 52 with 0.2)
     WALL_WEIGHT = 0.2
 
-    def __init__(self, G: sp.csr_matrix, D: sp.csr_matrix, singular: bool, wall_cells: np.ndarray | None = None):
+    #: in stretched cells (``stretched``) the preconditioner stands for A + s diag(A) in place of A
+    #: (``relaxed``), s = RELAXATION: on the step's thin high-eddy-viscosity cells A has modes far below
+    #: diag(A) that H = diag(A)^-1 cannot see. FGMRES(20) to 0.01, one V-cycle per block, states step
+    #: coarse it. 10, medium it. 2 / 10 / 30, cavity 64^2 / 128^2, plate medium it. 10: s = 0 -> 39,
+    #: 40 / 75 / 52, 11 / 16, 4; s = 0.005 in every cell -> 20, 17 / 31 / 16, 12 / 18, 9 (but cavity
+    #: 256^2, whole run: 34 instead of 22 per outer iteration); s = 0.02 -> 18, 14 / 37 / 17, 17 / 36, 17;
+    #: s = 0.005 in cells of aspect ratio > 4 only -> 21, 17 / 35 / 21, 11 / 16, 9
+    RELAXATION = 0.005
+
+    def __init__(self, G: sp.csr_matrix, D: sp.csr_matrix, singular: bool, wall_cells: np.ndarray | None = None,
+                 stretched: np.ndarray | None = None):
         n = G.shape[1]
         self.n = n
         #: w of H = w / diag(A) and of Lq's weights w V / q: WALL_WEIGHT at ``wall_cells``, else 1
         self.weight = np.ones(n)
         if wall_cells is not None:
             self.weight[wall_cells] = self.WALL_WEIGHT
+        self.shift = np.zeros(n)
+        if stretched is not None:
+            self.shift[stretched] = self.RELAXATION
         self.G = sp.csr_matrix(G)
         self.Gx, self.Gy = sp.csr_matrix(G[:n]), sp.csr_matrix(G[n:])
         self.Du, self.Dv = sp.csr_matrix(D[:, :n]), sp.csr_matrix(D[:, n:])
@@ -139,8 +176,13 @@ class LeastSquaresCommutator:
         self.mu = VCycle(1 << 30, coarsening=LSC_MOMENTUM_COARSENING)
         self.mv = VCycle(1 << 30, coarsening=LSC_MOMENTUM_COARSENING)
 
+    def relaxed(self, A: sp.csr_matrix) -> sp.csr_matrix:
+        """A + s diag(A), s = ``RELAXATION`` in stretched cells, else 0: the momentum block the
+        preconditioner stands for."""
+        return (A + sp.diags(self.shift * A.diagonal())).tocsr()
+
     def update(self, Au: sp.csr_matrix, Av: sp.csr_matrix, lq: sp.csr_matrix, rebuild: bool = False) -> None:
-        """The momentum blocks and Lq of this outer iteration; ``rebuild``: set up the hierarchies
+        """The (relaxed) momentum blocks and Lq of this outer iteration; ``rebuild``: set up the hierarchies
         anew (else only their finest levels follow the new values)."""
         fresh = rebuild or self.mu.amg._h is None
         self.mu.update(Au, rebuild=fresh)

@@ -33,12 +33,11 @@ loop's: every equation is the same at convergence (residuals of ``fvrans.fv.resi
 
 Linear solvers (``SolverControls.system_solver``; the default 'by-size' takes 'direct' below
 ``DIRECT_BELOW_CELLS`` cells, where its factorisation is cheap, and 'iterative' above): 'iterative' (flexible GMRES
-right-preconditioned by the upper block-triangular pressure convection-diffusion preconditioner of
-``fvrans.linalg.block_preconditioner``, AMG V-cycles for the momentum blocks and the pressure
-Laplacian, memory in proportion to the cells; FGMRES iterations per outer iteration nearly
-independent of the grid; should a solve miss its tolerance, the sparse LU takes over for the rest
-of the run) or 'direct' (SuperLU, scipy, reused as the preconditioner of FGMRES in later outer
-iterations).
+right-preconditioned by the upper block-triangular least-squares commutator preconditioner of
+``fvrans.linalg.block_preconditioner``, AMG V-cycles for the momentum blocks and the weighted
+pressure Laplacian, memory in proportion to the cells; should a solve miss its tolerance, the sparse
+LU takes over for the rest of the run) or 'direct' (SuperLU, scipy, reused as the preconditioner of
+FGMRES in later outer iterations).
 """
 
 from __future__ import annotations
@@ -84,6 +83,10 @@ STALE_KRYLOV = 60
 FALLBACK_FACTOR = 1.0
 #: FGMRES iterations allowed per solve (after a fresh hierarchy set-up)
 MAX_KRYLOV = 200
+#: cells whose longest face is more than this many times their shortest are "stretched" for the
+#: least-squares commutator preconditioner (its momentum blocks relaxed there; see
+#: ``LeastSquaresCommutator.RELAXATION``)
+STRETCHED_ASPECT = 4.0
 #: FGMRES iterations preconditioned by an earlier factorisation before the system is factorised anew
 REUSE_ITERATIONS = 10
 #: at most this many Newton steps on the boundary extrapolation of the pressure gradient per outer iteration
@@ -352,7 +355,15 @@ class SimultaneousSolver(SimpleSolver):
             elif self.preconditioner == "least-squares-commutator":
                 wall_cells = np.zeros(self.nc, dtype=bool)
                 wall_cells[self.owner[self.ni:][self.bc.kind == K.WALL]] = True
-                self._prec = LeastSquaresCommutator(self.G, self.D, self.singular, wall_cells)
+                # stretched cells: longest face over shortest above STRETCHED_ASPECT
+                smag = np.linalg.norm(self.S, axis=1)
+                longest = np.zeros(self.nc)
+                shortest = np.full(self.nc, np.inf)
+                for cells, faces in ((self.owner, smag), (self.neigh, smag[:self.ni])):
+                    np.maximum.at(longest, cells, faces)
+                    np.minimum.at(shortest, cells, faces)
+                self._prec = LeastSquaresCommutator(self.G, self.D, self.singular, wall_cells,
+                                                    longest > STRETCHED_ASPECT * shortest)
             else:
                 # the unit Laplacian: Dirichlet on faces with a given pressure and at inflow (Elman &
                 # Tuminaro 2009, from memory: step coarse 118 -> 79 FGMRES iterations at one state, fine
@@ -407,6 +418,7 @@ class SimultaneousSolver(SimpleSolver):
             rebuild = (self._fresh_its is None or self._since_setup > self.ctl.amg_rebuild_every
                        or self._missed or bool(its and its[-1] > REBUILD_GROWTH * max(self._fresh_its, 1)))
             if self.preconditioner == "least-squares-commutator":
+                Au, Av = prec.relaxed(Au), prec.relaxed(Av)
                 Ap = self._commutator_laplacian(Au, Av)
             else:
                 Ap = neumann_convection_diffusion(Au, self._ap_keep, self.a_rel[:, 0] - self.diag_u)
