@@ -36,8 +36,8 @@ Linear solvers (``SolverControls.system_solver``; the default 'by-size' takes 'd
 right-preconditioned by the upper block-triangular least-squares commutator preconditioner of
 ``fvrans.linalg.block_preconditioner``, AMG V-cycles for the momentum blocks and the weighted
 pressure Laplacian, memory in proportion to the cells; should a solve miss its tolerance, the sparse
-LU takes over for the rest of the run) or 'direct' (SuperLU, scipy, reused as the preconditioner of
-FGMRES in later outer iterations).
+LU takes over for the rest of the run) or 'direct' (SuperLU, scipy, minimum-degree ordering of
+A^T + A, reused as the preconditioner of FGMRES in later outer iterations).
 """
 
 from __future__ import annotations
@@ -65,10 +65,12 @@ from fvrans.solve.simple import SimpleSolver
 log = logging.getLogger(__name__)
 SYSTEM_SOLVERS = ("by-size", "direct", "iterative")
 #: with system_solver = "by-size", systems of fewer cells take the sparse LU, larger ones the iterative
-#: solve (single runs to the default stop, 2026-12-03, seconds direct / iterative: channel 4 000 cells
-#: 0.5 / 1.5, laminar bump 3 712 0.9 / 2.9, laminar plate 3 264 0.7 / 1.2, laminar step 7 872
-#: 18.2 / 16.2, turbulent plate 13 056 15.7 / 10.1, cavity 16 384 3.6 / 2.7; cavity 256^2 55 / 19.5)
-DIRECT_BELOW_CELLS = 8000
+#: solve. Single runs to the default stop, seconds direct / iterative (2026-12-03, shared machine, numpy
+#: triad 1.08 ms): channel 4 000 cells 1.0 / 2.6, laminar bump 3 712 1.3 / 5.4, laminar plate 3 264
+#: 0.6 / 2.0, laminar step 7 872 23.1 / 22.8, turbulent plate 13 056 16.6 / 13.2, cavity 16 384 2.2 / 3.6,
+#: cylinder in a channel 27 648 16.2 / 60.4, cavity 65 536 23.3 / 30.0. The LU's factors take about
+#: 7 KB per cell (150-205 entries per row), so it stops well below the sizes where memory counts
+DIRECT_BELOW_CELLS = 30000
 #: FGMRES restart length and iteration limit of the iterative solve (the Krylov basis holds
 #: 2 (RESTART + 1) vectors of 3 values per cell)
 RESTART = 20
@@ -89,6 +91,22 @@ MAX_KRYLOV = 200
 STRETCHED_ASPECT = 4.0
 #: FGMRES iterations preconditioned by an earlier factorisation before the system is factorised anew
 REUSE_ITERATIONS = 10
+#: a factorisation is also replaced once the FGMRES iterations it has preconditioned add up to
+#: REFACTOR_AFTER (about one factorisation's worth of triangular solves: factorisation / solve time was
+#: 23-45 on the bundled systems) while each solve still needs more than KEEP_ITERATIONS: the first
+#: factorisation is of the start's matrix, and the later ones are cheaper to precondition with a newer one
+REFACTOR_AFTER = 20
+KEEP_ITERATIONS = 2
+#: fill-reducing ordering and diagonal pivot threshold of the sparse LU (SuperLU's minimum degree on
+#: A^T + A, preferring the diagonal pivot unless it is below 0.01 of its column's largest entry): against
+#: column AMD with partial pivoting, the factors hold half the entries and factorisation and solves take
+#: about half the time (2026-12-03, one system each, fill per row / factorisation s / solve ms: laminar
+#: step 302 / 0.61 / 13.8 against 152 / 0.15 / 3.3; turbulent plate 399 / 0.91 / 21.3 against 205 / 0.45 /
+#: 10.6; cavity 128^2 355 / 1.05 / 21.8 against 186 / 0.48 / 10.5). A threshold of 1 with this ordering
+#: pivots off the diagonal so often that the factors fill (6 686 per row on the laminar step); 0.1
+#: already doubled the fill on two of the systems
+LU_ORDERING = "MMD_AT_PLUS_A"
+LU_PIVOT_THRESHOLD = 0.01
 #: at most this many Newton steps on the boundary extrapolation of the pressure gradient per outer iteration
 GRADIENT_STEPS = 6
 #: cells whose extrapolation matrix M^-1 has a larger entry keep the lagged extrapolation (M^-1 = I)
@@ -137,6 +155,8 @@ class SimultaneousSolver(SimpleSolver):
     (see the module docstring). Same constructor, hooks and attributes; ``bulk_velocity`` is refused
     (its force is found from the segregated momentum matrix)."""
 
+    COUPLINGS = ("simultaneous",)
+
     def __init__(self, *args: Any, **kwargs: Any):
         if kwargs.get("bulk_velocity") is not None:
             raise CaseError(
@@ -170,6 +190,7 @@ class SimultaneousSolver(SimpleSolver):
         self.lin_seconds = 0.0
         self.lin_iterations: list[int] = []
         self._lu = None
+        self._lu_iterations = 0
         self.factorisations = 0
         self._mu_t = None
         #: cell pressure gradients of the continuity fluxes implicit (True) or from the previous state
@@ -323,11 +344,13 @@ class SimultaneousSolver(SimpleSolver):
         """SuperLU of the system, reused for later outer iterations as the preconditioner of flexible
         GMRES while that reaches ``system_tolerance`` within ``REUSE_ITERATIONS`` iterations (the matrix
         changes little from one outer iteration to the next; a triangular solve costs about 1/30 of a
-        factorisation at 13k cells); refactorised when it does not."""
+        factorisation at 13k cells); refactorised when it does not, or when the solves it has
+        preconditioned have cost about one factorisation (``REFACTOR_AFTER``)."""
         nc = self.nc
         if self.singular:
             self._pin_level(A, rhs)
-        if self._lu is not None:
+        worn = self._lu_iterations >= REFACTOR_AFTER and self.lin_iterations[-1] > KEEP_ITERATIONS
+        if self._lu is not None and not worn:
             x0 = np.concatenate([self.fields.velocity[:, 0], self.fields.velocity[:, 1], self.fields.pressure])
             # rows scaled by their diagonals, so that the residual norm GMRES reduces weighs every
             # equation alike (momentum rows of thin wall cells are many decades above the rest)
@@ -336,10 +359,14 @@ class SimultaneousSolver(SimpleSolver):
             lu = self._lu
             dx, its, rel = fgmres(lambda z: d * (A @ z), lambda v: lu.solve(v / d), d * (rhs - A @ x0),
                                   self.ctl.system_tolerance, REUSE_ITERATIONS, REUSE_ITERATIONS)
+            self._lu_iterations += its
+            del lu
             if rel <= self.ctl.system_tolerance:
                 self.lin_iterations.append(its)
                 return x0 + dx
-        self._lu = spla.splu(A.tocsc(), permc_spec="COLAMD")
+        self._lu = None  # the old factors are freed before the new ones are made
+        self._lu = spla.splu(A.tocsc(), permc_spec=LU_ORDERING, diag_pivot_thresh=LU_PIVOT_THRESHOLD)
+        self._lu_iterations = 0
         self.factorisations += 1
         self.lin_iterations.append(1)
         del nc
@@ -504,3 +531,11 @@ class SimultaneousSolver(SimpleSolver):
         return res
 
 
+def solver_class(coupling: str) -> type[SimpleSolver]:
+    """The solver class of a ``solver.coupling``: :class:`SimultaneousSolver` for 'simultaneous',
+    :class:`SimpleSolver` for 'simple' and 'simplec'.
+
+    >>> solver_class("simultaneous").__name__, solver_class("simplec").__name__
+    ('SimultaneousSolver', 'SimpleSolver')
+    """
+    return SimultaneousSolver if coupling in SimultaneousSolver.COUPLINGS else SimpleSolver
