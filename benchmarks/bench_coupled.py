@@ -38,9 +38,9 @@ outer iteration (max), seconds):
       38 / 46 its, 20.8 / 29.3, 7.1 / 39.0 s)
   step coarse / medium: 85 / 95 its, no hand-over to the sparse LU, 37.2 (80) / 63.3 (114), 30.6 / 199.7 s
       (peak RSS 305 / 506 MB); with the convection-diffusion preconditioner the LU took over at iteration 2;
-      with the momentum blocks relaxed in stretched cells (adopted, 05:00-05:13, load 3.8-5.5): step 84 / 94
-      its, 19.7 (74) / 28.1 (86), 21.4 / 132.0 s; cavity 64^2 / 256^2 12.4 / 21.6, 1.2 / 43.3 s; plate 38 / 46
-      its, 4.9 / 7.9, 2.2 / 11.5 s
+      with the momentum blocks relaxed in stretched cells (aspect > 1.5, adopted, 05:28-05:30, load 3.1-3.2):
+      step 85 / 93 its, 19.9 (76) / 24.3 (95), 14.7 / 96.8 s; plate 38 / 46 its, 4.8 / 8.0, 1.3 / 7.6 s;
+      cavity (uniform quads, no cell relaxed) 64^2 / 256^2 12.4 / 21.6, 1.2 / 43.3 s
   step fine (111k cells): the second outer iteration's solve missed its tolerance (260 FGMRES its), the
       sparse LU took over (RSS 4.2 GB); stopped
 Measured earlier with system_solver = "direct" (heavily loaded; iterations SIMPLEC -> simultaneous):

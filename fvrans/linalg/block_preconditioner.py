@@ -58,7 +58,7 @@ coarse step) PCD needs >300 / 118 / >300 iterations, this preconditioner 35 / 39
 per block 35 / 39 / - (medium step 40 / 75 / 52); the cavity 128^2 16 against PCD's 24, the plate
 (medium) 4 against 34. What it still misses: pressure modes smooth across the thin cells of the step's
 lip shear layer (large outlying eigenvalues, one per column of cells); relaxing the momentum blocks
-there halves the count (whole runs, coarse / medium step: 37 / 63 -> 20 / 28 per outer iteration).
+there halves the count (whole runs, coarse / medium step: 37 / 63 -> 20 / 24 per outer iteration).
 The fine step's early systems, whose momentum matrix is nearly singular, defeat it (and every other
 approximation tried, even with exact block solves).
 
@@ -153,7 +153,8 @@ class LeastSquaresCommutator:
     #: coarse it. 10, medium it. 2 / 10 / 30, cavity 64^2 / 128^2, plate medium it. 10: s = 0 -> 39,
     #: 40 / 75 / 52, 11 / 16, 4; s = 0.005 in every cell -> 20, 17 / 31 / 16, 12 / 18, 9 (but cavity
     #: 256^2, whole run: 34 instead of 22 per outer iteration); s = 0.02 -> 18, 14 / 37 / 17, 17 / 36, 17;
-    #: s = 0.005 in cells of aspect ratio > 4 only -> 21, 17 / 35 / 21, 11 / 16, 9
+    #: s = 0.005 in cells of aspect ratio > 4 only -> 21, 17 / 35 / 21, 11 / 16, 9; > 1.5 only (adopted;
+    #: uniform quads and right triangles are below) -> 20, 18 / 32 / 18, 11 / 16, 9
     RELAXATION = 0.005
 
     def __init__(self, G: sp.csr_matrix, D: sp.csr_matrix, singular: bool, wall_cells: np.ndarray | None = None,

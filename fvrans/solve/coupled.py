@@ -88,7 +88,7 @@ MAX_KRYLOV = 200
 #: cells whose longest face is more than this many times their shortest are "stretched" for the
 #: least-squares commutator preconditioner (its momentum blocks relaxed there; see
 #: ``LeastSquaresCommutator.RELAXATION``)
-STRETCHED_ASPECT = 4.0
+STRETCHED_ASPECT = 1.5
 #: FGMRES iterations preconditioned by an earlier factorisation before the system is factorised anew
 REUSE_ITERATIONS = 10
 #: a factorisation is also replaced once the FGMRES iterations it has preconditioned add up to
