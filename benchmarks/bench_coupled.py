@@ -29,6 +29,20 @@ iterations on the same grid; /tmp/coupled3/fam.py, same families and settings as
       per outer, 2.4 / 12.2 s, 6.0 / 7.4 x
   step coarse / medium: the first solves miss the tolerance (iteration 2), the sparse LU takes over:
       127 / 182 its, 19.3 / 169.9 s
+Measured 2026-12-03 04:20-04:45 with system_solver = "iterative" and the least-squares commutator block
+preconditioner (the default since; 2 shared cores, load 3.6-3.9; /tmp/par3/fam.py; outer its, FGMRES its per
+outer iteration (max), seconds):
+  cavity 64^2 / 128^2 / 256^2: 14 / 14 / 14 its, 12.4 / 15.4 / 21.6 (19 / 24 / 33), 1.0 / 4.8 / 28.6 s
+      (the pressure convection-diffusion preconditioner at 256^2 in the same hour: 13 its, 28.4 (67), 29.4 s)
+  plate coarse / medium: 40 / 45 its, 5.0 (14) / 7.1 (24), 1.5 / 7.4 s (convection-diffusion, load 5:
+      38 / 46 its, 20.8 / 29.3, 7.1 / 39.0 s)
+  step coarse / medium: 85 / 95 its, no hand-over to the sparse LU, 37.2 (80) / 63.3 (114), 30.6 / 199.7 s
+      (peak RSS 305 / 506 MB); with the convection-diffusion preconditioner the LU took over at iteration 2;
+      with the momentum blocks relaxed in stretched cells (aspect > 1.5, adopted, 05:28-05:30, load 3.1-3.2):
+      step 85 / 93 its, 19.9 (76) / 24.3 (95), 14.7 / 96.8 s; plate 38 / 46 its, 4.8 / 8.0, 1.3 / 7.6 s;
+      cavity (uniform quads, no cell relaxed) 64^2 / 256^2 12.4 / 21.6, 1.2 / 43.3 s
+  step fine (111k cells): the second outer iteration's solve missed its tolerance (260 FGMRES its), the
+      sparse LU took over (RSS 4.2 GB); stopped
 Measured earlier with system_solver = "direct" (heavily loaded; iterations SIMPLEC -> simultaneous):
   cavity 64^2 / 128^2 / 256^2: 209 / 715 / 2713 -> 40 / 40 / 42 its; 2.4 / 37.2 / 568.9 s -> 3.8 / 24.9 / 55.3 s;
       us per cell and iteration 2.8-3.2 -> 20-38; max |du| / U 3.5e-6 / 7.5e-6 / 9.3e-6

@@ -38,6 +38,30 @@ the walls) 27 / 35 / 44, growing; the SIMPLE-type sweep below 78 / 165 / more th
 (system tolerance 0.01): cavity 64^2 / 128^2 / 256^2 9.9 / 10.3 / 10.4 FGMRES iterations per outer
 iteration.
 
+``LeastSquaresCommutator`` (the default of ``fvrans.solve.coupled``; same upper block-triangular
+form) approximates the Schur complement by the least-squares commutator (Elman, Howle, Shadid,
+Shuttleworth & Tuminaro 2006, SIAM J. Sci. Comput. 27, 1651-1668; stabilised form: Elman, Howle,
+Shadid, Silvester & Tuminaro 2008, SIAM J. Sci. Comput. 30, 290-311; boundary weights: Elman &
+Tuminaro 2009; all from memory). With H = diag(A)^-1 the commutator A H G ~ G F_p taken in the least
+squares sense gives D A^-1 G ~ (D H G) (D H A H G)^-1 (D H G). On the collocated grid -D H G is a
+wide-stencil Laplacian that does not see checkerboard pressures; its compact counterpart Lq (the
+Rhie-Chow pressure-difference operator with weights V / q) does, and C = Lq + D H G is the Rhie-Chow
+stabilisation (small on smooth pressures, ~ Lq on checkerboard ones), so
+
+  S~^-1 = Lq^-1 (c C - D H A H G) Lq^-1,
+
+with c = 0.5, the cells at no-slip walls weighted down (W = 0.2) in H and Lq, and the momentum blocks
+relaxed in stretched cells (``RELAXATION``). PCD's commutator
+holds poorly where the eddy viscosity varies by 100s and the flow recirculates: on the
+backward-facing step (FGMRES(20) to 0.01, exact block solves, outer iterations 2 / 10 / 30 of the
+coarse step) PCD needs >300 / 118 / >300 iterations, this preconditioner 35 / 39 / 26; one V-cycle
+per block 35 / 39 / - (medium step 40 / 75 / 52); the cavity 128^2 16 against PCD's 24, the plate
+(medium) 4 against 34. What it still misses: pressure modes smooth across the thin cells of the step's
+lip shear layer (large outlying eigenvalues, one per column of cells); relaxing the momentum blocks
+there halves the count (whole runs, coarse / medium step: 37 / 63 -> 20 / 24 per outer iteration).
+The fine step's early systems, whose momentum matrix is nearly singular, defeat it (and every other
+approximation tried, even with exact block solves).
+
 ``SimpleSchur`` (block lower-upper sweep with S~ = C - D diag(A)^-1 G, the SIMPLE approximation;
 Elman et al. 2008, J. Comput. Phys. 227, 1790-1808, from memory): kept as the baseline the tests
 compare against. Its iterations grow with the grid (about 2x per 4x cells).
@@ -54,6 +78,7 @@ from fvrans.linalg.fgmres import VCycle
 
 MOMENTUM_COARSENING = "RS"
 LAPLACIAN_COARSENING = "CLJP"
+LSC_MOMENTUM_COARSENING = "CLJP"
 
 
 def neumann_convection_diffusion(A: sp.csr_matrix, keep: np.ndarray, extra_diagonal: np.ndarray) -> sp.csr_matrix:
@@ -96,15 +121,103 @@ class PressureConvectionDiffusion:
         par = threads() > 1
         zp = (self.Ap @ self.lap(r[2 * n:], par)) * self.scale
         w = r[:2 * n] - self.G @ zp
-        if par:
-            # the two velocity components at once, one per thread
-            second = _second_thread().submit(self.mv, w[n:])
-            zu = self.mu(w[:n])
-            zv = second.result()
-        else:
-            zu = self.mu(w[:n])
-            zv = self.mv(w[n:])
-        return np.concatenate([zu, zv, zp])
+        return np.concatenate([*_momentum_pair(self.mu, self.mv, w, n, par), zp])
+
+
+class LeastSquaresCommutator:
+    """Upper block-triangular preconditioner (z_p = S~^-1 r_p, z_u = A^-1 (r_u - G z_p)) with the
+    stabilised least-squares commutator approximation of the Schur complement (module docstring):
+
+      S~^-1 = Lq^-1 (c C - D H A H G) Lq^-1,   H = diag(A)^-1,   C = Lq + D H G,
+
+    ``lq`` (``update``) the compact Laplacian rho sum_f r_f |S_f|^2 / (d_f . S_f) (p_P - p_N) with
+    r = V / q, q the mean of the two momentum diagonals (Dirichlet on faces with a given pressure):
+    the compact counterpart of -D H G, so C is the Rhie-Chow-type stabilisation (small on smooth
+    pressures, ~ Lq on checkerboard ones). ``G``: the 2n x n pressure face sums, ``D`` the n x 2n
+    velocity part of continuity, ``singular``: no given pressure anywhere."""
+
+    #: weight c of the stabilisation in the middle factor (FGMRES to 0.01 with exact block solves,
+    #: step medium after 10 outer iterations: c = 0 / 0.15 / 0.3 / 0.5 / 1 / 2 -> 167 / 74 / 66 / 67 /
+    #: 98 / 269 iterations; step coarse 70 / 40 / 40 / 39 / 56 / >300; cavity 128^2 42 / 25 / 20 / 20 / 20)
+    STABILISATION = 0.5
+
+    #: weight of the cells at no-slip walls in H and Lq (FGMRES to 1e-6, exact block solves, cavity
+    #: 64^2 / 128^2 after 5 outer iterations: 36 / 52 iterations with 1, 27 / 36 with 0.5, 24 / 32 with
+    #: 0.2, 25 / 32 with 0.1; step medium after 2 / 10 / 30 outer iterations, one V-cycle per block:
+    #: 54 / 90 / 56 with 1, 40 / 75 / 52 with 0.2)
+    WALL_WEIGHT = 0.2
+
+    #: in stretched cells (``stretched``) the preconditioner stands for A + s diag(A) in place of A
+    #: (``relaxed``), s = RELAXATION: on the step's thin high-eddy-viscosity cells A has modes far below
+    #: diag(A) that H = diag(A)^-1 cannot see. FGMRES(20) to 0.01, one V-cycle per block, states step
+    #: coarse it. 10, medium it. 2 / 10 / 30, cavity 64^2 / 128^2, plate medium it. 10: s = 0 -> 39,
+    #: 40 / 75 / 52, 11 / 16, 4; s = 0.005 in every cell -> 20, 17 / 31 / 16, 12 / 18, 9 (but cavity
+    #: 256^2, whole run: 34 instead of 22 per outer iteration); s = 0.02 -> 18, 14 / 37 / 17, 17 / 36, 17;
+    #: s = 0.005 in cells of aspect ratio > 4 only -> 21, 17 / 35 / 21, 11 / 16, 9; > 1.5 only (adopted;
+    #: uniform quads and right triangles are below) -> 20, 18 / 32 / 18, 11 / 16, 9
+    RELAXATION = 0.005
+
+    def __init__(self, G: sp.csr_matrix, D: sp.csr_matrix, singular: bool, wall_cells: np.ndarray | None = None,
+                 stretched: np.ndarray | None = None):
+        n = G.shape[1]
+        self.n = n
+        #: w of H = w / diag(A) and of Lq's weights w V / q: WALL_WEIGHT at ``wall_cells``, else 1
+        self.weight = np.ones(n)
+        if wall_cells is not None:
+            self.weight[wall_cells] = self.WALL_WEIGHT
+        self.shift = np.zeros(n)
+        if stretched is not None:
+            self.shift[stretched] = self.RELAXATION
+        self.G = sp.csr_matrix(G)
+        self.Gx, self.Gy = sp.csr_matrix(G[:n]), sp.csr_matrix(G[n:])
+        self.Du, self.Dv = sp.csr_matrix(D[:, :n]), sp.csr_matrix(D[:, n:])
+        self.lap = VCycle(1 << 30, singular=singular, coarsening=LAPLACIAN_COARSENING)
+        # Ruge-Stuben coarsening of the momentum blocks: step medium after 2 outer iterations, 128
+        # FGMRES iterations (exact momentum solves: 36); CLJP 38 (cavity, plate: the same as RS)
+        self.mu = VCycle(1 << 30, coarsening=LSC_MOMENTUM_COARSENING)
+        self.mv = VCycle(1 << 30, coarsening=LSC_MOMENTUM_COARSENING)
+
+    def relaxed(self, A: sp.csr_matrix) -> sp.csr_matrix:
+        """A + s diag(A), s = ``RELAXATION`` in stretched cells, else 0: the momentum block the
+        preconditioner stands for."""
+        return (A + sp.diags(self.shift * A.diagonal())).tocsr()
+
+    def update(self, Au: sp.csr_matrix, Av: sp.csr_matrix, lq: sp.csr_matrix, rebuild: bool = False) -> None:
+        """The (relaxed) momentum blocks and Lq of this outer iteration; ``rebuild``: set up the hierarchies
+        anew (else only their finest levels follow the new values)."""
+        fresh = rebuild or self.mu.amg._h is None
+        self.mu.update(Au, rebuild=fresh)
+        self.mv.update(Av, rebuild=fresh)
+        self.lap.update(lq, rebuild=fresh)
+        self.Au, self.Av, self.lq = Au, Av, lq
+        self.hu = self.weight / Au.diagonal()
+        self.hv = self.weight / Av.diagonal()
+
+    def schur_inverse(self, r: np.ndarray, par: bool = False) -> np.ndarray:
+        """S~^-1 r (the pressure part of the preconditioner)."""
+        y = self.lap(r, par)
+        gx = self.hu * (self.Gx @ y)
+        gy = self.hv * (self.Gy @ y)
+        c = self.STABILISATION
+        m = (c * (self.lq @ y) + self.Du @ (c * gx - self.hu * (self.Au @ gx))
+             + self.Dv @ (c * gy - self.hv * (self.Av @ gy)))
+        return self.lap(m, par)
+
+    def __call__(self, r: np.ndarray) -> np.ndarray:
+        n = self.n
+        par = threads() > 1
+        zp = self.schur_inverse(r[2 * n:], par)
+        w = r[:2 * n] - self.G @ zp
+        return np.concatenate([*_momentum_pair(self.mu, self.mv, w, n, par), zp])
+
+
+def _momentum_pair(mu: VCycle, mv: VCycle, w: np.ndarray, n: int, par: bool) -> tuple[np.ndarray, np.ndarray]:
+    """One V-cycle for each velocity component of ``w``; with ``par`` at once, one per thread."""
+    if par:
+        second = _second_thread().submit(mv, w[n:])
+        zu = mu(w[:n])
+        return zu, second.result()
+    return mu(w[:n]), mv(w[n:])
 
 
 class SimpleSchur:

@@ -33,12 +33,11 @@ loop's: every equation is the same at convergence (residuals of ``fvrans.fv.resi
 
 Linear solvers (``SolverControls.system_solver``; the default 'by-size' takes 'direct' below
 ``DIRECT_BELOW_CELLS`` cells, where its factorisation is cheap, and 'iterative' above): 'iterative' (flexible GMRES
-right-preconditioned by the upper block-triangular pressure convection-diffusion preconditioner of
-``fvrans.linalg.block_preconditioner``, AMG V-cycles for the momentum blocks and the pressure
-Laplacian, memory in proportion to the cells; FGMRES iterations per outer iteration nearly
-independent of the grid; should a solve miss its tolerance, the sparse LU takes over for the rest
-of the run) or 'direct' (SuperLU, scipy, minimum-degree ordering of A^T + A, reused as the
-preconditioner of FGMRES in later outer iterations).
+right-preconditioned by the upper block-triangular least-squares commutator preconditioner of
+``fvrans.linalg.block_preconditioner``, AMG V-cycles for the momentum blocks and the weighted
+pressure Laplacian, memory in proportion to the cells; should a solve miss its tolerance, the sparse
+LU takes over for the rest of the run) or 'direct' (SuperLU, scipy, minimum-degree ordering of
+A^T + A, reused as the preconditioner of FGMRES in later outer iterations).
 """
 
 from __future__ import annotations
@@ -52,7 +51,12 @@ import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 
 from fvrans.errors import CaseError
-from fvrans.linalg.block_preconditioner import PressureConvectionDiffusion, SimpleSchur, neumann_convection_diffusion
+from fvrans.linalg.block_preconditioner import (
+    LeastSquaresCommutator,
+    PressureConvectionDiffusion,
+    SimpleSchur,
+    neumann_convection_diffusion,
+)
 from fvrans.linalg.fgmres import fgmres
 from fvrans.solve import _coupled_kernels as CK
 from fvrans.solve import _kernels as K
@@ -81,6 +85,10 @@ STALE_KRYLOV = 60
 FALLBACK_FACTOR = 1.0
 #: FGMRES iterations allowed per solve (after a fresh hierarchy set-up)
 MAX_KRYLOV = 200
+#: cells whose longest face is more than this many times their shortest are "stretched" for the
+#: least-squares commutator preconditioner (its momentum blocks relaxed there; see
+#: ``LeastSquaresCommutator.RELAXATION``)
+STRETCHED_ASPECT = 1.5
 #: FGMRES iterations preconditioned by an earlier factorisation before the system is factorised anew
 REUSE_ITERATIONS = 10
 #: a factorisation is also replaced once the FGMRES iterations it has preconditioned add up to
@@ -194,9 +202,10 @@ class SimultaneousSolver(SimpleSolver):
         self._since_setup = 0
         self._missed = False
         self.lin_residuals: list[float] = []
-        #: Schur complement approximation of the iterative solve: "convection-diffusion" or "simple"
-        #: (the SIMPLE-type baseline, whose iterations grow with the grid)
-        self.preconditioner = "convection-diffusion"
+        #: Schur complement approximation of the iterative solve: "least-squares-commutator" (the
+        #: default), "convection-diffusion" (fails on the backward-facing step's recirculation) or
+        #: "simple" (the SIMPLE-type baseline, whose iterations grow with the grid)
+        self.preconditioner = "least-squares-commutator"
         self._zero_c2 = np.zeros((nc, 2))
         self._zero_c = np.zeros(nc)
         self._zero_beta = np.zeros(nc)
@@ -440,6 +449,18 @@ class SimultaneousSolver(SimpleSolver):
             every = self.ctl.amg_rebuild_every
             if self.preconditioner == "simple":
                 self._prec = SimpleSchur(self.G, self.D, self.singular, every)
+            elif self.preconditioner == "least-squares-commutator":
+                wall_cells = np.zeros(self.nc, dtype=bool)
+                wall_cells[self.owner[self.ni:][self.bc.kind == K.WALL]] = True
+                # stretched cells: longest face over shortest above STRETCHED_ASPECT
+                smag = np.linalg.norm(self.S, axis=1)
+                longest = np.zeros(self.nc)
+                shortest = np.full(self.nc, np.inf)
+                for cells, faces in ((self.owner, smag), (self.neigh, smag[:self.ni])):
+                    np.maximum.at(longest, cells, faces)
+                    np.minimum.at(shortest, cells, faces)
+                self._prec = LeastSquaresCommutator(self.G, self.D, self.singular, wall_cells,
+                                                    longest > STRETCHED_ASPECT * shortest)
             else:
                 # the unit Laplacian: Dirichlet on faces with a given pressure and at inflow (Elman &
                 # Tuminaro 2009, from memory: step coarse 118 -> 79 FGMRES iterations at one state, fine
@@ -456,6 +477,16 @@ class SimultaneousSolver(SimpleSolver):
                 self._ap_keep = np.zeros(self.nc, dtype=bool)
                 self._ap_keep[self.owner[self.ni:][inflow]] = True
         return self._prec
+
+    def _commutator_laplacian(self, Au: sp.csr_matrix, Av: sp.csr_matrix) -> sp.csr_matrix:
+        """Lq of :class:`LeastSquaresCommutator`: the compact Laplacian with the face weights
+        rho r_f, r = w V / q, q the mean of the momentum blocks' diagonals, w its boundary weights
+        (Dirichlet on faces with a given pressure)."""
+        q = 0.5 * (Au.diagonal() + Av.diagonal())
+        rows, cols, vals = CK.pressure_difference_triplets(self.owner, self.neigh, self.ni, self.dcoef, self.kvec,
+                                                           self.geom.face_weight, self._prec.weight * self.vol / q,
+                                                           self.fixed, float(self.rho))
+        return sp.csr_matrix((vals[:, 0], (rows, cols)), shape=(self.nc, self.nc))
 
     def _solve_gmres(self, A: sp.csr_matrix, rhs: np.ndarray) -> np.ndarray:
         """Flexible GMRES(``RESTART``) on the system, right-preconditioned by one block sweep of
@@ -483,7 +514,11 @@ class SimultaneousSolver(SimpleSolver):
             self._since_setup += 1
             rebuild = (self._fresh_its is None or self._since_setup > self.ctl.amg_rebuild_every
                        or self._missed or bool(its and its[-1] > REBUILD_GROWTH * max(self._fresh_its, 1)))
-            Ap = neumann_convection_diffusion(Au, self._ap_keep, self.a_rel[:, 0] - self.diag_u)
+            if self.preconditioner == "least-squares-commutator":
+                Au, Av = prec.relaxed(Au), prec.relaxed(Av)
+                Ap = self._commutator_laplacian(Au, Av)
+            else:
+                Ap = neumann_convection_diffusion(Au, self._ap_keep, self.a_rel[:, 0] - self.diag_u)
             prec.update(Au, Av, Ap, rebuild=rebuild)
         x0 = np.concatenate([self.fields.velocity[:, 0], self.fields.velocity[:, 1], self.fields.pressure])
         # rows in velocity units, so that the norm FGMRES reduces weighs momentum and continuity
