@@ -31,10 +31,20 @@ test suite; seconds cold / warm, outer iterations cold / warm over the sweep):
                                                  3.93 / 3.18 s        2.30 / 2.07 s         12.21 / 5.37 s
                                                  821 / 636 its        75 / 70 its           89 / 72 its
 
-The simultaneous path with the sparse LU (what ``system_solver = "by-size"`` takes below 8 000 cells) runs
-these laminar sweeps 1.5-2.8x faster. Sweeps still default to the case's coupling (SIMPLEC unless the
-case names another): on the laminar step (7 872 cells) a single run takes 16-18 s against SIMPLEC's 5.6 s,
-and the turbulent bump does not converge on the simultaneous path (DEVELOPERS.md).
+Again after the sparse LU's new ordering (later the same day, machine loaded by three other jobs, numpy
+triad 1.08 ms; seconds cold / warm, outer iterations cold / warm):
+
+    sweep                                        simplec              simultaneous (by-size: LU)
+    bump height, 16 runs (504 cells)             9.28 / 8.26 s        4.30 / 3.85 s
+                                                 3412 / 2769 its      310 / 249 its
+    channel viscosity, 8 runs (channel_poiseuille, 4 000 cells)
+                                                 7.68 / 5.92 s        5.15 / 4.80 s
+                                                 821 / 636 its        75 / 70 its
+
+The simultaneous path runs these laminar sweeps 1.2-2.2x faster, so the bundled laminar cases that sweeps
+and design loops start from name it (``channel_poiseuille``, ``bump_laminar``, ``flat_plate_laminar``,
+``cavity_re100``; README, ``[solver]``: "Which coupling the bundled cases take"); the others keep SIMPLEC,
+which is faster there (the laminar step, the cylinder channel and the turbulent cases).
 """
 
 from __future__ import annotations

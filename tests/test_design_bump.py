@@ -1,5 +1,6 @@
 """The design-loop example cases/design_bump.py, run with a small budget on the coarse resolution so
-it stays true: every design converges, warm starts need fewer iterations than cold starts, the
+it stays true: every design converges, warm starts need no more iterations than cold starts and fewer
+over the loop, the
 separation length agrees with the sign changes of the wall shear that summary.json reports
 (fvrans.post), and the added pressure loss grows with the bump height (more blockage)."""
 
@@ -32,7 +33,10 @@ def test_design_loop_small_budget(capsys):
     designs = loop.designs
     assert 1 <= len(designs) <= 4
     assert all(d.converged and 0.05 <= d.height <= 0.45 for d in designs)
-    assert all(d.warm_from is not None and d.iterations < d.cold_iterations for d in designs)
+    # a warm start never costs more than a cold one, and saves iterations over the loop (on the
+    # simultaneous path the first design, warm from the flat channel, can take as many as cold)
+    assert all(d.warm_from is not None and d.iterations <= d.cold_iterations for d in designs)
+    assert sum(d.iterations for d in designs) < sum(d.cold_iterations for d in designs)
     by_height = sorted(designs, key=lambda d: d.height)
     assert np.all(np.diff([d.loss for d in by_height]) > 0)
     assert best is not None and best.loss <= 0.2 and best.separation <= 0.6

@@ -37,8 +37,8 @@ right-preconditioned by the upper block-triangular pressure convection-diffusion
 ``fvrans.linalg.block_preconditioner``, AMG V-cycles for the momentum blocks and the pressure
 Laplacian, memory in proportion to the cells; FGMRES iterations per outer iteration nearly
 independent of the grid; should a solve miss its tolerance, the sparse LU takes over for the rest
-of the run) or 'direct' (SuperLU, scipy, reused as the preconditioner of FGMRES in later outer
-iterations).
+of the run) or 'direct' (SuperLU, scipy, minimum-degree ordering of A^T + A, reused as the
+preconditioner of FGMRES in later outer iterations).
 """
 
 from __future__ import annotations
@@ -61,10 +61,12 @@ from fvrans.solve.simple import SimpleSolver
 log = logging.getLogger(__name__)
 SYSTEM_SOLVERS = ("by-size", "direct", "iterative")
 #: with system_solver = "by-size", systems of fewer cells take the sparse LU, larger ones the iterative
-#: solve (single runs to the default stop, 2026-12-03, seconds direct / iterative: channel 4 000 cells
-#: 0.5 / 1.5, laminar bump 3 712 0.9 / 2.9, laminar plate 3 264 0.7 / 1.2, laminar step 7 872
-#: 18.2 / 16.2, turbulent plate 13 056 15.7 / 10.1, cavity 16 384 3.6 / 2.7; cavity 256^2 55 / 19.5)
-DIRECT_BELOW_CELLS = 8000
+#: solve. Single runs to the default stop, seconds direct / iterative (2026-12-03, shared machine, numpy
+#: triad 1.08 ms): channel 4 000 cells 1.0 / 2.6, laminar bump 3 712 1.3 / 5.4, laminar plate 3 264
+#: 0.6 / 2.0, laminar step 7 872 23.1 / 22.8, turbulent plate 13 056 16.6 / 13.2, cavity 16 384 2.2 / 3.6,
+#: cylinder in a channel 27 648 16.2 / 60.4, cavity 65 536 23.3 / 30.0. The LU's factors take about
+#: 7 KB per cell (150-205 entries per row), so it stops well below the sizes where memory counts
+DIRECT_BELOW_CELLS = 30000
 #: FGMRES restart length and iteration limit of the iterative solve (the Krylov basis holds
 #: 2 (RESTART + 1) vectors of 3 values per cell)
 RESTART = 20
@@ -81,6 +83,16 @@ FALLBACK_FACTOR = 1.0
 MAX_KRYLOV = 200
 #: FGMRES iterations preconditioned by an earlier factorisation before the system is factorised anew
 REUSE_ITERATIONS = 10
+#: fill-reducing ordering and diagonal pivot threshold of the sparse LU (SuperLU's minimum degree on
+#: A^T + A, preferring the diagonal pivot unless it is below 0.01 of its column's largest entry): against
+#: column AMD with partial pivoting, the factors hold half the entries and factorisation and solves take
+#: about half the time (2026-12-03, one system each, fill per row / factorisation s / solve ms: laminar
+#: step 302 / 0.61 / 13.8 against 152 / 0.15 / 3.3; turbulent plate 399 / 0.91 / 21.3 against 205 / 0.45 /
+#: 10.6; cavity 128^2 355 / 1.05 / 21.8 against 186 / 0.48 / 10.5). A threshold of 1 with this ordering
+#: pivots off the diagonal so often that the factors fill (6 686 per row on the laminar step); 0.1
+#: already doubled the fill on two of the systems
+LU_ORDERING = "MMD_AT_PLUS_A"
+LU_PIVOT_THRESHOLD = 0.01
 #: at most this many Newton steps on the boundary extrapolation of the pressure gradient per outer iteration
 GRADIENT_STEPS = 6
 #: cells whose extrapolation matrix M^-1 has a larger entry keep the lagged extrapolation (M^-1 = I)
@@ -330,7 +342,7 @@ class SimultaneousSolver(SimpleSolver):
             if rel <= self.ctl.system_tolerance:
                 self.lin_iterations.append(its)
                 return x0 + dx
-        self._lu = spla.splu(A.tocsc(), permc_spec="COLAMD")
+        self._lu = spla.splu(A.tocsc(), permc_spec=LU_ORDERING, diag_pivot_thresh=LU_PIVOT_THRESHOLD)
         self.factorisations += 1
         self.lin_iterations.append(1)
         del nc

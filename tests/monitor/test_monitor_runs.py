@@ -105,7 +105,9 @@ def test_a_bad_monitor_setting_names_the_key():
 def test_bundled_cavity_at_the_defaults_is_within_1e_4_of_its_converged_field():
     # #14 acceptance: velocity within 1e-4 of the lid speed (max over cells) of the same case run
     # to a residual of 1e-11. The bundled case (its own tolerance 1e-6) on a 64 x 64 grid.
-    case = cavity(64)
+    # SIMPLEC: the segregated loop's slow tail is what the monitors are for (the simultaneous path
+    # stops within 1e-4 on its residuals alone)
+    case = cavity(64).set("solver.coupling", "simplec")
     converged = fa.solve(case.replace({"solver.tolerance": 1e-11, "monitor.settle": False}))
     assert converged.converged
     at_defaults = fa.solve(case)
