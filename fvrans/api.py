@@ -77,7 +77,7 @@ from fvrans.reference import FieldSource, cell_source, read_result_folder, read_
 from fvrans.reference import diagnostics as ref_diag
 from fvrans.reference.cells import CellReference, reference_from_cells, reference_from_source
 from fvrans.reference.features import feature_table, write_feature_table
-from fvrans.solve.coupled import SimultaneousSolver
+from fvrans.solve.coupled import solver_class
 from fvrans.solve.frozen import FrozenVelocitySolver
 from fvrans.solve.simple import History, SimpleSolver, SolverControls
 
@@ -710,9 +710,7 @@ def solve(
         fields = _frozen_fields(fields, ref, problem)
     model = model_for_case(c, problem.mesh, problem.geom, problem.boundary, reference=ref)
     mf = c.mean_flow
-    solver_class = (FrozenVelocitySolver if frozen else
-                    SimultaneousSolver if c.solver.coupling == "simultaneous" else SimpleSolver)
-    solver = solver_class(
+    solver = (FrozenVelocitySolver if frozen else solver_class(c.solver.coupling))(
         problem.mesh, problem.geom, problem.boundary, rho=c.fluid.density, mu=c.fluid.viscosity,
         controls=controls, fields=fields, model=model,
         body_force=None if mf.pressure_gradient is None else -np.asarray(mf.pressure_gradient, dtype=float),

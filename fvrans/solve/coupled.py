@@ -83,6 +83,12 @@ FALLBACK_FACTOR = 1.0
 MAX_KRYLOV = 200
 #: FGMRES iterations preconditioned by an earlier factorisation before the system is factorised anew
 REUSE_ITERATIONS = 10
+#: a factorisation is also replaced once the FGMRES iterations it has preconditioned add up to
+#: REFACTOR_AFTER (about one factorisation's worth of triangular solves: factorisation / solve time was
+#: 23-45 on the bundled systems) while each solve still needs more than KEEP_ITERATIONS: the first
+#: factorisation is of the start's matrix, and the later ones are cheaper to precondition with a newer one
+REFACTOR_AFTER = 20
+KEEP_ITERATIONS = 2
 #: fill-reducing ordering and diagonal pivot threshold of the sparse LU (SuperLU's minimum degree on
 #: A^T + A, preferring the diagonal pivot unless it is below 0.01 of its column's largest entry): against
 #: column AMD with partial pivoting, the factors hold half the entries and factorisation and solves take
@@ -141,6 +147,8 @@ class SimultaneousSolver(SimpleSolver):
     (see the module docstring). Same constructor, hooks and attributes; ``bulk_velocity`` is refused
     (its force is found from the segregated momentum matrix)."""
 
+    COUPLINGS = ("simultaneous",)
+
     def __init__(self, *args: Any, **kwargs: Any):
         if kwargs.get("bulk_velocity") is not None:
             raise CaseError(
@@ -174,6 +182,7 @@ class SimultaneousSolver(SimpleSolver):
         self.lin_seconds = 0.0
         self.lin_iterations: list[int] = []
         self._lu = None
+        self._lu_iterations = 0
         self.factorisations = 0
         self._mu_t = None
         #: cell pressure gradients of the continuity fluxes implicit (True) or from the previous state
@@ -326,11 +335,13 @@ class SimultaneousSolver(SimpleSolver):
         """SuperLU of the system, reused for later outer iterations as the preconditioner of flexible
         GMRES while that reaches ``system_tolerance`` within ``REUSE_ITERATIONS`` iterations (the matrix
         changes little from one outer iteration to the next; a triangular solve costs about 1/30 of a
-        factorisation at 13k cells); refactorised when it does not."""
+        factorisation at 13k cells); refactorised when it does not, or when the solves it has
+        preconditioned have cost about one factorisation (``REFACTOR_AFTER``)."""
         nc = self.nc
         if self.singular:
             self._pin_level(A, rhs)
-        if self._lu is not None:
+        worn = self._lu_iterations >= REFACTOR_AFTER and self.lin_iterations[-1] > KEEP_ITERATIONS
+        if self._lu is not None and not worn:
             x0 = np.concatenate([self.fields.velocity[:, 0], self.fields.velocity[:, 1], self.fields.pressure])
             # rows scaled by their diagonals, so that the residual norm GMRES reduces weighs every
             # equation alike (momentum rows of thin wall cells are many decades above the rest)
@@ -339,10 +350,14 @@ class SimultaneousSolver(SimpleSolver):
             lu = self._lu
             dx, its, rel = fgmres(lambda z: d * (A @ z), lambda v: lu.solve(v / d), d * (rhs - A @ x0),
                                   self.ctl.system_tolerance, REUSE_ITERATIONS, REUSE_ITERATIONS)
+            self._lu_iterations += its
+            del lu
             if rel <= self.ctl.system_tolerance:
                 self.lin_iterations.append(its)
                 return x0 + dx
+        self._lu = None  # the old factors are freed before the new ones are made
         self._lu = spla.splu(A.tocsc(), permc_spec=LU_ORDERING, diag_pivot_thresh=LU_PIVOT_THRESHOLD)
+        self._lu_iterations = 0
         self.factorisations += 1
         self.lin_iterations.append(1)
         del nc
@@ -481,3 +496,11 @@ class SimultaneousSolver(SimpleSolver):
         return res
 
 
+def solver_class(coupling: str) -> type[SimpleSolver]:
+    """The solver class of a ``solver.coupling``: :class:`SimultaneousSolver` for 'simultaneous',
+    :class:`SimpleSolver` for 'simple' and 'simplec'.
+
+    >>> solver_class("simultaneous").__name__, solver_class("simplec").__name__
+    ('SimultaneousSolver', 'SimpleSolver')
+    """
+    return SimultaneousSolver if coupling in SimultaneousSolver.COUPLINGS else SimpleSolver

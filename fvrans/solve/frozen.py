@@ -21,7 +21,9 @@ from fvrans.solve.simple import History, SimpleSolver
 
 class FrozenVelocitySolver(SimpleSolver):
     """:class:`SimpleSolver` whose iteration advances only the model (see the module docstring); the
-    velocity, pressure and face fluxes of ``fields`` stay as given."""
+    velocity, pressure and face fluxes of ``fields`` stay as given (so any coupling will do)."""
+
+    COUPLINGS = ("simple", "simplec", "simultaneous")
 
     def __init__(self, *args, **kwargs):
         super().__init__(*args, **kwargs)

@@ -178,8 +178,13 @@ class SimpleSolver:
     an optional explicit extra stress and its own equations, advanced once per outer iteration.
     ``body_force`` (per unit volume; a periodic flow's -dp/dx) and ``bulk_velocity`` (the volume-mean
     velocity a periodic flow must carry; its uniform driving force is found each iteration, see
-    :mod:`fvrans.solve.mean_flow`) drive the flow.
+    :mod:`fvrans.solve.mean_flow`) drive the flow. ``controls.coupling`` must be one of
+    :attr:`COUPLINGS` ('simultaneous' is :class:`fvrans.solve.coupled.SimultaneousSolver`'s;
+    :func:`fvrans.solve.coupled.solver_class` picks the class for a coupling).
     """
+
+    #: the ``SolverControls.coupling`` values this class solves
+    COUPLINGS: tuple[str, ...] = ("simple", "simplec")
 
     def __init__(
         self,
@@ -200,6 +205,10 @@ class SimpleSolver:
         self.rho = float(rho)
         self.mu = float(mu)
         self.ctl = controls or SolverControls()
+        if self.ctl.coupling not in self.COUPLINGS:
+            raise ValueError(f"{type(self).__name__} solves coupling {' or '.join(map(repr, self.COUPLINGS))}, not "
+                             f"{self.ctl.coupling!r}: build the class fvrans.solve.coupled.solver_class("
+                             f"{self.ctl.coupling!r}) returns, or run the case through fvrans.api.solve")
         self.model = model if model is not None else TurbulenceModel()
         #: threads of the parallel kernels (``fvrans.jit.set_threads``: ``controls.threads``, else
         #: FVRANS_THREADS, else every idle core); with two, the velocity components are solved at once

@@ -19,7 +19,7 @@ from fvrans.errors import CaseError
 from fvrans.mesh import compute_geometry
 from fvrans.mesh.generate import cavity, channel, flat_plate, flat_plate_family
 from fvrans.physics.boundary import build_flow_boundary
-from fvrans.solve.coupled import SimultaneousSolver
+from fvrans.solve.coupled import SimultaneousSolver, solver_class
 from fvrans.solve.simple import SimpleSolver, SolverControls
 
 
@@ -223,3 +223,15 @@ def test_iterative_solve_hands_over_to_the_sparse_lu(monkeypatch):
     sim, ok2 = run(mesh, CAVITY, True, tolerance=1e-10, max_iterations=200, system_solver="iterative")
     assert ok2 and sim.fell_back and sim.factorisations >= 1
     assert np.max(np.abs(sim.fields.velocity - ref.fields.velocity)) < 1e-8
+
+
+def test_segregated_solver_refuses_the_simultaneous_coupling():
+    """A SimpleSolver given coupling = 'simultaneous' (as a case naming it would give) stops with a
+    message naming the class to build, instead of running the segregated loop with the simultaneous
+    path's relaxation (1.0), which diverged on the laminar plate at iteration 5."""
+    mesh = cavity(8)
+    geom = compute_geometry(mesh)
+    bc = build_flow_boundary(mesh, geom, CAVITY)
+    with pytest.raises(ValueError, match="solver_class"):
+        SimpleSolver(mesh, geom, bc, rho=1.0, mu=0.01, controls=SolverControls(coupling="simultaneous"))
+    assert solver_class("simultaneous") is SimultaneousSolver and solver_class("simple") is SimpleSolver

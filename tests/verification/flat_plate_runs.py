@@ -16,7 +16,8 @@ import fvrans.api as fa
 from fvrans.fields import Fields
 from fvrans.models import model_for_case
 from fvrans.post.wall import order_patch_faces
-from fvrans.solve.simple import SimpleSolver, SolverControls
+from fvrans.solve.coupled import solver_class
+from fvrans.solve.simple import SolverControls
 
 ROOT = Path(__file__).resolve().parents[2]
 CASES = ROOT / "cases"
@@ -60,7 +61,7 @@ def run_case(case: fa.Case, tolerance: float, max_iterations: int) -> PlateRun:
     c = problem.case
     model = model_for_case(c, problem.mesh, problem.geom, problem.boundary)
     fields = Fields.uniform(problem.mesh.n_cells, problem.mesh.n_faces, c.initial.velocity, c.initial.pressure)
-    solver = SimpleSolver(problem.mesh, problem.geom, problem.boundary, rho=c.fluid.density,
+    solver = solver_class(c.solver.coupling)(problem.mesh, problem.geom, problem.boundary, rho=c.fluid.density,
                           mu=c.fluid.viscosity, controls=SolverControls.from_settings(c.solver), fields=fields,
                           model=model)
     cf = station_cf(problem, STATION)
