@@ -48,12 +48,51 @@ system_solver "direct" unless said; scripts in /tmp/algo3):
       (triad ratio 1.3e7 / 1.8e7); x_r 6.13293661 / 6.17163486 (SIMPLEC 6.13293663 / 6.171635 at its
       settled stop: rel. 3e-9 / 2e-8)
 
+--memory KIND...: peak memory per cell of each coupling (simultaneous with the iterative solver, which
+here never hands over to the sparse LU, and SIMPLEC) on the generated ~400k-cell cavity / SA plate of
+``bench_parallel.py`` (``--cells``), after ``--memory-iterations`` simultaneous / 25 SIMPLEC outer
+iterations, in a fresh process: peak RSS above the interpreter's baseline (libraries and compiled
+kernels loaded) and numpy's traced peak.
+--cost: seconds per outer iteration of each coupling on the cavity 128^2 and the medium plate
+(``--cost-iterations`` simultaneous, 100 SIMPLEC iterations from the uniform start), per cell, over a
+numpy triad timed in the same run, with the load average; for the simultaneous path also the seconds
+of its assembly (``_assemble``) per outer iteration.
+
+Measured 2026-12-03 04:10-04:50 (2 shared cores, load 2.6-4.2), before = main 8ed3fc7 (scipy bmat/COO/products
+each outer iteration, FGMRES keeping the preconditioned vectors), after = the system refilled in place on a pattern
+made once, the segregated-only state dropped, FGMRES keeping only the Krylov basis:
+  --memory (400k cells; RSS above the baseline, KB per cell, numpy's traced peak in brackets):
+    | case | coupling | its | FGMRES / it | before | after |
+    |---|---|---|---|---|---|
+    | cavity 399424 | simultaneous | 8 | 32.1 | 5.43 (5.16) | 4.23 (4.04) |
+    | cavity 399424 | SIMPLEC | 25 | - | 2.36 (2.34) | 2.36 (2.34) |
+    | SA plate 399843 | simultaneous | 8 | 80.2 | 6.25 (5.80) | 4.78 (4.56) |
+    | SA plate 399843 | SIMPLEC | 25 | - | 2.92 (2.87) * | 2.91 (2.88) |
+  (* from bench_parallel.py's table of the same code; the segregated path is unchanged)
+  --cost (4 runs each, before and after interleaved; the machine's load swings whole iterations by +-50 %:
+  best of the runs, s per outer iteration; x SIMPLEC = over SIMPLEC's s per iteration in the same run, range):
+    | case | FGMRES / it | simultaneous s/it before / after | x SIMPLEC before / after | assembly s/it before / after |
+    |---|---|---|---|---|
+    | cavity 128^2 (16384) | 23.9 / 23.9 | 0.265 / 0.270 | 9.0-12.1 / 8.1-12.9 | 0.033-0.051 / 0.014-0.019 |
+    | plate medium (13056) | 30.0 / 30.0 | 0.426 / 0.288 | 7.7-8.7 / 8.3-11.3 | 0.042-0.045 / 0.009-0.016 |
+  The assembly fell from about one SIMPLEC iteration to a third-half of one; the outer iteration is the FGMRES
+  solve (three V-cycles per FGMRES iteration), so its cost stays 8-13x SIMPLEC's. One solve at a fixed state
+  (cavity 128^2, 22 FGMRES iterations, best of 6): 0.30 s keeping the preconditioned vectors, 0.29 s keeping the
+  basis only (two more preconditioner applications).
+
 Run:  python benchmarks/bench_coupled.py [--families cavity plate step] [--fine-step] [--only simultaneous]
+      python benchmarks/bench_coupled.py --memory cavity plate [--cells 400000] [--memory-iterations 8]
+      python benchmarks/bench_coupled.py --cost [--cost-iterations 12]
 """
 
 from __future__ import annotations
 
 import argparse
+import json
+import os
+import resource
+import subprocess
+import sys
 import time
 from pathlib import Path
 
@@ -100,12 +139,136 @@ def with_algorithm(problem: fa.Problem, algorithm: str) -> fa.Problem:
     return fa.prepare(problem.case.set("solver.coupling", algorithm), mesh=problem.mesh)
 
 
+def _count_fgmres() -> list[int]:
+    """From now on, the FGMRES iterations of every iterative solve of the simultaneous path."""
+    import fvrans.solve.coupled as C
+
+    krylov: list[int] = []
+    solve = C.SimultaneousSolver._solve_gmres
+
+    def counted(self, *a, **k):
+        x = solve(self, *a, **k)
+        krylov.append(self.lin_iterations[-1])
+        return x
+
+    C.SimultaneousSolver._solve_gmres = counted
+    return krylov
+
+
+def _child_memory(kind: str, cells: int, iterations: int, coupling: str) -> dict:
+    """In a fresh process: peak memory of ``iterations`` outer iterations of ``coupling`` on the
+    ~``cells``-cell mesh of ``bench_parallel._memory_mesh``."""
+    import tracemalloc
+
+    from bench_parallel import CASES, _memory_mesh
+
+    import fvrans.solve.coupled as C
+
+    case = fa.load_case(ROOT / "cases" / CASES[kind]).replace(
+        {"solver.coupling": coupling, "solver.system_solver": "iterative", "output.write_fields": False})
+    fa.solve(fa.prepare(case.set("solver.max_iterations", 3), _memory_mesh(kind, 4000)))  # the baseline
+    base_rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+    krylov = _count_fgmres()
+    C.FALLBACK_FACTOR = float("inf")  # the iterative solve's memory: no hand-over to the sparse LU
+    tracemalloc.start()
+    t0 = time.perf_counter()
+    mesh = _memory_mesh(kind, cells)
+    run = case.replace({"solver.max_iterations": iterations, "solver.tolerance": 1e-14, "monitor.settle": False})
+    r = fa.solve(fa.prepare(run, mesh))
+    seconds = time.perf_counter() - t0
+    _, traced_peak = tracemalloc.get_traced_memory()
+    tracemalloc.stop()
+    peak_rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+    return {"cells": mesh.n_cells, "iterations": r.iterations, "seconds": seconds, "base_rss": base_rss,
+            "peak_rss": peak_rss, "traced_peak": traced_peak, "krylov": krylov}
+
+
+def memory_table(kinds: list[str], cells: int, iterations: int) -> None:
+    print(f"memory: {iterations} simultaneous / 25 SIMPLEC outer iterations (past the first hierarchy rebuild) on "
+          f"~{cells} cells, each in a fresh process; KB per cell above the baseline (interpreter, libraries, compiled "
+          "kernels); load = 1-minute load average at the start")
+    print("case    cells   coupling      its  FGMRES/it  seconds  peak RSS KB/cell  traced KB/cell  load")
+    for kind in kinds:
+        for coupling in ("simultaneous", "simplec"):
+            load = os.getloadavg()[0]
+            its = iterations if coupling == "simultaneous" else 25
+            out = subprocess.run([sys.executable, __file__, "--child-memory", kind, str(cells), str(its), coupling],
+                                 capture_output=True, text=True, check=True)
+            m = json.loads(out.stdout.strip().splitlines()[-1])
+            nc = m["cells"]
+            fg = f"{np.mean(m['krylov']):.1f}" if m["krylov"] else "-"
+            print(f"{kind:7s} {nc:6d}  {coupling:12s} {m['iterations']:4d}  {fg:>9s}  {m['seconds']:7.0f}  "
+                  f"{(m['peak_rss'] - m['base_rss']) / nc / 1024:16.2f}  {m['traced_peak'] / nc / 1024:14.2f}  "
+                  f"{load:4.1f}", flush=True)
+
+
+def cost_table(iterations: int) -> None:
+    """Seconds per outer iteration of both couplings on the cavity 128^2 and the medium plate."""
+    import fvrans.solve.coupled as C
+
+    spent = [0.0]
+    assemble = C.SimultaneousSolver._assemble
+
+    def timed(self):
+        t0 = time.perf_counter()
+        out = assemble(self)
+        spent[0] += time.perf_counter() - t0
+        return out
+
+    C.SimultaneousSolver._assemble = timed
+    krylov = _count_fgmres()
+    problems = [("cavity 128^2", fa.prepare(fa.load_case(ROOT / "cases" / "cavity_re100.toml"), mesh=cavity(128))),
+                ("plate medium", fa.prepare(fa.load_case(ROOT / "cases" / "flat_plate_turbulent.toml"),
+                                            mesh=flat_plate_family("medium")))]
+    print(f"cost: {iterations} simultaneous (iterative solver) / 100 SIMPLEC outer iterations from the uniform start; "
+          "load = 1-minute load average before the run")
+    print("case          cells  coupling      its  s/it     us/cell/it  x triad  assembly s/it  FGMRES/it  load")
+    for label, problem in problems:
+        nc = problem.mesh.n_cells
+        for coupling, its in (("simultaneous", iterations), ("simplec", 100)):
+            case = problem.case.replace({"solver.coupling": coupling, "solver.system_solver": "iterative",
+                                         "solver.tolerance": 1e-14, "monitor.settle": False,
+                                         "output.write_fields": False})
+            fa.solve(fa.Problem(case.set("solver.max_iterations", 2), problem.mesh, problem.geom, problem.boundary))
+            load = os.getloadavg()[0]
+            triad = triad_seconds(nc)
+            spent[0] = 0.0
+            krylov.clear()
+            t0 = time.perf_counter()
+            r = fa.solve(fa.Problem(case.set("solver.max_iterations", its), problem.mesh, problem.geom,
+                                    problem.boundary))
+            wall = time.perf_counter() - t0
+            triad = min(triad, triad_seconds(nc))
+            n = max(r.iterations, 1)
+            asm = f"{spent[0] / n:13.4f}" if coupling == "simultaneous" else f"{'-':>13s}"
+            fg = f"{np.mean(krylov):9.1f}" if krylov else f"{'-':>9s}"
+            print(f"{label:12s} {nc:6d}  {coupling:12s} {r.iterations:4d}  {wall / n:7.4f}  "
+                  f"{wall / n / nc * 1e6:10.2f}  {wall / n / triad:7.0f}  {asm}  {fg}  {load:4.1f}", flush=True)
+
+
 def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--families", nargs="+", default=["cavity", "plate", "step"], choices=["cavity", "plate", "step"])
     ap.add_argument("--fine-step", action="store_true", help="also the fine step (111k cells)")
     ap.add_argument("--only", choices=ALGORITHMS, default=None, help="run one algorithm only")
+    ap.add_argument("--memory", nargs="+", choices=["cavity", "plate"], help="memory per cell of both couplings")
+    ap.add_argument("--cells", type=int, default=400_000)
+    ap.add_argument("--memory-iterations", type=int, default=8)
+    ap.add_argument("--cost", action="store_true", help="seconds per outer iteration of both couplings")
+    ap.add_argument("--cost-iterations", type=int, default=12)
+    ap.add_argument("--child-memory", nargs=4, help=argparse.SUPPRESS)
     args = ap.parse_args(argv)
+    if args.child_memory:
+        kind, cells, iterations, coupling = args.child_memory
+        print(json.dumps(_child_memory(kind, int(cells), int(iterations), coupling)))
+        return 0
+    if args.memory or args.cost:
+        print(f"machine: {os.cpu_count()} cores, load average {os.getloadavg()[0]:.1f} at the start (shared)")
+        if args.cost:
+            cost_table(args.cost_iterations)
+        if args.memory:
+            memory_table(args.memory, args.cells, args.memory_iterations)
+        return 0
     algorithms = ALGORITHMS if args.only is None else (args.only,)
     print("warm-up (numba compilation) ...", flush=True)
     warm = fa.load_case(ROOT / "cases" / "channel_poiseuille.toml").set("solver.max_iterations", 3)

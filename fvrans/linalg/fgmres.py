@@ -16,12 +16,14 @@ from fvrans.linalg.amg import AmgKrylovSolver
 
 def fgmres(
     matvec: Callable[[np.ndarray], np.ndarray], prec: Callable[[np.ndarray], np.ndarray], r0: np.ndarray,
-    rtol: float, restart: int = 40, max_iterations: int = 400,
+    rtol: float, restart: int = 40, max_iterations: int = 400, flexible: bool = True,
 ) -> tuple[np.ndarray, int, float]:
     """Solve A dx = r0 from dx = 0 by right-preconditioned flexible GMRES(restart): the
     preconditioned vectors z_k = M_k^-1 v_k are kept, so M may change from one step to the next.
     Stops when ||r0 - A dx||_2 <= rtol ||r0||_2 or after ``max_iterations``; returns (dx, iterations,
-    relative residual)."""
+    relative residual). ``flexible`` False, for an M that is one linear operator throughout: the z_k
+    are not kept (half the basis memory) and each cycle ends with dx += M^-1 (V y), one more
+    application of M (the same iterates to round-off)."""
     n = r0.size
     dx = np.zeros(n)
     beta0 = _kk.norm2(r0)
@@ -32,7 +34,7 @@ def fgmres(
     rel = 1.0
     m = restart
     V = np.empty((m + 1, n))
-    Z = np.empty((m, n))
+    Z = np.empty((m if flexible else 1, n))
     while its < max_iterations:
         beta = _kk.norm2(r)
         H = np.zeros((m + 1, m))
@@ -43,8 +45,9 @@ def fgmres(
         np.multiply(r, 1.0 / beta, out=V[0])
         k = 0
         for k in range(m):
-            Z[k] = prec(V[k])
-            w = np.array(matvec(Z[k]), dtype=float)
+            z = Z[k if flexible else 0]
+            z[:] = prec(V[k])
+            w = np.array(matvec(z), dtype=float)
             _kk.orthogonalise(V, k, w, H[:, k])
             for i in range(k):
                 t = cs[i] * H[i, k] + sn[i] * H[i + 1, k]
@@ -62,7 +65,13 @@ def fgmres(
             if rel <= rtol or its >= max_iterations:
                 break
         y = _upper_solve(H[: k + 1, : k + 1], gvec[: k + 1])
-        _kk.add_combination(Z, y, dx)
+        if flexible:
+            _kk.add_combination(Z, y, dx)
+        else:
+            z = Z[0]
+            z[:] = 0.0
+            _kk.add_combination(V, y, z)
+            dx += prec(z)
         if rel <= rtol or its >= max_iterations:
             break
         r = r0 - matvec(dx)

@@ -1,5 +1,6 @@
-"""Numba kernels of the simultaneous u-v-p solve (``fvrans.solve.coupled``): the blocks of the
-coupled matrix as (row, column, value) triplets, and face sums.
+"""Numba kernels of the simultaneous u-v-p solve (``fvrans.solve.coupled``): the pattern of the
+coupled matrix (made once) and the refill of its values in place, face sums, and the static blocks
+as (row, column, value) triplets.
 
 Unknowns are ordered (u_0..u_{n-1}, v_0..v_{n-1}, p_0..p_{n-1}). Face conventions are those of
 ``fvrans.mesh.geometry`` (S_f points out of the owner P; ``w`` the owner's interpolation weight).
@@ -8,7 +9,9 @@ Unknowns are ordered (u_0..u_{n-1}, v_0..v_{n-1}, p_0..p_{n-1}). Face convention
 from __future__ import annotations
 
 import numpy as np
-from numba import njit
+from numba import njit, prange
+
+from fvrans.jit import PARALLEL_MIN_CELLS as PAR_MIN
 
 
 @njit(cache=True)
@@ -50,37 +53,6 @@ def face_sum_triplets(owner, neigh, n_int, S, w, on_boundary, scale):
             for d in range(2):
                 vals[k, d] = scale * S[f, d]
         k += 1
-    return rows, cols, vals
-
-
-@njit(cache=True)
-def momentum_triplets(owner, neigh, n_int, a_u, a_v, off_own, off_nei):
-    """The two momentum blocks (u rows/columns, then v): diagonals ``a_u``, ``a_v``; ``off_own[f]``
-    multiplies the neighbour in the owner's row, ``off_nei[f]`` the owner in the neighbour's row."""
-    nc = a_u.shape[0]
-    m = 2 * (nc + 2 * n_int)
-    rows = np.empty(m, dtype=np.int64)
-    cols = np.empty(m, dtype=np.int64)
-    vals = np.empty(m)
-    k = 0
-    for d in range(2):
-        off = d * nc
-        a = a_u if d == 0 else a_v
-        for c in range(nc):
-            rows[k] = off + c
-            cols[k] = off + c
-            vals[k] = a[c]
-            k += 1
-        for f in range(n_int):
-            P = owner[f]
-            N = neigh[f]
-            rows[k] = off + P
-            cols[k] = off + N
-            vals[k] = off_own[f]
-            rows[k + 1] = off + N
-            cols[k + 1] = off + P
-            vals[k + 1] = off_nei[f]
-            k += 2
     return rows, cols, vals
 
 
@@ -184,3 +156,282 @@ def extrapolation_inverse(owner, n_int, S, delta, extrapolated, vol, limit):
             out[c, 0, 0] = 1.0
             out[c, 1, 1] = 1.0
     return out
+
+
+# -- the coupled matrix on a pattern made once, refilled in place every outer iteration -------------
+#
+# Rows of the system (cell c; compact(c) = c and its face neighbours, the CSR structure
+# ``cind``/``cidx`` of ``fvrans.fv.assembly.CsrAssembler``; wall(c) the cells of the wall fits of
+# c's wall faces):
+#   u row c      [A_u + W_uu: compact(c) + wall(c) | W_uv: wall(c) | G_x: compact(c)]
+#   v row c      [W_vu: wall(c) | A_v + W_vv: compact(c) + wall(c) | G_y: compact(c)]
+#   p row c      [D_x: compact(c) | D_y: compact(c) | A_pp: compact(k) for every k in compact(c)]
+# Every block is stored with its structural pattern (zeros where a coefficient happens to vanish),
+# so the pattern depends on the mesh only. The G and D blocks of a row end / start the row, in the
+# order of compact(c), so that their positions follow from the compact structure.
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _position(indices, lo, hi, col):
+    """Position of ``col`` in the sorted row ``indices[lo:hi]`` (binary search; the column is there)."""
+    while lo < hi:
+        mid = (lo + hi) >> 1
+        if indices[mid] < col:
+            lo = mid + 1
+        else:
+            hi = mid
+    return lo
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _take(col, r, mark, indices, k, fill):
+    """Append ``col`` to row r (once: ``mark`` remembers the row that took it last); the new count."""
+    if mark[col] != r:
+        mark[col] = r
+        if fill:
+            indices[k] = col
+        k += 1
+    return k
+
+
+@njit(cache=True)
+def system_pattern(nc, cind, cidx, wptr, wcells, indptr, indices, fill):
+    """The CSR pattern of the coupled system (rows above). ``fill`` False: ``indptr[r + 1]`` gets the
+    length of row r (``indices`` unused); True: ``indices`` the sorted columns of every row."""
+    mark = np.full(3 * nc, -1, dtype=np.int64)
+    for c in range(nc):
+        a, b = cind[c], cind[c + 1]
+        for blk in range(3):
+            r = blk * nc + c
+            k = indptr[r] if fill else 0
+            k0 = k
+            if blk < 2:
+                for j in range(a, b):
+                    k = _take(blk * nc + cidx[j], r, mark, indices, k, fill)
+                for j in range(wptr[c], wptr[c + 1]):
+                    k = _take(wcells[j], r, mark, indices, k, fill)
+                    k = _take(nc + wcells[j], r, mark, indices, k, fill)
+                for j in range(a, b):
+                    k = _take(2 * nc + cidx[j], r, mark, indices, k, fill)
+            else:
+                for j in range(a, b):
+                    k = _take(cidx[j], r, mark, indices, k, fill)
+                for j in range(a, b):
+                    k = _take(nc + cidx[j], r, mark, indices, k, fill)
+                for j in range(a, b):
+                    q = cidx[j]
+                    for i in range(cind[q], cind[q + 1]):
+                        k = _take(2 * nc + cidx[i], r, mark, indices, k, fill)
+            if fill:
+                indices[k0:k].sort()
+            else:
+                indptr[r + 1] = k
+
+
+@njit(cache=True)
+def positions(indptr, indices, rows, cols, out):
+    """out[e] = the position of (rows[e], cols[e]) in a CSR pattern (every pair is in it)."""
+    for e in range(rows.shape[0]):
+        out[e] = _position(indices, indptr[rows[e]], indptr[rows[e] + 1], cols[e])
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _face_sum_row(c, cind, cidx, cf_ptr, cf_face, owner, neigh, n_int, S, w, on_boundary, scale, out, ox, oy):
+    """Row c of the face sums of ``face_sum_triplets`` (components x, y), added into ``out[ox + j]``,
+    ``out[oy + j]`` (j the place of the column in compact(c)), faces in face order."""
+    a, b = cind[c], cind[c + 1]
+    for i in range(cf_ptr[c], cf_ptr[c + 1]):
+        code = cf_face[i]
+        if code >= 0:
+            f = code
+            if f < n_int:
+                jd = _position(cidx, a, b, c) - a
+                jn = _position(cidx, a, b, neigh[f]) - a
+                for d in range(2):
+                    s = scale * S[f, d]
+                    o = ox if d == 0 else oy
+                    out[o + jd] += w[f] * s
+                    out[o + jn] += (1.0 - w[f]) * s
+            elif on_boundary[f - n_int]:
+                jd = _position(cidx, a, b, c) - a
+                out[ox + jd] += scale * S[f, 0]
+                out[oy + jd] += scale * S[f, 1]
+        else:
+            f = -1 - code
+            jd = _position(cidx, a, b, c) - a
+            jp = _position(cidx, a, b, owner[f]) - a
+            for d in range(2):
+                s = scale * S[f, d]
+                o = ox if d == 0 else oy
+                out[o + jp] += -w[f] * s
+                out[o + jd] += -(1.0 - w[f]) * s
+
+
+@njit(cache=True)
+def gradient_values(nc, cind, cidx, cf_ptr, cf_face, owner, neigh, n_int, S, w, on_boundary, minv, out):
+    """Values of G = M^-1 G0 (2nc x nc, rows [x; y], each block on the compact structure: x in
+    ``out[:nnz]``, y in ``out[nnz:]``): G0 the face sums sum_f p_f S_f of ``face_sum_triplets``
+    (faces where ``on_boundary``), M^-1 per cell (``extrapolation_inverse``)."""
+    nnz = cidx.shape[0]
+    out[:] = 0.0
+    for c in range(nc):
+        a = cind[c]
+        _face_sum_row(c, cind, cidx, cf_ptr, cf_face, owner, neigh, n_int, S, w, on_boundary, 1.0, out, a, nnz + a)
+        for j in range(a, cind[c + 1]):
+            gx = out[j]
+            gy = out[nnz + j]
+            out[j] = minv[c, 0, 0] * gx + minv[c, 0, 1] * gy
+            out[nnz + j] = minv[c, 1, 0] * gx + minv[c, 1, 1] * gy
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _momentum_row(c, d, nc, cind, cf_ptr, cf_face, owner, neigh, n_int, a_rel, off_own, off_nei, g_data, indptr,
+                  indices, data):
+    r = d * nc + c
+    lo, hi = indptr[r], indptr[r + 1]
+    for k in range(lo, hi):
+        data[k] = 0.0
+    data[_position(indices, lo, hi, d * nc + c)] = a_rel[c, d]
+    for i in range(cf_ptr[c], cf_ptr[c + 1]):
+        code = cf_face[i]
+        if code >= 0:
+            if code < n_int:
+                data[_position(indices, lo, hi, d * nc + neigh[code])] += off_own[code]
+        else:
+            f = -1 - code
+            data[_position(indices, lo, hi, d * nc + owner[f])] += off_nei[f]
+    # G: the last entries of the row, in the order of compact(c)
+    a, b = cind[c], cind[c + 1]
+    g0 = d * cind[nc] + a
+    t = hi - (b - a)
+    for j in range(b - a):
+        data[t + j] = g_data[g0 + j]
+
+
+@njit(cache=True, parallel=True)
+def momentum_rows(nc, cind, cf_ptr, cf_face, owner, neigh, n_int, a_rel, off_own, off_nei, g_data, wall_data,
+                  wall_pos, indptr, indices, data):
+    """Refill the u and v rows of the system: A_u, A_v (diagonals ``a_rel[:, 0]``, ``a_rel[:, 1]``, ``off_own[f]``
+    for the neighbour in the owner's row, ``off_nei[f]`` for the owner in the neighbour's row), plus
+    the wall-flux matrix's values ``wall_data`` at ``wall_pos``, and G (``g_data`` as
+    ``gradient_values`` made it). Each row is written by one thread."""
+    if nc >= PAR_MIN:
+        for c in prange(nc):
+            _momentum_row(c, 0, nc, cind, cf_ptr, cf_face, owner, neigh, n_int, a_rel, off_own, off_nei, g_data, indptr,
+                          indices, data)
+            _momentum_row(c, 1, nc, cind, cf_ptr, cf_face, owner, neigh, n_int, a_rel, off_own, off_nei, g_data, indptr,
+                          indices, data)
+    else:
+        for c in range(nc):
+            _momentum_row(c, 0, nc, cind, cf_ptr, cf_face, owner, neigh, n_int, a_rel, off_own, off_nei, g_data, indptr,
+                          indices, data)
+            _momentum_row(c, 1, nc, cind, cf_ptr, cf_face, owner, neigh, n_int, a_rel, off_own, off_nei, g_data, indptr,
+                          indices, data)
+    for k in range(wall_pos.shape[0]):
+        data[wall_pos[k]] += wall_data[k]
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _continuity_row(c, nc, cind, cidx, cf_ptr, cf_face, owner, neigh, n_int, S, w, dcoef, kvec, rbar, r_u, r_v, vol,
+                    fixed, rho, implicit, g_data, E, gp, c0, indptr, indices, data, rhs):
+    r = 2 * nc + c
+    lo, hi = indptr[r], indptr[r + 1]
+    for k in range(lo, hi):
+        data[k] = 0.0
+    a, b = cind[c], cind[c + 1]
+    L = b - a
+    nnz = cind[nc]
+    _face_sum_row(c, cind, cidx, cf_ptr, cf_face, owner, neigh, n_int, S, w, fixed, rho, data, lo, lo + L)
+    s = 0.0
+    for j in range(L):
+        k = cidx[a + j]
+        # the Rhie-Chow pressure terms of row c, column k (``pressure_difference_triplets``)
+        lc = 0.0
+        kx = 0.0
+        ky = 0.0
+        for i in range(cf_ptr[c], cf_ptr[c + 1]):
+            code = cf_face[i]
+            if code >= 0:
+                f = code
+                if f < n_int:
+                    N = neigh[f]
+                    wf = w[f]
+                    rf = rho * (wf * rbar[c] + (1.0 - wf) * rbar[N])
+                    af = rf * dcoef[f]
+                    k0 = rf * kvec[f, 0]
+                    k1 = rf * kvec[f, 1]
+                    if k == c:
+                        lc += af
+                        kx += wf * k0
+                        ky += wf * k1
+                    if k == N:
+                        lc += -af
+                        kx += (1.0 - wf) * k0
+                        ky += (1.0 - wf) * k1
+                elif fixed[f - n_int] and k == c:
+                    rf = rho * rbar[c]
+                    lc += rf * dcoef[f]
+                    kx += rf * kvec[f, 0]
+                    ky += rf * kvec[f, 1]
+            else:
+                f = -1 - code
+                P = owner[f]
+                wf = w[f]
+                rf = rho * (wf * rbar[P] + (1.0 - wf) * rbar[c])
+                af = rf * dcoef[f]
+                k0 = rf * kvec[f, 0]
+                k1 = rf * kvec[f, 1]
+                if k == c:
+                    lc += af
+                    kx += -(1.0 - wf) * k0
+                    ky += -(1.0 - wf) * k1
+                if k == P:
+                    lc += -af
+                    kx += -wf * k0
+                    ky += -wf * k1
+        # W = D diag(r) - [Kx Ky]: continuity's response to the cell pressure gradients
+        wx = data[lo + j] * r_u[k] - kx
+        wy = data[lo + L + j] * r_v[k] - ky
+        data[_position(indices, lo + 2 * L, hi, 2 * nc + k)] += lc
+        if implicit:
+            # grad p_k = V_k^-1 (G p + E)_k: A_pp += W V^-1 G, right-hand side -= W V^-1 E
+            wx = wx * (1.0 / vol[k])
+            wy = wy * (1.0 / vol[k])
+            for i in range(cind[k], cind[k + 1]):
+                q = _position(indices, lo + 2 * L, hi, 2 * nc + cidx[i])
+                data[q] += wx * g_data[i] + wy * g_data[nnz + i]
+            s += wx * E[k] + wy * E[nc + k]
+        else:
+            s += wx * gp[k, 0] + wy * gp[k, 1]
+    rhs[c] = -(c0[c] + s)
+
+
+@njit(cache=True, parallel=True)
+def continuity_rows(nc, cind, cidx, cf_ptr, cf_face, owner, neigh, n_int, S, w, dcoef, kvec, rbar, r_u, r_v, vol,
+                    fixed, rho, implicit, g_data, E, gp, c0, indptr, indices, data, rhs):
+    """Refill the continuity rows: D (rho times the face sums on faces with a given pressure), and
+    A_pp = Lc + W V^-1 G with W = D diag(r_u, r_v) - [Kx Ky] (``implicit``; else Lc alone), and their
+    right-hand side -(c0 + W V^-1 E) (else -(c0 + W grad p)). Each row is written by one thread."""
+    if nc >= PAR_MIN:
+        for c in prange(nc):
+            _continuity_row(c, nc, cind, cidx, cf_ptr, cf_face, owner, neigh, n_int, S, w, dcoef, kvec, rbar, r_u,
+                            r_v, vol, fixed, rho, implicit, g_data, E, gp, c0, indptr, indices, data, rhs)
+    else:
+        for c in range(nc):
+            _continuity_row(c, nc, cind, cidx, cf_ptr, cf_face, owner, neigh, n_int, S, w, dcoef, kvec, rbar, r_u,
+                            r_v, vol, fixed, rho, implicit, g_data, E, gp, c0, indptr, indices, data, rhs)
+
+
+@njit(cache=True)
+def wall_flux_values(pos, geo, t_row, t_col, faces, dpos, wall_faces, muf, dcoef, data):
+    """Values of the wall-flux matrix on its pattern: -mu_f (n . S)(coef_q . n) t_i t_j at ``pos[e]``
+    for the stencil entries, -mu_f dcoef_f on the diagonal of both components (``dpos``)."""
+    data[:] = 0.0
+    for e in range(pos.shape[0]):
+        data[pos[e]] += -muf[faces[e]] * geo[e] * t_row[e] * t_col[e]
+    nw = wall_faces.shape[0]
+    for k in range(nw):
+        f = wall_faces[k]
+        v = -muf[f] * dcoef[f]
+        data[dpos[k]] += v
+        data[dpos[nw + k]] += v

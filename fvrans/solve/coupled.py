@@ -68,7 +68,7 @@ SYSTEM_SOLVERS = ("by-size", "direct", "iterative")
 #: 7 KB per cell (150-205 entries per row), so it stops well below the sizes where memory counts
 DIRECT_BELOW_CELLS = 30000
 #: FGMRES restart length and iteration limit of the iterative solve (the Krylov basis holds
-#: 2 (RESTART + 1) vectors of 3 values per cell)
+#: RESTART + 1 vectors of 3 values per cell: the preconditioned ones are not kept)
 RESTART = 20
 #: the momentum blocks' multigrid hierarchies are set up anew when a solve needs this many times the
 #: FGMRES iterations of the first solve after the last set-up (coarse levels kept from an earlier
@@ -103,16 +103,8 @@ LU_PIVOT_THRESHOLD = 0.01
 GRADIENT_STEPS = 6
 #: cells whose extrapolation matrix M^-1 has a larger entry keep the lagged extrapolation (M^-1 = I)
 EXTRAPOLATION_LIMIT = 3.0
-
-
-def _cell_blocks(blocks: np.ndarray) -> sp.csr_matrix:
-    """The 2nc x 2nc matrix acting on stacked [x-components; y-components] with the 2 x 2 block
-    ``blocks[c]`` for cell c."""
-    nc = blocks.shape[0]
-    r = np.arange(nc)
-    return sp.csr_matrix((blocks.transpose(1, 2, 0).ravel(),
-                          (np.concatenate([r, r, nc + r, nc + r]), np.concatenate([r, nc + r, r, nc + r]))),
-                         shape=(2 * nc, 2 * nc))
+#: attributes of :class:`SimpleSolver` that only its own iteration uses, dropped here
+SEGREGATED_ONLY = ("psolver", "msolver", "us", "vs", "hbya", "rau", "beta", "dp", "pc", "pcb", "gpc")
 
 
 def _wall_flux_stencil(wall_grad: Any, owner: np.ndarray, S: np.ndarray, nc: int) -> tuple[np.ndarray, ...]:
@@ -163,22 +155,27 @@ class SimultaneousSolver(SimpleSolver):
         if self.system_solver == "by-size":
             self.system_solver = "direct" if self.nc < DIRECT_BELOW_CELLS else "iterative"
         nc, ni, g = self.nc, self.ni, self.geom
+        # the segregated loop's own solvers and work arrays (pressure correction, predicted velocity,
+        # interpolation coefficients): not used on this path (~0.13 KB per cell)
+        for name in SEGREGATED_ONLY:
+            delattr(self, name)
         kind = self.bc.kind
         self.fixed = (kind == K.OUTLET) | (kind == K.FREESTREAM)
         self.singular = not self.bc.has_fixed_pressure
-        # static parts: G (2nc x nc) and the face-velocity part of continuity, D (nc x 2nc)
-        rows, cols, vals = CK.face_sum_triplets(self.owner, self.neigh, ni, self.S, self.geom.face_weight,
-                                                ~self.fixed, 1.0)
-        G0 = sp.csr_matrix((vals.T.ravel(), (np.concatenate([rows, nc + rows]), np.tile(cols, 2))),
-                           shape=(2 * nc, nc))
+        # static parts, made once: the compact structure of the mesh (diagonal and face neighbours,
+        # shared with the segregated assemblers), G = M^-1 G0 (2nc x nc) on it, the wall-flux
+        # matrix's pattern and the pattern of the whole system; ``_assemble`` refills the values
         self._extrapolation_inverse = CK.extrapolation_inverse(self.owner, ni, self.S, g.face_delta, ~self.fixed,
                                                                self.vol, EXTRAPOLATION_LIMIT)
-        self.G = (_cell_blocks(self._extrapolation_inverse) @ G0).tocsr()
-        self._wall_stencil = _wall_flux_stencil(self.wall_grad, self.owner, self.S, nc)
-        rows, cols, vals = CK.face_sum_triplets(self.owner, self.neigh, ni, self.S, self.geom.face_weight,
-                                                self.fixed, float(self.rho))
-        self.D = sp.csr_matrix((vals.T.ravel(), (np.tile(rows, 2), np.concatenate([cols, nc + cols]))),
-                               shape=(nc, 2 * nc))
+        compact = self.asm_u.matrix(np.zeros(nc), np.zeros(ni), np.zeros(ni))
+        self._cind, self._cidx = compact.indptr, compact.indices
+        self.G = self._gradient_matrix()
+        self._wall, self._wall_stencil, wall_cells = self._wall_flux_pattern()
+        self._A = self._system_pattern(*wall_cells)
+        wrows = np.repeat(np.arange(2 * nc, dtype=np.int64), np.diff(self._wall.indptr))
+        self._wall_in_system = np.empty(self._wall.nnz, dtype=np.int64)
+        CK.positions(self._A.indptr, self._A.indices, wrows, self._wall.indices.astype(np.int64),
+                     self._wall_in_system)
         self.lin_seconds = 0.0
         self.lin_iterations: list[int] = []
         self._lu = None
@@ -203,6 +200,81 @@ class SimultaneousSolver(SimpleSolver):
         self._zero_c2 = np.zeros((nc, 2))
         self._zero_c = np.zeros(nc)
         self._zero_beta = np.zeros(nc)
+
+    def release_work(self) -> None:
+        """Free the linear solve's memory when the run is over, before its outputs are evaluated
+        (cavity of 400k cells: ~1.5 KB per cell): the block preconditioner's multigrid hierarchies,
+        the sparse LU and the system's values (its pattern stays); a further iteration makes them
+        again."""
+        self._prec = None
+        self._fresh_its = None
+        self._lu = None
+        self._A.data = np.empty(0)
+
+    # -- static parts ---------------------------------------------------------------------------
+    def _gradient_matrix(self) -> sp.csr_matrix:
+        """G = M^-1 G0 (2nc x nc, rows [x; y]): G0 p = sum_f p_f S_f (p_f linearly interpolated, the
+        owner's value on boundary faces without a given pressure), M^-1 the extrapolation per cell;
+        each block on the compact structure (``_coupled_kernels.gradient_values``)."""
+        nc, cind, cidx = self.nc, self._cind, self._cidx
+        nnz = len(cidx)
+        data = np.empty(2 * nnz)
+        CK.gradient_values(nc, cind, cidx, self.cf_ptr, self.cf_face, self.owner, self.neigh, self.ni, self.S,
+                           self.geom.face_weight, ~self.fixed, self._extrapolation_inverse, data)
+        itype = np.int32 if 2 * nnz < 2**31 - 1 else np.int64
+        indptr = np.concatenate([cind, cind[1:].astype(itype) + itype(nnz)]).astype(itype)
+        G = sp.csr_matrix((data, np.concatenate([cidx, cidx]).astype(itype), indptr), shape=(2 * nc, nc))
+        G.has_sorted_indices = True
+        return G
+
+    @property
+    def D(self) -> sp.csr_matrix:
+        """The velocity part of continuity (nc x 2nc): rho times the face sums of u_f . S_f over the
+        faces with no given flux (static; the system holds it, this copy is made on request)."""
+        nc = self.nc
+        rows, cols, vals = CK.face_sum_triplets(self.owner, self.neigh, self.ni, self.S, self.geom.face_weight,
+                                                self.fixed, float(self.rho))
+        return sp.csr_matrix((vals.T.ravel(), (np.tile(rows, 2), np.concatenate([cols, nc + cols]))),
+                             shape=(nc, 2 * nc))
+
+    def _wall_flux_pattern(self) -> tuple:
+        """The wall-flux matrix on its pattern (values zero), the stencil with each entry's place in
+        it (``_wall_flux_matrix`` refills the values), and the wall-fit cells of each cell (CSR:
+        pointers, cells) for the system's pattern."""
+        nc = self.nc
+        rows, cols, geo, t_row, t_col, faces = _wall_flux_stencil(self.wall_grad, self.owner, self.S, nc)
+        own = self.owner[self.wall_faces].astype(np.int64)
+        r = np.concatenate([rows, own, nc + own]).astype(np.int64)
+        c = np.concatenate([cols, own, nc + own]).astype(np.int64)
+        W = sp.csr_matrix((np.ones(len(r)), (r, c)), shape=(2 * nc, 2 * nc))
+        W.sum_duplicates()
+        W.sort_indices()
+        W.data[:] = 0.0
+        pos = np.empty(len(r), dtype=np.int64)
+        CK.positions(W.indptr, W.indices, r, c, pos)
+        m = len(rows)
+        # the u-u block of the stencil: rows P, columns q (the wall-fit cells of P's wall faces)
+        P, q = rows[: m // 4], cols[: m // 4]
+        order = np.argsort(P, kind="stable")
+        wptr = np.zeros(nc + 1, dtype=np.int64)
+        np.cumsum(np.bincount(P, minlength=nc), out=wptr[1:])
+        return W, (pos[:m], geo, t_row, t_col, faces, pos[m:]), (wptr, q[order].astype(np.int64))
+
+    def _system_pattern(self, wptr: np.ndarray, wcells: np.ndarray) -> sp.csr_matrix:
+        """The system's matrix on its pattern (``_coupled_kernels.system_pattern``), values zero."""
+        nc = self.nc
+        n = 3 * nc
+        indptr = np.zeros(n + 1, dtype=np.int64)
+        itype = self._cidx.dtype
+        CK.system_pattern(nc, self._cind, self._cidx, wptr, wcells, indptr, np.zeros(1, dtype=itype), False)
+        np.cumsum(indptr, out=indptr)
+        if indptr[-1] >= 2**31 - 1:
+            itype = np.int64
+        indices = np.empty(int(indptr[-1]), dtype=itype)
+        CK.system_pattern(nc, self._cind, self._cidx, wptr, wcells, indptr, indices, True)
+        A = sp.csr_matrix((np.zeros(len(indices)), indices, indptr.astype(itype)), shape=(n, n))
+        A.has_sorted_indices = True
+        return A
 
     # -- assembly ---------------------------------------------------------------------------
     def _assemble(self):
@@ -251,35 +323,34 @@ class SimultaneousSolver(SimpleSolver):
                            self._zero_c, self._zero_c2, self.pb, kind, self.bc.velocity, self._zero_beta, F_old, Fc)
         c0 = np.zeros(nc)
         CK.face_sums(self.owner, self.neigh, ni, Fc, c0)
-        # blocks
+        # the system, refilled in place on its pattern: momentum rows (A + W, G), then continuity rows
+        # (D, A_pp = Lc + W V^-1 G with W the response to the cell pressure gradients), whose
+        # product reads G's values
         p = fl.pressure
-        E = np.concatenate([V * gp[:, 0], V * gp[:, 1]]) - self.G @ p
-        rows, cols, vals = CK.momentum_triplets(self.owner, self.neigh, ni, self.a_rel[:, 0], self.a_rel[:, 1],
-                                                self.off_own, self.off_nei)
-        Amom = sp.csr_matrix((vals, (rows, cols)), shape=(2 * nc, 2 * nc))
+        Gp = self.G @ p
+        E = np.concatenate([V * gp[:, 0], V * gp[:, 1]]) - Gp
         # the wall faces' flux mu (G + G^T) . S implicit in full (the segregated assembly keeps the
         # part beyond mu dcoef (u_wall - u_P) deferred): A + W, right-hand side + W u_old
         Wall = self._wall_flux_matrix()
-        Amom = (Amom + Wall).tocsr()
-        rows, cols, vals = CK.pressure_difference_triplets(self.owner, self.neigh, ni, self.dcoef, self.kvec,
-                                                           g.face_weight, rbar, self.fixed, rho)
-        Lc = sp.csr_matrix((vals[:, 0], (rows, cols)), shape=(nc, nc))
-        Kx = sp.csr_matrix((vals[:, 1], (rows, cols)), shape=(nc, nc))
-        Ky = sp.csr_matrix((vals[:, 2], (rows, cols)), shape=(nc, nc))
+        A = self._A
+        if A.data.size != A.indices.size:  # released (``release_work``)
+            A.data = np.zeros(A.indices.size)
+        CK.momentum_rows(nc, self._cind, self.cf_ptr, self.cf_face, self.owner, self.neigh, ni, self.a_rel,
+                         self.off_own, self.off_nei, self.G.data, Wall.data, self._wall_in_system, A.indptr,
+                         A.indices, A.data)
+        rhs = np.empty(3 * nc)
         # continuity: D u + D R grad p - K grad p + Lc p = -c0, grad p = V^-1 (G p + E)
-        W = self.D @ sp.diags(np.concatenate([r_u, r_v])) - sp.hstack([Kx, Ky])
-        Wv = W @ sp.diags(np.concatenate([1.0 / V, 1.0 / V]))
-        if self.implicit_gradient:
-            App = (Lc + Wv @ self.G).tocsr()
-            rhs_c = -(c0 + Wv @ E)
-        else:
-            App = Lc.tocsr()
-            rhs_c = -(c0 + W @ np.concatenate([gp[:, 0], gp[:, 1]]))
+        CK.continuity_rows(nc, self._cind, self._cidx, self.cf_ptr, self.cf_face, self.owner, self.neigh, ni,
+                           self.S, g.face_weight, self.dcoef, self.kvec, rbar, r_u, r_v, V, self.fixed, rho,
+                           self.implicit_gradient, self.G.data, E, gp, c0, A.indptr, A.indices, A.data,
+                           rhs[2 * nc:])
         u_stack = np.concatenate([u_old[:, 0], u_old[:, 1]])
-        rhs_m = np.concatenate([self.rhs_u, self.rhs_v]) + self.G @ p + Wall @ u_stack
-        A = sp.bmat([[Amom, self.G], [self.D, App]], format="csr")
-        rhs = np.concatenate([rhs_m, rhs_c])
-        self._parts = (Amom, App, E, r_u, r_v, rbar, gu, hu, Wall)
+        rhs[:2 * nc] = np.concatenate([self.rhs_u, self.rhs_v]) + Gp + Wall @ u_stack
+        # what the linear solve and the update read: the momentum blocks without the wall-flux
+        # matrix (the segregated assemblers' matrices, refilled in place) for the preconditioner, ...
+        Au = self.asm_u.matrix(self.a_rel[:, 0], self.off_own, self.off_nei)
+        Av = self.asm_v.matrix(self.a_rel[:, 1], self.off_own, self.off_nei)
+        self._parts = (Au, Av, E, r_u, r_v, rbar, gu, hu, Wall)
         return A, rhs, res
 
     def _wall_flux_matrix(self) -> sp.csr_matrix:
@@ -287,16 +358,10 @@ class SimultaneousSolver(SimpleSolver):
         G the wall gradient of ``fvrans.fv.wall_gradient``) with respect to the cell velocities, less
         the implicit part mu dcoef the assembly already holds. On a wall only the fitted shear
         t . g_n depends on the cells: flux = mu (n . S) (t . g_n) t + terms of the wall velocity."""
-        nc = self.nc
-        rows, cols, geo, t_row, t_col, faces = self._wall_stencil
-        mu_q = self.muf[faces]
-        vals = -mu_q * geo * t_row * t_col
-        wf = self.wall_faces
-        dvals = -self.muf[wf] * self.dcoef[wf]
-        own = self.owner[wf]
-        return sp.csr_matrix((np.concatenate([vals, dvals, dvals]),
-                              (np.concatenate([rows, own, nc + own]), np.concatenate([cols, own, nc + own]))),
-                             shape=(2 * nc, 2 * nc))
+        pos, geo, t_row, t_col, faces, dpos = self._wall_stencil
+        W = self._wall
+        CK.wall_flux_values(pos, geo, t_row, t_col, faces, dpos, self.wall_faces, self.muf, self.dcoef, W.data)
+        return W
 
     def _pressure_gradient(self, p: np.ndarray, gp: np.ndarray) -> np.ndarray:
         """The pressure gradient of the segregated loop (``grad_pressure`` with the boundary values
@@ -356,7 +421,12 @@ class SimultaneousSolver(SimpleSolver):
                 self.lin_iterations.append(its)
                 return x0 + dx
         self._lu = None  # the old factors are freed before the new ones are made
-        self._lu = spla.splu(A.tocsc(), permc_spec=LU_ORDERING, diag_pivot_thresh=LU_PIVOT_THRESHOLD)
+        # the factorisation sees the nonzeros only (the system's pattern also holds the places
+        # where a coefficient vanishes, e.g. the cross terms on Cartesian cells)
+        Ac = A.tocsc()
+        Ac.eliminate_zeros()
+        self._lu = spla.splu(Ac, permc_spec=LU_ORDERING, diag_pivot_thresh=LU_PIVOT_THRESHOLD)
+        del Ac
         self._lu_iterations = 0
         self.factorisations += 1
         self.lin_iterations.append(1)
@@ -392,15 +462,15 @@ class SimultaneousSolver(SimpleSolver):
         AMG V-cycles (``fvrans.linalg.block_preconditioner``), from the current state, to
         ``system_tolerance`` relative to the first residual."""
         nc = self.nc
-        Amom, App, *_, Wall = self._parts
-        if self.preconditioner != "simple":
-            # the preconditioner's momentum blocks leave out the implicit correction of the wall
-            # faces' viscous flux (``_wall_flux_matrix``): with it, the pressure convection-diffusion
-            # approximation lost its grid independence (cavity 32^2 / 64^2 / 128^2, FGMRES to 1e-6
-            # at one state: 39 / 55 / 103 iterations with it, 39 / 43 / 44 without)
-            Amom = Amom - Wall
-        Au = Amom[:nc, :nc].tocsr()
-        Av = Amom[nc:, nc:].tocsr()
+        # the preconditioner's momentum blocks leave out the implicit correction of the wall
+        # faces' viscous flux (``_wall_flux_matrix``): with it, the pressure convection-diffusion
+        # approximation lost its grid independence (cavity 32^2 / 64^2 / 128^2, FGMRES to 1e-6
+        # at one state: 39 / 55 / 103 iterations with it, 39 / 43 / 44 without)
+        Au, Av = self._parts[0], self._parts[1]
+        if self.preconditioner == "simple":
+            # the SIMPLE-type baseline takes the system's own blocks
+            Au, Av = A[:nc, :nc].tocsr(), A[nc:2 * nc, nc:2 * nc].tocsr()
+            App = A[2 * nc:, 2 * nc:].tocsr()
         prec = self._block_preconditioner()
         rebuild = False
         if self.preconditioner == "simple":
@@ -429,8 +499,10 @@ class SimultaneousSolver(SimpleSolver):
         tol = self.ctl.system_tolerance
         r0 = d * (rhs - A @ x0)
         stale = self.preconditioner != "simple" and not rebuild
+        # the block preconditioner is one linear operator during a solve (V-cycles from zero,
+        # products): FGMRES need not keep the preconditioned vectors (-0.48 KB per cell at RESTART 20)
         dx, its, rel = fgmres(lambda z: d * (A @ z), lambda v: prec(v / d), r0, tol, RESTART,
-                              STALE_KRYLOV if stale else MAX_KRYLOV)
+                              STALE_KRYLOV if stale else MAX_KRYLOV, flexible=False)
         self._missed = stale and not rel <= tol
         if self._missed:
             # the kept coarse levels no longer fit: set up anew and go on from where FGMRES stopped
@@ -438,7 +510,8 @@ class SimultaneousSolver(SimpleSolver):
             rebuild = True
             r1 = r0 - d * (A @ dx)
             more, its2, rel1 = fgmres(lambda z: d * (A @ z), lambda v: prec(v / d), r1,
-                                      tol * np.linalg.norm(r0) / np.linalg.norm(r1), RESTART, MAX_KRYLOV)
+                                      tol * np.linalg.norm(r0) / np.linalg.norm(r1), RESTART, MAX_KRYLOV,
+                                      flexible=False)
             dx += more
             its += its2
             rel = rel1 * np.linalg.norm(r1) / np.linalg.norm(r0)

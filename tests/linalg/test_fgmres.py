@@ -48,3 +48,20 @@ def test_changing_preconditioner():
     assert rel <= 1e-10
     assert np.linalg.norm(b - A @ dx) / np.linalg.norm(b) < 1e-9
     assert its < 30, its
+
+
+def test_keeping_no_preconditioned_vectors_gives_the_same_iterates():
+    """With one fixed linear preconditioner (a V-cycle), GMRES that keeps only the Krylov basis
+    (``flexible=False``: dx += M^-1 (V y) per cycle) takes the same iterations to the same answer
+    as the flexible form, through restarts (to round-off)."""
+    n = 400
+    A = _convection_diffusion(n, 3.0)
+    vc = VCycle()
+    vc.update(A)
+    b = np.random.default_rng(2).random(n)
+    out = [fgmres(lambda z: A @ z, vc, b, 1e-10, restart=3, max_iterations=200, flexible=f) for f in (True, False)]
+    (dx1, its1, rel1), (dx2, its2, rel2) = out
+    assert its1 > 3 and its1 == its2
+    assert rel1 <= 1e-10 and abs(rel2 - rel1) <= 1e-3 * rel1
+    np.testing.assert_allclose(dx2, dx1, rtol=0, atol=1e-11 * np.abs(dx1).max())
+    assert np.linalg.norm(b - A @ dx2) <= 1.01e-10 * np.linalg.norm(b)
