@@ -20,15 +20,17 @@ destruction -cw1 (nt/d)^2 (so the source is +cw1 (nt/d)^2), diffusivity nu + nt 
 f_n = (cn1 + chi^3)/(cn1 - chi^3); nu_t = 0. Constants and scalar functions: ``_sa_kernels``.
 
 Discretisation: first-order upwind convection (``"linear-upwind"`` by deferred correction
-selectable) with the mass-imbalance term removed from the diagonal; diffusion with face
-diffusivity rho (nu + nt f_n)_f / sigma (linear interpolation) and over-relaxed non-orthogonal
-correction; the cb2 term explicit; the cell source P - D linearised by Newton's rule with its
-derivative on the diagonal where negative (destruction implicit, production explicit where it
-dominates; see ``_sa_kernels.assemble_sources``); Patankar's implicit under-relaxation (``relax``,
-1 = none by default: the linearised system is diagonally dominant without it, and relaxation pins
-stacks of thin cells to their old values); the linear system solved by BiCGStab with the reused
-AMG V-cycle of ``fvrans.linalg.amg`` to ``linear_tolerance`` (default), or by symmetric
-Gauss-Seidel sweeps (``linear_solver = "gauss-seidel"``; at most ``linear_max_iterations`` either way).
+selectable) with the mass-imbalance term removed from the diagonal; diffusion with face diffusivity
+rho (nu + nt f_n)_f / sigma (linear interpolation) and over-relaxed non-orthogonal correction; the
+cb2 term explicit, with the upwind form of its Newton derivative implicit and subtracted again from
+the source (``_sa_kernels.cb2_linearisation``; same fixed point) when the loop takes no pseudo-time
+steps; the cell source P - D linearised by Newton's rule with its derivative on the diagonal where
+negative (destruction implicit, production explicit where it dominates; see
+``_sa_kernels.assemble_sources``); Patankar's implicit under-relaxation (``relax``, 1 = none by
+default: the linearised system is diagonally dominant without it, and relaxation pins stacks of thin
+cells to their old values); the linear system solved by BiCGStab with the reused AMG V-cycle of
+``fvrans.linalg.amg`` to ``linear_tolerance`` (default), or by symmetric Gauss-Seidel sweeps
+(``linear_solver = "gauss-seidel"``; at most ``linear_max_iterations`` either way).
 
 Boundary values: nt = 0 on walls; nt = nu_tilde_ratio nu on velocity inlets and on freestream faces
 where the mass flux enters; zero normal gradient elsewhere (outlets, symmetry, freestream outflow).
@@ -217,9 +219,19 @@ class SpalartAllmaras(TurbulenceModel):
             self.rotation_function(fields.velocity, gu)
         K.assemble_sources(nt, self.nu, self.rho, self.geom.cell_area, self.wall_distance, gu, g,
                            self.use_ft2, self.fr1, co.diag, co.source)
-        x, res = eq.solve(nt, co, pseudo_time=pseudo_time)
+        # the implicit part of the cb2 term only without pseudo-time steps: with both, the
+        # SIMPLEC bump at Re_h 1e6 (tests/solve/test_bump_robustness.py) fell into a period-2 cycle in
+        # two wall cells, while either alone converges (289 / 326 iterations)
+        lin = None if pseudo_time is not None else (lambda c: self._cb2_linearisation(nt, c))
+        x, res = eq.solve(nt, co, pseudo_time=pseudo_time, linearisation=lin)
         fields.variables["nu_tilde"] = x
         return [res]
+
+    def _cb2_linearisation(self, nt: np.ndarray, co) -> None:
+        """The implicit part of the cb2 term with its deferred correction (``_sa_kernels.cb2_linearisation``)."""
+        m, g = self.mesh, self.geom
+        K.cb2_linearisation(m.face_owner, m.face_neighbour, m.n_internal_faces, g.face_area_vector, g.face_delta, nt,
+                            2.0 * self.rho * K.CB2 / K.SIGMA, co.diag, co.off_owner, co.off_neighbour, co.source)
 
     # -- outputs --------------------------------------------------------------------------
     def nu_tilde_gradient(self, nu_tilde: np.ndarray) -> np.ndarray:

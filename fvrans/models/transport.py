@@ -20,6 +20,8 @@ linearised system at the current phi (``fvrans.fv.residual``), as for every equa
 
 from __future__ import annotations
 
+from collections.abc import Callable
+
 import numpy as np
 
 from fvrans.errors import CaseError, DivergenceError
@@ -139,17 +141,23 @@ class TransportEquation:
         return co
 
     def solve(self, phi: np.ndarray, co: Coefficients, reference: float = 0.0,
-              pseudo_time: np.ndarray | None = None) -> tuple[np.ndarray, float]:
+              pseudo_time: np.ndarray | None = None,
+              linearisation: Callable[[Coefficients], None] | None = None) -> tuple[np.ndarray, float]:
         """Normalised imbalance of the unrelaxed system at ``phi``, then relax and solve: (new phi,
         imbalance). ``reference``: the smallest value size the row scaling assumes (``scale_rows``).
         ``pseudo_time``: rho V / dt per cell, added to the diagonal with the source rho V / dt phi
-        (local pseudo-time steps; a relaxation that does not grow with the diagonal)."""
+        (local pseudo-time steps; a relaxation that does not grow with the diagonal).
+        ``linearisation(co)``: adds an implicit operator B to the set with B phi in the source
+        (the implicit part of a term the model keeps explicit); like the pseudo-time term it
+        changes the path of the iterations, not their fixed point, and stays out of the imbalance."""
         A = self.asm.matrix(co.diag, co.off_owner, co.off_neighbour)
         res = normalised_imbalance(A, co.source, phi)
         under_relax(co, phi, self.relax)
         if pseudo_time is not None:
             co.diag += pseudo_time
             co.source += pseudo_time * phi
+        if linearisation is not None:
+            linearisation(co)
         bad = np.flatnonzero(~(co.diag > 0.0))
         if len(bad):  # only a flow field that is already running away can do this
             c = int(bad[0])
