@@ -43,8 +43,8 @@ triad 1.08 ms; seconds cold / warm, outer iterations cold / warm):
 
 The simultaneous path runs these laminar sweeps 1.2-2.2x faster, so the bundled laminar cases that sweeps
 and design loops start from name it (``channel_poiseuille``, ``bump_laminar``, ``flat_plate_laminar``,
-``cavity_re100``; README, ``[solver]``: "Which coupling the bundled cases take"); the others keep SIMPLEC,
-which is faster there (the laminar step, the cylinder channel and the turbulent cases).
+``cavity_re100``; README, ``[solver]``: "Which coupling the bundled cases take"); the others keep SIMPLEC
+(faster on the laminar step and the cylinder channel; the turbulent cases: see the README).
 """
 
 from __future__ import annotations
