@@ -32,7 +32,8 @@ divergence guard, residuals, fields) this class inherits. The converged answer i
 loop's: every equation is the same at convergence (residuals of ``fvrans.fv.residual``).
 
 Linear solvers (``SolverControls.system_solver``; the default 'by-size' takes 'direct' below
-``DIRECT_BELOW_CELLS`` cells, where its factorisation is cheap, and 'iterative' above): 'iterative' (flexible GMRES
+``DIRECT_BELOW_CELLS`` cells (``DIRECT_BELOW_CELLS_LAMINAR`` without a turbulence model's equations),
+where its factorisation is cheap, and 'iterative' above): 'iterative' (flexible GMRES
 right-preconditioned by the upper block-triangular least-squares commutator preconditioner of
 ``fvrans.linalg.block_preconditioner``, AMG V-cycles for the momentum blocks and the weighted
 pressure Laplacian, memory in proportion to the cells; should a solve miss its tolerance, the sparse
@@ -65,12 +66,18 @@ from fvrans.solve.simple import SimpleSolver
 log = logging.getLogger(__name__)
 SYSTEM_SOLVERS = ("by-size", "direct", "iterative")
 #: with system_solver = "by-size", systems of fewer cells take the sparse LU, larger ones the iterative
-#: solve. Single runs to the default stop, seconds direct / iterative (2026-12-03, shared machine, numpy
-#: triad 1.08 ms): channel 4 000 cells 1.0 / 2.6, laminar bump 3 712 1.3 / 5.4, laminar plate 3 264
+#: solve; flows without a turbulence model's equations up to DIRECT_BELOW_CELLS_LAMINAR, since their
+#: factors are reused for many outer iterations (2 factorisations in a cavity run), while an eddy
+#: viscosity that moves each iteration makes the LU refactorise often (9 times in the fine plate's 34
+#: iterations). Single runs to the default stop, seconds direct / iterative (2026-12-03, shared machine,
+#: numpy triad 1.08 ms): channel 4 000 cells 1.0 / 2.6, laminar bump 3 712 1.3 / 5.4, laminar plate 3 264
 #: 0.6 / 2.0, laminar step 7 872 23.1 / 22.8, turbulent plate 13 056 16.6 / 13.2, cavity 16 384 2.2 / 3.6,
-#: cylinder in a channel 27 648 16.2 / 60.4, cavity 65 536 23.3 / 30.0. The LU's factors take about
-#: 7 KB per cell (150-205 entries per row), so it stops well below the sizes where memory counts
+#: cylinder in a channel 27 648 16.2 / 60.4; after the LU refresh rule and the least-squares commutator:
+#: cavity 65 536 12.3 / 20.7, turbulent plate 52 224 43.6 / 30.0, turbulent step 6 912 / 27 648 9.1 /
+#: 14.7 and 52.5 / 96.8 (the iterative figures of the step from another run, load 3). The LU's factors
+#: take 7-9 KB per cell (150-245 entries per row)
 DIRECT_BELOW_CELLS = 30000
+DIRECT_BELOW_CELLS_LAMINAR = 70000
 #: FGMRES restart length and iteration limit of the iterative solve (the Krylov basis holds
 #: RESTART + 1 vectors of 3 values per cell: the preconditioned ones are not kept)
 RESTART = 20
@@ -161,7 +168,8 @@ class SimultaneousSolver(SimpleSolver):
         #: the linear solver this run uses ('direct' or 'iterative'; "by-size" chooses by the cell count)
         self.system_solver = self.ctl.system_solver
         if self.system_solver == "by-size":
-            self.system_solver = "direct" if self.nc < DIRECT_BELOW_CELLS else "iterative"
+            limit = DIRECT_BELOW_CELLS if self.model.names else DIRECT_BELOW_CELLS_LAMINAR
+            self.system_solver = "direct" if self.nc < limit else "iterative"
         nc, ni, g = self.nc, self.ni, self.geom
         # the segregated loop's own solvers and work arrays (pressure correction, predicted velocity,
         # interpolation coefficients): not used on this path (~0.13 KB per cell)
