@@ -585,7 +585,7 @@ class SimultaneousSolver(SimpleSolver):
                 self.fell_back = True
                 x = self._solve_direct(A, rhs)
         self.lin_seconds += time.perf_counter() - t0
-        Amom, App, E, r_u, r_v, rbar, gu, hu, _ = self._parts
+        _, _, E, r_u, r_v, rbar, gu, hu, _ = self._parts  # (Au, Av, ..., Wall): the blocks are not needed here
         V = self.vol
         un, vn, pn = x[:nc], x[nc:2 * nc], x[2 * nc:]
         if self.singular:
