@@ -242,29 +242,27 @@ def _face_sum_row(c, cind, cidx, cf_ptr, cf_face, owner, neigh, n_int, S, w, on_
     a, b = cind[c], cind[c + 1]
     for i in range(cf_ptr[c], cf_ptr[c + 1]):
         code = cf_face[i]
+        # an internal face seen from c: its other cell, the interpolation weights of c and of that
+        # cell, and the sign of S_f out of c
         if code >= 0:
             f = code
-            if f < n_int:
-                jd = _position(cidx, a, b, c) - a
-                jn = _position(cidx, a, b, neigh[f]) - a
-                for d in range(2):
-                    s = scale * S[f, d]
-                    o = ox if d == 0 else oy
-                    out[o + jd] += w[f] * s
-                    out[o + jn] += (1.0 - w[f]) * s
-            elif on_boundary[f - n_int]:
-                jd = _position(cidx, a, b, c) - a
-                out[ox + jd] += scale * S[f, 0]
-                out[oy + jd] += scale * S[f, 1]
+            if f >= n_int:
+                if on_boundary[f - n_int]:
+                    jd = _position(cidx, a, b, c) - a
+                    out[ox + jd] += scale * S[f, 0]
+                    out[oy + jd] += scale * S[f, 1]
+                continue
+            other, w_self, w_other, sign = neigh[f], w[f], 1.0 - w[f], 1.0
         else:
             f = -1 - code
-            jd = _position(cidx, a, b, c) - a
-            jp = _position(cidx, a, b, owner[f]) - a
-            for d in range(2):
-                s = scale * S[f, d]
-                o = ox if d == 0 else oy
-                out[o + jp] += -w[f] * s
-                out[o + jd] += -(1.0 - w[f]) * s
+            other, w_self, w_other, sign = owner[f], 1.0 - w[f], w[f], -1.0
+        jd = _position(cidx, a, b, c) - a
+        jo = _position(cidx, a, b, other) - a
+        for d in range(2):
+            s = scale * S[f, d]
+            o = ox if d == 0 else oy
+            out[o + jd] += sign * w_self * s
+            out[o + jo] += sign * w_other * s
 
 
 @njit(cache=True)
@@ -351,44 +349,32 @@ def _continuity_row(c, nc, cind, cidx, cf_ptr, cf_face, owner, neigh, n_int, S, 
         ky = 0.0
         for i in range(cf_ptr[c], cf_ptr[c + 1]):
             code = cf_face[i]
+            # an internal face seen from c, as in ``_face_sum_row``
             if code >= 0:
                 f = code
-                if f < n_int:
-                    N = neigh[f]
-                    wf = w[f]
-                    rf = rho * (wf * rbar[c] + (1.0 - wf) * rbar[N])
-                    af = rf * dcoef[f]
-                    k0 = rf * kvec[f, 0]
-                    k1 = rf * kvec[f, 1]
-                    if k == c:
-                        lc += af
-                        kx += wf * k0
-                        ky += wf * k1
-                    if k == N:
-                        lc += -af
-                        kx += (1.0 - wf) * k0
-                        ky += (1.0 - wf) * k1
-                elif fixed[f - n_int] and k == c:
-                    rf = rho * rbar[c]
-                    lc += rf * dcoef[f]
-                    kx += rf * kvec[f, 0]
-                    ky += rf * kvec[f, 1]
+                if f >= n_int:
+                    if fixed[f - n_int] and k == c:
+                        rf = rho * rbar[c]
+                        lc += rf * dcoef[f]
+                        kx += rf * kvec[f, 0]
+                        ky += rf * kvec[f, 1]
+                    continue
+                other, w_self, w_other, sign = neigh[f], w[f], 1.0 - w[f], 1.0
             else:
                 f = -1 - code
-                P = owner[f]
-                wf = w[f]
-                rf = rho * (wf * rbar[P] + (1.0 - wf) * rbar[c])
-                af = rf * dcoef[f]
-                k0 = rf * kvec[f, 0]
-                k1 = rf * kvec[f, 1]
-                if k == c:
-                    lc += af
-                    kx += -(1.0 - wf) * k0
-                    ky += -(1.0 - wf) * k1
-                if k == P:
-                    lc += -af
-                    kx += -wf * k0
-                    ky += -wf * k1
+                other, w_self, w_other, sign = owner[f], 1.0 - w[f], w[f], -1.0
+            rf = rho * (w_self * rbar[c] + w_other * rbar[other])
+            af = rf * dcoef[f]
+            k0 = rf * kvec[f, 0]
+            k1 = rf * kvec[f, 1]
+            if k == c:
+                lc += af
+                kx += sign * w_self * k0
+                ky += sign * w_self * k1
+            if k == other:
+                lc += -af
+                kx += sign * w_other * k0
+                ky += sign * w_other * k1
         # W = D diag(r) - [Kx Ky]: continuity's response to the cell pressure gradients
         wx = data[lo + j] * r_u[k] - kx
         wy = data[lo + L + j] * r_v[k] - ky
