@@ -104,7 +104,6 @@ from __future__ import annotations
 import argparse
 import json
 import os
-import resource
 import subprocess
 import sys
 import time
@@ -172,29 +171,20 @@ def _count_fgmres() -> list[int]:
 def _child_memory(kind: str, cells: int, iterations: int, coupling: str) -> dict:
     """In a fresh process: peak memory of ``iterations`` outer iterations of ``coupling`` on the
     ~``cells``-cell mesh of ``bench_parallel._memory_mesh``."""
-    import tracemalloc
-
-    from bench_parallel import CASES, _memory_mesh
+    from bench_parallel import CASES, peak_memory_of_run
 
     import fvrans.solve.coupled as C
 
     case = fa.load_case(ROOT / "cases" / CASES[kind]).replace(
         {"solver.coupling": coupling, "solver.system_solver": "iterative", "output.write_fields": False})
-    fa.solve(fa.prepare(case.set("solver.max_iterations", 3), _memory_mesh(kind, 4000)))  # the baseline
-    base_rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
-    krylov = _count_fgmres()
-    C.FALLBACK_FACTOR = float("inf")  # the iterative solve's memory: no hand-over to the sparse LU
-    tracemalloc.start()
-    t0 = time.perf_counter()
-    mesh = _memory_mesh(kind, cells)
-    run = case.replace({"solver.max_iterations": iterations, "solver.tolerance": 1e-14, "monitor.settle": False})
-    r = fa.solve(fa.prepare(run, mesh))
-    seconds = time.perf_counter() - t0
-    _, traced_peak = tracemalloc.get_traced_memory()
-    tracemalloc.stop()
-    peak_rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
-    return {"cells": mesh.n_cells, "iterations": r.iterations, "seconds": seconds, "base_rss": base_rss,
-            "peak_rss": peak_rss, "traced_peak": traced_peak, "krylov": krylov}
+    counted: dict[str, list[int]] = {}
+
+    def count_and_keep_iterative() -> None:
+        counted["krylov"] = _count_fgmres()  # filled by the solves that follow
+        C.FALLBACK_FACTOR = float("inf")  # the iterative solve's memory: no hand-over to the sparse LU
+
+    out = peak_memory_of_run(case, kind, cells, iterations, count_and_keep_iterative)
+    return {**out, "krylov": counted["krylov"]}
 
 
 def memory_table(kinds: list[str], cells: int, iterations: int) -> None:

@@ -162,17 +162,19 @@ def _memory_mesh(kind: str, cells: int):
     return flat_plate(int(round(204 * k)), int(round(68 * k)), int(round(192 * k)), 1e-6)
 
 
-def _child_memory(kind: str, cells: int, iterations: int) -> dict:
-    """In a fresh process: peak memory of a run of about ``cells`` cells (``kind``: cavity, plate)."""
+def peak_memory_of_run(case, kind: str, cells: int, iterations: int, after_baseline=None) -> dict:
+    """In this (fresh) process: the baseline (imports and kernels loaded by a 3-iteration run of ``case``
+    on 4 000 cells), then ``after_baseline()`` if given, then the peak memory of ``iterations`` outer
+    iterations of ``case`` on the ~``cells``-cell mesh of ``_memory_mesh(kind, ...)``."""
     import tracemalloc
 
     import fvrans.api as fa
 
-    # the segregated loop's memory (bench_coupled.py --memory measures both couplings)
-    case = fa.load_case(ROOT / "cases" / (CASES[kind])).set("solver.coupling", "simplec")
     small = case.replace({"solver.max_iterations": 3, "output.write_fields": False})
     fa.solve(fa.prepare(small, _memory_mesh(kind, 4000)))  # imports and kernels loaded: the baseline
     base_rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+    if after_baseline is not None:
+        after_baseline()
     tracemalloc.start()
     t0 = time.perf_counter()
     mesh = _memory_mesh(kind, cells)
@@ -184,6 +186,15 @@ def _child_memory(kind: str, cells: int, iterations: int) -> dict:
     peak_rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
     return {"cells": mesh.n_cells, "iterations": r.iterations, "seconds": seconds, "base_rss": base_rss,
             "peak_rss": peak_rss, "traced_peak": traced_peak}
+
+
+def _child_memory(kind: str, cells: int, iterations: int) -> dict:
+    """In a fresh process: peak memory of a run of about ``cells`` cells (``kind``: cavity, plate)."""
+    import fvrans.api as fa
+
+    # the segregated loop's memory (bench_coupled.py --memory measures both couplings)
+    case = fa.load_case(ROOT / "cases" / (CASES[kind])).set("solver.coupling", "simplec")
+    return peak_memory_of_run(case, kind, cells, iterations)
 
 
 def memory_table(kind: str, cells: int, iterations: int) -> None:
