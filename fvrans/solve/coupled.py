@@ -419,7 +419,6 @@ class SimultaneousSolver(SimpleSolver):
         changes little from one outer iteration to the next; a triangular solve costs about 1/30 of a
         factorisation at 13k cells); refactorised when it does not, or when the solves it has
         preconditioned have cost about one factorisation (``REFACTOR_AFTER``)."""
-        nc = self.nc
         if self.singular:
             self._pin_level(A, rhs)
         worn = self._lu_iterations >= REFACTOR_AFTER and self.lin_iterations[-1] > KEEP_ITERATIONS
@@ -447,7 +446,6 @@ class SimultaneousSolver(SimpleSolver):
         self._lu_iterations = 0
         self.factorisations += 1
         self.lin_iterations.append(1)
-        del nc
         return self._lu.solve(rhs)
 
     def _block_preconditioner(self):
