@@ -112,17 +112,29 @@ def _scaled_copy(w, a, out, par):
             out[j] = w[j] * a
 
 
+#: a second classical Gram-Schmidt pass is made when the first left less than this part of ||w||
+#: (Daniel, Gragg, Kaufman & Stewart 1976, Math. Comp. 30, 772-795, from memory: 1/sqrt(2))
+REORTHOGONALISE_BELOW = 0.7071067811865476
+
+
 @njit(cache=True)
 def orthogonalise(V, k, w, h, par):
-    """Classical Gram-Schmidt, twice: w <- w - sum_{i<=k} (V_i . w) V_i, the coefficients added to
-    h[0..k]; then h[k+1] = ||w|| and, when nonzero, V_{k+1} = w / ||w||."""
+    """Classical Gram-Schmidt: w <- w - sum_{i<=k} (V_i . w) V_i, the coefficients added to h[0..k],
+    repeated once when the pass took ||w|| below ``REORTHOGONALISE_BELOW`` of its value before it
+    (cancellation; otherwise the second pass changes w by round-off only and costs as much as the
+    first); then h[k+1] = ||w|| and, when nonzero, V_{k+1} = w / ||w||."""
     c = np.empty(k + 1)
+    before = norm2(w, par)
+    nrm = before
     for _ in range(2):
         _basis_dots(V, k, w, c, par)
         for i in range(k + 1):
             h[i] += c[i]
         _subtract_combination(V, k, c, w, par)
-    nrm = norm2(w, par)
+        nrm = norm2(w, par)
+        if nrm >= REORTHOGONALISE_BELOW * before:
+            break
+        before = nrm
     h[k + 1] = nrm
     if nrm > 0.0:
         _scaled_copy(w, 1.0 / nrm, V[k + 1], par)
