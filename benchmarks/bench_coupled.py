@@ -67,10 +67,15 @@ here never hands over to the sparse LU, and SIMPLEC) on the generated ~400k-cell
 ``bench_parallel.py`` (``--cells``), after ``--memory-iterations`` simultaneous / 25 SIMPLEC outer
 iterations, in a fresh process: peak RSS above the interpreter's baseline (libraries and compiled
 kernels loaded) and numpy's traced peak.
---cost: seconds per outer iteration of each coupling on the cavity 128^2 and the medium plate
-(``--cost-iterations`` simultaneous, 100 SIMPLEC iterations from the uniform start), per cell, over a
-numpy triad timed in the same run, with the load average; for the simultaneous path also the seconds
-of its assembly (``_assemble``) per outer iteration.
+--cost [GRID...]: whole runs of the simultaneous path (iterative solve, forced; the case's own settings and
+stop, uniform start) on cavity 128^2 / 256^2, plate medium / fine, step coarse / medium, against SIMPLEC's
+seconds per iteration (``--simplec-iterations`` from the uniform start) on the same grid, thread count and
+machine, one right after the other: outer iterations, FGMRES iterations per outer iteration, seconds, per
+outer iteration, per cell, over a numpy triad, over SIMPLEC's; CPU use of each run = (user + system CPU
+seconds of the process, every thread) / wall seconds (2.0: both cores busy throughout); for each thread
+count of ``--threads`` after the first, the speed-up of the simultaneous run and max |u - u(first)| / max |u|;
+the 1-minute load average before / after the run. ``--forcing-max 0``: every FGMRES solve to
+system_tolerance (no forcing rule: the figures before it).
 
 Measured 2026-12-03 04:10-04:50 (2 shared cores, load 2.6-4.2), before = main 8ed3fc7 (scipy bmat/COO/products
 each outer iteration, FGMRES keeping the preconditioned vectors), after = the system refilled in place on a pattern
@@ -93,6 +98,28 @@ made once, the segregated-only state dropped, FGMRES keeping only the Krylov bas
   solve (three V-cycles per FGMRES iteration), so its cost stays 8-13x SIMPLEC's. One solve at a fixed state
   (cavity 128^2, 22 FGMRES iterations, best of 6): 0.30 s keeping the preconditioned vectors, 0.29 s keeping the
   basis only (two more preconditioner applications).
+  (--cost then ran 12 outer iterations of the cavity 128^2 and the medium plate, with an assembly column.)
+Measured 2026-12-03 07:15-07:31 (--cost, 1 thread; 2 shared cores, other processes holding 1.7-5 of them: the CPU
+use column shows the share this run got): before = every FGMRES solve to 0.01 (--forcing-max 0, load 1.7-2.9),
+after = the forcing rule (FORCING_MAX 0.02, load 2.7-5; before the one-pass Gram-Schmidt, which leaves the counts
+as they are and saved ~4 % more on the cavity 256^2); x SIMPLEC = s per outer iteration over SIMPLEC's s per
+iteration in the same process a minute later:
+    | grid (cells) | outer | FGMRES per outer | s per outer | x SIMPLEC | CPU use |  (each: before / after)
+    |---|---|---|---|---|---|
+    | cavity 128^2 (16384) | 14 / 14 | 15.4 / 14.5 | 0.306 / 0.647 | 16.6 / 14.4 | 1.23 / 0.49 |
+    | cavity 256^2 (65536) | 14 / 14 | 21.6 / 19.6 | 1.840 / 3.296 | 22.0 / 21.4 | 0.99 / 0.50 |
+    | plate medium (13056) | 34 / 34 | 7.9 / 6.3 | 0.192 / 0.263 | 6.7 / 5.6 | 1.02 / 0.67 |
+    | plate fine (52224) | 36 / 38 | 19.7 / 16.4 | 1.326 / 1.326 | 10.6 / 10.1 | 1.02 / 0.90 |
+    | step coarse (6912) | 84 / 86 | 20.0 / 16.3 | 0.193 / 0.190 | 8.4 / 7.5 | 1.11 / 0.99 |
+    | step medium (27648) | 90 / 98 | 25.8 / 18.8 | 0.871 / 0.671 | 8.5 / 6.7 | 1.07 / 1.07 |
+  Seconds across the two columns are not comparable (load); the FGMRES counts and the ratio to SIMPLEC in the same
+  process are. Total FGMRES iterations -6 % (cavity 128^2) to -21 % (step medium); outer iterations +0 to +9 %
+  (step medium 98; earlier runs at 0.01 took 90-95). Answers: step medium x_r 6.17163477 (6.17163484 at 0.01),
+  plate Cf(0.97) unchanged to 10 digits. A V-cycle is 2.0 ms at 16k rows (V(0,0), residual and transfers only:
+  1.0 ms); each FGMRES iteration takes 4 (2 Laplacian, u, v), SIMPLEC's whole iteration about 4-6: at 15-20 FGMRES
+  iterations per outer iteration the V-cycles alone are 10-15 SIMPLEC iterations' worth (cavity 256^2 profile: V-cycles
+  64 %, scipy products 11 %, Gram-Schmidt 9 %). Momentum V-cycles with one sweep instead of two: V(0,1) cavity
+  128^2 203 -> 212 FGMRES in all, but plate medium 215 -> 816 and step coarse 1405 -> 1825; V(1,0) plate 343: rejected.
 
 Run:  python benchmarks/bench_coupled.py [--families cavity plate step] [--fine-step] [--only simultaneous]
       python benchmarks/bench_coupled.py --memory cavity plate [--cells 400000] [--memory-iterations 8]
