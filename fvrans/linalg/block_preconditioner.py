@@ -73,12 +73,31 @@ import numpy as np
 import scipy.sparse as sp
 
 from fvrans.jit import threads
+from fvrans.linalg import _block_kernels as _k
 from fvrans.linalg.amg import _second_thread
 from fvrans.linalg.fgmres import VCycle
 
 MOMENTUM_COARSENING = "RS"
 LAPLACIAN_COARSENING = "CLJP"
-LSC_MOMENTUM_COARSENING = "CLJP"
+#: coarsening of the least-squares commutator's three hierarchies (momentum u, v and Lq): Ruge-Stuben
+#: with its second pass. FGMRES(20) to 0.01, one V-cycle per block, at saved states (cavity 128^2 after
+#: 5 outer iterations; plate medium after 10; step coarse after 10; step medium after 2 / 10 / 30):
+#: CLJP everywhere 16, 9, 20, 18 / 32 / 18 iterations, hierarchies 420-475 bytes per cell each
+#: (operator complexity ~3.9, coarse rows 2.1x the fine ones); Ruge-Stuben with the second pass
+#: 15, 9, 24, 17 / 31 / 17 at 300-385 bytes (complexity ~2.2); one-pass Ruge-Stuben momentum
+#: hierarchies 24 iterations at step medium it. 2 (PMIS, smoothed aggregation: >300 on the step)
+LSC_MOMENTUM_COARSENING = "RS-second-pass"
+LSC_LAPLACIAN_COARSENING = "RS-second-pass"
+#: the number type of their stored values (level matrices, transfers); single precision: the same
+#: FGMRES counts at those states, 230-295 bytes per hierarchy and cell instead of 300-385
+HIERARCHY_DTYPE = np.float32
+
+
+def _vcycle(singular: bool, coarsening: str) -> VCycle:
+    """A V-cycle of the least-squares commutator: hierarchy values stored as ``HIERARCHY_DTYPE``."""
+    v = VCycle(1 << 30, singular=singular, coarsening=coarsening)
+    v.amg.dtype = HIERARCHY_DTYPE
+    return v
 
 
 def neumann_convection_diffusion(A: sp.csr_matrix, keep: np.ndarray, extra_diagonal: np.ndarray) -> sp.csr_matrix:
@@ -169,18 +188,18 @@ class LeastSquaresCommutator:
         if stretched is not None:
             self.shift[stretched] = self.RELAXATION
         self.G = sp.csr_matrix(G)
-        self.Gx, self.Gy = sp.csr_matrix(G[:n]), sp.csr_matrix(G[n:])
-        self.Du, self.Dv = sp.csr_matrix(D[:, :n]), sp.csr_matrix(D[:, n:])
-        self.lap = VCycle(1 << 30, singular=singular, coarsening=LAPLACIAN_COARSENING)
-        # Ruge-Stuben coarsening of the momentum blocks: step medium after 2 outer iterations, 128
-        # FGMRES iterations (exact momentum solves: 36); CLJP 38 (cavity, plate: the same as RS)
-        self.mu = VCycle(1 << 30, coarsening=LSC_MOMENTUM_COARSENING)
-        self.mv = VCycle(1 << 30, coarsening=LSC_MOMENTUM_COARSENING)
+        self.Gx, self.Gy = _row_halves(self.G)
+        self.Du, self.Dv = _column_halves(D)
+        self.lap = _vcycle(singular, LSC_LAPLACIAN_COARSENING)
+        self.mu = _vcycle(False, LSC_MOMENTUM_COARSENING)
+        self.mv = _vcycle(False, LSC_MOMENTUM_COARSENING)
 
     def relaxed(self, A: sp.csr_matrix) -> sp.csr_matrix:
         """A + s diag(A), s = ``RELAXATION`` in stretched cells, else 0: the momentum block the
-        preconditioner stands for."""
-        return (A + sp.diags(self.shift * A.diagonal())).tocsr()
+        preconditioner stands for. In place: A's values change (no copy is held; the solver's
+        assemblers refill them every outer iteration); returns A."""
+        _k.add_to_diagonal(A.indptr, A.indices, A.data, self.shift * A.diagonal())
+        return A
 
     def update(self, Au: sp.csr_matrix, Av: sp.csr_matrix, lq: sp.csr_matrix, rebuild: bool = False) -> None:
         """The (relaxed) momentum blocks and Lq of this outer iteration; ``rebuild``: set up the hierarchies
@@ -209,6 +228,37 @@ class LeastSquaresCommutator:
         zp = self.schur_inverse(r[2 * n:], par)
         w = r[:2 * n] - self.G @ zp
         return np.concatenate([*_momentum_pair(self.mu, self.mv, w, n, par), zp])
+
+
+def _row_halves(G: sp.csr_matrix) -> tuple[sp.csr_matrix, sp.csr_matrix]:
+    """The upper and lower halves of the rows of ``G`` (2n x m), on G's own arrays (no copy of the
+    values or column indices)."""
+    n = G.shape[0] // 2
+    ptr = G.indptr
+    lo, mid, hi = ptr[0], ptr[n], ptr[2 * n]
+    return (_csr_on(G.data[lo:mid], G.indices[lo:mid], ptr[: n + 1] - lo, (n, G.shape[1])),
+            _csr_on(G.data[mid:hi], G.indices[mid:hi], ptr[n:] - mid, (n, G.shape[1])))
+
+
+def _csr_on(data: np.ndarray, indices: np.ndarray, indptr: np.ndarray, shape: tuple[int, int]) -> sp.csr_matrix:
+    """A CSR matrix on the given arrays, views included (scipy's constructor copies a view of less
+    than half its base)."""
+    m = sp.csr_matrix(shape, dtype=data.dtype)
+    m.data, m.indices, m.indptr = data, indices, indptr
+    m.has_sorted_indices = True
+    return m
+
+
+def _column_halves(D: sp.csr_matrix) -> tuple[sp.csr_matrix, sp.csr_matrix]:
+    """The left and right column halves of ``D`` (m x 2n); the right one on the left one's column
+    indices and row pointers when the two have the same structure."""
+    n = D.shape[1] // 2
+    left, right = sp.csr_matrix(D[:, :n]), sp.csr_matrix(D[:, n:])
+    left.sort_indices()
+    right.sort_indices()
+    if np.array_equal(left.indptr, right.indptr) and np.array_equal(left.indices, right.indices):
+        right = _csr_on(right.data, left.indices, left.indptr, right.shape)
+    return left, right
 
 
 def _momentum_pair(mu: VCycle, mv: VCycle, w: np.ndarray, n: int, par: bool) -> tuple[np.ndarray, np.ndarray]:
