@@ -90,6 +90,9 @@ REBUILD_GROWTH = 1.5
 STALE_KRYLOV = 60
 #: the sparse LU takes over once an iterative solve ends above FALLBACK_FACTOR x system_tolerance
 FALLBACK_FACTOR = 1.0
+#: the number type of the Krylov basis (its sums in double precision): single precision halves the
+#: basis (0.25 KB per cell at RESTART 20); the solve's tolerance is 0.01, far above its round-off
+KRYLOV_BASIS = np.float32
 #: FGMRES iterations allowed per solve (after a fresh hierarchy set-up)
 MAX_KRYLOV = 200
 #: cells whose longest face is more than this many times their shortest are "stretched" for the
@@ -543,7 +546,7 @@ class SimultaneousSolver(SimpleSolver):
         # the block preconditioner is one linear operator during a solve (V-cycles from zero,
         # products): FGMRES need not keep the preconditioned vectors (-0.48 KB per cell at RESTART 20)
         dx, its, rel = fgmres(lambda z: d * (A @ z), lambda v: prec(v / d), r0, tol, RESTART,
-                              STALE_KRYLOV if stale else MAX_KRYLOV, flexible=False)
+                              STALE_KRYLOV if stale else MAX_KRYLOV, flexible=False, basis=KRYLOV_BASIS)
         self._missed = stale and not rel <= tol
         if self._missed:
             # the kept coarse levels no longer fit: set up anew and go on from where FGMRES stopped
@@ -552,7 +555,7 @@ class SimultaneousSolver(SimpleSolver):
             r1 = r0 - d * (A @ dx)
             more, its2, rel1 = fgmres(lambda z: d * (A @ z), lambda v: prec(v / d), r1,
                                       tol * np.linalg.norm(r0) / np.linalg.norm(r1), RESTART, MAX_KRYLOV,
-                                      flexible=False)
+                                      flexible=False, basis=KRYLOV_BASIS)
             dx += more
             its += its2
             rel = rel1 * np.linalg.norm(r1) / np.linalg.norm(r0)
