@@ -192,8 +192,9 @@ class AmgKrylovSolver:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
             cf = ("RS", {"second_pass": True}) if self.coarsening == "RS-second-pass" else self.coarsening
-            ml = pyamg.ruge_stuben_solver(sp.csr_matrix(A, copy=True), max_coarse=self.max_coarse, max_levels=25,
-                                          CF=cf)
+            # pyamg works in the stored number type (a single-precision set-up holds half the values)
+            ml = pyamg.ruge_stuben_solver(sp.csr_matrix(A, dtype=self.dtype, copy=True), max_coarse=self.max_coarse,
+                                          max_levels=25, CF=cf)
         levels = ml.levels
         del ml
         n = np.asarray([lv.A.shape[0] for lv in levels], dtype=np.int64)

@@ -73,6 +73,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from fvrans.jit import threads
+from fvrans.linalg import _amg_kernels as _amg
 from fvrans.linalg import _block_kernels as _k
 from fvrans.linalg.amg import _second_thread
 from fvrans.linalg.fgmres import VCycle
@@ -91,6 +92,11 @@ LSC_LAPLACIAN_COARSENING = "RS-second-pass"
 #: the number type of their stored values (level matrices, transfers); single precision: the same
 #: FGMRES counts at those states, 230-295 bytes per hierarchy and cell instead of 300-385
 HIERARCHY_DTYPE = np.float32
+#: one momentum hierarchy for both velocity components, set up from the mean of A_u and A_v, whose
+#: finest level takes the values of the component it cycles on (FGMRES counts at the states above:
+#: the same as with a hierarchy each; from A_u alone the plate medium state needed 17 instead of 9:
+#: its symmetry plane holds v, not u); the two V-cycles then run one after the other
+SHARED_MOMENTUM = True
 
 
 def _vcycle(singular: bool, coarsening: str) -> VCycle:
@@ -192,7 +198,9 @@ class LeastSquaresCommutator:
         self.Du, self.Dv = _column_halves(D)
         self.lap = _vcycle(singular, LSC_LAPLACIAN_COARSENING)
         self.mu = _vcycle(False, LSC_MOMENTUM_COARSENING)
-        self.mv = _vcycle(False, LSC_MOMENTUM_COARSENING)
+        #: v's own hierarchy, or None: v's V-cycle on u's coarse levels (``SHARED_MOMENTUM``)
+        self.mv = None if SHARED_MOMENTUM else _vcycle(False, LSC_MOMENTUM_COARSENING)
+        self._fine = "u"  # whose values the shared hierarchy's finest level holds
 
     def relaxed(self, A: sp.csr_matrix) -> sp.csr_matrix:
         """A + s diag(A), s = ``RELAXATION`` in stretched cells, else 0: the momentum block the
@@ -205,8 +213,17 @@ class LeastSquaresCommutator:
         """The (relaxed) momentum blocks and Lq of this outer iteration; ``rebuild``: set up the hierarchies
         anew (else only their finest levels follow the new values)."""
         fresh = rebuild or self.mu.amg._h is None
-        self.mu.update(Au, rebuild=fresh)
-        self.mv.update(Av, rebuild=fresh)
+        if self.mv is not None:
+            self.mu.update(Au, rebuild=fresh)
+            self.mv.update(Av, rebuild=fresh)
+        else:
+            # coarse levels of the mean of the two blocks (they differ where a boundary holds one
+            # component and not the other, e.g. a symmetry plane), finest level A_u's values
+            if fresh:
+                self.mu.update(_csr_on(0.5 * (Au.data + Av.data), Au.indices, Au.indptr, Au.shape), rebuild=True)
+            h = self.mu.amg._h
+            _amg.refresh_fine(Au.data, h[6], h[3], h[5], h[1][0], h[7])
+        self._fine = "u"
         self.lap.update(lq, rebuild=fresh)
         self.Au, self.Av, self.lq = Au, Av, lq
         self.hu = self.weight / Au.diagonal()
@@ -227,7 +244,21 @@ class LeastSquaresCommutator:
         par = threads() > 1
         zp = self.schur_inverse(r[2 * n:], par)
         w = r[:2 * n] - self.G @ zp
-        return np.concatenate([*_momentum_pair(self.mu, self.mv, w, n, par), zp])
+        if self.mv is not None:
+            return np.concatenate([*_momentum_pair(self.mu, self.mv, w, n, par), zp])
+        # one hierarchy: the component whose values its finest level holds first, then the other's
+        # values in and its V-cycle (one exchange per application)
+        z = np.empty(3 * n)
+        z[2 * n:] = zp
+        h = self.mu.amg._h
+        order = (0, 1) if self._fine == "u" else (1, 0)
+        for k, c in enumerate(order):
+            if k == 1:
+                other = self.Av if c == 1 else self.Au
+                _amg.refresh_fine(other.data, h[6], h[3], h[5], h[1][0], h[7])
+                self._fine = "v" if c == 1 else "u"
+            z[c * n:(c + 1) * n] = self.mu(w[c * n:(c + 1) * n], par)
+        return z
 
 
 def _row_halves(G: sp.csr_matrix) -> tuple[sp.csr_matrix, sp.csr_matrix]:
