@@ -52,13 +52,13 @@ import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 
 from fvrans.errors import CaseError
+from fvrans.linalg import _block_kernels as BK
 from fvrans.linalg.block_preconditioner import (
     LeastSquaresCommutator,
     PressureConvectionDiffusion,
     SimpleSchur,
     neumann_convection_diffusion,
 )
-from fvrans.linalg import _block_kernels as BK
 from fvrans.linalg.fgmres import fgmres
 from fvrans.solve import _coupled_kernels as CK
 from fvrans.solve import _kernels as K

@@ -106,9 +106,9 @@ def test_commutator_blocks_kept_without_copies_equal_the_assembled_ones(triangle
     n = solver.nc
     assert prec.Au is solver._parts[0]  # relaxed in place: the assembler's own matrix
     q = 0.5 * (prec.Au.diagonal() + prec.Av.diagonal())
-    rows, cols, vals = CK.pressure_difference_triplets(solver.owner, solver.neigh, solver.ni, solver.dcoef,
-                                                       solver.kvec, solver.geom.face_weight, prec.weight * solver.vol / q,
-                                                       solver.fixed, float(solver.rho))
+    rows, cols, vals = CK.pressure_difference_triplets(
+        solver.owner, solver.neigh, solver.ni, solver.dcoef, solver.kvec, solver.geom.face_weight,
+        prec.weight * solver.vol / q, solver.fixed, float(solver.rho))
     plain = sp.csr_matrix((vals[:, 0], (rows, cols)), shape=(n, n))
     scale = abs(plain).max()
     assert abs(solver._lq - plain).max() <= 1e-14 * scale
