@@ -182,7 +182,7 @@ class LeastSquaresCommutator:
     #: uniform quads and right triangles are below) -> 20, 18 / 32 / 18, 11 / 16, 9
     RELAXATION = 0.005
 
-    def __init__(self, G: sp.csr_matrix, D: sp.csr_matrix, singular: bool, wall_cells: np.ndarray | None = None,
+    def __init__(self, G: sp.csr_matrix, D: sp.csr_matrix | None, singular: bool, wall_cells: np.ndarray | None = None,
                  stretched: np.ndarray | None = None):
         n = G.shape[1]
         self.n = n
@@ -195,7 +195,9 @@ class LeastSquaresCommutator:
             self.shift[stretched] = self.RELAXATION
         self.G = sp.csr_matrix(G)
         self.Gx, self.Gy = _row_halves(self.G)
-        self.Du, self.Dv = _column_halves(D)
+        #: D's halves, or None: the products taken from the continuity rows of the system (``update``)
+        self.Du, self.Dv = _column_halves(D) if D is not None else (None, None)
+        self.continuity: sp.csr_matrix | None = None
         self.lap = _vcycle(singular, LSC_LAPLACIAN_COARSENING)
         self.mu = _vcycle(False, LSC_MOMENTUM_COARSENING)
         #: v's own hierarchy, or None: v's V-cycle on u's coarse levels (``SHARED_MOMENTUM``)
@@ -209,9 +211,16 @@ class LeastSquaresCommutator:
         _k.add_to_diagonal(A.indptr, A.indices, A.data, self.shift * A.diagonal())
         return A
 
-    def update(self, Au: sp.csr_matrix, Av: sp.csr_matrix, lq: sp.csr_matrix, rebuild: bool = False) -> None:
+    def update(self, Au: sp.csr_matrix, Av: sp.csr_matrix, lq: sp.csr_matrix, rebuild: bool = False,
+               system: sp.csr_matrix | None = None) -> None:
         """The (relaxed) momentum blocks and Lq of this outer iteration; ``rebuild``: set up the hierarchies
-        anew (else only their finest levels follow the new values)."""
+        anew (else only their finest levels follow the new values); ``system``: the 3n x 3n system, whose
+        continuity rows (D and the pressure columns) give the products with D when it was not given (a
+        view of its rows: no copy of D is held)."""
+        if system is not None:
+            n, ptr = self.n, system.indptr
+            lo, hi = ptr[2 * n], ptr[3 * n]
+            self.continuity = _csr_on(system.data[lo:hi], system.indices[lo:hi], ptr[2 * n:] - lo, (n, 3 * n))
         fresh = rebuild or self.mu.amg._h is None
         if self.mv is not None:
             self.mu.update(Au, rebuild=fresh)
@@ -235,9 +244,18 @@ class LeastSquaresCommutator:
         gx = self.hu * (self.Gx @ y)
         gy = self.hv * (self.Gy @ y)
         c = self.STABILISATION
-        m = (c * (self.lq @ y) + self.Du @ (c * gx - self.hu * (self.Au @ gx))
-             + self.Dv @ (c * gy - self.hv * (self.Av @ gy)))
+        m = c * (self.lq @ y) + self.times_d(c * gx - self.hu * (self.Au @ gx), c * gy - self.hv * (self.Av @ gy))
         return self.lap(m, par)
+
+    def times_d(self, a: np.ndarray, b: np.ndarray) -> np.ndarray:
+        """D [a; b]: with D's halves, or from the system's continuity rows with zero pressures."""
+        if self.Du is not None:
+            return self.Du @ a + self.Dv @ b
+        n = self.n
+        z = np.zeros(3 * n)
+        z[:n] = a
+        z[n:2 * n] = b
+        return self.continuity @ z
 
     def __call__(self, r: np.ndarray) -> np.ndarray:
         n = self.n

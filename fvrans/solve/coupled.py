@@ -486,7 +486,8 @@ class SimultaneousSolver(SimpleSolver):
                 for cells, faces in ((self.owner, smag), (self.neigh, smag[:self.ni])):
                     np.maximum.at(longest, cells, faces)
                     np.minimum.at(shortest, cells, faces)
-                self._prec = LeastSquaresCommutator(self.G, self.D, self.singular, wall_cells,
+                # D: the continuity rows of the system (``update(system=)``), not a copy of it
+                self._prec = LeastSquaresCommutator(self.G, None, self.singular, wall_cells,
                                                     longest > STRETCHED_ASPECT * shortest)
             else:
                 # the unit Laplacian: Dirichlet on faces with a given pressure and at inflow (Elman &
@@ -549,9 +550,10 @@ class SimultaneousSolver(SimpleSolver):
             if self.preconditioner == "least-squares-commutator":
                 Au, Av = prec.relaxed(Au), prec.relaxed(Av)
                 Ap = self._commutator_laplacian(Au, Av)
+                prec.update(Au, Av, Ap, rebuild=rebuild, system=A)
             else:
                 Ap = neumann_convection_diffusion(Au, self._ap_keep, self.a_rel[:, 0] - self.diag_u)
-            prec.update(Au, Av, Ap, rebuild=rebuild)
+                prec.update(Au, Av, Ap, rebuild=rebuild)
         x0 = np.concatenate([self.fields.velocity[:, 0], self.fields.velocity[:, 1], self.fields.pressure])
         # rows in velocity units, so that the norm FGMRES reduces weighs momentum and continuity
         # alike: momentum rows over their diagonal, continuity rows over rho sum_f |S_f|
