@@ -235,6 +235,17 @@ class AmgKrylovSolver:
         self.rebuilds += 1
         self.levels = [int(k) for k in n]
 
+    def share_vectors(self, *others: AmgKrylovSolver) -> None:
+        """Let this solver and ``others`` (hierarchies set up) use one set of level-stacked scratch
+        vectors (x, b, r of the cycle), sized for the largest: for V-cycles that never run at once."""
+        solvers = (self, *others)
+        total = max(s._vec[0].size for s in solvers)
+        buf = np.zeros((3, total))
+        for s in solvers:
+            m = s._vec[0].size
+            s._vec = (buf[0, :m], buf[1, :m], buf[2, :m])
+            s._twin = None
+
     def _work_vectors(self) -> np.ndarray:
         """The Krylov loop's work vectors (3 for CG, 7 for BiCGStab) of the finest level."""
         return np.zeros((3 if self.method == "cg" else 7, int(self._h[1][0])))

@@ -222,18 +222,21 @@ class LeastSquaresCommutator:
             lo, hi = ptr[2 * n], ptr[3 * n]
             self.continuity = _csr_on(system.data[lo:hi], system.indices[lo:hi], ptr[2 * n:] - lo, (n, 3 * n))
         fresh = rebuild or self.mu.amg._h is None
-        if self.mv is not None:
-            self.mu.update(Au, rebuild=fresh)
-            self.mv.update(Av, rebuild=fresh)
-        else:
+        if self.mv is None:
             # coarse levels of the mean of the two blocks (they differ where a boundary holds one
             # component and not the other, e.g. a symmetry plane), finest level A_u's values
             if fresh:
                 self.mu.update(_csr_on(0.5 * (Au.data + Av.data), Au.indices, Au.indptr, Au.shape), rebuild=True)
             h = self.mu.amg._h
             _amg.refresh_fine(Au.data, h[6], h[3], h[5], h[1][0], h[7])
-        self._fine = "u"
+            self._fine = "u"
+        else:
+            self.mu.update(Au, rebuild=fresh)
+            self.mv.update(Av, rebuild=fresh)
         self.lap.update(lq, rebuild=fresh)
+        if fresh and self.mv is None:
+            # the V-cycles run one after the other: one set of scratch vectors for both hierarchies
+            self.mu.amg.share_vectors(self.lap.amg)
         self.Au, self.Av, self.lq = Au, Av, lq
         self.hu = self.weight / Au.diagonal()
         self.hv = self.weight / Av.diagonal()
