@@ -121,6 +121,30 @@ iteration in the same process a minute later:
   64 %, scipy products 11 %, Gram-Schmidt 9 %). Momentum V-cycles with one sweep instead of two: V(0,1) cavity
   128^2 203 -> 212 FGMRES in all, but plate medium 215 -> 816 and step coarse 1405 -> 1825; V(1,0) plate 343: rejected.
 
+Measured 2026-12-03 06:50-08:20 (2 shared cores, load 1.6-6), memory of the iterative path's preconditioner and
+Krylov basis (least-squares commutator: Ruge-Stuben coarsening with the second pass instead of CLJP, hierarchies
+and the FGMRES basis in float32, no copies of G / D / the momentum blocks, Lq refilled in place, the assembly's
+work arrays freed before the solve):
+  --memory (400k cells, 8 simultaneous iterations; RSS above the baseline, KB per cell, traced in brackets;
+  FGMRES iterations per outer iteration):
+    | case | before (main 2cc1833, closing note) | with a shared u-v hierarchy (9021fe6) | after |
+    |---|---|---|---|
+    | cavity 399424 | 5.27 (4.77), 91.5 | 3.31 (3.24), 43.0 | 3.30 (3.17), 43.0 (load 5.9) |
+    | SA plate 399843 | 5.88 (5.33) | 3.98 (3.86), 70.6 | 4.00 (3.81), 71.2 (load 3.5) |
+  (SIMPLEC in the same runs: cavity 2.33, plate 2.92.) The "after" column keeps a momentum hierarchy for each of u
+  and v: one shared hierarchy (the middle column) saved ~0.2 KB per cell but cost whole plate runs 7.3 / 14.0
+  FGMRES iterations per outer iteration (coarse / medium) against 5.0 / 7.9. Still above 3 KB per cell; what is
+  held at the peak (traced, cavity 160k): mesh and geometry 0.40, the segregated solver's state 0.9, the system
+  0.53 and G 0.13, the preconditioner ~0.7 (two hierarchies of ~225 bytes, Lq, weights), FGMRES 0.42 (basis 0.25);
+  the plate adds its turbulence model's state and linear solver (~0.6).
+  FGMRES iterations per outer iteration / outer iterations of whole runs (case settings, settled stop, uniform
+  start, system_solver "iterative"; the same script before and after, load 3.5-5.9; cavity's before from the
+  same recipe at 05:30):
+    cavity 64^2 / 128^2 / 256^2: 12.4 / 15.4 / 21.6 (14 / 14 / 14 outer) -> 12.7 / 16.1 / 21.2 (16 / 14 / 12)
+    plate coarse / medium: 5.0 / 7.9 (36 / 34) -> 5.0 / 7.9 (34 / 32)
+    step coarse / medium: 20.0 / 26.1 (84 / 89) -> 18.7 / 23.2 (81 / 90)
+  plate medium, interleaved at load 4.9-5.2: 25.3 / 25.7 s before, 18.4 / 20.7 s after
+
 Run:  python benchmarks/bench_coupled.py [--families cavity plate step] [--fine-step] [--only simultaneous]
       python benchmarks/bench_coupled.py --memory cavity plate [--cells 400000] [--memory-iterations 8]
       python benchmarks/bench_coupled.py --cost [cavity128 plate-medium ...] [--threads 1 2] [--forcing-max 0]

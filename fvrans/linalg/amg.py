@@ -39,6 +39,9 @@ log = logging.getLogger(__name__)
 SMOOTHER_BLOCK_ROWS = 1024
 SMOOTHER_MAX_BLOCKS = 16
 _pool: ThreadPoolExecutor | None = None
+#: C/F splittings (``AmgKrylovSolver(coarsening=)``): Ruge-Stuben (one pass, or with the second pass
+#: that adds C points where two strongly coupled F points share no C point) and Cleary-Luby-Jones-Plassmann
+COARSENINGS = ("RS", "RS-second-pass", "CLJP")
 
 
 def _second_thread() -> ThreadPoolExecutor:
@@ -100,13 +103,13 @@ class _Stack:
     stacked ``idx`` / ``dat`` (int32 while the entries fit), ``pofs[l]`` where level l's pointers
     start, column indices local to the level (int32)."""
 
-    def __init__(self, shapes: list[tuple[int, int]]):
+    def __init__(self, shapes: list[tuple[int, int]], dtype: type = np.float64):
         rows = sum(m for m, _ in shapes)
         nnz = sum(z for _, z in shapes)
         self.ptr = np.zeros(rows + len(shapes) if shapes else 1, dtype=np.int32 if nnz < 2**31 - 1 else np.int64)
         self.pofs = np.zeros(max(len(shapes), 1), dtype=np.int64)
         self.idx = np.zeros(nnz, dtype=np.int32)
-        self.dat = np.zeros(nnz)
+        self.dat = np.zeros(nnz, dtype=dtype)
         self._level = 0
         self._row = 0
         self._nz = 0
@@ -132,8 +135,11 @@ class AmgKrylovSolver:
     ``method``: 'cg' (symmetric positive (semi-)definite A) or 'bicgstab' (general, e.g. the
     momentum matrix). ``singular``: A has the constant vector as null space (pressure correction
     without a fixed-pressure boundary); the solution is returned mean-free. ``coarsening``: pyamg's
-    C/F splitting, 'RS' (Ruge-Stuben) or 'CLJP' (Cleary-Luby-Jones-Plassmann: about 1.4x the
-    coarse-level storage, but a V-cycle that keeps contracting on the stretched cells of wall layers).
+    C/F splitting, 'RS' (Ruge-Stuben), 'RS-second-pass' (with the second pass: more coarse points,
+    a V-cycle that keeps contracting on the stretched cells of wall layers) or 'CLJP'
+    (Cleary-Luby-Jones-Plassmann: the same, at about 1.4-1.8x the storage). ``dtype``: the number
+    type the hierarchy's level matrices and transfers are stored in (the cycle's vectors and sums
+    stay in double precision; float32 for a V-cycle used as a preconditioner).
     ``block_sweep``: smooth the levels of 4 096 rows or more in coloured blocks on every thread
     (``smoother_blocks``); default: for 'cg' only. On the bundled step and plate the block order
     cost the momentum BiCGStab 5-10 % more iterations (a block swept before the one upstream of it
@@ -151,6 +157,7 @@ class AmgKrylovSolver:
         max_coarse: int = 200,
         coarsening: str = "RS",
         block_sweep: bool | None = None,
+        dtype: type = np.float64,
     ):
         if method not in ("cg", "bicgstab"):
             raise ValueError(f"AmgKrylovSolver: unknown method {method!r}; use 'cg' or 'bicgstab'")
@@ -161,7 +168,10 @@ class AmgKrylovSolver:
         self.max_iterations = int(max_iterations)
         self.sweeps = int(sweeps)
         self.max_coarse = int(max_coarse)
+        if coarsening not in COARSENINGS:
+            raise ValueError(f"AmgKrylovSolver: unknown coarsening {coarsening!r}; use one of {COARSENINGS}")
         self.coarsening = coarsening
+        self.dtype = dtype
         self.block_sweep = method == "cg" if block_sweep is None else bool(block_sweep)
         self._h = None
         self._uses = 0
@@ -181,17 +191,19 @@ class AmgKrylovSolver:
         self.release()  # the old hierarchy goes first: the new one is built beside pyamg's, not beside both
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
-            ml = pyamg.ruge_stuben_solver(sp.csr_matrix(A, copy=True), max_coarse=self.max_coarse, max_levels=25,
-                                          CF=self.coarsening)
+            cf = ("RS", {"second_pass": True}) if self.coarsening == "RS-second-pass" else self.coarsening
+            # pyamg works in the stored number type (a single-precision set-up holds half the values)
+            ml = pyamg.ruge_stuben_solver(sp.csr_matrix(A, dtype=self.dtype, copy=True), max_coarse=self.max_coarse,
+                                          max_levels=25, CF=cf)
         levels = ml.levels
         del ml
         n = np.asarray([lv.A.shape[0] for lv in levels], dtype=np.int64)
         voff = np.zeros(len(n), dtype=np.int64)
         voff[1:] = np.cumsum(n)[:-1]
         total = int(n.sum())
-        a = _Stack([(lv.A.shape[0], lv.A.nnz) for lv in levels])
-        p = _Stack([(lv.P.shape[0], lv.P.nnz) for lv in levels[:-1]])
-        r = _Stack([(lv.R.shape[0], lv.R.nnz) for lv in levels[:-1]])
+        a = _Stack([(lv.A.shape[0], lv.A.nnz) for lv in levels], self.dtype)
+        p = _Stack([(lv.P.shape[0], lv.P.nnz) for lv in levels[:-1]], self.dtype)
+        r = _Stack([(lv.R.shape[0], lv.R.nnz) for lv in levels[:-1]], self.dtype)
         dinv = np.zeros(total)
         s_ptr = np.zeros((len(n), SMOOTHER_MAX_BLOCKS + 2), dtype=np.int64)
         s_order = np.zeros((len(n), SMOOTHER_MAX_BLOCKS), dtype=np.int64)
@@ -213,16 +225,30 @@ class AmgKrylovSolver:
         cinv2 = np.empty_like(coarse)
         _k.dense_inverse(coarse, cinv2, self.singular)
         cinv = cinv2.ravel()
-        n0 = int(n[0])
         self._h = (
             len(n), n, voff, *a.arrays(), dinv, *p.arrays(), *r.arrays(), cinv, self.sweeps, s_ptr, s_order,
         )
         self._vec = (np.zeros(total), np.zeros(total), np.zeros(total))
-        self._work = np.zeros((3 if self.method == "cg" else 7, n0))
+        self._work = None  # the Krylov loop's vectors, made by its first solve (a lone V-cycle needs none)
         self._twin = None  # the copy for the second system of a pair, made on demand
         self._uses = 0
         self.rebuilds += 1
         self.levels = [int(k) for k in n]
+
+    def share_vectors(self, *others: AmgKrylovSolver) -> None:
+        """Let this solver and ``others`` (hierarchies set up) use one set of level-stacked scratch
+        vectors (x, b, r of the cycle), sized for the largest: for V-cycles that never run at once."""
+        solvers = (self, *others)
+        total = max(s._vec[0].size for s in solvers)
+        buf = np.zeros((3, total))
+        for s in solvers:
+            m = s._vec[0].size
+            s._vec = (buf[0, :m], buf[1, :m], buf[2, :m])
+            s._twin = None
+
+    def _work_vectors(self) -> np.ndarray:
+        """The Krylov loop's work vectors (3 for CG, 7 for BiCGStab) of the finest level."""
+        return np.zeros((3 if self.method == "cg" else 7, int(self._h[1][0])))
 
     def release(self) -> None:
         """Drop the hierarchy and its work arrays (the next solve builds a new one)."""
@@ -230,6 +256,8 @@ class AmgKrylovSolver:
 
     def _run(self, A: sp.csr_matrix, b: np.ndarray, x: np.ndarray, state: tuple | None = None,
              par: bool | None = None) -> tuple[int, float]:
+        if state is None and self._work is None:
+            self._work = self._work_vectors()
         h, (xs, bs, rs), work = state if state is not None else (self._h, self._vec, self._work)
         if par is None:
             par = threads() > 1
@@ -276,7 +304,7 @@ class AmgKrylovSolver:
             h = list(self._h)
             h[6] = h[6].copy()  # level-0 values and inverse diagonal are the second matrix's
             h[7] = h[7].copy()
-            self._twin = (tuple(h), tuple(v.copy() for v in self._vec), self._work.copy())
+            self._twin = (tuple(h), tuple(v.copy() for v in self._vec), self._work_vectors())
         x2_start = x2.copy()
         b2_start = b2.copy()
         self._uses += 2

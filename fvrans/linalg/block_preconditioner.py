@@ -73,12 +73,39 @@ import numpy as np
 import scipy.sparse as sp
 
 from fvrans.jit import threads
+from fvrans.linalg import _amg_kernels as _amg
+from fvrans.linalg import _block_kernels as _k
 from fvrans.linalg.amg import _second_thread
 from fvrans.linalg.fgmres import VCycle
 
 MOMENTUM_COARSENING = "RS"
 LAPLACIAN_COARSENING = "CLJP"
-LSC_MOMENTUM_COARSENING = "CLJP"
+#: coarsening of the least-squares commutator's three hierarchies (momentum u, v and Lq): Ruge-Stuben
+#: with its second pass. FGMRES(20) to 0.01, one V-cycle per block, at saved states (cavity 128^2 after
+#: 5 outer iterations; plate medium after 10; step coarse after 10; step medium after 2 / 10 / 30):
+#: CLJP everywhere 16, 9, 20, 18 / 32 / 18 iterations, hierarchies 420-475 bytes per cell each
+#: (operator complexity ~3.9, coarse rows 2.1x the fine ones); Ruge-Stuben with the second pass
+#: 15, 9, 24, 17 / 31 / 17 at 300-385 bytes (complexity ~2.2); one-pass Ruge-Stuben momentum
+#: hierarchies 24 iterations at step medium it. 2 (PMIS, smoothed aggregation: >300 on the step)
+LSC_MOMENTUM_COARSENING = "RS-second-pass"
+LSC_LAPLACIAN_COARSENING = "RS-second-pass"
+#: the number type of their stored values (level matrices, transfers); single precision: the same
+#: FGMRES counts at those states, 230-295 bytes per hierarchy and cell instead of 300-385
+HIERARCHY_DTYPE = np.float32
+#: one momentum hierarchy for both velocity components (True), set up from the mean of A_u and A_v, whose
+#: finest level takes the values of the component it cycles on; the two V-cycles then run one after the
+#: other. It saves ~0.22 KB per cell, and FGMRES counts at the saved states above are the same (from A_u
+#: alone the plate medium state needed 17 instead of 9: its symmetry plane holds v, not u), but whole runs
+#: of the turbulent plate needed more: coarse / medium 7.3 / 14.0 FGMRES iterations per outer iteration
+#: against 5.0 / 7.9 with a hierarchy each (cavity 64^2-256^2 and the coarse step: the same). Off
+SHARED_MOMENTUM = False
+
+
+def _vcycle(singular: bool, coarsening: str) -> VCycle:
+    """A V-cycle of the least-squares commutator: hierarchy values stored as ``HIERARCHY_DTYPE``."""
+    v = VCycle(1 << 30, singular=singular, coarsening=coarsening)
+    v.amg.dtype = HIERARCHY_DTYPE
+    return v
 
 
 def neumann_convection_diffusion(A: sp.csr_matrix, keep: np.ndarray, extra_diagonal: np.ndarray) -> sp.csr_matrix:
@@ -157,7 +184,7 @@ class LeastSquaresCommutator:
     #: uniform quads and right triangles are below) -> 20, 18 / 32 / 18, 11 / 16, 9
     RELAXATION = 0.005
 
-    def __init__(self, G: sp.csr_matrix, D: sp.csr_matrix, singular: bool, wall_cells: np.ndarray | None = None,
+    def __init__(self, G: sp.csr_matrix, D: sp.csr_matrix | None, singular: bool, wall_cells: np.ndarray | None = None,
                  stretched: np.ndarray | None = None):
         n = G.shape[1]
         self.n = n
@@ -169,26 +196,50 @@ class LeastSquaresCommutator:
         if stretched is not None:
             self.shift[stretched] = self.RELAXATION
         self.G = sp.csr_matrix(G)
-        self.Gx, self.Gy = sp.csr_matrix(G[:n]), sp.csr_matrix(G[n:])
-        self.Du, self.Dv = sp.csr_matrix(D[:, :n]), sp.csr_matrix(D[:, n:])
-        self.lap = VCycle(1 << 30, singular=singular, coarsening=LAPLACIAN_COARSENING)
-        # Ruge-Stuben coarsening of the momentum blocks: step medium after 2 outer iterations, 128
-        # FGMRES iterations (exact momentum solves: 36); CLJP 38 (cavity, plate: the same as RS)
-        self.mu = VCycle(1 << 30, coarsening=LSC_MOMENTUM_COARSENING)
-        self.mv = VCycle(1 << 30, coarsening=LSC_MOMENTUM_COARSENING)
+        self.Gx, self.Gy = _row_halves(self.G)
+        #: D's halves, or None: the products taken from the continuity rows of the system (``update``)
+        self.Du, self.Dv = _column_halves(D) if D is not None else (None, None)
+        self.continuity: sp.csr_matrix | None = None
+        self.lap = _vcycle(singular, LSC_LAPLACIAN_COARSENING)
+        self.mu = _vcycle(False, LSC_MOMENTUM_COARSENING)
+        #: v's own hierarchy, or None: v's V-cycle on u's coarse levels (``SHARED_MOMENTUM``)
+        self.mv = None if SHARED_MOMENTUM else _vcycle(False, LSC_MOMENTUM_COARSENING)
+        self._fine = "u"  # whose values the shared hierarchy's finest level holds
 
     def relaxed(self, A: sp.csr_matrix) -> sp.csr_matrix:
         """A + s diag(A), s = ``RELAXATION`` in stretched cells, else 0: the momentum block the
-        preconditioner stands for."""
-        return (A + sp.diags(self.shift * A.diagonal())).tocsr()
+        preconditioner stands for. In place: A's values change (no copy is held; the solver's
+        assemblers refill them every outer iteration); returns A."""
+        _k.add_to_diagonal(A.indptr, A.indices, A.data, self.shift * A.diagonal())
+        return A
 
-    def update(self, Au: sp.csr_matrix, Av: sp.csr_matrix, lq: sp.csr_matrix, rebuild: bool = False) -> None:
+    def update(self, Au: sp.csr_matrix, Av: sp.csr_matrix, lq: sp.csr_matrix, rebuild: bool = False,
+               system: sp.csr_matrix | None = None) -> None:
         """The (relaxed) momentum blocks and Lq of this outer iteration; ``rebuild``: set up the hierarchies
-        anew (else only their finest levels follow the new values)."""
+        anew (else only their finest levels follow the new values); ``system``: the 3n x 3n system, whose
+        continuity rows (D and the pressure columns) give the products with D when it was not given (a
+        view of its rows: no copy of D is held)."""
+        if system is not None:
+            n, ptr = self.n, system.indptr
+            lo, hi = ptr[2 * n], ptr[3 * n]
+            self.continuity = _csr_on(system.data[lo:hi], system.indices[lo:hi], ptr[2 * n:] - lo, (n, 3 * n))
         fresh = rebuild or self.mu.amg._h is None
-        self.mu.update(Au, rebuild=fresh)
-        self.mv.update(Av, rebuild=fresh)
+        if self.mv is None:
+            # coarse levels of the mean of the two blocks (they differ where a boundary holds one
+            # component and not the other, e.g. a symmetry plane), finest level A_u's values
+            if fresh:
+                self.mu.update(_csr_on(0.5 * (Au.data + Av.data), Au.indices, Au.indptr, Au.shape), rebuild=True)
+            h = self.mu.amg._h
+            _amg.refresh_fine(Au.data, h[6], h[3], h[5], h[1][0], h[7])
+            self._fine = "u"
+        else:
+            self.mu.update(Au, rebuild=fresh)
+            self.mv.update(Av, rebuild=fresh)
         self.lap.update(lq, rebuild=fresh)
+        if fresh:
+            # Lq's V-cycles are done before u's starts (v's runs beside u's on the second thread): one
+            # set of scratch vectors for Lq's and u's hierarchies
+            self.mu.amg.share_vectors(self.lap.amg)
         self.Au, self.Av, self.lq = Au, Av, lq
         self.hu = self.weight / Au.diagonal()
         self.hv = self.weight / Av.diagonal()
@@ -199,16 +250,70 @@ class LeastSquaresCommutator:
         gx = self.hu * (self.Gx @ y)
         gy = self.hv * (self.Gy @ y)
         c = self.STABILISATION
-        m = (c * (self.lq @ y) + self.Du @ (c * gx - self.hu * (self.Au @ gx))
-             + self.Dv @ (c * gy - self.hv * (self.Av @ gy)))
+        m = c * (self.lq @ y) + self.times_d(c * gx - self.hu * (self.Au @ gx), c * gy - self.hv * (self.Av @ gy))
         return self.lap(m, par)
+
+    def times_d(self, a: np.ndarray, b: np.ndarray) -> np.ndarray:
+        """D [a; b]: with D's halves, or from the system's continuity rows with zero pressures."""
+        if self.Du is not None:
+            return self.Du @ a + self.Dv @ b
+        n = self.n
+        z = np.zeros(3 * n)
+        z[:n] = a
+        z[n:2 * n] = b
+        return self.continuity @ z
 
     def __call__(self, r: np.ndarray) -> np.ndarray:
         n = self.n
         par = threads() > 1
         zp = self.schur_inverse(r[2 * n:], par)
         w = r[:2 * n] - self.G @ zp
-        return np.concatenate([*_momentum_pair(self.mu, self.mv, w, n, par), zp])
+        if self.mv is not None:
+            return np.concatenate([*_momentum_pair(self.mu, self.mv, w, n, par), zp])
+        # one hierarchy: the component whose values its finest level holds first, then the other's
+        # values in and its V-cycle (one exchange per application)
+        z = np.empty(3 * n)
+        z[2 * n:] = zp
+        h = self.mu.amg._h
+        order = (0, 1) if self._fine == "u" else (1, 0)
+        for k, c in enumerate(order):
+            if k == 1:
+                other = self.Av if c == 1 else self.Au
+                _amg.refresh_fine(other.data, h[6], h[3], h[5], h[1][0], h[7])
+                self._fine = "v" if c == 1 else "u"
+            z[c * n:(c + 1) * n] = self.mu(w[c * n:(c + 1) * n], par)
+        return z
+
+
+def _row_halves(G: sp.csr_matrix) -> tuple[sp.csr_matrix, sp.csr_matrix]:
+    """The upper and lower halves of the rows of ``G`` (2n x m), on G's own arrays (no copy of the
+    values or column indices)."""
+    n = G.shape[0] // 2
+    ptr = G.indptr
+    lo, mid, hi = ptr[0], ptr[n], ptr[2 * n]
+    return (_csr_on(G.data[lo:mid], G.indices[lo:mid], ptr[: n + 1] - lo, (n, G.shape[1])),
+            _csr_on(G.data[mid:hi], G.indices[mid:hi], ptr[n:] - mid, (n, G.shape[1])))
+
+
+def _csr_on(data: np.ndarray, indices: np.ndarray, indptr: np.ndarray, shape: tuple[int, int]) -> sp.csr_matrix:
+    """A CSR matrix on the given arrays, views included (scipy's constructor copies a view of less
+    than half its base)."""
+    m = sp.csr_matrix(shape, dtype=data.dtype)
+    m.data, m.indices, m.indptr = data, indices, indptr
+    m.has_sorted_indices = True
+    return m
+
+
+def _column_halves(D: sp.csr_matrix) -> tuple[sp.csr_matrix, sp.csr_matrix]:
+    """The left and right column halves of ``D`` (m x 2n); the right one on the left one's column
+    indices and row pointers when the two have the same structure."""
+    n = D.shape[1] // 2
+    left, right = sp.csr_matrix(D[:, :n]), sp.csr_matrix(D[:, n:])
+    left.sort_indices()
+    right.sort_indices()
+    if np.array_equal(left.indptr, right.indptr) and np.array_equal(left.indices, right.indices):
+        right = _csr_on(right.data, left.indices, left.indptr, right.shape)
+    return left, right
 
 
 def _momentum_pair(mu: VCycle, mv: VCycle, w: np.ndarray, n: int, par: bool) -> tuple[np.ndarray, np.ndarray]:

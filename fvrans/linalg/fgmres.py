@@ -17,15 +17,16 @@ from fvrans.linalg.amg import AmgKrylovSolver
 
 def fgmres(
     matvec: Callable[[np.ndarray], np.ndarray], prec: Callable[[np.ndarray], np.ndarray], r0: np.ndarray,
-    rtol: float, restart: int = 40, max_iterations: int = 400, flexible: bool = True,
+    rtol: float, restart: int = 40, max_iterations: int = 400, flexible: bool = True, basis: type = np.float64,
 ) -> tuple[np.ndarray, int, float]:
     """Solve A dx = r0 from dx = 0 by right-preconditioned flexible GMRES(restart): the
     preconditioned vectors z_k = M_k^-1 v_k are kept, so M may change from one step to the next.
     Stops when ||r0 - A dx||_2 <= rtol ||r0||_2 or after ``max_iterations``; returns (dx, iterations,
     relative residual). ``flexible`` False, for an M that is one linear operator throughout: the z_k
     are not kept (half the basis memory) and each cycle ends with dx += M^-1 (V y), one more
-    application of M (the same iterates to round-off). The Gram-Schmidt steps and updates run on every
-    thread (``fvrans.jit.threads``; the same bits on any thread count: ``_krylov_kernels``)."""
+    application of M (the same iterates to round-off). ``basis``: the number type the Krylov basis
+    is stored in (its sums are formed in double precision). The Gram-Schmidt steps and updates run on
+    every thread (``fvrans.jit.threads``; the same bits on any thread count: ``_krylov_kernels``)."""
     n = r0.size
     par = threads() > 1
     dx = np.zeros(n)
@@ -36,7 +37,7 @@ def fgmres(
     its = 0
     rel = 1.0
     m = restart
-    V = np.empty((m + 1, n))
+    V = np.empty((m + 1, n), dtype=basis)
     Z = np.empty((m if flexible else 1, n))
     while its < max_iterations:
         beta = _kk.norm2(r, par)

@@ -52,6 +52,7 @@ import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 
 from fvrans.errors import CaseError
+from fvrans.linalg import _block_kernels as BK
 from fvrans.linalg.block_preconditioner import (
     LeastSquaresCommutator,
     PressureConvectionDiffusion,
@@ -90,6 +91,9 @@ REBUILD_GROWTH = 1.5
 STALE_KRYLOV = 60
 #: the sparse LU takes over once an iterative solve ends above FALLBACK_FACTOR x system_tolerance
 FALLBACK_FACTOR = 1.0
+#: the number type of the Krylov basis (its sums in double precision): single precision halves the
+#: basis (0.25 KB per cell at RESTART 20); the solve's tolerance is 0.01, far above its round-off
+KRYLOV_BASIS = np.float32
 #: FGMRES iterations allowed per solve (after a fresh hierarchy set-up)
 MAX_KRYLOV = 200
 #: inexact-Newton forcing of the iterative solve's tolerance (Eisenstat & Walker 1996, SIAM J. Sci.
@@ -130,6 +134,12 @@ GRADIENT_STEPS = 6
 EXTRAPOLATION_LIMIT = 3.0
 #: attributes of :class:`SimpleSolver` that only its own iteration uses, dropped here
 SEGREGATED_ONLY = ("psolver", "msolver", "us", "vs", "hbya", "rau", "beta", "dp", "pc", "pcb", "gpc")
+#: its work arrays that only the assembly of the system uses (the momentum equations' face work,
+#: sources, pseudo-time, the residual's pressure-correction rows, the convection gradient): made at
+#: the start of ``_assemble`` and let go at its end, so that the linear solve, where memory peaks, does
+#: not hold them (~0.15 KB per cell); each holds components per cell ("c") or per internal face ("f")
+ASSEMBLY_ONLY = {"face_work": ("f", 2), "bu": ("c",), "bv": ("c",), "b_np": ("c", 2), "work2": ("c", 2),
+                 "pt": ("c",), "p_diag": ("c",), "p_off": ("f",), "p_rhs": ("c",), "gc": ("c", 2, 2)}
 
 
 def _wall_flux_stencil(wall_grad: Any, owner: np.ndarray, S: np.ndarray, nc: int) -> tuple[np.ndarray, ...]:
@@ -185,6 +195,7 @@ class SimultaneousSolver(SimpleSolver):
         # interpolation coefficients): not used on this path (~0.13 KB per cell)
         for name in SEGREGATED_ONLY:
             delattr(self, name)
+        self._assembly_work(False)
         kind = self.bc.kind
         self.fixed = (kind == K.OUTLET) | (kind == K.FREESTREAM)
         self.singular = not self.bc.has_fixed_pressure
@@ -213,6 +224,7 @@ class SimultaneousSolver(SimpleSolver):
         self.implicit_gradient = True
         self.eddy_viscosity_relaxation = float(self.ctl.eddy_viscosity_relaxation)
         self._prec = None
+        self._lq = None  # the least-squares commutator's Lq, on the compact structure
         self._row_scale = None
         #: the iterative solve missed its tolerance once; the direct solve takes over
         self.fell_back = False
@@ -229,9 +241,15 @@ class SimultaneousSolver(SimpleSolver):
         #: default), "convection-diffusion" (fails on the backward-facing step's recirculation) or
         #: "simple" (the SIMPLE-type baseline, whose iterations grow with the grid)
         self.preconditioner = "least-squares-commutator"
-        self._zero_c2 = np.zeros((nc, 2))
-        self._zero_c = np.zeros(nc)
-        self._zero_beta = np.zeros(nc)
+        # zero inputs of the flux kernels (read only): one buffer
+        zero = np.zeros(2 * nc)
+        self._zero_c2 = zero.reshape(nc, 2)
+        self._zero_c = self._zero_beta = zero[:nc]
+
+    def _assembly_work(self, make: bool) -> None:
+        """Make (zeros) or let go the work arrays of ``ASSEMBLY_ONLY``."""
+        for name, (where, *comp) in ASSEMBLY_ONLY.items():
+            setattr(self, name, np.zeros((self.nc if where == "c" else self.ni, *comp)) if make else None)
 
     def release_work(self) -> None:
         """Free the linear solve's memory when the run is over, before its outputs are evaluated
@@ -239,6 +257,7 @@ class SimultaneousSolver(SimpleSolver):
         the sparse LU and the system's values (its pattern stays); a further iteration makes them
         again."""
         self._prec = None
+        self._lq = None
         self._fresh_its = None
         self._lu = None
         self._A.data = np.empty(0)
@@ -316,6 +335,7 @@ class SimultaneousSolver(SimpleSolver):
         rho, ni, g, kind, nc = self.rho, self.ni, self.geom, self.bc.kind, self.nc
         u_old = fl.velocity
         F_old = fl.face_flux
+        self._assembly_work(True)
         mu_t = self.model.eddy_viscosity(fl)
         if mu_t is not None:
             # the eddy viscosity the momentum equations see follows the model's with a lag,
@@ -383,6 +403,7 @@ class SimultaneousSolver(SimpleSolver):
         Au = self.asm_u.matrix(self.a_rel[:, 0], self.off_own, self.off_nei)
         Av = self.asm_v.matrix(self.a_rel[:, 1], self.off_own, self.off_nei)
         self._parts = (Au, Av, E, r_u, r_v, rbar, gu, hu, Wall)
+        self._assembly_work(False)
         return A, rhs, res
 
     def _wall_flux_matrix(self) -> sp.csr_matrix:
@@ -480,7 +501,8 @@ class SimultaneousSolver(SimpleSolver):
                 for cells, faces in ((self.owner, smag), (self.neigh, smag[:self.ni])):
                     np.maximum.at(longest, cells, faces)
                     np.minimum.at(shortest, cells, faces)
-                self._prec = LeastSquaresCommutator(self.G, self.D, self.singular, wall_cells,
+                # D: the continuity rows of the system (``update(system=)``), not a copy of it
+                self._prec = LeastSquaresCommutator(self.G, None, self.singular, wall_cells,
                                                     longest > STRETCHED_ASPECT * shortest)
             else:
                 # the unit Laplacian: Dirichlet on faces with a given pressure and at inflow (Elman &
@@ -502,12 +524,17 @@ class SimultaneousSolver(SimpleSolver):
     def _commutator_laplacian(self, Au: sp.csr_matrix, Av: sp.csr_matrix) -> sp.csr_matrix:
         """Lq of :class:`LeastSquaresCommutator`: the compact Laplacian with the face weights
         rho r_f, r = w V / q, q the mean of the momentum blocks' diagonals, w its boundary weights
-        (Dirichlet on faces with a given pressure)."""
+        (Dirichlet on faces with a given pressure), on the compact structure of the mesh; its values
+        are refilled in place every outer iteration (no triplets: ~0.5 KB per cell at the peak)."""
         q = 0.5 * (Au.diagonal() + Av.diagonal())
-        rows, cols, vals = CK.pressure_difference_triplets(self.owner, self.neigh, self.ni, self.dcoef, self.kvec,
-                                                           self.geom.face_weight, self._prec.weight * self.vol / q,
-                                                           self.fixed, float(self.rho))
-        return sp.csr_matrix((vals[:, 0], (rows, cols)), shape=(self.nc, self.nc))
+        if self._lq is None:
+            self._lq = sp.csr_matrix((np.zeros(len(self._cidx)), self._cidx, self._cind), shape=(self.nc, self.nc))
+            self._lq.has_sorted_indices = True
+        lq = self._lq
+        BK.weighted_laplacian(lq.indptr, lq.indices, self.owner, self.neigh, self.ni, self.dcoef,
+                              self.geom.face_weight, self._prec.weight * self.vol / q, self.fixed, float(self.rho),
+                              lq.data)
+        return lq
 
     def _solve_gmres(self, A: sp.csr_matrix, rhs: np.ndarray) -> np.ndarray:
         """Flexible GMRES(``RESTART``) on the system, right-preconditioned by one block sweep of
@@ -540,9 +567,10 @@ class SimultaneousSolver(SimpleSolver):
             if self.preconditioner == "least-squares-commutator":
                 Au, Av = prec.relaxed(Au), prec.relaxed(Av)
                 Ap = self._commutator_laplacian(Au, Av)
+                prec.update(Au, Av, Ap, rebuild=rebuild, system=A)
             else:
                 Ap = neumann_convection_diffusion(Au, self._ap_keep, self.a_rel[:, 0] - self.diag_u)
-            prec.update(Au, Av, Ap, rebuild=rebuild)
+                prec.update(Au, Av, Ap, rebuild=rebuild)
         x0 = np.concatenate([self.fields.velocity[:, 0], self.fields.velocity[:, 1], self.fields.pressure])
         # rows in velocity units, so that the norm FGMRES reduces weighs momentum and continuity
         # alike: momentum rows over their diagonal, continuity rows over rho sum_f |S_f|
@@ -563,7 +591,7 @@ class SimultaneousSolver(SimpleSolver):
             return d * (A @ z)
 
         dx, its, rel = fgmres(matvec, lambda v: prec(v / d), r0, tol, RESTART,
-                              STALE_KRYLOV if stale else MAX_KRYLOV, flexible=False)
+                              STALE_KRYLOV if stale else MAX_KRYLOV, flexible=False, basis=KRYLOV_BASIS)
         self._missed = stale and not rel <= tol
         if self._missed:
             # the kept coarse levels no longer fit: set up anew and go on from where FGMRES stopped
@@ -572,7 +600,7 @@ class SimultaneousSolver(SimpleSolver):
             r1 = r0 - matvec(dx)
             more, its2, rel1 = fgmres(matvec, lambda v: prec(v / d), r1,
                                       tol * np.linalg.norm(r0) / np.linalg.norm(r1), RESTART, MAX_KRYLOV,
-                                      flexible=False)
+                                      flexible=False, basis=KRYLOV_BASIS)
             dx += more
             its += its2
             rel = rel1 * np.linalg.norm(r1) / np.linalg.norm(r0)
