@@ -276,7 +276,7 @@ class SolverSettings:
     turbulence_cfl: float | None = None
     system_solver: str = "by-size"
     system_tolerance: float = 0.01
-    momentum_start_shift: float = 0.1
+    momentum_start_shift: float = 0.0
     #: threads of the parallel kernels; 0: the FVRANS_THREADS variable, else every idle core (fvrans.jit)
     threads: int = 0
 

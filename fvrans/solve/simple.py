@@ -105,7 +105,8 @@ class SolverControls:
     (off; not a case key): the same for the momentum equations, beside Patankar's relaxation; it
     sped up some cases and slowed or stalled others (DEVELOPERS.md), kept for the study of
     pseudo-transient continuation. ``momentum_start_shift``: the simultaneous path's start-up shift of
-    the momentum diagonals with its iterative solve (``coupled.SimultaneousSolver._start_shift``).
+    the momentum diagonals with its iterative solve (``coupled.SimultaneousSolver._start_shift``; off
+    unless the case names it: the step's case does).
     """
 
     coupling: str = "simplec"
@@ -126,7 +127,7 @@ class SolverControls:
     conservative_start: bool = True
     turbulence_cfl: float | None = None
     momentum_cfl: float = 0.0
-    momentum_start_shift: float = 0.1
+    momentum_start_shift: float = 0.0
     system_solver: str = "by-size"
     system_tolerance: float = 0.01
     eddy_viscosity_relaxation: float = 0.5

@@ -81,13 +81,15 @@ def test_start_shift_halves_each_iteration_and_only_where_needed():
     seen = _shifts(solver, 16)
     assert seen[:14] == pytest.approx([0.2 * 0.5**n for n in range(14)], rel=1e-12)
     assert seen[14:] == [0.0, 0.0]
-    direct = simultaneous_solver(cavity(8), CAVITY, system_solver="direct", tolerance=1e-14)
+    direct = simultaneous_solver(cavity(8), CAVITY, system_solver="direct", tolerance=1e-14,
+                                 momentum_start_shift=0.2)
     assert _shifts(direct, 3) == [0.0, 0.0, 0.0]
     mesh = cavity(8)
     geom = compute_geometry(mesh)
     warm = coupled.SimultaneousSolver(mesh, geom, build_flow_boundary(mesh, geom, CAVITY), rho=1.0, mu=0.01,
                                       controls=SolverControls(coupling="simultaneous", system_solver="iterative",
-                                                              tolerance=1e-14), fields=solver.fields)
+                                                              tolerance=1e-14, momentum_start_shift=0.2),
+                                      fields=solver.fields)
     assert _shifts(warm, 3) == [0.0, 0.0, 0.0]
 
 
