@@ -10,7 +10,9 @@ Modeling Resource, from memory), the corner-eddy extent and, at x = -4 H, the in
 medium to fine and between the mixed and the medium grid (acceptance: both below 3 %).
 
 Run:  python benchmarks/bench_step.py [--levels coarse medium mixed fine] [--fine-start medium]
-       [--tolerance 1e-6] [--out DIR] [--model k-omega-sst]
+       [--tolerance 1e-6] [--out DIR] [--model k-omega-sst] [--coupling simplec]
+``--coupling`` overrides the case's ``solver.coupling`` (the step cases name "simultaneous" since
+2026-12-03; ``simplec`` gives the segregated figures below).
 ``--model k-omega-sst`` runs the k-omega SST model with its own inflow layer (cases/step_inflow_sst.csv,
 k and omega of fvrans' SST flat plate, made by ``python cases/make_step_inflow.py --model k-omega-sst``).
 ``--out DIR`` writes each grid's result to DIR/<grid> (summary.json with the zero-shear points, wall
@@ -64,8 +66,11 @@ def write_result(r: fa.Result, out: Path) -> None:
     save_figure(fig, out / "plots" / "field_velocity_near_step.png")
 
 
-def problem_for(level: str, tolerance: float | None = None, model: str = "spalart-allmaras") -> fa.Problem:
+def problem_for(level: str, tolerance: float | None = None, model: str = "spalart-allmaras",
+                coupling: str | None = None) -> fa.Problem:
     case = fa.load_case(CASE)
+    if coupling is not None:
+        case = case.set("solver.coupling", coupling)
     if model == "k-omega-sst":
         case = case.replace({"model.turbulence": model, "boundary.inlet.profile": "step_inflow_sst.csv",
                              "title": case.title.replace("Spalart-Allmaras", "k-omega SST")})
@@ -87,8 +92,8 @@ def injected(start: fa.Result, problem: fa.Problem) -> Fields:
 
 
 def run_level(level: str, tolerance: float | None = None, start: fa.Result | None = None,
-              model: str = "spalart-allmaras") -> tuple[dict, fa.Result]:
-    problem = problem_for(level, tolerance, model)
+              model: str = "spalart-allmaras", coupling: str | None = None) -> tuple[dict, fa.Result]:
+    problem = problem_for(level, tolerance, model, coupling)
     r = fa.solve(problem, initial=None if start is None else injected(start, problem))
     lower = r.wall("lower_wall")
     try:
@@ -116,6 +121,8 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--tolerance", type=float, default=None)
     ap.add_argument("--out", type=Path, default=None, help="write each grid's result and plots here")
     ap.add_argument("--model", default="spalart-allmaras", choices=["spalart-allmaras", "k-omega-sst"])
+    ap.add_argument("--coupling", default=None, choices=["simple", "simplec", "simultaneous"],
+                    help="override the case's solver.coupling")
     args = ap.parse_args(argv)
     levels = list(args.levels)
     if "fine" in levels and args.fine_start == "medium" and "medium" not in levels:
@@ -123,14 +130,14 @@ def main(argv: list[str] | None = None) -> int:
     print("warm-up (numba compilation) ...", flush=True)
     warm = fa.load_case(CASE).replace(
         {"mesh.file": str(ROOT / "meshes" / "step_coarse.msh"), "solver.max_iterations": 3})
-    fa.solve(warm)
+    fa.solve(warm if args.coupling is None else warm.set("solver.coupling", args.coupling))
     rows: dict[str, dict] = {}
     results: dict[str, fa.Result] = {}
     print("grid      cells  start    iters conv  wall[s]  us/cell/it   x_r/H  vs exp   corner  d99/H  Re_theta  "
           "upper zeros")
     for level in levels:
         start = results.get("medium") if level == "fine" and args.fine_start == "medium" else None
-        q, results[level] = run_level(level, args.tolerance, start, args.model)
+        q, results[level] = run_level(level, args.tolerance, start, args.model, args.coupling)
         rows[level] = q
         print(f"{level:7s} {q['cells']:7d}  {q['start']:7s} {q['iterations']:6d} {int(q['converged']):4d} "
               f"{q['wall']:8.1f} {q['us']:10.2f}   {q['xr']:6.3f} {100 * (q['xr'] / XR_EXP - 1):+6.2f}%  "

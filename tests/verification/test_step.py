@@ -1,7 +1,8 @@
 """Backward-facing step (Driver & Seegmiller 1985), Spalart-Allmaras, coarse grid of the bundled family.
 
-The case is cases/step_medium.toml run on meshes/step_coarse.msh (6 912 cells, 632 iterations,
-about 9 s on an idle machine); the medium, mixed and fine grids run in benchmarks/bench_step.py.
+The case is cases/step_medium.toml run on meshes/step_coarse.msh (6 912 cells; the case names the
+simultaneous coupling: 83 outer iterations from the uniform start); the medium, mixed and fine grids
+run in benchmarks/bench_step.py.
 
 References
 ----------
