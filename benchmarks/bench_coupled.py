@@ -69,10 +69,15 @@ here never hands over to the sparse LU, and SIMPLEC) on the generated ~400k-cell
 ``bench_parallel.py`` (``--cells``), after ``--memory-iterations`` simultaneous / 25 SIMPLEC outer
 iterations, in a fresh process: peak RSS above the interpreter's baseline (libraries and compiled
 kernels loaded) and numpy's traced peak.
---cost: seconds per outer iteration of each coupling on the cavity 128^2 and the medium plate
-(``--cost-iterations`` simultaneous, 100 SIMPLEC iterations from the uniform start), per cell, over a
-numpy triad timed in the same run, with the load average; for the simultaneous path also the seconds
-of its assembly (``_assemble``) per outer iteration.
+--cost [GRID...]: whole runs of the simultaneous path (iterative solve, forced; the case's own settings and
+stop, uniform start) on cavity 128^2 / 256^2, plate medium / fine, step coarse / medium, against SIMPLEC's
+seconds per iteration (``--simplec-iterations`` from the uniform start) on the same grid, thread count and
+machine, one right after the other: outer iterations, FGMRES iterations per outer iteration, seconds, per
+outer iteration, per cell, over a numpy triad, over SIMPLEC's; CPU use of each run = (user + system CPU
+seconds of the process, every thread) / wall seconds (2.0: both cores busy throughout); for each thread
+count of ``--threads`` after the first, the speed-up of the simultaneous run and max |u - u(first)| / max |u|;
+the 1-minute load average before / after the run. ``--forcing-max 0``: every FGMRES solve to
+system_tolerance (no forcing rule: the figures before it).
 
 Measured 2026-12-03 04:10-04:50 (2 shared cores, load 2.6-4.2), before = main 8ed3fc7 (scipy bmat/COO/products
 each outer iteration, FGMRES keeping the preconditioned vectors), after = the system refilled in place on a pattern
@@ -95,10 +100,32 @@ made once, the segregated-only state dropped, FGMRES keeping only the Krylov bas
   solve (three V-cycles per FGMRES iteration), so its cost stays 8-13x SIMPLEC's. One solve at a fixed state
   (cavity 128^2, 22 FGMRES iterations, best of 6): 0.30 s keeping the preconditioned vectors, 0.29 s keeping the
   basis only (two more preconditioner applications).
+  (--cost then ran 12 outer iterations of the cavity 128^2 and the medium plate, with an assembly column.)
+Measured 2026-12-03 07:15-07:31 (--cost, 1 thread; 2 shared cores, other processes holding 1.7-5 of them: the CPU
+use column shows the share this run got): before = every FGMRES solve to 0.01 (--forcing-max 0, load 1.7-2.9),
+after = the forcing rule (FORCING_MAX 0.02, load 2.7-5; before the one-pass Gram-Schmidt, which leaves the counts
+as they are and saved ~4 % more on the cavity 256^2); x SIMPLEC = s per outer iteration over SIMPLEC's s per
+iteration in the same process a minute later:
+    | grid (cells) | outer | FGMRES per outer | s per outer | x SIMPLEC | CPU use |  (each: before / after)
+    |---|---|---|---|---|---|
+    | cavity 128^2 (16384) | 14 / 14 | 15.4 / 14.5 | 0.306 / 0.647 | 16.6 / 14.4 | 1.23 / 0.49 |
+    | cavity 256^2 (65536) | 14 / 14 | 21.6 / 19.6 | 1.840 / 3.296 | 22.0 / 21.4 | 0.99 / 0.50 |
+    | plate medium (13056) | 34 / 34 | 7.9 / 6.3 | 0.192 / 0.263 | 6.7 / 5.6 | 1.02 / 0.67 |
+    | plate fine (52224) | 36 / 38 | 19.7 / 16.4 | 1.326 / 1.326 | 10.6 / 10.1 | 1.02 / 0.90 |
+    | step coarse (6912) | 84 / 86 | 20.0 / 16.3 | 0.193 / 0.190 | 8.4 / 7.5 | 1.11 / 0.99 |
+    | step medium (27648) | 90 / 98 | 25.8 / 18.8 | 0.871 / 0.671 | 8.5 / 6.7 | 1.07 / 1.07 |
+  Seconds across the two columns are not comparable (load); the FGMRES counts and the ratio to SIMPLEC in the same
+  process are. Total FGMRES iterations -6 % (cavity 128^2) to -21 % (step medium); outer iterations +0 to +9 %
+  (step medium 98; earlier runs at 0.01 took 90-95). Answers: step medium x_r 6.17163477 (6.17163484 at 0.01),
+  plate Cf(0.97) unchanged to 10 digits. A V-cycle is 2.0 ms at 16k rows (V(0,0), residual and transfers only:
+  1.0 ms); each FGMRES iteration takes 4 (2 Laplacian, u, v), SIMPLEC's whole iteration about 4-6: at 15-20 FGMRES
+  iterations per outer iteration the V-cycles alone are 10-15 SIMPLEC iterations' worth (cavity 256^2 profile: V-cycles
+  64 %, scipy products 11 %, Gram-Schmidt 9 %). Momentum V-cycles with one sweep instead of two: V(0,1) cavity
+  128^2 203 -> 212 FGMRES in all, but plate medium 215 -> 816 and step coarse 1405 -> 1825; V(1,0) plate 343: rejected.
 
 Run:  python benchmarks/bench_coupled.py [--families cavity plate step] [--fine-step] [--only simultaneous]
       python benchmarks/bench_coupled.py --memory cavity plate [--cells 400000] [--memory-iterations 8]
-      python benchmarks/bench_coupled.py --cost [--cost-iterations 12]
+      python benchmarks/bench_coupled.py --cost [cavity128 plate-medium ...] [--threads 1 2] [--forcing-max 0]
 """
 
 from __future__ import annotations
@@ -208,48 +235,73 @@ def memory_table(kinds: list[str], cells: int, iterations: int) -> None:
                   f"{load:4.1f}", flush=True)
 
 
-def cost_table(iterations: int) -> None:
-    """Seconds per outer iteration of both couplings on the cavity 128^2 and the medium plate."""
+COST_GRIDS = ("cavity128", "cavity256", "plate-medium", "plate-fine", "step-coarse", "step-medium")
+
+
+def _cost_problem(grid: str) -> fa.Problem:
+    """The problem of a ``--cost`` grid name (cavityN, plate-LEVEL, step-LEVEL)."""
+    if grid.startswith("cavity"):
+        return fa.prepare(fa.load_case(ROOT / "cases" / "cavity_re100.toml"), mesh=cavity(int(grid[6:])))
+    family, level = grid.split("-")
+    if family == "plate":
+        return fa.prepare(fa.load_case(ROOT / "cases" / "flat_plate_turbulent.toml"), mesh=flat_plate_family(level))
+    return fa.prepare(fa.load_case(ROOT / "cases" / "step_medium.toml"), mesh=step_family(level))
+
+
+def _timed_run(problem: fa.Problem, case) -> tuple[fa.Result, float, float]:
+    """(result, wall seconds, CPU use): CPU use = (user + system CPU seconds of the process, every
+    thread) / wall seconds, so 2.0 means both cores busy throughout."""
+    c0 = os.times()
+    t0 = time.perf_counter()
+    r = fa.solve(fa.Problem(case, problem.mesh, problem.geom, problem.boundary))
+    wall = time.perf_counter() - t0
+    c1 = os.times()
+    return r, wall, (c1.user - c0.user + c1.system - c0.system) / wall
+
+
+def cost_table(grids: list[str], thread_counts: list[int], simplec_iterations: int, forcing_max: float | None) -> None:
+    """Whole runs of the simultaneous path (iterative solve; the case's own stop) against SIMPLEC's
+    cost per iteration (``simplec_iterations`` from the uniform start) on the same grid and thread count."""
     import fvrans.solve.coupled as C
 
-    spent = [0.0]
-    assemble = C.SimultaneousSolver._assemble
-
-    def timed(self):
-        t0 = time.perf_counter()
-        out = assemble(self)
-        spent[0] += time.perf_counter() - t0
-        return out
-
-    C.SimultaneousSolver._assemble = timed
+    if forcing_max is not None:
+        C.FORCING_MAX = forcing_max  # 0: every solve to system_tolerance (no forcing)
     krylov = _count_fgmres()
-    problems = [("cavity 128^2", fa.prepare(fa.load_case(ROOT / "cases" / "cavity_re100.toml"), mesh=cavity(128))),
-                ("plate medium", fa.prepare(fa.load_case(ROOT / "cases" / "flat_plate_turbulent.toml"),
-                                            mesh=flat_plate_family("medium")))]
-    print(f"cost: {iterations} simultaneous (iterative solver) / 100 SIMPLEC outer iterations from the uniform start; "
-          "load = 1-minute load average before the run")
-    print("case          cells  coupling      its  s/it     us/cell/it  x triad  assembly s/it  FGMRES/it  load")
-    for label, problem in problems:
+    print(f"cost: simultaneous (iterative solve, FORCING_MAX {C.FORCING_MAX}) to the case's own stop, against "
+          f"{simplec_iterations} SIMPLEC iterations from the uniform start; CPU use = (user + system CPU s) / wall s; "
+          "load = 1-minute load average before / after the simultaneous run; du = max |u - u(1 thread)| / max |u|")
+    print("grid          cells  thr  outer  FGMRES/it      s    s/it  us/cell/it  x triad  SIMPLEC s/it  x SIMPLEC  "
+          "CPU use sim/SIMPLEC  speed-up  load       du")
+    for grid in grids:
+        problem = _cost_problem(grid)
         nc = problem.mesh.n_cells
-        for coupling, its in (("simultaneous", iterations), ("simplec", 100)):
-            case = problem.case.replace({"solver.coupling": coupling, "solver.system_solver": "iterative",
-                                         "solver.tolerance": 1e-14, "monitor.settle": False,
-                                         "output.write_fields": False})
-            fa.solve(fa.Problem(case.set("solver.max_iterations", 2), problem.mesh, problem.geom, problem.boundary))
-            load = os.getloadavg()[0]
-            triad = triad_seconds(nc)
-            spent[0] = 0.0
-            krylov.clear()
-            t0 = time.perf_counter()
-            r = fa.solve(fa.Problem(case.set("solver.max_iterations", its), problem.mesh, problem.geom,
+        first: dict[str, tuple[float, np.ndarray]] = {}
+        for thr in thread_counts:
+            base = problem.case.replace({"solver.threads": thr, "output.write_fields": False})
+            sim = base.replace({"solver.coupling": "simultaneous", "solver.system_solver": "iterative"})
+            seg = base.replace({"solver.coupling": "simplec", "solver.tolerance": 1e-14, "monitor.settle": False,
+                                "solver.max_iterations": simplec_iterations})
+            for warm in (sim, seg):  # numba compilation and first-call costs out of the timings
+                fa.solve(fa.Problem(warm.set("solver.max_iterations", 2), problem.mesh, problem.geom,
                                     problem.boundary))
-            wall = time.perf_counter() - t0
+            triad = triad_seconds(nc)
+            load0 = os.getloadavg()[0]
+            krylov.clear()
+            r, wall, cpu = _timed_run(problem, sim)
+            load1 = os.getloadavg()[0]
+            fg = float(np.mean(krylov)) if krylov else float("nan")
+            r2, wall2, cpu2 = _timed_run(problem, seg)
             triad = min(triad, triad_seconds(nc))
-            n = max(r.iterations, 1)
-            asm = f"{spent[0] / n:13.4f}" if coupling == "simultaneous" else f"{'-':>13s}"
-            fg = f"{np.mean(krylov):9.1f}" if krylov else f"{'-':>9s}"
-            print(f"{label:12s} {nc:6d}  {coupling:12s} {r.iterations:4d}  {wall / n:7.4f}  "
-                  f"{wall / n / nc * 1e6:10.2f}  {wall / n / triad:7.0f}  {asm}  {fg}  {load:4.1f}", flush=True)
+            per, per2 = wall / max(r.iterations, 1), wall2 / max(r2.iterations, 1)
+            if not first:
+                first["run"] = (per, r.velocity.copy())
+                speed, du = "", ""
+            else:
+                speed = f"{first['run'][0] / per:8.2f}"
+                du = f"{float(np.max(np.abs(r.velocity - first['run'][1]))) / float(np.max(np.abs(r.velocity))):8.1e}"
+            print(f"{grid:12s} {nc:6d}  {thr:3d}  {r.iterations:5d}  {fg:9.1f}  {wall:6.1f}  {per:6.3f}  "
+                  f"{per / nc * 1e6:10.2f}  {per / triad:7.0f}  {per2:12.4f}  {per / per2:9.1f}  "
+                  f"{cpu:8.2f} / {cpu2:4.2f}     {speed:>8s}  {load0:4.1f}-{load1:4.1f}  {du:>7s}", flush=True)
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -260,18 +312,22 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--memory", nargs="+", choices=["cavity", "plate"], help="memory per cell of both couplings")
     ap.add_argument("--cells", type=int, default=400_000)
     ap.add_argument("--memory-iterations", type=int, default=8)
-    ap.add_argument("--cost", action="store_true", help="seconds per outer iteration of both couplings")
-    ap.add_argument("--cost-iterations", type=int, default=12)
+    ap.add_argument("--cost", nargs="*", choices=COST_GRIDS, default=None,
+                    help="seconds per outer iteration of both couplings (whole runs; default: every grid)")
+    ap.add_argument("--threads", nargs="+", type=int, default=[1], help="thread counts of --cost (e.g. 1 2)")
+    ap.add_argument("--simplec-iterations", type=int, default=100)
+    ap.add_argument("--forcing-max", type=float, default=None,
+                    help="largest tolerance of the forcing rule (coupled.FORCING_MAX); 0: none")
     ap.add_argument("--child-memory", nargs=4, help=argparse.SUPPRESS)
     args = ap.parse_args(argv)
     if args.child_memory:
         kind, cells, iterations, coupling = args.child_memory
         print(json.dumps(_child_memory(kind, int(cells), int(iterations), coupling)))
         return 0
-    if args.memory or args.cost:
+    if args.memory or args.cost is not None:
         print(f"machine: {os.cpu_count()} cores, load average {os.getloadavg()[0]:.1f} at the start (shared)")
-        if args.cost:
-            cost_table(args.cost_iterations)
+        if args.cost is not None:
+            cost_table(args.cost or list(COST_GRIDS), args.threads, args.simplec_iterations, args.forcing_max)
         if args.memory:
             memory_table(args.memory, args.cells, args.memory_iterations)
         return 0

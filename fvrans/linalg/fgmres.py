@@ -9,6 +9,7 @@ from collections.abc import Callable
 import numpy as np
 import scipy.sparse as sp
 
+from fvrans.jit import threads
 from fvrans.linalg import _amg_kernels as _k
 from fvrans.linalg import _krylov_kernels as _kk
 from fvrans.linalg.amg import AmgKrylovSolver
@@ -23,10 +24,12 @@ def fgmres(
     Stops when ||r0 - A dx||_2 <= rtol ||r0||_2 or after ``max_iterations``; returns (dx, iterations,
     relative residual). ``flexible`` False, for an M that is one linear operator throughout: the z_k
     are not kept (half the basis memory) and each cycle ends with dx += M^-1 (V y), one more
-    application of M (the same iterates to round-off)."""
+    application of M (the same iterates to round-off). The Gram-Schmidt steps and updates run on every
+    thread (``fvrans.jit.threads``; the same bits on any thread count: ``_krylov_kernels``)."""
     n = r0.size
+    par = threads() > 1
     dx = np.zeros(n)
-    beta0 = _kk.norm2(r0)
+    beta0 = _kk.norm2(r0, par)
     if beta0 == 0.0:
         return dx, 0, 0.0
     r = r0.copy()
@@ -36,7 +39,7 @@ def fgmres(
     V = np.empty((m + 1, n))
     Z = np.empty((m if flexible else 1, n))
     while its < max_iterations:
-        beta = _kk.norm2(r)
+        beta = _kk.norm2(r, par)
         H = np.zeros((m + 1, m))
         cs = np.zeros(m)
         sn = np.zeros(m)
@@ -48,7 +51,7 @@ def fgmres(
             z = Z[k if flexible else 0]
             z[:] = prec(V[k])
             w = np.array(matvec(z), dtype=float)
-            _kk.orthogonalise(V, k, w, H[:, k])
+            _kk.orthogonalise(V, k, w, H[:, k], par)
             for i in range(k):
                 t = cs[i] * H[i, k] + sn[i] * H[i + 1, k]
                 H[i + 1, k] = -sn[i] * H[i, k] + cs[i] * H[i + 1, k]
@@ -66,11 +69,11 @@ def fgmres(
                 break
         y = _upper_solve(H[: k + 1, : k + 1], gvec[: k + 1])
         if flexible:
-            _kk.add_combination(Z, y, dx)
+            _kk.add_combination(Z, y, dx, par)
         else:
             z = Z[0]
             z[:] = 0.0
-            _kk.add_combination(V, y, z)
+            _kk.add_combination(V, y, z, par)
             dx += prec(z)
         if rel <= rtol or its >= max_iterations:
             break

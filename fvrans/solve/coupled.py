@@ -95,6 +95,16 @@ STALE_KRYLOV = 60
 FALLBACK_FACTOR = 1.0
 #: FGMRES iterations allowed per solve (after a fresh hierarchy set-up)
 MAX_KRYLOV = 200
+#: inexact-Newton forcing of the iterative solve's tolerance (Eisenstat & Walker 1996, SIAM J. Sci.
+#: Comput. 17, 16-32, their choice 2, from memory): eta_k = FORCING_GAMMA (f_k / f_(k-1))^FORCING_ALPHA,
+#: f_k the norm of the system's (row-scaled) residual at the state of outer iteration k, kept from
+#: falling fast by eta_k >= FORCING_GAMMA eta_(k-1)^FORCING_ALPHA when that exceeds 0.1, and held
+#: within [system_tolerance, FORCING_MAX]: loose while the outer residual falls slowly (a Picard step
+#: need not be solved to 1 % when the next one changes the matrix by more), the system tolerance as it
+#: falls fast
+FORCING_GAMMA = 0.9
+FORCING_ALPHA = 2.0
+FORCING_MAX = 0.02
 #: cells whose longest face is more than this many times their shortest are "stretched" for the
 #: least-squares commutator preconditioner (its momentum blocks relaxed there; see
 #: ``LeastSquaresCommutator.RELAXATION``)
@@ -213,10 +223,15 @@ class SimultaneousSolver(SimpleSolver):
         self._row_scale = None
         #: the iterative solve missed its tolerance once; the direct solve takes over
         self.fell_back = False
-        self._fresh_its: int | None = None
+        self._fresh_its: float | None = None
         self._since_setup = 0
         self._missed = False
         self.lin_residuals: list[float] = []
+        #: the relative tolerance each iterative solve was given (``FORCING_*``; ``system_tolerance``
+        #: throughout when ``forcing`` is False)
+        self.lin_tolerances: list[float] = []
+        self.forcing = True
+        self._outer_norm: float | None = None
         #: Schur complement approximation of the iterative solve: "least-squares-commutator" (the
         #: default), "convection-diffusion" (fails on the backward-facing step's recirculation) or
         #: "simple" (the SIMPLE-type baseline, whose iterations grow with the grid)
@@ -553,8 +568,10 @@ class SimultaneousSolver(SimpleSolver):
             # a solve with the kept coarse levels misses the tolerance (below)
             its = self.lin_iterations
             self._since_setup += 1
+            # (iterations per decade of residual reduction: the forcing rule varies the tolerance)
             rebuild = (self._fresh_its is None or self._since_setup > self.ctl.amg_rebuild_every
-                       or self._missed or bool(its and its[-1] > REBUILD_GROWTH * max(self._fresh_its, 1)))
+                       or self._missed or bool(its and self.lin_tolerances and its[-1] / _decades(
+                           self.lin_tolerances[-1]) > REBUILD_GROWTH * max(self._fresh_its, 0.5)))
             if self.preconditioner == "least-squares-commutator":
                 Au, Av = prec.relaxed(Au), prec.relaxed(Av)
                 Ap = self._commutator_laplacian(Au, Av)
@@ -572,20 +589,23 @@ class SimultaneousSolver(SimpleSolver):
             self._row_scale = np.concatenate([np.zeros(2 * nc), 1.0 / (self.rho * area)])
         d = self._row_scale
         d[:2 * nc] = 1.0 / A.diagonal()[:2 * nc]
-        tol = self.ctl.system_tolerance
         r0 = d * (rhs - A @ x0)
+        tol = self._forcing_tolerance(float(np.linalg.norm(r0)))
         stale = self.preconditioner != "simple" and not rebuild
         # the block preconditioner is one linear operator during a solve (V-cycles from zero,
         # products): FGMRES need not keep the preconditioned vectors (-0.48 KB per cell at RESTART 20)
-        dx, its, rel = fgmres(lambda z: d * (A @ z), lambda v: prec(v / d), r0, tol, RESTART,
+        def matvec(z: np.ndarray) -> np.ndarray:
+            return d * (A @ z)
+
+        dx, its, rel = fgmres(matvec, lambda v: prec(v / d), r0, tol, RESTART,
                               STALE_KRYLOV if stale else MAX_KRYLOV, flexible=False)
         self._missed = stale and not rel <= tol
         if self._missed:
             # the kept coarse levels no longer fit: set up anew and go on from where FGMRES stopped
             prec.update(Au, Av, Ap, rebuild=True)
             rebuild = True
-            r1 = r0 - d * (A @ dx)
-            more, its2, rel1 = fgmres(lambda z: d * (A @ z), lambda v: prec(v / d), r1,
+            r1 = r0 - matvec(dx)
+            more, its2, rel1 = fgmres(matvec, lambda v: prec(v / d), r1,
                                       tol * np.linalg.norm(r0) / np.linalg.norm(r1), RESTART, MAX_KRYLOV,
                                       flexible=False)
             dx += more
@@ -593,10 +613,24 @@ class SimultaneousSolver(SimpleSolver):
             rel = rel1 * np.linalg.norm(r1) / np.linalg.norm(r0)
         if rebuild:
             self._since_setup = 0
-            self._fresh_its = its
+            self._fresh_its = its / _decades(tol)
         self.lin_iterations.append(its)
         self.lin_residuals.append(rel)
+        self.lin_tolerances.append(tol)
         return x0 + dx
+
+    def _forcing_tolerance(self, norm: float) -> float:
+        """The relative tolerance of this outer iteration's iterative solve (``FORCING_*``), given the
+        norm of its initial (row-scaled) residual."""
+        floor = self.ctl.system_tolerance
+        previous, self._outer_norm = self._outer_norm, norm
+        if not self.forcing or previous is None or not self.lin_tolerances or not previous > 0.0:
+            return floor
+        eta = FORCING_GAMMA * (norm / previous) ** FORCING_ALPHA
+        guard = FORCING_GAMMA * self.lin_tolerances[-1] ** FORCING_ALPHA
+        if guard > 0.1:
+            eta = max(eta, guard)
+        return float(min(max(eta, floor), max(FORCING_MAX, floor)))
 
     # -- one outer iteration ------------------------------------------------------------------
     def iterate(self) -> list[float]:
@@ -609,7 +643,7 @@ class SimultaneousSolver(SimpleSolver):
             x = self._solve_direct(A, rhs)
         else:
             x = self._solve_gmres(A, rhs)
-            if not self.lin_residuals[-1] <= FALLBACK_FACTOR * self.ctl.system_tolerance:
+            if not self.lin_residuals[-1] <= FALLBACK_FACTOR * self.lin_tolerances[-1]:
                 # the block preconditioner does not fit this flow (seen on turbulent wall layers while
                 # the eddy viscosity develops): the sparse LU from here on
                 log.info("simultaneous solve: FGMRES reached %.2g (tolerance %g) in %d iterations; "
@@ -643,6 +677,11 @@ class SimultaneousSolver(SimpleSolver):
         self._parts = None  # the blocks of this iteration's system: not held while the next is assembled
         self.iteration += 1
         return res
+
+
+def _decades(tol: float) -> float:
+    """Decades of residual reduction a relative tolerance asks for (at least 0.5)."""
+    return max(float(-np.log10(tol)), 0.5)
 
 
 def solver_class(coupling: str) -> type[SimpleSolver]:

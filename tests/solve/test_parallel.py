@@ -363,3 +363,49 @@ def test_thread_switch(monkeypatch):
     monkeypatch.setenv(jit.THREADS_VARIABLE, "two")
     with pytest.raises(CaseError, match="FVRANS_THREADS"):
         jit.set_threads()
+
+
+def test_krylov_basis_kernels_give_the_same_bits_on_one_and_two_threads():
+    """The Gram-Schmidt step, norm and basis combination of FGMRES (``_krylov_kernels``) on a vector of
+    2 PARALLEL_MIN_CELLS + 7 unknowns (not a multiple of the 16 chunks): two threads give the bits of
+    one, and the numbers are numpy's to round-off (classical Gram-Schmidt against an orthonormal basis
+    leaves w orthogonal to it, with a second pass when the first cancelled most of w; h holds the
+    projections V w, then ||w||)."""
+    from fvrans.linalg import _krylov_kernels as KK
+
+    n, k = 2 * jit.PARALLEL_MIN_CELLS + 7, 6
+    rng = np.random.default_rng(11)
+    V0 = np.zeros((k + 2, n))
+    V0[: k + 1] = np.linalg.qr(rng.normal(size=(n, k + 1)))[0].T
+    w0 = rng.normal(size=n)
+    y = rng.normal(size=k + 1)
+
+    def kernels():
+        V, w, h, x = V0.copy(), w0.copy(), np.zeros(k + 2), w0.copy()
+        par = jit.threads() > 1
+        KK.orthogonalise(V, k, w, h, par)
+        KK.add_combination(V0[: k + 1], y, x, par)
+        return V, w, h, x, np.array([KK.norm2(w0, par)])
+
+    V, w, h, x, nrm = same_bits(kernels)
+    proj = V0[: k + 1] @ w0
+    rest = w0 - proj @ V0[: k + 1]
+    np.testing.assert_allclose(h[: k + 1], proj, rtol=0, atol=1e-12 * np.linalg.norm(w0))
+    np.testing.assert_allclose(h[k + 1], np.linalg.norm(rest), rtol=1e-12)
+    np.testing.assert_allclose(w, rest, rtol=0, atol=1e-12 * np.linalg.norm(w0))
+    np.testing.assert_allclose(V[k + 1], rest / np.linalg.norm(rest), rtol=0, atol=1e-12)
+    assert np.abs(V0[: k + 1] @ w).max() < 1e-12 * np.linalg.norm(w0)
+    np.testing.assert_allclose(x, w0 + y @ V0[: k + 1], rtol=0, atol=1e-12 * np.linalg.norm(x))
+    np.testing.assert_allclose(nrm[0], np.linalg.norm(w0), rtol=1e-13)
+    # w nearly in the span of V: one pass would leave it orthogonal to ~1e-10 of its length only
+    # (cancellation); the second pass, which this case must trigger, makes it 1e-13
+    near = y @ V0[: k + 1] + 1e-6 * rng.normal(size=n) / np.sqrt(n)
+
+    def nearly_dependent():
+        V, w, h = V0.copy(), near.copy(), np.zeros(k + 2)
+        KK.orthogonalise(V, k, w, h, jit.threads() > 1)
+        return V, w, h
+
+    V, w, h = same_bits(nearly_dependent)
+    assert np.abs(V0[: k + 1] @ V[k + 1]).max() < 1e-13
+    np.testing.assert_allclose(h[: k + 1], V0[: k + 1] @ near, rtol=0, atol=1e-12 * np.linalg.norm(near))

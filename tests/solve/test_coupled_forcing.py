@@ -1,0 +1,39 @@
+"""The tolerance of the simultaneous path's iterative solves (``SimultaneousSolver._forcing_tolerance``):
+the forcing rule of inexact Newton methods, Eisenstat & Walker 1996 (SIAM J. Sci. Comput. 17, 16-32),
+their choice 2 (from memory): eta_k = gamma (f_k / f_(k-1))^alpha with the safeguard
+eta_k >= gamma eta_(k-1)^alpha when that exceeds 0.1, here held within [system_tolerance, FORCING_MAX].
+The expected values below are worked out by hand from that formula."""
+
+from __future__ import annotations
+
+import pytest
+from flows import CAVITY, simultaneous_solver
+
+import fvrans.solve.coupled as coupled
+from fvrans.mesh.generate import cavity
+
+
+def test_forcing_tolerance_follows_eisenstat_walker_choice_2(monkeypatch):
+    monkeypatch.setattr(coupled, "FORCING_GAMMA", 0.9)
+    monkeypatch.setattr(coupled, "FORCING_ALPHA", 2.0)
+    monkeypatch.setattr(coupled, "FORCING_MAX", 0.5)
+    solver = simultaneous_solver(cavity(8), CAVITY, system_solver="iterative", system_tolerance=0.001)
+    rule = solver._forcing_tolerance
+
+    def step(norm):
+        eta = rule(norm)
+        solver.lin_tolerances.append(eta)
+        return eta
+
+    assert step(1.0) == 0.001  # no earlier outer residual: the system tolerance
+    assert step(0.5) == pytest.approx(0.9 * 0.5**2)  # 0.225
+    # ratio 0.1: 0.9 * 0.01 = 0.009; safeguard 0.9 * 0.225^2 = 0.0456 < 0.1, not applied
+    assert step(0.05) == pytest.approx(0.009)
+    solver.lin_tolerances[-1] = 0.5
+    # after eta = 0.5 the safeguard 0.9 * 0.25 = 0.225 > 0.1 holds eta up
+    assert step(0.005) == pytest.approx(0.225)
+    assert step(0.005) == 0.5  # ratio 1: 0.9, capped at FORCING_MAX
+    assert step(1e-6) == pytest.approx(0.225)  # a fast fall, but the safeguard after eta = 0.5
+    assert step(1e-9) == 0.001  # 0.9 * 0.225^2 < 0.1: down to the system tolerance, not below
+    solver.forcing = False
+    assert step(1e-3) == 0.001
