@@ -42,7 +42,9 @@ outer iteration (max), seconds):
       step 85 / 93 its, 19.9 (76) / 24.3 (95), 14.7 / 96.8 s; plate 38 / 46 its, 4.8 / 8.0, 1.3 / 7.6 s;
       cavity (uniform quads, no cell relaxed) 64^2 / 256^2 12.4 / 21.6, 1.2 / 43.3 s
   step fine (111k cells): the second outer iteration's solve missed its tolerance (260 FGMRES its), the
-      sparse LU took over (RSS 4.2 GB); stopped
+      sparse LU took over (RSS 4.2 GB); stopped. With the start-up shift the step cases name
+      (momentum_start_shift = 0.1, 2026-12-03 07:27-08:01, load 4.7-6.4, triad 0.060 ms): 96 outer its, no
+      hand-over, 86.1 (154) FGMRES per outer, 2 040 s (97 % linear solve), x_r 6.17723901
 Measured earlier with system_solver = "direct" (heavily loaded; iterations SIMPLEC -> simultaneous):
   cavity 64^2 / 128^2 / 256^2: 209 / 715 / 2713 -> 40 / 40 / 42 its; 2.4 / 37.2 / 568.9 s -> 3.8 / 24.9 / 55.3 s;
       us per cell and iteration 2.8-3.2 -> 20-38; max |du| / U 3.5e-6 / 7.5e-6 / 9.3e-6

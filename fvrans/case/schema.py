@@ -276,6 +276,7 @@ class SolverSettings:
     turbulence_cfl: float | None = None
     system_solver: str = "by-size"
     system_tolerance: float = 0.01
+    momentum_start_shift: float = 0.0
     #: threads of the parallel kernels; 0: the FVRANS_THREADS variable, else every idle core (fvrans.jit)
     threads: int = 0
 
@@ -594,6 +595,7 @@ def _case_data(case: Case, keep_callables: bool) -> dict[str, Any]:
             "turbulence_cfl": s.turbulence_cfl,
             "system_solver": s.system_solver,
             "system_tolerance": s.system_tolerance,
+            "momentum_start_shift": s.momentum_start_shift,
             "threads": s.threads,
         },
         "output": output,

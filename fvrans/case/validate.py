@@ -48,7 +48,7 @@ TABLE_KEYS: dict[str, tuple[str, ...]] = {
         "momentum_sweeps", "turbulence_solver", "turbulence_tolerance", "turbulence_max_iterations",
         "amg_rebuild_every",
         "divergence_factor", "checkpoint_every", "conservative_start", "turbulence_cfl",
-        "system_solver", "system_tolerance",
+        "system_solver", "system_tolerance", "momentum_start_shift",
         "threads",
     ),
     "output": (
@@ -860,6 +860,8 @@ def _solver(ctx: _Ctx, data: Any, turbulence: str = "none") -> S.SolverSettings:
                                 "the CFL number of the turbulence pseudo-time steps; 0 turns them off"),
         system_solver=t.choice("system_solver", S.SYSTEM_SOLVERS, "by-size"),
         system_tolerance=t.number("system_tolerance", 0.01, OPEN_UNIT, "a relative tolerance"),
+        momentum_start_shift=t.number("momentum_start_shift", 0.0, NON_NEGATIVE,
+                                      "a fraction of the momentum diagonal; 0 turns the start-up shift off"),
         threads=t.integer("threads", 0, NON_NEGATIVE,
                           "threads of the numerical kernels; 0 takes FVRANS_THREADS or every idle core"),
     )

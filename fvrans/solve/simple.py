@@ -104,7 +104,9 @@ class SolverControls:
     outer iterations it made grow with the grid). ``momentum_cfl``
     (off; not a case key): the same for the momentum equations, beside Patankar's relaxation; it
     sped up some cases and slowed or stalled others (DEVELOPERS.md), kept for the study of
-    pseudo-transient continuation.
+    pseudo-transient continuation. ``momentum_start_shift``: the simultaneous path's start-up shift of
+    the momentum diagonals with its iterative solve (``coupled.SimultaneousSolver._start_shift``; off
+    unless the case names it: the step's case does).
     """
 
     coupling: str = "simplec"
@@ -125,6 +127,7 @@ class SolverControls:
     conservative_start: bool = True
     turbulence_cfl: float | None = None
     momentum_cfl: float = 0.0
+    momentum_start_shift: float = 0.0
     system_solver: str = "by-size"
     system_tolerance: float = 0.01
     eddy_viscosity_relaxation: float = 0.5
@@ -336,7 +339,9 @@ class SimpleSolver:
         bmode[boundary.kind == SYMMETRY] = stress_modes.NORMAL
         self.stress_divergence = StressDivergence(mesh, geom, bmode)
         self.div_stress = np.zeros((nc, 2))
-        if fields is None or not np.any(fields.face_flux):
+        #: a start without face fluxes (uniform or at rest), which ``conservative_start`` projects
+        self.cold_start = fields is None or not np.any(fields.face_flux)
+        if self.cold_start:
             self.fields.face_flux = self._interpolated_fluxes(self.fields.velocity)
             if self.ctl.conservative_start:
                 self._project_start()

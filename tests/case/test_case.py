@@ -217,7 +217,7 @@ def test_round_trip_through_dict_and_toml(base, full_case_file):
         assert case_from_dict(tomllib.loads(c.to_toml())) == c
         assert tomllib.loads(c.to_toml()) == d  # to_dict is plain TOML data
         # every key is filled in: the solver and output tables are complete
-        assert len(d["solver"]) == 26 and len(d["output"]) == 6
+        assert len(d["solver"]) == 27 and len(d["output"]) == 6
         # equality is not trivial: a changed setting makes a different case
         assert c.set("solver.relax_velocity", 0.55) != c
 
