@@ -19,7 +19,8 @@ import math
 import os
 import threading
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
 from typing import Any
 
 #: what a run says once when it starts compiling (the terminal would otherwise sit silent)
@@ -107,6 +108,19 @@ def set_threads(n: int | None = None) -> int:
     return k
 
 
+@contextmanager
+def one_blas_thread() -> Iterator[None]:
+    """Inside: the BLAS library under numpy and scipy (OpenBLAS, MKL) on one thread, restored after
+    (``threadpoolctl``). The solvers' threads are their kernels' (``set_threads``); a BLAS pool of its
+    own beside them spins on the cores those need: on two idle cores the simultaneous path ran a
+    13k-cell plate iteration in 0.094 s on one kernel thread and 0.130 s on two, with 1.8 cores busy
+    either way; with BLAS on one thread 0.098 and 0.099 s (benchmarks/bench_coupled.py --cost)."""
+    from threadpoolctl import threadpool_limits
+
+    with threadpool_limits(limits=1, user_api="blas"):
+        yield
+
+
 class CompileWatch:
     """Context manager: ``seconds`` spent compiling kernels inside it and ``count`` of kernels
     compiled; ``on_first()`` is called when the first compilation starts (once)."""
@@ -164,4 +178,4 @@ class CompileWatch:
 
 
 __all__ = ["COMPILE_MESSAGE", "PARALLEL_MIN_CELLS", "PARALLEL_MIN_HEAVY", "THREADS_VARIABLE", "CompileWatch",
-           "available_threads", "idle_cores", "requested_threads", "set_threads", "threads"]
+           "available_threads", "idle_cores", "one_blas_thread", "requested_threads", "set_threads", "threads"]

@@ -45,7 +45,7 @@ from fvrans.fv.assembly import CsrAssembler
 from fvrans.fv.gradient import GaussLeastSquaresGradient, QuadraticFit, gradient_operator
 from fvrans.fv.stress import StressDivergence
 from fvrans.fv.wall_gradient import WallGradient
-from fvrans.jit import set_threads
+from fvrans.jit import one_blas_thread, set_threads
 from fvrans.linalg.amg import AmgKrylovSolver
 from fvrans.linalg.pressure import PressureSolver
 from fvrans.mesh.geometry import Geometry
@@ -617,6 +617,17 @@ class SimpleSolver:
         return True to stop early. ``converged_when(iteration, residuals)``, asked only when every
         residual is below the tolerance, must also return True for the run to stop as converged.
         """
+        with one_blas_thread():
+            return self._iterate_until(max_iterations, tolerance, callback, converged_when)
+
+    def _iterate_until(
+        self,
+        max_iterations: int | None,
+        tolerance: float | None,
+        callback: Callable[[int, list[float]], bool | None] | None,
+        converged_when: Callable[[int, list[float]], bool] | None,
+    ) -> bool:
+        """The loop of :meth:`run`."""
         n_max = self.ctl.max_iterations if max_iterations is None else max_iterations
         tol = self.ctl.tolerance if tolerance is None else tolerance
         best = None
