@@ -19,6 +19,15 @@ CHANNEL = {
     "lower_wall": {"kind": "wall"},
     "upper_wall": {"kind": "wall"},
 }
+#: a backward-facing step (``fvrans.mesh.generate.backward_facing_step``): uniform inflow 1, outlet
+#: pressure 0, no-slip walls
+STEP = {
+    "inlet": {"kind": "inflow-velocity", "velocity": [1.0, 0.0]},
+    "outlet": {"kind": "outflow-pressure", "pressure": 0.0},
+    "lower_wall": {"kind": "wall"},
+    "step_face": {"kind": "wall"},
+    "upper_wall": {"kind": "wall"},
+}
 
 
 def simultaneous_solver(mesh, specs, rho=1.0, mu=0.01, **controls):

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from flows import solve
+from flows import STEP, solve
 
 from fvrans.errors import DivergenceError
 from fvrans.mesh import Mesh
@@ -76,14 +76,7 @@ def test_reverse_flow_through_an_outlet_converges():
     the outlet takes fluid in, and the run still converges."""
     mesh = backward_facing_step(x_in=-2.0, x_out=2.5, nx_up=12, nx_down=24, ny_upper=24, ny_lower=12,
                                 wall_spacing=0.01, outlet_spacing=0.1)
-    specs = {
-        "inlet": {"kind": "inflow-velocity", "velocity": [1.0, 0.0]},
-        "outlet": {"kind": "outflow-pressure", "pressure": 0.0},
-        "lower_wall": {"kind": "wall"},
-        "step_face": {"kind": "wall"},
-        "upper_wall": {"kind": "wall"},
-    }
-    solver, converged = solve(mesh, specs, mu=0.005, tolerance=1e-6, max_iterations=3000)
+    solver, converged = solve(mesh, STEP, mu=0.005, tolerance=1e-6, max_iterations=3000)
     assert converged
     out = solver.fields.face_flux[solver.mesh.patch("outlet").faces]
     assert np.any(out < 0), "the outlet should see reverse flow in this set-up"

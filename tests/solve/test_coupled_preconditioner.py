@@ -8,24 +8,16 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from flows import simultaneous_solver
+from flows import STEP, simultaneous_solver
 
 import fvrans.solve.coupled as coupled
 from fvrans.mesh.generate import backward_facing_step
 
-#: the laminar step of cases/step_laminar.toml (step height 8, outlet channel 16, mu 0.02, U 1) with
-#: uniform inflow over the upstream channel
-STEP = {
-    "inlet": {"kind": "inflow-velocity", "velocity": [1.0, 0.0]},
-    "outlet": {"kind": "outflow-pressure", "pressure": 0.0},
-    "lower_wall": {"kind": "wall"},
-    "step_face": {"kind": "wall"},
-    "upper_wall": {"kind": "wall"},
-}
-
 
 def _step(level: int):
-    """The step at 672 (level 1) or 2 688 cells (level 2): every spacing halved."""
+    """The laminar step of cases/step_laminar.toml (step height 8, outlet channel 16; run at mu 0.02,
+    U 1) with uniform inflow over the upstream channel, at 672 (level 1) or 2 688 cells (level 2): every
+    spacing halved."""
     return backward_facing_step(x_in=-4.0, x_out=480.0, nx_up=4 * level, nx_down=40 * level, ny_upper=8 * level,
                                 ny_lower=8 * level, wall_spacing=0.4 / level, corner_spacing=0.8 / level,
                                 outlet_spacing=24.0 / level, step_height=8.0)

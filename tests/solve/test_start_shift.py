@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from flows import CAVITY, simultaneous_solver
+from flows import CAVITY, STEP, simultaneous_solver
 
 import fvrans.solve.coupled as coupled
 from fvrans.mesh import compute_geometry
@@ -19,19 +19,11 @@ from fvrans.mesh.generate import backward_facing_step, cavity
 from fvrans.physics.boundary import build_flow_boundary
 from fvrans.solve.simple import SolverControls
 
-#: a laminar step (step height 8, as in tests/solve/test_coupled_preconditioner.py) with thin wall cells
-#: (first spacing 0.05, aspect ratios up to ~60) and a low viscosity (Re 8e4 on the step height): the
-#: recirculation's momentum blocks are nearly singular from the first outer iterations
-STEP = {
-    "inlet": {"kind": "inflow-velocity", "velocity": [1.0, 0.0]},
-    "outlet": {"kind": "outflow-pressure", "pressure": 0.0},
-    "lower_wall": {"kind": "wall"},
-    "step_face": {"kind": "wall"},
-    "upper_wall": {"kind": "wall"},
-}
-
 
 def _thin_step():
+    """A laminar step (step height 8, as in tests/solve/test_coupled_preconditioner.py) with thin wall
+    cells (first spacing 0.05, aspect ratios up to ~60); run at a low viscosity (Re 8e4 on the step
+    height), the recirculation's momentum blocks are nearly singular from the first outer iterations."""
     return backward_facing_step(x_in=-4.0, x_out=480.0, nx_up=4, nx_down=40, ny_upper=8, ny_lower=8,
                                 wall_spacing=0.05, corner_spacing=0.1, outlet_spacing=24.0, step_height=8.0)
 
