@@ -106,7 +106,9 @@ class SolverControls:
     sped up some cases and slowed or stalled others (DEVELOPERS.md), kept for the study of
     pseudo-transient continuation. ``momentum_start_shift``: the simultaneous path's start-up shift of
     the momentum diagonals with its iterative solve (``coupled.SimultaneousSolver._start_shift``; off
-    unless the case names it: the step's case does).
+    unless the case names it: the step's case does). ``newton_convection_below`` (not a case key; 0
+    turns it off): the simultaneous path linearises the convection term by Newton's method instead of
+    Picard's once every normalised imbalance is below it (``coupled.SimultaneousSolver._newton``).
     """
 
     coupling: str = "simplec"
@@ -131,6 +133,7 @@ class SolverControls:
     system_solver: str = "by-size"
     system_tolerance: float = 0.01
     eddy_viscosity_relaxation: float = 0.5
+    newton_convection_below: float = 1e-4
     threads: int = 0
 
     def __post_init__(self) -> None:
