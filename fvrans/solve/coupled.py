@@ -29,7 +29,10 @@ gradient after the solve is the extrapolation's fixed point (``_pressure_gradien
 changes the converged answer. From a uniform start with the iterative solve, the first outer
 iterations shift the momentum diagonals by a fraction of a_P that halves every iteration
 (``_start_shift``): a pseudo-time step that keeps the first systems of a recirculating flow solvable
-and leaves the fixed point alone. The turbulence model stays segregated: ``model.update`` once per outer
+and leaves the fixed point alone. Once every residual is below ``SolverControls.newton_convection_below``
+and the sparse LU solves the systems, convection is linearised by Newton's method instead of Picard's
+(``_newton``): the Picard steps' slow contraction in the step's separating shear layer set the outer
+iteration count there. The turbulence model stays segregated: ``model.update`` once per outer
 iteration, as in :class:`fvrans.solve.simple.SimpleSolver`, whose loop (``run``, the hooks, the
 divergence guard, residuals, fields) this class inherits. The converged answer is the segregated
 loop's: every equation is the same at convergence (residuals of ``fvrans.fv.residual``).
@@ -215,7 +218,9 @@ class SimultaneousSolver(SimpleSolver):
         self._cind, self._cidx = compact.indptr, compact.indices
         self.G = self._gradient_matrix()
         self._wall, self._wall_stencil, wall_cells = self._wall_flux_pattern()
-        if self.ctl.newton_convection_below > 0.0:
+        #: Newton's linearisation of convection may be taken (``_newton``): with the sparse LU only
+        self.newton_allowed = self.ctl.newton_convection_below > 0.0 and self.system_solver == "direct"
+        if self.newton_allowed:
             # the Newton part of the convection term couples u and v on the compact structure
             wall_cells = _merged_rows(self._cind, self._cidx, *wall_cells)
         self._A = self._system_pattern(*wall_cells)
@@ -447,9 +452,13 @@ class SimultaneousSolver(SimpleSolver):
         steps come first (Elman, Silvester & Wathen 2005, Finite Elements and Fast Iterative Solvers,
         sec. 7.3, from memory, for the same hybrid). Gated on every residual rather than the flow's alone:
         while the turbulence model's equation is far from converged, Newton's steps slowed the plate
-        (coarse: 28 -> 32 outer iterations)."""
+        (coarse: 28 -> 32 outer iterations). Only with the sparse LU (``newton_allowed``): the iterative
+        solve's block preconditioner keeps Picard's momentum blocks, and FGMRES then needed 3.4 times the
+        iterations per outer iteration (medium step: 58 outer iterations, 68 FGMRES each, against 99 and
+        20 with Picard's: the linear solves took longer); its multigrid hierarchies of the blocks with the
+        Newton part (not M-matrices) missed the tolerance and the LU took over."""
         below = self.ctl.newton_convection_below
-        if below <= 0.0 or not self.history.rows:
+        if not self.newton_allowed or not self.history.rows:
             return False
         return max(res) <= below and max(self.history.rows[-1]) <= below
 

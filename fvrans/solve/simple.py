@@ -108,7 +108,8 @@ class SolverControls:
     the momentum diagonals with its iterative solve (``coupled.SimultaneousSolver._start_shift``; off
     unless the case names it: the step's case does). ``newton_convection_below`` (not a case key; 0
     turns it off): the simultaneous path linearises the convection term by Newton's method instead of
-    Picard's once every normalised imbalance is below it (``coupled.SimultaneousSolver._newton``).
+    Picard's once every normalised imbalance is below it, when its systems are solved by the sparse LU
+    (``coupled.SimultaneousSolver._newton``).
     """
 
     coupling: str = "simplec"
