@@ -142,6 +142,9 @@ EXTRAPOLATION_LIMIT = 3.0
 #: outer iteration and dropped below START_SHIFT_FLOOR of its first value (after 14 iterations)
 START_SHIFT_DECAY = 0.5
 START_SHIFT_FLOOR = 1e-4
+#: Anderson acceleration of the outer iteration (``_accelerate``) acts once every normalised imbalance of
+#: two successive iterations is below this
+ANDERSON_BELOW = 1e-4
 #: attributes of :class:`SimpleSolver` that only its own iteration uses, dropped here
 SEGREGATED_ONLY = ("psolver", "msolver", "us", "vs", "hbya", "rau", "beta", "dp", "pc", "pcb", "gpc")
 #: its work arrays that only the assembly of the system uses (the momentum equations' face work,
@@ -266,6 +269,13 @@ class SimultaneousSolver(SimpleSolver):
         self.newton = False
         #: boundary faces whose mass flux follows the cell velocity (given pressure, outer flow)
         self._flux_faces = (self.ni + np.flatnonzero(self.fixed)).astype(np.int64)
+        #: history depth of the Anderson acceleration (``_accelerate``; ``SolverControls.anderson_depth``,
+        #: None: 3 with the sparse LU, 0 (off) with the iterative solve)
+        depth = self.ctl.anderson_depth
+        self.anderson_depth = int(depth) if depth is not None else (3 if self.system_solver == "direct" else 0)
+        self._anderson: dict[str, Any] = {}
+        #: the mixing coefficients of the last accelerated iteration (empty when it was not accelerated)
+        self.anderson_gamma = np.zeros(0)
 
     def _assembly_work(self, make: bool) -> None:
         """Make (zeros) or let go the work arrays of ``ASSEMBLY_ONLY``."""
@@ -704,6 +714,7 @@ class SimultaneousSolver(SimpleSolver):
         """One outer iteration; returns the normalised imbalances [u, v, continuity, ...]."""
         fl = self.fields
         rho, ni, g, kind, nc = self.rho, self.ni, self.geom, self.bc.kind, self.nc
+        before = self._outer_state() if self.anderson_depth > 0 else None
         A, rhs, res = self._assemble()
         t0 = time.perf_counter()
         if self.system_solver == "direct" or self.fell_back:
@@ -742,8 +753,71 @@ class SimultaneousSolver(SimpleSolver):
             res += self.model.update(fl, self.grad(u_new, ub2),
                                      self.flow_rate / self.ctl.turbulence_cfl if self.use_turbulence_cfl else None)
         self._parts = None  # the blocks of this iteration's system: not held while the next is assembled
+        if before is not None:
+            self._accelerate(before, res)
         self.iteration += 1
         return res
+
+    def _outer_state(self) -> list[np.ndarray]:
+        """What one outer iteration maps to the next (copies): u, v, p, the model's variables (by name),
+        the face fluxes and the eddy viscosity the momentum equations see (``_mu_t``, when there is one)."""
+        fl = self.fields
+        out = [fl.velocity[:, 0].copy(), fl.velocity[:, 1].copy(), np.array(fl.pressure, dtype=float)]
+        out += [np.array(fl.variables[k], dtype=float) for k in sorted(fl.variables)]
+        out.append(np.array(fl.face_flux, dtype=float))
+        if self._mu_t is not None:
+            out.append(self._mu_t.copy())
+        return out
+
+    def _accelerate(self, before: list[np.ndarray], res: list[float]) -> None:
+        """Anderson acceleration of the outer fixed point x = G(x) (Anderson 1965, J. ACM 12, 547-560;
+        the form of Walker & Ni 2011, SIAM J. Numer. Anal. 49, 1715-1735, from memory): with the
+        residuals f_j = G(x_j) - x_j of the last ``anderson_depth`` + 1 iterations, gamma minimises
+        |f_k - dF gamma| (dF the differences of successive f) and the next state is G(x_k) - dG gamma
+        (dG those of G). The state is ``_outer_state``; f weighs u and v by 1/U, p by 1/(rho U^2) and each
+        model variable by 1/max|value| (fluxes and the lagged eddy viscosity are mixed, not weighed:
+        left unmixed they stalled the step). Only once every normalised imbalance of this iteration and
+        the last is below ``ANDERSON_BELOW`` (from a uniform start the early steps are far from linear;
+        the history starts anew whenever the condition fails). Every combination has coefficients
+        summing to 1, so conservative fluxes stay conservative; at the fixed point f = 0 and the state is
+        G's. Coarse step, sparse LU, with Newton's convection: 46 -> 40 outer iterations (medium 50 ->
+        46); with Picard's and the iterative solve (medium) 99 -> 79, FGMRES per outer 20.3 -> 21.7."""
+        h = self._anderson
+        self.anderson_gamma = np.zeros(0)
+        if not (self.history.rows and max(self.history.rows[-1]) <= ANDERSON_BELOW and max(res) <= ANDERSON_BELOW):
+            h.clear()
+            return
+        after = self._outer_state()
+        nx = 3 + len(self.fields.variables)
+        U = self.u_scale
+        weights = [1.0 / U, 1.0 / U, 1.0 / (self.rho * U * U)]
+        weights += [1.0 / max(float(np.abs(v).max()), 1e-300) for v in after[3:nx]]
+        f = np.concatenate([w * (a - b) for w, a, b in zip(weights, after[:nx], before[:nx])])
+        if "f" in h:
+            h["dF"].append(f - h["f"])
+            h["dG"].append([a - b for a, b in zip(after, h["g"])])
+            if len(h["dF"]) > self.anderson_depth:
+                del h["dF"][0], h["dG"][0]
+        else:
+            h["dF"], h["dG"] = [], []
+        h["f"], h["g"] = f, after
+        if not h["dF"]:
+            return
+        gamma = np.linalg.lstsq(np.column_stack(h["dF"]), f, rcond=None)[0]
+        mixed = [a.copy() for a in after]
+        for gj, dg in zip(gamma, h["dG"]):
+            for m, d in zip(mixed, dg):
+                m -= gj * d
+        fl = self.fields
+        fl.velocity = np.column_stack(mixed[:2])
+        fl.pressure = mixed[2]
+        for k, name in enumerate(sorted(fl.variables)):
+            fl.variables[name] = mixed[3 + k]
+        fl.face_flux = mixed[nx]
+        if self._mu_t is not None:
+            self._mu_t = mixed[nx + 1]
+        self.grad_p = self._pressure_gradient(fl.pressure, self.grad_p)
+        self.anderson_gamma = gamma
 
 
 def _merged_rows(cind: np.ndarray, cidx: np.ndarray, wptr: np.ndarray, wcells: np.ndarray) -> tuple[np.ndarray, ...]:
