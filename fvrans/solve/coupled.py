@@ -145,6 +145,12 @@ START_SHIFT_FLOOR = 1e-4
 #: Anderson acceleration of the outer iteration (``_accelerate``) acts once every normalised imbalance of
 #: two successive iterations is below this
 ANDERSON_BELOW = 1e-4
+#: Newton's convection and Anderson's acceleration are taken once Picard's steps are seen to be slow
+#: (``_picard_is_slow``): the largest imbalance falling by less than SLOW_PICARD per iteration over
+#: SLOW_OVER iterations, while it is between SLOW_FLOOR and the thresholds above
+SLOW_PICARD = 0.6
+SLOW_OVER = 3
+SLOW_FLOOR = 1e-10
 #: attributes of :class:`SimpleSolver` that only its own iteration uses, dropped here
 SEGREGATED_ONLY = ("psolver", "msolver", "us", "vs", "hbya", "rau", "beta", "dp", "pc", "pcb", "gpc")
 #: its work arrays that only the assembly of the system uses (the momentum equations' face work,
@@ -276,6 +282,8 @@ class SimultaneousSolver(SimpleSolver):
         self._anderson: dict[str, Any] = {}
         #: the mixing coefficients of the last accelerated iteration (empty when it was not accelerated)
         self.anderson_gamma = np.zeros(0)
+        #: Picard's outer iterations were seen to contract slowly in this run (``_picard_is_slow``)
+        self.slow_picard = False
 
     def _assembly_work(self, make: bool) -> None:
         """Make (zeros) or let go the work arrays of ``ASSEMBLY_ONLY``."""
@@ -451,26 +459,42 @@ class SimultaneousSolver(SimpleSolver):
         return A, rhs, res
 
     def _newton(self, res: list[float]) -> bool:
-        """Whether this outer iteration linearises convection by Newton's method: once every normalised
-        imbalance of the last iteration (the model's too) and the flow's at the current state are below
-        ``SolverControls.newton_convection_below``. Picard's linearisation, F_old u_new, contracts the
-        error of a separating shear layer slowly: 0.77-0.8 per outer iteration in the cells behind the
-        step's lip with the eddy viscosity frozen (coarse step; 0.72 with upwind convection), 0.45 with
-        the Newton part (F(u_new) - F(u_old)) phi_old added (``_coupled_kernels.convection_newton``; the
-        Newton-like linearisation of Ferziger & Peric 2002, Computational Methods for Fluid Dynamics, sec.
-        5.4, from memory). From a uniform start Newton's step diverges (step, iteration 2): Picard's
-        steps come first (Elman, Silvester & Wathen 2005, Finite Elements and Fast Iterative Solvers,
-        sec. 7.3, from memory, for the same hybrid). Gated on every residual rather than the flow's alone:
-        while the turbulence model's equation is far from converged, Newton's steps slowed the plate
-        (coarse: 28 -> 32 outer iterations). Only with the sparse LU (``newton_allowed``): the iterative
-        solve's block preconditioner keeps Picard's momentum blocks, and FGMRES then needed 3.4 times the
-        iterations per outer iteration (medium step: 58 outer iterations, 68 FGMRES each, against 99 and
-        20 with Picard's: the linear solves took longer); its multigrid hierarchies of the blocks with the
-        Newton part (not M-matrices) missed the tolerance and the LU took over."""
+        """Whether this outer iteration linearises convection by Newton's method: once every normalised imbalance
+        of the last iteration (the model's too) and the flow's at the current state are below
+        ``SolverControls.newton_convection_below``. Picard's linearisation, F_old u_new, contracts the error of
+        a separating shear layer slowly: 0.77-0.8 per outer iteration in the cells behind the step's lip with
+        the eddy viscosity frozen (coarse step; 0.72 with upwind convection), 0.45 with the Newton part
+        (F(u_new) - F(u_old)) phi_old added (``_coupled_kernels.convection_newton``, which takes its convective
+        form; the Newton-like linearisation of Ferziger & Peric 2002, Computational Methods for Fluid Dynamics,
+        sec. 5.4, from memory). From a uniform start Newton's step diverges (step, iteration 2): Picard's steps
+        come first (Elman, Silvester & Wathen 2005, Finite Elements and Fast Iterative Solvers, sec. 7.3, from
+        memory, for the same hybrid). Gated on every residual rather than the flow's alone: while the
+        turbulence model's equation is far from converged, Newton's steps slowed the plate (coarse: 28 -> 32
+        outer iterations). Only with the sparse LU (``newton_allowed``): the iterative solve's block
+        preconditioner keeps Picard's momentum blocks, and FGMRES then needed 3.4 times the iterations per
+        outer iteration (medium step: 58 outer iterations, 68 FGMRES each, against 99 and 20 with Picard's: the
+        linear solves took longer); its multigrid hierarchies of the blocks with the Newton part (not
+        M-matrices) missed the tolerance and the LU took over."""
         below = self.ctl.newton_convection_below
+        # also only once Picard's steps are seen to be slow (``_picard_is_slow``)
         if not self.newton_allowed or not self.history.rows:
             return False
-        return max(res) <= below and max(self.history.rows[-1]) <= below
+        return max(res) <= below and max(self.history.rows[-1]) <= below and self._picard_is_slow(below)
+
+    def _picard_is_slow(self, below: float) -> bool:
+        """Whether Picard's steps have been seen to contract slowly in this run (then for good): the largest
+        normalised imbalance fell by less than ``SLOW_PICARD`` per iteration over the last ``SLOW_OVER``,
+        all of them between ``SLOW_FLOOR`` and ``below``. Where Picard's steps are fast, Newton's and
+        Anderson's gain little and can cost: the laminar plate (Picard 0.37-0.45 per iteration) took 14
+        against 18 to the settled stop, but its warm start from the next Reynolds number no longer saved
+        any (14 and 14, cases/reynolds_series.py); the cavity 64^2 / 128^2 12 / 10 against 14 / 14. With
+        the rule the step's Newton steps start a few iterations later (coarse 42 -> 45)."""
+        if not self.slow_picard:
+            rows = self.history.rows[-SLOW_OVER - 1:]
+            peaks = [max(r) for r in rows]
+            if len(rows) == SLOW_OVER + 1 and all(SLOW_FLOOR <= p <= below for p in peaks):
+                self.slow_picard = (peaks[-1] / peaks[0]) ** (1.0 / SLOW_OVER) > SLOW_PICARD
+        return self.slow_picard
 
     def _start_shift(self) -> float:
         """The fraction s of a_P added to the momentum diagonals in this outer iteration (and s a_P
@@ -784,7 +808,8 @@ class SimultaneousSolver(SimpleSolver):
         46); with Picard's and the iterative solve (medium) 99 -> 79, FGMRES per outer 20.3 -> 21.7."""
         h = self._anderson
         self.anderson_gamma = np.zeros(0)
-        if not (self.history.rows and max(self.history.rows[-1]) <= ANDERSON_BELOW and max(res) <= ANDERSON_BELOW):
+        if not (self.history.rows and max(self.history.rows[-1]) <= ANDERSON_BELOW and max(res) <= ANDERSON_BELOW
+                and self._picard_is_slow(ANDERSON_BELOW)):
             h.clear()
             return
         after = self._outer_state()
