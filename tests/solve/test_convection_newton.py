@@ -65,3 +65,20 @@ def test_newton_convection_only_with_the_sparse_lu():
     off = simultaneous_solver(mesh, STEP, mu=0.005, system_solver="direct", newton_convection_below=0.0)
     assert lu.newton_allowed and not krylov.newton_allowed and not off.newton_allowed
     assert krylov._A.nnz == off._A.nnz < lu._A.nnz
+
+
+def test_newton_and_anderson_wait_until_picards_steps_are_seen_to_be_slow():
+    """``_picard_is_slow``: the largest imbalance falling by 0.4 per iteration (the laminar plate's Picard
+    steps) does not switch them on, 0.8 (the step's) does, for good; imbalances above the threshold or at
+    round-off do not count. Rows made by hand, values of the rule's definition."""
+    solver = simultaneous_solver(_step(), STEP, system_solver="direct")
+    solver.history.rows = [[1e-5 * 0.4**k, 1e-7, 1e-8] for k in range(4)]
+    assert not solver._picard_is_slow(1e-4)
+    solver.history.rows = [[1e-3 * 0.8**k, 1e-7, 1e-8] for k in range(4)]  # above the threshold
+    assert not solver._picard_is_slow(1e-4)
+    solver.history.rows = [[1e-12 * 0.9**k, 1e-13, 1e-14] for k in range(4)]  # round-off
+    assert not solver._picard_is_slow(1e-4)
+    solver.history.rows = [[1e-5 * 0.8**k, 1e-7, 1e-8] for k in range(4)]
+    assert solver._picard_is_slow(1e-4)
+    solver.history.rows.append([1e-9, 1e-9, 1e-9])
+    assert solver._picard_is_slow(1e-4) and solver.slow_picard
