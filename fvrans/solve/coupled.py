@@ -794,18 +794,18 @@ class SimultaneousSolver(SimpleSolver):
         return out
 
     def _accelerate(self, before: list[np.ndarray], res: list[float]) -> None:
-        """Anderson acceleration of the outer fixed point x = G(x) (Anderson 1965, J. ACM 12, 547-560;
-        the form of Walker & Ni 2011, SIAM J. Numer. Anal. 49, 1715-1735, from memory): with the
-        residuals f_j = G(x_j) - x_j of the last ``anderson_depth`` + 1 iterations, gamma minimises
-        |f_k - dF gamma| (dF the differences of successive f) and the next state is G(x_k) - dG gamma
-        (dG those of G). The state is ``_outer_state``; f weighs u and v by 1/U, p by 1/(rho U^2) and each
-        model variable by 1/max|value| (fluxes and the lagged eddy viscosity are mixed, not weighed:
-        left unmixed they stalled the step). Only once every normalised imbalance of this iteration and
-        the last is below ``ANDERSON_BELOW`` (from a uniform start the early steps are far from linear;
-        the history starts anew whenever the condition fails). Every combination has coefficients
-        summing to 1, so conservative fluxes stay conservative; at the fixed point f = 0 and the state is
-        G's. Coarse step, sparse LU, with Newton's convection: 46 -> 40 outer iterations (medium 50 ->
-        46); with Picard's and the iterative solve (medium) 99 -> 79, FGMRES per outer 20.3 -> 21.7."""
+        """Anderson acceleration of the outer fixed point x = G(x) (Anderson 1965, J. ACM 12, 547-560; the form of
+        Walker & Ni 2011, SIAM J. Numer. Anal. 49, 1715-1735, from memory): with the residuals f_j = G(x_j) -
+        x_j of the last ``anderson_depth`` + 1 iterations, gamma minimises |f_k - dF gamma| (dF the differences
+        of successive f) and the next state is G(x_k) - dG gamma (dG those of G). The state is
+        ``_outer_state``; f weighs u and v by 1/U, p by 1/(rho U^2) and each model variable by 1/max|value|
+        (fluxes and the lagged eddy viscosity are mixed, not weighed: left unmixed they stalled the step). Only
+        once every normalised imbalance of this iteration and the last is below ``ANDERSON_BELOW`` (from a
+        uniform start the early steps are far from linear; the history starts anew whenever the condition
+        fails). Every combination has coefficients summing to 1, so conservative fluxes stay conservative; at
+        the fixed point f = 0 and the state is G's. Coarse step, sparse LU, with Newton's convection (its
+        conservative form, before ``_picard_is_slow``): 46 -> 40 outer iterations (medium 50 -> 46); with
+        Picard's and the iterative solve (medium) 99 -> 79, FGMRES per outer 20.3 -> 21.7."""
         h = self._anderson
         self.anderson_gamma = np.zeros(0)
         if not (self.history.rows and max(self.history.rows[-1]) <= ANDERSON_BELOW and max(res) <= ANDERSON_BELOW
