@@ -29,7 +29,10 @@ gradient after the solve is the extrapolation's fixed point (``_pressure_gradien
 changes the converged answer. From a uniform start with the iterative solve, the first outer
 iterations shift the momentum diagonals by a fraction of a_P that halves every iteration
 (``_start_shift``): a pseudo-time step that keeps the first systems of a recirculating flow solvable
-and leaves the fixed point alone. The turbulence model stays segregated: ``model.update`` once per outer
+and leaves the fixed point alone. Once every residual is below ``SolverControls.newton_convection_below``
+and the sparse LU solves the systems, convection is linearised by Newton's method instead of Picard's
+(``_newton``): the Picard steps' slow contraction in the step's separating shear layer set the outer
+iteration count there. The turbulence model stays segregated: ``model.update`` once per outer
 iteration, as in :class:`fvrans.solve.simple.SimpleSolver`, whose loop (``run``, the hooks, the
 divergence guard, residuals, fields) this class inherits. The converged answer is the segregated
 loop's: every equation is the same at convergence (residuals of ``fvrans.fv.residual``).
@@ -139,6 +142,15 @@ EXTRAPOLATION_LIMIT = 3.0
 #: outer iteration and dropped below START_SHIFT_FLOOR of its first value (after 14 iterations)
 START_SHIFT_DECAY = 0.5
 START_SHIFT_FLOOR = 1e-4
+#: Anderson acceleration of the outer iteration (``_accelerate``) acts once every normalised imbalance of
+#: two successive iterations is below this
+ANDERSON_BELOW = 1e-4
+#: Newton's convection and Anderson's acceleration are taken once Picard's steps are seen to be slow
+#: (``_picard_is_slow``): the largest imbalance falling by less than SLOW_PICARD per iteration over
+#: SLOW_OVER iterations, while it is between SLOW_FLOOR and the thresholds above
+SLOW_PICARD = 0.6
+SLOW_OVER = 3
+SLOW_FLOOR = 1e-10
 #: attributes of :class:`SimpleSolver` that only its own iteration uses, dropped here
 SEGREGATED_ONLY = ("psolver", "msolver", "us", "vs", "hbya", "rau", "beta", "dp", "pc", "pcb", "gpc")
 #: its work arrays that only the assembly of the system uses (the momentum equations' face work,
@@ -215,6 +227,11 @@ class SimultaneousSolver(SimpleSolver):
         self._cind, self._cidx = compact.indptr, compact.indices
         self.G = self._gradient_matrix()
         self._wall, self._wall_stencil, wall_cells = self._wall_flux_pattern()
+        #: Newton's linearisation of convection may be taken (``_newton``): with the sparse LU only
+        self.newton_allowed = self.ctl.newton_convection_below > 0.0 and self.system_solver == "direct"
+        if self.newton_allowed:
+            # the Newton part of the convection term couples u and v on the compact structure
+            wall_cells = _merged_rows(self._cind, self._cidx, *wall_cells)
         self._A = self._system_pattern(*wall_cells)
         wrows = np.repeat(np.arange(2 * nc, dtype=np.int64), np.diff(self._wall.indptr))
         self._wall_in_system = np.empty(self._wall.nnz, dtype=np.int64)
@@ -254,6 +271,19 @@ class SimultaneousSolver(SimpleSolver):
         self._zero_c = self._zero_beta = zero[:nc]
         #: the start-up shift of this outer iteration, a fraction of a_P (``_start_shift``)
         self.shift = 0.0
+        #: the convection term of this outer iteration's system is linearised by Newton's method (``_newton``)
+        self.newton = False
+        #: boundary faces whose mass flux follows the cell velocity (given pressure, outer flow)
+        self._flux_faces = (self.ni + np.flatnonzero(self.fixed)).astype(np.int64)
+        #: history depth of the Anderson acceleration (``_accelerate``; ``SolverControls.anderson_depth``,
+        #: None: 3 with the sparse LU, 0 (off) with the iterative solve)
+        depth = self.ctl.anderson_depth
+        self.anderson_depth = int(depth) if depth is not None else (3 if self.system_solver == "direct" else 0)
+        self._anderson: dict[str, Any] = {}
+        #: the mixing coefficients of the last accelerated iteration (empty when it was not accelerated)
+        self.anderson_gamma = np.zeros(0)
+        #: Picard's outer iterations were seen to contract slowly in this run (``_picard_is_slow``)
+        self.slow_picard = False
 
     def _assembly_work(self, make: bool) -> None:
         """Make (zeros) or let go the work arrays of ``ASSEMBLY_ONLY``."""
@@ -415,6 +445,11 @@ class SimultaneousSolver(SimpleSolver):
                            rhs[2 * nc:])
         u_stack = np.concatenate([u_old[:, 0], u_old[:, 1]])
         rhs[:2 * nc] = np.concatenate([self.rhs_u, self.rhs_v]) + Gp + Wall @ u_stack
+        self.newton = self._newton(res)
+        if self.newton:
+            CK.convection_newton(nc, self.owner, self.neigh, ni, self.S, g.face_weight, g.face_centre, g.cell_centre,
+                                 g.face_shift, float(rho), u_old, gu, F_old, self._flux_faces, self.ub, A.indptr,
+                                 A.indices, A.data, rhs)
         # what the linear solve and the update read: the momentum blocks without the wall-flux
         # matrix (the segregated assemblers' matrices, refilled in place) for the preconditioner, ...
         Au = self.asm_u.matrix(self.a_rel[:, 0], self.off_own, self.off_nei)
@@ -422,6 +457,44 @@ class SimultaneousSolver(SimpleSolver):
         self._parts = (Au, Av, E, r_u, r_v, rbar, gu, hu, Wall)
         self._assembly_work(False)
         return A, rhs, res
+
+    def _newton(self, res: list[float]) -> bool:
+        """Whether this outer iteration linearises convection by Newton's method: once every normalised imbalance
+        of the last iteration (the model's too) and the flow's at the current state are below
+        ``SolverControls.newton_convection_below``. Picard's linearisation, F_old u_new, contracts the error of
+        a separating shear layer slowly: 0.77-0.8 per outer iteration in the cells behind the step's lip with
+        the eddy viscosity frozen (coarse step; 0.72 with upwind convection), 0.45 with the Newton part
+        (F(u_new) - F(u_old)) phi_old added (``_coupled_kernels.convection_newton``, which takes its convective
+        form; the Newton-like linearisation of Ferziger & Peric 2002, Computational Methods for Fluid Dynamics,
+        sec. 5.4, from memory). From a uniform start Newton's step diverges (step, iteration 2): Picard's steps
+        come first (Elman, Silvester & Wathen 2005, Finite Elements and Fast Iterative Solvers, sec. 7.3, from
+        memory, for the same hybrid). Gated on every residual rather than the flow's alone: while the
+        turbulence model's equation is far from converged, Newton's steps slowed the plate (coarse: 28 -> 32
+        outer iterations). Only with the sparse LU (``newton_allowed``): the iterative solve's block
+        preconditioner keeps Picard's momentum blocks, and FGMRES then needed 3.4 times the iterations per
+        outer iteration (medium step: 58 outer iterations, 68 FGMRES each, against 99 and 20 with Picard's: the
+        linear solves took longer); its multigrid hierarchies of the blocks with the Newton part (not
+        M-matrices) missed the tolerance and the LU took over."""
+        below = self.ctl.newton_convection_below
+        # also only once Picard's steps are seen to be slow (``_picard_is_slow``)
+        if not self.newton_allowed or not self.history.rows:
+            return False
+        return max(res) <= below and max(self.history.rows[-1]) <= below and self._picard_is_slow(below)
+
+    def _picard_is_slow(self, below: float) -> bool:
+        """Whether Picard's steps have been seen to contract slowly in this run (then for good): the largest
+        normalised imbalance fell by less than ``SLOW_PICARD`` per iteration over the last ``SLOW_OVER``,
+        all of them between ``SLOW_FLOOR`` and ``below``. Where Picard's steps are fast, Newton's and
+        Anderson's gain little and can cost: the laminar plate (Picard 0.37-0.45 per iteration) took 14
+        against 18 to the settled stop, but its warm start from the next Reynolds number no longer saved
+        any (14 and 14, cases/reynolds_series.py); the cavity 64^2 / 128^2 12 / 10 against 14 / 14. With
+        the rule the step's Newton steps start a few iterations later (coarse 42 -> 45)."""
+        if not self.slow_picard:
+            rows = self.history.rows[-SLOW_OVER - 1:]
+            peaks = [max(r) for r in rows]
+            if len(rows) == SLOW_OVER + 1 and all(SLOW_FLOOR <= p <= below for p in peaks):
+                self.slow_picard = (peaks[-1] / peaks[0]) ** (1.0 / SLOW_OVER) > SLOW_PICARD
+        return self.slow_picard
 
     def _start_shift(self) -> float:
         """The fraction s of a_P added to the momentum diagonals in this outer iteration (and s a_P
@@ -665,6 +738,7 @@ class SimultaneousSolver(SimpleSolver):
         """One outer iteration; returns the normalised imbalances [u, v, continuity, ...]."""
         fl = self.fields
         rho, ni, g, kind, nc = self.rho, self.ni, self.geom, self.bc.kind, self.nc
+        before = self._outer_state() if self.anderson_depth > 0 else None
         A, rhs, res = self._assemble()
         t0 = time.perf_counter()
         if self.system_solver == "direct" or self.fell_back:
@@ -703,8 +777,82 @@ class SimultaneousSolver(SimpleSolver):
             res += self.model.update(fl, self.grad(u_new, ub2),
                                      self.flow_rate / self.ctl.turbulence_cfl if self.use_turbulence_cfl else None)
         self._parts = None  # the blocks of this iteration's system: not held while the next is assembled
+        if before is not None:
+            self._accelerate(before, res)
         self.iteration += 1
         return res
+
+    def _outer_state(self) -> list[np.ndarray]:
+        """What one outer iteration maps to the next (copies): u, v, p, the model's variables (by name),
+        the face fluxes and the eddy viscosity the momentum equations see (``_mu_t``, when there is one)."""
+        fl = self.fields
+        out = [fl.velocity[:, 0].copy(), fl.velocity[:, 1].copy(), np.array(fl.pressure, dtype=float)]
+        out += [np.array(fl.variables[k], dtype=float) for k in sorted(fl.variables)]
+        out.append(np.array(fl.face_flux, dtype=float))
+        if self._mu_t is not None:
+            out.append(self._mu_t.copy())
+        return out
+
+    def _accelerate(self, before: list[np.ndarray], res: list[float]) -> None:
+        """Anderson acceleration of the outer fixed point x = G(x) (Anderson 1965, J. ACM 12, 547-560; the form of
+        Walker & Ni 2011, SIAM J. Numer. Anal. 49, 1715-1735, from memory): with the residuals f_j = G(x_j) -
+        x_j of the last ``anderson_depth`` + 1 iterations, gamma minimises |f_k - dF gamma| (dF the differences
+        of successive f) and the next state is G(x_k) - dG gamma (dG those of G). The state is
+        ``_outer_state``; f weighs u and v by 1/U, p by 1/(rho U^2) and each model variable by 1/max|value|
+        (fluxes and the lagged eddy viscosity are mixed, not weighed: left unmixed they stalled the step). Only
+        once every normalised imbalance of this iteration and the last is below ``ANDERSON_BELOW`` (from a
+        uniform start the early steps are far from linear; the history starts anew whenever the condition
+        fails). Every combination has coefficients summing to 1, so conservative fluxes stay conservative; at
+        the fixed point f = 0 and the state is G's. Coarse step, sparse LU, with Newton's convection (its
+        conservative form, before ``_picard_is_slow``): 46 -> 40 outer iterations (medium 50 -> 46); with
+        Picard's and the iterative solve (medium) 99 -> 79, FGMRES per outer 20.3 -> 21.7."""
+        h = self._anderson
+        self.anderson_gamma = np.zeros(0)
+        if not (self.history.rows and max(self.history.rows[-1]) <= ANDERSON_BELOW and max(res) <= ANDERSON_BELOW
+                and self._picard_is_slow(ANDERSON_BELOW)):
+            h.clear()
+            return
+        after = self._outer_state()
+        nx = 3 + len(self.fields.variables)
+        U = self.u_scale
+        weights = [1.0 / U, 1.0 / U, 1.0 / (self.rho * U * U)]
+        weights += [1.0 / max(float(np.abs(v).max()), 1e-300) for v in after[3:nx]]
+        f = np.concatenate([w * (a - b) for w, a, b in zip(weights, after[:nx], before[:nx])])
+        if "f" in h:
+            h["dF"].append(f - h["f"])
+            h["dG"].append([a - b for a, b in zip(after, h["g"])])
+            if len(h["dF"]) > self.anderson_depth:
+                del h["dF"][0], h["dG"][0]
+        else:
+            h["dF"], h["dG"] = [], []
+        h["f"], h["g"] = f, after
+        if not h["dF"]:
+            return
+        gamma = np.linalg.lstsq(np.column_stack(h["dF"]), f, rcond=None)[0]
+        mixed = [a.copy() for a in after]
+        for gj, dg in zip(gamma, h["dG"]):
+            for m, d in zip(mixed, dg):
+                m -= gj * d
+        fl = self.fields
+        fl.velocity = np.column_stack(mixed[:2])
+        fl.pressure = mixed[2]
+        for k, name in enumerate(sorted(fl.variables)):
+            fl.variables[name] = mixed[3 + k]
+        fl.face_flux = mixed[nx]
+        if self._mu_t is not None:
+            self._mu_t = mixed[nx + 1]
+        self.grad_p = self._pressure_gradient(fl.pressure, self.grad_p)
+        self.anderson_gamma = gamma
+
+
+def _merged_rows(cind: np.ndarray, cidx: np.ndarray, wptr: np.ndarray, wcells: np.ndarray) -> tuple[np.ndarray, ...]:
+    """Per cell, the cells of the compact structure followed by the wall-fit cells (CSR pointers, cells)."""
+    nc = len(cind) - 1
+    rows = np.concatenate([np.repeat(np.arange(nc), np.diff(cind)), np.repeat(np.arange(nc), np.diff(wptr))])
+    order = np.argsort(rows, kind="stable")
+    ptr = np.zeros(nc + 1, dtype=np.int64)
+    np.cumsum(np.bincount(rows, minlength=nc), out=ptr[1:])
+    return ptr, np.concatenate([cidx, wcells]).astype(np.int64)[order]
 
 
 def _decades(tol: float) -> float:

@@ -106,7 +106,13 @@ class SolverControls:
     sped up some cases and slowed or stalled others (DEVELOPERS.md), kept for the study of
     pseudo-transient continuation. ``momentum_start_shift``: the simultaneous path's start-up shift of
     the momentum diagonals with its iterative solve (``coupled.SimultaneousSolver._start_shift``; off
-    unless the case names it: the step's case does).
+    unless the case names it: the step's case does). ``newton_convection_below`` (not a case key; 0
+    turns it off): the simultaneous path linearises the convection term by Newton's method instead of
+    Picard's once every normalised imbalance is below it, when its systems are solved by the sparse LU
+    (``coupled.SimultaneousSolver._newton``). ``anderson_depth`` (not a case key): the simultaneous
+    path's Anderson acceleration of its outer iterations (``coupled.SimultaneousSolver._accelerate``),
+    the number of earlier iterations it combines; None: 3 with the sparse LU, 0 (off) with the iterative
+    solve (its history, about 0.35 KB per cell, would add to that path's peak memory).
     """
 
     coupling: str = "simplec"
@@ -131,6 +137,8 @@ class SolverControls:
     system_solver: str = "by-size"
     system_tolerance: float = 0.01
     eddy_viscosity_relaxation: float = 0.5
+    newton_convection_below: float = 1e-4
+    anderson_depth: int | None = None
     threads: int = 0
 
     def __post_init__(self) -> None:
