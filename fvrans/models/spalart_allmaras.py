@@ -148,9 +148,6 @@ class SpalartAllmaras(TurbulenceModel):
         if wall_distance is None:
             wall_distance = case_wall_distance(mesh, geom, boundary, "Spalart-Allmaras")
         self.wall_distance = checked_wall_distance(wall_distance, nc)
-        self.gamma_cell = np.zeros(nc)
-        self.gamma_b = np.zeros(mesh.n_boundary_faces)
-        self.gamma_f = np.zeros(mesh.n_faces)
         self.mu_t = np.zeros(nc)
         self.fr1 = np.ones(nc)
         self.owner_b = mesh.face_owner[mesh.n_internal_faces :]
@@ -210,9 +207,13 @@ class SpalartAllmaras(TurbulenceModel):
         eq = self.equation
         g, nt_b = eq.gradient(nt, F)
         # face diffusivity rho (nu + nt f_n) / sigma
-        K.cell_diffusivity(nt, self.nu, self.gamma_cell)
-        K.cell_diffusivity(nt_b, self.nu, self.gamma_b)
-        gf = eq.face_values(self.gamma_cell, self.gamma_b, self.gamma_f, self.rho / K.SIGMA)
+        # (work arrays of this update only: not held between outer iterations)
+        gamma_cell = np.empty(len(nt))
+        gamma_b = np.empty(len(nt_b))
+        K.cell_diffusivity(nt, self.nu, gamma_cell)
+        K.cell_diffusivity(nt_b, self.nu, gamma_b)
+        gf = eq.face_values(gamma_cell, gamma_b, np.empty(self.mesh.n_faces), self.rho / K.SIGMA)
+        del gamma_cell, gamma_b
         co = eq.assemble(nt, F, gf, g, nt_b)
         gu = np.ascontiguousarray(grad_u, dtype=np.float64)
         if self.rotation_curvature:
