@@ -51,6 +51,7 @@ def fgmres(
         gvec = np.zeros(m + 1)
         gvec[0] = beta
         np.multiply(r, 1.0 / beta, out=V[0])
+        r = None  # (a restart's residual: not held through the cycle)
         k = 0
         for k in range(m):
             if flexible:

@@ -149,7 +149,8 @@ class SpalartAllmaras(TurbulenceModel):
             wall_distance = case_wall_distance(mesh, geom, boundary, "Spalart-Allmaras")
         self.wall_distance = checked_wall_distance(wall_distance, nc)
         self.mu_t = np.zeros(nc)
-        self.fr1 = np.ones(nc)
+        #: f_r1 per cell with the rotation-curvature correction (else 1: made when the sources need it)
+        self.fr1 = np.ones(nc) if self.rotation_curvature else None
         self.owner_b = mesh.face_owner[mesh.n_internal_faces :]
 
     @classmethod
@@ -218,8 +219,10 @@ class SpalartAllmaras(TurbulenceModel):
         gu = np.ascontiguousarray(grad_u, dtype=np.float64)
         if self.rotation_curvature:
             self.rotation_function(fields.velocity, gu)
+        fr1 = self.fr1 if self.fr1 is not None else np.ones(len(nt))
         K.assemble_sources(nt, self.nu, self.rho, self.geom.cell_area, self.wall_distance, gu, g,
-                           self.use_ft2, self.fr1, co.diag, co.source)
+                           self.use_ft2, fr1, co.diag, co.source)
+        del fr1
         # the implicit part of the cb2 term only without pseudo-time steps: with both, the
         # SIMPLEC bump at Re_h 1e6 (tests/solve/test_bump_robustness.py) fell into a period-2 cycle in
         # two wall cells, while either alone converges (289 / 326 iterations)

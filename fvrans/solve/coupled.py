@@ -141,15 +141,20 @@ START_SHIFT_DECAY = 0.5
 START_SHIFT_FLOOR = 1e-4
 #: attributes of :class:`SimpleSolver` that only its own iteration uses, dropped here
 SEGREGATED_ONLY = ("psolver", "msolver", "us", "vs", "hbya", "rau", "beta", "dp", "pc", "pcb", "gpc")
-#: its work arrays that only the assembly of the system uses (the momentum equations' coefficients,
-#: face work, face viscosities, sources, pseudo-time, the extra stress's divergence, the residual's
-#: pressure-correction rows, the convection gradient): made at the start of ``_assemble`` and let go
-#: at its end, so that the linear solve, where memory peaks, does not hold them (~0.36 KB per cell);
+#: its work arrays that only the assembly of the system uses, by the part of ``_assemble`` that holds
+#: them: "momentum" (face work, sources, pseudo-time, the extra stress's divergence, the convection
+#: gradient: ``_momentum_equations`` only), "residual" (the pressure-correction rows of the continuity
+#: imbalance), "system" (the momentum equations' coefficients and face viscosities, read until the
+#: system is filled). Each is made where its part starts and let go where it ends, so that the linear
+#: solve, where memory peaks, holds none of them (~0.36 KB per cell) and the assembly not all at once;
 #: each holds components per cell ("c"), per internal face ("f") or per face ("a")
-ASSEMBLY_ONLY = {"face_work": ("f", 2), "bu": ("c",), "bv": ("c",), "b_np": ("c", 2), "work2": ("c", 2),
-                 "pt": ("c",), "p_diag": ("c",), "p_off": ("f",), "p_rhs": ("c",), "gc": ("c", 2, 2),
-                 "diag_u": ("c",), "diag_v": ("c",), "off_own": ("f",), "off_nei": ("f",), "a_rel": ("c", 2),
-                 "rhs_u": ("c",), "rhs_v": ("c",), "muf": ("a",), "div_stress": ("c", 2)}
+ASSEMBLY_ONLY = {
+    "momentum": {"face_work": ("f", 2), "bu": ("c",), "bv": ("c",), "b_np": ("c", 2), "work2": ("c", 2),
+                 "pt": ("c",), "gc": ("c", 2, 2), "div_stress": ("c", 2)},
+    "residual": {"p_diag": ("c",), "p_off": ("f",), "p_rhs": ("c",)},
+    "system": {"diag_u": ("c",), "diag_v": ("c",), "off_own": ("f",), "off_nei": ("f",), "a_rel": ("c", 2),
+               "rhs_u": ("c",), "rhs_v": ("c",), "muf": ("a",)},
+}
 #: of those, the ones the convection-diffusion preconditioner also reads in the linear solve
 PCD_READS = ("a_rel", "diag_u")
 
@@ -189,7 +194,7 @@ class SimultaneousSolver(SimpleSolver):
     COUPLINGS = ("simultaneous",)
     #: keep the work arrays of ``ASSEMBLY_ONLY`` after ``_assemble`` (tests compare them)
     keep_assembly_work = False
-    _dcoef = _kvec = _gu = None
+    _dcoef = _kvec = _gu = _body = None
 
     # Arrays the assembly and the update after the solve read, but the linear solve (where memory
     # peaks) does not: held from the start of ``_assemble`` to its end, made again when read between
@@ -211,6 +216,26 @@ class SimultaneousSolver(SimpleSolver):
     @kvec.setter
     def kvec(self, value: np.ndarray) -> None:
         self._kvec = value
+
+    @property
+    def body(self) -> np.ndarray:
+        """The body force per unit volume (nc x 2): zeros, made when read, when there is none."""
+        return self._body if self._body is not None else np.zeros((self.nc, 2))
+
+    @body.setter
+    def body(self, value: np.ndarray) -> None:
+        self._body = value
+
+    @property
+    def _zero_c2(self) -> np.ndarray:
+        """Zero inputs of the flux kernels (nc x 2, nc): made when read, not held."""
+        return np.zeros((self.nc, 2))
+
+    @property
+    def _zero_c(self) -> np.ndarray:
+        return np.zeros(self.nc)
+
+    _zero_beta = _zero_c
 
     @property
     def gu(self) -> np.ndarray:
@@ -244,13 +269,11 @@ class SimultaneousSolver(SimpleSolver):
         # interpolation coefficients): not used on this path (~0.13 KB per cell)
         for name in SEGREGATED_ONLY:
             delattr(self, name)
-        self._assembly_work(False)
-        # zero inputs of the flux kernels (read only): one buffer, also the body force when there is none
-        zero = np.zeros(2 * nc)
-        self._zero_c2 = zero.reshape(nc, 2)
-        self._zero_c = self._zero_beta = zero[:nc]
-        if not np.any(self.body):
-            self.body = self._zero_c2
+        for part in ASSEMBLY_ONLY:
+            self._assembly_work(part, False)
+        # no body force: none held (``body`` gives zeros when read)
+        if not np.any(self._body):
+            self._body = None
         # the laminar viscosity per cell: made when needed (``_assemble``)
         del self.mu_cell
         # the flow rate per cell and its floor: for pseudo-time steps only
@@ -312,12 +335,12 @@ class SimultaneousSolver(SimpleSolver):
         #: the start-up shift of this outer iteration, a fraction of a_P (``_start_shift``)
         self.shift = 0.0
 
-    def _assembly_work(self, make: bool) -> None:
-        """Make (zeros) or let go the work arrays of ``ASSEMBLY_ONLY`` (those the preconditioner reads
-        stay with the convection-diffusion preconditioner)."""
+    def _assembly_work(self, part: str, make: bool) -> None:
+        """Make (zeros) or let go the work arrays of ``ASSEMBLY_ONLY[part]`` (those the preconditioner
+        reads stay with the convection-diffusion preconditioner)."""
         keep = PCD_READS if getattr(self, "preconditioner", None) == "convection-diffusion" else ()
         rows = {"c": self.nc, "f": self.ni, "a": self.nf}
-        for name, (where, *comp) in ASSEMBLY_ONLY.items():
+        for name, (where, *comp) in ASSEMBLY_ONLY[part].items():
             if make:
                 setattr(self, name, np.zeros((rows[where], *comp)))
             elif name not in keep and not self.keep_assembly_work:
@@ -407,7 +430,8 @@ class SimultaneousSolver(SimpleSolver):
         rho, ni, g, kind, nc = self.rho, self.ni, self.geom, self.bc.kind, self.nc
         u_old = fl.velocity
         F_old = fl.face_flux
-        self._assembly_work(True)
+        self._assembly_work("momentum", True)
+        self._assembly_work("system", True)
         self._dcoef, self._kvec = face_coefficients(g)
         mu_t = self.model.eddy_viscosity(fl)
         if mu_t is not None:
@@ -422,6 +446,8 @@ class SimultaneousSolver(SimpleSolver):
             mu_t = self._mu_t
         mu_cell = np.full(nc, self.mu) if mu_t is None else self.mu + mu_t
         gu, hu, ru, rv, mag, self.use_turbulence_cfl, _ = self._momentum_equations(mu_cell)
+        del mu_cell
+        self._assembly_work("momentum", False)
         gp = self.grad_p
         res = [ru / (mag + 1e-300), rv / (mag + 1e-300)]
         self.shift = self._start_shift()
@@ -445,8 +471,12 @@ class SimultaneousSolver(SimpleSolver):
         K.rhie_chow_fluxes(self.owner, self.neigh, ni, self.S, self.dcoef, self.kvec, g.face_weight,
                            g.face_skew, g.face_delta, gu, hu, self.hess is not None, rho, hb, rbar, fl.pressure, gp,
                            self.pb, kind, self.bc.velocity, self._zero_beta, F_old, Fe)
+        del hb
+        self._assembly_work("residual", True)
         imb, thr = K.assemble_pressure_correction(self.owner, self.neigh, ni, self.dcoef, rho, rbar, kind, Fe,
                                                   self.p_diag, self.p_off, self.p_rhs, self.cf_ptr, self.cf_face)
+        self._assembly_work("residual", False)
+        del Fe
         res.append(imb / (thr + 1e-300))
         # the part of the fluxes independent of (u, p): inflow, given outlet pressures, the
         # skewness and quadratic terms of the face velocity
@@ -456,6 +486,7 @@ class SimultaneousSolver(SimpleSolver):
                            self._zero_c, self._zero_c2, self.pb, kind, self.bc.velocity, self._zero_beta, F_old, Fc)
         c0 = np.zeros(nc)
         CK.face_sums(self.owner, self.neigh, ni, Fc, c0)
+        del Fc
         # the system, refilled in place on its pattern: momentum rows (A + W, G), then continuity rows
         # (D, A_pp = Lc + W V^-1 G with W the response to the cell pressure gradients), whose
         # product reads G's values
@@ -477,15 +508,20 @@ class SimultaneousSolver(SimpleSolver):
                            self.S, g.face_weight, self.dcoef, self.kvec, rbar, r_u, r_v, V, self.fixed, rho,
                            self.implicit_gradient, self.G.data, E, gp, c0, A.indptr, A.indices, A.data,
                            rhs[2 * nc:])
-        u_stack = np.concatenate([u_old[:, 0], u_old[:, 1]])
-        rhs[:2 * nc] = np.concatenate([self.rhs_u, self.rhs_v]) + Gp + Wall @ u_stack
+        del c0
+        # (in place: (b + G p) + W u_old, the same sums as with temporaries)
+        rhs[:nc] = self.rhs_u
+        rhs[nc:2 * nc] = self.rhs_v
+        rhs[:2 * nc] += Gp
+        del Gp
+        rhs[:2 * nc] += Wall @ np.concatenate([u_old[:, 0], u_old[:, 1]])
         # what the linear solve and the update read: the momentum blocks without the wall-flux
         # matrix (the segregated assemblers' matrices, refilled in place) for the preconditioner, ...
         Au = self.asm_u.matrix(self.a_rel[:, 0], self.off_own, self.off_nei)
         Av = self.asm_v.matrix(self.a_rel[:, 1], self.off_own, self.off_nei)
         # (the velocity gradient is not held through the solve: ``gu`` makes it again after it)
         self._parts = (Au, Av, E, r_u, r_v, rbar, None, hu, Wall)
-        self._assembly_work(False)
+        self._assembly_work("system", False)
         if not self.keep_assembly_work:
             self._dcoef = self._kvec = self._gu = None
         return A, rhs, res
@@ -773,12 +809,13 @@ class SimultaneousSolver(SimpleSolver):
         fl.velocity = u_new
         fl.pressure = np.array(pn)  # a copy: a view would keep the whole solution vector alive
         fl.face_flux = F
+        del x, un, vn, pn, gl, glin, hb, E, r_u, r_v, rbar, rhs  # (not held through the model's update)
+        self._parts = None  # the blocks of this iteration's system: not held while the next is assembled
         self.grad_p = self._pressure_gradient(fl.pressure, self.grad_p)
         if self.model.names:
             ub2 = self._velocity_on_boundary(u_new, F[ni:])
             res += self.model.update(fl, self.grad(u_new, ub2),
                                      self.flow_rate / self.ctl.turbulence_cfl if self.use_turbulence_cfl else None)
-        self._parts = None  # the blocks of this iteration's system: not held while the next is assembled
         self.iteration += 1
         return res
 
