@@ -46,6 +46,7 @@ A^T + A, reused as the preconditioner of FGMRES in later outer iterations).
 
 from __future__ import annotations
 
+import ctypes
 import logging
 import time
 from typing import Any
@@ -139,6 +140,24 @@ EXTRAPOLATION_LIMIT = 3.0
 #: outer iteration and dropped below START_SHIFT_FLOOR of its first value (after 14 iterations)
 START_SHIFT_DECAY = 0.5
 START_SHIFT_FLOOR = 1e-4
+#: hand the memory of freed arrays back to the system at the phases of an outer iteration (``_release_free``):
+#: glibc keeps arrays up to 32 MB in its heap once one of that size was freed, and the freed blocks
+#: between live ones stay resident, so the run's peak was the heap's high-water mark, not its arrays
+#: (SA plate of 400k cells: 3.41 KB per cell resident against 3.04 traced; 3.08 with it, for ~4 % more
+#: CPU time, all of it system time)
+RELEASE_FREE_MEMORY = True
+try:
+    _malloc_trim = ctypes.CDLL(None).malloc_trim  # glibc
+except (OSError, AttributeError, TypeError):
+    _malloc_trim = None
+
+
+def _release_free() -> None:
+    """Return the freed, unused pages of the C heap to the system (glibc's malloc_trim; elsewhere nothing)."""
+    if RELEASE_FREE_MEMORY and _malloc_trim is not None:
+        _malloc_trim(0)
+
+
 #: attributes of :class:`SimpleSolver` that only its own iteration uses, dropped here
 SEGREGATED_ONLY = ("psolver", "msolver", "us", "vs", "hbya", "rau", "beta", "dp", "pc", "pcb", "gpc")
 #: its work arrays that only the assembly of the system uses, by the part of ``_assemble`` that holds
@@ -430,6 +449,7 @@ class SimultaneousSolver(SimpleSolver):
         rho, ni, g, kind, nc = self.rho, self.ni, self.geom, self.bc.kind, self.nc
         u_old = fl.velocity
         F_old = fl.face_flux
+        _release_free()
         self._assembly_work("momentum", True)
         self._assembly_work("system", True)
         self._dcoef, self._kvec = face_coefficients(g)
@@ -524,6 +544,7 @@ class SimultaneousSolver(SimpleSolver):
         self._assembly_work("system", False)
         if not self.keep_assembly_work:
             self._dcoef = self._kvec = self._gu = None
+        _release_free()
         return A, rhs, res
 
     def _start_shift(self) -> float:
@@ -735,6 +756,7 @@ class SimultaneousSolver(SimpleSolver):
             w *= d  # in place: one temporary of 3 values per cell, not two
             return w
 
+        _release_free()  # (the preconditioner set-up's and the start residual's work)
         dx, its, rel = fgmres(matvec, lambda v: prec(v / d), r0, tol, RESTART,
                               STALE_KRYLOV if stale else MAX_KRYLOV, flexible=False, basis=KRYLOV_BASIS)
         self._missed = stale and not rel <= tol
@@ -812,6 +834,7 @@ class SimultaneousSolver(SimpleSolver):
         del x, un, vn, pn, gl, glin, hb, E, r_u, r_v, rbar, rhs  # (not held through the model's update)
         self._parts = None  # the blocks of this iteration's system: not held while the next is assembled
         self.grad_p = self._pressure_gradient(fl.pressure, self.grad_p)
+        _release_free()
         if self.model.names:
             ub2 = self._velocity_on_boundary(u_new, F[ni:])
             res += self.model.update(fl, self.grad(u_new, ub2),
