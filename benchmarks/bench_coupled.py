@@ -147,6 +147,19 @@ work arrays freed before the solve):
     step coarse / medium: 20.0 / 26.1 (84 / 89) -> 18.7 / 23.2 (81 / 90)
   plate medium, interleaved at load 4.9-5.2: 25.3 / 25.7 s before, 18.4 / 20.7 s after
 
+Measured 2026-12-03 09:30-10:35 (2 shared cores, load 1.5-3.3), what the simultaneous path holds (the assembly's
+work made and let go per part of the assembly, dcoef / kvec and the velocity gradient made again after the solve,
+M^-1 only next to boundaries, one least-squares gradient operator per mesh, no zero / body-force buffers, the
+model's coefficient set and solver vectors only during its update, FGMRES without copies of r0 or of the product,
+freed heap pages handed back at four points per outer iteration; the same bits):
+  --memory (400k cells, 8 simultaneous iterations; RSS above the baseline, KB per cell, traced in brackets):
+    cavity 399424: 3.30 (3.17) last session -> 2.82 (2.64) before the page hand-back, 38.6 FGMRES per outer
+    SA plate 399843: 4.00 (3.81) last session -> 3.41 (3.04) before the page hand-back -> 3.19 (2.99), 57.9 FGMRES
+    per outer (the counts are main 0e8e541's: the changes keep the bits)
+  Whole runs (iterative solve, one thread), main 0e8e541 / after, interleaved twice: cavity 128^2 14 outer, 15.07
+  FGMRES per outer both, 0.308, 0.178 / 0.298, 0.188 s per outer; plate medium 34 outer, 6.62 both, 0.102, 0.145 /
+  0.107, 0.112 s per outer; the answers identical to the last digit.
+
 Run:  python benchmarks/bench_coupled.py [--families cavity plate step] [--fine-step] [--only simultaneous]
       python benchmarks/bench_coupled.py --memory cavity plate [--cells 400000] [--memory-iterations 8]
       python benchmarks/bench_coupled.py --cost [cavity128 plate-medium ...] [--threads 1 2] [--forcing-max 0]

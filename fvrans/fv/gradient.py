@@ -8,6 +8,8 @@ components (n_cells, m) gives (n_cells, m, 2).
 
 from __future__ import annotations
 
+import weakref
+
 import numpy as np
 
 from fvrans.errors import MeshError
@@ -89,6 +91,26 @@ class LeastSquaresGradient(_CellGradient):
         )
 
 
+_SHARED: dict[tuple[int, int], tuple[weakref.ref, weakref.ref, LeastSquaresGradient]] = {}
+
+
+def least_squares_gradient(mesh: Mesh, geom: Geometry) -> LeastSquaresGradient:
+    """The :class:`LeastSquaresGradient` of ``mesh`` and ``geom``, made once and shared (its arrays are
+    read only: the loop's velocity gradient, the face-sum gradients' skewness part and the models'
+    equations take the same one; 56 bytes per cell of quads each otherwise)."""
+    key = (id(mesh), id(geom))
+    hit = _SHARED.get(key)
+    if hit is not None and hit[0]() is mesh and hit[1]() is geom:
+        return hit[2]
+    op = LeastSquaresGradient(mesh, geom)
+
+    def forget(_: weakref.ref, key: tuple[int, int] = key) -> None:
+        _SHARED.pop(key, None)
+
+    _SHARED[key] = (weakref.ref(mesh, forget), weakref.ref(geom, forget), op)
+    return op
+
+
 class GreenGaussGradient(_CellGradient):
     """Green-Gauss gradient g_c = (1/V_c) sum_f phi_f S_f.
 
@@ -135,25 +157,26 @@ class GaussLeastSquaresGradient(_CellGradient):
 
     def __init__(self, mesh: Mesh, geom: Geometry, bounded_skew: bool = False):
         super().__init__(mesh, geom)
-        self._lsq = LeastSquaresGradient(mesh, geom)
+        self._lsq = least_squares_gradient(mesh, geom)
         self._sf = geom.face_area_vector
         self._w = geom.face_weight
         self._skew = geom.face_skew
         if bounded_skew:
             # where the owner-neighbour line meets the face line beyond the face, move the value
-            # only to the face end: |x_f - x_ip| <= L_f / 2
+            # only to the face end: |x_f - x_ip| <= L_f / 2 (a copy only when some face is cut)
             length = np.linalg.norm(self._skew, axis=1)
             half = 0.5 * geom.face_length
-            scale = np.where(length > half, half / np.maximum(length, 1e-300), 1.0)
-            self._skew = np.ascontiguousarray(self._skew * scale[:, None])
+            if np.any(length > half):
+                scale = np.where(length > half, half / np.maximum(length, 1e-300), 1.0)
+                self._skew = np.ascontiguousarray(self._skew * scale[:, None])
         self._area = geom.cell_area
-        self._work = np.empty((mesh.n_cells, 2))
 
     def _scalar(self, phi: np.ndarray, phi_b: np.ndarray, out: np.ndarray) -> None:
-        self._lsq._scalar(phi, phi_b, self._work)
+        work = np.empty((self.n_cells, 2))  # the least-squares gradient (made per call: not held between)
+        self._lsq._scalar(phi, phi_b, work)
         _k.green_gauss_pass(
             self._owner, self._neighbour, self._nfi, self._cf_ptr, self._cf_face, self._sf, self._w, self._skew,
-            self._area, phi, phi_b, self._work, True, out,
+            self._area, phi, phi_b, work, True, out,
         )
 
     def from_least_squares(
@@ -179,13 +202,13 @@ class GaussLeastSquaresGradient(_CellGradient):
 
 
 def gradient_operator(mesh: Mesh, geom: Geometry, method: str = "least_squares", **options) -> _CellGradient:
-    """A gradient operator by name: 'least_squares' (default), 'green_gauss' (option
-    ``skew_corrections``) or 'gauss_least_squares' (face-sum form with least-squares skew
-    correction)."""
+    """A gradient operator by name: 'least_squares' (default; one shared per mesh, see
+    :func:`least_squares_gradient`), 'green_gauss' (option ``skew_corrections``) or
+    'gauss_least_squares' (face-sum form with least-squares skew correction)."""
     if method == "gauss_least_squares":
         return GaussLeastSquaresGradient(mesh, geom)
     if method == "least_squares":
-        return LeastSquaresGradient(mesh, geom, **options)
+        return least_squares_gradient(mesh, geom) if not options else LeastSquaresGradient(mesh, geom, **options)
     if method == "green_gauss":
         return GreenGaussGradient(mesh, geom, **options)
     raise ValueError(

@@ -254,11 +254,24 @@ class AmgKrylovSolver:
         """Drop the hierarchy and its work arrays (the next solve builds a new one)."""
         self._h = self._vec = self._work = self._twin = None
 
+    def release_scratch(self) -> None:
+        """Drop the vectors of the cycle and of the Krylov loop, keep the hierarchy: the next solve makes
+        them again (zeros; they carry nothing from one solve to the next). For a solver used once per
+        outer iteration whose vectors should not stay idle between its solves."""
+        self._vec = self._work = self._twin = None
+
+    def _scratch(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """The cycle's level-stacked vectors (x, b, r), made when released."""
+        if self._vec is None:
+            total = int(np.sum(self._h[1]))
+            self._vec = (np.zeros(total), np.zeros(total), np.zeros(total))
+        return self._vec
+
     def _run(self, A: sp.csr_matrix, b: np.ndarray, x: np.ndarray, state: tuple | None = None,
              par: bool | None = None) -> tuple[int, float]:
         if state is None and self._work is None:
             self._work = self._work_vectors()
-        h, (xs, bs, rs), work = state if state is not None else (self._h, self._vec, self._work)
+        h, (xs, bs, rs), work = state if state is not None else (self._h, self._scratch(), self._work)
         if par is None:
             par = threads() > 1
         _k.refresh_fine(A.data, h[6], h[3], h[5], h[1][0], h[7])
@@ -304,7 +317,7 @@ class AmgKrylovSolver:
             h = list(self._h)
             h[6] = h[6].copy()  # level-0 values and inverse diagonal are the second matrix's
             h[7] = h[7].copy()
-            self._twin = (tuple(h), tuple(v.copy() for v in self._vec), self._work_vectors())
+            self._twin = (tuple(h), tuple(v.copy() for v in self._scratch()), self._work_vectors())
         x2_start = x2.copy()
         b2_start = b2.copy()
         self._uses += 2

@@ -26,19 +26,23 @@ def fgmres(
     are not kept (half the basis memory) and each cycle ends with dx += M^-1 (V y), one more
     application of M (the same iterates to round-off). ``basis``: the number type the Krylov basis
     is stored in (its sums are formed in double precision). The Gram-Schmidt steps and updates run on
-    every thread (``fvrans.jit.threads``; the same bits on any thread count: ``_krylov_kernels``)."""
+    every thread (``fvrans.jit.threads``; the same bits on any thread count: ``_krylov_kernels``).
+
+    Memory: besides the basis, dx and the vectors ``matvec`` and ``prec`` return, nothing of size n is
+    kept (``r0`` is read, not copied). A float64 array ``matvec`` returns that owns its memory is
+    orthogonalised in place (overwritten): return a fresh array each call, as ``A @ z`` does."""
     n = r0.size
     par = threads() > 1
     dx = np.zeros(n)
     beta0 = _kk.norm2(r0, par)
     if beta0 == 0.0:
         return dx, 0, 0.0
-    r = r0.copy()
+    r = r0  # replaced (not changed in place) at each restart
     its = 0
     rel = 1.0
     m = restart
     V = np.empty((m + 1, n), dtype=basis)
-    Z = np.empty((m if flexible else 1, n))
+    Z = np.empty((m, n)) if flexible else None
     while its < max_iterations:
         beta = _kk.norm2(r, par)
         H = np.zeros((m + 1, m))
@@ -47,12 +51,18 @@ def fgmres(
         gvec = np.zeros(m + 1)
         gvec[0] = beta
         np.multiply(r, 1.0 / beta, out=V[0])
+        r = None  # (a restart's residual: not held through the cycle)
         k = 0
         for k in range(m):
-            z = Z[k if flexible else 0]
-            z[:] = prec(V[k])
-            w = np.array(matvec(z), dtype=float)
+            if flexible:
+                z = Z[k]
+                z[:] = prec(V[k])
+            else:
+                z = prec(V[k])
+            w = _own_float64(matvec(z))
+            del z
             _kk.orthogonalise(V, k, w, H[:, k], par)
+            del w  # (its normalised part is V[k + 1]): not held through the next preconditioning
             for i in range(k):
                 t = cs[i] * H[i, k] + sn[i] * H[i + 1, k]
                 H[i + 1, k] = -sn[i] * H[i, k] + cs[i] * H[i + 1, k]
@@ -72,14 +82,23 @@ def fgmres(
         if flexible:
             _kk.add_combination(Z, y, dx, par)
         else:
-            z = Z[0]
-            z[:] = 0.0
+            z = np.zeros(n)
             _kk.add_combination(V, y, z, par)
             dx += prec(z)
+            del z
         if rel <= rtol or its >= max_iterations:
             break
         r = r0 - matvec(dx)
     return dx, its, rel
+
+
+def _own_float64(w: np.ndarray) -> np.ndarray:
+    """``w`` itself when it is a contiguous, writeable float64 array that owns its memory (a fresh
+    product), else a float64 copy (the Gram-Schmidt step overwrites it)."""
+    if (isinstance(w, np.ndarray) and w.dtype == np.float64 and w.flags.c_contiguous and w.flags.writeable
+            and w.flags.owndata):
+        return w
+    return np.array(w, dtype=np.float64)
 
 
 def _upper_solve(R: np.ndarray, g: np.ndarray) -> np.ndarray:

@@ -148,11 +148,9 @@ class SpalartAllmaras(TurbulenceModel):
         if wall_distance is None:
             wall_distance = case_wall_distance(mesh, geom, boundary, "Spalart-Allmaras")
         self.wall_distance = checked_wall_distance(wall_distance, nc)
-        self.gamma_cell = np.zeros(nc)
-        self.gamma_b = np.zeros(mesh.n_boundary_faces)
-        self.gamma_f = np.zeros(mesh.n_faces)
         self.mu_t = np.zeros(nc)
-        self.fr1 = np.ones(nc)
+        #: f_r1 per cell with the rotation-curvature correction (else 1: made when the sources need it)
+        self.fr1 = np.ones(nc) if self.rotation_curvature else None
         self.owner_b = mesh.face_owner[mesh.n_internal_faces :]
 
     @classmethod
@@ -210,15 +208,21 @@ class SpalartAllmaras(TurbulenceModel):
         eq = self.equation
         g, nt_b = eq.gradient(nt, F)
         # face diffusivity rho (nu + nt f_n) / sigma
-        K.cell_diffusivity(nt, self.nu, self.gamma_cell)
-        K.cell_diffusivity(nt_b, self.nu, self.gamma_b)
-        gf = eq.face_values(self.gamma_cell, self.gamma_b, self.gamma_f, self.rho / K.SIGMA)
+        # (work arrays of this update only: not held between outer iterations)
+        gamma_cell = np.empty(len(nt))
+        gamma_b = np.empty(len(nt_b))
+        K.cell_diffusivity(nt, self.nu, gamma_cell)
+        K.cell_diffusivity(nt_b, self.nu, gamma_b)
+        gf = eq.face_values(gamma_cell, gamma_b, np.empty(self.mesh.n_faces), self.rho / K.SIGMA)
+        del gamma_cell, gamma_b
         co = eq.assemble(nt, F, gf, g, nt_b)
         gu = np.ascontiguousarray(grad_u, dtype=np.float64)
         if self.rotation_curvature:
             self.rotation_function(fields.velocity, gu)
+        fr1 = self.fr1 if self.fr1 is not None else np.ones(len(nt))
         K.assemble_sources(nt, self.nu, self.rho, self.geom.cell_area, self.wall_distance, gu, g,
-                           self.use_ft2, self.fr1, co.diag, co.source)
+                           self.use_ft2, fr1, co.diag, co.source)
+        del fr1
         # the implicit part of the cb2 term only without pseudo-time steps: with both, the
         # SIMPLEC bump at Re_h 1e6 (tests/solve/test_bump_robustness.py) fell into a period-2 cycle in
         # two wall cells, while either alone converges (289 / 326 iterations)

@@ -49,6 +49,7 @@ A^T + A, reused as the preconditioner of FGMRES in later outer iterations).
 
 from __future__ import annotations
 
+import ctypes
 import logging
 import time
 from typing import Any
@@ -68,7 +69,7 @@ from fvrans.linalg.block_preconditioner import (
 from fvrans.linalg.fgmres import fgmres
 from fvrans.solve import _coupled_kernels as CK
 from fvrans.solve import _kernels as K
-from fvrans.solve.simple import SimpleSolver
+from fvrans.solve.simple import SimpleSolver, face_coefficients
 
 log = logging.getLogger(__name__)
 SYSTEM_SOLVERS = ("by-size", "direct", "iterative")
@@ -151,14 +152,42 @@ ANDERSON_BELOW = 1e-4
 SLOW_PICARD = 0.6
 SLOW_OVER = 3
 SLOW_FLOOR = 1e-10
+#: hand the memory of freed arrays back to the system at the phases of an outer iteration (``_release_free``):
+#: glibc keeps arrays up to 32 MB in its heap once one of that size was freed, and the freed blocks
+#: between live ones stay resident, so the run's peak was the heap's high-water mark, not its arrays
+#: (SA plate of 400k cells: 3.41 KB per cell resident against 3.04 traced; 3.08 with it, for ~4 % more
+#: CPU time, all of it system time)
+RELEASE_FREE_MEMORY = True
+try:
+    _malloc_trim = ctypes.CDLL(None).malloc_trim  # glibc
+except (OSError, AttributeError, TypeError):
+    _malloc_trim = None
+
+
+def _release_free() -> None:
+    """Return the freed, unused pages of the C heap to the system (glibc's malloc_trim; elsewhere nothing)."""
+    if RELEASE_FREE_MEMORY and _malloc_trim is not None:
+        _malloc_trim(0)
+
+
 #: attributes of :class:`SimpleSolver` that only its own iteration uses, dropped here
 SEGREGATED_ONLY = ("psolver", "msolver", "us", "vs", "hbya", "rau", "beta", "dp", "pc", "pcb", "gpc")
-#: its work arrays that only the assembly of the system uses (the momentum equations' face work,
-#: sources, pseudo-time, the residual's pressure-correction rows, the convection gradient): made at
-#: the start of ``_assemble`` and let go at its end, so that the linear solve, where memory peaks, does
-#: not hold them (~0.15 KB per cell); each holds components per cell ("c") or per internal face ("f")
-ASSEMBLY_ONLY = {"face_work": ("f", 2), "bu": ("c",), "bv": ("c",), "b_np": ("c", 2), "work2": ("c", 2),
-                 "pt": ("c",), "p_diag": ("c",), "p_off": ("f",), "p_rhs": ("c",), "gc": ("c", 2, 2)}
+#: its work arrays that only the assembly of the system uses, by the part of ``_assemble`` that holds
+#: them: "momentum" (face work, sources, pseudo-time, the extra stress's divergence, the convection
+#: gradient: ``_momentum_equations`` only), "residual" (the pressure-correction rows of the continuity
+#: imbalance), "system" (the momentum equations' coefficients and face viscosities, read until the
+#: system is filled). Each is made where its part starts and let go where it ends, so that the linear
+#: solve, where memory peaks, holds none of them (~0.36 KB per cell) and the assembly not all at once;
+#: each holds components per cell ("c"), per internal face ("f") or per face ("a")
+ASSEMBLY_ONLY = {
+    "momentum": {"face_work": ("f", 2), "bu": ("c",), "bv": ("c",), "b_np": ("c", 2), "work2": ("c", 2),
+                 "pt": ("c",), "gc": ("c", 2, 2), "div_stress": ("c", 2)},
+    "residual": {"p_diag": ("c",), "p_off": ("f",), "p_rhs": ("c",)},
+    "system": {"diag_u": ("c",), "diag_v": ("c",), "off_own": ("f",), "off_nei": ("f",), "a_rel": ("c", 2),
+               "rhs_u": ("c",), "rhs_v": ("c",), "muf": ("a",)},
+}
+#: of those, the ones the convection-diffusion preconditioner also reads in the linear solve
+PCD_READS = ("a_rel", "diag_u")
 
 
 def _wall_flux_stencil(wall_grad: Any, owner: np.ndarray, S: np.ndarray, nc: int) -> tuple[np.ndarray, ...]:
@@ -194,6 +223,63 @@ class SimultaneousSolver(SimpleSolver):
     (its force is found from the segregated momentum matrix)."""
 
     COUPLINGS = ("simultaneous",)
+    #: keep the work arrays of ``ASSEMBLY_ONLY`` after ``_assemble`` (tests compare them)
+    keep_assembly_work = False
+    _dcoef = _kvec = _gu = _body = None
+
+    # Arrays the assembly and the update after the solve read, but the linear solve (where memory
+    # peaks) does not: held from the start of ``_assemble`` to its end, made again when read between
+    # (the same values: from the geometry, or from the state the assembly saw).
+    @property
+    def dcoef(self) -> np.ndarray:
+        """|S|^2 / (S . d) per face (``simple.face_coefficients``)."""
+        return self._dcoef if self._dcoef is not None else face_coefficients(self.geom)[0]
+
+    @dcoef.setter
+    def dcoef(self, value: np.ndarray) -> None:
+        self._dcoef = value
+
+    @property
+    def kvec(self) -> np.ndarray:
+        """S - dcoef d per face (``simple.face_coefficients``)."""
+        return self._kvec if self._kvec is not None else face_coefficients(self.geom)[1]
+
+    @kvec.setter
+    def kvec(self, value: np.ndarray) -> None:
+        self._kvec = value
+
+    @property
+    def body(self) -> np.ndarray:
+        """The body force per unit volume (nc x 2): zeros, made when read, when there is none."""
+        return self._body if self._body is not None else np.zeros((self.nc, 2))
+
+    @body.setter
+    def body(self, value: np.ndarray) -> None:
+        self._body = value
+
+    @property
+    def _zero_c2(self) -> np.ndarray:
+        """Zero inputs of the flux kernels (nc x 2, nc): made when read, not held."""
+        return np.zeros((self.nc, 2))
+
+    @property
+    def _zero_c(self) -> np.ndarray:
+        return np.zeros(self.nc)
+
+    _zero_beta = _zero_c
+
+    @property
+    def gu(self) -> np.ndarray:
+        """The cell velocity gradient of the current velocity with the boundary values of the last
+        assembly (the boundary values' tangential extrapolation reads it at the next one): made again
+        from those after the solve, and kept until the end of the next assembly."""
+        if self._gu is None:
+            self._gu = self.grad(self.fields.velocity, self.ub)
+        return self._gu
+
+    @gu.setter
+    def gu(self, value: np.ndarray) -> None:
+        self._gu = value
 
     def __init__(self, *args: Any, **kwargs: Any):
         if kwargs.get("bulk_velocity") is not None:
@@ -214,18 +300,35 @@ class SimultaneousSolver(SimpleSolver):
         # interpolation coefficients): not used on this path (~0.13 KB per cell)
         for name in SEGREGATED_ONLY:
             delattr(self, name)
-        self._assembly_work(False)
+        for part in ASSEMBLY_ONLY:
+            self._assembly_work(part, False)
+        # no body force: none held (``body`` gives zeros when read)
+        if not np.any(self._body):
+            self._body = None
+        # the laminar viscosity per cell: made when needed (``_assemble``)
+        del self.mu_cell
+        # the flow rate per cell and its floor: for pseudo-time steps only
+        if not (self.ctl.momentum_cfl > 0.0 or (self.model.names and self.ctl.turbulence_cfl > 0.0)):
+            self.flow_rate = self.width = None
+        # one buffer for the pressure gradient: ``_pressure_gradient`` works on a copy of the old one
+        self.grad_p_buf = (np.zeros((nc, 2)),) * 2
         kind = self.bc.kind
         self.fixed = (kind == K.OUTLET) | (kind == K.FREESTREAM)
         self.singular = not self.bc.has_fixed_pressure
         # static parts, made once: the compact structure of the mesh (diagonal and face neighbours,
         # shared with the segregated assemblers), G = M^-1 G0 (2nc x nc) on it, the wall-flux
         # matrix's pattern and the pattern of the whole system; ``_assemble`` refills the values
-        self._extrapolation_inverse = CK.extrapolation_inverse(self.owner, ni, self.S, g.face_delta, ~self.fixed,
-                                                               self.vol, EXTRAPOLATION_LIMIT)
+        minv = CK.extrapolation_inverse(self.owner, ni, self.S, g.face_delta, ~self.fixed, self.vol,
+                                        EXTRAPOLATION_LIMIT)
         compact = self.asm_u.matrix(np.zeros(nc), np.zeros(ni), np.zeros(ni))
         self._cind, self._cidx = compact.indptr, compact.indices
-        self.G = self._gradient_matrix()
+        self.G = self._gradient_matrix(minv)
+        # M^-1 differs from the identity only in cells with an extrapolated boundary face: those kept
+        eye = (minv[:, 0, 0] == 1.0) & (minv[:, 1, 1] == 1.0) & (minv[:, 0, 1] == 0.0) & (minv[:, 1, 0] == 0.0)
+        #: the cells whose M^-1 is not the identity, and their M^-1
+        self._extrapolated = np.flatnonzero(~eye)
+        self._extrapolation_inverse = np.ascontiguousarray(minv[self._extrapolated])
+        del minv, eye
         self._wall, self._wall_stencil, wall_cells = self._wall_flux_pattern()
         #: Newton's linearisation of convection may be taken (``_newton``): with the sparse LU only
         self.newton_allowed = self.ctl.newton_convection_below > 0.0 and self.system_solver == "direct"
@@ -265,10 +368,6 @@ class SimultaneousSolver(SimpleSolver):
         #: default), "convection-diffusion" (fails on the backward-facing step's recirculation) or
         #: "simple" (the SIMPLE-type baseline, whose iterations grow with the grid)
         self.preconditioner = "least-squares-commutator"
-        # zero inputs of the flux kernels (read only): one buffer
-        zero = np.zeros(2 * nc)
-        self._zero_c2 = zero.reshape(nc, 2)
-        self._zero_c = self._zero_beta = zero[:nc]
         #: the start-up shift of this outer iteration, a fraction of a_P (``_start_shift``)
         self.shift = 0.0
         #: the convection term of this outer iteration's system is linearised by Newton's method (``_newton``)
@@ -285,10 +384,16 @@ class SimultaneousSolver(SimpleSolver):
         #: Picard's outer iterations were seen to contract slowly in this run (``_picard_is_slow``)
         self.slow_picard = False
 
-    def _assembly_work(self, make: bool) -> None:
-        """Make (zeros) or let go the work arrays of ``ASSEMBLY_ONLY``."""
-        for name, (where, *comp) in ASSEMBLY_ONLY.items():
-            setattr(self, name, np.zeros((self.nc if where == "c" else self.ni, *comp)) if make else None)
+    def _assembly_work(self, part: str, make: bool) -> None:
+        """Make (zeros) or let go the work arrays of ``ASSEMBLY_ONLY[part]`` (those the preconditioner
+        reads stay with the convection-diffusion preconditioner)."""
+        keep = PCD_READS if getattr(self, "preconditioner", None) == "convection-diffusion" else ()
+        rows = {"c": self.nc, "f": self.ni, "a": self.nf}
+        for name, (where, *comp) in ASSEMBLY_ONLY[part].items():
+            if make:
+                setattr(self, name, np.zeros((rows[where], *comp)))
+            elif name not in keep and not self.keep_assembly_work:
+                setattr(self, name, None)
 
     def release_work(self) -> None:
         """Free the linear solve's memory when the run is over, before its outputs are evaluated
@@ -302,15 +407,15 @@ class SimultaneousSolver(SimpleSolver):
         self._A.data = np.empty(0)
 
     # -- static parts ---------------------------------------------------------------------------
-    def _gradient_matrix(self) -> sp.csr_matrix:
+    def _gradient_matrix(self, minv: np.ndarray) -> sp.csr_matrix:
         """G = M^-1 G0 (2nc x nc, rows [x; y]): G0 p = sum_f p_f S_f (p_f linearly interpolated, the
-        owner's value on boundary faces without a given pressure), M^-1 the extrapolation per cell;
-        each block on the compact structure (``_coupled_kernels.gradient_values``)."""
+        owner's value on boundary faces without a given pressure), M^-1 the extrapolation per cell
+        (``minv``, nc x 2 x 2); each block on the compact structure (``_coupled_kernels.gradient_values``)."""
         nc, cind, cidx = self.nc, self._cind, self._cidx
         nnz = len(cidx)
         data = np.empty(2 * nnz)
         CK.gradient_values(nc, cind, cidx, self.cf_ptr, self.cf_face, self.owner, self.neigh, self.ni, self.S,
-                           self.geom.face_weight, ~self.fixed, self._extrapolation_inverse, data)
+                           self.geom.face_weight, ~self.fixed, minv, data)
         itype = np.int32 if 2 * nnz < 2**31 - 1 else np.int64
         indptr = np.concatenate([cind, cind[1:].astype(itype) + itype(nnz)]).astype(itype)
         G = sp.csr_matrix((data, np.concatenate([cidx, cidx]).astype(itype), indptr), shape=(2 * nc, nc))
@@ -374,7 +479,10 @@ class SimultaneousSolver(SimpleSolver):
         rho, ni, g, kind, nc = self.rho, self.ni, self.geom, self.bc.kind, self.nc
         u_old = fl.velocity
         F_old = fl.face_flux
-        self._assembly_work(True)
+        _release_free()
+        self._assembly_work("momentum", True)
+        self._assembly_work("system", True)
+        self._dcoef, self._kvec = face_coefficients(g)
         mu_t = self.model.eddy_viscosity(fl)
         if mu_t is not None:
             # the eddy viscosity the momentum equations see follows the model's with a lag,
@@ -386,8 +494,10 @@ class SimultaneousSolver(SimpleSolver):
             else:
                 self._mu_t += w * (mu_t - self._mu_t)
             mu_t = self._mu_t
-        mu_cell = self.mu_cell if mu_t is None else self.mu + mu_t
+        mu_cell = np.full(nc, self.mu) if mu_t is None else self.mu + mu_t
         gu, hu, ru, rv, mag, self.use_turbulence_cfl, _ = self._momentum_equations(mu_cell)
+        del mu_cell
+        self._assembly_work("momentum", False)
         gp = self.grad_p
         res = [ru / (mag + 1e-300), rv / (mag + 1e-300)]
         self.shift = self._start_shift()
@@ -411,8 +521,12 @@ class SimultaneousSolver(SimpleSolver):
         K.rhie_chow_fluxes(self.owner, self.neigh, ni, self.S, self.dcoef, self.kvec, g.face_weight,
                            g.face_skew, g.face_delta, gu, hu, self.hess is not None, rho, hb, rbar, fl.pressure, gp,
                            self.pb, kind, self.bc.velocity, self._zero_beta, F_old, Fe)
+        del hb
+        self._assembly_work("residual", True)
         imb, thr = K.assemble_pressure_correction(self.owner, self.neigh, ni, self.dcoef, rho, rbar, kind, Fe,
                                                   self.p_diag, self.p_off, self.p_rhs, self.cf_ptr, self.cf_face)
+        self._assembly_work("residual", False)
+        del Fe
         res.append(imb / (thr + 1e-300))
         # the part of the fluxes independent of (u, p): inflow, given outlet pressures, the
         # skewness and quadratic terms of the face velocity
@@ -422,6 +536,7 @@ class SimultaneousSolver(SimpleSolver):
                            self._zero_c, self._zero_c2, self.pb, kind, self.bc.velocity, self._zero_beta, F_old, Fc)
         c0 = np.zeros(nc)
         CK.face_sums(self.owner, self.neigh, ni, Fc, c0)
+        del Fc
         # the system, refilled in place on its pattern: momentum rows (A + W, G), then continuity rows
         # (D, A_pp = Lc + W V^-1 G with W the response to the cell pressure gradients), whose
         # product reads G's values
@@ -443,8 +558,13 @@ class SimultaneousSolver(SimpleSolver):
                            self.S, g.face_weight, self.dcoef, self.kvec, rbar, r_u, r_v, V, self.fixed, rho,
                            self.implicit_gradient, self.G.data, E, gp, c0, A.indptr, A.indices, A.data,
                            rhs[2 * nc:])
-        u_stack = np.concatenate([u_old[:, 0], u_old[:, 1]])
-        rhs[:2 * nc] = np.concatenate([self.rhs_u, self.rhs_v]) + Gp + Wall @ u_stack
+        del c0
+        # (in place: (b + G p) + W u_old, the same sums as with temporaries)
+        rhs[:nc] = self.rhs_u
+        rhs[nc:2 * nc] = self.rhs_v
+        rhs[:2 * nc] += Gp
+        del Gp
+        rhs[:2 * nc] += Wall @ np.concatenate([u_old[:, 0], u_old[:, 1]])
         self.newton = self._newton(res)
         if self.newton:
             CK.convection_newton(nc, self.owner, self.neigh, ni, self.S, g.face_weight, g.face_centre, g.cell_centre,
@@ -454,8 +574,12 @@ class SimultaneousSolver(SimpleSolver):
         # matrix (the segregated assemblers' matrices, refilled in place) for the preconditioner, ...
         Au = self.asm_u.matrix(self.a_rel[:, 0], self.off_own, self.off_nei)
         Av = self.asm_v.matrix(self.a_rel[:, 1], self.off_own, self.off_nei)
-        self._parts = (Au, Av, E, r_u, r_v, rbar, gu, hu, Wall)
-        self._assembly_work(False)
+        # (the velocity gradient is not held through the solve: ``gu`` makes it again after it)
+        self._parts = (Au, Av, E, r_u, r_v, rbar, None, hu, Wall)
+        self._assembly_work("system", False)
+        if not self.keep_assembly_work:
+            self._dcoef = self._kvec = self._gu = None
+        _release_free()
         return A, rhs, res
 
     def _newton(self, res: list[float]) -> bool:
@@ -538,9 +662,13 @@ class SimultaneousSolver(SimpleSolver):
             K.boundary_pressure(self.owner, ni, g.face_delta, self.bc.kind, self.bc.pressure, p, g_cur, self.pb)
             t = self.grad_pressure(p, self.pb, out=self.grad_p_buf[(self.iteration + step) % 2])
             r = t - g_cur
-            g_cur += np.einsum("cij,cj->ci", self._extrapolation_inverse, r)
+            change = float(np.abs(r).max())
+            # g += M^-1 r, M^-1 the identity outside the cells of ``_extrapolated``
+            c = self._extrapolated
+            r[c] = np.einsum("cij,cj->ci", self._extrapolation_inverse, r[c])
+            g_cur += r
             scale = max(scale, float(np.abs(g_cur).max()))
-            if float(np.abs(r).max()) <= 1e-13 * scale:
+            if change <= 1e-13 * scale:
                 break
         out = self.grad_p_buf[self.iteration % 2]
         out[...] = g_cur
@@ -691,13 +819,17 @@ class SimultaneousSolver(SimpleSolver):
         d = self._row_scale
         d[:2 * nc] = 1.0 / A.diagonal()[:2 * nc]
         r0 = d * (rhs - A @ x0)
+        del x0  # the current state: taken again after the solve
         tol = self._forcing_tolerance(float(np.linalg.norm(r0)))
         stale = self.preconditioner != "simple" and not rebuild
         # the block preconditioner is one linear operator during a solve (V-cycles from zero,
         # products): FGMRES need not keep the preconditioned vectors (-0.48 KB per cell at RESTART 20)
         def matvec(z: np.ndarray) -> np.ndarray:
-            return d * (A @ z)
+            w = A @ z
+            w *= d  # in place: one temporary of 3 values per cell, not two
+            return w
 
+        _release_free()  # (the preconditioner set-up's and the start residual's work)
         dx, its, rel = fgmres(matvec, lambda v: prec(v / d), r0, tol, RESTART,
                               STALE_KRYLOV if stale else MAX_KRYLOV, flexible=False, basis=KRYLOV_BASIS)
         self._missed = stale and not rel <= tol
@@ -718,7 +850,8 @@ class SimultaneousSolver(SimpleSolver):
         self.lin_iterations.append(its)
         self.lin_residuals.append(rel)
         self.lin_tolerances.append(tol)
-        return x0 + dx
+        dx += np.concatenate([self.fields.velocity[:, 0], self.fields.velocity[:, 1], self.fields.pressure])
+        return dx
 
     def _forcing_tolerance(self, norm: float) -> float:
         """The relative tolerance of this outer iteration's iterative solve (``FORCING_*``), given the
@@ -754,7 +887,8 @@ class SimultaneousSolver(SimpleSolver):
                 self.fell_back = True
                 x = self._solve_direct(A, rhs)
         self.lin_seconds += time.perf_counter() - t0
-        _, _, E, r_u, r_v, rbar, gu, hu, _ = self._parts  # (Au, Av, ..., Wall): the blocks are not needed here
+        _, _, E, r_u, r_v, rbar, _, hu, _ = self._parts  # (Au, Av, ..., Wall): the blocks are not needed here
+        gu = self.gu  # the assembly's velocity gradient, made again (not held through the solve)
         V = self.vol
         un, vn, pn = x[:nc], x[nc:2 * nc], x[2 * nc:]
         if self.singular:
@@ -769,14 +903,16 @@ class SimultaneousSolver(SimpleSolver):
                            self.pb, kind, self.bc.velocity, self._zero_beta, fl.face_flux, F)
         u_new = np.column_stack([un, vn])
         fl.velocity = u_new
-        fl.pressure = np.ascontiguousarray(pn)
+        fl.pressure = np.array(pn)  # a copy: a view would keep the whole solution vector alive
         fl.face_flux = F
+        del x, un, vn, pn, gl, glin, hb, E, r_u, r_v, rbar, rhs  # (not held through the model's update)
+        self._parts = None  # the blocks of this iteration's system: not held while the next is assembled
         self.grad_p = self._pressure_gradient(fl.pressure, self.grad_p)
+        _release_free()
         if self.model.names:
             ub2 = self._velocity_on_boundary(u_new, F[ni:])
             res += self.model.update(fl, self.grad(u_new, ub2),
                                      self.flow_rate / self.ctl.turbulence_cfl if self.use_turbulence_cfl else None)
-        self._parts = None  # the blocks of this iteration's system: not held while the next is assembled
         if before is not None:
             self._accelerate(before, res)
         self.iteration += 1

@@ -169,6 +169,16 @@ class SolverControls:
         return cls(**kw)
 
 
+def face_coefficients(geom: Geometry) -> tuple[np.ndarray, np.ndarray]:
+    """(dcoef, kvec) per face: dcoef = |S|^2 / (S . d), the orthogonal part of the face-normal
+    difference (dcoef d), and kvec = S - dcoef d, its non-orthogonal remainder (over-relaxed
+    decomposition; S the area vector, d the owner-to-neighbour offset)."""
+    S = geom.face_area_vector
+    d = geom.face_delta
+    dcoef = np.ascontiguousarray(np.einsum("ij,ij->i", S, S) / np.einsum("ij,ij->i", S, d))
+    return dcoef, np.ascontiguousarray(S - dcoef[:, None] * d)
+
+
 @dataclass
 class History:
     """Normalised imbalances per outer iteration (columns named in ``names``)."""
@@ -227,11 +237,8 @@ class SimpleSolver:
         nc, nf, ni = mesh.n_cells, mesh.n_faces, mesh.n_internal_faces
         self.nc, self.nf, self.ni = nc, nf, ni
         # geometry for the kernels
-        S = geom.face_area_vector
-        d = geom.face_delta
-        self.S = S
-        self.dcoef = np.ascontiguousarray(np.einsum("ij,ij->i", S, S) / np.einsum("ij,ij->i", S, d))
-        self.kvec = np.ascontiguousarray(S - self.dcoef[:, None] * d)
+        self.S = geom.face_area_vector
+        self.dcoef, self.kvec = face_coefficients(geom)
         self.owner = mesh.face_owner
         self.neigh = np.ascontiguousarray(mesh.face_neighbour[:ni])
         # each cell's faces in face order: the race-free (parallel) form of the face loops

@@ -31,6 +31,7 @@ def test_wall_flux_matrix_is_the_derivative_of_the_wall_flux(mesh):
     """W + diag(mu dcoef) = -d(wall flux)/du: the flux is affine in the cell velocities, so a finite
     difference between two random fields is exact to round-off."""
     s = simultaneous_solver(mesh, CAVITY, max_iterations=2)
+    s.keep_assembly_work = True  # the face viscosities of the last assembly kept
     s.run()  # face viscosities and boundary velocities in place
     rng = np.random.default_rng(3)
     u1 = rng.normal(size=(s.nc, 2))
