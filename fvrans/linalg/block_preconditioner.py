@@ -50,8 +50,9 @@ stabilisation (small on smooth pressures, ~ Lq on checkerboard ones), so
 
   S~^-1 = Lq^-1 (c C - D H A H G) Lq^-1,
 
-with c = 0.5, the cells at no-slip walls weighted down (W = 0.2) in H and Lq, and the momentum blocks
-relaxed in stretched cells (``RELAXATION``). PCD's commutator
+with c = 0.5 (0.15 in the rows of cells thin along the flow: ``THIN_STABILISATION``), the cells at
+no-slip walls weighted down (W = 0.2) in H and Lq, and the momentum blocks relaxed in stretched cells
+(``RELAXATION``). PCD's commutator
 holds poorly where the eddy viscosity varies by 100s and the flow recirculates: on the
 backward-facing step (FGMRES(20) to 0.01, exact block solves, outer iterations 2 / 10 / 30 of the
 coarse step) PCD needs >300 / 118 / >300 iterations, this preconditioner 35 / 39 / 26; one V-cycle
@@ -60,7 +61,12 @@ per block 35 / 39 / - (medium step 40 / 75 / 52); the cavity 128^2 16 against PC
 lip shear layer (large outlying eigenvalues, one per column of cells); relaxing the momentum blocks
 there halves the count (whole runs, coarse / medium step: 37 / 63 -> 20 / 24 per outer iteration).
 The fine step's early systems, whose momentum matrix is nearly singular, defeat it (and every other
-approximation tried, even with exact block solves).
+approximation tried, even with exact block solves). On the fine step (110 592 cells) after the start-up
+it is the Schur approximation, not the V-cycles, that sets the count (outer iteration 10: 154 FGMRES
+iterations with V-cycles, 118 with exact block solves, 2 with the exact Schur complement); the
+spectrum of S~^-1 S there spans 0.48-7.5 (exact blocks; the largest in the step-lip columns, the
+reattachment and the wall rows), and the stabilisation's weight in cells thin along the flow halves
+the large end's effect (``THIN_STABILISATION``).
 
 ``SimpleSchur`` (block lower-upper sweep with S~ = C - D diag(A)^-1 G, the SIMPLE approximation;
 Elman et al. 2008, J. Comput. Phys. 227, 1790-1808, from memory): kept as the baseline the tests
@@ -184,10 +190,23 @@ class LeastSquaresCommutator:
     #: uniform quads and right triangles are below) -> 20, 18 / 32 / 18, 11 / 16, 9
     RELAXATION = 0.005
 
+    #: c in the rows of cells thin along the flow (set per outer iteration by the solver:
+    #: ``fvrans.solve.coupled.THIN_ASPECT``): on the fine step, whose x-clustering at the step lip makes
+    #: columns of such cells through the whole height, FGMRES(20) to 0.01 at saved states (outer
+    #: iterations 10 / 25 of a run from the uniform start) needs 154 / 79 iterations with c = 0.5 there,
+    #: 94 / 52 with 0.15; c = 0.1 / 0.2 / 0.3 in EVERY cell: 64 / 74 / 108 and 38 / 39 / 53, but whole runs
+    #: of the turbulent plate then need more outer iterations (c = 0.2: 50 / 55 instead of 34 / 34 on
+    #: the coarse / medium plate) and the cavity more FGMRES iterations (64^2 / 128^2 14.3 / 17.9 per
+    #: outer iteration instead of 11.8 / 15.1): a low c leaves more of the residual in the checkerboard
+    #: pressure modes, which C alone damps
+    THIN_STABILISATION = 0.15
+
     def __init__(self, G: sp.csr_matrix, D: sp.csr_matrix | None, singular: bool, wall_cells: np.ndarray | None = None,
                  stretched: np.ndarray | None = None):
         n = G.shape[1]
         self.n = n
+        #: c of the middle factor per cell (rows of c C): THIN_STABILISATION in ``thin`` cells
+        self.stabilisation = np.full(n, float(self.STABILISATION))
         #: w of H = w / diag(A) and of Lq's weights w V / q: WALL_WEIGHT at ``wall_cells``, else 1
         self.weight = np.ones(n)
         if wall_cells is not None:
@@ -249,8 +268,8 @@ class LeastSquaresCommutator:
         y = self.lap(r, par)
         gx = self.hu * (self.Gx @ y)
         gy = self.hv * (self.Gy @ y)
-        c = self.STABILISATION
-        m = c * (self.lq @ y) + self.times_d(c * gx - self.hu * (self.Au @ gx), c * gy - self.hv * (self.Av @ gy))
+        m = self.stabilisation * ((self.lq @ y) + self.times_d(gx, gy))
+        m -= self.times_d(self.hu * (self.Au @ gx), self.hv * (self.Av @ gy))
         return self.lap(m, par)
 
     def times_d(self, a: np.ndarray, b: np.ndarray) -> np.ndarray:

@@ -124,3 +124,27 @@ def test_commutator_blocks_kept_without_copies_equal_the_assembled_ones(triangle
     Au_plain = solver._parts[0].copy()
     relaxed = prec.relaxed(solver._parts[0])
     assert abs(relaxed - (Au_plain + sp.diags(prec.shift * Au_plain.diagonal()))).max() <= 1e-15 * abs(Au_plain).max()
+
+
+@pytest.mark.parametrize("length, height, nx, ny, thin_along", [
+    (1.0, 10.0, 40, 4, True),    # dx 0.025, dy 2.5: the long faces face the flow
+    (10.0, 0.1, 10, 10, False),  # dx 1, dy 0.01: thin across the flow (a wall layer)
+    (4.0, 1.0, 24, 10, False),   # aspect 1.7: not thin
+], ids=["thin-along-the-flow", "thin-across-the-flow", "not-thin"])
+def test_stabilisation_weight_is_lowered_only_in_cells_thin_along_the_flow(length, height, nx, ny, thin_along):
+    """The least-squares commutator's stabilisation weight c per cell: THIN_STABILISATION where the
+    cell's longest face is more than THIN_ASPECT times its shortest and the flow (uniform inflow along
+    x) passes through it, STABILISATION elsewhere, including cells as thin across the flow."""
+    from flows import CHANNEL
+
+    from fvrans.linalg.block_preconditioner import LeastSquaresCommutator as LSC
+    from fvrans.mesh.generate import channel
+
+    solver = simultaneous_solver(channel(length, height, nx, ny), CHANNEL, mu=0.02, system_solver="iterative",
+                                 max_iterations=1, tolerance=1e-14)
+    solver.run()
+    A, rhs, _ = solver._assemble()
+    solver._solve_gmres(A, rhs)
+    expected = LSC.THIN_STABILISATION if thin_along else LSC.STABILISATION
+    assert LSC.THIN_STABILISATION != LSC.STABILISATION
+    assert np.all(solver._prec.stabilisation == expected), np.unique(solver._prec.stabilisation)
