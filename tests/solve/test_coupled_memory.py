@@ -53,9 +53,10 @@ def test_the_solve_holds_no_assembly_work(monkeypatch):
     assert seen["lazy"] == (None, None, None, None)
     # read by the solve (row scale), by the next assembly (Rhie-Chow's previous pressure gradient,
     # the Hessians' buffer on triangles, the wall-layer cells of the system's pattern) or static
-    # geometry the kernels take (face vectors, cell volumes, owner / neighbour indices)
+    # geometry the kernels take (face vectors, cell volumes, owner / neighbour indices; the float32 normal
+    # of each thin cell's longest face, which picks the preconditioner's stabilisation weight)
     allowed = {"S", "owner", "neigh", "cf_ptr", "cf_face", "vol", "hu", "grad_p", "_row_scale", "_cind", "_cidx",
-               "_wall_in_system"}
+               "_wall_in_system", "_thin_normal"}
     assert set(seen["held"]) <= allowed, sorted(set(seen["held"]) - allowed)
     # M^-1 of the pressure extrapolation only for the cells next to a boundary face with an
     # extrapolated pressure (walls, inflow): not one 2 x 2 matrix per cell
