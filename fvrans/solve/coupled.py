@@ -56,7 +56,6 @@ from typing import Any
 
 import numpy as np
 import scipy.sparse as sp
-import scipy.sparse.linalg as spla
 
 from fvrans.errors import CaseError
 from fvrans.linalg import _block_kernels as BK
@@ -67,6 +66,7 @@ from fvrans.linalg.block_preconditioner import (
     neumann_convection_diffusion,
 )
 from fvrans.linalg.fgmres import fgmres
+from fvrans.linalg.sparse_lu import factorize
 from fvrans.solve import _coupled_kernels as CK
 from fvrans.solve import _kernels as K
 from fvrans.solve.simple import SimpleSolver, face_coefficients
@@ -127,24 +127,21 @@ STRETCHED_ASPECT = 1.5
 #: the turbulent plate needed 50 / 55 outer iterations instead of 34 / 34 (coarse / medium)
 THIN_ASPECT = 10.0
 THIN_FLOW_COSINE = 0.7
-#: FGMRES iterations preconditioned by an earlier factorisation before the system is factorised anew
-REUSE_ITERATIONS = 10
+#: FGMRES iterations preconditioned by an earlier factorisation before the system is factorised anew,
+#: by the LU's backend (``fvrans.linalg.sparse_lu``)
+REUSE_ITERATIONS = {"superlu": 10, "umfpack": 4}
 #: a factorisation is also replaced once the FGMRES iterations it has preconditioned add up to
-#: REFACTOR_AFTER (about one factorisation's worth of triangular solves: factorisation / solve time was
-#: 23-45 on the bundled systems) while each solve still needs more than KEEP_ITERATIONS: the first
-#: factorisation is of the start's matrix, and the later ones are cheaper to precondition with a newer one
-REFACTOR_AFTER = 20
+#: REFACTOR_AFTER (about one factorisation's worth of solves: factorisation / solve time was 23-45 with
+#: SuperLU on the bundled systems, 97 on the fine step's, 9 with UMFPACK there, whose solve refines
+#: iteratively) while each solve still needs more than KEEP_ITERATIONS: the first factorisation is of the
+#: start's matrix, and the later ones are cheaper to precondition with a newer one
+REFACTOR_AFTER = {"superlu": 20, "umfpack": 8}
+#: after an earlier factorisation failed to precondition a system within REUSE_ITERATIONS, the next
+#: system is factorised without trying (the try costs 4 solves, about half a factorisation, with
+#: UMFPACK; a tenth with SuperLU, where it is kept): fine step, Newton's convection, 46 outer
+#: iterations: 173 s with a try every outer iteration
+SKIP_AFTER_MISS = {"superlu": False, "umfpack": True}
 KEEP_ITERATIONS = 2
-#: fill-reducing ordering and diagonal pivot threshold of the sparse LU (SuperLU's minimum degree on
-#: A^T + A, preferring the diagonal pivot unless it is below 0.01 of its column's largest entry): against
-#: column AMD with partial pivoting, the factors hold half the entries and factorisation and solves take
-#: about half the time (2026-12-03, one system each, fill per row / factorisation s / solve ms: laminar
-#: step 302 / 0.61 / 13.8 against 152 / 0.15 / 3.3; turbulent plate 399 / 0.91 / 21.3 against 205 / 0.45 /
-#: 10.6; cavity 128^2 355 / 1.05 / 21.8 against 186 / 0.48 / 10.5). A threshold of 1 with this ordering
-#: pivots off the diagonal so often that the factors fill (6 686 per row on the laminar step); 0.1
-#: already doubled the fill on two of the systems
-LU_ORDERING = "MMD_AT_PLUS_A"
-LU_PIVOT_THRESHOLD = 0.01
 #: at most this many Newton steps on the boundary extrapolation of the pressure gradient per outer iteration
 GRADIENT_STEPS = 6
 #: cells whose extrapolation matrix M^-1 has a larger entry keep the lagged extrapolation (M^-1 = I)
@@ -354,6 +351,8 @@ class SimultaneousSolver(SimpleSolver):
         self.lin_iterations: list[int] = []
         self._lu = None
         self._lu_iterations = 0
+        #: the last try of the kept factorisation missed (``SKIP_AFTER_MISS``)
+        self._lu_missed = False
         self.factorisations = 0
         self._mu_t = None
         #: cell pressure gradients of the continuity fluxes implicit (True) or from the previous state
@@ -696,15 +695,18 @@ class SimultaneousSolver(SimpleSolver):
         rhs[r] = self.fields.pressure[0]
 
     def _solve_direct(self, A: sp.csr_matrix, rhs: np.ndarray) -> np.ndarray:
-        """SuperLU of the system, reused for later outer iterations as the preconditioner of flexible
-        GMRES while that reaches ``system_tolerance`` within ``REUSE_ITERATIONS`` iterations (the matrix
-        changes little from one outer iteration to the next; a triangular solve costs about 1/30 of a
-        factorisation at 13k cells); refactorised when it does not, or when the solves it has
-        preconditioned have cost about one factorisation (``REFACTOR_AFTER``)."""
+        """The sparse LU of the system (``fvrans.linalg.sparse_lu``: UMFPACK, or SuperLU), reused for later
+        outer iterations as the preconditioner of flexible GMRES while that reaches ``system_tolerance``
+        within ``REUSE_ITERATIONS`` iterations (the matrix changes little from one outer iteration to the
+        next; a solve costs 1/9-1/100 of a factorisation); refactorised when it does not, or when the
+        solves it has preconditioned have cost about one factorisation (``REFACTOR_AFTER``)."""
         if self.singular:
             self._pin_level(A, rhs)
-        worn = self._lu_iterations >= REFACTOR_AFTER and self.lin_iterations[-1] > KEEP_ITERATIONS
-        if self._lu is not None and not worn:
+        backend = self._lu.backend if self._lu is not None else ""
+        worn = self._lu is not None and (self._lu_iterations >= REFACTOR_AFTER[backend]
+                                         and self.lin_iterations[-1] > KEEP_ITERATIONS)
+        skip, self._lu_missed = self._lu_missed, False
+        if self._lu is not None and not worn and not skip:
             x0 = np.concatenate([self.fields.velocity[:, 0], self.fields.velocity[:, 1], self.fields.pressure])
             # rows scaled by their diagonals, so that the residual norm GMRES reduces weighs every
             # equation alike (momentum rows of thin wall cells are many decades above the rest)
@@ -712,19 +714,22 @@ class SimultaneousSolver(SimpleSolver):
             d = 1.0 / np.where(d > 0.0, d, 1.0)
             lu = self._lu
             dx, its, rel = fgmres(lambda z: d * (A @ z), lambda v: lu.solve(v / d), d * (rhs - A @ x0),
-                                  self.ctl.system_tolerance, REUSE_ITERATIONS, REUSE_ITERATIONS)
+                                  self.ctl.system_tolerance, REUSE_ITERATIONS[backend], REUSE_ITERATIONS[backend])
             self._lu_iterations += its
             del lu
             if rel <= self.ctl.system_tolerance:
                 self.lin_iterations.append(its)
                 return x0 + dx
-        self._lu = None  # the old factors are freed before the new ones are made
+            self._lu_missed = SKIP_AFTER_MISS[backend]
+        # the old factors are freed before the new ones are made (UMFPACK's symbolic analysis is kept)
+        analysis = getattr(self._lu, "analysis", None)
+        self._lu = None
         # the factorisation sees the nonzeros only (the system's pattern also holds the places
         # where a coefficient vanishes, e.g. the cross terms on Cartesian cells)
         Ac = A.tocsc()
         Ac.eliminate_zeros()
-        self._lu = spla.splu(Ac, permc_spec=LU_ORDERING, diag_pivot_thresh=LU_PIVOT_THRESHOLD)
-        del Ac
+        self._lu = factorize(Ac, analysis=analysis)
+        del Ac, analysis
         self._lu_iterations = 0
         self.factorisations += 1
         self.lin_iterations.append(1)
