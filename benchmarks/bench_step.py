@@ -29,7 +29,7 @@ the case's tolerance is 7e-7: coarse 632 iterations (x_r 6.136), medium 1 670 (x
 after 1 394), 2 cores shared. Former figures (residuals 1e-6 in the former definition):
 Simultaneous coupling with the sparse LU, as the cases name it since 2026-12-03 (Newton's convection and
 Anderson acceleration near convergence, UMFPACK): coarse / medium / fine 45 / 46 / 46 outer iterations,
-x_r 6.1329 / 6.1716 / 6.1772; the fine grid from the uniform start 146 s (2 cores, load 1, about 1.8 GB).
+x_r 6.1329 / 6.1716 / 6.1772; the fine grid from the uniform start 143 s (2 cores, quiet, 2.6 GB peak resident).
 SIMPLEC figures, measured 2026-12-02 (2 cores shared with other jobs, solver defaults), x_r / H, iterations, seconds,
 us/cell/iteration: coarse 6.136, 712, 10.6, 2.15; medium 6.173, 2112, 148, 2.54; mixed 6.216, 178,
 21.8, 4.88; fine from the uniform start 6.173, 4800, 1705, 3.21 (from the medium result: 6.172, 90,
