@@ -117,8 +117,6 @@ FORCING_MAX = 0.02
 #: least-squares commutator preconditioner (its momentum blocks relaxed there; see
 #: ``LeastSquaresCommutator.RELAXATION``)
 STRETCHED_ASPECT = 1.5
-#: cells whose longest face is more than this many times their shortest take the least-squares
-#: commutator's ``THIN_STABILISATION``
 #: cells thin ALONG the flow for the least-squares commutator: longest face more than THIN_ASPECT times
 #: the shortest, and the flow through the longest face (|u . n| > THIN_FLOW_COSINE |u|); their rows of
 #: the stabilisation take ``LeastSquaresCommutator.THIN_STABILISATION`` (the columns of cells that the
