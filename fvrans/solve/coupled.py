@@ -692,6 +692,10 @@ class SimultaneousSolver(SimpleSolver):
         A.data[lo:hi] = np.where(cols == r, 1.0, 0.0)
         rhs[r] = self.fields.pressure[0]
 
+    def _state_vector(self) -> np.ndarray:
+        """The current state as the system's unknowns [u; v; p] (a new array)."""
+        return np.concatenate([self.fields.velocity[:, 0], self.fields.velocity[:, 1], self.fields.pressure])
+
     def _solve_direct(self, A: sp.csr_matrix, rhs: np.ndarray) -> np.ndarray:
         """The sparse LU of the system (``fvrans.linalg.sparse_lu``: UMFPACK, or SuperLU), reused for later
         outer iterations as the preconditioner of flexible GMRES while that reaches ``system_tolerance``
@@ -705,7 +709,7 @@ class SimultaneousSolver(SimpleSolver):
                                          and self.lin_iterations[-1] > KEEP_ITERATIONS)
         skip, self._lu_missed = self._lu_missed, False
         if self._lu is not None and not worn and not skip:
-            x0 = np.concatenate([self.fields.velocity[:, 0], self.fields.velocity[:, 1], self.fields.pressure])
+            x0 = self._state_vector()
             # rows scaled by their diagonals, so that the residual norm GMRES reduces weighs every
             # equation alike (momentum rows of thin wall cells are many decades above the rest)
             d = np.abs(A.diagonal())
@@ -830,7 +834,7 @@ class SimultaneousSolver(SimpleSolver):
             else:
                 Ap = neumann_convection_diffusion(Au, self._ap_keep, self.a_rel[:, 0] - self.diag_u)
                 prec.update(Au, Av, Ap, rebuild=rebuild)
-        x0 = np.concatenate([self.fields.velocity[:, 0], self.fields.velocity[:, 1], self.fields.pressure])
+        x0 = self._state_vector()
         # rows in velocity units, so that the norm FGMRES reduces weighs momentum and continuity
         # alike: momentum rows over their diagonal, continuity rows over rho sum_f |S_f|
         if self._row_scale is None:
@@ -873,7 +877,7 @@ class SimultaneousSolver(SimpleSolver):
         self.lin_iterations.append(its)
         self.lin_residuals.append(rel)
         self.lin_tolerances.append(tol)
-        dx += np.concatenate([self.fields.velocity[:, 0], self.fields.velocity[:, 1], self.fields.pressure])
+        dx += self._state_vector()
         return dx
 
     def _forcing_tolerance(self, norm: float) -> float:
