@@ -235,10 +235,16 @@ class SimultaneousSolver(SimpleSolver):
     # Arrays the assembly and the update after the solve read, but the linear solve (where memory
     # peaks) does not: held from the start of ``_assemble`` to its end, made again when read between
     # (the same values: from the geometry, or from the state the assembly saw).
+    def _face_coefficients(self) -> tuple[np.ndarray, np.ndarray]:
+        """(dcoef, kvec): the ones the assembly holds, else made (both at once) from the geometry."""
+        if self._dcoef is not None and self._kvec is not None:
+            return self._dcoef, self._kvec
+        return face_coefficients(self.geom)
+
     @property
     def dcoef(self) -> np.ndarray:
         """|S|^2 / (S . d) per face (``simple.face_coefficients``)."""
-        return self._dcoef if self._dcoef is not None else face_coefficients(self.geom)[0]
+        return self._face_coefficients()[0]
 
     @dcoef.setter
     def dcoef(self, value: np.ndarray) -> None:
@@ -247,7 +253,7 @@ class SimultaneousSolver(SimpleSolver):
     @property
     def kvec(self) -> np.ndarray:
         """S - dcoef d per face (``simple.face_coefficients``)."""
-        return self._kvec if self._kvec is not None else face_coefficients(self.geom)[1]
+        return self._face_coefficients()[1]
 
     @kvec.setter
     def kvec(self, value: np.ndarray) -> None:
@@ -925,14 +931,15 @@ class SimultaneousSolver(SimpleSolver):
         hb = np.column_stack([un + r_u * glin[:, 0], vn + r_v * glin[:, 1]])
         F = np.empty(self.nf)
         K.boundary_pressure(self.owner, ni, g.face_delta, kind, self.bc.pressure, pn, glin, self.pb)
-        K.rhie_chow_fluxes(self.owner, self.neigh, ni, self.S, self.dcoef, self.kvec, g.face_weight,
+        dcoef, kvec = self._face_coefficients()  # (once: each property would make both)
+        K.rhie_chow_fluxes(self.owner, self.neigh, ni, self.S, dcoef, kvec, g.face_weight,
                            g.face_skew, g.face_delta, gu, hu, self.hess is not None, rho, hb, rbar, pn, glin,
                            self.pb, kind, self.bc.velocity, self._zero_beta, fl.face_flux, F)
         u_new = np.column_stack([un, vn])
         fl.velocity = u_new
         fl.pressure = np.array(pn)  # a copy: a view would keep the whole solution vector alive
         fl.face_flux = F
-        del x, un, vn, pn, gl, glin, hb, E, r_u, r_v, rbar, rhs  # (not held through the model's update)
+        del x, un, vn, pn, gl, glin, hb, E, r_u, r_v, rbar, rhs, dcoef, kvec  # (not held through the model's update)
         self._parts = None  # the blocks of this iteration's system: not held while the next is assembled
         self.grad_p = self._pressure_gradient(fl.pressure, self.grad_p)
         _release_free()
