@@ -46,6 +46,21 @@ def solve(mesh, specs, rho=1.0, mu=0.01, **controls):
     return solver, converged
 
 
+def record_each_assembly(solver, attribute):
+    """The list that gets ``solver.<attribute>`` after each of the solver's assemblies (one per outer
+    iteration of the simultaneous path), read as the assembly leaves it."""
+    seen = []
+    assemble = solver._assemble
+
+    def recorded():
+        out = assemble()
+        seen.append(getattr(solver, attribute))
+        return out
+
+    solver._assemble = recorded
+    return seen
+
+
 def sampler(solver):
     """Linear interpolation of the cell velocities (plus boundary face values) at points."""
     g = solver.geom

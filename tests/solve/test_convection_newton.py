@@ -9,7 +9,7 @@ here on the same flow, not taken from elsewhere."""
 from __future__ import annotations
 
 import numpy as np
-from flows import STEP, simultaneous_solver
+from flows import STEP, record_each_assembly, simultaneous_solver
 
 from fvrans.mesh.generate import backward_facing_step
 
@@ -25,15 +25,7 @@ def _run(mesh, below, depth=0):
     """Converged to 1e-12 with the sparse LU; ``depth``: Anderson acceleration (off unless given)."""
     solver = simultaneous_solver(mesh, STEP, mu=0.005, tolerance=1e-12, max_iterations=400,
                                  newton_convection_below=below, system_solver="direct", anderson_depth=depth)
-    taken = []
-    assemble = solver._assemble
-
-    def recorded():
-        out = assemble()
-        taken.append(solver.newton)
-        return out
-
-    solver._assemble = recorded
+    taken = record_each_assembly(solver, "newton")
     assert solver.run()
     return solver, taken
 

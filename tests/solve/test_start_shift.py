@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from flows import CAVITY, STEP, simultaneous_solver
+from flows import CAVITY, STEP, record_each_assembly, simultaneous_solver
 
 import fvrans.solve.coupled as coupled
 from fvrans.mesh import compute_geometry
@@ -29,15 +29,7 @@ def _thin_step():
 
 
 def _shifts(solver, iterations):
-    seen = []
-    assemble = solver._assemble
-
-    def recorded():
-        out = assemble()
-        seen.append(solver.shift)
-        return out
-
-    solver._assemble = recorded
+    seen = record_each_assembly(solver, "shift")
     solver.ctl.max_iterations = iterations
     solver.run()
     return seen
