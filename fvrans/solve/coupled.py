@@ -629,7 +629,7 @@ class SimultaneousSolver(SimpleSolver):
         # them back first when its values were released: ``release_work``)
         g_data = self.G.values()
         Gp = self.G @ p
-        E = np.concatenate([V * gp[:, 0], V * gp[:, 1]]) - Gp
+        E = self._gradient_defect(Gp)
         # the wall faces' flux mu (G + G^T) . S implicit in full (the segregated assembly keeps the
         # part beyond mu dcoef (u_wall - u_P) deferred): A + W, right-hand side + W u_old
         Wall = self._wall_flux_matrix()
@@ -659,12 +659,21 @@ class SimultaneousSolver(SimpleSolver):
         Au = self.asm_u.matrix(self.a_rel[:, 0], self.off_own, self.off_nei)
         Av = self.asm_v.matrix(self.a_rel[:, 1], self.off_own, self.off_nei)
         # (the velocity gradient is not held through the solve: ``gu`` makes it again after it)
-        self._parts = (Au, Av, E, r_u, r_v, rbar, None, hu, Wall)
+        # (E is made again after the solve: ``_gradient_defect``, not held through it)
+        self._parts = (Au, Av, None, r_u, r_v, rbar, None, hu, Wall)
         self._assembly_work("system", False)
         if not self.keep_assembly_work:
             self._dcoef = self._kvec = self._gu = None
         _release_free()
         return A, rhs, res
+
+    def _gradient_defect(self, Gp: np.ndarray | None = None) -> np.ndarray:
+        """E = V grad p - G p at the current state (x rows, then y rows; ``Gp``: G p when already
+        made): the part of the loop's pressure force V grad p beyond G p."""
+        V, gp = self.vol, self.grad_p
+        if Gp is None:
+            Gp = self.G @ self.fields.pressure
+        return np.concatenate([V * gp[:, 0], V * gp[:, 1]]) - Gp
 
     def _newton(self, res: list[float]) -> bool:
         """Whether this outer iteration linearises convection by Newton's method: once every normalised imbalance
@@ -991,7 +1000,8 @@ class SimultaneousSolver(SimpleSolver):
                 self.fell_back = True
                 x = self._solve_direct(A, rhs)
         self.lin_seconds += time.perf_counter() - t0
-        _, _, E, r_u, r_v, rbar, _, hu, _ = self._parts  # (Au, Av, ..., Wall): the blocks are not needed here
+        _, _, _, r_u, r_v, rbar, _, hu, _ = self._parts  # (Au, Av, ..., Wall): the blocks are not needed here
+        E = self._gradient_defect()  # (the state the system was assembled at: p and grad p not yet updated)
         gu = self.gu  # the assembly's velocity gradient, made again (not held through the solve)
         V = self.vol
         un, vn, pn = x[:nc], x[nc:2 * nc], x[2 * nc:]
