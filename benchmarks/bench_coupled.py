@@ -166,7 +166,8 @@ cycle's residual one level at a time, E made again after the solve (the same bit
   --memory (400k cells, 8 simultaneous iterations; RSS above the baseline, KB per cell, traced in brackets;
   before = main fb41c24 in the same session):
     cavity 399424: 2.65 (2.66) -> 2.37 (2.37), FGMRES 11/41/30/39/40/39/56/53 (38.6 per outer) both
-    SA plate 399843: 3.21 (3.01) -> 2.96 (2.70), FGMRES 3/100/72/120/23/33/61/14 (53.3 per outer) both
+    SA plate 399843: 3.21 (3.01) -> 2.96 (2.70), FGMRES 3/100/72/120/23/33/61/14 (53.3 per outer) both; again
+    after merging main 0acb7b5 (load 1-3): 2.93 (2.70), the same counts
   Cost: one FGMRES iteration's preconditioner and product at 52k cells (plate, one thread) 33.9-34.8 ms before,
   34.7-35.6 ms after (quiet repetitions; the others were twice as long, the core shared): a product with G
   reads the strided system rows (0.55 triads against scipy's 0.23), twice per preconditioner application.
