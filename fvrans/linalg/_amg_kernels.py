@@ -1,9 +1,10 @@
 """numba kernels of the algebraic-multigrid V-cycle and the preconditioned Krylov methods.
 
 The hierarchy is flattened: level ``l`` has ``n[l]`` unknowns stored at ``voff[l]`` in every
-level-stacked vector; its operator, prolongation and restriction are CSR blocks whose row
-pointers start at ``*_pofs[l]`` in the stacked pointer arrays and hold absolute positions in the
-stacked index/data arrays (column indices are local to the level). The coarsest level is solved
+level-stacked vector; its operator and prolongation P are CSR blocks whose row pointers start at
+``*_pofs[l]`` in the stacked pointer arrays and hold absolute positions in the stacked index/data
+arrays (column indices are local to the level). The restriction is P^T, applied from P's rows
+(``_restrict``; not stored). The coarsest level is solved
 with a dense (pseudo-)inverse ``cinv`` (n_coarse x n_coarse, row-major).
 """
 
@@ -90,7 +91,7 @@ def _residual(ptr, po, idx, dat, x, xo, b, bo, r, ro, n, par):
 
 @njit(cache=True, nogil=True, parallel=True)
 def _apply_add(ptr, po, idx, dat, x, xo, y, yo, n, add, par):
-    """y[yo + i] (+)= sum_k dat[k] x[xo + idx[k]] (restriction, prolongation)."""
+    """y[yo + i] (+)= sum_k dat[k] x[xo + idx[k]] (prolongation, matrix products)."""
     if par and n >= PAR_MIN:
         for i in prange(n):
             acc = 0.0
@@ -105,21 +106,87 @@ def _apply_add(ptr, po, idx, dat, x, xo, y, yo, n, add, par):
             y[yo + i] = y[yo + i] + acc if add else acc
 
 
+@njit(cache=True, nogil=True, inline="always")
+def _restrict_rows(ptr, po, idx, dat, x, xo, y, yo, lo, hi, c0, c1):
+    """y[yo + j] += P[i, j] x[xo + i] over the fine rows i in [lo, hi), for the coarse columns j in
+    [c0, c1) only, in increasing i."""
+    for i in range(lo, hi):
+        xi = x[xo + i]
+        for k in range(ptr[po + i], ptr[po + i + 1]):
+            j = idx[k]
+            if j >= c0 and j < c1:
+                y[yo + j] += dat[k] * xi
+
+
+@njit(cache=True, nogil=True, parallel=True)
+def _restrict(ptr, po, idx, dat, x, xo, nf, y, yo, nc, rows, par):
+    """y[yo + j] = sum_i P[i, j] x[xo + i] (the restriction R = P^T applied from P's rows: R is not
+    stored). Each coarse entry is summed from 0 in increasing fine row i, as the rows of the sorted
+    CSR matrix P^T would sum it: the same bits. ``rows`` (SUM_CHUNKS x 2): the fine rows [lo, hi)
+    that reach each of the ``SUM_CHUNKS`` chunks of coarse rows (``_chunk``), or rows[0, 0] < 0; with
+    ``par`` and chunks the chunks are summed on every thread, each over its fine rows only."""
+    if par and nc >= PAR_MIN and rows[0, 0] >= 0:
+        for c in prange(SUM_CHUNKS):
+            c0, c1 = _chunk(c, nc)
+            for j in range(c0, c1):
+                y[yo + j] = 0.0
+            _restrict_rows(ptr, po, idx, dat, x, xo, y, yo, rows[c, 0], rows[c, 1], c0, c1)
+    else:
+        for j in range(nc):
+            y[yo + j] = 0.0
+        for i in range(nf):
+            xi = x[xo + i]
+            for k in range(ptr[po + i], ptr[po + i + 1]):
+                y[yo + idx[k]] += dat[k] * xi
+
+
+@njit(cache=True)
+def restriction_rows(ptr, idx, nf, nc, rows):
+    """rows[c] = the fine rows [lo, hi) of the CSR prolongation P (nf x nc) with an entry in the
+    coarse columns of chunk c (``_chunk``); an empty chunk gets [0, 0). Returns the sum of the
+    ranges' lengths (the fine rows the chunked restriction scans)."""
+    for c in range(SUM_CHUNKS):
+        rows[c, 0] = nf
+        rows[c, 1] = 0
+    for i in range(nf):
+        for k in range(ptr[i], ptr[i + 1]):
+            j = idx[k]
+            c = j * SUM_CHUNKS // nc
+            while c > 0 and j < _chunk(c, nc)[0]:
+                c -= 1
+            while c < SUM_CHUNKS - 1 and j >= _chunk(c, nc)[1]:
+                c += 1
+            if i < rows[c, 0]:
+                rows[c, 0] = i
+            if i + 1 > rows[c, 1]:
+                rows[c, 1] = i + 1
+    total = 0
+    for c in range(SUM_CHUNKS):
+        if rows[c, 1] <= rows[c, 0]:
+            rows[c, 0] = 0
+            rows[c, 1] = 0
+        total += rows[c, 1] - rows[c, 0]
+    return total
+
+
 @njit(cache=True, nogil=True)
 def vcycle(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_idx, p_dat,
-           r_ptr, r_pofs, r_idx, r_dat, cinv, sweeps, s_ptr, s_order, x, b, r, par):
-    """x = M^-1 b on level 0 (x, b, r level-stacked; b[:n0] holds the input, x[:n0] the output).
+           t_rows, cinv, sweeps, s_ptr, s_order, x, b, r, par):
+    """x = M^-1 b on level 0 (x, b level-stacked; b[:n0] holds the input, x[:n0] the output; r, of
+    n0 values or more, holds each level's residual in turn).
 
     V(sweeps, sweeps) cycle: forward Gauss-Seidel before, backward (the exact reverse order)
     after the coarse-grid correction, so the cycle is a symmetric operator for a symmetric matrix
     (usable in CG). ``s_ptr[l]`` / ``s_order[l]``: the coloured blocks of level l's sweep
-    (``_smooth``). ``par``: the sweeps, residuals, restriction and prolongation of the large levels
-    on every thread; every row is computed as on one thread, so the cycle gives the same bits
-    whatever the thread count.
+    (``_smooth``). ``t_rows[l]``: the fine rows reaching each chunk of level l + 1's rows
+    (``restriction_rows``), or ``t_rows[l, 0, 0]`` < 0. ``par``: the sweeps, residuals, restriction
+    (by chunks) and prolongation of the large levels on every thread; every row is computed as on
+    one thread, so the cycle gives the same bits whatever the thread count.
     """
     # flags and offsets read from arrays, not written as constants: a literal argument (True, 0)
     # makes numba compile one more version of the helper it is passed to
     yes = n[0] >= 0
+    zero = voff[0]
     no = n[0] < 0
     for lv in range(nlev - 1):
         vo = voff[lv]
@@ -127,8 +194,9 @@ def vcycle(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_id
         _fill(x, vo, m, 0.0, par)
         for _ in range(sweeps):
             _smooth(a_ptr, a_pofs[lv], a_idx, a_dat, dinv, x, b, vo, m, s_ptr[lv], s_order[lv], yes, par)
-        _residual(a_ptr, a_pofs[lv], a_idx, a_dat, x, vo, b, vo, r, vo, m, par)
-        _apply_add(r_ptr, r_pofs[lv], r_idx, r_dat, r, vo, b, voff[lv + 1], n[lv + 1], no, par)
+        # (the residual is restricted at once: one level's at a time in r)
+        _residual(a_ptr, a_pofs[lv], a_idx, a_dat, x, vo, b, vo, r, zero, m, par)
+        _restrict(p_ptr, p_pofs[lv], p_idx, p_dat, r, zero, m, b, voff[lv + 1], n[lv + 1], t_rows[lv], par)
     # coarsest level
     lc = nlev - 1
     vc = voff[lc]
@@ -320,7 +388,7 @@ def _remove_mean(a, n, par):
 
 @njit(cache=True, nogil=True)
 def pcg(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_idx, p_dat,
-        r_ptr, r_pofs, r_idx, r_dat, cinv, sweeps, s_ptr, s_order, rhs, sol, rtol, maxiter, singular, xs, bs, rs, w,
+        t_rows, cinv, sweeps, s_ptr, s_order, rhs, sol, rtol, maxiter, singular, xs, bs, rs, w,
         par):
     """Conjugate gradients preconditioned by one V-cycle (Saad 2003, Iterative Methods for Sparse
     Linear Systems, alg. 9.1) on A sol = rhs until ||r||_2 <= rtol ||rhs||_2.
@@ -350,7 +418,7 @@ def pcg(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_idx, 
     while it < maxiter:
         _copy(bs, res, n0, par)
         vcycle(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_idx, p_dat,
-               r_ptr, r_pofs, r_idx, r_dat, cinv, sweeps, s_ptr, s_order, xs, bs, rs, par)
+               t_rows, cinv, sweeps, s_ptr, s_order, xs, bs, rs, par)
         if singular:
             _remove_mean(xs, n0, par)
         rz = _dot(res, xs, n0, par)
@@ -375,7 +443,7 @@ def pcg(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_idx, 
 
 @njit(cache=True, nogil=True)
 def bicgstab(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_idx, p_dat,
-             r_ptr, r_pofs, r_idx, r_dat, cinv, sweeps, s_ptr, s_order, rhs, sol, rtol, maxiter, xs, bs, rs, w, par):
+             t_rows, cinv, sweeps, s_ptr, s_order, rhs, sol, rtol, maxiter, xs, bs, rs, w, par):
     """Right-preconditioned BiCGStab (van der Vorst 1992, SIAM J. Sci. Stat. Comput. 13, 631-644)
     with one V-cycle as preconditioner, until ||b - A x||_2 <= rtol ||b - A x0||_2.
 
@@ -414,7 +482,7 @@ def bicgstab(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_
         _xpby(pdir, res, beta, n0, par)
         _copy(bs, pdir, n0, par)
         vcycle(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_idx, p_dat,
-               r_ptr, r_pofs, r_idx, r_dat, cinv, sweeps, s_ptr, s_order, xs, bs, rs, par)
+               t_rows, cinv, sweeps, s_ptr, s_order, xs, bs, rs, par)
         _copy(phat, xs, n0, par)
         _apply_add(a_ptr, zero, a_idx, a_dat, phat, zero, v, zero, n0, no, par)
         rv = _dot(rhat, v, n0, par)
@@ -429,7 +497,7 @@ def bicgstab(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_
             break
         _copy(bs, res, n0, par)
         vcycle(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_idx, p_dat,
-               r_ptr, r_pofs, r_idx, r_dat, cinv, sweeps, s_ptr, s_order, xs, bs, rs, par)
+               t_rows, cinv, sweeps, s_ptr, s_order, xs, bs, rs, par)
         _copy(shat, xs, n0, par)
         _apply_add(a_ptr, zero, a_idx, a_dat, shat, zero, t, zero, n0, no, par)
         tt = _dot(t, t, n0, par)

@@ -42,6 +42,9 @@ _pool: ThreadPoolExecutor | None = None
 #: C/F splittings (``AmgKrylovSolver(coarsening=)``): Ruge-Stuben (one pass, or with the second pass
 #: that adds C points where two strongly coupled F points share no C point) and Cleary-Luby-Jones-Plassmann
 COARSENINGS = ("RS", "RS-second-pass", "CLJP")
+#: the restriction runs by chunks of coarse rows on every thread only on levels where the chunks'
+#: fine-row ranges add up to at most this many times the fine rows (else in one pass)
+RESTRICTION_OVERLAP = 1.5
 
 
 def _second_thread() -> ThreadPoolExecutor:
@@ -203,7 +206,7 @@ class AmgKrylovSolver:
         total = int(n.sum())
         a = _Stack([(lv.A.shape[0], lv.A.nnz) for lv in levels], self.dtype)
         p = _Stack([(lv.P.shape[0], lv.P.nnz) for lv in levels[:-1]], self.dtype)
-        r = _Stack([(lv.R.shape[0], lv.R.nnz) for lv in levels[:-1]], self.dtype)
+        t_rows = np.zeros((len(n), _k.SUM_CHUNKS, 2), dtype=np.int64)
         dinv = np.zeros(total)
         s_ptr = np.zeros((len(n), SMOOTHER_MAX_BLOCKS + 2), dtype=np.int64)
         s_order = np.zeros((len(n), SMOOTHER_MAX_BLOCKS), dtype=np.int64)
@@ -216,8 +219,13 @@ class AmgKrylovSolver:
             block_colours(m, smoother_blocks(m.shape[0]) if self.block_sweep else 1, s_ptr[lv], s_order[lv])
             if lv < len(levels) - 1:
                 p.add(level.P)
-                r.add(level.R)
-                level.A = level.P = level.R = None  # copied: let them go before the next level
+                # R = P^T is applied from P's rows (``_amg_kernels._restrict``), not kept; by chunks
+                # of the coarse rows on every thread where the chunks' fine rows overlap little
+                P = level.P
+                if _k.restriction_rows(P.indptr, P.indices, P.shape[0], P.shape[1], t_rows[lv]) > \
+                        RESTRICTION_OVERLAP * P.shape[0]:
+                    t_rows[lv, 0, 0] = -1
+                level.A = level.P = level.R = P = None  # copied: let them go before the next level
         # coarsest level: dense generalised inverse (numba; no LAPACK, whose threads can stall
         # badly on a busy machine)
         coarse = np.ascontiguousarray(levels[-1].A.toarray(), dtype=np.float64)
@@ -226,9 +234,10 @@ class AmgKrylovSolver:
         _k.dense_inverse(coarse, cinv2, self.singular)
         cinv = cinv2.ravel()
         self._h = (
-            len(n), n, voff, *a.arrays(), dinv, *p.arrays(), *r.arrays(), cinv, self.sweeps, s_ptr, s_order,
+            len(n), n, voff, *a.arrays(), dinv, *p.arrays(), t_rows, cinv, self.sweeps, s_ptr, s_order,
         )
-        self._vec = (np.zeros(total), np.zeros(total), np.zeros(total))
+        self._vec = None
+        self._scratch()
         self._work = None  # the Krylov loop's vectors, made by its first solve (a lone V-cycle needs none)
         self._twin = None  # the copy for the second system of a pair, made on demand
         self._uses = 0
@@ -236,14 +245,15 @@ class AmgKrylovSolver:
         self.levels = [int(k) for k in n]
 
     def share_vectors(self, *others: AmgKrylovSolver) -> None:
-        """Let this solver and ``others`` (hierarchies set up) use one set of level-stacked scratch
-        vectors (x, b, r of the cycle), sized for the largest: for V-cycles that never run at once."""
+        """Let this solver and ``others`` (hierarchies set up) use one set of scratch vectors (x, b, r
+        of the cycle: ``_scratch``), sized for the largest: for V-cycles that never run at once."""
         solvers = (self, *others)
-        total = max(s._vec[0].size for s in solvers)
-        buf = np.zeros((3, total))
+        total = max(s._scratch()[0].size for s in solvers)
+        rows = max(s._vec[2].size for s in solvers)
+        buf = np.zeros(2 * total + rows)
         for s in solvers:
-            m = s._vec[0].size
-            s._vec = (buf[0, :m], buf[1, :m], buf[2, :m])
+            m, r = s._vec[0].size, s._vec[2].size
+            s._vec = (buf[:m], buf[total:total + m], buf[2 * total:2 * total + r])
             s._twin = None
 
     def _work_vectors(self) -> np.ndarray:
@@ -261,10 +271,11 @@ class AmgKrylovSolver:
         self._vec = self._work = self._twin = None
 
     def _scratch(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """The cycle's level-stacked vectors (x, b, r), made when released."""
+        """The cycle's vectors, made when released: x and b level-stacked, r of the finest level's size
+        (each level's residual in turn: ``_amg_kernels.vcycle``)."""
         if self._vec is None:
             total = int(np.sum(self._h[1]))
-            self._vec = (np.zeros(total), np.zeros(total), np.zeros(total))
+            self._vec = (np.zeros(total), np.zeros(total), np.zeros(int(self._h[1][0])))
         return self._vec
 
     def _run(self, A: sp.csr_matrix, b: np.ndarray, x: np.ndarray, state: tuple | None = None,

@@ -214,8 +214,9 @@ class LeastSquaresCommutator:
         self.shift = np.zeros(n)
         if stretched is not None:
             self.shift[stretched] = self.RELAXATION
-        self.G = sp.csr_matrix(G)
-        self.Gx, self.Gy = _row_halves(self.G)
+        # (an operator with ``halves()``, e.g. the solver's G held in the system, is used as it is)
+        self.G = G if hasattr(G, "halves") else sp.csr_matrix(G)
+        self.Gx, self.Gy = G.halves() if hasattr(G, "halves") else _row_halves(self.G)
         #: D's halves, or None: the products taken from the continuity rows of the system (``update``)
         self.Du, self.Dv = _column_halves(D) if D is not None else (None, None)
         self.continuity: sp.csr_matrix | None = None

@@ -4,11 +4,13 @@ computed independently with scipy.sparse."""
 from __future__ import annotations
 
 import numpy as np
+import pyamg
 import pytest
 import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 
 from fvrans.fv.assembly import CsrAssembler
+from fvrans.jit import PARALLEL_MIN_CELLS
 from fvrans.linalg import _amg_kernels as K
 from fvrans.linalg import amg
 from fvrans.linalg.amg import AmgKrylovSolver
@@ -224,3 +226,32 @@ def test_block_sweep_smooths_a_poisson_error_like_the_plain_sweep(monkeypatch):
         K.vcycle(*s._h, xs, bs, rs, False)
         out.append(xs[:n0].copy())
     assert abs(u @ out[1] - w @ out[0]) <= 1e-12 * abs(u @ out[1])
+
+
+def test_restriction_is_p_transpose_to_the_bit_and_is_not_stored():
+    """The V-cycle restricts with P's rows (R = P^T is not kept): on a 40 000-row convection-diffusion
+    matrix the restricted vector equals scipy's product with pyamg's own R = P^T (each coarse entry
+    summed in increasing fine row, as a CSR row of R sums it) to the bit, in one pass and by chunks
+    of coarse rows on the threads; and the hierarchy holds the level matrices and prolongations only (and a
+    residual vector of the finest level's size)."""
+    A = convection_diffusion(200, 0.5)
+    ml = pyamg.ruge_stuben_solver(A, max_coarse=200, max_levels=25, CF="RS")
+    s = AmgKrylovSolver("bicgstab", coarsening="RS")
+    s.rebuild(A)
+    nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_idx, p_dat, t_rows, cinv = s._h[:14]
+    assert [lv.A.shape[0] for lv in ml.levels] == list(n)
+    nf, nc = n[0], n[1]
+    assert nc >= PARALLEL_MIN_CELLS and t_rows[0, 0, 0] >= 0  # the chunked restriction on level 0
+    x = np.random.default_rng(3).standard_normal(nf)
+    expected = ml.levels[0].R @ x
+    for par in (False, True):
+        y = np.full(nf + nc, np.nan)
+        K._restrict(p_ptr, p_pofs[0], p_idx, p_dat, x, voff[0], nf, y, voff[1], nc, t_rows[0], par)
+        assert np.array_equal(y[nf:], expected)
+    held = sum(a.nbytes for a in s._h if isinstance(a, np.ndarray))
+    operators = sum(m.nnz * 12 + (m.shape[0] + 1) * 4 for lv in ml.levels for m in (lv.A, getattr(lv, "P", None))
+                    if m is not None)
+    extra = dinv.nbytes + cinv.nbytes + t_rows.nbytes + s._h[-2].nbytes + s._h[-1].nbytes + 8 * (4 * nlev + 2)
+    assert held <= operators + extra
+    # the cycle's residual holds one level at a time: the finest level's size, not level-stacked
+    assert s._scratch()[2].size == nf and s._scratch()[0].size == n.sum()
