@@ -239,6 +239,8 @@ class LeastSquaresCommutator:
         continuity rows (D and the pressure columns) give the products with D when it was not given (a
         view of its rows: no copy of D is held)."""
         if system is not None:
+            if not system.has_sorted_indices:
+                system.sort_indices()  # (``_block_kernels.commutator_middle`` reads D's columns in order)
             n, ptr = self.n, system.indptr
             lo, hi = ptr[2 * n], ptr[3 * n]
             self.continuity = _csr_on(system.data[lo:hi], system.indices[lo:hi], ptr[2 * n:] - lo, (n, 3 * n))
@@ -266,6 +268,15 @@ class LeastSquaresCommutator:
     def schur_inverse(self, r: np.ndarray, par: bool = False) -> np.ndarray:
         """S~^-1 r (the pressure part of the preconditioner)."""
         y = self.lap(r, par)
+        if self.continuity is not None:
+            # the middle factor in three passes over the rows (numba; on every thread with ``par``),
+            # the same sums as the products below
+            G, Au, Av, lq, D = self.G, self.Au, self.Av, self.lq, self.continuity
+            m = np.empty(self.n)
+            _k.commutator_middle(G.indptr, G.indices, G.data, Au.indptr, Au.indices, Au.data, Av.indptr, Av.indices,
+                                 Av.data, lq.indptr, lq.indices, lq.data, D.indptr, D.indices, D.data, y, self.hu,
+                                 self.hv, self.stabilisation, m, np.empty((4, self.n)), par)
+            return self.lap(m, par)
         gx = self.hu * (self.Gx @ y)
         gy = self.hv * (self.Gy @ y)
         m = self.stabilisation * ((self.lq @ y) + self.times_d(gx, gy))
@@ -286,7 +297,9 @@ class LeastSquaresCommutator:
         n = self.n
         par = threads() > 1
         zp = self.schur_inverse(r[2 * n:], par)
-        w = r[:2 * n] - self.G @ zp
+        G = self.G
+        w = np.empty(2 * n)
+        _k.minus_product(G.indptr, G.indices, G.data, zp, r[:2 * n], w, par)  # r_u - G z_p
         if self.mv is not None:
             return np.concatenate([*_momentum_pair(self.mu, self.mv, w, n, par), zp])
         # one hierarchy: the component whose values its finest level holds first, then the other's
