@@ -74,7 +74,8 @@ stop, uniform start) on cavity 128^2 / 256^2, plate medium / fine, step coarse /
 seconds per iteration (``--simplec-iterations`` from the uniform start) on the same grid, thread count and
 machine, one right after the other: outer iterations, FGMRES iterations per outer iteration, seconds, per
 outer iteration, per cell, over a numpy triad, over SIMPLEC's; CPU use of each run = (user + system CPU
-seconds of the process, every thread) / wall seconds (2.0: both cores busy throughout); for each thread
+seconds of the process, every thread) / wall seconds (2.0: both cores busy throughout), CPU seconds per
+iteration of each and their ratio (steadier than the wall-clock ratio on a shared machine); for each thread
 count of ``--threads`` after the first, the speed-up of the simultaneous run and max |u - u(first)| / max |u|;
 the 1-minute load average before / after the run. ``--forcing-max 0``: every FGMRES solve to
 system_tolerance (no forcing rule: the figures before it).
@@ -308,7 +309,7 @@ def cost_table(grids: list[str], thread_counts: list[int], simplec_iterations: i
           f"{simplec_iterations} SIMPLEC iterations from the uniform start; CPU use = (user + system CPU s) / wall s; "
           "load = 1-minute load average before / after the simultaneous run; du = max |u - u(1 thread)| / max |u|")
     print("grid          cells  thr  outer  FGMRES/it      s    s/it  us/cell/it  x triad  SIMPLEC s/it  x SIMPLEC  "
-          "CPU use sim/SIMPLEC  speed-up  load       du")
+          "CPU use sim/SIMPLEC  CPU s/it sim/SIMPLEC  x SIMPLEC (CPU)  speed-up  load       du")
     for grid in grids:
         problem = _cost_problem(grid)
         nc = problem.mesh.n_cells
@@ -336,9 +337,13 @@ def cost_table(grids: list[str], thread_counts: list[int], simplec_iterations: i
             else:
                 speed = f"{first['run'][0] / per:8.2f}"
                 du = f"{float(np.max(np.abs(r.velocity - first['run'][1]))) / float(np.max(np.abs(r.velocity))):8.1e}"
+            # CPU seconds per iteration (every thread): on a shared machine they do not count the time the
+            # scheduler gave the core to others, so their ratio is steadier than the wall-clock one
+            cper, cper2 = per * cpu, per2 * cpu2
             print(f"{grid:12s} {nc:6d}  {thr:3d}  {r.iterations:5d}  {fg:9.1f}  {wall:6.1f}  {per:6.3f}  "
                   f"{per / nc * 1e6:10.2f}  {per / triad:7.0f}  {per2:12.4f}  {per / per2:9.1f}  "
-                  f"{cpu:8.2f} / {cpu2:4.2f}     {speed:>8s}  {load0:4.1f}-{load1:4.1f}  {du:>7s}", flush=True)
+                  f"{cpu:8.2f} / {cpu2:4.2f}     {cper:7.4f} / {cper2:6.4f}  {cper / cper2:15.1f}  "
+                  f"{speed:>8s}  {load0:4.1f}-{load1:4.1f}  {du:>7s}", flush=True)
 
 
 def main(argv: list[str] | None = None) -> int:

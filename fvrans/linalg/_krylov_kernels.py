@@ -7,8 +7,7 @@ Threads: with ``par`` and at least ``PARALLEL_MIN_CELLS`` unknowns, the loops ru
 Every sum over the unknowns is then formed as ``SUM_CHUNKS`` partial sums over consecutive chunks,
 added in order (also on one thread, so the bits do not depend on the thread count); products and
 updates are row by row. Below that size the sums run in order, as before. (The products with the
-system's matrix stay scipy's: a numba CSR product took 1.6-1.9x scipy's time on one thread here, and
-on two threads no less than scipy's on one.)
+system's matrix are ``_block_kernels.scaled_product``.)
 """
 
 from __future__ import annotations
