@@ -131,14 +131,16 @@ THIN_FLOW_COSINE = 0.7
 REUSE_ITERATIONS = {"superlu": 10, "umfpack": 4}
 #: a factorisation is also replaced once the FGMRES iterations it has preconditioned add up to
 #: REFACTOR_AFTER (about one factorisation's worth of solves: factorisation / solve time was 23-45 with
-#: SuperLU on the bundled systems, 97 on the fine step's, 9 with UMFPACK there, whose solve refines
-#: iteratively) while each solve still needs more than KEEP_ITERATIONS: the first factorisation is of the
-#: start's matrix, and the later ones are cheaper to precondition with a newer one
+#: SuperLU on the bundled systems, 97 on the fine step's, about 20 with UMFPACK there (9 while its solve
+#: refined iteratively; REUSE/REFACTOR kept from then: 10 / 20 / no skip gave 12 factorisations in
+#: place of 15 but about 100 more solves in missed tries)) while each solve still needs more than
+#: KEEP_ITERATIONS: the first factorisation is of the start's matrix, and the later ones are cheaper to
+#: precondition with a newer one
 REFACTOR_AFTER = {"superlu": 20, "umfpack": 8}
 #: after an earlier factorisation failed to precondition a system within REUSE_ITERATIONS, the next
-#: system is factorised without trying (the try costs 4 solves, about half a factorisation, with
-#: UMFPACK; a tenth with SuperLU, where it is kept): fine step, Newton's convection, 46 outer
-#: iterations: 173 s with a try every outer iteration
+#: system is factorised without trying (the try costs 4 solves, a fifth of a factorisation with
+#: UMFPACK, half while its solve refined; a tenth with SuperLU, where it is kept): fine step, Newton's
+#: convection, 46 outer iterations: 173 s with a try every outer iteration (refining solves)
 SKIP_AFTER_MISS = {"superlu": False, "umfpack": True}
 KEEP_ITERATIONS = 2
 #: at most this many Newton steps on the boundary extrapolation of the pressure gradient per outer iteration
@@ -705,31 +707,39 @@ class SimultaneousSolver(SimpleSolver):
 
     def _solve_direct(self, A: sp.csr_matrix, rhs: np.ndarray) -> np.ndarray:
         """The sparse LU of the system (``fvrans.linalg.sparse_lu``: UMFPACK, or SuperLU), reused for later
-        outer iterations as the preconditioner of flexible GMRES while that reaches ``system_tolerance``
-        within ``REUSE_ITERATIONS`` iterations (the matrix changes little from one outer iteration to the
-        next; a solve costs 1/9-1/100 of a factorisation); refactorised when it does not, or when the
-        solves it has preconditioned have cost about one factorisation (``REFACTOR_AFTER``)."""
+        outer iterations as the preconditioner of flexible GMRES while that reaches the outer iteration's
+        tolerance (``_forcing_tolerance``) within ``REUSE_ITERATIONS`` iterations (the matrix changes
+        little from one outer iteration to the next; a solve costs 1/20-1/100 of a factorisation);
+        refactorised when it does not, or when the solves it has preconditioned have cost about one
+        factorisation (``REFACTOR_AFTER``)."""
         if self.singular:
             self._pin_level(A, rhs)
         backend = self._lu.backend if self._lu is not None else ""
         worn = self._lu is not None and (self._lu_iterations >= REFACTOR_AFTER[backend]
                                          and self.lin_iterations[-1] > KEEP_ITERATIONS)
         skip, self._lu_missed = self._lu_missed, False
+        x0 = self._state_vector()
+        # rows scaled by their diagonals, so that the residual norm GMRES reduces weighs every
+        # equation alike (momentum rows of thin wall cells are many decades above the rest)
+        d = np.abs(A.diagonal())
+        d = 1.0 / np.where(d > 0.0, d, 1.0)
+        r0 = d * (rhs - A @ x0)
+        # a fresh factorisation solves to round-off; the kept one is taken while FGMRES reaches the
+        # inexact-Newton tolerance (``_forcing_tolerance``): fine step 46 -> 43 outer iterations, 15
+        # factorisations either way; medium step 47 -> 45 outer iterations, 15 -> 13 factorisations
+        tol = self._forcing_tolerance(float(np.linalg.norm(r0)))
+        self.lin_tolerances.append(tol)
         if self._lu is not None and not worn and not skip:
-            x0 = self._state_vector()
-            # rows scaled by their diagonals, so that the residual norm GMRES reduces weighs every
-            # equation alike (momentum rows of thin wall cells are many decades above the rest)
-            d = np.abs(A.diagonal())
-            d = 1.0 / np.where(d > 0.0, d, 1.0)
             lu = self._lu
-            dx, its, rel = fgmres(lambda z: d * (A @ z), lambda v: lu.solve(v / d), d * (rhs - A @ x0),
-                                  self.ctl.system_tolerance, REUSE_ITERATIONS[backend], REUSE_ITERATIONS[backend])
+            dx, its, rel = fgmres(lambda z: d * (A @ z), lambda v: lu.solve(v / d), r0,
+                                  tol, REUSE_ITERATIONS[backend], REUSE_ITERATIONS[backend])
             self._lu_iterations += its
             del lu
-            if rel <= self.ctl.system_tolerance:
+            if rel <= tol:
                 self.lin_iterations.append(its)
                 return x0 + dx
             self._lu_missed = SKIP_AFTER_MISS[backend]
+        del x0, r0
         # the old factors are freed before the new ones are made (UMFPACK's symbolic analysis is kept)
         analysis = getattr(self._lu, "analysis", None)
         self._lu = None
@@ -890,8 +900,8 @@ class SimultaneousSolver(SimpleSolver):
         return dx
 
     def _forcing_tolerance(self, norm: float) -> float:
-        """The relative tolerance of this outer iteration's iterative solve (``FORCING_*``), given the
-        norm of its initial (row-scaled) residual."""
+        """The relative tolerance of this outer iteration's linear solve (FGMRES, or FGMRES on a kept LU;
+        ``FORCING_*``), given the norm of its initial (row-scaled) residual."""
         floor = self.ctl.system_tolerance
         previous, self._outer_norm = self._outer_norm, norm
         if not self.forcing or previous is None or not self.lin_tolerances or not previous > 0.0:
@@ -921,6 +931,7 @@ class SimultaneousSolver(SimpleSolver):
                          "the sparse LU takes over", self.lin_residuals[-1], self.ctl.system_tolerance,
                          self.lin_iterations[-1])
                 self.fell_back = True
+                self._outer_norm = None  # the LU's residual norm is scaled otherwise: no forcing this time
                 x = self._solve_direct(A, rhs)
         self.lin_seconds += time.perf_counter() - t0
         _, _, E, r_u, r_v, rbar, _, hu, _ = self._parts  # (Au, Av, ..., Wall): the blocks are not needed here

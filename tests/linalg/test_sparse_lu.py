@@ -57,3 +57,22 @@ def test_umfpack_reuses_the_symbolic_analysis_only_for_the_same_pattern():
     third = sparse_lu.factorize(C, "umfpack", analysis=first.analysis)
     assert third.analysis[1] is not first.analysis[1]
     assert np.linalg.norm(third.solve(C @ x_true) - x_true) < 1e-10 * np.linalg.norm(x_true)
+
+
+def test_umfpack_is_reached_through_its_c_functions_and_a_kept_analysis_outlives_its_first_factors():
+    # on the platforms CI runs on, the solve without iterative refinement is the one in use
+    assert sparse_lu._LIBRARY is not None
+    A = _convection_diffusion(16)
+    x_true = np.sin(0.3 * np.arange(A.shape[0]))
+    first = sparse_lu.factorize(A, "umfpack")
+    kept = first.analysis
+    del first  # the numeric factors go; the symbolic analysis stays with whoever holds it
+    for k in range(3):
+        B = A.copy()
+        B.data = B.data * (1.0 + 0.05 * (k + 1) * np.cos(np.arange(B.nnz)))
+        lu = sparse_lu.factorize(B, "umfpack", analysis=kept)
+        assert lu.analysis[1] is kept[1]
+        # no refinement: one forward and back substitution, still at round-off on this well-conditioned system
+        assert np.linalg.norm(lu.solve(B @ x_true) - x_true) < 1e-12 * np.linalg.norm(x_true)
+        kept = lu.analysis
+        del lu
