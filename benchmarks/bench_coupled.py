@@ -161,6 +161,31 @@ freed heap pages handed back at four points per outer iteration; the same bits):
   FGMRES per outer both, 0.308, 0.178 / 0.298, 0.188 s per outer; plate medium 34 outer, 6.62 both, 0.102, 0.145 /
   0.107, 0.112 s per outer; the answers identical to the last digit.
 
+Measured 2026-12-03 11:59-12:48 (--cost; 2 shared cores, load 0.4 at the first runs, then 3.7-4.7; wall seconds under
+that load measure the scheduler, so the CPU seconds per iteration are given as well), before = main fb41c24 (+ the
+restriction from P's rows), after = unsigned CSR indices in the multigrid kernels, the preconditioner's sparse
+products and the system product in numba, the fused Gram-Schmidt, OpenMP threads waiting asleep; the same bits
+(u, p, FGMRES counts) throughout. Interleaved whole runs, one thread, CPU s per outer iteration (/tmp/par6/ab.py):
+cavity 128^2 0.188 / 0.189 -> 0.140 / 0.129 (SIMPLEC 0.0191 -> 0.0148 per iteration: the same multigrid kernels),
+plate medium 0.112 / 0.118 -> 0.092 / 0.091 (SIMPLEC 0.0318 -> 0.0244). Cavity 256^2 at one state: FGMRES
+iteration 54 -> 36 ms (preconditioner 37 -> 20 ms, Gram-Schmidt step 10.1 -> 7.6 ms in context).
+    | grid (cells) | outer | FGMRES / outer | x SIMPLEC before (wall, load) | x SIMPLEC after (CPU s, load) | CPU use |
+    |---|---|---|---|---|---|
+    | cavity 128^2 (16384) | 14 | 15.1 | 9.5 (0.8) | 9.8-10.3 (3.8-4.0) | 0.49-0.50 |
+    | cavity 256^2 (65536) | 12 | 19.9 | 15.9 (3.7) | 14.1-14.9 (4.0-4.6) | 0.52-0.54 |
+    | plate medium (13056) | 38 | 6.3 | 3.5 (0.9) | 3.8-3.9 (4.0-4.5) | 0.50-0.79 |
+    | plate fine (52224) | 38 | 13.2 | 10.1 (last session) | 6.1 (4.3): 46.5 s wall, 23.2 CPU s | 0.50 |
+    | step coarse (6912) | 88 | 14.3 | 4.3 (3.2) | 4.3 (4.2-4.4) | 0.50 |
+  Two threads (--threads 1 2), load 3.7-4.0: before (OpenMP threads spinning) cavity 128^2 0.197 s per outer
+  iteration on 2 against 0.180 on 1 (load 0.9), plate medium 0.999 against 0.108 (load 1.1-2.4), cavity 256^2
+  2.57 against 1.25 (load 2.9-3.7); after cavity 128^2 0.350 / 0.359 (speed-up 1.03), plate medium 0.202 / 0.196
+  (0.97), cavity 256^2 0.925 / 1.750 (1.89; CPU use 0.96 against 0.52: the one-thread run got half a core), the
+  same bits (du 0). Both cores busy (CPU use ~2) was not seen: the other processes held 3-4 cores' worth all
+  session. The ratio to SIMPLEC hardly moves: the faster multigrid kernels serve SIMPLEC's solves as well, and an
+  FGMRES iteration is four V-cycles against SIMPLEC's 4-6 per whole iteration, so at 15-20 FGMRES iterations per
+  outer iteration (cavity) the V-cycles alone are 10-15 SIMPLEC iterations' worth; 3x needs ~4 FGMRES iterations
+  per outer iteration, not cheaper kernels.
+
 Run:  python benchmarks/bench_coupled.py [--families cavity plate step] [--fine-step] [--only simultaneous]
       python benchmarks/bench_coupled.py --memory cavity plate [--cells 400000] [--memory-iterations 8]
       python benchmarks/bench_coupled.py --cost [cavity128 plate-medium ...] [--threads 1 2] [--forcing-max 0]
