@@ -185,6 +185,12 @@ iteration 54 -> 36 ms (preconditioner 37 -> 20 ms, Gram-Schmidt step 10.1 -> 7.6
   FGMRES iteration is four V-cycles against SIMPLEC's 4-6 per whole iteration, so at 15-20 FGMRES iterations per
   outer iteration (cavity) the V-cycles alone are 10-15 SIMPLEC iterations' worth; 3x needs ~4 FGMRES iterations
   per outer iteration, not cheaper kernels.
+  Whole runs at load 1.1-1.7 (13:01-13:04, /tmp/par6/ab.py, before = the same script on fb41c24 + 64bc249; numpy
+  triad of 52k doubles 0.029 ms), s per outer iteration on one thread (CPU use 1.00) before -> after, SIMPLEC's:
+    fine plate (52224 cells, 38 outer, 13.2 FGMRES per outer): 0.806 -> 0.563 s (30.6 -> 21.4 s; 2 threads 18.6 s,
+      CPU use 1.34); SIMPLEC 0.130 -> 0.096 s per iteration; x SIMPLEC 6.2 -> 5.9
+    cavity 256^2 iterative (65536 cells, 12 outer, 19.9 per outer): 1.221 -> 0.875 s (14.7 -> 10.5 s; 2 threads
+      7.7 s, CPU use 1.45); SIMPLEC 0.088 -> 0.064 s; x SIMPLEC 14.0 -> 13.6
 
 Run:  python benchmarks/bench_coupled.py [--families cavity plate step] [--fine-step] [--only simultaneous]
       python benchmarks/bench_coupled.py --memory cavity plate [--cells 400000] [--memory-iterations 8]
