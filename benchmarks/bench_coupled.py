@@ -161,6 +161,18 @@ freed heap pages handed back at four points per outer iteration; the same bits):
   FGMRES per outer both, 0.308, 0.178 / 0.298, 0.188 s per outer; plate medium 34 outer, 6.62 both, 0.102, 0.145 /
   0.107, 0.112 s per outer; the answers identical to the last digit.
 
+Measured 2026-12-03 12:10-12:50 (2 shared cores, load 2.7-4.4), the multigrid restriction applied from P's rows
+(R = P^T not stored), G held only in the system's momentum rows, the faces' quality measures made when read, the
+cycle's residual one level at a time, E made again after the solve (the same bits, the same FGMRES counts):
+  --memory (400k cells, 8 simultaneous iterations; RSS above the baseline, KB per cell, traced in brackets;
+  before = main fb41c24 in the same session):
+    cavity 399424: 2.65 (2.66) -> 2.37 (2.37), FGMRES 11/41/30/39/40/39/56/53 (38.6 per outer) both
+    SA plate 399843: 3.21 (3.01) -> 2.96 (2.70), FGMRES 3/100/72/120/23/33/61/14 (53.3 per outer) both; again
+    after merging main 0acb7b5 (load 1-3): 2.93 (2.70), the same counts
+  Cost: one FGMRES iteration's preconditioner and product at 52k cells (plate, one thread) 33.9-34.8 ms before,
+  34.7-35.6 ms after (quiet repetitions; the others were twice as long, the core shared): a product with G
+  reads the strided system rows (0.55 triads against scipy's 0.23), twice per preconditioner application.
+
 Measured 2026-12-03 11:59-12:48 (--cost; 2 shared cores, load 0.4 at the first runs, then 3.7-4.7; wall seconds under
 that load measure the scheduler, so the CPU seconds per iteration are given as well), before = main fb41c24 (+ the
 restriction from P's rows), after = unsigned CSR indices in the multigrid kernels, the preconditioner's sparse

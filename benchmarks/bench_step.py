@@ -30,6 +30,9 @@ after 1 394), 2 cores shared. Former figures (residuals 1e-6 in the former defin
 Simultaneous coupling with the sparse LU, as the cases name it since 2026-12-03 (Newton's convection and
 Anderson acceleration near convergence, UMFPACK): coarse / medium / fine 45 / 46 / 46 outer iterations,
 x_r 6.1329 / 6.1716 / 6.1772; the fine grid from the uniform start 143 s (2 cores, quiet, 2.6 GB peak resident).
+Since the settle estimate's short windows for fast decays (fvrans/monitor/estimate.py) and UMFPACK's solves without
+refinement: 31 / 30 / 32 outer iterations, same x_r; fine 138.1 s wall, 108.0 s CPU (user + sys), 2.3 GB peak
+resident, at load 2-3 with 75 % of a core's share (triad 1.087 ms; 2026-12-03 12:50).
 SIMPLEC figures, measured 2026-12-02 (2 cores shared with other jobs, solver defaults), x_r / H, iterations, seconds,
 us/cell/iteration: coarse 6.136, 712, 10.6, 2.15; medium 6.173, 2112, 148, 2.54; mixed 6.216, 178,
 21.8, 4.88; fine from the uniform start 6.173, 4800, 1705, 3.21 (from the medium result: 6.172, 90,

@@ -177,7 +177,8 @@ def restriction_rows(ptr, idx, nf, nc, rows):
 @njit(cache=True, nogil=True)
 def vcycle(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_idx, p_dat,
            t_rows, cinv, sweeps, s_ptr, s_order, x, b, r, par):
-    """x = M^-1 b on level 0 (x, b, r level-stacked; b[:n0] holds the input, x[:n0] the output).
+    """x = M^-1 b on level 0 (x, b level-stacked; b[:n0] holds the input, x[:n0] the output; r, of
+    n0 values or more, holds each level's residual in turn).
 
     V(sweeps, sweeps) cycle: forward Gauss-Seidel before, backward (the exact reverse order)
     after the coarse-grid correction, so the cycle is a symmetric operator for a symmetric matrix
@@ -190,6 +191,7 @@ def vcycle(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_id
     # flags and offsets read from arrays, not written as constants: a literal argument (True, 0)
     # makes numba compile one more version of the helper it is passed to
     yes = n[0] >= 0
+    zero = voff[0]
     no = n[0] < 0
     for lv in range(nlev - 1):
         vo = voff[lv]
@@ -197,8 +199,9 @@ def vcycle(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_id
         _fill(x, vo, m, 0.0, par)
         for _ in range(sweeps):
             _smooth(a_ptr, a_pofs[lv], a_idx, a_dat, dinv, x, b, vo, m, s_ptr[lv], s_order[lv], yes, par)
-        _residual(a_ptr, a_pofs[lv], a_idx, a_dat, x, vo, b, vo, r, vo, m, par)
-        _restrict(p_ptr, p_pofs[lv], p_idx, p_dat, r, vo, m, b, voff[lv + 1], n[lv + 1], t_rows[lv], par)
+        # (the residual is restricted at once: one level's at a time in r)
+        _residual(a_ptr, a_pofs[lv], a_idx, a_dat, x, vo, b, vo, r, zero, m, par)
+        _restrict(p_ptr, p_pofs[lv], p_idx, p_dat, r, zero, m, b, voff[lv + 1], n[lv + 1], t_rows[lv], par)
     # coarsest level
     lc = nlev - 1
     vc = voff[lc]

@@ -236,7 +236,8 @@ class AmgKrylovSolver:
         self._h = (
             len(n), n, voff, *a.arrays(), dinv, *p.arrays(), t_rows, cinv, self.sweeps, s_ptr, s_order,
         )
-        self._vec = (np.zeros(total), np.zeros(total), np.zeros(total))
+        self._vec = None
+        self._scratch()
         self._work = None  # the Krylov loop's vectors, made by its first solve (a lone V-cycle needs none)
         self._twin = None  # the copy for the second system of a pair, made on demand
         self._uses = 0
@@ -244,14 +245,15 @@ class AmgKrylovSolver:
         self.levels = [int(k) for k in n]
 
     def share_vectors(self, *others: AmgKrylovSolver) -> None:
-        """Let this solver and ``others`` (hierarchies set up) use one set of level-stacked scratch
-        vectors (x, b, r of the cycle), sized for the largest: for V-cycles that never run at once."""
+        """Let this solver and ``others`` (hierarchies set up) use one set of scratch vectors (x, b, r
+        of the cycle: ``_scratch``), sized for the largest: for V-cycles that never run at once."""
         solvers = (self, *others)
-        total = max(s._vec[0].size for s in solvers)
-        buf = np.zeros((3, total))
+        total = max(s._scratch()[0].size for s in solvers)
+        rows = max(s._vec[2].size for s in solvers)
+        buf = np.zeros(2 * total + rows)
         for s in solvers:
-            m = s._vec[0].size
-            s._vec = (buf[0, :m], buf[1, :m], buf[2, :m])
+            m, r = s._vec[0].size, s._vec[2].size
+            s._vec = (buf[:m], buf[total:total + m], buf[2 * total:2 * total + r])
             s._twin = None
 
     def _work_vectors(self) -> np.ndarray:
@@ -269,10 +271,11 @@ class AmgKrylovSolver:
         self._vec = self._work = self._twin = None
 
     def _scratch(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """The cycle's level-stacked vectors (x, b, r), made when released."""
+        """The cycle's vectors, made when released: x and b level-stacked, r of the finest level's size
+        (each level's residual in turn: ``_amg_kernels.vcycle``)."""
         if self._vec is None:
             total = int(np.sum(self._h[1]))
-            self._vec = (np.zeros(total), np.zeros(total), np.zeros(total))
+            self._vec = (np.zeros(total), np.zeros(total), np.zeros(int(self._h[1][0])))
         return self._vec
 
     def _run(self, A: sp.csr_matrix, b: np.ndarray, x: np.ndarray, state: tuple | None = None,

@@ -214,8 +214,9 @@ class LeastSquaresCommutator:
         self.shift = np.zeros(n)
         if stretched is not None:
             self.shift[stretched] = self.RELAXATION
-        self.G = sp.csr_matrix(G)
-        self.Gx, self.Gy = _row_halves(self.G)
+        # (an operator with ``halves()``, e.g. the solver's G held in the system, is used as it is)
+        self.G = G if hasattr(G, "halves") else sp.csr_matrix(G)
+        self.Gx, self.Gy = G.halves() if hasattr(G, "halves") else _row_halves(self.G)
         #: D's halves, or None: the products taken from the continuity rows of the system (``update``)
         self.Du, self.Dv = _column_halves(D) if D is not None else (None, None)
         self.continuity: sp.csr_matrix | None = None
@@ -271,9 +272,9 @@ class LeastSquaresCommutator:
         if self.continuity is not None:
             # the middle factor in three passes over the rows (numba; on every thread with ``par``),
             # the same sums as the products below
-            G, Au, Av, lq, D = self.G, self.Au, self.Av, self.lq, self.continuity
+            Au, Av, lq, D = self.Au, self.Av, self.lq, self.continuity
             m = np.empty(self.n)
-            _k.commutator_middle(G.indptr, G.indices, G.data, Au.indptr, Au.indices, Au.data, Av.indptr, Av.indices,
+            _k.commutator_middle(*self._gradient_rows(), Au.indptr, Au.indices, Au.data, Av.indptr, Av.indices,
                                  Av.data, lq.indptr, lq.indices, lq.data, D.indptr, D.indices, D.data, y, self.hu,
                                  self.hv, self.stabilisation, m, np.empty((4, self.n)), par)
             return self.lap(m, par)
@@ -282,6 +283,14 @@ class LeastSquaresCommutator:
         m = self.stabilisation * ((self.lq @ y) + self.times_d(gx, gy))
         m -= self.times_d(self.hu * (self.Au @ gx), self.hv * (self.Av @ gy))
         return self.lap(m, par)
+
+    def _gradient_rows(self) -> tuple:
+        """G's rows for the ``_block_kernels`` products: (indptr, indices, data, cind, shift) as
+        ``_block_kernels._g_row_dot`` reads them (a matrix of its own: cind of one entry, shift 0)."""
+        if hasattr(self.G, "csr_rows"):
+            return self.G.csr_rows()
+        G = self.G
+        return G.indptr, G.indices, G.data, _NO_CIND, 0
 
     def times_d(self, a: np.ndarray, b: np.ndarray) -> np.ndarray:
         """D [a; b]: with D's halves, or from the system's continuity rows with zero pressures."""
@@ -297,9 +306,8 @@ class LeastSquaresCommutator:
         n = self.n
         par = threads() > 1
         zp = self.schur_inverse(r[2 * n:], par)
-        G = self.G
         w = np.empty(2 * n)
-        _k.minus_product(G.indptr, G.indices, G.data, zp, r[:2 * n], w, par)  # r_u - G z_p
+        _k.minus_product(*self._gradient_rows(), zp, r[:2 * n], w, par)  # r_u - G z_p
         if self.mv is not None:
             return np.concatenate([*_momentum_pair(self.mu, self.mv, w, n, par), zp])
         # one hierarchy: the component whose values its finest level holds first, then the other's
@@ -315,6 +323,9 @@ class LeastSquaresCommutator:
                 self._fine = "v" if c == 1 else "u"
             z[c * n:(c + 1) * n] = self.mu(w[c * n:(c + 1) * n], par)
         return z
+
+
+_NO_CIND = np.zeros(1, dtype=np.int64)
 
 
 def _row_halves(G: sp.csr_matrix) -> tuple[sp.csr_matrix, sp.csr_matrix]:

@@ -33,10 +33,22 @@ class Geometry:
     face_delta: np.ndarray  # (nf, 2) owner -> neighbour (or -> face centre on the boundary)
     face_weight: np.ndarray  # (nf,) owner weight of linear interpolation
     face_skew: np.ndarray  # (nf, 2) x_f - x_ip
-    face_nonorth_deg: np.ndarray  # (nf,) angle between d and n in degrees
-    face_skewness: np.ndarray  # (nf,) |x_f - x_ip| / |d|
     cell_aspect_ratio: np.ndarray  # (nc,) see cell_aspect_ratios()
     face_shift: np.ndarray  # (nf, 2) moves the neighbour beside the owner (periodic faces; else 0)
+
+    @property
+    def face_nonorth_deg(self) -> np.ndarray:
+        """(nf,) angle between d and n in degrees (made on each read: the mesh-quality report reads
+        it, no solver does, so it is not held beside a run)."""
+        d = self.face_delta
+        cosang = np.clip(np.einsum("ij,ij->i", d, self.face_normal) / np.hypot(d[:, 0], d[:, 1]), -1.0, 1.0)
+        return np.degrees(np.arccos(cosang))
+
+    @property
+    def face_skewness(self) -> np.ndarray:
+        """(nf,) |x_f - x_ip| / |d| (made on each read, as ``face_nonorth_deg``)."""
+        d, skew = self.face_delta, self.face_skew
+        return np.hypot(skew[:, 0], skew[:, 1]) / np.hypot(d[:, 0], d[:, 1])
 
     @property
     def n_cells(self) -> int:
@@ -142,10 +154,6 @@ def compute_geometry(mesh: Mesh) -> Geometry:
     xip = xo + t[:, None] * d
     skew = fc - xip
     skew[ni:] = 0.0
-    dlen = np.hypot(d[:, 0], d[:, 1])
-    cosang = np.clip(dn / dlen, -1.0, 1.0)
-    nonorth = np.degrees(np.arccos(cosang))
-    skewness = np.hypot(skew[:, 0], skew[:, 1]) / dlen
     c = np.ascontiguousarray
     return Geometry(
         cell_centre=c(centre),
@@ -157,8 +165,6 @@ def compute_geometry(mesh: Mesh) -> Geometry:
         face_delta=c(d),
         face_weight=c(w),
         face_skew=c(skew),
-        face_nonorth_deg=c(nonorth),
-        face_skewness=c(skewness),
         cell_aspect_ratio=c(cell_aspect_ratios(mesh, area)),
         face_shift=c(shift),
     )

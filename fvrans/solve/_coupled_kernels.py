@@ -282,6 +282,41 @@ def gradient_values(nc, cind, cidx, cf_ptr, cf_face, owner, neigh, n_int, S, w, 
             out[nnz + j] = minv[c, 1, 0] * gx + minv[c, 1, 1] * gy
 
 
+@njit(cache=True)
+def gradient_slots(nc, cind, indptr, data, g, into):
+    """Copy G's values between ``g`` (x block in ``g[:nnz]``, y block in ``g[nnz:]``, each on the compact
+    structure ``cind``) and their places in the system's values ``data``: the last entries of each
+    momentum row (row c of u, row nc + c of v), in the order of compact(c). ``into``: g -> data,
+    else data -> g."""
+    nnz = cind[nc]
+    for d in range(2):
+        for c in range(nc):
+            a, b = cind[c], cind[c + 1]
+            t = indptr[d * nc + c + 1] - (b - a)
+            for j in range(b - a):
+                if into:
+                    data[t + j] = g[d * nnz + a + j]
+                else:
+                    g[d * nnz + a + j] = data[t + j]
+
+
+@njit(cache=True, nogil=True)
+def gradient_product(nc, cind, cidx, indptr, data, p, first, last, out):
+    """out[r - first] = (G p)[r] for the rows r in [first, last) of G (2nc x nc; rows [x; y]), G read from the
+    system's momentum rows (``gradient_slots``): each row summed from 0 in column order, as a CSR
+    product sums it (one thread: on a shared machine the parallel loop was slower)."""
+    for d in range(2):
+        lo = max(first - d * nc, 0)
+        hi = min(last - d * nc, nc)
+        for c in range(lo, hi):
+            a, b = cind[c], cind[c + 1]
+            t = indptr[d * nc + c + 1] - (b - a)
+            acc = 0.0
+            for j in range(b - a):
+                acc += data[t + j] * p[cidx[a + j]]
+            out[d * nc + c - first] = acc
+
+
 @njit(cache=True, nogil=True, inline="always")
 def _momentum_row(c, d, nc, cind, cf_ptr, cf_face, owner, neigh, n_int, a_rel, off_own, off_nei, g_data, indptr,
                   indices, data):

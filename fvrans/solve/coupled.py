@@ -225,6 +225,85 @@ def _wall_flux_stencil(wall_grad: Any, owner: np.ndarray, S: np.ndarray, nc: int
             np.concatenate(f4))
 
 
+class SystemGradient:
+    """G = M^-1 G0 (2nc x nc, rows [x; y]; ``SimultaneousSolver._gradient_values``) read where the
+    system holds it, the pressure columns of the momentum rows (the last entries of each row, in the
+    order of the compact structure ``cind``/``cidx``): its only copy (~0.13 KB per cell less than a
+    matrix of its own). ``make()`` gives its values again when the system's values were released
+    (``SimultaneousSolver.release_work``). Products sum each row as a CSR product does: the same bits."""
+
+    def __init__(self, system: sp.csr_matrix, cind: np.ndarray, cidx: np.ndarray, make: Any):
+        self._A, self._cind, self._cidx, self._make = system, cind, cidx, make
+        nc = len(cind) - 1
+        self.shape = (2 * nc, nc)
+        self.restore()
+
+    def restore(self) -> None:
+        """Put G's values in the system (values made anew when released)."""
+        A = self._A
+        if A.data.size != A.indices.size:
+            A.data = np.zeros(A.indices.size)
+        CK.gradient_slots(self.shape[1], self._cind, A.indptr, A.data, self._make(), True)
+
+    def values(self) -> np.ndarray:
+        """G's values (x block, then y block, each on the compact structure; a new array), read from
+        the system, which gets them back first when its values were released."""
+        A = self._A
+        if A.data.size != A.indices.size:
+            self.restore()
+        g = np.empty(2 * len(self._cidx))
+        CK.gradient_slots(self.shape[1], self._cind, A.indptr, A.data, g, False)
+        return g
+
+    def product(self, p: np.ndarray, first: int, last: int) -> np.ndarray:
+        """Rows [first, last) of G p."""
+        out = np.empty(last - first)
+        CK.gradient_product(self.shape[1], self._cind, self._cidx, self._A.indptr, self._A.data,
+                            np.ascontiguousarray(p, dtype=np.float64), first, last, out)
+        return out
+
+    def __matmul__(self, p: np.ndarray) -> np.ndarray:
+        return self.product(p, 0, self.shape[0])
+
+    def csr_rows(self) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, int]:
+        """(indptr, indices, data, cind, shift) of the system: row r of G is the last cind[c + 1] - cind[c]
+        entries of the system's row r (c = r mod nc), at the columns indices - shift (the block
+        preconditioner's numba products read G there: ``_block_kernels._g_row_dot``)."""
+        A = self._A
+        if A.data.size != A.indices.size:
+            self.restore()
+        return A.indptr, A.indices, A.data, self._cind, 2 * self.shape[1]
+
+    def halves(self) -> tuple[_GradientRows, _GradientRows]:
+        """The x and y rows of G as operators (products read the system, as G's do)."""
+        nc = self.shape[1]
+        return _GradientRows(self, 0, nc), _GradientRows(self, nc, 2 * nc)
+
+    def tocsr(self) -> sp.csr_matrix:
+        """G as a matrix of its own (a copy: for the SIMPLE-type and convection-diffusion preconditioners
+        and for checks)."""
+        nnz = len(self._cidx)
+        cind = self._cind.astype(np.int64)
+        indptr = np.concatenate([cind, cind[1:] + nnz])
+        G = sp.csr_matrix((self.values(), np.concatenate([self._cidx, self._cidx]), indptr), shape=self.shape)
+        G.has_sorted_indices = True
+        return G
+
+
+class _GradientRows:
+    """Rows [first, last) of a :class:`SystemGradient` as an operator."""
+
+    def __init__(self, G: SystemGradient, first: int, last: int):
+        self._G, self._first, self._last = G, first, last
+        self.shape = (last - first, G.shape[1])
+
+    def __matmul__(self, p: np.ndarray) -> np.ndarray:
+        return self._G.product(p, self._first, self._last)
+
+    def tocsr(self) -> sp.csr_matrix:
+        return self._G.tocsr()[self._first:self._last]
+
+
 class SimultaneousSolver(SimpleSolver):
     """:class:`SimpleSolver` whose outer iteration solves momentum and continuity as one system
     (see the module docstring). Same constructor, hooks and attributes; ``bulk_velocity`` is refused
@@ -336,13 +415,11 @@ class SimultaneousSolver(SimpleSolver):
                                         EXTRAPOLATION_LIMIT)
         compact = self.asm_u.matrix(np.zeros(nc), np.zeros(ni), np.zeros(ni))
         self._cind, self._cidx = compact.indptr, compact.indices
-        self.G = self._gradient_matrix(minv)
         # M^-1 differs from the identity only in cells with an extrapolated boundary face: those kept
         eye = (minv[:, 0, 0] == 1.0) & (minv[:, 1, 1] == 1.0) & (minv[:, 0, 1] == 0.0) & (minv[:, 1, 0] == 0.0)
         #: the cells whose M^-1 is not the identity, and their M^-1
         self._extrapolated = np.flatnonzero(~eye)
         self._extrapolation_inverse = np.ascontiguousarray(minv[self._extrapolated])
-        del minv, eye
         self._wall, self._wall_stencil, wall_cells = self._wall_flux_pattern()
         #: Newton's linearisation of convection may be taken (``_newton``): with the sparse LU only
         self.newton_allowed = self.ctl.newton_convection_below > 0.0 and self.system_solver == "direct"
@@ -350,6 +427,9 @@ class SimultaneousSolver(SimpleSolver):
             # the Newton part of the convection term couples u and v on the compact structure
             wall_cells = _merged_rows(self._cind, self._cidx, *wall_cells)
         self._A = self._system_pattern(*wall_cells)
+        #: G, held in the system's momentum rows (``SystemGradient``)
+        self.G = SystemGradient(self._A, self._cind, self._cidx, self._gradient_values)
+        del minv, eye
         wrows = np.repeat(np.arange(2 * nc, dtype=np.int64), np.diff(self._wall.indptr))
         self._wall_in_system = np.empty(self._wall.nnz, dtype=np.int64)
         CK.positions(self._A.indptr, self._A.indices, wrows, self._wall.indices.astype(np.int64),
@@ -423,20 +503,19 @@ class SimultaneousSolver(SimpleSolver):
         self._A.data = np.empty(0)
 
     # -- static parts ---------------------------------------------------------------------------
-    def _gradient_matrix(self, minv: np.ndarray) -> sp.csr_matrix:
-        """G = M^-1 G0 (2nc x nc, rows [x; y]): G0 p = sum_f p_f S_f (p_f linearly interpolated, the
-        owner's value on boundary faces without a given pressure), M^-1 the extrapolation per cell
-        (``minv``, nc x 2 x 2); each block on the compact structure (``_coupled_kernels.gradient_values``)."""
-        nc, cind, cidx = self.nc, self._cind, self._cidx
-        nnz = len(cidx)
-        data = np.empty(2 * nnz)
-        CK.gradient_values(nc, cind, cidx, self.cf_ptr, self.cf_face, self.owner, self.neigh, self.ni, self.S,
-                           self.geom.face_weight, ~self.fixed, minv, data)
-        itype = np.int32 if 2 * nnz < 2**31 - 1 else np.int64
-        indptr = np.concatenate([cind, cind[1:].astype(itype) + itype(nnz)]).astype(itype)
-        G = sp.csr_matrix((data, np.concatenate([cidx, cidx]).astype(itype), indptr), shape=(2 * nc, nc))
-        G.has_sorted_indices = True
-        return G
+    def _gradient_values(self) -> np.ndarray:
+        """The values of G = M^-1 G0 (2nc x nc, rows [x; y]; x block then y block, each on the compact
+        structure): G0 p = sum_f p_f S_f (p_f linearly interpolated, the owner's value on boundary faces
+        without a given pressure), M^-1 the extrapolation per cell (the identity but in the cells of
+        ``_extrapolated``; ``_coupled_kernels.gradient_values``)."""
+        nc = self.nc
+        minv = np.zeros((nc, 2, 2))
+        minv[:, 0, 0] = minv[:, 1, 1] = 1.0
+        minv[self._extrapolated] = self._extrapolation_inverse
+        data = np.empty(2 * len(self._cidx))
+        CK.gradient_values(nc, self._cind, self._cidx, self.cf_ptr, self.cf_face, self.owner, self.neigh, self.ni,
+                           self.S, self.geom.face_weight, ~self.fixed, minv, data)
+        return data
 
     @property
     def D(self) -> sp.csr_matrix:
@@ -557,24 +636,25 @@ class SimultaneousSolver(SimpleSolver):
         # (D, A_pp = Lc + W V^-1 G with W the response to the cell pressure gradients), whose
         # product reads G's values
         p = fl.pressure
+        A = self._A
+        # G's values, taken out of the system's momentum rows while they are refilled (the system gets
+        # them back first when its values were released: ``release_work``)
+        g_data = self.G.values()
         Gp = self.G @ p
-        E = np.concatenate([V * gp[:, 0], V * gp[:, 1]]) - Gp
+        E = self._gradient_defect(Gp)
         # the wall faces' flux mu (G + G^T) . S implicit in full (the segregated assembly keeps the
         # part beyond mu dcoef (u_wall - u_P) deferred): A + W, right-hand side + W u_old
         Wall = self._wall_flux_matrix()
-        A = self._A
-        if A.data.size != A.indices.size:  # released (``release_work``)
-            A.data = np.zeros(A.indices.size)
         CK.momentum_rows(nc, self._cind, self.cf_ptr, self.cf_face, self.owner, self.neigh, ni, self.a_rel,
-                         self.off_own, self.off_nei, self.G.data, Wall.data, self._wall_in_system, A.indptr,
+                         self.off_own, self.off_nei, g_data, Wall.data, self._wall_in_system, A.indptr,
                          A.indices, A.data)
         rhs = np.empty(3 * nc)
         # continuity: D u + D R grad p - K grad p + Lc p = -c0, grad p = V^-1 (G p + E)
         CK.continuity_rows(nc, self._cind, self._cidx, self.cf_ptr, self.cf_face, self.owner, self.neigh, ni,
                            self.S, g.face_weight, self.dcoef, self.kvec, rbar, r_u, r_v, V, self.fixed, rho,
-                           self.implicit_gradient, self.G.data, E, gp, c0, A.indptr, A.indices, A.data,
+                           self.implicit_gradient, g_data, E, gp, c0, A.indptr, A.indices, A.data,
                            rhs[2 * nc:])
-        del c0
+        del c0, g_data
         # (in place: (b + G p) + W u_old, the same sums as with temporaries)
         rhs[:nc] = self.rhs_u
         rhs[nc:2 * nc] = self.rhs_v
@@ -591,12 +671,21 @@ class SimultaneousSolver(SimpleSolver):
         Au = self.asm_u.matrix(self.a_rel[:, 0], self.off_own, self.off_nei)
         Av = self.asm_v.matrix(self.a_rel[:, 1], self.off_own, self.off_nei)
         # (the velocity gradient is not held through the solve: ``gu`` makes it again after it)
-        self._parts = (Au, Av, E, r_u, r_v, rbar, None, hu, Wall)
+        # (E is made again after the solve: ``_gradient_defect``, not held through it)
+        self._parts = (Au, Av, None, r_u, r_v, rbar, None, hu, Wall)
         self._assembly_work("system", False)
         if not self.keep_assembly_work:
             self._dcoef = self._kvec = self._gu = None
         _release_free()
         return A, rhs, res
+
+    def _gradient_defect(self, Gp: np.ndarray | None = None) -> np.ndarray:
+        """E = V grad p - G p at the current state (x rows, then y rows; ``Gp``: G p when already
+        made): the part of the loop's pressure force V grad p beyond G p."""
+        V, gp = self.vol, self.grad_p
+        if Gp is None:
+            Gp = self.G @ self.fields.pressure
+        return np.concatenate([V * gp[:, 0], V * gp[:, 1]]) - Gp
 
     def _newton(self, res: list[float]) -> bool:
         """Whether this outer iteration linearises convection by Newton's method: once every normalised imbalance
@@ -760,7 +849,7 @@ class SimultaneousSolver(SimpleSolver):
         if self._prec is None:
             every = self.ctl.amg_rebuild_every
             if self.preconditioner == "simple":
-                self._prec = SimpleSchur(self.G, self.D, self.singular, every)
+                self._prec = SimpleSchur(self.G.tocsr(), self.D, self.singular, every)
             elif self.preconditioner == "least-squares-commutator":
                 wall_cells = np.zeros(self.nc, dtype=bool)
                 wall_cells[self.owner[self.ni:][self.bc.kind == K.WALL]] = True
@@ -791,7 +880,7 @@ class SimultaneousSolver(SimpleSolver):
                     np.ones(self.nc), self.fixed | inflow, 1.0)
                 lap = sp.csr_matrix((vals[:, 0], (rows, cols)), shape=(self.nc, self.nc))
                 singular = self.singular and not inflow.any()
-                self._prec = PressureConvectionDiffusion(lap, self.G, self.vol, float(self.rho), singular)
+                self._prec = PressureConvectionDiffusion(lap, self.G.tocsr(), self.vol, float(self.rho), singular)
                 # rows of A_p that keep the momentum matrix's boundary condition: cells at inflow
                 self._ap_keep = np.zeros(self.nc, dtype=bool)
                 self._ap_keep[self.owner[self.ni:][inflow]] = True
@@ -934,7 +1023,8 @@ class SimultaneousSolver(SimpleSolver):
                 self._outer_norm = None  # the LU's residual norm is scaled otherwise: no forcing this time
                 x = self._solve_direct(A, rhs)
         self.lin_seconds += time.perf_counter() - t0
-        _, _, E, r_u, r_v, rbar, _, hu, _ = self._parts  # (Au, Av, ..., Wall): the blocks are not needed here
+        _, _, _, r_u, r_v, rbar, _, hu, _ = self._parts  # (Au, Av, ..., Wall): the blocks are not needed here
+        E = self._gradient_defect()  # (the state the system was assembled at: p and grad p not yet updated)
         gu = self.gu  # the assembly's velocity gradient, made again (not held through the solve)
         V = self.vol
         un, vn, pn = x[:nc], x[nc:2 * nc], x[2 * nc:]

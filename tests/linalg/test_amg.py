@@ -232,7 +232,8 @@ def test_restriction_is_p_transpose_to_the_bit_and_is_not_stored():
     """The V-cycle restricts with P's rows (R = P^T is not kept): on a 40 000-row convection-diffusion
     matrix the restricted vector equals scipy's product with pyamg's own R = P^T (each coarse entry
     summed in increasing fine row, as a CSR row of R sums it) to the bit, in one pass and by chunks
-    of coarse rows on the threads; and the hierarchy holds the level matrices and prolongations only."""
+    of coarse rows on the threads; and the hierarchy holds the level matrices and prolongations only (and a
+    residual vector of the finest level's size)."""
     A = convection_diffusion(200, 0.5)
     ml = pyamg.ruge_stuben_solver(A, max_coarse=200, max_levels=25, CF="RS")
     s = AmgKrylovSolver("bicgstab", coarsening="RS")
@@ -252,3 +253,5 @@ def test_restriction_is_p_transpose_to_the_bit_and_is_not_stored():
                     if m is not None)
     extra = dinv.nbytes + cinv.nbytes + t_rows.nbytes + s._h[-2].nbytes + s._h[-1].nbytes + 8 * (4 * nlev + 2)
     assert held <= operators + extra
+    # the cycle's residual holds one level at a time: the finest level's size, not level-stacked
+    assert s._scratch()[2].size == nf and s._scratch()[0].size == n.sum()

@@ -10,6 +10,8 @@ import scipy.sparse as sp
 from fvrans import jit
 from fvrans.linalg import _block_kernels as BK
 
+NO_CIND = np.zeros(1, dtype=np.int64)  # G as a CSR matrix of its own
+
 
 @pytest.fixture(autouse=True)
 def _restore_threads():
@@ -44,10 +46,10 @@ def test_commutator_products_are_scipys_products_to_the_bit_on_one_and_two_threa
         jit.set_threads(threads)
         par = jit.threads() > 1
         out, minus, scaled = np.empty(n), np.empty(2 * n), np.empty(2 * n)
-        BK.commutator_middle(G.indptr, G.indices, G.data, Au.indptr, Au.indices, Au.data, Av.indptr, Av.indices,
-                             Av.data, lq.indptr, lq.indices, lq.data, cont.indptr, cont.indices, cont.data, y, hu, hv,
-                             c, out, np.empty((4, n)), par)
-        BK.minus_product(G.indptr, G.indices, G.data, y, r, minus, par)
+        BK.commutator_middle(G.indptr, G.indices, G.data, NO_CIND, 0, Au.indptr, Au.indices, Au.data, Av.indptr,
+                             Av.indices, Av.data, lq.indptr, lq.indices, lq.data, cont.indptr, cont.indices, cont.data,
+                             y, hu, hv, c, out, np.empty((4, n)), par)
+        BK.minus_product(G.indptr, G.indices, G.data, NO_CIND, 0, y, r, minus, par)
         BK.scaled_product(G.indptr, G.indices, G.data, y, d, scaled, par)
         return out, minus, scaled
 

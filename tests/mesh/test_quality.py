@@ -18,6 +18,7 @@ import numpy as np
 import pytest
 
 from fvrans.mesh import Mesh, compute_geometry, read_mesh
+from fvrans.mesh.generate import cavity
 from fvrans.mesh.quality import (
     ASPECT_WARN,
     NONORTH_WARN_DEG,
@@ -185,3 +186,12 @@ def test_warning_thresholds_are_the_largest_values_the_tests_cover(monkeypatch):
     plate = read_mesh(ROOT / "meshes" / "flat_plate_medium.msh")  # tests/verification/test_flat_plate.py
     q = mesh_quality(plate, compute_geometry(plate))
     assert 0.98 * ASPECT_WARN < q.max_aspect_ratio <= ASPECT_WARN and not q.warnings
+
+
+def test_quality_measures_are_made_when_read_not_held_by_the_geometry():
+    """The non-orthogonality and skewness per face are made when read (the quality report reads them,
+    no solver does): the geometry a run keeps holds neither (16 B per face each)."""
+    g = compute_geometry(cavity(8, triangles=True))
+    held = {k for k, v in vars(g).items() if isinstance(v, np.ndarray)}
+    assert "face_nonorth_deg" not in held and "face_skewness" not in held
+    assert g.face_nonorth_deg.shape == g.face_skewness.shape == (g.n_faces,)

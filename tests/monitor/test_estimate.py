@@ -9,7 +9,7 @@ import math
 import numpy as np
 import pytest
 
-from fvrans.monitor.estimate import ROUND_OFF, iteration_error
+from fvrans.monitor.estimate import FAST_RATIO, ROUND_OFF, SHORT_WINDOW, iteration_error
 from fvrans.monitor.monitor import _changes
 
 
@@ -21,10 +21,51 @@ def test_geometric_sequence_estimate_bounds_the_error_within_the_window_factor(r
     true_error = r ** (n + 1) / (1.0 - r)
     est = iteration_error(changes, m)
     assert est.ratio == pytest.approx(r, rel=1e-9)
-    # D1 is the change m - 1 iterations back: the estimate exceeds the true error by r^(1-m)
+    # D1 is the change m - 1 iterations back: the estimate exceeds the true error by r^(1-m), where
+    # a fast decay (r < FAST_RATIO) takes the short windows' D1
     m = min(m, n // 2)  # windows shrink to the changes known
+    if r < FAST_RATIO:
+        m = SHORT_WINDOW
     assert est.error == pytest.approx(true_error * r ** (1 - m), rel=1e-9)
     assert est.error >= true_error
+
+
+def test_fast_decay_settles_within_the_short_window_and_slow_decay_keeps_the_long_one():
+    # r = 0.55 (a Newton-type outer iteration): the long windows' D1 is 0.55^-19 = 8e4 times the last
+    # change; the estimate stays within 0.55^-4 = 11 of the true error, as it settles 15 iterations earlier
+    r, m = 0.55, 20
+    changes = 1e6 * r ** np.arange(1, 61)  # (the last above round-off)
+    true_error = 1e6 * r ** 61 / (1.0 - r)
+    est = iteration_error(changes, m)
+    assert true_error <= est.error <= true_error * r ** (1 - SHORT_WINDOW) * (1 + 1e-9)
+    # the long windows' D1 r / (1 - r) (the change m - 1 back) reaches each value m - SHORT_WINDOW = 15
+    # iterations after this estimate does
+    long_rule = np.array([changes[n - m] * r / (1 - r) for n in range(2 * m, 61)])
+    new_rule = np.array([iteration_error(changes[:n], m).error for n in range(2 * m, 61)])
+    lag = m - SHORT_WINDOW
+    np.testing.assert_allclose(new_rule[:-lag], long_rule[lag:], rtol=1e-9)
+
+
+def test_a_slow_mode_under_a_fast_one_takes_over_the_estimate():
+    # a fast mode (0.4) over a slow one (0.95) 1e-4 its size: once the slow one dominates the short
+    # windows' contraction is above FAST_RATIO and the estimate bounds the true error again
+    k = np.arange(1, 400)
+    changes = 0.4 ** k + 1e-4 * 0.95 ** k
+    tail = np.cumsum(changes[::-1])[::-1]
+    for n in range(60, 300, 10):
+        est = iteration_error(changes[:n], 20)
+        assert est.ratio == pytest.approx(0.95, abs=0.01)
+        assert est.error >= tail[n]
+
+
+def test_the_short_windows_take_the_slower_of_the_two_contractions():
+    # 20 changes falling by 0.7, then 10 by 0.3: the short windows see 0.3, the long ones ~0.5;
+    # the error is the short windows' D1 with the long windows' (slower) ratio
+    changes = np.concatenate([0.7 ** np.arange(30), 0.7 ** 29 * 0.3 ** np.arange(1, 11)])
+    est = iteration_error(changes, 20)
+    long_ratio = (changes[-20:].max() / changes[-40:-20].max()) ** (1 / 20)
+    assert est.ratio == pytest.approx(long_ratio)
+    assert est.error == pytest.approx(changes[-5:].max() * long_ratio / (1 - long_ratio))
 
 
 def test_oscillating_decay_is_bounded_by_the_envelope():
@@ -50,10 +91,10 @@ def test_no_decay_is_unbounded_and_round_off_is_settled():
 
 
 def test_window_shrinks_to_the_changes_known():
-    d = 0.5 ** np.arange(12)  # 12 changes: windows of 6
+    d = 0.9 ** np.arange(12)  # 12 changes: windows of 6
     est = iteration_error(d, 20)
-    assert est.ratio == pytest.approx(0.5)
-    assert est.error == pytest.approx(d[6])
+    assert est.ratio == pytest.approx(0.9)
+    assert est.error == pytest.approx(d[6] * 9)
 
 
 def test_undefined_values_do_not_change_and_becoming_defined_is_a_jump():

@@ -155,3 +155,28 @@ def test_freed_memory_is_handed_back_at_each_phase(monkeypatch):
     monkeypatch.setattr(C, "RELEASE_FREE_MEMORY", False)
     s.run()
     assert len(calls) == 12
+
+
+def test_gradient_is_held_in_the_system_only_and_comes_back_after_a_release():
+    """G = M^-1 G0 keeps no values of its own: its products (whole, x rows, y rows) read the system's
+    momentum rows and equal, to the bit, those of a matrix of its own made from the geometry; after
+    ``release_work`` (the system's values let go) the next outer iteration puts the same values back.
+    Channel on triangles, where M^-1 differs from the identity next to the walls."""
+    s = simultaneous_solver(split_same_diagonal(channel(3.0, 1.0, 12, 5)), CHANNEL, mu=0.02,
+                            system_solver="iterative", max_iterations=2, tolerance=1e-14)
+    assert len(s._extrapolated) > 0
+    nc, nnz = s.nc, len(s._cidx)
+    cind = s._cind.astype(np.int64)
+    own = sp.csr_matrix((s._gradient_values(), np.concatenate([s._cidx, s._cidx]),
+                         np.concatenate([cind, cind[1:] + nnz])), shape=(2 * nc, nc))
+    p = np.sin(np.arange(nc) * 0.7)
+    for _ in range(2):
+        s.run()
+        held = [a for a in vars(s.G).values() if isinstance(a, np.ndarray)]
+        assert all(a is s._cind or a is s._cidx for a in held)
+        assert np.array_equal(s.G @ p, own @ p)
+        x, y = s.G.halves()
+        assert np.array_equal(x @ p, own[:nc] @ p) and np.array_equal(y @ p, own[nc:] @ p)
+        s.release_work()
+        assert s._A.data.size == 0
+        s.ctl.max_iterations += 2
