@@ -74,7 +74,8 @@ stop, uniform start) on cavity 128^2 / 256^2, plate medium / fine, step coarse /
 seconds per iteration (``--simplec-iterations`` from the uniform start) on the same grid, thread count and
 machine, one right after the other: outer iterations, FGMRES iterations per outer iteration, seconds, per
 outer iteration, per cell, over a numpy triad, over SIMPLEC's; CPU use of each run = (user + system CPU
-seconds of the process, every thread) / wall seconds (2.0: both cores busy throughout); for each thread
+seconds of the process, every thread) / wall seconds (2.0: both cores busy throughout), CPU seconds per
+iteration of each and their ratio (steadier than the wall-clock ratio on a shared machine); for each thread
 count of ``--threads`` after the first, the speed-up of the simultaneous run and max |u - u(first)| / max |u|;
 the 1-minute load average before / after the run. ``--forcing-max 0``: every FGMRES solve to
 system_tolerance (no forcing rule: the figures before it).
@@ -171,6 +172,37 @@ cycle's residual one level at a time, E made again after the solve (the same bit
   Cost: one FGMRES iteration's preconditioner and product at 52k cells (plate, one thread) 33.9-34.8 ms before,
   34.7-35.6 ms after (quiet repetitions; the others were twice as long, the core shared): a product with G
   reads the strided system rows (0.55 triads against scipy's 0.23), twice per preconditioner application.
+
+Measured 2026-12-03 11:59-12:48 (--cost; 2 shared cores, load 0.4 at the first runs, then 3.7-4.7; wall seconds under
+that load measure the scheduler, so the CPU seconds per iteration are given as well), before = main fb41c24 (+ the
+restriction from P's rows), after = unsigned CSR indices in the multigrid kernels, the preconditioner's sparse
+products and the system product in numba, the fused Gram-Schmidt, OpenMP threads waiting asleep; the same bits
+(u, p, FGMRES counts) throughout. Interleaved whole runs, one thread, CPU s per outer iteration (/tmp/par6/ab.py):
+cavity 128^2 0.188 / 0.189 -> 0.140 / 0.129 (SIMPLEC 0.0191 -> 0.0148 per iteration: the same multigrid kernels),
+plate medium 0.112 / 0.118 -> 0.092 / 0.091 (SIMPLEC 0.0318 -> 0.0244). Cavity 256^2 at one state: FGMRES
+iteration 54 -> 36 ms (preconditioner 37 -> 20 ms, Gram-Schmidt step 10.1 -> 7.6 ms in context).
+    | grid (cells) | outer | FGMRES / outer | x SIMPLEC before (wall, load) | x SIMPLEC after (CPU s, load) | CPU use |
+    |---|---|---|---|---|---|
+    | cavity 128^2 (16384) | 14 | 15.1 | 9.5 (0.8) | 9.8-10.3 (3.8-4.0) | 0.49-0.50 |
+    | cavity 256^2 (65536) | 12 | 19.9 | 15.9 (3.7) | 14.1-14.9 (4.0-4.6) | 0.52-0.54 |
+    | plate medium (13056) | 38 | 6.3 | 3.5 (0.9) | 3.8-3.9 (4.0-4.5) | 0.50-0.79 |
+    | plate fine (52224) | 38 | 13.2 | 10.1 (last session) | 6.1 (4.3): 46.5 s wall, 23.2 CPU s | 0.50 |
+    | step coarse (6912) | 88 | 14.3 | 4.3 (3.2) | 4.3 (4.2-4.4) | 0.50 |
+  Two threads (--threads 1 2), load 3.7-4.0: before (OpenMP threads spinning) cavity 128^2 0.197 s per outer
+  iteration on 2 against 0.180 on 1 (load 0.9), plate medium 0.999 against 0.108 (load 1.1-2.4), cavity 256^2
+  2.57 against 1.25 (load 2.9-3.7); after cavity 128^2 0.350 / 0.359 (speed-up 1.03), plate medium 0.202 / 0.196
+  (0.97), cavity 256^2 0.925 / 1.750 (1.89; CPU use 0.96 against 0.52: the one-thread run got half a core), the
+  same bits (du 0). Both cores busy (CPU use ~2) was not seen: the other processes held 3-4 cores' worth all
+  session. The ratio to SIMPLEC hardly moves: the faster multigrid kernels serve SIMPLEC's solves as well, and an
+  FGMRES iteration is four V-cycles against SIMPLEC's 4-6 per whole iteration, so at 15-20 FGMRES iterations per
+  outer iteration (cavity) the V-cycles alone are 10-15 SIMPLEC iterations' worth; 3x needs ~4 FGMRES iterations
+  per outer iteration, not cheaper kernels.
+  Whole runs at load 1.1-1.7 (13:01-13:04, /tmp/par6/ab.py, before = the same script on fb41c24 + 64bc249; numpy
+  triad of 52k doubles 0.029 ms), s per outer iteration on one thread (CPU use 1.00) before -> after, SIMPLEC's:
+    fine plate (52224 cells, 38 outer, 13.2 FGMRES per outer): 0.806 -> 0.563 s (30.6 -> 21.4 s; 2 threads 18.6 s,
+      CPU use 1.34); SIMPLEC 0.130 -> 0.096 s per iteration; x SIMPLEC 6.2 -> 5.9
+    cavity 256^2 iterative (65536 cells, 12 outer, 19.9 per outer): 1.221 -> 0.875 s (14.7 -> 10.5 s; 2 threads
+      7.7 s, CPU use 1.45); SIMPLEC 0.088 -> 0.064 s; x SIMPLEC 14.0 -> 13.6
 
 Run:  python benchmarks/bench_coupled.py [--families cavity plate step] [--fine-step] [--only simultaneous]
       python benchmarks/bench_coupled.py --memory cavity plate [--cells 400000] [--memory-iterations 8]
@@ -320,7 +352,7 @@ def cost_table(grids: list[str], thread_counts: list[int], simplec_iterations: i
           f"{simplec_iterations} SIMPLEC iterations from the uniform start; CPU use = (user + system CPU s) / wall s; "
           "load = 1-minute load average before / after the simultaneous run; du = max |u - u(1 thread)| / max |u|")
     print("grid          cells  thr  outer  FGMRES/it      s    s/it  us/cell/it  x triad  SIMPLEC s/it  x SIMPLEC  "
-          "CPU use sim/SIMPLEC  speed-up  load       du")
+          "CPU use sim/SIMPLEC  CPU s/it sim/SIMPLEC  x SIMPLEC (CPU)  speed-up  load       du")
     for grid in grids:
         problem = _cost_problem(grid)
         nc = problem.mesh.n_cells
@@ -348,9 +380,13 @@ def cost_table(grids: list[str], thread_counts: list[int], simplec_iterations: i
             else:
                 speed = f"{first['run'][0] / per:8.2f}"
                 du = f"{float(np.max(np.abs(r.velocity - first['run'][1]))) / float(np.max(np.abs(r.velocity))):8.1e}"
+            # CPU seconds per iteration (every thread): on a shared machine they do not count the time the
+            # scheduler gave the core to others, so their ratio is steadier than the wall-clock one
+            cper, cper2 = per * cpu, per2 * cpu2
             print(f"{grid:12s} {nc:6d}  {thr:3d}  {r.iterations:5d}  {fg:9.1f}  {wall:6.1f}  {per:6.3f}  "
                   f"{per / nc * 1e6:10.2f}  {per / triad:7.0f}  {per2:12.4f}  {per / per2:9.1f}  "
-                  f"{cpu:8.2f} / {cpu2:4.2f}     {speed:>8s}  {load0:4.1f}-{load1:4.1f}  {du:>7s}", flush=True)
+                  f"{cpu:8.2f} / {cpu2:4.2f}     {cper:7.4f} / {cper2:6.4f}  {cper / cper2:15.1f}  "
+                  f"{speed:>8s}  {load0:4.1f}-{load1:4.1f}  {du:>7s}", flush=True)
 
 
 def main(argv: list[str] | None = None) -> int:

@@ -23,6 +23,13 @@ from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from typing import Any
 
+#: the OpenMP threads of numba's parallel loops (its "omp" threading layer) wait for work asleep, not
+#: spinning, unless the environment says otherwise: set here, before numba starts them. Spinning after each of
+#: the hundreds of parallel loops of an iteration, the second thread took the core that the first (or another
+#: process) needed: cavity 128^2, simultaneous path, 2 threads on the shared machine (load 4): 1.70 s per outer
+#: iteration and 1.04 CPU s spinning, 0.25 s and 0.18 CPU s asleep, 0.31 s and 0.17 CPU s on one thread
+OMP_WAIT_POLICY = os.environ.setdefault("OMP_WAIT_POLICY", "PASSIVE")
+
 #: what a run says once when it starts compiling (the terminal would otherwise sit silent)
 COMPILE_MESSAGE = ("compiling the numerical kernels: this run is the first (or the first since fvrans or numba "
                    "changed); they are cached for later runs, and the compile time is kept out of the solve time")
@@ -177,5 +184,6 @@ class CompileWatch:
             self._listener = None
 
 
-__all__ = ["COMPILE_MESSAGE", "PARALLEL_MIN_CELLS", "PARALLEL_MIN_HEAVY", "THREADS_VARIABLE", "CompileWatch",
-           "available_threads", "idle_cores", "one_blas_thread", "requested_threads", "set_threads", "threads"]
+__all__ = ["COMPILE_MESSAGE", "OMP_WAIT_POLICY", "PARALLEL_MIN_CELLS", "PARALLEL_MIN_HEAVY", "THREADS_VARIABLE",
+           "CompileWatch", "available_threads", "idle_cores", "one_blas_thread", "requested_threads", "set_threads",
+           "threads"]

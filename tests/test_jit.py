@@ -94,3 +94,15 @@ def test_compile_seconds_are_inside_the_wall_seconds():
     assert w.count == 1 and 0 < r.compile_seconds <= r.wall_seconds
     s = r.summary()
     assert s["solve_seconds"] + s["compile_seconds"] == pytest.approx(s["wall_seconds"])
+
+
+def test_openmp_threads_wait_asleep_unless_the_environment_says_otherwise():
+    """fvrans.jit sets OMP_WAIT_POLICY=PASSIVE before numba starts its OpenMP threads (spinning threads
+    took the core the solver needed on a shared machine), and keeps a value the user gave."""
+    code = "import os, fvrans.jit; print(os.environ['OMP_WAIT_POLICY'])"
+    env = {k: v for k, v in os.environ.items() if k != "OMP_WAIT_POLICY"}
+    unset = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True, text=True, check=True)
+    given = subprocess.run([sys.executable, "-c", code], env={**env, "OMP_WAIT_POLICY": "ACTIVE"},
+                           capture_output=True, text=True, check=True)
+    assert unset.stdout.strip() == "PASSIVE"
+    assert given.stdout.strip() == "ACTIVE"

@@ -240,6 +240,8 @@ class LeastSquaresCommutator:
         continuity rows (D and the pressure columns) give the products with D when it was not given (a
         view of its rows: no copy of D is held)."""
         if system is not None:
+            if not system.has_sorted_indices:
+                system.sort_indices()  # (``_block_kernels.commutator_middle`` reads D's columns in order)
             n, ptr = self.n, system.indptr
             lo, hi = ptr[2 * n], ptr[3 * n]
             self.continuity = _csr_on(system.data[lo:hi], system.indices[lo:hi], ptr[2 * n:] - lo, (n, 3 * n))
@@ -267,11 +269,28 @@ class LeastSquaresCommutator:
     def schur_inverse(self, r: np.ndarray, par: bool = False) -> np.ndarray:
         """S~^-1 r (the pressure part of the preconditioner)."""
         y = self.lap(r, par)
+        if self.continuity is not None:
+            # the middle factor in three passes over the rows (numba; on every thread with ``par``),
+            # the same sums as the products below
+            Au, Av, lq, D = self.Au, self.Av, self.lq, self.continuity
+            m = np.empty(self.n)
+            _k.commutator_middle(*self._gradient_rows(), Au.indptr, Au.indices, Au.data, Av.indptr, Av.indices,
+                                 Av.data, lq.indptr, lq.indices, lq.data, D.indptr, D.indices, D.data, y, self.hu,
+                                 self.hv, self.stabilisation, m, np.empty((4, self.n)), par)
+            return self.lap(m, par)
         gx = self.hu * (self.Gx @ y)
         gy = self.hv * (self.Gy @ y)
         m = self.stabilisation * ((self.lq @ y) + self.times_d(gx, gy))
         m -= self.times_d(self.hu * (self.Au @ gx), self.hv * (self.Av @ gy))
         return self.lap(m, par)
+
+    def _gradient_rows(self) -> tuple:
+        """G's rows for the ``_block_kernels`` products: (indptr, indices, data, cind, shift) as
+        ``_block_kernels._g_row_dot`` reads them (a matrix of its own: cind of one entry, shift 0)."""
+        if hasattr(self.G, "csr_rows"):
+            return self.G.csr_rows()
+        G = self.G
+        return G.indptr, G.indices, G.data, _NO_CIND, 0
 
     def times_d(self, a: np.ndarray, b: np.ndarray) -> np.ndarray:
         """D [a; b]: with D's halves, or from the system's continuity rows with zero pressures."""
@@ -287,7 +306,8 @@ class LeastSquaresCommutator:
         n = self.n
         par = threads() > 1
         zp = self.schur_inverse(r[2 * n:], par)
-        w = r[:2 * n] - self.G @ zp
+        w = np.empty(2 * n)
+        _k.minus_product(*self._gradient_rows(), zp, r[:2 * n], w, par)  # r_u - G z_p
         if self.mv is not None:
             return np.concatenate([*_momentum_pair(self.mu, self.mv, w, n, par), zp])
         # one hierarchy: the component whose values its finest level holds first, then the other's
@@ -303,6 +323,9 @@ class LeastSquaresCommutator:
                 self._fine = "v" if c == 1 else "u"
             z[c * n:(c + 1) * n] = self.mu(w[c * n:(c + 1) * n], par)
         return z
+
+
+_NO_CIND = np.zeros(1, dtype=np.int64)
 
 
 def _row_halves(G: sp.csr_matrix) -> tuple[sp.csr_matrix, sp.csr_matrix]:

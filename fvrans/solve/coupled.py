@@ -58,6 +58,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from fvrans.errors import CaseError
+from fvrans.jit import threads
 from fvrans.linalg import _block_kernels as BK
 from fvrans.linalg.block_preconditioner import (
     LeastSquaresCommutator,
@@ -269,6 +270,15 @@ class SystemGradient:
 
     def __matmul__(self, p: np.ndarray) -> np.ndarray:
         return self.product(p, 0, self.shape[0])
+
+    def csr_rows(self) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, int]:
+        """(indptr, indices, data, cind, shift) of the system: row r of G is the last cind[c + 1] - cind[c]
+        entries of the system's row r (c = r mod nc), at the columns indices - shift (the block
+        preconditioner's numba products read G there: ``_block_kernels._g_row_dot``)."""
+        A = self._A
+        if A.data.size != A.indices.size:
+            self.restore()
+        return A.indptr, A.indices, A.data, self._cind, 2 * self.shape[1]
 
     def halves(self) -> tuple[_GradientRows, _GradientRows]:
         """The x and y rows of G as operators (products read the system, as G's do)."""
@@ -953,9 +963,11 @@ class SimultaneousSolver(SimpleSolver):
         stale = self.preconditioner != "simple" and not rebuild
         # the block preconditioner is one linear operator during a solve (V-cycles from zero,
         # products): FGMRES need not keep the preconditioned vectors (-0.48 KB per cell at RESTART 20)
+        par = threads() > 1
+
         def matvec(z: np.ndarray) -> np.ndarray:
-            w = A @ z
-            w *= d  # in place: one temporary of 3 values per cell, not two
+            w = np.empty(3 * nc)  # d (A z) in one pass (numba; on every thread with par), A z's sums as scipy's
+            BK.scaled_product(A.indptr, A.indices, A.data, z, d, w, par)
             return w
 
         _release_free()  # (the preconditioner set-up's and the start residual's work)
