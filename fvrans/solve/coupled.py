@@ -821,8 +821,7 @@ class SimultaneousSolver(SimpleSolver):
         d = 1.0 / np.where(d > 0.0, d, 1.0)
         r0 = d * (rhs - A @ x0)
         # a fresh factorisation solves to round-off; the kept one is taken while FGMRES reaches the
-        # inexact-Newton tolerance (``_forcing_tolerance``): fine step 46 -> 43 outer iterations, 15
-        # factorisations either way; medium step 47 -> 45 outer iterations, 15 -> 13 factorisations
+        # inexact-Newton tolerance (``_forcing_tolerance``, at most KEPT_LU_FORCING_MAX: figures there)
         tol = self._forcing_tolerance(float(np.linalg.norm(r0)), KEPT_LU_FORCING_MAX)
         self.lin_tolerances.append(tol)
         if self._lu is not None and not worn and not skip:
