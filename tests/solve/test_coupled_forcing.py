@@ -7,7 +7,8 @@ The expected values below are worked out by hand from that formula."""
 from __future__ import annotations
 
 import pytest
-from flows import CAVITY, simultaneous_solver
+from flows import CAVITY, STEP, simultaneous_solver
+from test_convection_newton import _step
 
 import fvrans.solve.coupled as coupled
 from fvrans.mesh.generate import cavity
@@ -45,10 +46,6 @@ def test_kept_lu_is_tried_to_the_forcing_tolerance_and_keeps_the_answer():
     slow steps, ratios near 0.9, so eta reaches the cap) takes tolerances above the system tolerance and
     fewer factorisations than with forcing off (measured 8 against 18, 209 and 205 outer iterations), and
     converges to the same field to 1e-9. With the cap at the system tolerance this test fails."""
-    from test_convection_newton import _step
-
-    from flows import STEP
-
     runs = {}
     for forcing in (True, False):
         solver = simultaneous_solver(_step(), STEP, mu=0.005, tolerance=1e-12, max_iterations=400,
