@@ -252,12 +252,16 @@ class SystemGradient:
             A.data = np.zeros(A.indices.size)
         CK.gradient_slots(self.shape[1], self._cind, A.indptr, A.data, self._make(), True)
 
+    def _held(self) -> sp.csr_matrix:
+        """The system, with G's values put back first if its values were released."""
+        if self._A.data.size != self._A.indices.size:
+            self.restore()
+        return self._A
+
     def values(self) -> np.ndarray:
         """G's values (x block, then y block, each on the compact structure; a new array), read from
         the system, which gets them back first when its values were released."""
-        A = self._A
-        if A.data.size != A.indices.size:
-            self.restore()
+        A = self._held()
         g = np.empty(2 * len(self._cidx))
         CK.gradient_slots(self.shape[1], self._cind, A.indptr, A.data, g, False)
         return g
@@ -276,9 +280,7 @@ class SystemGradient:
         """(indptr, indices, data, cind, shift) of the system: row r of G is the last cind[c + 1] - cind[c]
         entries of the system's row r (c = r mod nc), at the columns indices - shift (the block
         preconditioner's numba products read G there: ``_block_kernels._g_row_dot``)."""
-        A = self._A
-        if A.data.size != A.indices.size:
-            self.restore()
+        A = self._held()
         return A.indptr, A.indices, A.data, self._cind, 2 * self.shape[1]
 
     def halves(self) -> tuple[_GradientRows, _GradientRows]:
@@ -826,7 +828,7 @@ class SimultaneousSolver(SimpleSolver):
         self.lin_tolerances.append(tol)
         if self._lu is not None and not worn and not skip:
             lu = self._lu
-            dx, its, rel = fgmres(lambda z: d * (A @ z), lambda v: lu.solve(v / d), r0,
+            dx, its, rel = fgmres(_row_scaled_product(A, d), lambda v: lu.solve(v / d), r0,
                                   tol, REUSE_ITERATIONS[backend], REUSE_ITERATIONS[backend])
             self._lu_iterations += its
             del lu
@@ -963,13 +965,7 @@ class SimultaneousSolver(SimpleSolver):
         stale = self.preconditioner != "simple" and not rebuild
         # the block preconditioner is one linear operator during a solve (V-cycles from zero,
         # products): FGMRES need not keep the preconditioned vectors (-0.48 KB per cell at RESTART 20)
-        par = threads() > 1
-
-        def matvec(z: np.ndarray) -> np.ndarray:
-            w = np.empty(3 * nc)  # d (A z) in one pass (numba; on every thread with par), A z's sums as scipy's
-            BK.scaled_product(A.indptr, A.indices, A.data, z, d, w, par)
-            return w
-
+        matvec = _row_scaled_product(A, d)
         _release_free()  # (the preconditioner set-up's and the start residual's work)
         dx, its, rel = fgmres(matvec, lambda v: prec(v / d), r0, tol, RESTART,
                               STALE_KRYLOV if stale else MAX_KRYLOV, flexible=False, basis=KRYLOV_BASIS)
@@ -1134,6 +1130,19 @@ def _merged_rows(cind: np.ndarray, cidx: np.ndarray, wptr: np.ndarray, wcells: n
     ptr = np.zeros(nc + 1, dtype=np.int64)
     np.cumsum(np.bincount(rows, minlength=nc), out=ptr[1:])
     return ptr, np.concatenate([cidx, wcells]).astype(np.int64)[order]
+
+
+def _row_scaled_product(A: sp.csr_matrix, d: np.ndarray):
+    """z -> d * (A z), the row-scaled system product FGMRES iterates on, in one pass (numba, on every
+    thread when the run has several; each row summed as scipy's product sums it: the same bits)."""
+    par = threads() > 1
+
+    def product(z: np.ndarray) -> np.ndarray:
+        w = np.empty(A.shape[0])
+        BK.scaled_product(A.indptr, A.indices, A.data, z, d, w, par)
+        return w
+
+    return product
 
 
 def _decades(tol: float) -> float:
