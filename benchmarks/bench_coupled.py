@@ -319,6 +319,73 @@ def memory_table(kinds: list[str], cells: int, iterations: int) -> None:
 COST_GRIDS = ("cavity128", "cavity256", "plate-medium", "plate-fine", "step-coarse", "step-medium")
 
 
+def _cpu() -> float:
+    t = os.times()
+    return t.user + t.system
+
+
+class PartTimer:
+    """CPU seconds (every thread of the process) spent in the parts of the simultaneous path's outer
+    iteration, each part counted without the parts called inside it: the system's assembly, the block
+    preconditioner's set-up, the Krylov iterations (FGMRES, on the block preconditioner or on a kept LU),
+    the sparse LU (factorisations and solves), the turbulence model's update; the rest of ``iterate`` is
+    "other" (velocity, fluxes and pressure gradient from the solution, Anderson, glue)."""
+
+    PARTS = ("assembly", "set-up", "Krylov", "sparse LU", "model", "other")
+
+    def __init__(self) -> None:
+        self.seconds = dict.fromkeys(self.PARTS, 0.0)
+        self._stack: list[list] = []
+        self._undo: list[tuple[object, str, object]] = []
+
+    def _wrap(self, owner: object, name: str, part: str) -> None:
+        inner = getattr(owner, name)
+        timer = self
+
+        def timed(*a, **k):
+            frame = [part, _cpu(), 0.0]  # part, start, CPU s of the timed parts called inside
+            timer._stack.append(frame)
+            try:
+                return inner(*a, **k)
+            finally:
+                timer._stack.pop()
+                spent = _cpu() - frame[1]
+                timer.seconds[part] += spent - frame[2]
+                if timer._stack:
+                    timer._stack[-1][2] += spent
+
+        self._undo.append((owner, name, inner))
+        setattr(owner, name, timed)
+
+    def __enter__(self) -> PartTimer:
+        import fvrans.linalg.block_preconditioner as BP
+        import fvrans.models.base as MB
+        import fvrans.solve.coupled as C
+
+        self._wrap(C.SimultaneousSolver, "iterate", "other")
+        self._wrap(C.SimultaneousSolver, "_assemble", "assembly")
+        self._wrap(C.SimultaneousSolver, "_solve_direct", "sparse LU")
+        self._wrap(C, "fgmres", "Krylov")
+        for cls in (BP.LeastSquaresCommutator, BP.PressureConvectionDiffusion, BP.SimpleSchur):
+            self._wrap(cls, "update", "set-up")
+        for cls in _subclasses(MB.TurbulenceModel):
+            if "update" in vars(cls):
+                self._wrap(cls, "update", "model")
+        return self
+
+    def __exit__(self, *exc) -> None:
+        for owner, name, inner in reversed(self._undo):
+            setattr(owner, name, inner)
+        self._undo.clear()
+
+
+def _subclasses(cls: type) -> list[type]:
+    out = [cls]
+    for sub in cls.__subclasses__():
+        out += _subclasses(sub)
+    return out
+
+
 def _cost_problem(grid: str) -> fa.Problem:
     """The problem of a ``--cost`` grid name (cavityN, plate-LEVEL, step-LEVEL)."""
     if grid.startswith("cavity"):
@@ -340,15 +407,18 @@ def _timed_run(problem: fa.Problem, case) -> tuple[fa.Result, float, float]:
     return r, wall, (c1.user - c0.user + c1.system - c0.system) / wall
 
 
-def cost_table(grids: list[str], thread_counts: list[int], simplec_iterations: int, forcing_max: float | None) -> None:
-    """Whole runs of the simultaneous path (iterative solve; the case's own stop) against SIMPLEC's
-    cost per iteration (``simplec_iterations`` from the uniform start) on the same grid and thread count."""
+def cost_table(grids: list[str], thread_counts: list[int], simplec_iterations: int, forcing_max: float | None,
+               system_solver: str = "iterative", parts: bool = False) -> None:
+    """Whole runs of the simultaneous path (``system_solver``, iterative unless asked; the case's own stop)
+    against SIMPLEC's cost per iteration (``simplec_iterations`` from the uniform start) on the same grid
+    and thread count; with ``parts``, the CPU seconds of an outer iteration split by :class:`PartTimer`,
+    each part in SIMPLEC iterations."""
     import fvrans.solve.coupled as C
 
     if forcing_max is not None:
         C.FORCING_MAX = forcing_max  # 0: every solve to system_tolerance (no forcing)
     krylov = _count_fgmres()
-    print(f"cost: simultaneous (iterative solve, FORCING_MAX {C.FORCING_MAX}) to the case's own stop, against "
+    print(f"cost: simultaneous ({system_solver} solve, FORCING_MAX {C.FORCING_MAX}) to the case's own stop, against "
           f"{simplec_iterations} SIMPLEC iterations from the uniform start; CPU use = (user + system CPU s) / wall s; "
           "load = 1-minute load average before / after the simultaneous run; du = max |u - u(1 thread)| / max |u|")
     print("grid          cells  thr  outer  FGMRES/it      s    s/it  us/cell/it  x triad  SIMPLEC s/it  x SIMPLEC  "
@@ -359,7 +429,7 @@ def cost_table(grids: list[str], thread_counts: list[int], simplec_iterations: i
         first: dict[str, tuple[float, np.ndarray]] = {}
         for thr in thread_counts:
             base = problem.case.replace({"solver.threads": thr, "output.write_fields": False})
-            sim = base.replace({"solver.coupling": "simultaneous", "solver.system_solver": "iterative"})
+            sim = base.replace({"solver.coupling": "simultaneous", "solver.system_solver": system_solver})
             seg = base.replace({"solver.coupling": "simplec", "solver.tolerance": 1e-14, "monitor.settle": False,
                                 "solver.max_iterations": simplec_iterations})
             for warm in (sim, seg):  # numba compilation and first-call costs out of the timings
@@ -368,7 +438,12 @@ def cost_table(grids: list[str], thread_counts: list[int], simplec_iterations: i
             triad = triad_seconds(nc)
             load0 = os.getloadavg()[0]
             krylov.clear()
-            r, wall, cpu = _timed_run(problem, sim)
+            timer = PartTimer()
+            if parts:
+                with timer:
+                    r, wall, cpu = _timed_run(problem, sim)
+            else:
+                r, wall, cpu = _timed_run(problem, sim)
             load1 = os.getloadavg()[0]
             fg = float(np.mean(krylov)) if krylov else float("nan")
             r2, wall2, cpu2 = _timed_run(problem, seg)
@@ -387,6 +462,13 @@ def cost_table(grids: list[str], thread_counts: list[int], simplec_iterations: i
                   f"{per / nc * 1e6:10.2f}  {per / triad:7.0f}  {per2:12.4f}  {per / per2:9.1f}  "
                   f"{cpu:8.2f} / {cpu2:4.2f}     {cper:7.4f} / {cper2:6.4f}  {cper / cper2:15.1f}  "
                   f"{speed:>8s}  {load0:4.1f}-{load1:4.1f}  {du:>7s}", flush=True)
+            if parts:
+                n = max(r.iterations, 1)
+                split = "  ".join(f"{k} {v / n / cper2:.2f}" for k, v in timer.seconds.items())
+                line = f"    per outer iteration, in SIMPLEC iterations (CPU s): {split}"
+                if krylov:  # (the iterative solve's FGMRES; the kept LU's are not counted)
+                    line += f"; one FGMRES iteration {timer.seconds['Krylov'] / sum(krylov) / cper2:.3f}"
+                print(line, flush=True)
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -403,6 +485,10 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--simplec-iterations", type=int, default=100)
     ap.add_argument("--forcing-max", type=float, default=None,
                     help="largest tolerance of the forcing rule (coupled.FORCING_MAX); 0: none")
+    ap.add_argument("--system-solver", default="iterative", choices=["iterative", "direct", "by-size"],
+                    help="the simultaneous path's linear solver in --cost (default: iterative)")
+    ap.add_argument("--parts", action="store_true",
+                    help="with --cost: the outer iteration's CPU seconds split into its parts")
     ap.add_argument("--child-memory", nargs=4, help=argparse.SUPPRESS)
     args = ap.parse_args(argv)
     if args.child_memory:
@@ -412,7 +498,8 @@ def main(argv: list[str] | None = None) -> int:
     if args.memory or args.cost is not None:
         print(f"machine: {os.cpu_count()} cores, load average {os.getloadavg()[0]:.1f} at the start (shared)")
         if args.cost is not None:
-            cost_table(args.cost or list(COST_GRIDS), args.threads, args.simplec_iterations, args.forcing_max)
+            cost_table(args.cost or list(COST_GRIDS), args.threads, args.simplec_iterations, args.forcing_max,
+                       args.system_solver, args.parts)
         if args.memory:
             memory_table(args.memory, args.cells, args.memory_iterations)
         return 0
