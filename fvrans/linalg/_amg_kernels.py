@@ -528,6 +528,65 @@ def refresh_fine(src, a_dat, a_ptr, a_idx, n0, dinv):
         dinv[i] = 1.0 / d if d != 0.0 else 0.0
 
 
+@njit(cache=True, nogil=True)
+def block_colouring(indptr, indices, n, nb, colour_ptr, order):
+    """Greedy colouring of the ``nb`` blocks of consecutive rows of the n x n CSR pattern (block k: rows
+    k n / nb to (k + 1) n / nb), in block order: each block takes the smallest colour none of the blocks
+    it is joined to by a nonzero, in either direction, has taken. Fills ``colour_ptr`` (the number of
+    colours C, then where each colour's blocks start in ``order``, then nb) and ``order`` (the blocks by
+    colour, in block order within a colour); returns C (``amg.block_colours``)."""
+    adj = np.zeros((nb, nb), dtype=np.bool_)
+    blk = 0
+    for i in range(n):
+        while (blk + 1) * n // nb <= i:
+            blk += 1
+        for k in range(indptr[i], indptr[i + 1]):
+            j = indices[k]
+            # the block of row j: the b with b n / nb <= j < (b + 1) n / nb
+            b = j * nb // n
+            while b > 0 and b * n // nb > j:
+                b -= 1
+            while (b + 1) * n // nb <= j:
+                b += 1
+            adj[blk, b] = True
+            adj[b, blk] = True
+    colour = np.full(nb, -1, dtype=np.int64)
+    taken = np.zeros(nb + 1, dtype=np.bool_)
+    ncol = 0
+    for k in range(nb):
+        taken[:] = False
+        for q in range(nb):
+            if q != k and adj[k, q] and colour[q] >= 0:
+                taken[colour[q]] = True
+        c = 0
+        while taken[c]:
+            c += 1
+        colour[k] = c
+        ncol = max(ncol, c + 1)
+    colour_ptr[0] = ncol
+    pos = 0
+    for c in range(ncol):
+        colour_ptr[1 + c] = pos
+        for k in range(nb):
+            if colour[k] == c:
+                order[pos] = k
+                pos += 1
+    colour_ptr[1 + ncol] = nb
+    return ncol
+
+
+@njit(cache=True, nogil=True)
+def level_inverse_diagonal(a_ptr, po, a_idx, a_dat, m, dinv, vo):
+    """dinv[vo + i] = 1 / A[i, i] (0 where the diagonal is zero) for the m rows of the level whose
+    pointers start at ``po`` in a_ptr (the diagonal summed in double precision)."""
+    for i in range(m):
+        d = 0.0
+        for k in range(_U(a_ptr[po + i]), _U(a_ptr[po + i + 1])):
+            if a_idx[k] == i:
+                d += a_dat[k]
+        dinv[vo + i] = 1.0 / d if d != 0.0 else 0.0
+
+
 @njit(cache=True)
 def dense_inverse(a, out, singular):
     """out = generalised inverse of the square matrix ``a`` (overwritten) by Gauss-Jordan
@@ -573,12 +632,15 @@ def dense_inverse(a, out, singular):
         for j in range(m):
             a[k, j] *= inv
             out[k, j] *= inv
+        # (a's columns up to k are not read again, and out's row k is zero beyond column k: the
+        # loops skip them, the same values at half the work)
         for i in range(m):
             if i != k:
                 fac = a[i, k]
                 if fac != 0.0:
-                    for j in range(m):
+                    for j in range(k + 1, m):
                         a[i, j] -= fac * a[k, j]
+                    for j in range(k + 1):
                         out[i, j] -= fac * out[k, j]
     for k in range(m):
         if dropped[k]:
