@@ -37,8 +37,29 @@ def _smooth_rows(ptr, po, idx, dat, dinv, x, b, vo, lo, hi, forward):
         x[_U(vo + i)] += acc * dinv[_U(vo + i)]
 
 
+@njit(cache=True, nogil=True, inline="always")
+def _smooth_rows_from_zero(ptr, po, idx, dat, dinv, x, b, vo, lo, hi):
+    """The forward Gauss-Seidel sweep over the level rows [lo, hi) when x was zero there before it:
+    the row's entries in columns i..hi-1 multiply zeros still (rows not yet swept), so they are
+    skipped; x is the same as the full sweep's (a skipped term subtracts a zero)."""
+    for i in range(lo, hi):
+        acc = b[_U(vo + i)]
+        k = _U(ptr[po + i])
+        end = _U(ptr[po + i + 1])
+        # (the row's columns are sorted: those below i, then i..hi-1, then those from hi)
+        while k < end and idx[k] < i:
+            acc -= dat[k] * x[_U(vo + idx[k])]
+            k += _U(1)
+        while k < end and idx[k] < hi:
+            k += _U(1)
+        while k < end:
+            acc -= dat[k] * x[_U(vo + idx[k])]
+            k += _U(1)
+        x[_U(vo + i)] += acc * dinv[_U(vo + i)]
+
+
 @njit(cache=True, nogil=True, parallel=True)
-def _smooth(ptr, po, idx, dat, dinv, x, b, vo, n, colour_ptr, order, forward, par):
+def _smooth(ptr, po, idx, dat, dinv, x, b, vo, n, colour_ptr, order, forward, par, zero):
     """One Gauss-Seidel sweep on the level rows [vo, vo + n), forward or backward, block by block.
 
     The rows are cut into ``nb`` blocks of consecutive rows (block k: rows k n / nb to
@@ -48,7 +69,8 @@ def _smooth(ptr, po, idx, dat, dinv, x, b, vo, n, colour_ptr, order, forward, pa
     forward sweep takes the colours in turn and the blocks of one colour at once (on every thread
     when ``par``), each block forward; the backward sweep is the exact reverse. Blocks of one colour
     share no coupling, so this is Gauss-Seidel in one fixed row order, whatever the thread count;
-    one block is the plain lexicographic sweep.
+    one block is the plain lexicographic sweep. ``zero`` (forward only): x is zero on the level
+    before the sweep (``_smooth_rows_from_zero``: the same x, fewer terms).
     """
     ncol = colour_ptr[0]
     nb = colour_ptr[1 + ncol]
@@ -59,11 +81,17 @@ def _smooth(ptr, po, idx, dat, dinv, x, b, vo, n, colour_ptr, order, forward, pa
         if par and count > 1:
             for q in prange(count):
                 blk = order[first + q]
-                _smooth_rows(ptr, po, idx, dat, dinv, x, b, vo, blk * n // nb, (blk + 1) * n // nb, forward)
+                if zero and forward:
+                    _smooth_rows_from_zero(ptr, po, idx, dat, dinv, x, b, vo, blk * n // nb, (blk + 1) * n // nb)
+                else:
+                    _smooth_rows(ptr, po, idx, dat, dinv, x, b, vo, blk * n // nb, (blk + 1) * n // nb, forward)
         else:
             for q in range(count):
                 blk = order[first + q]
-                _smooth_rows(ptr, po, idx, dat, dinv, x, b, vo, blk * n // nb, (blk + 1) * n // nb, forward)
+                if zero and forward:
+                    _smooth_rows_from_zero(ptr, po, idx, dat, dinv, x, b, vo, blk * n // nb, (blk + 1) * n // nb)
+                else:
+                    _smooth_rows(ptr, po, idx, dat, dinv, x, b, vo, blk * n // nb, (blk + 1) * n // nb, forward)
 
 
 @njit(cache=True, nogil=True, parallel=True)
@@ -197,8 +225,8 @@ def vcycle(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_id
         vo = voff[lv]
         m = n[lv]
         _fill(x, vo, m, 0.0, par)
-        for _ in range(sweeps):
-            _smooth(a_ptr, a_pofs[lv], a_idx, a_dat, dinv, x, b, vo, m, s_ptr[lv], s_order[lv], yes, par)
+        for sw in range(sweeps):
+            _smooth(a_ptr, a_pofs[lv], a_idx, a_dat, dinv, x, b, vo, m, s_ptr[lv], s_order[lv], yes, par, sw == 0)
         # (the residual is restricted at once: one level's at a time in r)
         _residual(a_ptr, a_pofs[lv], a_idx, a_dat, x, vo, b, vo, r, zero, m, par)
         _restrict(p_ptr, p_pofs[lv], p_idx, p_dat, r, zero, m, b, voff[lv + 1], n[lv + 1], t_rows[lv], par)
@@ -215,7 +243,7 @@ def vcycle(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_id
         vo = voff[lv]
         _apply_add(p_ptr, p_pofs[lv], p_idx, p_dat, x, voff[lv + 1], x, vo, n[lv], yes, par)
         for _ in range(sweeps):
-            _smooth(a_ptr, a_pofs[lv], a_idx, a_dat, dinv, x, b, vo, n[lv], s_ptr[lv], s_order[lv], no, par)
+            _smooth(a_ptr, a_pofs[lv], a_idx, a_dat, dinv, x, b, vo, n[lv], s_ptr[lv], s_order[lv], no, par, no)
 
 
 @njit(cache=True, nogil=True, inline="always")
