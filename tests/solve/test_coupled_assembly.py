@@ -144,3 +144,26 @@ def test_face_coefficients_are_numpys_row_products_bit_for_bit():
         np.testing.assert_array_equal(dcoef, ref)
         np.testing.assert_array_equal(kvec, S - ref[:, None] * d)
         np.testing.assert_allclose((kvec * S).sum(axis=1), 0.0, atol=1e-12 * (S * S).sum(axis=1).max())
+
+
+def test_system_rows_are_the_same_bits_on_one_and_two_threads():
+    """The system's rows refilled by their kernels (momentum and continuity rows, the latter in one chunk
+    of rows per thread with position marks of its own) on a cavity of 130^2 cells (above
+    PARALLEL_MIN_CELLS: the parallel loops run), at the state after one outer iteration: values and
+    right-hand side on one and on two threads bit for bit."""
+    from fvrans import jit
+
+    s = simultaneous_solver(cavity(130), CAVITY, system_solver="iterative")
+    assert s.nc >= jit.PARALLEL_MIN_CELLS
+    s.iterate()
+    out = []
+    before = jit.threads()
+    try:
+        for n in (1, 2):
+            jit.set_threads(n)
+            A, rhs, _ = s._assemble()
+            out.append((A.data.copy(), rhs.copy()))
+    finally:
+        jit.set_threads(before)
+    np.testing.assert_array_equal(out[1][0], out[0][0])
+    np.testing.assert_array_equal(out[1][1], out[0][1])
