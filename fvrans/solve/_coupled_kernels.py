@@ -9,7 +9,7 @@ Unknowns are ordered (u_0..u_{n-1}, v_0..v_{n-1}, p_0..p_{n-1}). Face convention
 from __future__ import annotations
 
 import numpy as np
-from numba import get_num_threads, njit, prange
+from numba import njit, prange
 
 from fvrans.jit import PARALLEL_MIN_CELLS as PAR_MIN
 
@@ -447,16 +447,17 @@ def _continuity_chunk(first, last, nc, cind, cidx, cf_ptr, cf_face, owner, neigh
 
 @njit(cache=True, parallel=True)
 def continuity_rows(nc, cind, cidx, cf_ptr, cf_face, owner, neigh, n_int, S, w, dcoef, kvec, rbar, r_u, r_v, vol,
-                    fixed, rho, implicit, g_data, E, gp, c0, indptr, indices, data, rhs):
+                    fixed, rho, implicit, g_data, E, gp, c0, indptr, indices, data, rhs, threads):
     """Refill the continuity rows: D (rho times the face sums on faces with a given pressure), and
     A_pp = Lc + W V^-1 G with W = D diag(r_u, r_v) - [Kx Ky] (``implicit``; else Lc alone), and their
     right-hand side -(c0 + W V^-1 E) (else -(c0 + W grad p)). Each row is written by one thread, its
-    sums in a fixed order (the same bits on any thread count): the rows in one chunk per thread.
+    sums in a fixed order (the same bits on any thread count): the rows in one chunk per thread
+    (``threads``, the parallel kernels' thread count: ``fvrans.jit.threads``).
 
     Per row: the Rhie-Chow pressure terms per column of compact(c) (``pressure_difference_triplets``),
     each summed over the faces of c in face order (a face's terms go to the columns of c and of its
     other cell), and the pressure columns found through marks set for the row (not searched)."""
-    chunks = get_num_threads() if nc >= PAR_MIN else 1
+    chunks = max(threads, 1) if nc >= PAR_MIN else 1
     for t in prange(chunks):
         _continuity_chunk(t * nc // chunks, (t + 1) * nc // chunks, nc, cind, cidx, cf_ptr, cf_face, owner, neigh,
                           n_int, S, w, dcoef, kvec, rbar, r_u, r_v, vol, fixed, rho, implicit, g_data, E, gp, c0,
