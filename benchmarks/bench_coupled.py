@@ -204,7 +204,8 @@ iteration 54 -> 36 ms (preconditioner 37 -> 20 ms, Gram-Schmidt step 10.1 -> 7.6
     cavity 256^2 iterative (65536 cells, 12 outer, 19.9 per outer): 1.221 -> 0.875 s (14.7 -> 10.5 s; 2 threads
       7.7 s, CPU use 1.45); SIMPLEC 0.088 -> 0.064 s; x SIMPLEC 14.0 -> 13.6
 
-Measured 2026-12-03 15:20-15:32 (2 shared cores; another process held one core nearly throughout, load 1.3-2.5), before =
+Measured 2026-12-03 15:20-15:32 (2 shared cores; another process held one core nearly throughout, load 1.3-2.5),
+before =
 main eec6cd4, after = the Gram-Schmidt sums laid out for the processor's overlap (four dot chains at once, subtraction
 by row blocks), the first forward sweep of a V-cycle level skipping the zero terms, continuity_rows by position marks,
 the set-up's colouring / inverse diagonals / coarsest inverse and face_coefficients in numba: the same bits (u, p,
