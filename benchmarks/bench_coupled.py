@@ -204,6 +204,31 @@ iteration 54 -> 36 ms (preconditioner 37 -> 20 ms, Gram-Schmidt step 10.1 -> 7.6
     cavity 256^2 iterative (65536 cells, 12 outer, 19.9 per outer): 1.221 -> 0.875 s (14.7 -> 10.5 s; 2 threads
       7.7 s, CPU use 1.45); SIMPLEC 0.088 -> 0.064 s; x SIMPLEC 14.0 -> 13.6
 
+Measured 2026-12-03 15:20-15:32 (2 shared cores; another process held one core nearly throughout, load 1.3-2.5),
+before =
+main eec6cd4, after = the Gram-Schmidt sums laid out for the processor's overlap (four dot chains at once, subtraction
+by row blocks), the first forward sweep of a V-cycle level skipping the zero terms, continuity_rows by position marks,
+the set-up's colouring / inverse diagonals / coarsest inverse and face_coefficients in numba: the same bits (u, p,
+answers, outer and FGMRES counts identical). Interleaved whole runs (iterative forced), one thread, CPU s per outer
+iteration, 3 runs each (/tmp/par7/exp.py): cavity 128^2 0.166 / 0.167 / 0.172 -> 0.144 / 0.143 / 0.147, plate medium
+0.115 / 0.112 / 0.117 -> 0.108 / 0.107 / 0.105, step coarse 0.089 / 0.089 / 0.090 -> 0.086 / 0.086 / 0.085; one run:
+cavity 256^2 0.998 -> 0.896, fine plate 0.704 -> 0.670; SIMPLEC (100 its) cavity 128^2 0.0181 -> 0.0174, plate medium
+0.0278 -> 0.0275 s. --cost tables of both trees (load 1.3-2.5; x SIMPLEC by CPU s; 2 threads gave CPU use 0.99-1.07:
+the second core was taken):
+    | grid (cells) | outer | FGMRES / outer | x SIMPLEC before | x SIMPLEC after |
+    |---|---|---|---|---|
+    | cavity 128^2 (16384) | 13 | 15.2 | 8.9 | 8.7 (interleaved runs: 9.3 -> 8.3) |
+    | cavity 256^2 (65536) | 12 | 19.9 | 14.5 | 13.0 |
+    | plate medium (13056) | 25 | 6.6 | 4.3 | 4.0 (interleaved: 4.1 -> 3.9) |
+    | plate fine (52224) | 25 | 13.7 | 6.5 | 6.5 |
+    | step coarse (6912) | 77 | 14.2 | 4.2 | 4.1 |
+  Left per outer iteration on the medium plate (101 ms): FGMRES 47 ms (V-cycles 28, at their floor: a Gauss-Seidel row
+  waits for the one before it), pyamg set-ups 18 (7 of 25 outer iterations; 72 % inside pyamg), the SA update 19 (its
+  BiCGStab 14-16: the same V-cycles), assembly 12. A looser SA solve (turbulence_tolerance 0.03 / 0.1) moved Cf(0.97)
+  by 5e-8 - 6e-7; numeric-only hierarchy refreshes (P kept, Galerkin products in numba, 4 ms a hierarchy) doubled the
+  plate's FGMRES counts or, made every outer iteration, cost more than the 7-9 % of FGMRES iterations they saved; fewer
+  rebuilds took the coarse plate from 25 to 40-55 outer iterations. None was kept.
+
 Run:  python benchmarks/bench_coupled.py [--families cavity plate step] [--fine-step] [--only simultaneous]
       python benchmarks/bench_coupled.py --memory cavity plate [--cells 400000] [--memory-iterations 8]
       python benchmarks/bench_coupled.py --cost [cavity128 plate-medium ...] [--threads 1 2] [--forcing-max 0]

@@ -37,8 +37,29 @@ def _smooth_rows(ptr, po, idx, dat, dinv, x, b, vo, lo, hi, forward):
         x[_U(vo + i)] += acc * dinv[_U(vo + i)]
 
 
+@njit(cache=True, nogil=True, inline="always")
+def _smooth_rows_from_zero(ptr, po, idx, dat, dinv, x, b, vo, lo, hi):
+    """The forward Gauss-Seidel sweep over the level rows [lo, hi) when x was zero there before it:
+    the row's entries in columns i..hi-1 multiply zeros still (rows not yet swept), so they are
+    skipped; x is the same as the full sweep's (a skipped term subtracts a zero)."""
+    for i in range(lo, hi):
+        acc = b[_U(vo + i)]
+        k = _U(ptr[po + i])
+        end = _U(ptr[po + i + 1])
+        # (the row's columns are sorted: those below i, then i..hi-1, then those from hi)
+        while k < end and idx[k] < i:
+            acc -= dat[k] * x[_U(vo + idx[k])]
+            k += _U(1)
+        while k < end and idx[k] < hi:
+            k += _U(1)
+        while k < end:
+            acc -= dat[k] * x[_U(vo + idx[k])]
+            k += _U(1)
+        x[_U(vo + i)] += acc * dinv[_U(vo + i)]
+
+
 @njit(cache=True, nogil=True, parallel=True)
-def _smooth(ptr, po, idx, dat, dinv, x, b, vo, n, colour_ptr, order, forward, par):
+def _smooth(ptr, po, idx, dat, dinv, x, b, vo, n, colour_ptr, order, forward, par, zero):
     """One Gauss-Seidel sweep on the level rows [vo, vo + n), forward or backward, block by block.
 
     The rows are cut into ``nb`` blocks of consecutive rows (block k: rows k n / nb to
@@ -48,7 +69,8 @@ def _smooth(ptr, po, idx, dat, dinv, x, b, vo, n, colour_ptr, order, forward, pa
     forward sweep takes the colours in turn and the blocks of one colour at once (on every thread
     when ``par``), each block forward; the backward sweep is the exact reverse. Blocks of one colour
     share no coupling, so this is Gauss-Seidel in one fixed row order, whatever the thread count;
-    one block is the plain lexicographic sweep.
+    one block is the plain lexicographic sweep. ``zero`` (forward only): x is zero on the level
+    before the sweep (``_smooth_rows_from_zero``: the same x, fewer terms).
     """
     ncol = colour_ptr[0]
     nb = colour_ptr[1 + ncol]
@@ -59,11 +81,17 @@ def _smooth(ptr, po, idx, dat, dinv, x, b, vo, n, colour_ptr, order, forward, pa
         if par and count > 1:
             for q in prange(count):
                 blk = order[first + q]
-                _smooth_rows(ptr, po, idx, dat, dinv, x, b, vo, blk * n // nb, (blk + 1) * n // nb, forward)
+                if zero and forward:
+                    _smooth_rows_from_zero(ptr, po, idx, dat, dinv, x, b, vo, blk * n // nb, (blk + 1) * n // nb)
+                else:
+                    _smooth_rows(ptr, po, idx, dat, dinv, x, b, vo, blk * n // nb, (blk + 1) * n // nb, forward)
         else:
             for q in range(count):
                 blk = order[first + q]
-                _smooth_rows(ptr, po, idx, dat, dinv, x, b, vo, blk * n // nb, (blk + 1) * n // nb, forward)
+                if zero and forward:
+                    _smooth_rows_from_zero(ptr, po, idx, dat, dinv, x, b, vo, blk * n // nb, (blk + 1) * n // nb)
+                else:
+                    _smooth_rows(ptr, po, idx, dat, dinv, x, b, vo, blk * n // nb, (blk + 1) * n // nb, forward)
 
 
 @njit(cache=True, nogil=True, parallel=True)
@@ -197,8 +225,8 @@ def vcycle(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_id
         vo = voff[lv]
         m = n[lv]
         _fill(x, vo, m, 0.0, par)
-        for _ in range(sweeps):
-            _smooth(a_ptr, a_pofs[lv], a_idx, a_dat, dinv, x, b, vo, m, s_ptr[lv], s_order[lv], yes, par)
+        for sw in range(sweeps):
+            _smooth(a_ptr, a_pofs[lv], a_idx, a_dat, dinv, x, b, vo, m, s_ptr[lv], s_order[lv], yes, par, sw == 0)
         # (the residual is restricted at once: one level's at a time in r)
         _residual(a_ptr, a_pofs[lv], a_idx, a_dat, x, vo, b, vo, r, zero, m, par)
         _restrict(p_ptr, p_pofs[lv], p_idx, p_dat, r, zero, m, b, voff[lv + 1], n[lv + 1], t_rows[lv], par)
@@ -215,7 +243,7 @@ def vcycle(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_id
         vo = voff[lv]
         _apply_add(p_ptr, p_pofs[lv], p_idx, p_dat, x, voff[lv + 1], x, vo, n[lv], yes, par)
         for _ in range(sweeps):
-            _smooth(a_ptr, a_pofs[lv], a_idx, a_dat, dinv, x, b, vo, n[lv], s_ptr[lv], s_order[lv], no, par)
+            _smooth(a_ptr, a_pofs[lv], a_idx, a_dat, dinv, x, b, vo, n[lv], s_ptr[lv], s_order[lv], no, par, no)
 
 
 @njit(cache=True, nogil=True, inline="always")
@@ -528,6 +556,65 @@ def refresh_fine(src, a_dat, a_ptr, a_idx, n0, dinv):
         dinv[i] = 1.0 / d if d != 0.0 else 0.0
 
 
+@njit(cache=True, nogil=True)
+def block_colouring(indptr, indices, n, nb, colour_ptr, order):
+    """Greedy colouring of the ``nb`` blocks of consecutive rows of the n x n CSR pattern (block k: rows
+    k n / nb to (k + 1) n / nb), in block order: each block takes the smallest colour none of the blocks
+    it is joined to by a nonzero, in either direction, has taken. Fills ``colour_ptr`` (the number of
+    colours C, then where each colour's blocks start in ``order``, then nb) and ``order`` (the blocks by
+    colour, in block order within a colour); returns C (``amg.block_colours``)."""
+    adj = np.zeros((nb, nb), dtype=np.bool_)
+    blk = 0
+    for i in range(n):
+        while (blk + 1) * n // nb <= i:
+            blk += 1
+        for k in range(indptr[i], indptr[i + 1]):
+            j = indices[k]
+            # the block of row j: the b with b n / nb <= j < (b + 1) n / nb
+            b = j * nb // n
+            while b > 0 and b * n // nb > j:
+                b -= 1
+            while (b + 1) * n // nb <= j:
+                b += 1
+            adj[blk, b] = True
+            adj[b, blk] = True
+    colour = np.full(nb, -1, dtype=np.int64)
+    taken = np.zeros(nb + 1, dtype=np.bool_)
+    ncol = 0
+    for k in range(nb):
+        taken[:] = False
+        for q in range(nb):
+            if q != k and adj[k, q] and colour[q] >= 0:
+                taken[colour[q]] = True
+        c = 0
+        while taken[c]:
+            c += 1
+        colour[k] = c
+        ncol = max(ncol, c + 1)
+    colour_ptr[0] = ncol
+    pos = 0
+    for c in range(ncol):
+        colour_ptr[1 + c] = pos
+        for k in range(nb):
+            if colour[k] == c:
+                order[pos] = k
+                pos += 1
+    colour_ptr[1 + ncol] = nb
+    return ncol
+
+
+@njit(cache=True, nogil=True)
+def level_inverse_diagonal(a_ptr, po, a_idx, a_dat, m, dinv, vo):
+    """dinv[vo + i] = 1 / A[i, i] (0 where the diagonal is zero) for the m rows of the level whose
+    pointers start at ``po`` in a_ptr (the diagonal summed in double precision)."""
+    for i in range(m):
+        d = 0.0
+        for k in range(_U(a_ptr[po + i]), _U(a_ptr[po + i + 1])):
+            if a_idx[k] == i:
+                d += a_dat[k]
+        dinv[vo + i] = 1.0 / d if d != 0.0 else 0.0
+
+
 @njit(cache=True)
 def dense_inverse(a, out, singular):
     """out = generalised inverse of the square matrix ``a`` (overwritten) by Gauss-Jordan
@@ -573,12 +660,15 @@ def dense_inverse(a, out, singular):
         for j in range(m):
             a[k, j] *= inv
             out[k, j] *= inv
+        # (a's columns up to k are not read again, and out's row k is zero beyond column k: the
+        # loops skip them, the same values at half the work)
         for i in range(m):
             if i != k:
                 fac = a[i, k]
                 if fac != 0.0:
-                    for j in range(m):
+                    for j in range(k + 1, m):
                         a[i, j] -= fac * a[k, j]
+                    for j in range(k + 1):
                         out[i, j] -= fac * out[k, j]
     for k in range(m):
         if dropped[k]:

@@ -6,7 +6,7 @@ there).
 Threads: with ``par`` and at least ``PARALLEL_MIN_CELLS`` unknowns, the loops run on every thread.
 Every sum over the unknowns is then formed as ``SUM_CHUNKS`` partial sums over consecutive chunks,
 added in order (also on one thread, so the bits do not depend on the thread count); products and
-updates are row by row. Below that size the sums run in order, as before. (The products with the
+updates are row by row (by blocks of rows). Below that size the sums run in order, as before. (The products with the
 system's matrix are ``_block_kernels.scaled_product``.)
 """
 
@@ -17,6 +17,11 @@ from numba import njit, prange
 
 from fvrans.jit import PARALLEL_MIN_CELLS as PAR_MIN
 from fvrans.linalg._amg_kernels import SUM_CHUNKS
+
+_U = np.uint64
+#: rows per block of the Gram-Schmidt subtraction (``_subtract_block``): a block of w (4 KB) stays in
+#: the first-level cache while the k + 1 basis vectors are subtracted from it
+BLOCK_ROWS = 512
 
 
 @njit(cache=True, parallel=True)
@@ -48,13 +53,38 @@ def norm2(x, par):
 
 
 @njit(cache=True, nogil=True, inline="always")
+def _dots4(V, i0, k, w, lo, hi, out, row, add):
+    """out[row, i] = sum_{lo <= j < hi} V[i, j] w[j] (``add``: added to out[row, i], continuing its
+    sum) for the four rows i = i0..i0+3 at once, each summed in row order (four independent chains:
+    one at a time waits for the latency of each addition); rows past k stand in as row k and are
+    not stored."""
+    r1 = min(i0 + 1, k)
+    r2 = min(i0 + 2, k)
+    r3 = min(i0 + 3, k)
+    s0 = out[row, i0] if add else 0.0
+    s1 = out[row, r1] if add else 0.0
+    s2 = out[row, r2] if add else 0.0
+    s3 = out[row, r3] if add else 0.0
+    for j in range(_U(lo), _U(hi)):
+        wj = w[j]
+        s0 += V[i0, j] * wj
+        s1 += V[r1, j] * wj
+        s2 += V[r2, j] * wj
+        s3 += V[r3, j] * wj
+    out[row, i0] = s0
+    if i0 + 1 <= k:
+        out[row, r1] = s1
+    if i0 + 2 <= k:
+        out[row, r2] = s2
+    if i0 + 3 <= k:
+        out[row, r3] = s3
+
+
+@njit(cache=True, nogil=True, inline="always")
 def _dots_chunk(V, k, w, lo, hi, out, row):
     """out[row, i] = sum_{lo <= j < hi} V[i, j] w[j] for i <= k."""
-    for i in range(k + 1):
-        s = 0.0
-        for j in range(lo, hi):
-            s += V[i, j] * w[j]
-        out[row, i] = s
+    for i0 in range(0, k + 1, 4):
+        _dots4(V, i0, k, w, lo, hi, out, row, False)
 
 
 @njit(cache=True, parallel=True)
@@ -81,22 +111,28 @@ def _basis_dots(V, k, w, c, par):
         c[i] = s
 
 
+@njit(cache=True, nogil=True, inline="always")
+def _subtract_block(V, k, c, w, lo, hi):
+    """w[j] -= c_i V[i, j] for i = 0..k in turn, rows [lo, hi): per row the same operations in the
+    same order as one chain over i, with the loop over the rows innermost (vector instructions;
+    w's rows stay in the first-level cache through the k + 1 passes)."""
+    for i in range(k + 1):
+        ci = c[i]
+        for j in range(_U(lo), _U(hi)):
+            w[j] -= ci * V[i, j]
+
+
 @njit(cache=True, parallel=True)
 def _subtract_combination(V, k, c, w, par):
-    """w -= sum_{i <= k} c_i V_i (row by row)."""
+    """w -= sum_{i <= k} c_i V_i (per row in the order of i; by blocks of ``BLOCK_ROWS`` rows)."""
     n = w.shape[0]
+    nb = (n + BLOCK_ROWS - 1) // BLOCK_ROWS
     if par and n >= PAR_MIN:
-        for j in prange(n):
-            acc = w[j]
-            for i in range(k + 1):
-                acc -= c[i] * V[i, j]
-            w[j] = acc
+        for b in prange(nb):
+            _subtract_block(V, k, c, w, b * BLOCK_ROWS, min((b + 1) * BLOCK_ROWS, n))
     else:
-        for j in range(n):
-            acc = w[j]
-            for i in range(k + 1):
-                acc -= c[i] * V[i, j]
-            w[j] = acc
+        for b in range(nb):
+            _subtract_block(V, k, c, w, b * BLOCK_ROWS, min((b + 1) * BLOCK_ROWS, n))
 
 
 @njit(cache=True, parallel=True)
@@ -111,26 +147,21 @@ def _scaled_copy(w, a, out, par):
             out[j] = w[j] * a
 
 
-#: a second classical Gram-Schmidt pass is made when the first left less than this part of ||w||
-#: (Daniel, Gragg, Kaufman & Stewart 1976, Math. Comp. 30, 772-795, from memory: 1/sqrt(2))
-REORTHOGONALISE_BELOW = 0.7071067811865476
-
-
 @njit(cache=True, nogil=True, inline="always")
 def _subtract_dots_rows(V, k, c, w, lo, hi, part, q):
     """Over rows [lo, hi): w -= sum_{i <= k} c_i V_i, then part[q, i] = V_i . w (i <= k) and
-    part[q, k + 1] = w . w of the new w, each summed in row order."""
+    part[q, k + 1] = w . w of the new w, each summed in row order (block by block of
+    ``BLOCK_ROWS`` rows: the block's subtraction, then its terms of the sums, read from cache)."""
     for i in range(k + 2):
         part[q, i] = 0.0
     s = 0.0
-    for j in range(lo, hi):
-        acc = w[j]
-        for i in range(k + 1):
-            acc -= c[i] * V[i, j]
-        w[j] = acc
-        s += acc * acc
-        for i in range(k + 1):
-            part[q, i] += V[i, j] * acc
+    for b0 in range(lo, hi, BLOCK_ROWS):
+        b1 = min(b0 + BLOCK_ROWS, hi)
+        _subtract_block(V, k, c, w, b0, b1)
+        for j in range(_U(b0), _U(b1)):
+            s += w[j] * w[j]
+        for i0 in range(0, k + 1, 4):
+            _dots4(V, i0, k, w, b0, b1, part, q, True)
     part[q, k + 1] = s
 
 
@@ -192,20 +223,23 @@ def orthogonalise(V, k, w, h, par):
         _scaled_copy(w, 1.0 / nrm, V[k + 1], par)
 
 
+@njit(cache=True, nogil=True, inline="always")
+def _add_block(Z, y, x, lo, hi):
+    """x[j] += y_i Z[i, j] for i in turn, rows [lo, hi) (the loop over the rows innermost)."""
+    for i in range(y.shape[0]):
+        yi = y[i]
+        for j in range(_U(lo), _U(hi)):
+            x[j] += yi * Z[i, j]
+
+
 @njit(cache=True, parallel=True)
 def add_combination(Z, y, x, par):
-    """x += sum_i y_i Z_i (i < y.size)."""
-    m = y.shape[0]
+    """x += sum_i y_i Z_i (i < y.size; per row in the order of i, by blocks of ``BLOCK_ROWS`` rows)."""
     n = x.shape[0]
+    nb = (n + BLOCK_ROWS - 1) // BLOCK_ROWS
     if par and n >= PAR_MIN:
-        for j in prange(n):
-            acc = x[j]
-            for i in range(m):
-                acc += y[i] * Z[i, j]
-            x[j] = acc
+        for b in prange(nb):
+            _add_block(Z, y, x, b * BLOCK_ROWS, min((b + 1) * BLOCK_ROWS, n))
     else:
-        for j in range(n):
-            acc = x[j]
-            for i in range(m):
-                acc += y[i] * Z[i, j]
-            x[j] = acc
+        for b in range(nb):
+            _add_block(Z, y, x, b * BLOCK_ROWS, min((b + 1) * BLOCK_ROWS, n))

@@ -80,24 +80,12 @@ def block_colours(m: sp.csr_matrix, nb: int, colour_ptr: np.ndarray, order: np.n
     k n / nb to (k + 1) n / nb) greedily in block order: two blocks joined by a nonzero, in either
     direction, get different colours. Fills ``colour_ptr`` (nb + 2: the number of colours C, then
     where each colour's blocks start in ``order``, then nb) and ``order`` (nb: the blocks by colour)
-    as ``_amg_kernels._smooth`` reads them; returns C."""
-    n = m.shape[0]
-    ends = np.arange(1, nb + 1, dtype=np.int64) * n // nb
-    block = np.searchsorted(ends, np.arange(n), side="right").astype(np.int16)  # 2 bytes a row: set-up memory
-    bi = np.repeat(block, np.diff(m.indptr))
-    bj = block[m.indices]
-    adj = np.zeros((nb, nb), dtype=bool)
-    adj[bi, bj] = True
-    adj |= adj.T
-    colour = np.full(nb, -1)
-    for k in range(nb):
-        taken = set(colour[adj[k] & (np.arange(nb) != k)].tolist())
-        colour[k] = min(c for c in range(nb + 1) if c not in taken)
-    ncol = int(colour.max()) + 1
-    colour_ptr[0] = ncol
-    order[:nb] = np.argsort(colour, kind="stable")
-    colour_ptr[1 : ncol + 2] = np.searchsorted(colour[order[:nb]], np.arange(ncol + 1))
-    return ncol
+    as ``_amg_kernels._smooth`` reads them; returns C (``_amg_kernels.block_colouring``)."""
+    if nb == 1:
+        colour_ptr[:3] = (1, 0, 1)
+        order[0] = 0
+        return 1
+    return int(_k.block_colouring(m.indptr, m.indices, m.shape[0], nb, colour_ptr, order))
 
 
 class _Stack:
@@ -214,8 +202,7 @@ class AmgKrylovSolver:
         for lv, level in enumerate(levels):
             m = level.A
             a.add(m)
-            d = np.asarray(m.diagonal(), dtype=float)
-            dinv[voff[lv] : voff[lv] + n[lv]] = np.where(d != 0.0, 1.0 / np.where(d != 0.0, d, 1.0), 0.0)
+            _k.level_inverse_diagonal(a.ptr, a.pofs[lv], a.idx, a.dat, n[lv], dinv, voff[lv])
             block_colours(m, smoother_blocks(m.shape[0]) if self.block_sweep else 1, s_ptr[lv], s_order[lv])
             if lv < len(levels) - 1:
                 p.add(level.P)

@@ -364,35 +364,46 @@ def momentum_rows(nc, cind, cf_ptr, cf_face, owner, neigh, n_int, a_rel, off_own
         data[wall_pos[k]] += wall_data[k]
 
 
-@njit(cache=True, nogil=True, inline="always")
-def _continuity_row(c, nc, cind, cidx, cf_ptr, cf_face, owner, neigh, n_int, S, w, dcoef, kvec, rbar, r_u, r_v, vol,
-                    fixed, rho, implicit, g_data, E, gp, c0, indptr, indices, data, rhs):
-    r = 2 * nc + c
-    lo, hi = indptr[r], indptr[r + 1]
-    for k in range(lo, hi):
-        data[k] = 0.0
-    a, b = cind[c], cind[c + 1]
-    L = b - a
-    nnz = cind[nc]
-    _face_sum_row(c, cind, cidx, cf_ptr, cf_face, owner, neigh, n_int, S, w, fixed, rho, data, lo, lo + L)
-    s = 0.0
-    for j in range(L):
-        k = cidx[a + j]
-        # the Rhie-Chow pressure terms of row c, column k (``pressure_difference_triplets``)
-        lc = 0.0
-        kx = 0.0
-        ky = 0.0
+@njit(cache=True, nogil=True)
+def _continuity_chunk(first, last, nc, cind, cidx, cf_ptr, cf_face, owner, neigh, n_int, S, w, dcoef, kvec, rbar, r_u,
+                      r_v, vol, fixed, rho, implicit, g_data, E, gp, c0, indptr, indices, data, rhs):
+    """Rows [first, last) of ``continuity_rows``, with their own position marks (``mark``: nc int32, -1 but
+    for the pressure columns of the row being filled) and per-column scratch."""
+    width = 0
+    for c in range(first, last):
+        width = max(width, cind[c + 1] - cind[c])
+    mark = np.full(nc, -1, dtype=np.int32)
+    lcj = np.empty(width)
+    kxj = np.empty(width)
+    kyj = np.empty(width)
+    for c in range(first, last):
+        r = 2 * nc + c
+        lo, hi = indptr[r], indptr[r + 1]
+        for k in range(lo, hi):
+            data[k] = 0.0
+        a, b = cind[c], cind[c + 1]
+        L = b - a
+        nnz = cind[nc]
+        _face_sum_row(c, cind, cidx, cf_ptr, cf_face, owner, neigh, n_int, S, w, fixed, rho, data, lo, lo + L)
+        # the Rhie-Chow pressure terms of row c per column of compact(c) (``pressure_difference_triplets``),
+        # each summed over the faces of c in face order: the faces' terms go to the columns of c and of the
+        # face's other cell
+        for j in range(L):
+            lcj[j] = 0.0
+            kxj[j] = 0.0
+            kyj[j] = 0.0
+        jc = _position(cidx, a, b, c) - a
         for i in range(cf_ptr[c], cf_ptr[c + 1]):
             code = cf_face[i]
             # an internal face seen from c, as in ``_face_sum_row``
             if code >= 0:
                 f = code
                 if f >= n_int:
-                    if fixed[f - n_int] and k == c:
+                    if fixed[f - n_int]:
                         rf = rho * rbar[c]
-                        lc += rf * dcoef[f]
-                        kx += rf * kvec[f, 0]
-                        ky += rf * kvec[f, 1]
+                        lcj[jc] += rf * dcoef[f]
+                        kxj[jc] += rf * kvec[f, 0]
+                        kyj[jc] += rf * kvec[f, 1]
                     continue
                 other, w_self, w_other, sign = neigh[f], w[f], 1.0 - w[f], 1.0
             else:
@@ -402,45 +413,55 @@ def _continuity_row(c, nc, cind, cidx, cf_ptr, cf_face, owner, neigh, n_int, S, 
             af = rf * dcoef[f]
             k0 = rf * kvec[f, 0]
             k1 = rf * kvec[f, 1]
-            if k == c:
-                lc += af
-                kx += sign * w_self * k0
-                ky += sign * w_self * k1
-            if k == other:
-                lc += -af
-                kx += sign * w_other * k0
-                ky += sign * w_other * k1
-        # W = D diag(r) - [Kx Ky]: continuity's response to the cell pressure gradients
-        wx = data[lo + j] * r_u[k] - kx
-        wy = data[lo + L + j] * r_v[k] - ky
-        data[_position(indices, lo + 2 * L, hi, 2 * nc + k)] += lc
-        if implicit:
-            # grad p_k = V_k^-1 (G p + E)_k: A_pp += W V^-1 G, right-hand side -= W V^-1 E
-            wx = wx * (1.0 / vol[k])
-            wy = wy * (1.0 / vol[k])
-            for i in range(cind[k], cind[k + 1]):
-                q = _position(indices, lo + 2 * L, hi, 2 * nc + cidx[i])
-                data[q] += wx * g_data[i] + wy * g_data[nnz + i]
-            s += wx * E[k] + wy * E[nc + k]
-        else:
-            s += wx * gp[k, 0] + wy * gp[k, 1]
-    rhs[c] = -(c0[c] + s)
+            lcj[jc] += af
+            kxj[jc] += sign * w_self * k0
+            kyj[jc] += sign * w_self * k1
+            jo = _position(cidx, a, b, other) - a
+            lcj[jo] += -af
+            kxj[jo] += sign * w_other * k0
+            kyj[jo] += sign * w_other * k1
+        p0 = lo + 2 * L
+        for q in range(p0, hi):
+            mark[indices[q] - 2 * nc] = q
+        s = 0.0
+        for j in range(L):
+            k = cidx[a + j]
+            # W = D diag(r) - [Kx Ky]: continuity's response to the cell pressure gradients
+            wx = data[lo + j] * r_u[k] - kxj[j]
+            wy = data[lo + L + j] * r_v[k] - kyj[j]
+            data[mark[k]] += lcj[j]
+            if implicit:
+                # grad p_k = V_k^-1 (G p + E)_k: A_pp += W V^-1 G, right-hand side -= W V^-1 E
+                wx = wx * (1.0 / vol[k])
+                wy = wy * (1.0 / vol[k])
+                for i in range(cind[k], cind[k + 1]):
+                    q = mark[cidx[i]]
+                    data[q] += wx * g_data[i] + wy * g_data[nnz + i]
+                s += wx * E[k] + wy * E[nc + k]
+            else:
+                s += wx * gp[k, 0] + wy * gp[k, 1]
+        for q in range(p0, hi):
+            mark[indices[q] - 2 * nc] = -1
+        rhs[c] = -(c0[c] + s)
 
 
 @njit(cache=True, parallel=True)
 def continuity_rows(nc, cind, cidx, cf_ptr, cf_face, owner, neigh, n_int, S, w, dcoef, kvec, rbar, r_u, r_v, vol,
-                    fixed, rho, implicit, g_data, E, gp, c0, indptr, indices, data, rhs):
+                    fixed, rho, implicit, g_data, E, gp, c0, indptr, indices, data, rhs, threads):
     """Refill the continuity rows: D (rho times the face sums on faces with a given pressure), and
     A_pp = Lc + W V^-1 G with W = D diag(r_u, r_v) - [Kx Ky] (``implicit``; else Lc alone), and their
-    right-hand side -(c0 + W V^-1 E) (else -(c0 + W grad p)). Each row is written by one thread."""
-    if nc >= PAR_MIN:
-        for c in prange(nc):
-            _continuity_row(c, nc, cind, cidx, cf_ptr, cf_face, owner, neigh, n_int, S, w, dcoef, kvec, rbar, r_u,
-                            r_v, vol, fixed, rho, implicit, g_data, E, gp, c0, indptr, indices, data, rhs)
-    else:
-        for c in range(nc):
-            _continuity_row(c, nc, cind, cidx, cf_ptr, cf_face, owner, neigh, n_int, S, w, dcoef, kvec, rbar, r_u,
-                            r_v, vol, fixed, rho, implicit, g_data, E, gp, c0, indptr, indices, data, rhs)
+    right-hand side -(c0 + W V^-1 E) (else -(c0 + W grad p)). Each row is written by one thread, its
+    sums in a fixed order (the same bits on any thread count): the rows in one chunk per thread
+    (``threads``, the parallel kernels' thread count: ``fvrans.jit.threads``).
+
+    Per row: the Rhie-Chow pressure terms per column of compact(c) (``pressure_difference_triplets``),
+    each summed over the faces of c in face order (a face's terms go to the columns of c and of its
+    other cell), and the pressure columns found through marks set for the row (not searched)."""
+    chunks = max(threads, 1) if nc >= PAR_MIN else 1
+    for t in prange(chunks):
+        _continuity_chunk(t * nc // chunks, (t + 1) * nc // chunks, nc, cind, cidx, cf_ptr, cf_face, owner, neigh,
+                          n_int, S, w, dcoef, kvec, rbar, r_u, r_v, vol, fixed, rho, implicit, g_data, E, gp, c0,
+                          indptr, indices, data, rhs)
 
 
 @njit(cache=True)

@@ -662,7 +662,7 @@ class SimultaneousSolver(SimpleSolver):
         CK.continuity_rows(nc, self._cind, self._cidx, self.cf_ptr, self.cf_face, self.owner, self.neigh, ni,
                            self.S, g.face_weight, self.dcoef, self.kvec, rbar, r_u, r_v, V, self.fixed, rho,
                            self.implicit_gradient, g_data, E, gp, c0, A.indptr, A.indices, A.data,
-                           rhs[2 * nc:])
+                           rhs[2 * nc:], threads())
         del c0, g_data
         # (in place: (b + G p) + W u_old, the same sums as with temporaries)
         rhs[:nc] = self.rhs_u

@@ -255,3 +255,101 @@ def test_restriction_is_p_transpose_to_the_bit_and_is_not_stored():
     assert held <= operators + extra
     # the cycle's residual holds one level at a time: the finest level's size, not level-stacked
     assert s._scratch()[2].size == nf and s._scratch()[0].size == n.sum()
+
+
+def _gauss_jordan_full(a: np.ndarray) -> np.ndarray:
+    """Gauss-Jordan inverse without pivoting, every entry of both arrays updated at every step (the
+    plain textbook loops, no singular or dropped pivots): the reference of ``dense_inverse``'s values."""
+    a = a.copy()
+    m = a.shape[0]
+    out = np.eye(m)
+    for k in range(m):
+        inv = 1.0 / a[k, k]
+        a[k] *= inv
+        out[k] *= inv
+        for i in range(m):
+            if i != k and a[i, k] != 0.0:
+                fac = a[i, k]
+                a[i] -= fac * a[k]
+                out[i] -= fac * out[k]
+    return out
+
+
+def test_dense_inverse_skips_only_entries_that_stay_unchanged():
+    """The coarsest level's inverse updates only a's columns beyond the pivot and out's columns up to
+    it (the others are not read again, or are zero): the values of the full Gauss-Jordan loops bit
+    for bit, on a nonsymmetric diagonally dominant matrix and a 2D Laplacian's Galerkin-like block."""
+    rng = np.random.default_rng(8)
+    for M in (rng.random((40, 40)) - 0.5 + 20 * np.eye(40), laplacian(7, neumann=False).toarray()):
+        G = np.empty_like(M)
+        assert K.dense_inverse(M.copy(), G, False) == 0
+        np.testing.assert_array_equal(G, _gauss_jordan_full(M))
+
+
+def _block_colours_reference(m: sp.csr_matrix, nb: int) -> tuple[list[int], list[int]]:
+    """Greedy block colouring written out with sets: (colour_ptr[: C + 2], order)."""
+    n = m.shape[0]
+    block = [min(b for b in range(nb) if i < (b + 1) * n // nb) for i in range(n)]
+    coo = m.tocoo()
+    adj = {(block[i], block[j]) for i, j in zip(coo.row, coo.col)}
+    adj |= {(b, a) for a, b in adj}
+    colour: list[int] = []
+    for k in range(nb):
+        taken = {colour[q] for q in range(k) if (k, q) in adj}
+        colour.append(min(c for c in range(nb + 1) if c not in taken))
+    ncol = max(colour) + 1
+    order = [k for c in range(ncol) for k in range(nb) if colour[k] == c]
+    starts = [sum(1 for k in range(nb) if colour[k] < c) for c in range(ncol + 1)]
+    return [ncol, *starts], order
+
+
+def test_block_colouring_of_the_smoother():
+    """The coloured blocks of the Gauss-Seidel sweep (``amg.block_colours``, numba): the greedy colouring
+    written out with sets, on a 2D Laplacian (rows in lines: neighbouring blocks couple, two colours), a
+    random nonsymmetric pattern (more colours) and 7 blocks on 1 001 rows (blocks of unequal size); no two
+    blocks of one colour are joined by a nonzero."""
+    far = sp.random(1001, 1001, density=0.002, random_state=7, format="csr") + sp.identity(1001)
+    for m, nb in ((laplacian(64, neumann=False), 16), (sp.csr_matrix(far), 8), (sp.csr_matrix(far), 7),
+                  (laplacian(20, neumann=True), 1)):
+        m = sp.csr_matrix(m)
+        ptr = np.zeros(amg.SMOOTHER_MAX_BLOCKS + 2, dtype=np.int64)
+        order = np.zeros(amg.SMOOTHER_MAX_BLOCKS, dtype=np.int64)
+        ncol = amg.block_colours(m, nb, ptr, order)
+        ref_ptr, ref_order = _block_colours_reference(m, nb)
+        assert ncol == ref_ptr[0]
+        assert ptr[: ncol + 2].tolist() == ref_ptr
+        assert order[:nb].tolist() == ref_order
+        n = m.shape[0]
+        blk = np.searchsorted(np.arange(1, nb + 1) * n // nb, np.arange(n), side="right")
+        colour_of = np.empty(nb, dtype=int)
+        for c in range(ncol):
+            colour_of[order[ptr[1 + c]:ptr[2 + c]]] = c
+        coo = m.tocoo()
+        bi, bj = blk[coo.row], blk[coo.col]
+        assert not np.any((bi != bj) & (colour_of[bi] == colour_of[bj]))
+
+
+def test_first_sweep_from_zero_skips_only_zero_terms():
+    """The V-cycle's first forward Gauss-Seidel sweep on a level starts from x = 0 and skips the row
+    terms of the rows not yet swept in its block (``_smooth_rows_from_zero``): x equals the full
+    sweep's bit for bit, with one block (lexicographic) and with coloured blocks (a 2D Laplacian of
+    9 216 rows: 8 blocks), on every level of a hierarchy of a nonsymmetric convection-diffusion matrix."""
+    A = sp.csr_matrix(laplacian(96, neumann=False) + 0.3 * sp.diags([-np.ones(96 * 96 - 1)], [-1]))
+    b = np.random.default_rng(2).random(A.shape[0])
+    for block_sweep in (False, True):
+        s = AmgKrylovSolver("cg", coarsening="RS-second-pass", block_sweep=block_sweep)
+        s.rebuild(A)
+        nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv = s._h[:8]
+        s_ptr, s_order = s._h[15], s._h[16]
+        assert s_ptr[0][0] == (2 if block_sweep else 1)  # (coloured blocks on the fine level)
+        for lv in range(nlev - 1):
+            out = []
+            for zero in (False, True):
+                x = np.zeros(int(np.sum(n)))
+                bb = np.zeros_like(x)
+                bb[voff[lv]:voff[lv] + n[lv]] = b[: n[lv]]
+                K._smooth(a_ptr, a_pofs[lv], a_idx, a_dat, dinv, x, bb, voff[lv], n[lv], s_ptr[lv], s_order[lv], True,
+                          False, zero)
+                out.append(x)
+            assert np.any(out[0] != 0.0)
+            np.testing.assert_array_equal(out[1], out[0])

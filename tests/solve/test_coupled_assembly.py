@@ -125,3 +125,47 @@ def test_refilled_system_equals_the_scipy_built_one(name):
             s.iterate()
         assert assert_same_system(s) is A  # one matrix, refilled in place
     assert np.abs(s.fields.velocity).max() > 0.1  # the flow did develop between the checks
+
+
+def test_face_coefficients_are_numpys_row_products_bit_for_bit():
+    """dcoef = |S|^2 / (S . d) and kvec = S - dcoef d per face (``simple.face_coefficients``, a numba loop
+    made every outer iteration) equal numpy's row-wise formulas bit for bit on triangles (quads cut along
+    one diagonal: non-orthogonal faces) and on quads; and kvec . S = 0 to round-off (over-relaxed
+    decomposition: the non-orthogonal part is normal to S, Jasak 1996, PhD thesis, Imperial College, from
+    memory)."""
+    from fvrans.mesh.geometry import compute_geometry
+    from fvrans.solve.simple import face_coefficients
+
+    for k, mesh in enumerate((split_same_diagonal(channel(3.0, 1.0, 9, 4)), cavity(12))):
+        g = compute_geometry(mesh)
+        S, d = g.face_area_vector, g.face_delta
+        dcoef, kvec = face_coefficients(g)
+        ref = (S[:, 0] * S[:, 0] + S[:, 1] * S[:, 1]) / (S[:, 0] * d[:, 0] + S[:, 1] * d[:, 1])
+        np.testing.assert_array_equal(dcoef, ref)
+        np.testing.assert_array_equal(kvec, S - ref[:, None] * d)
+        np.testing.assert_allclose((kvec * S).sum(axis=1), 0.0, atol=1e-12 * (S * S).sum(axis=1).max())
+        if k == 0:  # (the triangles' diagonal faces are not orthogonal: a non-orthogonal part to check)
+            assert np.abs(kvec).max() > 0.1 * np.abs(S).max()
+
+
+def test_system_rows_are_the_same_bits_on_one_and_two_threads():
+    """The system's rows refilled by their kernels (momentum and continuity rows, the latter in one chunk
+    of rows per thread with position marks of its own) on a cavity of 130^2 cells (above
+    PARALLEL_MIN_CELLS: the parallel loops run), at the state after one outer iteration: values and
+    right-hand side on one and on two threads bit for bit."""
+    from fvrans import jit
+
+    s = simultaneous_solver(cavity(130), CAVITY, system_solver="iterative")
+    assert s.nc >= jit.PARALLEL_MIN_CELLS
+    s.iterate()
+    out = []
+    before = jit.threads()
+    try:
+        for n in (1, 2):
+            jit.set_threads(n)
+            A, rhs, _ = s._assemble()
+            out.append((A.data.copy(), rhs.copy()))
+    finally:
+        jit.set_threads(before)
+    np.testing.assert_array_equal(out[1][0], out[0][0])
+    np.testing.assert_array_equal(out[1][1], out[0][1])
