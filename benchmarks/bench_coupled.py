@@ -229,9 +229,21 @@ the second core was taken):
   plate's FGMRES counts or, made every outer iteration, cost more than the 7-9 % of FGMRES iterations they saved; fewer
   rebuilds took the coarse plate from 25 to 40-55 outer iterations. None was kept.
 
+Measured 2026-12-03 16:00-16:07 (idle machine, load 0.6-1.1 with this script, main ab400d3; --cost --parts,
+one thread; each part in SIMPLEC iterations: assembly / set-up / Krylov / sparse LU / model / other = x SIMPLEC):
+  iterative: cavity128 14 outer, 8.8 FGMRES each: 0.87 / 0.62 / 3.40 / - / - / 0.67 = 6.3; cavity256 14, 10.4:
+      0.84 / 0.52 / 5.21 / - / - / 0.72 = 7.9; plate-medium 25, 6.6: 0.44 / 0.63 / 1.60 / - / 0.72 / 0.37 = 3.9;
+      plate-fine 25, 13.7: 0.45 / 0.39 / 3.81 / - / 0.96 / 0.39 = 6.1; step-coarse 87, 14.9: 0.33 / 0.26 / 2.80 /
+      - / 0.39 / 0.28 = 4.2; two threads: CPU use 1.06-1.32, speed-up 0.82-1.16, the same bits
+  by-size (the sparse LU below 30 000 / 70 000 cells): cavity128 13 outer: 0.88 / - / 1.76 / 5.38 / - / 0.40 = 9.3;
+      cavity256 13: 0.91 / - / 2.31 / 8.12 / - / 0.37 = 12.4; plate-medium 22: 0.46 / - / 1.08 / 4.93 / 0.79 / 0.24
+      = 7.7; step-coarse (its case names the LU) 30: 0.40 / - / 0.58 / 3.31 / 0.50 / 0.28 = 5.3; two threads: CPU
+      use 1.00-1.02
+
 Run:  python benchmarks/bench_coupled.py [--families cavity plate step] [--fine-step] [--only simultaneous]
       python benchmarks/bench_coupled.py --memory cavity plate [--cells 400000] [--memory-iterations 8]
       python benchmarks/bench_coupled.py --cost [cavity128 plate-medium ...] [--threads 1 2] [--forcing-max 0]
+                                         [--parts] [--system-solver by-size]
 """
 
 from __future__ import annotations

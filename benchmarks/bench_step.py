@@ -34,7 +34,8 @@ Since the settle estimate's short windows for fast decays (fvrans/monitor/estima
 refinement: 31 / 30 / 32 outer iterations, same x_r; fine 138.1 s wall, 108.0 s CPU (user + sys), 2.3 GB peak
 resident, at load 2-3 with 75 % of a core's share (triad 1.087 ms; 2026-12-03 12:50). With FGMRES on the kept LU
 stopping at the forcing rule's tolerance (up to 0.1): 30 / 32 / 31 outer iterations; fine 86.0 s, 12 factorisations,
-2.4 GB peak resident (quiet machine, load 1.0; triad 1.09 ms; 2026-12-03 13:36).
+2.4 GB peak resident (quiet machine, load 1.0; triad 1.09 ms; 2026-12-03 13:36); 80.0 s on main ab400d3 (the
+morning's tree 90.7 s in the same quarter hour; 2026-12-03 16:13-16:18, idle machine).
 SIMPLEC figures, measured 2026-12-02 (2 cores shared with other jobs, solver defaults), x_r / H, iterations, seconds,
 us/cell/iteration: coarse 6.136, 712, 10.6, 2.15; medium 6.173, 2112, 148, 2.54; mixed 6.216, 178,
 21.8, 4.88; fine from the uniform start 6.173, 4800, 1705, 3.21 (from the medium result: 6.172, 90,
