@@ -161,6 +161,20 @@ def levels_of(solver: AmgKrylovSolver):
         yield int(n[lv]), m, s_ptr[lv], s_order[lv]
 
 
+def assert_no_nonzero_joins_two_blocks_of_one_colour(m, nb: int, cptr, order) -> None:
+    """The smoother's colouring (``colour_ptr``, ``order`` as ``amg.block_colours`` fills them) of
+    ``nb`` blocks of consecutive rows of ``m``: no nonzero joins two different blocks of one colour."""
+    rows = m.shape[0]
+    ncol = cptr[0]
+    block = np.searchsorted(np.arange(1, nb + 1) * rows // nb, np.arange(rows), side="right")
+    colour = np.empty(nb, dtype=int)
+    for c in range(ncol):
+        colour[order[cptr[1 + c] : cptr[2 + c]]] = c
+    coo = m.tocoo()
+    bi, bj = block[coo.row], block[coo.col]
+    assert not np.any((bi != bj) & (colour[bi] == colour[bj]))
+
+
 def test_block_colouring_of_every_level_is_valid_on_triangles_and_quads(monkeypatch):
     """On a step mesh of quad layers and a triangle core (and its Galerkin coarse levels): every
     block of a level's sweep has one colour, and no nonzero of the level's matrix joins two
@@ -177,13 +191,7 @@ def test_block_colouring_of_every_level_is_valid_on_triangles_and_quads(monkeypa
         nb = cptr[1 + ncol]
         assert nb == amg.smoother_blocks(rows)
         assert sorted(order[:nb]) == list(range(nb))  # each block once
-        block = np.searchsorted(np.arange(1, nb + 1) * rows // nb, np.arange(rows), side="right")
-        colour = np.empty(nb, dtype=int)
-        for c in range(ncol):
-            colour[order[cptr[1 + c] : cptr[2 + c]]] = c
-        coo = m.tocoo()
-        bi, bj = block[coo.row], block[coo.col]
-        assert not np.any((bi != bj) & (colour[bi] == colour[bj]))
+        assert_no_nonzero_joins_two_blocks_of_one_colour(m, nb, cptr, order)
         blocked += nb > 1
     assert blocked >= 3
 
@@ -319,14 +327,7 @@ def test_block_colouring_of_the_smoother():
         assert ncol == ref_ptr[0]
         assert ptr[: ncol + 2].tolist() == ref_ptr
         assert order[:nb].tolist() == ref_order
-        n = m.shape[0]
-        blk = np.searchsorted(np.arange(1, nb + 1) * n // nb, np.arange(n), side="right")
-        colour_of = np.empty(nb, dtype=int)
-        for c in range(ncol):
-            colour_of[order[ptr[1 + c]:ptr[2 + c]]] = c
-        coo = m.tocoo()
-        bi, bj = blk[coo.row], blk[coo.col]
-        assert not np.any((bi != bj) & (colour_of[bi] == colour_of[bj]))
+        assert_no_nonzero_joins_two_blocks_of_one_colour(m, nb, ptr, order)
 
 
 def test_first_sweep_from_zero_skips_only_zero_terms():
