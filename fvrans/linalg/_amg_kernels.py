@@ -58,6 +58,17 @@ def _smooth_rows_from_zero(ptr, po, idx, dat, dinv, x, b, vo, lo, hi):
         x[_U(vo + i)] += acc * dinv[_U(vo + i)]
 
 
+@njit(cache=True, nogil=True, inline="always")
+def _smooth_block(ptr, po, idx, dat, dinv, x, b, vo, n, nb, blk, forward, zero):
+    """The sweep of block ``blk`` of ``_smooth`` (rows blk n / nb to (blk + 1) n / nb): from zero when
+    ``zero`` and ``forward`` (``_smooth_rows_from_zero``), else ``_smooth_rows``."""
+    lo, hi = blk * n // nb, (blk + 1) * n // nb
+    if zero and forward:
+        _smooth_rows_from_zero(ptr, po, idx, dat, dinv, x, b, vo, lo, hi)
+    else:
+        _smooth_rows(ptr, po, idx, dat, dinv, x, b, vo, lo, hi, forward)
+
+
 @njit(cache=True, nogil=True, parallel=True)
 def _smooth(ptr, po, idx, dat, dinv, x, b, vo, n, colour_ptr, order, forward, par, zero):
     """One Gauss-Seidel sweep on the level rows [vo, vo + n), forward or backward, block by block.
@@ -80,18 +91,10 @@ def _smooth(ptr, po, idx, dat, dinv, x, b, vo, n, colour_ptr, order, forward, pa
         count = colour_ptr[2 + c] - first
         if par and count > 1:
             for q in prange(count):
-                blk = order[first + q]
-                if zero and forward:
-                    _smooth_rows_from_zero(ptr, po, idx, dat, dinv, x, b, vo, blk * n // nb, (blk + 1) * n // nb)
-                else:
-                    _smooth_rows(ptr, po, idx, dat, dinv, x, b, vo, blk * n // nb, (blk + 1) * n // nb, forward)
+                _smooth_block(ptr, po, idx, dat, dinv, x, b, vo, n, nb, order[first + q], forward, zero)
         else:
             for q in range(count):
-                blk = order[first + q]
-                if zero and forward:
-                    _smooth_rows_from_zero(ptr, po, idx, dat, dinv, x, b, vo, blk * n // nb, (blk + 1) * n // nb)
-                else:
-                    _smooth_rows(ptr, po, idx, dat, dinv, x, b, vo, blk * n // nb, (blk + 1) * n // nb, forward)
+                _smooth_block(ptr, po, idx, dat, dinv, x, b, vo, n, nb, order[first + q], forward, zero)
 
 
 @njit(cache=True, nogil=True, parallel=True)
@@ -544,16 +547,23 @@ def bicgstab(nlev, n, voff, a_ptr, a_pofs, a_idx, a_dat, dinv, p_ptr, p_pofs, p_
 
 
 @njit(cache=True, nogil=True)
+def level_inverse_diagonal(a_ptr, po, a_idx, a_dat, m, dinv, vo):
+    """dinv[vo + i] = 1 / A[i, i] (0 where the diagonal is zero) for the m rows of the level whose
+    pointers start at ``po`` in a_ptr (the diagonal summed in double precision)."""
+    for i in range(m):
+        d = 0.0
+        for k in range(_U(a_ptr[po + i]), _U(a_ptr[po + i + 1])):
+            if a_idx[k] == i:
+                d += a_dat[k]
+        dinv[vo + i] = 1.0 / d if d != 0.0 else 0.0
+
+
+@njit(cache=True, nogil=True)
 def refresh_fine(src, a_dat, a_ptr, a_idx, n0, dinv):
     """Copy the current fine matrix values into level 0 and recompute its inverse diagonal."""
     for k in range(src.shape[0]):
         a_dat[k] = src[k]
-    for i in range(n0):
-        d = 0.0
-        for k in range(a_ptr[i], a_ptr[i + 1]):
-            if a_idx[k] == i:
-                d += a_dat[k]
-        dinv[i] = 1.0 / d if d != 0.0 else 0.0
+    level_inverse_diagonal(a_ptr, 0, a_idx, a_dat, n0, dinv, 0)
 
 
 @njit(cache=True, nogil=True)
@@ -601,18 +611,6 @@ def block_colouring(indptr, indices, n, nb, colour_ptr, order):
                 pos += 1
     colour_ptr[1 + ncol] = nb
     return ncol
-
-
-@njit(cache=True, nogil=True)
-def level_inverse_diagonal(a_ptr, po, a_idx, a_dat, m, dinv, vo):
-    """dinv[vo + i] = 1 / A[i, i] (0 where the diagonal is zero) for the m rows of the level whose
-    pointers start at ``po`` in a_ptr (the diagonal summed in double precision)."""
-    for i in range(m):
-        d = 0.0
-        for k in range(_U(a_ptr[po + i]), _U(a_ptr[po + i + 1])):
-            if a_idx[k] == i:
-                d += a_dat[k]
-        dinv[vo + i] = 1.0 / d if d != 0.0 else 0.0
 
 
 @njit(cache=True)
