@@ -29,6 +29,14 @@ from typing import Any
 #: process) needed: cavity 128^2, simultaneous path, 2 threads on the shared machine (load 4): 1.70 s per outer
 #: iteration and 1.04 CPU s spinning, 0.25 s and 0.18 CPU s asleep, 0.31 s and 0.17 CPU s on one thread
 OMP_WAIT_POLICY = os.environ.setdefault("OMP_WAIT_POLICY", "PASSIVE")
+#: ... but first they spin this many times (GNU OpenMP's ``GOMP_SPINCOUNT``, a few tens of microseconds),
+#: unless the environment says otherwise: asleep at once, each of the hundreds of short parallel loops of an
+#: iteration waited for the kernel to wake the second thread, and two threads gained little over one. Idle
+#: machine, simultaneous path, iterative solve, whole runs, 1 thread / 2 asleep at once / 2 with this spin:
+#: cavity 256^2 6.2-6.6 / 5.1-5.6 / 4.5-5.0 s, fine plate 14.4 / 12.4 / 10.1 s (2026-12-03 17:30). Beside a
+#: process that keeps the other core busy the spin cost 27 % (cavity 256^2 8.5 s against 6.7 on one thread):
+#: a run that finds its second thread without a core goes on with one (``SimpleSolver``: ``SHARED_CORE_USE``)
+THREAD_SPIN = os.environ.setdefault("GOMP_SPINCOUNT", "3000")
 
 #: what a run says once when it starts compiling (the terminal would otherwise sit silent)
 COMPILE_MESSAGE = ("compiling the numerical kernels: this run is the first (or the first since fvrans or numba "
@@ -103,6 +111,15 @@ def requested_threads(n: int | None = None) -> int:
                 ) from None
     n = int(n)
     return idle_cores() if n <= 0 else min(n, most)
+
+
+def threads_from_idle_cores(n: int | None = None) -> bool:
+    """Whether :func:`requested_threads` takes the idle cores: neither ``n`` nor ``FVRANS_THREADS`` gives a
+    positive count (a count the user gave is kept for the whole run; the idle cores' is watched)."""
+    if n is not None and int(n) > 0:
+        return False
+    text = os.environ.get(THREADS_VARIABLE, "").strip()
+    return not (text.lstrip("+").isdigit() and int(text) > 0)
 
 
 def set_threads(n: int | None = None) -> int:
@@ -185,5 +202,5 @@ class CompileWatch:
 
 
 __all__ = ["COMPILE_MESSAGE", "OMP_WAIT_POLICY", "PARALLEL_MIN_CELLS", "PARALLEL_MIN_HEAVY", "THREADS_VARIABLE",
-           "CompileWatch", "available_threads", "idle_cores", "one_blas_thread", "requested_threads", "set_threads",
-           "threads"]
+           "THREAD_SPIN", "CompileWatch", "available_threads", "idle_cores", "one_blas_thread", "requested_threads",
+           "set_threads", "threads", "threads_from_idle_cores"]

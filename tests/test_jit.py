@@ -106,3 +106,15 @@ def test_openmp_threads_wait_asleep_unless_the_environment_says_otherwise():
                            capture_output=True, text=True, check=True)
     assert unset.stdout.strip() == "PASSIVE"
     assert given.stdout.strip() == "ACTIVE"
+
+
+def test_openmp_threads_spin_briefly_before_they_sleep_unless_the_environment_says_otherwise():
+    """fvrans.jit sets GOMP_SPINCOUNT (a short spin between parallel loops) before numba starts its OpenMP
+    threads, and keeps a value the user gave."""
+    code = "import os, fvrans.jit; print(os.environ['GOMP_SPINCOUNT'])"
+    env = {k: v for k, v in os.environ.items() if k != "GOMP_SPINCOUNT"}
+    unset = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True, text=True, check=True)
+    given = subprocess.run([sys.executable, "-c", code], env={**env, "GOMP_SPINCOUNT": "0"},
+                           capture_output=True, text=True, check=True)
+    assert unset.stdout.strip() == "3000"
+    assert given.stdout.strip() == "0"

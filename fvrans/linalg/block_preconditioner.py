@@ -81,7 +81,6 @@ import scipy.sparse as sp
 from fvrans.jit import threads
 from fvrans.linalg import _amg_kernels as _amg
 from fvrans.linalg import _block_kernels as _k
-from fvrans.linalg.amg import _second_thread
 from fvrans.linalg.fgmres import VCycle
 
 MOMENTUM_COARSENING = "RS"
@@ -360,12 +359,11 @@ def _column_halves(D: sp.csr_matrix) -> tuple[sp.csr_matrix, sp.csr_matrix]:
 
 
 def _momentum_pair(mu: VCycle, mv: VCycle, w: np.ndarray, n: int, par: bool) -> tuple[np.ndarray, np.ndarray]:
-    """One V-cycle for each velocity component of ``w``; with ``par`` at once, one per thread."""
-    if par:
-        second = _second_thread().submit(mv, w[n:])
-        zu = mu(w[:n])
-        return zu, second.result()
-    return mu(w[:n]), mv(w[n:])
+    """One V-cycle for each velocity component of ``w``, one after the other; with ``par`` each on every
+    thread. (The two at once, one per Python thread, each V-cycle on one: cavity 256^2 on two idle
+    cores 5.1-5.3 s against 4.5-4.7 s so, with the OpenMP threads spinning between loops, ``jit.THREAD_SPIN``:
+    the second Python thread and the spinning OpenMP thread wanted the same core.)"""
+    return mu(w[:n], par), mv(w[n:], par)
 
 
 class SimpleSchur:

@@ -45,7 +45,7 @@ from fvrans.fv.assembly import CsrAssembler
 from fvrans.fv.gradient import GaussLeastSquaresGradient, QuadraticFit, gradient_operator
 from fvrans.fv.stress import StressDivergence
 from fvrans.fv.wall_gradient import WallGradient
-from fvrans.jit import one_blas_thread, set_threads
+from fvrans.jit import one_blas_thread, set_threads, threads_from_idle_cores
 from fvrans.linalg.amg import AmgKrylovSolver
 from fvrans.linalg.pressure import PressureSolver
 from fvrans.mesh.geometry import Geometry
@@ -72,6 +72,13 @@ DEFAULT_TURBULENCE_CFL = {"simplec": 20.0, "simple": 20.0, "simultaneous": 0.0}
 # on its boundaries or given as its initial field: a run that does is diverging, even while its
 # values are still finite (common practice: an order-of-magnitude guard, not a physical limit).
 RUNAWAY_SPEED = 1e3
+#: a run on several threads goes on with one after ``SHARED_CORE_STRIKES`` iterations in a row (of at least
+#: ``SHARED_CORE_SECONDS``) that kept fewer than this many cores busy (CPU s / wall s of the process): its
+#: other threads found their cores taken by other processes, and each parallel loop waited for them (beside
+#: a process busy on the other core: 0.98-0.99, cavity 256^2, 2 threads; on idle cores 1.3-1.8; 2026-12-03)
+SHARED_CORE_USE = 1.15
+SHARED_CORE_STRIKES = 2
+SHARED_CORE_SECONDS = 0.02
 DIVERGENCE_ADVICE = (
     "the last good state is kept — lower relax_velocity / relax_pressure, use convection = 'upwind' "
     "to start, or check the boundary conditions and mesh"
@@ -236,6 +243,9 @@ class SimpleSolver:
         #: threads of the parallel kernels (``fvrans.jit.set_threads``: ``controls.threads``, else
         #: FVRANS_THREADS, else every idle core); with two, the velocity components are solved at once
         self.threads = set_threads(self.ctl.threads)
+        #: whether the thread count came from the idle cores (then ``_watch_threads`` may lower it)
+        self.threads_watched = threads_from_idle_cores(self.ctl.threads)
+        self._shared_core_strikes = 0
         nc, nf, ni = mesh.n_cells, mesh.n_faces, mesh.n_internal_faces
         self.nc, self.nf, self.ni = nc, nf, ni
         # geometry for the kernels
@@ -637,6 +647,20 @@ class SimpleSolver:
         with one_blas_thread():
             return self._iterate_until(max_iterations, tolerance, callback, converged_when)
 
+    def _watch_threads(self, wall: float, cpu: float) -> None:
+        """Go on with one thread when the last ``SHARED_CORE_STRIKES`` iterations on several kept fewer than
+        ``SHARED_CORE_USE`` cores busy (``cpu`` / ``wall`` seconds of this process): other processes hold the
+        cores the threads were given. Only a count taken from the idle cores (``threads_watched``); the bits
+        do not depend on the thread count."""
+        if not self.threads_watched or self.threads <= 1 or wall < SHARED_CORE_SECONDS:
+            return
+        self._shared_core_strikes = self._shared_core_strikes + 1 if cpu < SHARED_CORE_USE * wall else 0
+        if self._shared_core_strikes >= SHARED_CORE_STRIKES:
+            log.info("iteration %d kept %.2f cores busy on %d threads: other processes hold the cores; going on "
+                     "with one thread", self.iteration, cpu / wall, self.threads)
+            self.threads = set_threads(1)
+            self._shared_core_strikes = 0
+
     def _iterate_until(
         self,
         max_iterations: int | None,
@@ -651,6 +675,7 @@ class SimpleSolver:
         last_good = self.fields.copy()
         for _ in range(n_max):
             t0 = time.perf_counter()
+            c0 = time.process_time()
             done = self.iteration
             try:
                 res = self.iterate()
@@ -665,6 +690,7 @@ class SimpleSolver:
                     iteration=done,
                 ) from exc
             dt = time.perf_counter() - t0
+            self._watch_threads(dt, time.process_time() - c0)
             self.history.rows.append(res)
             self.history.seconds.append(dt)
             arr = np.asarray(res)

@@ -409,3 +409,57 @@ def test_krylov_basis_kernels_give_the_same_bits_on_one_and_two_threads():
     V, w, h = same_bits(nearly_dependent)
     assert np.abs(V0[: k + 1] @ V[k + 1]).max() < 1e-13
     np.testing.assert_allclose(h[: k + 1], V0[: k + 1] @ near, rtol=0, atol=1e-12 * np.linalg.norm(near))
+
+
+def test_threads_from_idle_cores_only_when_no_count_is_given(monkeypatch):
+    monkeypatch.delenv(jit.THREADS_VARIABLE, raising=False)
+    assert jit.threads_from_idle_cores(None) and jit.threads_from_idle_cores(0)
+    assert not jit.threads_from_idle_cores(2)
+    monkeypatch.setenv(jit.THREADS_VARIABLE, "2")
+    assert not jit.threads_from_idle_cores(0)
+    monkeypatch.setenv(jit.THREADS_VARIABLE, "0")
+    assert jit.threads_from_idle_cores(0)
+
+
+@pytest.mark.skipif(jit.available_threads() < 2, reason="needs two cores")
+def test_a_run_on_idle_cores_goes_on_with_one_thread_when_its_threads_lose_their_cores(monkeypatch):
+    """Threads taken from the idle cores: iterations that keep fewer than SHARED_CORE_USE cores busy (here
+    each waits 0.05 s asleep, as a thread waits for a core another process holds) send the run to one
+    thread after SHARED_CORE_STRIKES of them; iterations that keep two busy do not, nor does a count the
+    case gives."""
+    import time
+
+    from fvrans.solve import simple
+
+    monkeypatch.delenv(jit.THREADS_VARIABLE, raising=False)
+    monkeypatch.setattr(jit.os, "getloadavg", lambda: (0.0, 0.0, 0.0))
+    mesh = channel(2.0, 1.0, 20, 8)
+    geom = compute_geometry(mesh)
+    bc = build_flow_boundary(mesh, geom, SPECS)
+
+    def solver(threads):
+        s = SimpleSolver(mesh, geom, bc, rho=1.0, mu=0.02, controls=SolverControls(threads=threads))
+        iterate = s.iterate
+
+        def waiting():
+            res = iterate()
+            time.sleep(0.05)
+            return res
+
+        s.iterate = waiting
+        return s
+
+    watched = solver(0)
+    assert watched.threads_watched and watched.threads == 2
+    watched.run(max_iterations=simple.SHARED_CORE_STRIKES - 1, tolerance=0.0)
+    assert watched.threads == 2 and jit.threads() == 2
+    watched.run(max_iterations=1, tolerance=0.0)
+    assert watched.threads == 1 and jit.threads() == 1
+    busy = solver(0)
+    for _ in range(3 * simple.SHARED_CORE_STRIKES):
+        busy._watch_threads(1.0, 1.9)
+    assert busy.threads == 2 and jit.threads() == 2
+    given = solver(2)
+    assert not given.threads_watched
+    given.run(max_iterations=2 * simple.SHARED_CORE_STRIKES, tolerance=0.0)
+    assert given.threads == 2 and jit.threads() == 2
