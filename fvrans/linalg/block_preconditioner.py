@@ -78,9 +78,10 @@ from __future__ import annotations
 import numpy as np
 import scipy.sparse as sp
 
-from fvrans.jit import threads
+from fvrans.jit import PARALLEL_MIN_CELLS, threads
 from fvrans.linalg import _amg_kernels as _amg
 from fvrans.linalg import _block_kernels as _k
+from fvrans.linalg.amg import _second_thread
 from fvrans.linalg.fgmres import VCycle
 
 MOMENTUM_COARSENING = "RS"
@@ -359,10 +360,16 @@ def _column_halves(D: sp.csr_matrix) -> tuple[sp.csr_matrix, sp.csr_matrix]:
 
 
 def _momentum_pair(mu: VCycle, mv: VCycle, w: np.ndarray, n: int, par: bool) -> tuple[np.ndarray, np.ndarray]:
-    """One V-cycle for each velocity component of ``w``, one after the other; with ``par`` each on every
-    thread. (The two at once, one per Python thread, each V-cycle on one: cavity 256^2 on two idle
-    cores 5.1-5.3 s against 4.5-4.7 s so, with the OpenMP threads spinning between loops, ``jit.THREAD_SPIN``:
-    the second Python thread and the spinning OpenMP thread wanted the same core.)"""
+    """One V-cycle for each velocity component of ``w``. With ``par``: below ``PARALLEL_MIN_CELLS`` rows, where
+    a V-cycle's loops run on one thread, the two at once on two Python threads; from there on one after the
+    other, each on every thread. (At once above that size, cavity 256^2 on two idle cores took 5.1-5.3 s
+    against 4.5-4.7 s: the second Python thread and the OpenMP thread spinning between loops,
+    ``jit.THREAD_SPIN``, wanted the same core; one after the other below it, the coarse step took 6.5 s against
+    5.7 s, and 5.9 s on one thread.)"""
+    if par and n < PARALLEL_MIN_CELLS:
+        second = _second_thread().submit(mv, w[n:])
+        zu = mu(w[:n])
+        return zu, second.result()
     return mu(w[:n], par), mv(w[n:], par)
 
 

@@ -64,3 +64,32 @@ def test_commutator_products_are_scipys_products_to_the_bit_on_one_and_two_threa
         np.testing.assert_array_equal(out, expect)
         np.testing.assert_array_equal(minus, r - G @ y)
         np.testing.assert_array_equal(scaled, d * (G @ y))
+
+
+@pytest.mark.parametrize("side", [64, 136])  # 4 096 rows (two V-cycles at once) and 18 496 (one after the other)
+def test_momentum_pair_gives_the_same_bits_on_one_and_two_threads(side):
+    """The two momentum V-cycles of the block preconditioner (``block_preconditioner._momentum_pair``): on two
+    threads (at once below PARALLEL_MIN_CELLS rows, each on both threads from there) the bits of one thread,
+    and each the V-cycle of its own matrix."""
+    from fvrans.linalg.block_preconditioner import _momentum_pair
+    from fvrans.linalg.fgmres import VCycle
+
+    n = side * side
+    assert (n < jit.PARALLEL_MIN_CELLS) == (side == 64)
+    lap = sp.kronsum(sp.diags([-1.0, 2.0, -1.0], [-1, 0, 1], shape=(side, side)),
+                     sp.diags([-1.0, 2.0, -1.0], [-1, 0, 1], shape=(side, side)), format="csr")
+    Au = (lap + sp.diags(np.full(n, 0.5))).tocsr()
+    Av = (lap + sp.diags(np.linspace(0.2, 2.0, n))).tocsr()
+    mu, mv = VCycle(), VCycle()
+    mu.update(Au)
+    mv.update(Av)
+    w = np.random.default_rng(3).normal(size=2 * n)
+    jit.set_threads(1)
+    one = _momentum_pair(mu, mv, w, n, False)
+    jit.set_threads(2)
+    two = _momentum_pair(mu, mv, w, n, jit.threads() > 1)
+    for a, b in zip(one, two):
+        np.testing.assert_array_equal(a, b)
+    np.testing.assert_array_equal(one[0], mu(w[:n]))
+    np.testing.assert_array_equal(one[1], mv(w[n:]))
+    assert not np.array_equal(one[0], one[1])
