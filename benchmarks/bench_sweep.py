@@ -21,6 +21,9 @@ Measured with the defaults on the 2-core development machine (shared with other 
     cluster start-up: 0.83 s (1 worker), 2.07 s (2 workers)
     dask overhead per run (1 worker against in-process, cold starts): 0.095 s
 
+Again on 2026-12-03 17:47 (main bb92264, idle machine): in-process cold / warm 283.1 / 330.3 runs per minute,
+dask 1 worker 254.4 / 312.0, 2 workers 460.7 / 534.1; cluster start-up 0.70 / 0.75 s; overhead 0.024 s per run.
+
 By coupling (2026-12-03, in-process, ``--in-process-only --set solver.coupling=...``, machine shared with a
 test suite; seconds cold / warm, outer iterations cold / warm over the sweep):
 
