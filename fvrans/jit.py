@@ -33,7 +33,7 @@ OMP_WAIT_POLICY = os.environ.setdefault("OMP_WAIT_POLICY", "PASSIVE")
 #: unless the environment says otherwise: asleep at once, each of the hundreds of short parallel loops of an
 #: iteration waited for the kernel to wake the second thread, and two threads gained little over one. Idle
 #: machine, simultaneous path, iterative solve, whole runs, 1 thread / 2 asleep at once / 2 with this spin:
-#: cavity 256^2 6.2-6.6 / 5.1-5.6 / 4.5-5.0 s, fine plate 14.4 / 12.4 / 10.1 s (2026-12-03 17:30). Beside a
+#: cavity 256^2 6.1-6.6 / 5.1-5.6 / 4.5-5.2 s, fine plate 13.0-14.4 / 12.4 / 10.3-11.7 s (2026-12-03). Beside a
 #: process that keeps the other core busy the spin cost 27 % (cavity 256^2 8.5 s against 6.7 on one thread):
 #: a run that finds its second thread without a core goes on with one (``SimpleSolver``: ``SHARED_CORE_USE``)
 THREAD_SPIN = os.environ.setdefault("GOMP_SPINCOUNT", "3000")
