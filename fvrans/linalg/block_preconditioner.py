@@ -363,9 +363,9 @@ def _momentum_pair(mu: VCycle, mv: VCycle, w: np.ndarray, n: int, par: bool) -> 
     """One V-cycle for each velocity component of ``w``. With ``par``: below ``PARALLEL_MIN_CELLS`` rows, where
     a V-cycle's loops run on one thread, the two at once on two Python threads; from there on one after the
     other, each on every thread. (At once above that size, cavity 256^2 on two idle cores took 5.1-5.3 s
-    against 4.5-4.7 s: the second Python thread and the OpenMP thread spinning between loops,
-    ``jit.THREAD_SPIN``, wanted the same core; one after the other below it, the coarse step took 6.5 s against
-    5.7 s, and 5.9 s on one thread.)"""
+    against 4.5-4.7 s, with a spin of 300 000: the second Python thread and the OpenMP thread spinning between
+    loops, ``jit.THREAD_SPIN``, wanted the same core; one after the other below it, the coarse step took 6.5 s
+    against 5.7 s, and 5.9 s on one thread.)"""
     if par and n < PARALLEL_MIN_CELLS:
         second = _second_thread().submit(mv, w[n:])
         zu = mu(w[:n])
