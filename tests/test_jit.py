@@ -96,25 +96,16 @@ def test_compile_seconds_are_inside_the_wall_seconds():
     assert s["solve_seconds"] + s["compile_seconds"] == pytest.approx(s["wall_seconds"])
 
 
-def test_openmp_threads_wait_asleep_unless_the_environment_says_otherwise():
-    """fvrans.jit sets OMP_WAIT_POLICY=PASSIVE before numba starts its OpenMP threads (spinning threads
-    took the core the solver needed on a shared machine), and keeps a value the user gave."""
-    code = "import os, fvrans.jit; print(os.environ['OMP_WAIT_POLICY'])"
-    env = {k: v for k, v in os.environ.items() if k != "OMP_WAIT_POLICY"}
+@pytest.mark.parametrize("variable, default, given", [("OMP_WAIT_POLICY", "PASSIVE", "ACTIVE"),
+                                                       ("GOMP_SPINCOUNT", "3000", "0")])
+def test_openmp_wait_settings_are_set_unless_the_environment_gives_them(variable, default, given):
+    """fvrans.jit sets, before numba starts its OpenMP threads, OMP_WAIT_POLICY=PASSIVE (threads spinning
+    without end took the core the solver needed on a shared machine) and GOMP_SPINCOUNT (a short spin
+    between parallel loops before they sleep), and keeps a value the user gave."""
+    code = f"import os, fvrans.jit; print(os.environ[{variable!r}])"
+    env = {k: v for k, v in os.environ.items() if k != variable}
     unset = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True, text=True, check=True)
-    given = subprocess.run([sys.executable, "-c", code], env={**env, "OMP_WAIT_POLICY": "ACTIVE"},
-                           capture_output=True, text=True, check=True)
-    assert unset.stdout.strip() == "PASSIVE"
-    assert given.stdout.strip() == "ACTIVE"
-
-
-def test_openmp_threads_spin_briefly_before_they_sleep_unless_the_environment_says_otherwise():
-    """fvrans.jit sets GOMP_SPINCOUNT (a short spin between parallel loops) before numba starts its OpenMP
-    threads, and keeps a value the user gave."""
-    code = "import os, fvrans.jit; print(os.environ['GOMP_SPINCOUNT'])"
-    env = {k: v for k, v in os.environ.items() if k != "GOMP_SPINCOUNT"}
-    unset = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True, text=True, check=True)
-    given = subprocess.run([sys.executable, "-c", code], env={**env, "GOMP_SPINCOUNT": "0"},
-                           capture_output=True, text=True, check=True)
-    assert unset.stdout.strip() == "3000"
-    assert given.stdout.strip() == "0"
+    kept = subprocess.run([sys.executable, "-c", code], env={**env, variable: given},
+                          capture_output=True, text=True, check=True)
+    assert unset.stdout.strip() == default
+    assert kept.stdout.strip() == given
