@@ -91,35 +91,38 @@ _STARTED = time.perf_counter()
 _STARTED_CPU = time.process_time()
 
 
+def _given_threads(n: int | None) -> int:
+    """The thread count the user gave: ``n`` when positive, else ``FVRANS_THREADS`` when set, else 0. A
+    ``FVRANS_THREADS`` that is not a whole number is refused (CaseError naming the variable: it is part of
+    the run's input)."""
+    if n is not None and int(n) > 0:
+        return int(n)
+    text = os.environ.get(THREADS_VARIABLE, "").strip()
+    if not text:
+        return 0
+    try:
+        return int(text)
+    except ValueError:
+        from fvrans.errors import CaseError
+
+        raise CaseError(
+            f"environment variable {THREADS_VARIABLE}={text!r} is not a whole number: give the number of "
+            f"threads (1 to {available_threads()}) or leave it unset to use every core"
+        ) from None
+
+
 def requested_threads(n: int | None = None) -> int:
     """The thread count asked for: ``n`` when positive, else ``FVRANS_THREADS`` when set and
     positive, else :func:`idle_cores`; capped at :func:`available_threads`. A ``FVRANS_THREADS`` that is not
     a whole number is refused (CaseError naming the variable: it is part of the run's input)."""
-    most = available_threads()
-    if n is None or int(n) <= 0:
-        text = os.environ.get(THREADS_VARIABLE, "").strip()
-        n = 0
-        if text:
-            try:
-                n = int(text)
-            except ValueError:
-                from fvrans.errors import CaseError
-
-                raise CaseError(
-                    f"environment variable {THREADS_VARIABLE}={text!r} is not a whole number: give the number of "
-                    f"threads (1 to {most}) or leave it unset to use every core"
-                ) from None
-    n = int(n)
-    return idle_cores() if n <= 0 else min(n, most)
+    k = _given_threads(n)
+    return idle_cores() if k <= 0 else min(k, available_threads())
 
 
 def threads_from_idle_cores(n: int | None = None) -> bool:
     """Whether :func:`requested_threads` takes the idle cores: neither ``n`` nor ``FVRANS_THREADS`` gives a
     positive count (a count the user gave is kept for the whole run; the idle cores' is watched)."""
-    if n is not None and int(n) > 0:
-        return False
-    text = os.environ.get(THREADS_VARIABLE, "").strip()
-    return not (text.lstrip("+").isdigit() and int(text) > 0)
+    return _given_threads(n) <= 0
 
 
 def set_threads(n: int | None = None) -> int:
